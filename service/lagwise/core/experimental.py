@@ -1,0 +1,287 @@
+"""Experimental variograms (and related statistics) by classes of distance and direction."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from . import kernels as K
+from .directions import OMNIDIRECTIONAL, DirectionClass, validate_direction
+from .errors import FieldIssue, InvalidInput
+from .lags import AUTO_FINE_BINS, LagRequest, auto_edges, validate_lags
+from .limits import Limits
+from .pairs import (
+    PreparedSamples,
+    absolute_differences,
+    accumulate,
+    estimate_pairs_within,
+    layout,
+    prepare,
+    scatter_pairs,
+)
+from .samples import SampleSet
+from .statistics import ACCUMULATION_MODE, COVARIANCE_TYPE, STATISTICS, class_value
+from .summary import Summary, summarise
+
+DEFAULT_MIN_PAIRS = 30
+DEFAULT_SCATTER_LIMIT = 2000
+
+
+@dataclass(frozen=True)
+class ScatterRequest:
+    """Ask for the pairs of one class (an h-scattergram).
+
+    Attributes
+    ----------
+    direction, klass : int
+        0-based indexes of the direction and of its distance class.
+    limit : int
+        Most pairs to return; larger classes are thinned evenly.
+    """
+
+    direction: int
+    klass: int
+    limit: int = DEFAULT_SCATTER_LIMIT
+
+
+@dataclass(frozen=True)
+class ClassRow:
+    """One distance class of one direction.
+
+    Attributes
+    ----------
+    lower, upper : float
+        Class bounds [lower, upper), coordinate units.
+    mean_distance : float or None
+        Mean separation of the class's pairs (None without pairs).
+    pairs : int
+        Number of pairs.
+    value : float or None
+        The statistic (None when undefined, with ``reason``).
+    sparse : bool
+        Fewer than ``min_pairs`` pairs.
+    """
+
+    lower: float
+    upper: float
+    mean_distance: float | None
+    pairs: int
+    value: float | None
+    reason: str | None
+    sparse: bool
+    tail_mean: float | None = None
+    head_mean: float | None = None
+    tail_sd: float | None = None
+    head_sd: float | None = None
+
+
+@dataclass(frozen=True)
+class DirectionResult:
+    """The classes of one direction."""
+
+    direction: DirectionClass
+    classes: tuple[ClassRow, ...]
+
+
+@dataclass(frozen=True)
+class Scattergram:
+    """Tail and head values of (a thinning of) one class's pairs, in value units."""
+
+    direction: int
+    klass: int
+    pairs_in_class: int
+    stride: int
+    tail: np.ndarray
+    head: np.ndarray
+
+
+@dataclass(frozen=True)
+class ExperimentalVariogram:
+    """Result of :func:`experimental_variogram`.
+
+    Attributes
+    ----------
+    directions : tuple of DirectionResult
+    summary : Summary
+    statistic : str
+    min_pairs : int
+    lag_method : str
+        ``width``, ``edges``, ``equal_width`` or ``equal_pairs``.
+    colocated_pairs : int
+        Zero-distance pairs, which belong to no class.
+    scattergram : Scattergram or None
+    warnings : tuple of str
+    """
+
+    directions: tuple[DirectionResult, ...]
+    summary: Summary
+    statistic: str
+    min_pairs: int
+    lag_method: str
+    colocated_pairs: int
+    scattergram: Scattergram | None
+    warnings: tuple[str, ...] = field(default=())
+
+
+def _validate_options(samples, statistic, min_pairs, directions):
+    if statistic not in STATISTICS:
+        raise InvalidInput.at("/statistic", f"must be one of {', '.join(STATISTICS)}")
+    if min_pairs < 1:
+        raise InvalidInput.at("/min_pairs", "must be at least 1")
+    if statistic == "pairwise_relative":
+        bad = np.flatnonzero(samples.values <= 0)
+        if bad.size:
+            raise InvalidInput(
+                [
+                    FieldIssue(f"/samples/values/{samples.source_index[i]}", "pairwise_relative needs positive values")
+                    for i in bad[:20]
+                ]
+            )
+    resolved, warnings = [], []
+    for index, d in enumerate(directions or [OMNIDIRECTIONAL]):
+        direction, notes = validate_direction(d, index, samples.dimension)
+        resolved.append(direction)
+        warnings.extend(notes)
+    return resolved, warnings
+
+
+def _half_extent(samples: SampleSet, summary: Summary, direction: DirectionClass) -> float:
+    if direction.tolerance >= 90.0:
+        return 0.5 * summary.max_distance
+    projection = samples.coords @ direction.unit_vector(samples.dimension)
+    return 0.5 * float(np.ptp(projection))
+
+
+def _resolve_edges(samples, summary, prepared, lags, directions, min_pairs, limits):
+    explicit = validate_lags(lags)
+    if explicit is not None:
+        return [explicit] * len(directions)
+    largest = [_half_extent(samples, summary, d) for d in directions]
+    if min(largest) <= 0:
+        raise InvalidInput.at("/directions", "the samples have no extent along a requested direction")
+    limits.check_pairs(estimate_pairs_within(samples.coords, max(largest)), len(directions))
+    fine = layout(directions, [np.linspace(0.0, top, AUTO_FINE_BINS + 1) for top in largest])
+    table, _ = accumulate(prepared, fine, K.MODE_COUNT)
+    return [auto_edges(lags.method, top, table[k, :, K.COUNT], min_pairs) for k, top in enumerate(largest)]
+
+
+def _scattergram(request, prepared, classes, counts, limits) -> Scattergram:
+    if not 0 <= request.direction < counts.shape[0]:
+        raise InvalidInput.at("/pairs_for_class/direction", f"must be from 0 to {counts.shape[0] - 1}")
+    if not 0 <= request.klass < classes.counts[request.direction]:
+        top = classes.counts[request.direction] - 1
+        raise InvalidInput.at("/pairs_for_class/class", f"must be from 0 to {top}")
+    if not 1 <= request.limit <= limits.max_scatter_pairs:
+        raise InvalidInput.at("/pairs_for_class/limit", f"must be from 1 to {limits.max_scatter_pairs}")
+    total = int(counts[request.direction, request.klass])
+    bin_index = request.direction * classes.kmax + request.klass
+    tail, head, stride = scatter_pairs(prepared, classes, bin_index, max(total, 1), request.limit)
+    return Scattergram(request.direction, request.klass, total, stride, tail, head)
+
+
+def experimental_variogram(
+    samples: SampleSet,
+    *,
+    lags: LagRequest = LagRequest(),
+    directions: list[DirectionClass] | None = None,
+    statistic: str = "semivariance",
+    min_pairs: int = DEFAULT_MIN_PAIRS,
+    pairs_for_class: ScatterRequest | None = None,
+    limits: Limits = Limits(),
+) -> ExperimentalVariogram:
+    """Compute an experimental variogram (or covariance-type statistic) per direction class.
+
+    Parameters
+    ----------
+    samples : SampleSet
+        Validated samples.
+    lags : LagRequest
+        Distance classes (see :mod:`lagwise.core.lags`); default ``auto`` equal width.
+    directions : list of DirectionClass, optional
+        Direction classes; default one omnidirectional class.
+    statistic : str
+        One of :data:`lagwise.core.statistics.STATISTICS`.
+    min_pairs : int
+        Classes with fewer pairs are flagged ``sparse`` (default 30, common practice).
+    pairs_for_class : ScatterRequest, optional
+        Also return the pairs of one class.
+    limits : Limits
+        Cost limits, checked before the pair passes.
+
+    Raises
+    ------
+    InvalidInput, LimitExceeded
+    """
+    limits.check_samples(samples.size)
+    resolved, warnings = _validate_options(samples, statistic, min_pairs, directions)
+    summary = summarise(samples.coords, samples.values)
+    prepared = prepare(samples.coords, samples.values)
+    edges = _resolve_edges(samples, summary, prepared, lags, resolved, min_pairs, limits)
+    classes = layout(resolved, edges)
+    limits.check_pairs(estimate_pairs_within(samples.coords, classes.search_radius), len(resolved))
+    table, colocated = accumulate(prepared, classes, ACCUMULATION_MODE[statistic])
+    counts = table[:, :, K.COUNT]
+    medians = _class_medians(statistic, prepared, classes, counts, limits)
+    results = tuple(
+        DirectionResult(d, _rows(statistic, table[k], edges[k], medians[k], min_pairs, prepared))
+        for k, d in enumerate(resolved)
+    )
+    warnings.extend(_class_warnings(results, min_pairs, summary))
+    scatter = None if pairs_for_class is None else _scattergram(pairs_for_class, prepared, classes, counts, limits)
+    return ExperimentalVariogram(
+        directions=results,
+        summary=summary,
+        statistic=statistic,
+        min_pairs=min_pairs,
+        lag_method=lags.method,
+        colocated_pairs=colocated,
+        scattergram=scatter,
+        warnings=tuple(list(samples.warnings) + warnings),
+    )
+
+
+def _class_medians(statistic, prepared: PreparedSamples, classes, counts, limits) -> np.ndarray:
+    medians = np.full(counts.shape, np.nan)
+    if statistic != "semivariance_median":
+        return medians
+    limits.check_median_pairs(int(counts.sum()))
+    for b, diffs in enumerate(absolute_differences(prepared, classes, counts)):
+        if diffs.size:
+            medians.flat[b] = float(np.median(diffs))
+    return medians
+
+
+def _rows(statistic, table, edges, medians, min_pairs, prepared) -> tuple[ClassRow, ...]:
+    rows = []
+    for c in range(len(edges) - 1):
+        row = table[c]
+        n = int(row[K.COUNT])
+        v = class_value(statistic, row, prepared.mean, prepared.scale, medians[c])
+        rows.append(
+            ClassRow(
+                lower=float(edges[c]),
+                upper=float(edges[c + 1]),
+                mean_distance=float(row[K.DISTANCE] / n) if n else None,
+                pairs=n,
+                value=v.value,
+                reason=v.reason,
+                sparse=n < min_pairs,
+                tail_mean=v.tail_mean if statistic in COVARIANCE_TYPE else None,
+                head_mean=v.head_mean if statistic in COVARIANCE_TYPE else None,
+                tail_sd=v.tail_sd if statistic in COVARIANCE_TYPE else None,
+                head_sd=v.head_sd if statistic in COVARIANCE_TYPE else None,
+            )
+        )
+    return tuple(rows)
+
+
+def _class_warnings(results, min_pairs, summary) -> list[str]:
+    warnings = []
+    for k, result in enumerate(results):
+        sparse = sum(row.sparse for row in result.classes)
+        if sparse:
+            warnings.append(f"direction {k}: {sparse} of {len(result.classes)} classes hold fewer than {min_pairs} pairs")
+    if summary.variance == 0.0:
+        warnings.append("all values are equal: semivariances are 0 and correlations are undefined")
+    return warnings

@@ -1,0 +1,276 @@
+"""Compiled pair kernels (numba): enumerate pairs within a search radius and bin them.
+
+Samples arrive sorted by x, padded to three coordinates. Each sample i visits the
+samples j > i whose x lies within the search radius (a sweep over the sorted axis),
+so no pair is visited twice and memory never depends on the number of pairs: the
+kernels keep per-thread accumulator tables of shape (bins, ACCUMULATORS) and
+interleave blocks of rows between threads so that the shorter sweeps near the end
+of the x-range are shared evenly.
+
+Accumulator columns (sums over the pairs of a bin; tail and head values centred
+on the sample mean so that sums of products keep their precision):
+``COUNT, DISTANCE, SQUARE, ROOT, ABSOLUTE, TAIL, HEAD, TAIL2, HEAD2, PRODUCT, RELATIVE``.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+from numba import njit, prange
+
+COUNT, DISTANCE, SQUARE, ROOT, ABSOLUTE, TAIL, HEAD, TAIL2, HEAD2, PRODUCT, RELATIVE = range(11)
+ACCUMULATORS = 11
+
+# Which accumulators a pass fills: counts only, the square difference, absolute
+# differences too, the covariance sums, or the pairwise relative sum.
+MODE_COUNT, MODE_SQUARE, MODE_ABSOLUTE, MODE_COVARIANCE, MODE_RELATIVE = range(5)
+
+ROW_BLOCK = 64
+
+
+@njit(cache=True)
+def classify(dx, dy, dz, d, dirs, k, edges, nk, inv_width):
+    """Class index of a pair in direction k (-1 if not a member) and its orientation (+1/-1).
+
+    Orientation +1 means the pair's tail is the first sample (separation h = x_j - x_i
+    points along the azimuth; ties toward azimuth + 90 degrees, then upward).
+    """
+    ux = dirs[k, 0]
+    uy = dirs[k, 1]
+    hh2 = dx * dx + dy * dy
+    proj = dx * ux + dy * uy
+    perp = dx * uy - dy * ux
+    if hh2 > 0.0:
+        cos_tol = dirs[k, 2]
+        if cos_tol > 0.0 and proj * proj < hh2 * cos_tol * cos_tol:
+            return -1, 0
+        if perp * perp > dirs[k, 3]:
+            return -1, 0
+    if proj > 0.0:
+        sign = 1
+    elif proj < 0.0:
+        sign = -1
+    elif perp > 0.0:
+        sign = 1
+    elif perp < 0.0:
+        sign = -1
+    elif dz >= 0.0:
+        sign = 1
+    else:
+        sign = -1
+    if dirs[k, 4] > 0.0:
+        if hh2 == 0.0:
+            off_dip = 0.5 * math.pi - abs(dirs[k, 5])
+        else:
+            off_dip = abs(math.atan2(-dz * sign, math.sqrt(hh2)) - dirs[k, 5])
+        if off_dip > dirs[k, 6]:
+            return -1, 0
+    vband2 = dirs[k, 10]
+    if vband2 < np.inf:
+        offset = dx * dirs[k, 7] + dy * dirs[k, 8] + dz * dirs[k, 9]
+        if offset * offset > vband2:
+            return -1, 0
+    count = nk[k]
+    first = edges[k, 0]
+    if d < first or d >= edges[k, count]:
+        return -1, 0
+    if inv_width[k] > 0.0:
+        c = int((d - first) * inv_width[k])
+        if c >= count:
+            c = count - 1
+        while c > 0 and d < edges[k, c]:
+            c -= 1
+        while c < count - 1 and d >= edges[k, c + 1]:
+            c += 1
+    else:
+        lo = 0
+        hi = count
+        while hi - lo > 1:
+            mid = (lo + hi) // 2
+            if d >= edges[k, mid]:
+                lo = mid
+            else:
+                hi = mid
+        c = lo
+    return c, sign
+
+
+@njit(cache=True)
+def add_pair(table, b, d, tail, head, mode, mean):
+    """Add one oriented pair (centred tail and head values) to bin b of a table."""
+    table[b, COUNT] += 1.0
+    table[b, DISTANCE] += d
+    if mode == MODE_COUNT:
+        return
+    diff = head - tail
+    table[b, SQUARE] += diff * diff
+    if mode == MODE_ABSOLUTE:
+        a = abs(diff)
+        table[b, ROOT] += math.sqrt(a)
+        table[b, ABSOLUTE] += a
+    elif mode == MODE_COVARIANCE:
+        table[b, TAIL] += tail
+        table[b, HEAD] += head
+        table[b, TAIL2] += tail * tail
+        table[b, HEAD2] += head * head
+        table[b, PRODUCT] += tail * head
+    elif mode == MODE_RELATIVE:
+        r = diff / (0.5 * (tail + head) + mean)
+        table[b, RELATIVE] += r * r
+
+
+@njit(parallel=True, cache=True)
+def accumulate_classes(pts, vals, mean, max_d2, dirs, edges, nk, inv_width, mode, nthreads):
+    """Accumulate every pair within sqrt(max_d2) into (direction, class) bins.
+
+    Returns the table of shape (ndir * kmax, ACCUMULATORS), bin = k * kmax + class,
+    and the number of co-located (zero-distance) pairs, which fall in no class.
+    """
+    n = pts.shape[0]
+    ndir = dirs.shape[0]
+    kmax = edges.shape[1] - 1
+    tables = np.zeros((nthreads, ndir * kmax, ACCUMULATORS))
+    colocated = np.zeros(nthreads, dtype=np.int64)
+    nblocks = (n + ROW_BLOCK - 1) // ROW_BLOCK
+    for t in prange(nthreads):
+        table = tables[t]
+        for blk in range(t, nblocks, nthreads):
+            for i in range(blk * ROW_BLOCK, min(n, (blk + 1) * ROW_BLOCK)):
+                xi = pts[i, 0]
+                yi = pts[i, 1]
+                zi = pts[i, 2]
+                for j in range(i + 1, n):
+                    dx = pts[j, 0] - xi
+                    if dx * dx > max_d2:
+                        break
+                    dy = pts[j, 1] - yi
+                    dz = pts[j, 2] - zi
+                    d2 = dx * dx + dy * dy + dz * dz
+                    if d2 > max_d2:
+                        continue
+                    if d2 == 0.0:
+                        colocated[t] += 1
+                        continue
+                    d = math.sqrt(d2)
+                    for k in range(ndir):
+                        c, sign = classify(dx, dy, dz, d, dirs, k, edges, nk, inv_width)
+                        if c < 0:
+                            continue
+                        if sign > 0:
+                            add_pair(table, k * kmax + c, d, vals[i], vals[j], mode, mean)
+                        else:
+                            add_pair(table, k * kmax + c, d, vals[j], vals[i], mode, mean)
+    return tables.sum(axis=0), colocated.sum()
+
+
+@njit(cache=True)
+def collect_pairs(pts, vals, max_d2, dirs, edges, nk, inv_width, offsets, out_abs, target, stride, out_tail, out_head):
+    """Serial pass that copies pair values out of the accumulators' reach.
+
+    When ``out_abs`` is non-empty, |head - tail| of every member pair is written at
+    ``offsets[bin]`` onwards (offsets are advanced; they must come from the counts of
+    an earlier pass). When ``target >= 0``, every ``stride``-th pair of that bin (in
+    visiting order) has its centred tail and head values written to out_tail/out_head.
+    Returns how many scattergram pairs were written.
+    """
+    n = pts.shape[0]
+    ndir = dirs.shape[0]
+    kmax = edges.shape[1] - 1
+    seen = 0
+    written = 0
+    want_abs = out_abs.shape[0] > 0
+    for i in range(n):
+        for j in range(i + 1, n):
+            dx = pts[j, 0] - pts[i, 0]
+            if dx * dx > max_d2:
+                break
+            dy = pts[j, 1] - pts[i, 1]
+            dz = pts[j, 2] - pts[i, 2]
+            d2 = dx * dx + dy * dy + dz * dz
+            if d2 > max_d2 or d2 == 0.0:
+                continue
+            d = math.sqrt(d2)
+            for k in range(ndir):
+                c, sign = classify(dx, dy, dz, d, dirs, k, edges, nk, inv_width)
+                if c < 0:
+                    continue
+                b = k * kmax + c
+                if want_abs:
+                    out_abs[offsets[b]] = abs(vals[j] - vals[i])
+                    offsets[b] += 1
+                if b == target:
+                    if seen % stride == 0 and written < out_tail.shape[0]:
+                        out_tail[written] = vals[i] if sign > 0 else vals[j]
+                        out_head[written] = vals[j] if sign > 0 else vals[i]
+                        written += 1
+                    seen += 1
+    return written
+
+
+@njit(cache=True)
+def map_cell(hx, hy, cell, cells):
+    """Cell index (row by hy) of separation (hx, hy), or -1 outside the map."""
+    ix = int(math.floor(hx / cell + 0.5))
+    iy = int(math.floor(hy / cell + 0.5))
+    if ix < -cells or ix > cells or iy < -cells or iy > cells:
+        return -1
+    return (iy + cells) * (2 * cells + 1) + (ix + cells)
+
+
+@njit(parallel=True, cache=True)
+def accumulate_map(pts, vals, mean, cell, cells, mode, nthreads):
+    """Accumulate every pair, as h and as -h, into the cells of a variogram map.
+
+    Cell (i, j) collects horizontal separations with hx in [(i - 1/2) cell, (i + 1/2) cell)
+    and hy likewise, i, j in [-cells, cells]; the pair (a, b) counts with tail a and head
+    b at h = x_b - x_a, and with tail b and head a at -h.
+    """
+    n = pts.shape[0]
+    width = 2 * cells + 1
+    reach = (cells + 0.5) * cell
+    tables = np.zeros((nthreads, width * width, ACCUMULATORS))
+    nblocks = (n + ROW_BLOCK - 1) // ROW_BLOCK
+    for t in prange(nthreads):
+        table = tables[t]
+        for blk in range(t, nblocks, nthreads):
+            for i in range(blk * ROW_BLOCK, min(n, (blk + 1) * ROW_BLOCK)):
+                for j in range(i + 1, n):
+                    dx = pts[j, 0] - pts[i, 0]
+                    if dx > reach:
+                        break
+                    dy = pts[j, 1] - pts[i, 1]
+                    if abs(dy) > reach or (dx == 0.0 and dy == 0.0):
+                        continue
+                    d = math.sqrt(dx * dx + dy * dy)
+                    b = map_cell(dx, dy, cell, cells)
+                    if b >= 0:
+                        add_pair(table, b, d, vals[i], vals[j], mode, mean)
+                    b = map_cell(-dx, -dy, cell, cells)
+                    if b >= 0:
+                        add_pair(table, b, d, vals[j], vals[i], mode, mean)
+    return tables.sum(axis=0)
+
+
+@njit(cache=True)
+def collect_map_differences(pts, vals, cell, cells, offsets, out_abs):
+    """Serial pass writing |head - tail| of every map pair at offsets[cell] onwards."""
+    n = pts.shape[0]
+    reach = (cells + 0.5) * cell
+    for i in range(n):
+        for j in range(i + 1, n):
+            dx = pts[j, 0] - pts[i, 0]
+            if dx > reach:
+                break
+            dy = pts[j, 1] - pts[i, 1]
+            if abs(dy) > reach or (dx == 0.0 and dy == 0.0):
+                continue
+            a = abs(vals[j] - vals[i])
+            b = map_cell(dx, dy, cell, cells)
+            if b >= 0:
+                out_abs[offsets[b]] = a
+                offsets[b] += 1
+            b = map_cell(-dx, -dy, cell, cells)
+            if b >= 0:
+                out_abs[offsets[b]] = a
+                offsets[b] += 1

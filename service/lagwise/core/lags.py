@@ -1,0 +1,109 @@
+"""Distance classes (lags).
+
+Classes are half-open, [lower, upper), in coordinate units (metres for geographic
+sets). Three ways to ask for them:
+
+* ``width`` and ``count``: [0, w), [w, 2w), ..., [(k-1)w, kw);
+* ``edges``: [e_i, e_(i+1)), edges strictly increasing and non-negative;
+* ``auto``: the largest distance is half the field's extent in the class direction
+  (a rule of thumb of the trade: beyond about half the field fewer and fewer
+  samples take part) -- half the largest separation for the omnidirectional class,
+  half the spread of the samples' projections on the class line otherwise. The
+  class count is the largest, up to ``AUTO_MAX_CLASSES``, for which every class
+  holds at least ``min_pairs`` pairs (one class when none does). ``equal_width``
+  splits that distance evenly; ``equal_pairs`` places edges at pair-count quantiles,
+  read from a first counting pass on ``AUTO_FINE_BINS`` fine classes, so quantile
+  edges are resolved to 1/``AUTO_FINE_BINS`` of the largest distance.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from .errors import FieldIssue, InvalidInput
+
+AUTO_METHODS = ("equal_width", "equal_pairs")
+AUTO_MAX_CLASSES = 15
+AUTO_FINE_BINS = 300
+MAX_CLASSES = 1000
+
+
+@dataclass(frozen=True)
+class LagRequest:
+    """How the caller asked for distance classes (exactly one way)."""
+
+    width: float | None = None
+    count: int | None = None
+    edges: tuple[float, ...] | None = None
+    auto: str | None = None
+
+    @property
+    def method(self) -> str:
+        """``width``, ``edges``, ``equal_width`` or ``equal_pairs``."""
+        if self.edges is not None:
+            return "edges"
+        if self.width is not None:
+            return "width"
+        return self.auto or "equal_width"
+
+
+def validate_lags(request: LagRequest) -> np.ndarray | None:
+    """Check an explicit request and return its edges, or None for ``auto``.
+
+    Raises :class:`InvalidInput` naming ``/lags/<field>``.
+    """
+    given = [request.edges is not None, request.width is not None or request.count is not None, request.auto is not None]
+    if sum(given) > 1:
+        raise InvalidInput.at("/lags", "give exactly one of: width and count, edges, or auto")
+    if request.edges is not None:
+        return _validate_edges(request.edges)
+    if request.width is not None or request.count is not None:
+        issues = []
+        if request.width is None or not request.width > 0:
+            issues.append(FieldIssue("/lags/width", "must be a positive distance"))
+        if request.count is None or not 1 <= request.count <= MAX_CLASSES:
+            issues.append(FieldIssue("/lags/count", f"must be a whole number from 1 to {MAX_CLASSES}"))
+        if issues:
+            raise InvalidInput(issues)
+        return request.width * np.arange(request.count + 1, dtype=np.float64)
+    if request.auto is not None and request.auto not in AUTO_METHODS:
+        raise InvalidInput.at("/lags/auto", f"must be one of {', '.join(AUTO_METHODS)}")
+    return None
+
+
+def _validate_edges(edges: tuple[float, ...]) -> np.ndarray:
+    e = np.asarray(edges, dtype=np.float64)
+    if e.size < 2 or e.size > MAX_CLASSES + 1:
+        raise InvalidInput.at("/lags/edges", f"needs from 2 to {MAX_CLASSES + 1} edges")
+    issues = [FieldIssue(f"/lags/edges/{i}", "must be a finite number") for i in np.flatnonzero(~np.isfinite(e))]
+    if e[0] < 0:
+        issues.append(FieldIssue("/lags/edges/0", "must not be negative"))
+    for i in np.flatnonzero(np.diff(e) <= 0):
+        issues.append(FieldIssue(f"/lags/edges/{i + 1}", "edges must increase strictly (unsorted or repeated edge)"))
+    if issues:
+        raise InvalidInput(issues[:20])
+    return e
+
+
+def auto_edges(method: str, largest: float, fine_counts: np.ndarray, min_pairs: int) -> np.ndarray:
+    """Choose class edges from pair counts on ``len(fine_counts)`` equal fine classes up to ``largest``.
+
+    Returns strictly increasing edges starting at 0 and ending at ``largest``.
+    """
+    fine = len(fine_counts)
+    cumulative = np.concatenate([[0.0], np.cumsum(fine_counts, dtype=np.float64)])
+    fine_edges = np.linspace(0.0, largest, fine + 1)
+    total = cumulative[-1]
+    for k in range(AUTO_MAX_CLASSES, 0, -1):
+        if method == "equal_width":
+            edges = np.linspace(0.0, largest, k + 1)
+        else:
+            edges = np.interp(np.linspace(0.0, total, k + 1), cumulative, fine_edges)
+            edges[0], edges[-1] = 0.0, largest
+            edges = np.unique(edges)
+        in_class = np.diff(np.interp(edges, fine_edges, cumulative))
+        if len(edges) == k + 1 and in_class.min() >= min_pairs:
+            return edges
+    return np.array([0.0, largest])

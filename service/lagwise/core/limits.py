@@ -1,0 +1,64 @@
+"""Cost limits checked before heavy work.
+
+Every limit is set by a ``LAGWISE_*`` environment variable in the service (see
+``lagwise.api.settings``); the defaults below are those documented there.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+from .errors import LimitExceeded
+
+
+@dataclass(frozen=True)
+class Limits:
+    """Largest work a single request may ask for.
+
+    Attributes
+    ----------
+    max_samples : int
+        Samples per request (``LAGWISE_MAX_SAMPLES``).
+    max_pairs : int
+        Pairs within the search radius, times the number of direction classes
+        (``LAGWISE_MAX_PAIRS``); the pair kernels run at about 1e8 pairs/s.
+    max_median_pairs : int
+        Pairs whose differences the median-based estimator may hold in memory
+        (8 bytes each, ``LAGWISE_MAX_MEDIAN_PAIRS``).
+    max_scatter_pairs : int
+        Pairs returned for one h-scattergram (``LAGWISE_MAX_SCATTER_PAIRS``).
+    max_map_cells : int
+        Cells per side of a variogram map, i.e. 2 * cells + 1 (``LAGWISE_MAX_MAP_CELLS``).
+    """
+
+    max_samples: int = 200_000
+    max_pairs: int = 2_000_000_000
+    max_median_pairs: int = 5_000_000
+    max_scatter_pairs: int = 100_000
+    max_map_cells: int = 201
+
+    def check_samples(self, n: int) -> None:
+        """Refuse more than ``max_samples`` samples."""
+        if n > self.max_samples:
+            raise LimitExceeded(
+                "LAGWISE_MAX_SAMPLES", self.max_samples, n,
+                "Send fewer samples per request (thin or split the data set).", "/samples",
+            )
+
+    def check_pairs(self, pairs: int, directions: int, pointer: str = "/lags") -> None:
+        """Refuse when pairs within the search radius times direction classes exceed ``max_pairs``."""
+        cost = pairs * max(directions, 1)
+        if cost > self.max_pairs:
+            raise LimitExceeded(
+                "LAGWISE_MAX_PAIRS", self.max_pairs, cost,
+                "Shorten the largest distance class, use fewer direction classes or fewer samples.", pointer,
+            )
+
+    def check_median_pairs(self, pairs: int) -> None:
+        """Refuse a median-based estimate that would hold more than ``max_median_pairs`` differences."""
+        if pairs > self.max_median_pairs:
+            raise LimitExceeded(
+                "LAGWISE_MAX_MEDIAN_PAIRS", self.max_median_pairs, pairs,
+                "The median-based estimator keeps every difference in memory; use 'semivariance_robust' "
+                "or shorten the largest distance class.", "/statistic",
+            )

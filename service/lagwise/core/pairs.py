@@ -1,0 +1,173 @@
+"""The pair engine: prepares samples for the compiled kernels and runs them.
+
+Samples are sorted by x (so a sweep finds every pair within the search radius),
+padded to three coordinates, and their values centred on the sample mean. The
+kernels use ``numba`` threads; their number follows ``numba.set_num_threads``
+(the service sets it from ``LAGWISE_THREADS``).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numba
+import numpy as np
+from scipy.spatial.distance import pdist
+
+from . import kernels as K
+from .directions import DirectionClass, direction_table
+
+ESTIMATE_SUBSET = 2000
+
+
+@dataclass(frozen=True)
+class PreparedSamples:
+    """Samples laid out for the kernels.
+
+    Attributes
+    ----------
+    points : ndarray, shape (n, 3)
+        Coordinates sorted by x, zero-padded to three axes.
+    values : ndarray, shape (n,)
+        Values in the same order, centred on ``mean``.
+    mean : float
+        Sample mean that was subtracted.
+    scale : float
+        Largest absolute sample value (for rounding-noise thresholds).
+    order : ndarray, shape (n,)
+        Input index of each sorted sample.
+    """
+
+    points: np.ndarray
+    values: np.ndarray
+    mean: float
+    scale: float
+    order: np.ndarray
+
+
+def prepare(coords: np.ndarray, values: np.ndarray) -> PreparedSamples:
+    """Sort by x, pad to 3-D and centre the values (see :class:`PreparedSamples`)."""
+    order = np.argsort(coords[:, 0], kind="stable")
+    points = np.zeros((coords.shape[0], 3))
+    points[:, : coords.shape[1]] = coords[order]
+    mean = float(np.mean(values))
+    return PreparedSamples(
+        points=np.ascontiguousarray(points),
+        values=np.ascontiguousarray(values[order] - mean),
+        mean=mean,
+        scale=float(np.max(np.abs(values))),
+        order=order,
+    )
+
+
+@dataclass(frozen=True)
+class ClassLayout:
+    """Distance classes of every direction, packed for the kernels.
+
+    Attributes
+    ----------
+    edges : ndarray, shape (ndir, kmax + 1)
+        Class edges per direction (rows padded with their last edge).
+    counts : ndarray of int64, shape (ndir,)
+        Number of classes per direction.
+    inv_width : ndarray, shape (ndir,)
+        1 / width for equal-width classes, 0 for irregular edges.
+    table : ndarray
+        Direction parameters (:func:`lagwise.core.directions.direction_table`).
+    """
+
+    edges: np.ndarray
+    counts: np.ndarray
+    inv_width: np.ndarray
+    table: np.ndarray
+
+    @property
+    def kmax(self) -> int:
+        """Largest class count over the directions."""
+        return int(self.edges.shape[1] - 1)
+
+    @property
+    def search_radius(self) -> float:
+        """Largest upper edge: no pair farther apart is visited."""
+        return float(max(self.edges[k, c] for k, c in enumerate(self.counts)))
+
+
+def layout(directions: list[DirectionClass], edges_per_direction: list[np.ndarray]) -> ClassLayout:
+    """Pack per-direction edges (each strictly increasing) into a :class:`ClassLayout`."""
+    kmax = max(len(e) - 1 for e in edges_per_direction)
+    edges = np.zeros((len(directions), kmax + 1))
+    inv_width = np.zeros(len(directions))
+    for k, e in enumerate(edges_per_direction):
+        edges[k, : len(e)] = e
+        edges[k, len(e) :] = e[-1]
+        widths = np.diff(e)
+        if np.allclose(widths, widths[0], rtol=1e-12, atol=0.0):
+            inv_width[k] = 1.0 / widths[0]
+    counts = np.array([len(e) - 1 for e in edges_per_direction], dtype=np.int64)
+    return ClassLayout(edges=edges, counts=counts, inv_width=inv_width, table=direction_table(directions))
+
+
+def accumulate(prepared: PreparedSamples, classes: ClassLayout, mode: int) -> tuple[np.ndarray, int]:
+    """Run the pair kernel; returns the table (ndir, kmax, ACCUMULATORS) and co-located pairs."""
+    radius = classes.search_radius
+    table, colocated = K.accumulate_classes(
+        prepared.points,
+        prepared.values,
+        prepared.mean,
+        radius * radius,
+        classes.table,
+        classes.edges,
+        classes.counts,
+        classes.inv_width,
+        mode,
+        numba.get_num_threads(),
+    )
+    return table.reshape(classes.table.shape[0], classes.kmax, K.ACCUMULATORS), int(colocated)
+
+
+def _no_scatter() -> tuple[np.ndarray, np.ndarray]:
+    return np.zeros(0), np.zeros(0)
+
+
+def absolute_differences(prepared: PreparedSamples, classes: ClassLayout, counts: np.ndarray) -> list[np.ndarray]:
+    """|Delta| of every pair of every bin (bins ordered direction-major), given the bins' counts."""
+    flat = counts.reshape(-1).astype(np.int64)
+    starts = np.concatenate([[0], np.cumsum(flat)[:-1]]).astype(np.int64)
+    out = np.empty(int(flat.sum()))
+    radius = classes.search_radius
+    tail, head = _no_scatter()
+    K.collect_pairs(
+        prepared.points, prepared.values, radius * radius, classes.table, classes.edges,
+        classes.counts, classes.inv_width, starts.copy(), out, -1, 1, tail, head,
+    )
+    return [out[s : s + c] for s, c in zip(starts, flat)]
+
+
+def scatter_pairs(prepared: PreparedSamples, classes: ClassLayout, bin_index: int, total: int, limit: int):
+    """Tail and head values (original units) of every ``stride``-th pair of one bin.
+
+    Returns (tail, head, stride) with at most ``limit`` pairs, spread evenly over the
+    bin's pairs in visiting order.
+    """
+    stride = max(1, -(-total // limit))
+    tail, head = np.empty(limit), np.empty(limit)
+    radius = classes.search_radius
+    written = K.collect_pairs(
+        prepared.points, prepared.values, radius * radius, classes.table, classes.edges,
+        classes.counts, classes.inv_width, np.zeros(0, dtype=np.int64), np.zeros(0), bin_index, stride, tail, head,
+    )
+    return tail[:written] + prepared.mean, head[:written] + prepared.mean, stride
+
+
+def estimate_pairs_within(coords: np.ndarray, radius: float, seed: int = 0) -> int:
+    """Estimate the number of distinct pairs closer than ``radius``.
+
+    Exact for up to ``ESTIMATE_SUBSET`` samples; above, scales the share of close
+    pairs in a seeded random subset (a few per cent of error, enough for limits).
+    """
+    n = coords.shape[0]
+    if n <= ESTIMATE_SUBSET:
+        return int(np.count_nonzero(pdist(coords) < radius))
+    subset = np.random.default_rng(seed).choice(n, ESTIMATE_SUBSET, replace=False)
+    share = float(np.mean(pdist(coords[subset]) < radius))
+    return int(round(share * n * (n - 1) / 2))

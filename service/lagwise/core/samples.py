@@ -1,0 +1,256 @@
+"""Validated sample sets: coordinates, values, identifiers and duplicate handling.
+
+Conventions
+-----------
+* ``x`` is required; ``y`` makes the set 2-D; ``z`` (elevation, positive up, same
+  unit as x and y) makes it 3-D and needs ``y``.
+* ``coordinates="planar"``: any consistent length unit. ``"geographic"``: x is
+  longitude and y latitude in WGS84 degrees; they are projected to metres about
+  the data centroid (see :mod:`lagwise.core.geographic`); z stays in metres.
+* Samples at the same location are duplicates: ``"average"`` (default) keeps one
+  sample with the mean value, ``"first"`` keeps the first, ``"reject"`` refuses.
+"""
+
+from __future__ import annotations
+
+import hashlib
+from collections.abc import Callable, Sequence
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from .errors import FieldIssue, InvalidInput
+from .geographic import ACCURATE_SPAN_M, LocalProjection, centroid
+
+COORDINATE_SYSTEMS = ("planar", "geographic")
+DUPLICATE_POLICIES = ("average", "first", "reject")
+
+PointerFor = Callable[[str, int | None], str]
+
+
+def columnar_pointer(name: str, index: int | None) -> str:
+    """JSON Pointer of a columnar sample field (``/samples/values/17``)."""
+    return f"/samples/{name}" if index is None else f"/samples/{name}/{index}"
+
+
+@dataclass(frozen=True)
+class DuplicateReport:
+    """What the duplicates policy did.
+
+    Attributes
+    ----------
+    policy : str
+        ``average``, ``first`` or ``reject``.
+    locations : int
+        Number of locations that held more than one sample.
+    removed : int
+        Number of samples merged away or dropped.
+    """
+
+    policy: str
+    locations: int
+    removed: int
+
+
+@dataclass(frozen=True)
+class SampleSet:
+    """A validated set of samples ready for computation.
+
+    Attributes
+    ----------
+    coords : ndarray, shape (n, d)
+        Working coordinates: as given for planar sets, metres east/north/up of the
+        projection centre for geographic sets. d is 1, 2 or 3.
+    values : ndarray, shape (n,)
+        Measured values, finite.
+    ids : tuple of str
+        Sample identifiers (given, or the 0-based input index as text).
+    source_index : ndarray of int, shape (n,)
+        Input index of each kept sample (the first of a duplicate group).
+    coordinates : str
+        ``planar`` or ``geographic``.
+    input_hash : str
+        SHA-256 (hex) of the little-endian float64 bytes of x, y, z (those present)
+        and values, in that order, as parsed and before duplicate handling.
+    duplicates : DuplicateReport
+        What the duplicates policy did.
+    projection : LocalProjection or None
+        Projection centre for geographic sets.
+    warnings : tuple of str
+        Plain-language notes about the input (duplicates merged, wide geographic span).
+    """
+
+    coords: np.ndarray
+    values: np.ndarray
+    ids: tuple[str, ...]
+    source_index: np.ndarray
+    coordinates: str
+    input_hash: str
+    duplicates: DuplicateReport
+    projection: LocalProjection | None = None
+    warnings: tuple[str, ...] = field(default=())
+
+    @property
+    def dimension(self) -> int:
+        """Number of coordinate axes (1, 2 or 3)."""
+        return int(self.coords.shape[1])
+
+    @property
+    def size(self) -> int:
+        """Number of samples after duplicate handling."""
+        return int(self.values.shape[0])
+
+
+def input_hash(columns: Sequence[np.ndarray]) -> str:
+    """SHA-256 over the little-endian float64 bytes of the given columns in order."""
+    digest = hashlib.sha256()
+    for column in columns:
+        digest.update(np.ascontiguousarray(column, dtype="<f8").tobytes())
+    return digest.hexdigest()
+
+
+def _check_column(name: str, column: np.ndarray, pointer_for: PointerFor) -> list[FieldIssue]:
+    bad = np.flatnonzero(~np.isfinite(column))
+    return [FieldIssue(pointer_for(name, int(i)), "not a finite number") for i in bad[:20]]
+
+
+def _check_columns(x, y, z, values, ids, coordinates, pointer_for) -> None:
+    issues: list[FieldIssue] = []
+    n = len(values)
+    if n < 2:
+        issues.append(FieldIssue(pointer_for("values", None), f"needs at least 2 samples, got {n}"))
+    for name, column in (("x", x), ("y", y), ("z", z)):
+        if column is not None and len(column) != n:
+            issues.append(
+                FieldIssue(pointer_for(name, None), f"has {len(column)} entries but values has {n}")
+            )
+    if ids is not None and len(ids) != n:
+        issues.append(FieldIssue(pointer_for("ids", None), f"has {len(ids)} entries but values has {n}"))
+    if z is not None and y is None:
+        issues.append(FieldIssue(pointer_for("y", None), "is required when z is given (3-D samples)"))
+    if coordinates == "geographic" and y is None:
+        issues.append(FieldIssue(pointer_for("y", None), "latitude is required for geographic coordinates"))
+    if issues:
+        raise InvalidInput(issues)
+    for name, column in (("x", x), ("y", y), ("z", z), ("values", values)):
+        if column is not None:
+            issues.extend(_check_column(name, column, pointer_for))
+    if coordinates == "geographic" and not issues:
+        for i in np.flatnonzero(np.abs(y) > 90)[:20]:
+            issues.append(FieldIssue(pointer_for("y", int(i)), "latitude must lie in [-90, 90] degrees"))
+        for i in np.flatnonzero(np.abs(x) > 180)[:20]:
+            issues.append(FieldIssue(pointer_for("x", int(i)), "longitude must lie in [-180, 180] degrees"))
+    if issues:
+        raise InvalidInput(issues)
+
+
+def _resolve_duplicates(coords, values, ids, policy, pointer_for):
+    _, first_index, inverse, counts = np.unique(
+        coords, axis=0, return_index=True, return_inverse=True, return_counts=True
+    )
+    inverse = inverse.reshape(-1)
+    repeated = np.flatnonzero(counts > 1)
+    if repeated.size == 0:
+        return coords, values, ids, np.arange(values.size), DuplicateReport(policy, 0, 0)
+    if policy == "reject":
+        issues = []
+        for group in repeated[:20]:
+            members = np.flatnonzero(inverse == group)
+            issues.append(
+                FieldIssue(
+                    pointer_for("x", int(members[1])),
+                    f"sample {members[1]} is at the same location as sample {members[0]} "
+                    "(duplicates policy is 'reject')",
+                )
+            )
+        raise InvalidInput(issues)
+    order = np.sort(first_index)
+    group_of_kept = inverse[order]
+    if policy == "average":
+        sums = np.bincount(inverse, weights=values)
+        kept_values = (sums / counts)[group_of_kept]
+    else:
+        kept_values = values[order]
+    report = DuplicateReport(policy, int(repeated.size), int(values.size - order.size))
+    return coords[order], kept_values, tuple(ids[i] for i in order), order, report
+
+
+def build_sample_set(
+    values: np.ndarray,
+    x: np.ndarray,
+    y: np.ndarray | None = None,
+    z: np.ndarray | None = None,
+    *,
+    ids: Sequence[str] | None = None,
+    coordinates: str = "planar",
+    duplicates: str = "average",
+    pointer_for: PointerFor = columnar_pointer,
+) -> SampleSet:
+    """Validate sample columns and build a :class:`SampleSet`.
+
+    Parameters
+    ----------
+    values : array_like, shape (n,)
+        Measured values.
+    x, y, z : array_like, shape (n,)
+        Coordinates (see the module conventions); y and z optional.
+    ids : sequence of str, optional
+        Identifiers echoed in per-sample outputs; default the input index.
+    coordinates : {"planar", "geographic"}
+        How to read x and y.
+    duplicates : {"average", "first", "reject"}
+        Policy for samples at the same location.
+    pointer_for : callable
+        Maps (field, index) to the JSON Pointer used in error messages, so that
+        errors point into the caller's own input layout (columnar or GeoJSON).
+
+    Raises
+    ------
+    InvalidInput
+        With one issue per offending field and sample index.
+    """
+    values = np.asarray(values, dtype=np.float64)
+    x = np.asarray(x, dtype=np.float64)
+    y = None if y is None else np.asarray(y, dtype=np.float64)
+    z = None if z is None else np.asarray(z, dtype=np.float64)
+    _check_columns(x, y, z, values, ids, coordinates, pointer_for)
+    digest = input_hash([c for c in (x, y, z) if c is not None] + [values])
+
+    warnings: list[str] = []
+    projection = None
+    if coordinates == "geographic":
+        projection = centroid(x, y)
+        px, py = projection.forward(x, y)
+        columns = [px, py] + ([z] if z is not None else [])
+    else:
+        columns = [c for c in (x, y, z) if c is not None]
+    coords = np.column_stack(columns)
+    given_ids = tuple(str(i) for i in ids) if ids is not None else tuple(str(i) for i in range(len(values)))
+
+    coords, values, kept_ids, source_index, report = _resolve_duplicates(coords, values, given_ids, duplicates, pointer_for)
+    if report.locations:
+        action = "averaged" if duplicates == "average" else "kept the first of"
+        warnings.append(
+            f"{report.locations} locations held more than one sample; {action} them "
+            f"({report.removed} samples removed by the '{duplicates}' duplicates policy)"
+        )
+    if values.size < 2:
+        raise InvalidInput.at(pointer_for("x", None), "all samples are at one location; at least two locations are needed")
+    if projection is not None:
+        span = float(np.max(np.ptp(coords[:, :2], axis=0)))
+        if span > ACCURATE_SPAN_M:
+            warnings.append(
+                f"the samples span {span / 1000:.0f} km; the local projection used for geographic "
+                "coordinates loses accuracy beyond about 300 km (distance errors above 0.01 %)"
+            )
+    return SampleSet(
+        coords=coords,
+        values=values,
+        ids=kept_ids,
+        source_index=source_index,
+        coordinates=coordinates,
+        input_hash=digest,
+        duplicates=report,
+        projection=projection,
+        warnings=tuple(warnings),
+    )
