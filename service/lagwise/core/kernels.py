@@ -15,9 +15,18 @@ on the sample mean so that sums of products keep their precision):
 from __future__ import annotations
 
 import math
+import os
 
+import numba
 import numpy as np
 from numba import njit, prange
+
+# The service forks worker processes (gunicorn): GNU OpenMP cannot be used in a
+# child once loaded in its parent, while numba's own "workqueue" layer is
+# fork-safe. Each sync worker runs one request at a time, so the layer's lack of
+# support for concurrent parallel regions from several Python threads is moot.
+if not os.environ.get("NUMBA_THREADING_LAYER"):
+    numba.config.THREADING_LAYER = "workqueue"
 
 COUNT, DISTANCE, SQUARE, ROOT, ABSOLUTE, TAIL, HEAD, TAIL2, HEAD2, PRODUCT, RELATIVE = range(11)
 ACCUMULATORS = 11

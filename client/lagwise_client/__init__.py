@@ -1,0 +1,37 @@
+"""Python client for the Lagwise service (depends on ``requests`` only).
+
+>>> from lagwise_client import Lagwise
+>>> with Lagwise("http://127.0.0.1:8750") as lw:
+...     result = lw.experimental_variogram(x=xs, y=ys, values=vs, lags={"width": 25, "count": 12})
+"""
+
+from .client import Lagwise
+from .errors import (
+    AuthError,
+    LagwiseError,
+    LimitError,
+    MalformedRequestError,
+    TransportError,
+    UnavailableError,
+    ValidationError,
+)
+from .results import DirectionVariogram, ExperimentalVariogram, VariogramClass, VariogramMap
+from .retry import RetryPolicy
+
+__version__ = "0.1.0"
+
+__all__ = [
+    "AuthError",
+    "DirectionVariogram",
+    "ExperimentalVariogram",
+    "Lagwise",
+    "LagwiseError",
+    "LimitError",
+    "MalformedRequestError",
+    "RetryPolicy",
+    "TransportError",
+    "UnavailableError",
+    "ValidationError",
+    "VariogramClass",
+    "VariogramMap",
+]

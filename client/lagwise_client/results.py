@@ -1,0 +1,137 @@
+"""Small typed results returned by the client (plain Python; pandas optional)."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+
+def _dataframe(rows: list[dict]):
+    try:
+        import pandas as pd
+    except ImportError as exc:  # pragma: no cover - depends on the environment
+        raise ImportError("to_dataframe() needs pandas: pip install 'lagwise-client[dataframes]'") from exc
+    return pd.DataFrame(rows)
+
+
+@dataclass(frozen=True)
+class VariogramClass:
+    """One distance class: bounds [lower, upper), mean distance, pair count, value (None if undefined)."""
+
+    lower: float
+    upper: float
+    mean_distance: float | None
+    pairs: int
+    value: float | None
+    sparse: bool
+    reason: str | None = None
+    tail_mean: float | None = None
+    head_mean: float | None = None
+    tail_sd: float | None = None
+    head_sd: float | None = None
+
+
+@dataclass(frozen=True)
+class DirectionVariogram:
+    """The classes of one direction class (angles in degrees)."""
+
+    azimuth: float
+    tolerance: float
+    bandwidth: float | None
+    classes: tuple[VariogramClass, ...]
+    dip: float | None = None
+    dip_tolerance: float | None = None
+    vertical_bandwidth: float | None = None
+
+
+@dataclass(frozen=True)
+class ExperimentalVariogram:
+    """Result of :meth:`Lagwise.experimental_variogram`.
+
+    Attributes
+    ----------
+    directions : tuple of DirectionVariogram
+    summary, parameters, provenance : dict
+    warnings : tuple of str
+    pairs_for_class : dict or None
+        Tail and head values of one class, when requested.
+    raw : dict
+        The whole response document.
+    """
+
+    directions: tuple[DirectionVariogram, ...]
+    summary: dict
+    parameters: dict
+    warnings: tuple[str, ...]
+    provenance: dict
+    pairs_for_class: dict | None = None
+    raw: dict = field(default_factory=dict, repr=False)
+
+    @classmethod
+    def from_response(cls, document: dict) -> "ExperimentalVariogram":
+        directions = []
+        for d in document["directions"]:
+            classes = tuple(VariogramClass(**c) for c in d["classes"])
+            directions.append(DirectionVariogram(**{k: v for k, v in d.items() if k != "classes"}, classes=classes))
+        return cls(
+            directions=tuple(directions),
+            summary=document["summary"],
+            parameters=document["parameters"],
+            warnings=tuple(document.get("warnings", [])),
+            provenance=document["provenance"],
+            pairs_for_class=document.get("pairs_for_class"),
+            raw=document,
+        )
+
+    def to_dict(self) -> dict:
+        """The response document."""
+        return self.raw
+
+    def to_dataframe(self):
+        """One row per (direction, class) with the direction's azimuth and tolerance (needs pandas)."""
+        rows = []
+        for index, d in enumerate(self.directions):
+            for c in d.classes:
+                rows.append({"direction": index, "azimuth": d.azimuth, "tolerance": d.tolerance, **c.__dict__})
+        return _dataframe(rows)
+
+
+@dataclass(frozen=True)
+class VariogramMap:
+    """Result of :meth:`Lagwise.variogram_map`: values[row][column], rows by hy."""
+
+    hx: tuple[float, ...]
+    hy: tuple[float, ...]
+    values: tuple[tuple[float | None, ...], ...]
+    pairs: tuple[tuple[int, ...], ...]
+    summary: dict
+    parameters: dict
+    warnings: tuple[str, ...]
+    provenance: dict
+    raw: dict = field(default_factory=dict, repr=False)
+
+    @classmethod
+    def from_response(cls, document: dict) -> "VariogramMap":
+        return cls(
+            hx=tuple(document["hx"]),
+            hy=tuple(document["hy"]),
+            values=tuple(tuple(row) for row in document["values"]),
+            pairs=tuple(tuple(row) for row in document["pairs"]),
+            summary=document["summary"],
+            parameters=document["parameters"],
+            warnings=tuple(document.get("warnings", [])),
+            provenance=document["provenance"],
+            raw=document,
+        )
+
+    def to_dict(self) -> dict:
+        """The response document."""
+        return self.raw
+
+    def to_dataframe(self):
+        """One row per cell: hx, hy, value, pairs (needs pandas)."""
+        rows = [
+            {"hx": hx, "hy": hy, "value": self.values[r][c], "pairs": self.pairs[r][c]}
+            for r, hy in enumerate(self.hy)
+            for c, hx in enumerate(self.hx)
+        ]
+        return _dataframe(rows)

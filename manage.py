@@ -1,0 +1,114 @@
+#!/usr/bin/env python3
+"""Set up and run Lagwise on a fresh machine with only python3.
+
+    python3 manage.py run        create .venv, start the service, run the demo, keep serving
+    python3 manage.py test       create .venv and run the default test suite
+    python3 manage.py test-slow  the long suites (marked slow)
+    python3 manage.py bench      the benchmarks under bench/
+    python3 manage.py openapi    regenerate openapi/openapi.yaml
+    python3 manage.py lint       ruff over the whole tree
+"""
+
+from __future__ import annotations
+
+import hashlib
+import os
+import subprocess
+import sys
+import time
+import urllib.request
+import venv
+from pathlib import Path
+
+ROOT = Path(__file__).resolve().parent
+VENV = ROOT / ".venv"
+BIN = VENV / "bin"
+PYTHON = BIN / "python"
+STAMP = VENV / ".lagwise-installed"
+PORT = int(os.environ.get("LAGWISE_PORT", "8750"))
+
+
+def _requirements_digest() -> str:
+    digest = hashlib.sha256()
+    for name in ("pyproject.toml", "client/pyproject.toml"):
+        digest.update((ROOT / name).read_bytes())
+    return digest.hexdigest()
+
+
+def ensure_environment() -> None:
+    """Create .venv and install the service, the client and the test tools (once per change)."""
+    if not PYTHON.exists():
+        print("creating .venv ...", flush=True)
+        venv.EnvBuilder(with_pip=True).create(VENV)
+    wanted = _requirements_digest()
+    if STAMP.exists() and STAMP.read_text() == wanted:
+        return
+    print("installing lagwise and lagwise-client into .venv ...", flush=True)
+    pip = [str(PYTHON), "-m", "pip", "install", "--quiet", "--disable-pip-version-check"]
+    subprocess.run(pip + ["-e", f"{ROOT}[test]", "-e", str(ROOT / "client")], check=True)
+    STAMP.write_text(wanted)
+
+
+def _wait_ready(url: str, process: subprocess.Popen, seconds: float = 600.0) -> None:
+    deadline = time.monotonic() + seconds
+    while time.monotonic() < deadline:
+        if process.poll() is not None:
+            raise SystemExit(f"the service exited with status {process.returncode}")
+        try:
+            with urllib.request.urlopen(url + "/readyz", timeout=2) as answer:
+                if answer.status == 200:
+                    return
+        except OSError:
+            time.sleep(0.5)
+    raise SystemExit("the service did not become ready in time")
+
+
+def run() -> int:
+    ensure_environment()
+    url = f"http://127.0.0.1:{PORT}"
+    env = dict(os.environ, LAGWISE_BIND=f"127.0.0.1:{PORT}")
+    print(f"starting the service on {url} (first start compiles the kernels; later starts load them) ...", flush=True)
+    service = subprocess.Popen([str(BIN / "lagwise"), "serve"], env=env, cwd=ROOT)
+    try:
+        _wait_ready(url, service)
+        subprocess.run([str(BIN / "lagwise"), "demo", "--url", url, "--out", str(ROOT / "reports" / "elmsworth")], check=True)
+        print(f"\nThe service keeps running on {url} (OpenAPI at {url}/openapi.json). Press Ctrl-C to stop.", flush=True)
+        service.wait()
+    except KeyboardInterrupt:
+        print("\nstopping ...")
+    finally:
+        if service.poll() is None:
+            service.terminate()
+            service.wait(timeout=60)
+    return 0
+
+
+def pytest(*args: str) -> int:
+    ensure_environment()
+    return subprocess.run([str(PYTHON), "-m", "pytest", *args], cwd=ROOT).returncode
+
+
+def main(argv: list[str]) -> int:
+    command = argv[0] if argv else "help"
+    rest = argv[1:]
+    if command == "run":
+        return run()
+    if command == "test":
+        return pytest("-q", *rest)
+    if command == "test-slow":
+        return pytest("-q", "-m", "slow", *rest)
+    if command == "bench":
+        ensure_environment()
+        return subprocess.run([str(PYTHON), str(ROOT / "bench" / "run.py"), *rest], cwd=ROOT).returncode
+    if command == "openapi":
+        ensure_environment()
+        return subprocess.run([str(BIN / "lagwise"), "openapi"], cwd=ROOT).returncode
+    if command == "lint":
+        ensure_environment()
+        return subprocess.run([str(BIN / "ruff"), "check", "service", "client", "tests", "bench", "manage.py"], cwd=ROOT).returncode
+    print(__doc__)
+    return 0 if command == "help" else 2
+
+
+if __name__ == "__main__":
+    sys.exit(main(sys.argv[1:]))

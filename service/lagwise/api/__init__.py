@@ -1,0 +1,57 @@
+"""The Flask web layer: ``create_app`` builds the service."""
+
+from __future__ import annotations
+
+import threading
+import time
+from collections.abc import Mapping
+
+from flask import Flask, Response, g
+
+from ..core.warmup import warm_kernels
+from .jsonio import dumps
+from .openapi import as_dict, as_yaml
+from .operations import blueprint
+from .problems import register_error_handlers
+from .settings import Settings
+
+
+def create_app(config: Mapping | None = None, *, settings: Settings | None = None, warm: bool = True) -> Flask:
+    """Build the Lagwise WSGI application.
+
+    Parameters
+    ----------
+    config : mapping, optional
+        Extra Flask configuration (e.g. ``{"TESTING": True}``).
+    settings : Settings, optional
+        Limits and sizes; default read from the ``LAGWISE_*`` environment variables.
+    warm : bool
+        Compile or load and run the pair kernels before returning, so that
+        ``/readyz`` is ready and no request pays for compilation.
+    """
+    settings = settings or Settings.from_env()
+    app = Flask(__name__)
+    app.config.update(MAX_CONTENT_LENGTH=settings.max_body_bytes, PROPAGATE_EXCEPTIONS=False)
+    app.config.update(config or {})
+    app.extensions["lagwise"] = settings
+    ready = threading.Event()
+    app.extensions["lagwise_ready"] = ready
+
+    @app.before_request
+    def _start_timer():
+        g.started = time.perf_counter()
+
+    @app.get("/openapi.json")
+    def openapi_json():
+        return Response(dumps(as_dict()), mimetype="application/json")
+
+    @app.get("/openapi.yaml")
+    def openapi_yaml():
+        return Response(as_yaml(), mimetype="application/yaml")
+
+    app.register_blueprint(blueprint)
+    register_error_handlers(app)
+    if warm:
+        warm_kernels()
+        ready.set()
+    return app

@@ -1,0 +1,128 @@
+"""Turn validated request documents into the core's inputs."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from ..core.directions import DirectionClass
+from ..core.errors import FieldIssue, InvalidInput
+from ..core.experimental import ScatterRequest
+from ..core.lags import LagRequest
+from ..core.samples import SampleSet, build_sample_set, columnar_pointer
+
+FEATURES = "/samples/geojson/features"
+
+
+def _geojson_pointer(value_property: str, id_property: str | None):
+    def pointer_for(name: str, index: int | None) -> str:
+        if index is None:
+            return FEATURES
+        base = f"{FEATURES}/{index}"
+        if name in ("x", "y", "z"):
+            return f"{base}/geometry/coordinates/{'xyz'.index(name)}"
+        if name == "values":
+            return f"{base}/properties/{value_property}"
+        return f"{base}/properties/{id_property}" if id_property else f"{base}/id"
+
+    return pointer_for
+
+
+def _number(value) -> float | None:
+    if type(value) not in (int, float):
+        return None
+    try:
+        number = float(value)
+    except OverflowError:
+        return None
+    return number if math.isfinite(number) else None
+
+
+def _feature_columns(collection, value_property: str, id_property: str | None):
+    """Read Point features into columns; raises InvalidInput naming each bad feature."""
+    if collection.get("type") != "FeatureCollection" or not isinstance(collection.get("features"), list):
+        raise InvalidInput.at("/samples/geojson", "must be a GeoJSON FeatureCollection with a features array")
+    pointer_for = _geojson_pointer(value_property, id_property)
+    columns: dict[str, list] = {"x": [], "y": [], "z": [], "values": [], "ids": []}
+    issues: list[FieldIssue] = []
+    dims = set()
+    for i, feature in enumerate(collection["features"]):
+        geometry = feature.get("geometry") if isinstance(feature, dict) else None
+        coordinates = geometry.get("coordinates") if isinstance(geometry, dict) else None
+        if not isinstance(geometry, dict) or geometry.get("type") != "Point" or not isinstance(coordinates, list) or len(coordinates) not in (2, 3):
+            issues.append(FieldIssue(f"{FEATURES}/{i}/geometry", "must be a Point with 2 or 3 coordinates"))
+            continue
+        numbers = [_number(c) for c in coordinates]
+        issues.extend(FieldIssue(pointer_for("xyz"[a], i), "not a finite number") for a, c in enumerate(numbers) if c is None)
+        properties = feature.get("properties") or {}
+        value = _number(properties.get(value_property)) if isinstance(properties, dict) else None
+        if value is None:
+            issues.append(FieldIssue(pointer_for("values", i), "missing or not a finite number"))
+        dims.add(len(coordinates))
+        if len(issues) >= 20:
+            break
+        columns["x"].append(numbers[0])
+        columns["y"].append(numbers[1])
+        columns["z"].append(numbers[2] if len(numbers) == 3 else None)
+        columns["values"].append(value)
+        identifier = properties.get(id_property) if id_property else feature.get("id")
+        columns["ids"].append(str(identifier) if identifier is not None else str(i))
+    if len(dims) > 1:
+        issues.append(FieldIssue(FEATURES, "every Point must have the same number of coordinates (2 or 3)"))
+    if issues:
+        raise InvalidInput(issues[:20])
+    return columns, dims == {3}, pointer_for
+
+
+def sample_set(document: dict) -> SampleSet:
+    """Build the :class:`SampleSet` of a request (columnar or GeoJSON samples)."""
+    samples = document["samples"]
+    if "geojson" in samples:
+        columns, has_z, pointer_for = _feature_columns(samples["geojson"], samples["value_property"], samples.get("id_property"))
+        return build_sample_set(
+            np.array(columns["values"], dtype=np.float64),
+            np.array(columns["x"], dtype=np.float64),
+            np.array(columns["y"], dtype=np.float64),
+            np.array(columns["z"], dtype=np.float64) if has_z else None,
+            ids=columns["ids"],
+            coordinates=document.get("coordinates", "geographic"),
+            duplicates=document["duplicates"],
+            pointer_for=pointer_for,
+        )
+    return build_sample_set(
+        samples["values"],
+        samples["x"],
+        samples.get("y"),
+        samples.get("z"),
+        ids=samples.get("ids"),
+        coordinates=document.get("coordinates", "planar"),
+        duplicates=document["duplicates"],
+        pointer_for=columnar_pointer,
+    )
+
+
+def lag_request(document: dict) -> LagRequest:
+    """The distance-class request (auto equal width when omitted)."""
+    lags = document.get("lags") or {}
+    edges = lags.get("edges")
+    return LagRequest(
+        width=lags.get("width"),
+        count=lags.get("count"),
+        edges=tuple(edges) if edges is not None else None,
+        auto=lags.get("auto"),
+    )
+
+
+def direction_classes(document: dict) -> list[DirectionClass] | None:
+    """The direction classes, or None for one omnidirectional class."""
+    directions = document.get("directions")
+    if directions is None:
+        return None
+    return [DirectionClass(**d) for d in directions]
+
+
+def scatter_request(document: dict) -> ScatterRequest | None:
+    """The h-scattergram request, if any."""
+    raw = document.get("pairs_for_class")
+    return None if raw is None else ScatterRequest(direction=raw["direction"], klass=raw["klass"], limit=raw["limit"])

@@ -1,0 +1,44 @@
+"""Strict JSON in and out.
+
+Bodies are parsed with orjson, which rejects NaN and Infinity literals, invalid
+UTF-8 and nesting deeper than 1024 levels (all malformed: 400). A number that
+overflows a double (``1e400``) is well-formed JSON but not a usable value: such a
+body is parsed again with the standard library so that validation can name the
+field (422). Output uses orjson with numpy support; any NaN or infinity that
+reached it would be written as ``null``.
+"""
+
+from __future__ import annotations
+
+import json
+from typing import Any
+
+import orjson
+
+
+class MalformedJSON(ValueError):
+    """The body is not strict JSON."""
+
+
+def _reject_constant(name: str) -> Any:
+    raise MalformedJSON(f"{name} is not valid JSON (use null for a missing value)")
+
+
+def parse(body: bytes) -> Any:
+    """Parse a request body strictly; raises :class:`MalformedJSON`."""
+    try:
+        return orjson.loads(body)
+    except orjson.JSONDecodeError as exc:
+        if "infinity" not in str(exc):
+            raise MalformedJSON(str(exc)) from None
+    try:
+        return json.loads(body, parse_constant=_reject_constant)
+    except RecursionError:
+        raise MalformedJSON("nesting is too deep") from None
+    except (ValueError, UnicodeDecodeError) as exc:
+        raise MalformedJSON(str(exc)) from None
+
+
+def dumps(document: Any) -> bytes:
+    """Serialise a response document (numpy arrays and scalars allowed)."""
+    return orjson.dumps(document, option=orjson.OPT_SERIALIZE_NUMPY)

@@ -1,0 +1,125 @@
+"""The HTTP operations: thin views (parse, call the core, serialise) and their contract."""
+
+from __future__ import annotations
+
+import time
+from dataclasses import dataclass
+
+import numba
+import numpy as np
+import scipy
+from flask import Blueprint, Response, current_app, g
+
+from .. import __version__
+from ..core.experimental import experimental_variogram
+from ..core.maps import variogram_map
+from . import convert, serialize
+from .jsonio import dumps
+from .problems import KINDS, Problem
+from .requests import load_json
+from .schemas import ExperimentalRequest, ExperimentalResponse, HealthSchema, MapRequest, MapResponse
+
+blueprint = Blueprint("lagwise", __name__)
+
+
+@dataclass(frozen=True)
+class Operation:
+    """One documented operation (used to generate the OpenAPI document)."""
+
+    path: str
+    method: str
+    operation_id: str
+    summary: str
+    request: type | None
+    response: type
+    errors: tuple[int, ...]
+
+
+OPERATIONS: list[Operation] = []
+COMPUTE_ERRORS = (400, 413, 415, 422, 503)
+
+
+def operation(path, method, summary, request=None, response=HealthSchema, errors=COMPUTE_ERRORS):
+    """Register a view on the blueprint and in :data:`OPERATIONS`."""
+
+    def decorate(view):
+        OPERATIONS.append(Operation(path, method, view.__name__, summary, request, response, errors))
+        blueprint.add_url_rule(path, view.__name__, view, methods=[method])
+        return view
+
+    return decorate
+
+
+def settings():
+    return current_app.extensions["lagwise"]
+
+
+def json_response(document: dict, status: int = 200) -> Response:
+    return Response(dumps(document), status=status, mimetype="application/json")
+
+
+def with_provenance(document: dict, input_sha256: str) -> Response:
+    document["provenance"] = {
+        "service": "lagwise",
+        "version": __version__,
+        "numpy": np.__version__,
+        "scipy": scipy.__version__,
+        "numba": numba.__version__,
+        "input_sha256": input_sha256,
+        "elapsed_ms": round((time.perf_counter() - g.started) * 1000.0, 3),
+    }
+    return json_response(document)
+
+
+@operation(
+    "/v1/experimental-variograms", "POST",
+    "Experimental variogram (or another class statistic) per direction class",
+    ExperimentalRequest, ExperimentalResponse,
+)
+def experimental_variograms():
+    document = load_json(ExperimentalRequest())
+    samples = convert.sample_set(document)
+    result = experimental_variogram(
+        samples,
+        lags=convert.lag_request(document),
+        directions=convert.direction_classes(document),
+        statistic=document["statistic"],
+        min_pairs=document["min_pairs"],
+        pairs_for_class=convert.scatter_request(document),
+        limits=settings().limits,
+    )
+    return with_provenance(serialize.experimental(result, samples), samples.input_hash)
+
+
+@operation("/v1/variogram-maps", "POST", "Variogram map: a statistic on a grid of separation vectors", MapRequest, MapResponse)
+def variogram_maps():
+    document = load_json(MapRequest())
+    samples = convert.sample_set(document)
+    result = variogram_map(
+        samples,
+        cell_size=document["cell_size"],
+        cells=document["cells"],
+        statistic=document["statistic"],
+        limits=settings().limits,
+    )
+    return with_provenance(serialize.variogram_map(result, samples), samples.input_hash)
+
+
+@operation("/healthz", "GET", "Liveness: the process answers", errors=())
+def healthz():
+    return json_response({"status": "alive"})
+
+
+@operation("/readyz", "GET", "Readiness: kernels are compiled and warm", errors=(503,))
+def readyz():
+    if not current_app.extensions["lagwise_ready"].is_set():
+        raise Problem("not-ready", "compute kernels are still warming up")
+    return json_response({"status": "ready"})
+
+
+@blueprint.get("/problems/<kind>")
+def problem_kind(kind: str):
+    if kind not in KINDS:
+        raise Problem("not-found", f"no problem type named {kind!r}")
+    k = KINDS[kind]
+    return json_response({"type": f"/problems/{kind}", "title": k.title, "status": k.status, "description": k.description})

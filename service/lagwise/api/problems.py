@@ -1,0 +1,119 @@
+"""RFC 9457 problem details: the kinds of refusal and the one place that builds them.
+
+Each kind has a stable type URI, ``/problems/<kind>``, relative to the service;
+``GET /problems/<kind>`` describes it.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+from flask import Flask, Response, request
+from werkzeug.exceptions import HTTPException
+
+from ..core.errors import InvalidInput, LimitExceeded
+from .jsonio import dumps
+
+PROBLEM_MEDIA_TYPE = "application/problem+json"
+
+
+@dataclass(frozen=True)
+class ProblemKind:
+    """One kind of refusal: HTTP status, title and a description for people."""
+
+    status: int
+    title: str
+    description: str
+
+
+KINDS = {
+    "malformed-json": ProblemKind(400, "Malformed JSON", "The body is not strict JSON (RFC 8259): NaN and Infinity literals, invalid UTF-8 and nesting deeper than 1024 levels are refused."),
+    "unauthorized": ProblemKind(401, "Unauthorized", "A valid API key is required (Authorization: Bearer <key>)."),
+    "not-found": ProblemKind(404, "Not found", "No resource at this path."),
+    "method-not-allowed": ProblemKind(405, "Method not allowed", "This path does not accept this method."),
+    "body-too-large": ProblemKind(413, "Body too large", "The body exceeds LAGWISE_MAX_BODY_BYTES."),
+    "unsupported-media-type": ProblemKind(415, "Unsupported media type", "Send Content-Type: application/json."),
+    "invalid-input": ProblemKind(422, "Invalid input", "One or more fields are invalid; see errors for each field and sample index."),
+    "limit-exceeded": ProblemKind(422, "Limit exceeded", "The request is valid but would cost more than a configured limit allows."),
+    "not-ready": ProblemKind(503, "Not ready", "The service is starting or stopping; retry shortly."),
+    "internal-error": ProblemKind(500, "Internal error", "An unexpected error; this is a bug, please report it with the request id."),
+}
+
+
+class Problem(Exception):
+    """A refusal to send as an RFC 9457 problem.
+
+    Parameters
+    ----------
+    kind : str
+        Key of :data:`KINDS`.
+    detail : str
+        What happened, for this request.
+    errors : list of dict, optional
+        ``{"pointer": ..., "detail": ...}`` per offending field.
+    extra : dict, optional
+        Further members (e.g. the limit's name and value).
+    """
+
+    def __init__(self, kind: str, detail: str, errors: list[dict] | None = None, **extra):
+        super().__init__(detail)
+        self.kind = kind
+        self.detail = detail
+        self.errors = errors or []
+        self.extra = extra
+
+
+def problem_response(problem: Problem) -> Response:
+    """Build the ``application/problem+json`` response for a :class:`Problem`."""
+    kind = KINDS[problem.kind]
+    document = {
+        "type": f"/problems/{problem.kind}",
+        "title": kind.title,
+        "status": kind.status,
+        "detail": problem.detail,
+        "instance": request.path,
+    }
+    if problem.errors:
+        document["errors"] = problem.errors
+    document.update(problem.extra)
+    return Response(dumps(document), status=kind.status, mimetype=PROBLEM_MEDIA_TYPE)
+
+
+def from_invalid_input(exc: InvalidInput) -> Problem:
+    """Map the core's :class:`InvalidInput` to an ``invalid-input`` problem."""
+    errors = [{"pointer": i.pointer, "detail": i.detail} for i in exc.issues]
+    count = len(errors)
+    detail = errors[0]["pointer"] + ": " + errors[0]["detail"] if count == 1 else f"{count} fields are invalid"
+    return Problem("invalid-input", detail, errors)
+
+
+def from_limit(exc: LimitExceeded) -> Problem:
+    """Map the core's :class:`LimitExceeded` to a ``limit-exceeded`` problem."""
+    errors = [{"pointer": exc.pointer, "detail": str(exc)}] if exc.pointer else []
+    return Problem("limit-exceeded", str(exc), errors, limit=exc.limit, allowed=exc.allowed, requested=exc.requested)
+
+
+_HTTP_KINDS = {404: "not-found", 405: "method-not-allowed", 413: "body-too-large", 415: "unsupported-media-type"}
+
+
+def register_error_handlers(app: Flask) -> None:
+    """Route every error through :func:`problem_response`."""
+    app.register_error_handler(Problem, problem_response)
+    app.register_error_handler(InvalidInput, lambda exc: problem_response(from_invalid_input(exc)))
+    app.register_error_handler(LimitExceeded, lambda exc: problem_response(from_limit(exc)))
+
+    def http_error(exc: HTTPException) -> Response:
+        kind = _HTTP_KINDS.get(exc.code or 500)
+        if kind is None:
+            return problem_response(Problem("internal-error", exc.description or "unexpected HTTP error"))
+        detail = KINDS[kind].description
+        if kind == "body-too-large":
+            detail = f"The body exceeds the limit of {app.config['MAX_CONTENT_LENGTH']} bytes (LAGWISE_MAX_BODY_BYTES)."
+        return problem_response(Problem(kind, detail))
+
+    def unexpected(exc: Exception) -> Response:
+        app.logger.exception("unhandled error on %s", request.path)
+        return problem_response(Problem("internal-error", "An unexpected error occurred; it has been logged."))
+
+    app.register_error_handler(HTTPException, http_error)
+    app.register_error_handler(Exception, unexpected)

@@ -1,0 +1,48 @@
+"""Reading request bodies: media type, size, strict JSON, schema validation."""
+
+from __future__ import annotations
+
+from flask import request
+from marshmallow import Schema, ValidationError
+
+from .jsonio import MalformedJSON, parse
+from .problems import Problem
+
+
+def _pointers(messages, prefix: str = "") -> list[dict]:
+    """Flatten marshmallow's nested error messages into JSON Pointer entries."""
+    if isinstance(messages, dict):
+        out = []
+        for key, value in messages.items():
+            where = prefix if key == "_schema" else f"{prefix}/{key}"
+            out.extend(_pointers(value, where))
+        return out
+    if isinstance(messages, list) and all(isinstance(m, str) for m in messages):
+        return [{"pointer": prefix, "detail": m} for m in messages]
+    return [{"pointer": prefix, "detail": str(messages)}]
+
+
+def load_json(schema: Schema) -> dict:
+    """Parse and validate the current request's JSON body with ``schema``.
+
+    Raises
+    ------
+    Problem
+        415 for another media type, 400 for malformed JSON, 422 for invalid fields;
+        413 comes from Flask's ``MAX_CONTENT_LENGTH`` before the body is read.
+    """
+    mimetype = request.mimetype or ""
+    if mimetype != "application/json" and not mimetype.endswith("+json"):
+        raise Problem("unsupported-media-type", f"expected Content-Type application/json, got {mimetype or 'none'}")
+    try:
+        document = parse(request.get_data(cache=False))
+    except MalformedJSON as exc:
+        raise Problem("malformed-json", str(exc)) from None
+    if not isinstance(document, dict):
+        raise Problem("invalid-input", "the body must be a JSON object", [{"pointer": "", "detail": "must be a JSON object"}])
+    try:
+        return schema.load(document)
+    except ValidationError as exc:
+        errors = _pointers(exc.messages)
+        detail = f"{errors[0]['pointer']}: {errors[0]['detail']}" if len(errors) == 1 else f"{len(errors)} fields are invalid"
+        raise Problem("invalid-input", detail, errors) from None

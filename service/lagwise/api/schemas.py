@@ -1,0 +1,206 @@
+"""Request and response schemas (marshmallow); they also generate the OpenAPI document.
+
+Range checks here document the contract; the core checks the same rules again
+with pointers, so a caller gets the same answer from either side.
+"""
+
+from __future__ import annotations
+
+from marshmallow import Schema, ValidationError, fields, validate, validates_schema
+
+from ..core.lags import AUTO_METHODS, MAX_CLASSES
+from ..core.samples import COORDINATE_SYSTEMS, DUPLICATE_POLICIES
+from ..core.statistics import STATISTICS
+from .fields import NumberArray
+
+MAX_DIRECTIONS = 36
+
+
+def finite(**kwargs) -> fields.Float:
+    """A finite float field."""
+    return fields.Float(allow_nan=False, **kwargs)
+
+
+class SamplesSchema(Schema):
+    """Samples as columns (x, y, z, values, ids) or as a GeoJSON FeatureCollection of Points."""
+
+    x = NumberArray(metadata={"description": "Easting, or longitude in degrees for geographic coordinates."})
+    y = NumberArray(metadata={"description": "Northing, or latitude in degrees; makes the set 2-D."})
+    z = NumberArray(metadata={"description": "Elevation, positive up, same unit as x and y (metres for geographic); makes the set 3-D."})
+    values = NumberArray(metadata={"description": "Measured values."})
+    ids = fields.List(fields.String(), metadata={"description": "Sample identifiers echoed in per-sample outputs."})
+    geojson = fields.Dict(metadata={"description": "A GeoJSON FeatureCollection (RFC 7946) of Point features."})
+    value_property = fields.String(metadata={"description": "Feature property holding the value (GeoJSON input)."})
+    id_property = fields.String(metadata={"description": "Feature property holding the identifier (GeoJSON input; default the feature id)."})
+
+    @validates_schema
+    def _one_layout(self, data, **kwargs):
+        if "geojson" in data:
+            clash = [k for k in ("x", "y", "z", "values", "ids") if k in data]
+            if clash:
+                raise ValidationError(f"give either geojson or columns, not both ({', '.join(clash)})")
+            if "value_property" not in data:
+                raise ValidationError("required with geojson", "value_property")
+            return
+        missing = {k: ["required"] for k in ("x", "values") if k not in data}
+        if missing:
+            raise ValidationError(missing)
+
+
+class SampleOptions(Schema):
+    """Options shared by every request that carries samples."""
+
+    samples = fields.Nested(SamplesSchema, required=True)
+    coordinates = fields.String(
+        validate=validate.OneOf(COORDINATE_SYSTEMS),
+        metadata={"description": "planar (default for columns) or geographic (WGS84 degrees; default for GeoJSON)."},
+    )
+    duplicates = fields.String(
+        load_default="average",
+        validate=validate.OneOf(DUPLICATE_POLICIES),
+        metadata={"description": "What to do with samples at the same location."},
+    )
+
+
+class LagsSchema(Schema):
+    """Distance classes: width and count, explicit edges, or auto."""
+
+    width = finite(validate=validate.Range(min=0, min_inclusive=False), metadata={"description": "Class width, coordinate units."})
+    count = fields.Integer(strict=True, validate=validate.Range(min=1, max=MAX_CLASSES))
+    edges = fields.List(finite(), validate=validate.Length(min=2, max=MAX_CLASSES + 1))
+    auto = fields.String(validate=validate.OneOf(AUTO_METHODS))
+
+
+class DirectionSchema(Schema):
+    """A direction class (degrees; azimuth clockwise from north)."""
+
+    azimuth = finite(load_default=0.0, validate=validate.Range(min=0, max=360, max_inclusive=False))
+    tolerance = finite(load_default=22.5, validate=validate.Range(min=0, max=90, min_inclusive=False))
+    bandwidth = finite(load_default=None, allow_none=True, metadata={"description": "Largest perpendicular offset; null: no limit."})
+    dip = finite(load_default=0.0, validate=validate.Range(min=-90, max=90))
+    dip_tolerance = finite(load_default=90.0, validate=validate.Range(min=0, max=90, min_inclusive=False))
+    vertical_bandwidth = finite(load_default=None, allow_none=True)
+
+
+class ScatterRequestSchema(Schema):
+    """Ask for the pairs of one class (h-scattergram)."""
+
+    direction = fields.Integer(strict=True, load_default=0, validate=validate.Range(min=0))
+    klass = fields.Integer(strict=True, required=True, data_key="class", validate=validate.Range(min=0))
+    limit = fields.Integer(strict=True, load_default=2000, validate=validate.Range(min=1))
+
+
+class ExperimentalRequest(SampleOptions):
+    """POST /v1/experimental-variograms."""
+
+    lags = fields.Nested(LagsSchema)
+    directions = fields.List(fields.Nested(DirectionSchema), validate=validate.Length(min=1, max=MAX_DIRECTIONS))
+    statistic = fields.String(load_default="semivariance", validate=validate.OneOf(STATISTICS))
+    min_pairs = fields.Integer(strict=True, load_default=30, validate=validate.Range(min=1))
+    pairs_for_class = fields.Nested(ScatterRequestSchema)
+
+
+class MapRequest(SampleOptions):
+    """POST /v1/variogram-maps."""
+
+    cell_size = finite(required=True, validate=validate.Range(min=0, min_inclusive=False))
+    cells = fields.Integer(strict=True, required=True, validate=validate.Range(min=1))
+    statistic = fields.String(load_default="semivariance", validate=validate.OneOf(STATISTICS))
+
+
+# ---- responses -------------------------------------------------------------
+
+
+class ProvenanceSchema(Schema):
+    service = fields.String()
+    version = fields.String()
+    numpy = fields.String()
+    scipy = fields.String()
+    numba = fields.String()
+    input_sha256 = fields.String(metadata={"description": "SHA-256 of the little-endian float64 bytes of x, y, z and values as parsed."})
+    elapsed_ms = fields.Float()
+
+
+class SummarySchema(Schema):
+    samples = fields.Integer()
+    dimension = fields.Integer()
+    mean = fields.Float()
+    variance = fields.Float(metadata={"description": "Divisor N."})
+    minimum = fields.Float()
+    maximum = fields.Float()
+    extent = fields.Dict(keys=fields.String(), values=fields.List(fields.Float()))
+    max_distance = fields.Float()
+
+
+class ClassSchema(Schema):
+    lower = fields.Float()
+    upper = fields.Float()
+    mean_distance = fields.Float(allow_none=True)
+    pairs = fields.Integer()
+    value = fields.Float(allow_none=True)
+    reason = fields.String(allow_none=True)
+    sparse = fields.Boolean()
+    tail_mean = fields.Float(allow_none=True)
+    head_mean = fields.Float(allow_none=True)
+    tail_sd = fields.Float(allow_none=True)
+    head_sd = fields.Float(allow_none=True)
+
+
+class DirectionResultSchema(Schema):
+    azimuth = fields.Float()
+    tolerance = fields.Float()
+    bandwidth = fields.Float(allow_none=True)
+    dip = fields.Float()
+    dip_tolerance = fields.Float()
+    vertical_bandwidth = fields.Float(allow_none=True)
+    classes = fields.List(fields.Nested(ClassSchema))
+
+
+class ScattergramSchema(Schema):
+    direction = fields.Integer()
+    klass = fields.Integer(data_key="class")
+    pairs_in_class = fields.Integer()
+    stride = fields.Integer(metadata={"description": "Every stride-th pair of the class is returned."})
+    tail = fields.List(fields.Float())
+    head = fields.List(fields.Float())
+
+
+class ResultEnvelope(Schema):
+    parameters = fields.Dict(metadata={"description": "Every resolved parameter, defaults filled in."})
+    warnings = fields.List(fields.String())
+    provenance = fields.Nested(ProvenanceSchema)
+
+
+class ExperimentalResponse(ResultEnvelope):
+    directions = fields.List(fields.Nested(DirectionResultSchema))
+    summary = fields.Nested(SummarySchema)
+    colocated_pairs = fields.Integer()
+    pairs_for_class = fields.Nested(ScattergramSchema)
+
+
+class MapResponse(ResultEnvelope):
+    hx = fields.List(fields.Float())
+    hy = fields.List(fields.Float())
+    values = fields.List(fields.List(fields.Float(allow_none=True)), metadata={"description": "Rows by hy, columns by hx; null for empty cells."})
+    pairs = fields.List(fields.List(fields.Integer()))
+    summary = fields.Nested(SummarySchema)
+
+
+class FieldErrorSchema(Schema):
+    pointer = fields.String(metadata={"description": "JSON Pointer (RFC 6901) into the request."})
+    detail = fields.String()
+
+
+class ProblemSchema(Schema):
+    """RFC 9457 problem details."""
+
+    type = fields.String()
+    title = fields.String()
+    status = fields.Integer()
+    detail = fields.String()
+    instance = fields.String()
+    errors = fields.List(fields.Nested(FieldErrorSchema))
+
+
+class HealthSchema(Schema):
+    status = fields.String()

@@ -1,0 +1,112 @@
+"""Turn core results into response documents."""
+
+from __future__ import annotations
+
+from ..core.experimental import ExperimentalVariogram
+from ..core.maps import VariogramMap
+from ..core.samples import SampleSet
+
+ANGLES = "degrees; azimuth clockwise from north (+y), folded into [0, 180); dip below horizontal"
+CLASSES = "half-open [lower, upper); divisors N"
+
+
+def _as_float(value):
+    return None if value is None else float(value)
+
+
+def sample_parameters(samples: SampleSet) -> dict:
+    """Resolved sample handling for the audit trail."""
+    out = {
+        "coordinates": samples.coordinates,
+        "duplicates": samples.duplicates.policy,
+        "dimension": samples.dimension,
+        "samples_received": int(samples.size + samples.duplicates.removed),
+        "samples_used": samples.size,
+        "distance_unit": "metres" if samples.coordinates == "geographic" else "coordinate units",
+    }
+    if samples.projection is not None:
+        out["projection"] = {
+            "method": "local azimuthal equidistant on a sphere of radius 6371008.8 m",
+            "centre_longitude": samples.projection.longitude,
+            "centre_latitude": samples.projection.latitude,
+        }
+    return out
+
+
+def experimental(result: ExperimentalVariogram, samples: SampleSet) -> dict:
+    """Response body of ``POST /v1/experimental-variograms`` (without provenance)."""
+    dimension = samples.dimension
+    directions = []
+    for d in result.directions:
+        entry = d.direction.as_dict(dimension)
+        entry["classes"] = [_class_row(row) for row in d.classes]
+        directions.append(entry)
+    document = {
+        "directions": directions,
+        "summary": result.summary.as_dict(),
+        "colocated_pairs": result.colocated_pairs,
+        "parameters": {
+            **sample_parameters(samples),
+            "statistic": result.statistic,
+            "min_pairs": result.min_pairs,
+            "lags": {
+                "method": result.lag_method,
+                "edges": [[row.lower for row in d.classes] + [d.classes[-1].upper] for d in result.directions],
+            },
+            "directions": [d.direction.as_dict(dimension) for d in result.directions],
+            "angle_convention": ANGLES,
+            "class_convention": CLASSES,
+        },
+        "warnings": list(result.warnings),
+    }
+    if result.scattergram is not None:
+        s = result.scattergram
+        document["pairs_for_class"] = {
+            "direction": s.direction,
+            "class": s.klass,
+            "pairs_in_class": s.pairs_in_class,
+            "stride": s.stride,
+            "tail": s.tail,
+            "head": s.head,
+        }
+    return document
+
+
+def _class_row(row) -> dict:
+    out = {
+        "lower": row.lower,
+        "upper": row.upper,
+        "mean_distance": _as_float(row.mean_distance),
+        "pairs": row.pairs,
+        "value": _as_float(row.value),
+        "sparse": row.sparse,
+    }
+    if row.reason is not None:
+        out["reason"] = row.reason
+    if row.tail_mean is not None:
+        out.update(
+            tail_mean=_as_float(row.tail_mean),
+            head_mean=_as_float(row.head_mean),
+            tail_sd=_as_float(row.tail_sd),
+            head_sd=_as_float(row.head_sd),
+        )
+    return out
+
+
+def variogram_map(result: VariogramMap, samples: SampleSet) -> dict:
+    """Response body of ``POST /v1/variogram-maps`` (without provenance)."""
+    return {
+        "hx": result.hx,
+        "hy": result.hy,
+        "values": [[_as_float(v) for v in row] for row in result.values],
+        "pairs": result.pairs,
+        "summary": result.summary.as_dict(),
+        "parameters": {
+            **sample_parameters(samples),
+            "statistic": result.statistic,
+            "cell_size": result.cell_size,
+            "cells": result.cells,
+            "cell_convention": "cell (i, j) holds hx in [(i - 1/2) s, (i + 1/2) s) and hy likewise; each pair counted as h and -h; rows by hy",
+        },
+        "warnings": list(result.warnings),
+    }

@@ -1,0 +1,49 @@
+"""Compile (or load from numba's cache) and run every pair kernel once.
+
+Call :func:`compile_kernels` before forking worker processes (it starts no
+threads) and :func:`warm_kernels` in each worker after the fork (it starts the
+threading layer there), so that no request pays for compilation.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from .directions import DirectionClass
+from .experimental import ScatterRequest, experimental_variogram
+from .lags import LagRequest
+from .maps import variogram_map
+from .samples import build_sample_set
+from .statistics import STATISTICS
+
+_warm = False
+
+
+def _tiny_samples():
+    rng = np.random.default_rng(7)
+    return build_sample_set(rng.uniform(1.0, 2.0, 24), rng.uniform(0, 10, 24), rng.uniform(0, 10, 24))
+
+
+def warm_kernels() -> None:
+    """Run every kernel on a tiny sample set (idempotent within a process)."""
+    global _warm
+    if _warm:
+        return
+    samples = _tiny_samples()
+    for statistic in STATISTICS:
+        experimental_variogram(samples, statistic=statistic, directions=[DirectionClass(30.0, 30.0, 5.0)])
+        variogram_map(samples, cell_size=2.0, cells=2, statistic=statistic)
+    experimental_variogram(samples, lags=LagRequest(edges=(0.0, 1.0, 3.0, 6.0)), pairs_for_class=ScatterRequest(0, 1, 5))
+    _warm = True
+
+
+def compile_kernels() -> None:
+    """Compile every kernel for the argument types the engine uses, without running it."""
+    from . import kernels as K
+
+    f8, i8 = "float64", "int64"
+    a1, a2 = f"{f8}[::1]", f"{f8}[:, ::1]"
+    K.accumulate_classes.compile(f"({a2}, {a1}, {f8}, {f8}, {a2}, {a2}, {i8}[::1], {a1}, {i8}, {i8})")
+    K.accumulate_map.compile(f"({a2}, {a1}, {f8}, {f8}, {i8}, {i8}, {i8})")
+    K.collect_pairs.compile(f"({a2}, {a1}, {f8}, {a2}, {a2}, {i8}[::1], {a1}, {i8}[::1], {a1}, {i8}, {i8}, {a1}, {a1})")
+    K.collect_map_differences.compile(f"({a2}, {a1}, {f8}, {i8}, {i8}[::1], {a1})")
