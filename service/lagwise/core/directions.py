@@ -27,8 +27,8 @@ import numpy as np
 from .errors import FieldIssue, InvalidInput
 
 # Columns of the per-direction parameter table handed to the pair kernels.
-UX, UY, COS_TOL, BAND2, HAS_DIP, DIP, DIP_TOL, WX, WY, WZ, VBAND2 = range(11)
-DIRECTION_COLUMNS = 11
+UX, UY, COS_TOL, BAND2, HAS_DIP, DIP, DIP_TOL, WX, WY, WZ, VBAND2, COS2_TOL = range(12)
+DIRECTION_COLUMNS = 12
 
 
 @dataclass(frozen=True)
@@ -126,4 +126,6 @@ def direction_table(directions: list[DirectionClass]) -> np.ndarray:
         table[k, DIP], table[k, DIP_TOL] = dip, math.radians(d.dip_tolerance) + 1e-12
         table[k, WX], table[k, WY], table[k, WZ] = math.sin(az) * math.sin(dip), math.cos(az) * math.sin(dip), math.cos(dip)
         table[k, VBAND2] = math.inf if d.vertical_bandwidth is None else d.vertical_bandwidth**2
+        # Squared cosine for the fast kernel's test proj^2 >= |h|^2 cos^2 (0 admits every pair).
+        table[k, COS2_TOL] = table[k, COS_TOL] ** 2 if table[k, COS_TOL] > 0.0 else 0.0
     return table

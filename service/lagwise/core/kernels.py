@@ -105,7 +105,7 @@ def classify(dx, dy, dz, d, dirs, k, edges, nk, inv_width):
     return c, sign
 
 
-@njit(cache=True)
+@njit(cache=True, inline="always")
 def add_pair(table, b, d, tail, head, mode, mean):
     """Add one oriented pair (centred tail and head values) to bin b of a table."""
     table[b, COUNT] += 1.0
@@ -144,6 +144,7 @@ def accumulate_classes(pts, vals, mean, max_d2, dirs, edges, nk, inv_width, mode
     nblocks = (n + ROW_BLOCK - 1) // ROW_BLOCK
     for t in prange(nthreads):
         table = tables[t]
+        zero_pairs = 0
         for blk in range(t, nblocks, nthreads):
             for i in range(blk * ROW_BLOCK, min(n, (blk + 1) * ROW_BLOCK)):
                 xi = pts[i, 0]
@@ -159,7 +160,7 @@ def accumulate_classes(pts, vals, mean, max_d2, dirs, edges, nk, inv_width, mode
                     if d2 > max_d2:
                         continue
                     if d2 == 0.0:
-                        colocated[t] += 1
+                        zero_pairs += 1
                         continue
                     d = math.sqrt(d2)
                     for k in range(ndir):
@@ -170,16 +171,91 @@ def accumulate_classes(pts, vals, mean, max_d2, dirs, edges, nk, inv_width, mode
                             add_pair(table, k * kmax + c, d, vals[i], vals[j], mode, mean)
                         else:
                             add_pair(table, k * kmax + c, d, vals[j], vals[i], mode, mean)
+        colocated[t] = zero_pairs
     return tables.sum(axis=0), colocated.sum()
 
 
+@njit(parallel=True, cache=True)
+def accumulate_horizontal(pts, vals, mean, max_d2, dirs, padded, lut, inv_cell, shared, mode, nthreads):
+    """Fast path of :func:`accumulate_classes` for classes without dip or vertical band.
+
+    Class lookup: ``lut[k, m]`` is ``searchsorted(edges_k, m * cell, "right") - 1`` for
+    fine cells narrower than the narrowest class, so one step up and one step down
+    (against ``padded[k] = [-inf, edges_k..., +inf...]``) give exactly
+    ``searchsorted(edges_k, d, "right") - 1``. ``shared`` means every direction has
+    the same edges, so the class is looked up once per pair.
+
+    Distances outside the classes go to a dropped bin ``kmax`` instead of taking an
+    unpredictable branch; direction membership does branch, which measured faster
+    than adding every pair to every direction. Returns the table (ndir * kmax, ACCUMULATORS) and co-located pairs.
+    """
+    n = pts.shape[0]
+    ndir = dirs.shape[0]
+    kmax = padded.shape[1] - 3
+    stride = kmax + 1
+    last_cell = lut.shape[1] - 1
+    tables = np.zeros((nthreads, ndir * stride, ACCUMULATORS))
+    colocated = np.zeros(nthreads, dtype=np.int64)
+    nblocks = (n + ROW_BLOCK - 1) // ROW_BLOCK
+    for t in prange(nthreads):
+        table = tables[t]
+        zero_pairs = 0
+        for blk in range(t, nblocks, nthreads):
+            for i in range(blk * ROW_BLOCK, min(n, (blk + 1) * ROW_BLOCK)):
+                xi = pts[i, 0]
+                yi = pts[i, 1]
+                zi = pts[i, 2]
+                vi = vals[i]
+                for j in range(i + 1, n):
+                    dx = pts[j, 0] - xi
+                    if dx * dx > max_d2:
+                        break
+                    dy = pts[j, 1] - yi
+                    dz = pts[j, 2] - zi
+                    d2 = dx * dx + dy * dy + dz * dz
+                    zero_pairs += np.int64(d2 == 0.0)
+                    d = math.sqrt(d2)
+                    vj = vals[j]
+                    hh2 = dx * dx + dy * dy
+                    m = min(int(d * inv_cell), last_cell)
+                    c = lut[0, m]
+                    c += np.int64(padded[0, c + 2] <= d)
+                    c -= np.int64(padded[0, c + 1] > d)
+                    # Out-of-class and co-located pairs go to the dropped bin kmax.
+                    c = c if (c >= 0) & (padded[0, c + 2] < np.inf) & (d2 > 0.0) & (d2 <= max_d2) else kmax
+                    for k in range(ndir):
+                        proj = dx * dirs[k, 0] + dy * dirs[k, 1]
+                        perp = dx * dirs[k, 1] - dy * dirs[k, 0]
+                        if (proj * proj >= hh2 * dirs[k, 11]) & (perp * perp <= dirs[k, 3]):
+                            b = c
+                            if not shared:
+                                b = lut[k, m]
+                                b += np.int64(padded[k, b + 2] <= d)
+                                b -= np.int64(padded[k, b + 1] > d)
+                                b = b if (b >= 0) & (padded[k, b + 2] < np.inf) & (d2 > 0.0) & (d2 <= max_d2) else kmax
+                            if mode == MODE_COVARIANCE:
+                                forward = (proj > 0.0) | ((proj == 0.0) & ((perp > 0.0) | ((perp == 0.0) & (dz >= 0.0))))
+                                tail = vi if forward else vj
+                                head = vj if forward else vi
+                                add_pair(table, k * stride + b, d, tail, head, mode, mean)
+                            else:
+                                add_pair(table, k * stride + b, d, vi, vj, mode, mean)
+        colocated[t] = zero_pairs
+    out = tables.sum(axis=0)
+    result = np.zeros((ndir * kmax, ACCUMULATORS))
+    for k in range(ndir):
+        result[k * kmax : (k + 1) * kmax] = out[k * stride : k * stride + kmax]
+    return result, colocated.sum()
+
+
 @njit(cache=True)
-def collect_pairs(pts, vals, max_d2, dirs, edges, nk, inv_width, offsets, out_abs, target, stride, out_tail, out_head):
+def collect_pairs(pts, vals, max_d2, dirs, edges, nk, inv_width, offsets, ends, out_abs, target, stride, out_tail, out_head):
     """Serial pass that copies pair values out of the accumulators' reach.
 
     When ``out_abs`` is non-empty, |head - tail| of every member pair is written at
-    ``offsets[bin]`` onwards (offsets are advanced; they must come from the counts of
-    an earlier pass). When ``target >= 0``, every ``stride``-th pair of that bin (in
+    ``offsets[bin]`` onwards, never past ``ends[bin]`` (offsets are advanced; they
+    come from the counts of an earlier pass, and the bound keeps a disagreement from
+    writing outside the bin). When ``target >= 0``, every ``stride``-th pair of that bin (in
     visiting order) has its centred tail and head values written to out_tail/out_head.
     Returns how many scattergram pairs were written.
     """
@@ -205,7 +281,7 @@ def collect_pairs(pts, vals, max_d2, dirs, edges, nk, inv_width, offsets, out_ab
                 if c < 0:
                     continue
                 b = k * kmax + c
-                if want_abs:
+                if want_abs and offsets[b] < ends[b]:
                     out_abs[offsets[b]] = abs(vals[j] - vals[i])
                     offsets[b] += 1
                 if b == target:
@@ -262,8 +338,8 @@ def accumulate_map(pts, vals, mean, cell, cells, mode, nthreads):
 
 
 @njit(cache=True)
-def collect_map_differences(pts, vals, cell, cells, offsets, out_abs):
-    """Serial pass writing |head - tail| of every map pair at offsets[cell] onwards."""
+def collect_map_differences(pts, vals, cell, cells, offsets, ends, out_abs):
+    """Serial pass writing |head - tail| of every map pair at offsets[cell] onwards (up to ends[cell])."""
     n = pts.shape[0]
     reach = (cells + 0.5) * cell
     for i in range(n):
@@ -276,10 +352,10 @@ def collect_map_differences(pts, vals, cell, cells, offsets, out_abs):
                 continue
             a = abs(vals[j] - vals[i])
             b = map_cell(dx, dy, cell, cells)
-            if b >= 0:
+            if b >= 0 and offsets[b] < ends[b]:
                 out_abs[offsets[b]] = a
                 offsets[b] += 1
             b = map_cell(-dx, -dy, cell, cells)
-            if b >= 0:
+            if b >= 0 and offsets[b] < ends[b]:
                 out_abs[offsets[b]] = a
                 offsets[b] += 1

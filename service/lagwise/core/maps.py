@@ -128,7 +128,7 @@ def _cell_medians(statistic, prepared, cell_size, cells, counts, limits) -> np.n
     limits.check_median_pairs(int(counts.sum()))
     starts = np.concatenate([[0], np.cumsum(counts)[:-1]]).astype(np.int64)
     out = np.empty(int(counts.sum()))
-    K.collect_map_differences(prepared.points, prepared.values, cell_size, cells, starts.copy(), out)
+    K.collect_map_differences(prepared.points, prepared.values, cell_size, cells, starts.copy(), starts + counts, out)
     for b, (s, c) in enumerate(zip(starts, counts)):
         if c:
             medians[b] = float(np.median(out[s : s + c]))

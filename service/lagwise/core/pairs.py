@@ -15,9 +15,10 @@ import numpy as np
 from scipy.spatial.distance import pdist
 
 from . import kernels as K
-from .directions import DirectionClass, direction_table
+from .directions import HAS_DIP, VBAND2, DirectionClass, direction_table
 
 ESTIMATE_SUBSET = 2000
+MAX_LOOKUP_CELLS = 1 << 16
 
 
 @dataclass(frozen=True)
@@ -74,12 +75,29 @@ class ClassLayout:
         1 / width for equal-width classes, 0 for irregular edges.
     table : ndarray
         Direction parameters (:func:`lagwise.core.directions.direction_table`).
+    padded : ndarray, shape (ndir, kmax + 3)
+        ``[-inf, edges..., +inf...]`` per direction, for the fast kernel.
+    lookup : ndarray of int64, shape (ndir, cells + 1)
+        Class index at the start of each fine cell of width ``1 / inv_cell``.
+    inv_cell : float
+        Inverse width of the lookup cells.
+    shared : bool
+        Every direction has the same edges.
     """
 
     edges: np.ndarray
     counts: np.ndarray
     inv_width: np.ndarray
     table: np.ndarray
+    padded: np.ndarray
+    lookup: np.ndarray
+    inv_cell: float
+    shared: bool
+
+    @property
+    def horizontal(self) -> bool:
+        """No class uses a dip or a vertical band (the fast kernel applies)."""
+        return bool(np.all(self.table[:, HAS_DIP] == 0.0) and np.all(np.isinf(self.table[:, VBAND2])))
 
     @property
     def kmax(self) -> int:
@@ -104,12 +122,31 @@ def layout(directions: list[DirectionClass], edges_per_direction: list[np.ndarra
         if np.allclose(widths, widths[0], rtol=1e-12, atol=0.0):
             inv_width[k] = 1.0 / widths[0]
     counts = np.array([len(e) - 1 for e in edges_per_direction], dtype=np.int64)
-    return ClassLayout(edges=edges, counts=counts, inv_width=inv_width, table=direction_table(directions))
+    padded = np.full((len(directions), kmax + 3), np.inf)
+    padded[:, 0] = -np.inf
+    for k, e in enumerate(edges_per_direction):
+        padded[k, 1 : len(e) + 1] = e
+    radius = float(max(e[-1] for e in edges_per_direction))
+    narrowest = float(min(np.diff(e).min() for e in edges_per_direction))
+    cells = int(min(MAX_LOOKUP_CELLS, max(64, np.ceil(2.0 * radius / narrowest))))
+    starts = np.arange(cells + 1) * (radius / cells)
+    lookup = np.array([np.searchsorted(e, starts, side="right") - 1 for e in edges_per_direction], dtype=np.int64)
+    shared = all(np.array_equal(e, edges_per_direction[0]) for e in edges_per_direction)
+    return ClassLayout(
+        edges=edges, counts=counts, inv_width=inv_width, table=direction_table(directions),
+        padded=padded, lookup=lookup, inv_cell=cells / radius, shared=shared,
+    )
 
 
 def accumulate(prepared: PreparedSamples, classes: ClassLayout, mode: int) -> tuple[np.ndarray, int]:
     """Run the pair kernel; returns the table (ndir, kmax, ACCUMULATORS) and co-located pairs."""
     radius = classes.search_radius
+    if classes.horizontal:
+        table, colocated = K.accumulate_horizontal(
+            prepared.points, prepared.values, prepared.mean, radius * radius, classes.table, classes.padded,
+            classes.lookup, classes.inv_cell, classes.shared, mode, numba.get_num_threads(),
+        )
+        return table.reshape(classes.table.shape[0], classes.kmax, K.ACCUMULATORS), int(colocated)
     table, colocated = K.accumulate_classes(
         prepared.points,
         prepared.values,
@@ -138,7 +175,7 @@ def absolute_differences(prepared: PreparedSamples, classes: ClassLayout, counts
     tail, head = _no_scatter()
     K.collect_pairs(
         prepared.points, prepared.values, radius * radius, classes.table, classes.edges,
-        classes.counts, classes.inv_width, starts.copy(), out, -1, 1, tail, head,
+        classes.counts, classes.inv_width, starts.copy(), starts + flat, out, -1, 1, tail, head,
     )
     return [out[s : s + c] for s, c in zip(starts, flat)]
 
@@ -154,7 +191,8 @@ def scatter_pairs(prepared: PreparedSamples, classes: ClassLayout, bin_index: in
     radius = classes.search_radius
     written = K.collect_pairs(
         prepared.points, prepared.values, radius * radius, classes.table, classes.edges,
-        classes.counts, classes.inv_width, np.zeros(0, dtype=np.int64), np.zeros(0), bin_index, stride, tail, head,
+        classes.counts, classes.inv_width, np.zeros(0, dtype=np.int64), np.zeros(0, dtype=np.int64), np.zeros(0),
+        bin_index, stride, tail, head,
     )
     return tail[:written] + prepared.mean, head[:written] + prepared.mean, stride
 
