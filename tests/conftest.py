@@ -1,0 +1,41 @@
+"""Shared fixtures: apps built by the factory with their own settings, and sample sets."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+from lagwise.api import create_app
+from lagwise.api.settings import Settings
+from lagwise.core.limits import Limits
+
+
+@pytest.fixture(scope="session")
+def app():
+    return create_app({"TESTING": True}, settings=Settings())
+
+
+@pytest.fixture()
+def client(app):
+    return app.test_client()
+
+
+@pytest.fixture()
+def small_limits_client():
+    settings = Settings(max_body_bytes=4096, limits=Limits(max_samples=50, max_pairs=500, max_median_pairs=100, max_scatter_pairs=10, max_map_cells=11))
+    return create_app({"TESTING": True}, settings=settings).test_client()
+
+
+@pytest.fixture()
+def rng():
+    return np.random.default_rng(12345)
+
+
+def random_columns(rng, n=200, dim=2, side=100.0):
+    """Uniform random samples in a square (or cube) with normal values."""
+    cols = {"x": rng.uniform(0, side, n).tolist(), "values": rng.normal(10.0, 2.0, n).tolist()}
+    if dim >= 2:
+        cols["y"] = rng.uniform(0, side, n).tolist()
+    if dim == 3:
+        cols["z"] = rng.uniform(0, side / 4, n).tolist()
+    return cols
