@@ -4,7 +4,6 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-
 from lagwise.api import create_app
 from lagwise.api.settings import Settings
 from lagwise.core.limits import Limits

@@ -78,7 +78,7 @@ class Lagwise:
         if api_key:
             self.session.headers["Authorization"] = f"Bearer {api_key}"
 
-    def __enter__(self) -> "Lagwise":
+    def __enter__(self) -> Lagwise:
         return self
 
     def __exit__(self, *exc) -> None:

@@ -67,7 +67,7 @@ class ExperimentalVariogram:
     raw: dict = field(default_factory=dict, repr=False)
 
     @classmethod
-    def from_response(cls, document: dict) -> "ExperimentalVariogram":
+    def from_response(cls, document: dict) -> ExperimentalVariogram:
         directions = []
         for d in document["directions"]:
             classes = tuple(VariogramClass(**c) for c in d["classes"])
@@ -110,7 +110,7 @@ class VariogramMap:
     raw: dict = field(default_factory=dict, repr=False)
 
     @classmethod
-    def from_response(cls, document: dict) -> "VariogramMap":
+    def from_response(cls, document: dict) -> VariogramMap:
         return cls(
             hx=tuple(document["hx"]),
             hy=tuple(document["hy"]),

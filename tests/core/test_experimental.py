@@ -7,8 +7,6 @@ import sys
 
 import numpy as np
 import pytest
-from scipy.spatial.distance import pdist
-
 from lagwise.core.errors import InvalidInput, LimitExceeded
 from lagwise.core.experimental import ScatterRequest, experimental_variogram
 from lagwise.core.lags import LagRequest
@@ -16,6 +14,7 @@ from lagwise.core.limits import Limits
 from lagwise.core.maps import variogram_map
 from lagwise.core.samples import build_sample_set
 from lagwise.core.summary import largest_separation, summarise
+from scipy.spatial.distance import pdist
 
 
 def _set(rng, n=200, values=None):

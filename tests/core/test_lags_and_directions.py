@@ -4,7 +4,6 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-
 from lagwise.core.directions import DirectionClass, validate_direction
 from lagwise.core.errors import InvalidInput
 from lagwise.core.experimental import experimental_variogram

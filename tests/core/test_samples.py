@@ -6,7 +6,6 @@ import hashlib
 
 import numpy as np
 import pytest
-
 from lagwise.core.errors import InvalidInput
 from lagwise.core.samples import build_sample_set
 

@@ -9,7 +9,6 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-
 from lagwise.core.directions import DirectionClass
 from lagwise.core.experimental import experimental_variogram
 from lagwise.core.lags import LagRequest
@@ -49,7 +48,7 @@ def test_matches_brute_force(name, statistic, rng):
         expected = class_statistics(statistic, values, i, j, ok, klass, sign, len(edges) - 1)
         got = result.directions[k].classes
         assert [row.pairs for row in got] == [n for n, _ in expected]
-        for row, (n, value) in zip(got, expected):
+        for row, (n, value) in zip(got, expected, strict=False):
             if n == 0:
                 assert row.value is None and row.mean_distance is None
                 continue

@@ -10,9 +10,8 @@ import math
 
 import numpy as np
 import pytest
-from scipy.spatial.distance import pdist
-
 from lagwise.core.samples import build_sample_set
+from scipy.spatial.distance import pdist
 
 R = 6_371_008.8
 

@@ -11,7 +11,6 @@ import numpy as np
 import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
-
 from lagwise.core.directions import DirectionClass
 from lagwise.core.experimental import experimental_variogram
 from lagwise.core.lags import LagRequest
@@ -28,7 +27,7 @@ def _values(coords, values):
 
 def _same(a, b, scale=1.0):
     assert [p for p, _ in a] == [p for p, _ in b]
-    for (_, u), (_, v) in zip(a, b):
+    for (_, u), (_, v) in zip(a, b, strict=False):
         assert (u is None) == (v is None)
         if u is not None:
             assert v == pytest.approx(u * scale, rel=1e-8, abs=1e-9)

@@ -4,7 +4,6 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-
 from lagwise.core.maps import variogram_map
 from lagwise.core.samples import build_sample_set
 

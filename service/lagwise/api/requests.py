@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from flask import request
+from flask import current_app, request
 from marshmallow import Schema, ValidationError
 
 from .jsonio import MalformedJSON, parse
@@ -22,6 +22,33 @@ def _pointers(messages, prefix: str = "") -> list[dict]:
     return [{"pointer": prefix, "detail": str(messages)}]
 
 
+READ_BLOCK = 1 << 16
+
+
+def read_body() -> bytes:
+    """The request body, refusing more than ``MAX_CONTENT_LENGTH`` bytes.
+
+    With a Content-Length, Flask refuses an oversized body before reading it. A
+    chunked body (no Content-Length, de-chunked by the server) is read block by
+    block and refused as soon as it passes the limit, so memory stays bounded.
+    """
+    if request.content_length is not None:
+        return request.get_data(cache=False)
+    limit = current_app.config["MAX_CONTENT_LENGTH"]
+    if "wsgi.input_terminated" not in request.environ:
+        return b""
+    stream = request.environ["wsgi.input"]
+    blocks, total = [], 0
+    while True:
+        block = stream.read(READ_BLOCK)
+        if not block:
+            return b"".join(blocks)
+        total += len(block)
+        if total > limit:
+            raise Problem("body-too-large", f"The body exceeds the limit of {limit} bytes (LAGWISE_MAX_BODY_BYTES).")
+        blocks.append(block)
+
+
 def load_json(schema: Schema) -> dict:
     """Parse and validate the current request's JSON body with ``schema``.
 
@@ -35,7 +62,7 @@ def load_json(schema: Schema) -> dict:
     if mimetype != "application/json" and not mimetype.endswith("+json"):
         raise Problem("unsupported-media-type", f"expected Content-Type application/json, got {mimetype or 'none'}")
     try:
-        document = parse(request.get_data(cache=False))
+        document = parse(read_body())
     except MalformedJSON as exc:
         raise Problem("malformed-json", str(exc)) from None
     if not isinstance(document, dict):

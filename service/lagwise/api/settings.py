@@ -45,7 +45,7 @@ class Settings:
     limits: Limits = field(default_factory=Limits)
 
     @classmethod
-    def from_env(cls, env: Mapping[str, str] | None = None) -> "Settings":
+    def from_env(cls, env: Mapping[str, str] | None = None) -> Settings:
         """Read the ``LAGWISE_*`` variables (``os.environ`` by default)."""
         env = os.environ if env is None else env
         defaults = Limits()

@@ -42,7 +42,7 @@ class InvalidInput(LagwiseCoreError):
         super().__init__(self.summary)
 
     @classmethod
-    def at(cls, pointer: str, detail: str) -> "InvalidInput":
+    def at(cls, pointer: str, detail: str) -> InvalidInput:
         """Build an error about a single field."""
         return cls(FieldIssue(pointer, detail))
 

@@ -129,7 +129,7 @@ def _cell_medians(statistic, prepared, cell_size, cells, counts, limits) -> np.n
     starts = np.concatenate([[0], np.cumsum(counts)[:-1]]).astype(np.int64)
     out = np.empty(int(counts.sum()))
     K.collect_map_differences(prepared.points, prepared.values, cell_size, cells, starts.copy(), starts + counts, out)
-    for b, (s, c) in enumerate(zip(starts, counts)):
+    for b, (s, c) in enumerate(zip(starts, counts, strict=False)):
         if c:
             medians[b] = float(np.median(out[s : s + c]))
     return medians

@@ -177,7 +177,7 @@ def absolute_differences(prepared: PreparedSamples, classes: ClassLayout, counts
         prepared.points, prepared.values, radius * radius, classes.table, classes.edges,
         classes.counts, classes.inv_width, starts.copy(), starts + flat, out, -1, 1, tail, head,
     )
-    return [out[s : s + c] for s, c in zip(starts, flat)]
+    return [out[s : s + c] for s, c in zip(starts, flat, strict=False)]
 
 
 def scatter_pairs(prepared: PreparedSamples, classes: ClassLayout, bin_index: int, total: int, limit: int):

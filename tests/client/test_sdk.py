@@ -1,0 +1,82 @@
+"""SDK tests against a real gunicorn service on 127.0.0.1."""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+import pytest
+from lagwise_client import ExperimentalVariogram, Lagwise, LimitError, TransportError, ValidationError, VariogramMap
+from lagwise_client.retry import RetryPolicy
+
+
+@pytest.fixture()
+def lw(service_url):
+    with Lagwise(service_url) as client:
+        yield client
+
+
+@pytest.fixture()
+def columns():
+    rng = np.random.default_rng(8)
+    return rng.uniform(0, 100, 120), rng.uniform(0, 100, 120), rng.normal(5, 1, 120)
+
+
+def test_lists_arrays_and_dataframes_agree(lw, columns):
+    x, y, v = columns
+    lags = {"width": 10.0, "count": 5}
+    from_arrays = lw.experimental_variogram(x=x, y=y, values=v, lags=lags)
+    from_lists = lw.experimental_variogram(x=x.tolist(), y=y.tolist(), values=v.tolist(), lags=lags)
+    frame = pd.DataFrame({"east": x, "north": y, "lead": v})
+    from_frame = lw.experimental_variogram(frame, columns={"x": "east", "y": "north", "values": "lead"}, lags=lags)
+    assert isinstance(from_arrays, ExperimentalVariogram)
+    values = [[c.value for c in r.directions[0].classes] for r in (from_arrays, from_lists, from_frame)]
+    assert values[0] == values[1] == values[2]
+    assert from_arrays.provenance["input_sha256"] == from_frame.provenance["input_sha256"]
+    table = from_arrays.to_dataframe()
+    assert list(table["pairs"]) == [c.pairs for c in from_arrays.directions[0].classes]
+
+
+def test_directions_and_statistic(lw, columns):
+    x, y, v = columns
+    result = lw.experimental_variogram(x=x, y=y, values=v, directions=[{"azimuth": 45, "tolerance": 22.5}, {"azimuth": 135}], statistic="madogram")
+    assert [d.azimuth for d in result.directions] == [45.0, 135.0]
+    assert result.parameters["statistic"] == "madogram"
+
+
+def test_variogram_map(lw, columns):
+    x, y, v = columns
+    result = lw.variogram_map(x=x, y=y, values=v, cell_size=10.0, cells=2)
+    assert isinstance(result, VariogramMap) and len(result.hx) == 5 and len(result.values) == 5
+    assert len(result.to_dataframe()) == 25
+
+
+def test_validation_error_names_fields(lw):
+    with pytest.raises(ValidationError) as info:
+        lw.experimental_variogram(x=[0, 1, 2], values=[1, 2, "x"])
+    error = info.value
+    assert error.status == 422 and error.errors[0]["pointer"] == "/samples/values/2"
+    assert error.request_id and "ValidationError(status=422" in repr(error)
+    assert isinstance(error, ValueError)
+
+
+def test_nan_refused_before_sending(lw):
+    with pytest.raises(ValidationError, match="NaN"):
+        lw.experimental_variogram(x=[0.0, 1.0], values=[1.0, float("nan")])
+
+
+def test_limit_error(lw):
+    with pytest.raises(LimitError) as info:
+        lw.experimental_variogram(x=list(range(5001)), values=[1.0] * 5001)
+    assert info.value.limit == "LAGWISE_MAX_SAMPLES" and info.value.allowed == 5000
+
+
+def test_health(lw):
+    assert lw.health() == {"status": "alive"} and lw.ready()
+
+
+def test_transport_error_after_retries():
+    slept = []
+    client = Lagwise("http://127.0.0.1:9", retries=RetryPolicy(retries=2, sleep=slept.append), timeout=2)
+    with pytest.raises(TransportError, match="after 3 attempts"):
+        client.health()
+    assert len(slept) == 2 and slept[1] >= slept[0] * 0.5
