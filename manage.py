@@ -1,12 +1,12 @@
 #!/usr/bin/env python3
 """Set up and run Lagwise on a fresh machine with only python3.
 
-    python3 manage.py run        create .venv, start the service, run the demo, keep serving
-    python3 manage.py test       create .venv and run the default test suite
-    python3 manage.py test-slow  the long suites (marked slow)
-    python3 manage.py bench      the benchmarks under bench/
-    python3 manage.py openapi    regenerate openapi/openapi.yaml
-    python3 manage.py lint       ruff over the whole tree
+python3 manage.py run        create .venv, start the service, run the demo, keep serving
+python3 manage.py test       create .venv and run the default test suite
+python3 manage.py test-slow  the long suites (marked slow)
+python3 manage.py bench      the benchmarks under bench/
+python3 manage.py openapi    regenerate openapi/openapi.yaml
+python3 manage.py lint       ruff over the whole tree
 """
 
 from __future__ import annotations
@@ -71,8 +71,12 @@ def run() -> int:
     service = subprocess.Popen([str(BIN / "lagwise"), "serve"], env=env, cwd=ROOT)
     try:
         _wait_ready(url, service)
-        subprocess.run([str(BIN / "lagwise"), "demo", "--url", url, "--out", str(ROOT / "reports" / "elmsworth")], check=True)
-        print(f"\nThe service keeps running on {url} (OpenAPI at {url}/openapi.json). Press Ctrl-C to stop.", flush=True)
+        subprocess.run(
+            [str(BIN / "lagwise"), "demo", "--url", url, "--out", str(ROOT / "reports" / "elmsworth")], check=True
+        )
+        print(
+            f"\nThe service keeps running on {url} (OpenAPI at {url}/openapi.json). Press Ctrl-C to stop.", flush=True
+        )
         service.wait()
     except KeyboardInterrupt:
         print("\nstopping ...")
@@ -105,7 +109,9 @@ def main(argv: list[str]) -> int:
         return subprocess.run([str(BIN / "lagwise"), "openapi"], cwd=ROOT).returncode
     if command == "lint":
         ensure_environment()
-        return subprocess.run([str(BIN / "ruff"), "check", "service", "client", "tests", "bench", "manage.py"], cwd=ROOT).returncode
+        return subprocess.run(
+            [str(BIN / "ruff"), "check", "service", "client", "tests", "bench", "manage.py"], cwd=ROOT
+        ).returncode
     print(__doc__)
     return 0 if command == "help" else 2
 

@@ -30,7 +30,11 @@ def running_service(env: dict | None = None, workers: int = 2, ready_within: flo
     log = open(os.devnull, "w")
     process = subprocess.Popen(
         [sys.executable, "-m", "gunicorn", "--config", str(CONFIG), "lagwise.api:create_app()"],
-        env=environment, cwd=ROOT, stdout=log, stderr=log, start_new_session=True,
+        env=environment,
+        cwd=ROOT,
+        stdout=log,
+        stderr=log,
+        start_new_session=True,
     )
     url = f"http://127.0.0.1:{port}"
     try:

@@ -24,7 +24,9 @@ def _column(value) -> list:
     return list(value)
 
 
-def samples_document(samples=None, *, x=None, y=None, z=None, values=None, ids=None, columns: Mapping[str, str] | None = None) -> dict:
+def samples_document(
+    samples=None, *, x=None, y=None, z=None, values=None, ids=None, columns: Mapping[str, str] | None = None
+) -> dict:
     """Build the ``samples`` member from columns or from a table.
 
     Parameters
@@ -67,7 +69,15 @@ class Lagwise:
         Reused for every call (connection pooling); one is created by default.
     """
 
-    def __init__(self, base_url: str, *, api_key: str | None = None, timeout: float = DEFAULT_TIMEOUT, retries: int | RetryPolicy = 3, session: requests.Session | None = None):
+    def __init__(
+        self,
+        base_url: str,
+        *,
+        api_key: str | None = None,
+        timeout: float = DEFAULT_TIMEOUT,
+        retries: int | RetryPolicy = 3,
+        session: requests.Session | None = None,
+    ):
         if not base_url or "://" not in base_url:
             raise ValueError(f"base_url must be an http(s) URL such as http://127.0.0.1:8750, got {base_url!r}")
         self.base_url = base_url.rstrip("/")
@@ -102,7 +112,9 @@ class Lagwise:
             try:
                 data = json.dumps(body, allow_nan=False, separators=(",", ":")).encode()
             except ValueError as exc:
-                raise ValidationError(f"the request holds NaN or Infinity, which JSON cannot carry: {exc}", request_id=request_id) from None
+                raise ValidationError(
+                    f"the request holds NaN or Infinity, which JSON cannot carry: {exc}", request_id=request_id
+                ) from None
             headers["Content-Type"] = "application/json"
         url = self.base_url + path
         attempt = 0
@@ -111,7 +123,9 @@ class Lagwise:
                 response = self.session.request(method, url, data=data, headers=headers, timeout=self.timeout)
             except (requests.ConnectionError, requests.Timeout) as exc:
                 if attempt >= self.retry.retries:
-                    raise TransportError(f"no answer from {url} after {attempt + 1} attempts: {exc}", request_id=request_id) from exc
+                    raise TransportError(
+                        f"no answer from {url} after {attempt + 1} attempts: {exc}", request_id=request_id
+                    ) from exc
                 self.retry.sleep(self.retry.delay(attempt))
                 attempt += 1
                 continue
@@ -159,7 +173,15 @@ class Lagwise:
         ``values``, ``ids``); options are those of the API and default on the service.
         """
         body = {"samples": samples_document(samples, x=x, y=y, z=z, values=values, ids=ids, columns=columns)}
-        options = dict(lags=lags, directions=directions, statistic=statistic, min_pairs=min_pairs, coordinates=coordinates, duplicates=duplicates, pairs_for_class=pairs_for_class)
+        options = dict(
+            lags=lags,
+            directions=directions,
+            statistic=statistic,
+            min_pairs=min_pairs,
+            coordinates=coordinates,
+            duplicates=duplicates,
+            pairs_for_class=pairs_for_class,
+        )
         body.update({k: v for k, v in options.items() if v is not None})
         return ExperimentalVariogram.from_response(self.request("POST", "/v1/experimental-variograms", body))
 
@@ -180,7 +202,11 @@ class Lagwise:
         duplicates: str | None = None,
     ) -> VariogramMap:
         """Variogram map on (2 cells + 1)^2 square cells of side ``cell_size`` (``POST /v1/variogram-maps``)."""
-        body = {"samples": samples_document(samples, x=x, y=y, z=z, values=values, ids=ids, columns=columns), "cell_size": cell_size, "cells": cells}
+        body = {
+            "samples": samples_document(samples, x=x, y=y, z=z, values=values, ids=ids, columns=columns),
+            "cell_size": cell_size,
+            "cells": cells,
+        }
         options = dict(statistic=statistic, coordinates=coordinates, duplicates=duplicates)
         body.update({k: v for k, v in options.items() if v is not None})
         return VariogramMap.from_response(self.request("POST", "/v1/variogram-maps", body))

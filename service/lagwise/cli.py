@@ -48,7 +48,9 @@ def parser() -> argparse.ArgumentParser:
     p = argparse.ArgumentParser(prog="lagwise", description="Lagwise spatial continuity service")
     commands = p.add_subparsers(dest="command", required=True)
     s = commands.add_parser("serve", help="run the service under gunicorn")
-    s.add_argument("--bind", default=os.environ.get("LAGWISE_BIND", DEFAULT_BIND), help=f"address:port (default {DEFAULT_BIND})")
+    s.add_argument(
+        "--bind", default=os.environ.get("LAGWISE_BIND", DEFAULT_BIND), help=f"address:port (default {DEFAULT_BIND})"
+    )
     s.add_argument("--config", default=str(GUNICORN_CONFIG), help="gunicorn configuration file")
     s.set_defaults(run=serve)
     d = commands.add_parser("demo", help="run the invented Elmsworth demo against a running service")

@@ -72,9 +72,14 @@ def run_demo(base_url: str, out_dir: Path) -> Path:
         directional = client.experimental_variogram(
             log_samples,
             lags={"width": 40.0, "count": 10},
-            directions=[{"azimuth": TRACK_AZIMUTH, "tolerance": 22.5}, {"azimuth": TRACK_AZIMUTH + 90.0, "tolerance": 22.5}],
+            directions=[
+                {"azimuth": TRACK_AZIMUTH, "tolerance": 22.5},
+                {"azimuth": TRACK_AZIMUTH + 90.0, "tolerance": 22.5},
+            ],
         )
-        robust = client.experimental_variogram(log_samples, lags={"width": 40.0, "count": 10}, statistic="semivariance_robust")
+        robust = client.experimental_variogram(
+            log_samples, lags={"width": 40.0, "count": 10}, statistic="semivariance_robust"
+        )
         vmap = client.variogram_map(log_samples, cell_size=40.0, cells=8)
     report = {
         "scenario": "Elmsworth former rail depot, soil lead (mg/kg) - invented data",

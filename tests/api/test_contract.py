@@ -16,7 +16,9 @@ COMMITTED = Path(__file__).resolve().parents[2] / "openapi" / "openapi.yaml"
 
 
 def test_committed_contract_is_up_to_date():
-    assert COMMITTED.read_text() == as_yaml(), "openapi/openapi.yaml is stale: run `python3 manage.py openapi` and commit it"
+    assert COMMITTED.read_text() == as_yaml(), (
+        "openapi/openapi.yaml is stale: run `python3 manage.py openapi` and commit it"
+    )
 
 
 def test_contract_is_valid_openapi():
@@ -30,14 +32,19 @@ def test_served_contract_matches(client):
 
 def _response_validator(path, status, media):
     spec = as_dict()
-    schema = spec["paths"][path]["post" if path.startswith("/v1") else "get"]["responses"][str(status)]["content"][media]["schema"]
+    schema = spec["paths"][path]["post" if path.startswith("/v1") else "get"]["responses"][str(status)]["content"][
+        media
+    ]["schema"]
     return OAS30Validator({**schema, "components": spec["components"]})
 
 
 @pytest.mark.parametrize(
     "path, body",
     [
-        ("/v1/experimental-variograms", {"directions": [{"azimuth": 10}], "pairs_for_class": {"class": 0}, "statistic": "correlogram"}),
+        (
+            "/v1/experimental-variograms",
+            {"directions": [{"azimuth": 10}], "pairs_for_class": {"class": 0}, "statistic": "correlogram"},
+        ),
         ("/v1/experimental-variograms", {"lags": {"auto": "equal_pairs"}}),
         ("/v1/variogram-maps", {"cell_size": 10, "cells": 2}),
     ],

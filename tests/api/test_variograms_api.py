@@ -14,7 +14,11 @@ URL = "/v1/experimental-variograms"
 
 def test_experimental_round_trip(client, rng):
     cols = random_columns(rng, n=150)
-    body = {"samples": cols, "lags": {"width": 10, "count": 5}, "directions": [{"azimuth": 30}, {"azimuth": 120, "tolerance": 30, "bandwidth": 20}]}
+    body = {
+        "samples": cols,
+        "lags": {"width": 10, "count": 5},
+        "directions": [{"azimuth": 30}, {"azimuth": 120, "tolerance": 30, "bandwidth": 20}],
+    }
     r = client.post(URL, json=body)
     assert r.status_code == 200, r.json
     doc = r.json
@@ -38,10 +42,18 @@ def test_same_request_same_bytes_apart_from_timing(client, rng):
 
 def test_geojson_samples(client):
     features = [
-        {"type": "Feature", "id": f"s{i}", "geometry": {"type": "Point", "coordinates": [6.0 + 0.01 * i, 46.0 + 0.005 * (i % 3)]}, "properties": {"lead": 10.0 + i}}
+        {
+            "type": "Feature",
+            "id": f"s{i}",
+            "geometry": {"type": "Point", "coordinates": [6.0 + 0.01 * i, 46.0 + 0.005 * (i % 3)]},
+            "properties": {"lead": 10.0 + i},
+        }
         for i in range(12)
     ]
-    body = {"samples": {"geojson": {"type": "FeatureCollection", "features": features}, "value_property": "lead"}, "lags": {"width": 500, "count": 4}}
+    body = {
+        "samples": {"geojson": {"type": "FeatureCollection", "features": features}, "value_property": "lead"},
+        "lags": {"width": 500, "count": 4},
+    }
     r = client.post(URL, json=body)
     assert r.status_code == 200, r.json
     params = r.json["parameters"]
@@ -53,16 +65,30 @@ def test_geojson_errors_point_into_features(client):
     features = [
         {"type": "Feature", "geometry": {"type": "Point", "coordinates": [0, 0]}, "properties": {"lead": 1}},
         {"type": "Feature", "geometry": {"type": "Point", "coordinates": [1, 0]}, "properties": {"lead": "high"}},
-        {"type": "Feature", "geometry": {"type": "LineString", "coordinates": [[1, 0], [2, 2]]}, "properties": {"lead": 3}},
+        {
+            "type": "Feature",
+            "geometry": {"type": "LineString", "coordinates": [[1, 0], [2, 2]]},
+            "properties": {"lead": 3},
+        },
     ]
-    body = {"samples": {"geojson": {"type": "FeatureCollection", "features": features}, "value_property": "lead"}, "coordinates": "planar"}
+    body = {
+        "samples": {"geojson": {"type": "FeatureCollection", "features": features}, "value_property": "lead"},
+        "coordinates": "planar",
+    }
     r = client.post(URL, json=body)
     assert r.status_code == 422
-    assert [e["pointer"] for e in r.json["errors"]] == ["/samples/geojson/features/1/properties/lead", "/samples/geojson/features/2/geometry"]
+    assert [e["pointer"] for e in r.json["errors"]] == [
+        "/samples/geojson/features/1/properties/lead",
+        "/samples/geojson/features/2/geometry",
+    ]
 
 
 def test_scattergram_in_response(client, rng):
-    body = {"samples": random_columns(rng, n=60), "lags": {"width": 10, "count": 3}, "pairs_for_class": {"class": 1, "limit": 50}}
+    body = {
+        "samples": random_columns(rng, n=60),
+        "lags": {"width": 10, "count": 3},
+        "pairs_for_class": {"class": 1, "limit": 50},
+    }
     doc = client.post(URL, json=body).json
     scatter = doc["pairs_for_class"]
     assert scatter["class"] == 1 and len(scatter["tail"]) == len(scatter["head"]) <= 50
@@ -78,7 +104,11 @@ def test_map_round_trip(client, rng):
 
 
 def test_null_with_reason_never_nan(client):
-    body = {"samples": {"x": [0, 1, 2, 3], "y": [0, 0, 1, 1], "values": [2, 2, 2, 2]}, "statistic": "correlogram", "lags": {"width": 1, "count": 3}}
+    body = {
+        "samples": {"x": [0, 1, 2, 3], "y": [0, 0, 1, 1], "values": [2, 2, 2, 2]},
+        "statistic": "correlogram",
+        "lags": {"width": 1, "count": 3},
+    }
     r = client.post(URL, json=body)
     assert r.status_code == 200
     assert b"NaN" not in r.data and b"Infinity" not in r.data
@@ -96,7 +126,19 @@ def test_problem_types_are_described(client):
     assert r.status_code == 200 and r.json["status"] == 422
 
 
-@pytest.mark.parametrize("statistic", ["semivariance", "semivariance_robust", "semivariance_median", "madogram", "covariance", "covariance_noncentered", "correlogram", "pairwise_relative"])
+@pytest.mark.parametrize(
+    "statistic",
+    [
+        "semivariance",
+        "semivariance_robust",
+        "semivariance_median",
+        "madogram",
+        "covariance",
+        "covariance_noncentered",
+        "correlogram",
+        "pairwise_relative",
+    ],
+)
 def test_every_statistic(client, rng, statistic):
     cols = random_columns(rng, n=60)
     r = client.post(URL, json={"samples": cols, "statistic": statistic})

@@ -26,7 +26,11 @@ class Scripted:
             def do_GET(self):
                 owner.seen_ids.append(self.headers.get("X-Request-ID"))
                 status, headers = owner.answers.pop(0) if owner.answers else (200, {})
-                body = json.dumps({"status": "alive"} if status == 200 else {"type": "/problems/not-ready", "status": status, "detail": "busy"}).encode()
+                body = json.dumps(
+                    {"status": "alive"}
+                    if status == 200
+                    else {"type": "/problems/not-ready", "status": status, "detail": "busy"}
+                ).encode()
                 self.send_response(status)
                 for k, v in headers.items():
                     self.send_header(k, v)

@@ -38,7 +38,9 @@ def test_lists_arrays_and_dataframes_agree(lw, columns):
 
 def test_directions_and_statistic(lw, columns):
     x, y, v = columns
-    result = lw.experimental_variogram(x=x, y=y, values=v, directions=[{"azimuth": 45, "tolerance": 22.5}, {"azimuth": 135}], statistic="madogram")
+    result = lw.experimental_variogram(
+        x=x, y=y, values=v, directions=[{"azimuth": 45, "tolerance": 22.5}, {"azimuth": 135}], statistic="madogram"
+    )
     assert [d.azimuth for d in result.directions] == [45.0, 135.0]
     assert result.parameters["statistic"] == "madogram"
 

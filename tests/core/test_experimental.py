@@ -80,7 +80,11 @@ def test_limits_checked_before_work(rng):
 
 def test_largest_separation_through_hull(rng):
     """Exact largest separation through the convex hull equals the pdist maximum (scipy)."""
-    for coords in (rng.uniform(0, 10, (5000, 2)), rng.uniform(0, 10, (4000, 3)), np.column_stack([np.arange(4000.0), 2 * np.arange(4000.0)])):
+    for coords in (
+        rng.uniform(0, 10, (5000, 2)),
+        rng.uniform(0, 10, (4000, 3)),
+        np.column_stack([np.arange(4000.0), 2 * np.arange(4000.0)]),
+    ):
         assert largest_separation(coords) == pytest.approx(pdist(coords).max(), rel=1e-12)
 
 

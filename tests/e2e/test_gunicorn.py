@@ -35,8 +35,12 @@ def _raw(url: str, request: bytes) -> bytes:
 
 
 def test_post_through_gunicorn(url):
-    body = json.dumps({"samples": {"x": [0, 1, 2, 3, 4], "values": [1, 3, 2, 5, 4]}, "lags": {"edges": [0.5, 1.5, 2.5]}}).encode()
-    request = urllib.request.Request(url + "/v1/experimental-variograms", data=body, headers={"Content-Type": "application/json"})
+    body = json.dumps(
+        {"samples": {"x": [0, 1, 2, 3, 4], "values": [1, 3, 2, 5, 4]}, "lags": {"edges": [0.5, 1.5, 2.5]}}
+    ).encode()
+    request = urllib.request.Request(
+        url + "/v1/experimental-variograms", data=body, headers={"Content-Type": "application/json"}
+    )
     with urllib.request.urlopen(request) as answer:
         doc = json.load(answer)
     assert [c["value"] for c in doc["directions"][0]["classes"]] == [1.875, 1.5]
@@ -57,7 +61,12 @@ def test_oversized_chunked_body_is_refused(url):
 
 
 def test_demo_through_the_sdk(url, tmp_path: Path):
-    out = subprocess.run([sys.executable, "-m", "lagwise.cli", "demo", "--url", url, "--out", str(tmp_path)], capture_output=True, text=True, timeout=300)
+    out = subprocess.run(
+        [sys.executable, "-m", "lagwise.cli", "demo", "--url", url, "--out", str(tmp_path)],
+        capture_output=True,
+        text=True,
+        timeout=300,
+    )
     assert out.returncode == 0, out.stderr
     assert "CAUTION" in out.stdout and "INVENTED" in out.stdout
     report = json.loads((tmp_path / "report.json").read_text())

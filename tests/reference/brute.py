@@ -22,7 +22,9 @@ def pair_table(coords: np.ndarray, values: np.ndarray):
     return i, j, h, pdist(coords)
 
 
-def members(h, d, edges, azimuth=0.0, tolerance=90.0, bandwidth=None, dip=0.0, dip_tolerance=90.0, vertical_bandwidth=None):
+def members(
+    h, d, edges, azimuth=0.0, tolerance=90.0, bandwidth=None, dip=0.0, dip_tolerance=90.0, vertical_bandwidth=None
+):
     """Boolean mask of member pairs, class index and orientation (+1: tail i, head j)."""
     hx, hy, hz = h[:, 0], h[:, 1], h[:, 2]
     hh = np.hypot(hx, hy)
@@ -35,7 +37,9 @@ def members(h, d, edges, azimuth=0.0, tolerance=90.0, bandwidth=None, dip=0.0, d
     az = math.radians(azimuth)
     proj = hx * math.sin(az) + hy * math.cos(az)
     perp = hx * math.cos(az) - hy * math.sin(az)
-    sign = np.where(proj > 0, 1, np.where(proj < 0, -1, np.where(perp > 0, 1, np.where(perp < 0, -1, np.where(hz >= 0, 1, -1)))))
+    sign = np.where(
+        proj > 0, 1, np.where(proj < 0, -1, np.where(perp > 0, 1, np.where(perp < 0, -1, np.where(hz >= 0, 1, -1))))
+    )
     if dip_tolerance < 90.0:
         pair_dip = np.degrees(np.arctan2(-hz * sign, hh))
         gap = np.where(hh == 0, 90.0 - abs(dip), np.abs(pair_dip - dip))

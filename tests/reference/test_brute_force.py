@@ -41,7 +41,9 @@ def test_matches_brute_force(name, statistic, rng):
     cols = [coords[:, a] for a in range(dim)] + [None] * (3 - dim)
     samples = build_sample_set(values, *cols)
     edges = np.array([0.0, 3.0, 7.5, 12.0, 20.0, 26.5, 30.0])
-    result = experimental_variogram(samples, lags=LagRequest(edges=tuple(edges)), directions=directions, statistic=statistic, min_pairs=1)
+    result = experimental_variogram(
+        samples, lags=LagRequest(edges=tuple(edges)), directions=directions, statistic=statistic, min_pairs=1
+    )
     i, j, h, d = pair_table(coords, values)
     for k, direction in enumerate(directions or [DirectionClass(0.0, 90.0)]):
         ok, klass, sign = members(h, d, edges, **direction.__dict__)

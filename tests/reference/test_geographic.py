@@ -64,7 +64,9 @@ def test_azimuths_match_initial_bearing(field_50km):
 
 def test_projection_centre_is_exact():
     """From the projection centre, the projected distance is the haversine distance (Snyder 1987, eq. 25-2)."""
-    samples = build_sample_set(np.array([1.0, 2.0, 3.0]), np.array([10.0, 10.1, 9.9]), np.array([50.0, 50.0, 50.0]), coordinates="geographic")
+    samples = build_sample_set(
+        np.array([1.0, 2.0, 3.0]), np.array([10.0, 10.1, 9.9]), np.array([50.0, 50.0, 50.0]), coordinates="geographic"
+    )
     centre = samples.projection
     x, y = centre.forward(np.array([10.1]), np.array([50.0]))
     assert math.hypot(x[0], y[0]) == pytest.approx(haversine(centre.longitude, centre.latitude, 10.1, 50.0), rel=1e-12)

@@ -21,7 +21,9 @@ DIRECTIONS = [DirectionClass(0.0, 90.0), DirectionClass(40.0, 30.0, 12.0)]
 
 
 def _values(coords, values):
-    result = experimental_variogram(build_sample_set(values, coords[:, 0], coords[:, 1]), lags=LAGS, directions=DIRECTIONS, min_pairs=1)
+    result = experimental_variogram(
+        build_sample_set(values, coords[:, 0], coords[:, 1]), lags=LAGS, directions=DIRECTIONS, min_pairs=1
+    )
     return [(row.pairs, row.value) for d in result.directions for row in d.classes]
 
 
@@ -54,7 +56,7 @@ def test_sample_order(seed):
 
 
 @common
-@given(seeds, st.integers(-10**6, 10**6), st.integers(-10**6, 10**6))
+@given(seeds, st.integers(-(10**6), 10**6), st.integers(-(10**6), 10**6))
 def test_translation(seed, dx, dy):
     _, coords, values = _data(seed)
     _same(_values(coords, values), _values(coords + [dx, dy], values))

@@ -34,14 +34,18 @@ def test_cressie_hawkins_hand_example():
     Differences at lag 1 of 0, 4, 0, 9, 1 (values 0, 0, 4, 4, 13, 12) are |d| = 0, 4, 0, 9, 1:
     mean root = (0 + 2 + 0 + 3 + 1) / 5 = 1.2; 1.2^4 = 2.0736; gamma = 2.0736 / (2 (0.457 + 0.0988))."""
     samples = _transect([0.0, 0.0, 4.0, 4.0, 13.0, 12.0])
-    result = experimental_variogram(samples, lags=LagRequest(edges=(0.5, 1.5)), statistic="semivariance_robust", min_pairs=1)
+    result = experimental_variogram(
+        samples, lags=LagRequest(edges=(0.5, 1.5)), statistic="semivariance_robust", min_pairs=1
+    )
     assert result.directions[0].classes[0].value == pytest.approx(2.0736 / (2 * (0.457 + 0.494 / 5)), rel=1e-14)
 
 
 def test_dowd_median_hand_example():
     """Dowd (1984): 2 gamma = 2.198 median(|d|)^2. Same differences, median |d| = 1: gamma = 1.099."""
     samples = _transect([0.0, 0.0, 4.0, 4.0, 13.0, 12.0])
-    result = experimental_variogram(samples, lags=LagRequest(edges=(0.5, 1.5)), statistic="semivariance_median", min_pairs=1)
+    result = experimental_variogram(
+        samples, lags=LagRequest(edges=(0.5, 1.5)), statistic="semivariance_median", min_pairs=1
+    )
     assert result.directions[0].classes[0].value == pytest.approx(1.099, rel=1e-14)
 
 
@@ -54,7 +58,9 @@ def test_robust_estimators_close_to_classical_on_gaussian_data():
     samples = build_sample_set(rng.normal(0, 2.0, 3000), x, y)
     lags = LagRequest(width=50.0, count=4)
     for statistic in ("semivariance", "semivariance_robust", "semivariance_median"):
-        values = [row.value for row in experimental_variogram(samples, lags=lags, statistic=statistic).directions[0].classes]
+        values = [
+            row.value for row in experimental_variogram(samples, lags=lags, statistic=statistic).directions[0].classes
+        ]
         assert values == pytest.approx([4.0] * 4, rel=0.06), statistic
 
 

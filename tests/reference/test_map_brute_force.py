@@ -13,7 +13,9 @@ def test_map_matches_brute_force(statistic, rng):
     coords = rng.uniform(0, 40, (120, 2))
     values = rng.normal(3, 1, 120)
     s, k = 4.0, 4
-    result = variogram_map(build_sample_set(values, coords[:, 0], coords[:, 1]), cell_size=s, cells=k, statistic=statistic)
+    result = variogram_map(
+        build_sample_set(values, coords[:, 0], coords[:, 1]), cell_size=s, cells=k, statistic=statistic
+    )
     i, j = np.triu_indices(120, k=1)
     h = coords[j] - coords[i]
     # Each pair as h (tail i, head j) and as -h (tail j, head i).

@@ -50,11 +50,18 @@ def _feature_columns(collection, value_property: str, id_property: str | None):
     for i, feature in enumerate(collection["features"]):
         geometry = feature.get("geometry") if isinstance(feature, dict) else None
         coordinates = geometry.get("coordinates") if isinstance(geometry, dict) else None
-        if not isinstance(geometry, dict) or geometry.get("type") != "Point" or not isinstance(coordinates, list) or len(coordinates) not in (2, 3):
+        if (
+            not isinstance(geometry, dict)
+            or geometry.get("type") != "Point"
+            or not isinstance(coordinates, list)
+            or len(coordinates) not in (2, 3)
+        ):
             issues.append(FieldIssue(f"{FEATURES}/{i}/geometry", "must be a Point with 2 or 3 coordinates"))
             continue
         numbers = [_number(c) for c in coordinates]
-        issues.extend(FieldIssue(pointer_for("xyz"[a], i), "not a finite number") for a, c in enumerate(numbers) if c is None)
+        issues.extend(
+            FieldIssue(pointer_for("xyz"[a], i), "not a finite number") for a, c in enumerate(numbers) if c is None
+        )
         properties = feature.get("properties") or {}
         value = _number(properties.get(value_property)) if isinstance(properties, dict) else None
         if value is None:
@@ -79,7 +86,9 @@ def sample_set(document: dict) -> SampleSet:
     """Build the :class:`SampleSet` of a request (columnar or GeoJSON samples)."""
     samples = document["samples"]
     if "geojson" in samples:
-        columns, has_z, pointer_for = _feature_columns(samples["geojson"], samples["value_property"], samples.get("id_property"))
+        columns, has_z, pointer_for = _feature_columns(
+            samples["geojson"], samples["value_property"], samples.get("id_property")
+        )
         return build_sample_set(
             np.array(columns["values"], dtype=np.float64),
             np.array(columns["x"], dtype=np.float64),

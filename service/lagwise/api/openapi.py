@@ -54,7 +54,14 @@ def build_spec() -> APISpec:
             body = {"requestBody": {"required": True, "content": {"application/json": {"schema": op.request}}}}
         spec.path(
             path=op.path,
-            operations={op.method.lower(): {"operationId": op.operation_id, "summary": op.summary, **body, "responses": responses}},
+            operations={
+                op.method.lower(): {
+                    "operationId": op.operation_id,
+                    "summary": op.summary,
+                    **body,
+                    "responses": responses,
+                }
+            },
         )
     return spec
 

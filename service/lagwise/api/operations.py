@@ -72,9 +72,11 @@ def with_provenance(document: dict, input_sha256: str) -> Response:
 
 
 @operation(
-    "/v1/experimental-variograms", "POST",
+    "/v1/experimental-variograms",
+    "POST",
     "Experimental variogram (or another class statistic) per direction class",
-    ExperimentalRequest, ExperimentalResponse,
+    ExperimentalRequest,
+    ExperimentalResponse,
 )
 def experimental_variograms():
     document = load_json(ExperimentalRequest())
@@ -91,7 +93,9 @@ def experimental_variograms():
     return with_provenance(serialize.experimental(result, samples), samples.input_hash)
 
 
-@operation("/v1/variogram-maps", "POST", "Variogram map: a statistic on a grid of separation vectors", MapRequest, MapResponse)
+@operation(
+    "/v1/variogram-maps", "POST", "Variogram map: a statistic on a grid of separation vectors", MapRequest, MapResponse
+)
 def variogram_maps():
     document = load_json(MapRequest())
     samples = convert.sample_set(document)
@@ -122,4 +126,6 @@ def problem_kind(kind: str):
     if kind not in KINDS:
         raise Problem("not-found", f"no problem type named {kind!r}")
     k = KINDS[kind]
-    return json_response({"type": f"/problems/{kind}", "title": k.title, "status": k.status, "description": k.description})
+    return json_response(
+        {"type": f"/problems/{kind}", "title": k.title, "status": k.status, "description": k.description}
+    )

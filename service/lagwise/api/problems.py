@@ -27,16 +27,26 @@ class ProblemKind:
 
 
 KINDS = {
-    "malformed-json": ProblemKind(400, "Malformed JSON", "The body is not strict JSON (RFC 8259): NaN and Infinity literals, invalid UTF-8 and nesting deeper than 1024 levels are refused."),
+    "malformed-json": ProblemKind(
+        400,
+        "Malformed JSON",
+        "The body is not strict JSON (RFC 8259): NaN and Infinity literals, invalid UTF-8 and nesting deeper than 1024 levels are refused.",
+    ),
     "unauthorized": ProblemKind(401, "Unauthorized", "A valid API key is required (Authorization: Bearer <key>)."),
     "not-found": ProblemKind(404, "Not found", "No resource at this path."),
     "method-not-allowed": ProblemKind(405, "Method not allowed", "This path does not accept this method."),
     "body-too-large": ProblemKind(413, "Body too large", "The body exceeds LAGWISE_MAX_BODY_BYTES."),
     "unsupported-media-type": ProblemKind(415, "Unsupported media type", "Send Content-Type: application/json."),
-    "invalid-input": ProblemKind(422, "Invalid input", "One or more fields are invalid; see errors for each field and sample index."),
-    "limit-exceeded": ProblemKind(422, "Limit exceeded", "The request is valid but would cost more than a configured limit allows."),
+    "invalid-input": ProblemKind(
+        422, "Invalid input", "One or more fields are invalid; see errors for each field and sample index."
+    ),
+    "limit-exceeded": ProblemKind(
+        422, "Limit exceeded", "The request is valid but would cost more than a configured limit allows."
+    ),
     "not-ready": ProblemKind(503, "Not ready", "The service is starting or stopping; retry shortly."),
-    "internal-error": ProblemKind(500, "Internal error", "An unexpected error; this is a bug, please report it with the request id."),
+    "internal-error": ProblemKind(
+        500, "Internal error", "An unexpected error; this is a bug, please report it with the request id."
+    ),
 }
 
 

@@ -66,10 +66,16 @@ def load_json(schema: Schema) -> dict:
     except MalformedJSON as exc:
         raise Problem("malformed-json", str(exc)) from None
     if not isinstance(document, dict):
-        raise Problem("invalid-input", "the body must be a JSON object", [{"pointer": "", "detail": "must be a JSON object"}])
+        raise Problem(
+            "invalid-input", "the body must be a JSON object", [{"pointer": "", "detail": "must be a JSON object"}]
+        )
     try:
         return schema.load(document)
     except ValidationError as exc:
         errors = _pointers(exc.messages)
-        detail = f"{errors[0]['pointer']}: {errors[0]['detail']}" if len(errors) == 1 else f"{len(errors)} fields are invalid"
+        detail = (
+            f"{errors[0]['pointer']}: {errors[0]['detail']}"
+            if len(errors) == 1
+            else f"{len(errors)} fields are invalid"
+        )
         raise Problem("invalid-input", detail, errors) from None

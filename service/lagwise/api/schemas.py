@@ -26,12 +26,18 @@ class SamplesSchema(Schema):
 
     x = NumberArray(metadata={"description": "Easting, or longitude in degrees for geographic coordinates."})
     y = NumberArray(metadata={"description": "Northing, or latitude in degrees; makes the set 2-D."})
-    z = NumberArray(metadata={"description": "Elevation, positive up, same unit as x and y (metres for geographic); makes the set 3-D."})
+    z = NumberArray(
+        metadata={
+            "description": "Elevation, positive up, same unit as x and y (metres for geographic); makes the set 3-D."
+        }
+    )
     values = NumberArray(metadata={"description": "Measured values."})
     ids = fields.List(fields.String(), metadata={"description": "Sample identifiers echoed in per-sample outputs."})
     geojson = fields.Dict(metadata={"description": "A GeoJSON FeatureCollection (RFC 7946) of Point features."})
     value_property = fields.String(metadata={"description": "Feature property holding the value (GeoJSON input)."})
-    id_property = fields.String(metadata={"description": "Feature property holding the identifier (GeoJSON input; default the feature id)."})
+    id_property = fields.String(
+        metadata={"description": "Feature property holding the identifier (GeoJSON input; default the feature id)."}
+    )
 
     @validates_schema
     def _one_layout(self, data, **kwargs):
@@ -65,7 +71,9 @@ class SampleOptions(Schema):
 class LagsSchema(Schema):
     """Distance classes: width and count, explicit edges, or auto."""
 
-    width = finite(validate=validate.Range(min=0, min_inclusive=False), metadata={"description": "Class width, coordinate units."})
+    width = finite(
+        validate=validate.Range(min=0, min_inclusive=False), metadata={"description": "Class width, coordinate units."}
+    )
     count = fields.Integer(strict=True, validate=validate.Range(min=1, max=MAX_CLASSES))
     edges = fields.List(finite(), validate=validate.Length(min=2, max=MAX_CLASSES + 1))
     auto = fields.String(validate=validate.OneOf(AUTO_METHODS))
@@ -76,7 +84,9 @@ class DirectionSchema(Schema):
 
     azimuth = finite(load_default=0.0, validate=validate.Range(min=0, max=360, max_inclusive=False))
     tolerance = finite(load_default=22.5, validate=validate.Range(min=0, max=90, min_inclusive=False))
-    bandwidth = finite(load_default=None, allow_none=True, metadata={"description": "Largest perpendicular offset; null: no limit."})
+    bandwidth = finite(
+        load_default=None, allow_none=True, metadata={"description": "Largest perpendicular offset; null: no limit."}
+    )
     dip = finite(load_default=0.0, validate=validate.Range(min=-90, max=90))
     dip_tolerance = finite(load_default=90.0, validate=validate.Range(min=0, max=90, min_inclusive=False))
     vertical_bandwidth = finite(load_default=None, allow_none=True)
@@ -117,7 +127,9 @@ class ProvenanceSchema(Schema):
     numpy = fields.String()
     scipy = fields.String()
     numba = fields.String()
-    input_sha256 = fields.String(metadata={"description": "SHA-256 of the little-endian float64 bytes of x, y, z and values as parsed."})
+    input_sha256 = fields.String(
+        metadata={"description": "SHA-256 of the little-endian float64 bytes of x, y, z and values as parsed."}
+    )
     elapsed_ms = fields.Float()
 
 
@@ -181,7 +193,10 @@ class ExperimentalResponse(ResultEnvelope):
 class MapResponse(ResultEnvelope):
     hx = fields.List(fields.Float())
     hy = fields.List(fields.Float())
-    values = fields.List(fields.List(fields.Float(allow_none=True)), metadata={"description": "Rows by hy, columns by hx; null for empty cells."})
+    values = fields.List(
+        fields.List(fields.Float(allow_none=True)),
+        metadata={"description": "Rows by hy, columns by hx; null for empty cells."},
+    )
     pairs = fields.List(fields.List(fields.Integer()))
     summary = fields.Nested(SummarySchema)
 

@@ -61,9 +61,7 @@ class DirectionClass:
         """Resolved parameters for the audit trail (null = no limit)."""
         out = {"azimuth": self.azimuth, "tolerance": self.tolerance, "bandwidth": self.bandwidth}
         if dimension == 3:
-            out.update(
-                dip=self.dip, dip_tolerance=self.dip_tolerance, vertical_bandwidth=self.vertical_bandwidth
-            )
+            out.update(dip=self.dip, dip_tolerance=self.dip_tolerance, vertical_bandwidth=self.vertical_bandwidth)
         return out
 
 
@@ -102,7 +100,9 @@ def validate_direction(raw: DirectionClass, index: int, dimension: int) -> tuple
         vertical_bandwidth=raw.vertical_bandwidth,
     )
     if dimension < 3 and (raw.dip != 0.0 or raw.dip_tolerance != 90.0 or raw.vertical_bandwidth is not None):
-        warnings.append(f"direction {index}: dip, dip_tolerance and vertical_bandwidth apply to 3-D samples only; ignored")
+        warnings.append(
+            f"direction {index}: dip, dip_tolerance and vertical_bandwidth apply to 3-D samples only; ignored"
+        )
         resolved = DirectionClass(resolved.azimuth, resolved.tolerance, resolved.bandwidth)
     if dimension == 1 and (raw.tolerance != 90.0 or raw.bandwidth is not None):
         warnings.append(f"direction {index}: 1-D samples have one direction; azimuth, tolerance and bandwidth ignored")
@@ -124,7 +124,11 @@ def direction_table(directions: list[DirectionClass]) -> np.ndarray:
         table[k, BAND2] = math.inf if d.bandwidth is None else d.bandwidth**2
         table[k, HAS_DIP] = 1.0 if d.dip_tolerance < 90.0 else 0.0
         table[k, DIP], table[k, DIP_TOL] = dip, math.radians(d.dip_tolerance) + 1e-12
-        table[k, WX], table[k, WY], table[k, WZ] = math.sin(az) * math.sin(dip), math.cos(az) * math.sin(dip), math.cos(dip)
+        table[k, WX], table[k, WY], table[k, WZ] = (
+            math.sin(az) * math.sin(dip),
+            math.cos(az) * math.sin(dip),
+            math.cos(dip),
+        )
         table[k, VBAND2] = math.inf if d.vertical_bandwidth is None else d.vertical_bandwidth**2
         # Squared cosine for the fast kernel's test proj^2 >= |h|^2 cos^2 (0 admits every pair).
         table[k, COS2_TOL] = table[k, COS_TOL] ** 2 if table[k, COS_TOL] > 0.0 else 0.0

@@ -281,7 +281,9 @@ def _class_warnings(results, min_pairs, summary) -> list[str]:
     for k, result in enumerate(results):
         sparse = sum(row.sparse for row in result.classes)
         if sparse:
-            warnings.append(f"direction {k}: {sparse} of {len(result.classes)} classes hold fewer than {min_pairs} pairs")
+            warnings.append(
+                f"direction {k}: {sparse} of {len(result.classes)} classes hold fewer than {min_pairs} pairs"
+            )
     if summary.variance == 0.0:
         warnings.append("all values are equal: semivariances are 0 and correlations are undefined")
     return warnings

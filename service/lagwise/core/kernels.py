@@ -234,7 +234,9 @@ def accumulate_horizontal(pts, vals, mean, max_d2, dirs, padded, lut, inv_cell, 
                                 b -= np.int64(padded[k, b + 1] > d)
                                 b = b if (b >= 0) & (padded[k, b + 2] < np.inf) & (d2 > 0.0) & (d2 <= max_d2) else kmax
                             if mode == MODE_COVARIANCE:
-                                forward = (proj > 0.0) | ((proj == 0.0) & ((perp > 0.0) | ((perp == 0.0) & (dz >= 0.0))))
+                                forward = (proj > 0.0) | (
+                                    (proj == 0.0) & ((perp > 0.0) | ((perp == 0.0) & (dz >= 0.0)))
+                                )
                                 tail = vi if forward else vj
                                 head = vj if forward else vi
                                 add_pair(table, k * stride + b, d, tail, head, mode, mean)
@@ -249,7 +251,9 @@ def accumulate_horizontal(pts, vals, mean, max_d2, dirs, padded, lut, inv_cell, 
 
 
 @njit(cache=True)
-def collect_pairs(pts, vals, max_d2, dirs, edges, nk, inv_width, offsets, ends, out_abs, target, stride, out_tail, out_head):
+def collect_pairs(
+    pts, vals, max_d2, dirs, edges, nk, inv_width, offsets, ends, out_abs, target, stride, out_tail, out_head
+):
     """Serial pass that copies pair values out of the accumulators' reach.
 
     When ``out_abs`` is non-empty, |head - tail| of every member pair is written at

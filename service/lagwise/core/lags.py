@@ -54,7 +54,11 @@ def validate_lags(request: LagRequest) -> np.ndarray | None:
 
     Raises :class:`InvalidInput` naming ``/lags/<field>``.
     """
-    given = [request.edges is not None, request.width is not None or request.count is not None, request.auto is not None]
+    given = [
+        request.edges is not None,
+        request.width is not None or request.count is not None,
+        request.auto is not None,
+    ]
     if sum(given) > 1:
         raise InvalidInput.at("/lags", "give exactly one of: width and count, edges, or auto")
     if request.edges is not None:

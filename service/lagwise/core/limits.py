@@ -41,8 +41,11 @@ class Limits:
         """Refuse more than ``max_samples`` samples."""
         if n > self.max_samples:
             raise LimitExceeded(
-                "LAGWISE_MAX_SAMPLES", self.max_samples, n,
-                "Send fewer samples per request (thin or split the data set).", "/samples",
+                "LAGWISE_MAX_SAMPLES",
+                self.max_samples,
+                n,
+                "Send fewer samples per request (thin or split the data set).",
+                "/samples",
             )
 
     def check_pairs(self, pairs: int, directions: int, pointer: str = "/lags") -> None:
@@ -50,15 +53,21 @@ class Limits:
         cost = pairs * max(directions, 1)
         if cost > self.max_pairs:
             raise LimitExceeded(
-                "LAGWISE_MAX_PAIRS", self.max_pairs, cost,
-                "Shorten the largest distance class, use fewer direction classes or fewer samples.", pointer,
+                "LAGWISE_MAX_PAIRS",
+                self.max_pairs,
+                cost,
+                "Shorten the largest distance class, use fewer direction classes or fewer samples.",
+                pointer,
             )
 
     def check_median_pairs(self, pairs: int) -> None:
         """Refuse a median-based estimate that would hold more than ``max_median_pairs`` differences."""
         if pairs > self.max_median_pairs:
             raise LimitExceeded(
-                "LAGWISE_MAX_MEDIAN_PAIRS", self.max_median_pairs, pairs,
+                "LAGWISE_MAX_MEDIAN_PAIRS",
+                self.max_median_pairs,
+                pairs,
                 "The median-based estimator keeps every difference in memory; use 'semivariance_robust' "
-                "or shorten the largest distance class.", "/statistic",
+                "or shorten the largest distance class.",
+                "/statistic",
             )

@@ -99,11 +99,15 @@ def variogram_map(
     limits.check_pairs(estimate_pairs_within(samples.coords[:, :2], reach * math.sqrt(2.0)), 2, "/cells")
     prepared = prepare(samples.coords, samples.values)
     mode = ACCUMULATION_MODE[statistic]
-    table = K.accumulate_map(prepared.points, prepared.values, prepared.mean, cell_size, cells, mode, numba.get_num_threads())
+    table = K.accumulate_map(
+        prepared.points, prepared.values, prepared.mean, cell_size, cells, mode, numba.get_num_threads()
+    )
     width = 2 * cells + 1
     counts = table[:, K.COUNT].astype(np.int64)
     medians = _cell_medians(statistic, prepared, cell_size, cells, counts, limits)
-    flat = [class_value(statistic, table[b], prepared.mean, prepared.scale, medians[b]).value for b in range(width * width)]
+    flat = [
+        class_value(statistic, table[b], prepared.mean, prepared.scale, medians[b]).value for b in range(width * width)
+    ]
     centres = cell_size * np.arange(-cells, cells + 1, dtype=np.float64)
     warnings = list(samples.warnings)
     if samples.dimension == 3:

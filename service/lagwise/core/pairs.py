@@ -133,8 +133,14 @@ def layout(directions: list[DirectionClass], edges_per_direction: list[np.ndarra
     lookup = np.array([np.searchsorted(e, starts, side="right") - 1 for e in edges_per_direction], dtype=np.int64)
     shared = all(np.array_equal(e, edges_per_direction[0]) for e in edges_per_direction)
     return ClassLayout(
-        edges=edges, counts=counts, inv_width=inv_width, table=direction_table(directions),
-        padded=padded, lookup=lookup, inv_cell=cells / radius, shared=shared,
+        edges=edges,
+        counts=counts,
+        inv_width=inv_width,
+        table=direction_table(directions),
+        padded=padded,
+        lookup=lookup,
+        inv_cell=cells / radius,
+        shared=shared,
     )
 
 
@@ -143,8 +149,17 @@ def accumulate(prepared: PreparedSamples, classes: ClassLayout, mode: int) -> tu
     radius = classes.search_radius
     if classes.horizontal:
         table, colocated = K.accumulate_horizontal(
-            prepared.points, prepared.values, prepared.mean, radius * radius, classes.table, classes.padded,
-            classes.lookup, classes.inv_cell, classes.shared, mode, numba.get_num_threads(),
+            prepared.points,
+            prepared.values,
+            prepared.mean,
+            radius * radius,
+            classes.table,
+            classes.padded,
+            classes.lookup,
+            classes.inv_cell,
+            classes.shared,
+            mode,
+            numba.get_num_threads(),
         )
         return table.reshape(classes.table.shape[0], classes.kmax, K.ACCUMULATORS), int(colocated)
     table, colocated = K.accumulate_classes(
@@ -174,8 +189,20 @@ def absolute_differences(prepared: PreparedSamples, classes: ClassLayout, counts
     radius = classes.search_radius
     tail, head = _no_scatter()
     K.collect_pairs(
-        prepared.points, prepared.values, radius * radius, classes.table, classes.edges,
-        classes.counts, classes.inv_width, starts.copy(), starts + flat, out, -1, 1, tail, head,
+        prepared.points,
+        prepared.values,
+        radius * radius,
+        classes.table,
+        classes.edges,
+        classes.counts,
+        classes.inv_width,
+        starts.copy(),
+        starts + flat,
+        out,
+        -1,
+        1,
+        tail,
+        head,
     )
     return [out[s : s + c] for s, c in zip(starts, flat, strict=False)]
 
@@ -190,9 +217,20 @@ def scatter_pairs(prepared: PreparedSamples, classes: ClassLayout, bin_index: in
     tail, head = np.empty(limit), np.empty(limit)
     radius = classes.search_radius
     written = K.collect_pairs(
-        prepared.points, prepared.values, radius * radius, classes.table, classes.edges,
-        classes.counts, classes.inv_width, np.zeros(0, dtype=np.int64), np.zeros(0, dtype=np.int64), np.zeros(0),
-        bin_index, stride, tail, head,
+        prepared.points,
+        prepared.values,
+        radius * radius,
+        classes.table,
+        classes.edges,
+        classes.counts,
+        classes.inv_width,
+        np.zeros(0, dtype=np.int64),
+        np.zeros(0, dtype=np.int64),
+        np.zeros(0),
+        bin_index,
+        stride,
+        tail,
+        head,
     )
     return tail[:written] + prepared.mean, head[:written] + prepared.mean, stride
 

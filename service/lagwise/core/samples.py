@@ -121,9 +121,7 @@ def _check_columns(x, y, z, values, ids, coordinates, pointer_for) -> None:
         issues.append(FieldIssue(pointer_for("values", None), f"needs at least 2 samples, got {n}"))
     for name, column in (("x", x), ("y", y), ("z", z)):
         if column is not None and len(column) != n:
-            issues.append(
-                FieldIssue(pointer_for(name, None), f"has {len(column)} entries but values has {n}")
-            )
+            issues.append(FieldIssue(pointer_for(name, None), f"has {len(column)} entries but values has {n}"))
     if ids is not None and len(ids) != n:
         issues.append(FieldIssue(pointer_for("ids", None), f"has {len(ids)} entries but values has {n}"))
     if z is not None and y is None:
@@ -227,7 +225,9 @@ def build_sample_set(
     coords = np.column_stack(columns)
     given_ids = tuple(str(i) for i in ids) if ids is not None else tuple(str(i) for i in range(len(values)))
 
-    coords, values, kept_ids, source_index, report = _resolve_duplicates(coords, values, given_ids, duplicates, pointer_for)
+    coords, values, kept_ids, source_index, report = _resolve_duplicates(
+        coords, values, given_ids, duplicates, pointer_for
+    )
     if report.locations:
         action = "averaged" if duplicates == "average" else "kept the first of"
         warnings.append(
@@ -235,7 +235,9 @@ def build_sample_set(
             f"({report.removed} samples removed by the '{duplicates}' duplicates policy)"
         )
     if values.size < 2:
-        raise InvalidInput.at(pointer_for("x", None), "all samples are at one location; at least two locations are needed")
+        raise InvalidInput.at(
+            pointer_for("x", None), "all samples are at one location; at least two locations are needed"
+        )
     if projection is not None:
         span = float(np.max(np.ptp(coords[:, :2], axis=0)))
         if span > ACCURATE_SPAN_M:

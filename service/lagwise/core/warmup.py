@@ -33,7 +33,9 @@ def warm_kernels() -> None:
     for statistic in STATISTICS:
         experimental_variogram(samples, statistic=statistic, directions=[DirectionClass(30.0, 30.0, 5.0)])
         variogram_map(samples, cell_size=2.0, cells=2, statistic=statistic)
-    experimental_variogram(samples, lags=LagRequest(edges=(0.0, 1.0, 3.0, 6.0)), pairs_for_class=ScatterRequest(0, 1, 5))
+    experimental_variogram(
+        samples, lags=LagRequest(edges=(0.0, 1.0, 3.0, 6.0)), pairs_for_class=ScatterRequest(0, 1, 5)
+    )
     _warm = True
 
 
@@ -46,5 +48,7 @@ def compile_kernels() -> None:
     K.accumulate_classes.compile(f"({a2}, {a1}, {f8}, {f8}, {a2}, {a2}, {i8}[::1], {a1}, {i8}, {i8})")
     K.accumulate_map.compile(f"({a2}, {a1}, {f8}, {f8}, {i8}, {i8}, {i8})")
     K.accumulate_horizontal.compile(f"({a2}, {a1}, {f8}, {f8}, {a2}, {a2}, {i8}[:, ::1], {f8}, boolean, {i8}, {i8})")
-    K.collect_pairs.compile(f"({a2}, {a1}, {f8}, {a2}, {a2}, {i8}[::1], {a1}, {i8}[::1], {i8}[::1], {a1}, {i8}, {i8}, {a1}, {a1})")
+    K.collect_pairs.compile(
+        f"({a2}, {a1}, {f8}, {a2}, {a2}, {i8}[::1], {a1}, {i8}[::1], {i8}[::1], {a1}, {i8}, {i8}, {a1}, {a1})"
+    )
     K.collect_map_differences.compile(f"({a2}, {a1}, {f8}, {i8}, {i8}[::1], {i8}[::1], {a1})")
