@@ -175,6 +175,32 @@ def accumulate_classes(pts, vals, mean, max_d2, dirs, edges, nk, inv_width, mode
     return tables.sum(axis=0), colocated.sum()
 
 
+@njit(cache=True, inline="always")
+def class_in(c, k, shared, lut, padded, m, d, d2, max_d2, kmax):
+    """Class of a pair in direction k: the shared class c, or looked up in k's own edges."""
+    if shared:
+        return c
+    b = lut[k, m]
+    b += np.int64(padded[k, b + 2] <= d)
+    b -= np.int64(padded[k, b + 1] > d)
+    return b if (b >= 0) & (padded[k, b + 2] < np.inf) & (d2 > 0.0) & (d2 <= max_d2) else kmax
+
+
+@njit(cache=True, inline="always")
+def add_oriented(table, b, d, vi, vj, dx, dy, dz, dirs, k, mode, mean):
+    """Add a pair to bin b, oriented along direction k when the statistic needs tail and head."""
+    if mode == MODE_COVARIANCE:
+        proj = dx * dirs[k, 0] + dy * dirs[k, 1]
+        perp = dx * dirs[k, 1] - dy * dirs[k, 0]
+        forward = (proj > 0.0) | ((proj == 0.0) & ((perp > 0.0) | ((perp == 0.0) & (dz >= 0.0))))
+        if forward:
+            add_pair(table, b, d, vi, vj, mode, mean)
+        else:
+            add_pair(table, b, d, vj, vi, mode, mean)
+    else:
+        add_pair(table, b, d, vi, vj, mode, mean)
+
+
 @njit(parallel=True, cache=True)
 def accumulate_horizontal(pts, vals, mean, max_d2, dirs, padded, lut, inv_cell, shared, mode, nthreads):
     """Fast path of :func:`accumulate_classes` for classes without dip or vertical band.
@@ -185,9 +211,11 @@ def accumulate_horizontal(pts, vals, mean, max_d2, dirs, padded, lut, inv_cell, 
     ``searchsorted(edges_k, d, "right") - 1``. ``shared`` means every direction has
     the same edges, so the class is looked up once per pair.
 
-    Distances outside the classes go to a dropped bin ``kmax`` instead of taking an
-    unpredictable branch; direction membership does branch, which measured faster
-    than adding every pair to every direction. Returns the table (ndir * kmax, ACCUMULATORS) and co-located pairs.
+    Distances inside the search radius but outside the classes go to a dropped bin
+    ``kmax``; for direction membership every direction's margin is computed and the
+    pair is added once to the best, which is exact whenever at most one direction
+    admits the pair (disjoint or touching sectors), and the rare pairs admitted by
+    several directions take a slower loop. Returns the table (ndir * kmax, ACCUMULATORS) and co-located pairs.
     """
     n = pts.shape[0]
     ndir = dirs.shape[0]
@@ -213,6 +241,8 @@ def accumulate_horizontal(pts, vals, mean, max_d2, dirs, padded, lut, inv_cell, 
                     dy = pts[j, 1] - yi
                     dz = pts[j, 2] - zi
                     d2 = dx * dx + dy * dy + dz * dz
+                    if d2 > max_d2:
+                        continue
                     zero_pairs += np.int64(d2 == 0.0)
                     d = math.sqrt(d2)
                     vj = vals[j]
@@ -223,25 +253,31 @@ def accumulate_horizontal(pts, vals, mean, max_d2, dirs, padded, lut, inv_cell, 
                     c -= np.int64(padded[0, c + 1] > d)
                     # Out-of-class and co-located pairs go to the dropped bin kmax.
                     c = c if (c >= 0) & (padded[0, c + 2] < np.inf) & (d2 > 0.0) & (d2 <= max_d2) else kmax
+                    # Margin of each direction test (>= 0: member); usually exactly one
+                    # direction passes, so the pair is added once without a branch.
+                    passes = 0
+                    best = 0
+                    best_margin = -1.0
                     for k in range(ndir):
                         proj = dx * dirs[k, 0] + dy * dirs[k, 1]
                         perp = dx * dirs[k, 1] - dy * dirs[k, 0]
-                        if (proj * proj >= hh2 * dirs[k, 11]) & (perp * perp <= dirs[k, 3]):
-                            b = c
-                            if not shared:
-                                b = lut[k, m]
-                                b += np.int64(padded[k, b + 2] <= d)
-                                b -= np.int64(padded[k, b + 1] > d)
-                                b = b if (b >= 0) & (padded[k, b + 2] < np.inf) & (d2 > 0.0) & (d2 <= max_d2) else kmax
-                            if mode == MODE_COVARIANCE:
-                                forward = (proj > 0.0) | (
-                                    (proj == 0.0) & ((perp > 0.0) | ((perp == 0.0) & (dz >= 0.0)))
-                                )
-                                tail = vi if forward else vj
-                                head = vj if forward else vi
-                                add_pair(table, k * stride + b, d, tail, head, mode, mean)
-                            else:
-                                add_pair(table, k * stride + b, d, vi, vj, mode, mean)
+                        margin = proj * proj - hh2 * dirs[k, 11]
+                        margin = margin if perp * perp <= dirs[k, 3] else -1.0
+                        passes += np.int64(margin >= 0.0)
+                        better = margin > best_margin
+                        best = k if better else best
+                        best_margin = margin if better else best_margin
+                    if passes <= 1:
+                        b = class_in(c, best, shared, lut, padded, m, d, d2, max_d2, kmax)
+                        b = b if passes == 1 else kmax
+                        add_oriented(table, best * stride + b, d, vi, vj, dx, dy, dz, dirs, best, mode, mean)
+                    else:
+                        for k in range(ndir):
+                            proj = dx * dirs[k, 0] + dy * dirs[k, 1]
+                            perp = dx * dirs[k, 1] - dy * dirs[k, 0]
+                            if (proj * proj - hh2 * dirs[k, 11] >= 0.0) & (perp * perp <= dirs[k, 3]):
+                                b = class_in(c, k, shared, lut, padded, m, d, d2, max_d2, kmax)
+                                add_oriented(table, k * stride + b, d, vi, vj, dx, dy, dz, dirs, k, mode, mean)
         colocated[t] = zero_pairs
     out = tables.sum(axis=0)
     result = np.zeros((ndir * kmax, ACCUMULATORS))

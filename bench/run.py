@@ -1,0 +1,23 @@
+"""Run the benchmarks: ``python3 manage.py bench [variogram]``."""
+
+from __future__ import annotations
+
+import sys
+from pathlib import Path
+
+sys.path.insert(0, str(Path(__file__).resolve().parent))
+
+import variogram  # noqa: E402
+
+SUITES = {"variogram": variogram.main}
+
+
+def main(argv):
+    names = argv or list(SUITES)
+    for name in names:
+        print(f"== {name} ==", flush=True)
+        SUITES[name]()
+
+
+if __name__ == "__main__":
+    main(sys.argv[1:])
