@@ -1,0 +1,414 @@
+"""Fitting variogram models to experimental classes by bounded weighted least squares.
+
+Residuals r_i = sqrt(w_i) (gamma(h_i; theta) - gamma_hat_i) are minimised with
+``scipy.optimize.least_squares`` (trust region reflective, bounds on every
+parameter) from several data-driven starting points. Weights (normalised to mean 1):
+
+* ``pairs``: N(h) (common practice);
+* ``pairs_over_distance``: N(h) / h^2 (common practice);
+* ``cressie``: N(h) / gamma(h; theta)^2, Cressie (1985), Math. Geology 17(5), iterated:
+  the weights are recomputed from the last fit until the parameters settle, so that
+  at the optimum the objective is sum N(h) [gamma_hat(h) / gamma(h; theta) - 1]^2;
+* ``uniform``: 1.
+
+Candidates are ranked by the corrected Akaike information criterion of a weighted
+least-squares fit, AICc = n ln(S/n) + 2p + 2p(p+1)/(n-p-1) (Hurvich & Tsai 1989),
+with S the weighted residual sum of squares, n the classes used and p the fitted
+parameters: extra structures and a nugget must earn their place.
+"""
+
+from __future__ import annotations
+
+import math
+import warnings as python_warnings
+from dataclasses import dataclass, field
+
+import numpy as np
+from scipy.optimize import least_squares
+
+from .errors import FieldIssue, InvalidInput
+from .models import BOUNDED_FAMILIES, FAMILIES, Anisotropy, Structure, VariogramModel
+
+WEIGHTINGS = ("pairs", "pairs_over_distance", "cressie", "uniform")
+NESTED_FAMILIES = ("spherical", "exponential", "gaussian")
+CRESSIE_ITERATIONS = 10
+
+
+@dataclass(frozen=True)
+class ExperimentalPoints:
+    """Experimental classes to fit (one entry per class).
+
+    Attributes
+    ----------
+    distance : ndarray
+        Mean separation of each class, coordinate units.
+    value : ndarray
+        Semivariance of each class (value units squared).
+    pairs : ndarray of int
+    azimuth : ndarray
+        Azimuth of the class's direction (degrees; 0 for omnidirectional).
+    direction, klass : ndarray of int
+        Where each class came from (for the report).
+    usable : ndarray of bool
+        Has a value and at least ``min_pairs`` pairs.
+    """
+
+    distance: np.ndarray
+    value: np.ndarray
+    pairs: np.ndarray
+    azimuth: np.ndarray
+    direction: np.ndarray
+    klass: np.ndarray
+    usable: np.ndarray
+
+
+@dataclass(frozen=True)
+class Candidate:
+    """One fitted candidate model.
+
+    Attributes
+    ----------
+    model : VariogramModel
+    label : str
+        Plain description, e.g. ``nugget + spherical``.
+    parameters : int
+        Fitted parameters p.
+    weighted_sse : float
+        S, with weights normalised to mean 1.
+    r_squared : float
+        1 - S / weighted total sum of squares.
+    criterion : float or None
+        AICc (lower is better); None when the fit failed.
+    converged : bool
+    evaluations : int
+        Model evaluations used by the optimiser.
+    """
+
+    model: VariogramModel | None
+    label: str
+    parameters: int
+    weighted_sse: float | None
+    r_squared: float | None
+    criterion: float | None
+    converged: bool
+    evaluations: int
+    note: str | None = None
+
+
+@dataclass(frozen=True)
+class FitResult:
+    """Result of :func:`fit_model`: the best candidate and every candidate, ranked."""
+
+    best: Candidate
+    candidates: tuple[Candidate, ...]
+    points: ExperimentalPoints
+    weighting: str
+    nugget: str | float
+    anisotropy: str
+    warnings: tuple[str, ...] = field(default=())
+
+
+@dataclass(frozen=True)
+class _Spec:
+    families: tuple[str, ...]
+    fit_nugget: bool
+    fixed_nugget: float
+    fit_anisotropy: bool
+
+    @property
+    def label(self) -> str:
+        parts = (["nugget"] if self.fit_nugget or self.fixed_nugget > 0 else []) + list(self.families)
+        return " + ".join(parts) + (" (anisotropic)" if self.fit_anisotropy else "")
+
+
+def _candidate_specs(families, nugget, anisotropy, structures, dimension) -> list[_Spec]:
+    fit_nugget = nugget == "fit"
+    fixed = float(nugget) if isinstance(nugget, int | float) and not isinstance(nugget, bool) else 0.0
+    nugget_options = [True, False] if fit_nugget and families == "auto" else [fit_nugget]
+    names = [f for f in BOUNDED_FAMILIES if dimension <= FAMILIES[f].max_dimension] if families == "auto" else list(families)
+    specs = []
+    for with_nugget in nugget_options:
+        for name in names:
+            specs.append(_Spec((name,), with_nugget, fixed, anisotropy == "fit"))
+        nested = NESTED_FAMILIES if families == "auto" else (names if structures == 2 else ())
+        for name in nested:
+            if FAMILIES[name].bounded:
+                specs.append(_Spec((name, name), with_nugget, fixed, anisotropy == "fit"))
+    return specs
+
+
+class _Problem:
+    """Parameter packing, bounds and starting points of one candidate."""
+
+    def __init__(self, spec: _Spec, points: ExperimentalPoints, sample_variance: float | None):
+        self.spec = spec
+        use = points.usable
+        self.h = points.distance[use]
+        self.gamma = points.value[use]
+        self.pairs = points.pairs[use].astype(float)
+        az = np.radians(points.azimuth[use])
+        self.vectors = np.column_stack([self.h * np.sin(az), self.h * np.cos(az)])
+        self.azimuths = np.unique(points.azimuth[use])
+        gmax = float(max(self.gamma.max(), 1e-300))
+        self.hmin, self.hmax = float(self.h.min()), float(self.h.max())
+        tail = self.gamma[np.argsort(self.h)][-max(1, len(self.gamma) // 3) :]
+        plateau = float(np.mean(tail))
+        self.sill0 = sample_variance if sample_variance and sample_variance > 0 else plateau
+        order = np.argsort(self.h)
+        hs, gs = self.h[order], self.gamma[order]
+        reach = np.flatnonzero(gs >= 0.95 * plateau)
+        self.range0 = float(hs[reach[0]]) if reach.size else 0.5 * self.hmax
+        self.range0 = max(self.range0, self.hmin)
+        if len(hs) >= 2 and hs[1] > hs[0]:
+            slope = (gs[1] - gs[0]) / (hs[1] - hs[0])
+            self.nugget0 = float(np.clip(gs[0] - slope * hs[0], 0.0, 0.9 * gs[0]))
+        else:
+            self.nugget0 = 0.0
+        self.gmax = gmax
+        self.names: list[str] = []
+        low, high = [], []
+        if spec.fit_nugget:
+            self.names.append("nugget")
+            low.append(0.0)
+            high.append(1.5 * gmax)
+        for k, family in enumerate(spec.families):
+            f = FAMILIES[family]
+            self.names.append(f"c{k}")
+            low.append(0.0)
+            high.append(3.0 * gmax if f.bounded else (10.0 * gmax / max(self.hmin, 1e-300) if family == "linear" else 10.0 * gmax))
+            if f.bounded:
+                self.names.append(f"a{k}")
+                low.append(1e-3 * self.hmin)
+                high.append(5.0 * self.hmax)
+            if f.extra is not None:
+                self.names.append(f"e{k}")
+                lo, hi = f.extra_bounds
+                low.append(max(lo, 0.1) if family != "power" else 0.01)
+                high.append(min(hi, 10.0) if family == "matern" else (hi if family == "stable" else 1.99))
+        if spec.fit_anisotropy:
+            self.names += ["azimuth", "ratio"]
+            low += [0.0, 0.05]
+            high += [180.0, 1.0]
+        self.low, self.high = np.array(low), np.array(high)
+
+    @property
+    def size(self) -> int:
+        return len(self.names)
+
+    def model(self, theta: np.ndarray) -> VariogramModel:
+        values = dict(zip(self.names, theta, strict=True))
+        anisotropy = Anisotropy(float(values["azimuth"]) % 180.0, float(values["ratio"])) if self.spec.fit_anisotropy else Anisotropy()
+        structures = tuple(
+            Structure(family, float(values[f"c{k}"]), float(values.get(f"a{k}", 1.0)), (float(values[f"e{k}"]) if f"e{k}" in values else None), anisotropy)
+            for k, family in enumerate(self.spec.families)
+        )
+        nugget = float(values["nugget"]) if self.spec.fit_nugget else self.spec.fixed_nugget
+        return VariogramModel(nugget, structures)
+
+    def predict(self, theta: np.ndarray) -> np.ndarray:
+        model = self.model(theta)
+        return model.semivariance(self.vectors if self.spec.fit_anisotropy else self.h)
+
+    def starts(self) -> list[np.ndarray]:
+        nugget = self.nugget0 if self.spec.fit_nugget else self.spec.fixed_nugget
+        structural = max(self.sill0 - nugget, 0.05 * self.sill0)
+        two = len(self.spec.families) == 2
+        ranges = [(self.range0 / 3, self.range0 * 1.5)] if two else [(self.range0,), (self.hmax / 3,), (2 * self.hmax / 3,)]
+        azimuths = list(self.azimuths) if self.spec.fit_anisotropy else [0.0]
+        out = []
+        for rs in ranges:
+            for az in azimuths:
+                theta = []
+                if self.spec.fit_nugget:
+                    theta.append(nugget)
+                for k, family in enumerate(self.spec.families):
+                    f = FAMILIES[family]
+                    share = (0.4, 0.6)[k] if two else 1.0
+                    if family == "linear":
+                        theta.append(self.gmax / self.hmax)
+                    elif family == "power":
+                        theta.append(self.gmax / self.hmax)
+                    else:
+                        theta.append(structural * share)
+                    if f.bounded:
+                        theta.append(rs[k])
+                    if f.extra is not None:
+                        theta.append({"matern": 1.0, "stable": 1.0, "power": 1.0}[family])
+                if self.spec.fit_anisotropy:
+                    theta += [az, 0.6]
+                out.append(np.clip(np.array(theta, dtype=float), self.low + 1e-12 * np.abs(self.low), self.high))
+            if family == "power" and len(out) >= 1 and not self.spec.fit_anisotropy:
+                break
+        return out
+
+
+def _weights(weighting: str, problem: _Problem, fitted: np.ndarray | None) -> np.ndarray:
+    if weighting == "uniform":
+        w = np.ones_like(problem.h)
+    elif weighting == "pairs_over_distance":
+        w = problem.pairs / problem.h**2
+    elif weighting == "cressie":
+        base = fitted if fitted is not None else problem.gamma
+        w = problem.pairs / np.maximum(base, 1e-9 * problem.gmax) ** 2
+    else:
+        w = problem.pairs.copy()
+    return w / w.mean()
+
+
+def _solve(problem: _Problem, weights: np.ndarray, start: np.ndarray):
+    root = np.sqrt(weights)
+
+    def residuals(theta):
+        return root * (problem.predict(theta) - problem.gamma)
+
+    with python_warnings.catch_warnings():
+        python_warnings.simplefilter("ignore", RuntimeWarning)
+        return least_squares(residuals, start, bounds=(problem.low, problem.high), method="trf", x_scale="jac", max_nfev=400 * problem.size)
+
+
+def _fit_candidate(spec: _Spec, points: ExperimentalPoints, weighting: str, sample_variance: float | None) -> Candidate:
+    problem = _Problem(spec, points, sample_variance)
+    n, p = len(problem.h), problem.size
+    if n <= p:
+        return Candidate(None, spec.label, p, None, None, None, False, 0, f"needs more than {p} usable classes, has {n}")
+    first_weights = _weights("pairs" if weighting == "cressie" else weighting, problem, None)
+    best, evaluations = None, 0
+    for start in problem.starts():
+        result = _solve(problem, first_weights, start)
+        evaluations += result.nfev
+        if best is None or result.cost < best.cost:
+            best = result
+    theta, converged = best.x, best.status > 0
+    if weighting == "cressie":
+        for _ in range(CRESSIE_ITERATIONS):
+            weights = _weights("cressie", problem, problem.predict(theta))
+            result = _solve(problem, weights, theta)
+            evaluations += result.nfev
+            moved = np.max(np.abs(result.x - theta) / np.maximum(np.abs(theta), 1e-12))
+            theta, converged = result.x, result.status > 0
+            if moved < 1e-8:
+                break
+    fitted = problem.predict(theta)
+    weights = _weights(weighting, problem, fitted)
+    sse = float(np.sum(weights * (fitted - problem.gamma) ** 2))
+    mean = np.sum(weights * problem.gamma) / np.sum(weights)
+    total = float(np.sum(weights * (problem.gamma - mean) ** 2))
+    r2 = 1.0 - sse / total if total > 0 else (1.0 if sse == 0 else 0.0)
+    criterion = n * math.log(max(sse / n, 1e-300)) + 2 * p
+    if n - p - 1 > 0:
+        criterion += 2 * p * (p + 1) / (n - p - 1)
+    return Candidate(problem.model(theta), spec.label, p, sse, r2, criterion, bool(converged), int(evaluations))
+
+
+def _validate_options(families, nugget, weighting, anisotropy, structures, points, dimension):
+    issues = []
+    if weighting not in WEIGHTINGS:
+        issues.append(FieldIssue("/weighting", f"must be one of {', '.join(WEIGHTINGS)}"))
+    if families != "auto":
+        if not families:
+            issues.append(FieldIssue("/families", "give at least one family, or \"auto\""))
+        for k, name in enumerate(families or []):
+            if name not in FAMILIES:
+                issues.append(FieldIssue(f"/families/{k}", f"unknown family {name!r}; valid: {', '.join(FAMILIES)}"))
+            elif dimension > FAMILIES[name].max_dimension:
+                issues.append(FieldIssue(f"/families/{k}", f"{name} is valid only up to {FAMILIES[name].max_dimension}-D; the samples are {dimension}-D"))
+    if isinstance(nugget, str) and nugget not in ("fit", "none"):
+        issues.append(FieldIssue("/nugget", "must be \"fit\", \"none\" or a fixed non-negative number"))
+    elif not isinstance(nugget, str) and not (math.isfinite(nugget) and nugget >= 0):
+        issues.append(FieldIssue("/nugget", "a fixed nugget must be zero or positive"))
+    if anisotropy not in ("none", "fit"):
+        issues.append(FieldIssue("/anisotropy", "must be \"none\" or \"fit\""))
+    elif anisotropy == "fit" and len(np.unique(points.azimuth[points.usable])) < 2:
+        issues.append(FieldIssue("/anisotropy", "fitting anisotropy needs usable classes in at least 2 direction classes"))
+    if structures not in (1, 2):
+        issues.append(FieldIssue("/structures", "must be 1 or 2"))
+    if issues:
+        raise InvalidInput(issues)
+
+
+def fit_model(
+    points: ExperimentalPoints,
+    *,
+    dimension: int,
+    families: str | list[str] = "auto",
+    nugget: str | float = "fit",
+    weighting: str = "pairs",
+    anisotropy: str = "none",
+    structures: int = 1,
+    sample_variance: float | None = None,
+) -> FitResult:
+    """Fit and rank candidate models.
+
+    Parameters
+    ----------
+    points : ExperimentalPoints
+        Classes; those not ``usable`` (no value, or sparse) are left out and reported.
+    dimension : int
+        Dimension of the samples (restricts families valid only in lower dimensions).
+    families : "auto" or list of str
+        ``auto`` tries every bounded family valid in ``dimension`` with and without a
+        nugget, and nested pairs of spherical, exponential and gaussian structures.
+    nugget : "fit", "none" or float
+    weighting : str
+        One of :data:`WEIGHTINGS`.
+    anisotropy : "none" or "fit"
+        ``fit`` fits one geometric anisotropy (azimuth, ratio) jointly to all direction classes.
+    structures : 1 or 2
+        Structures per candidate for an explicit family list.
+    sample_variance : float, optional
+        Starting sill.
+
+    Raises
+    ------
+    InvalidInput
+        Bad options, or fewer usable classes than any candidate's parameters.
+    """
+    _validate_options(families, nugget, weighting, anisotropy, structures, points, dimension)
+    notes = []
+    used = int(points.usable.sum())
+    left_out = int(points.usable.size - used)
+    if left_out:
+        notes.append(f"{left_out} classes left out of the fit (no pairs, undefined value or fewer than min_pairs pairs)")
+    if used == 0:
+        raise InvalidInput.at("/experimental", "no class has a value and enough pairs to fit a model")
+    if np.all(points.value[points.usable] == 0.0):
+        zero = Candidate(VariogramModel(0.0, ()), "pure nugget (zero)", 0, 0.0, 1.0, None, True, 0)
+        notes.append("every class has zero semivariance (constant values): the model is a zero pure nugget")
+        return FitResult(zero, (zero,), points, weighting, nugget, anisotropy, tuple(notes))
+    specs = _candidate_specs(families, nugget, anisotropy, structures, dimension)
+    candidates = [_fit_candidate(spec, points, weighting, sample_variance) for spec in specs]
+    feasible = [c for c in candidates if c.criterion is not None]
+    if not feasible:
+        needed = min(c.parameters for c in candidates) + 1
+        raise InvalidInput.at("/experimental", f"{used} usable classes cannot support the candidates: at least {needed} are needed (use narrower or more classes, or lower min_pairs)")
+    ranked = sorted(feasible, key=lambda c: (not c.converged, c.criterion)) + [c for c in candidates if c.criterion is None]
+    best = ranked[0]
+    if best.r_squared is not None and best.r_squared < 0.3:
+        notes.append(f"the best model explains little of the experimental variogram (R^2 = {best.r_squared:.2f}); the data may be close to pure nugget")
+    return FitResult(best, tuple(ranked), points, weighting, nugget, anisotropy, tuple(notes))
+
+
+def points_from_experimental(result, min_pairs: int) -> ExperimentalPoints:
+    """Flatten an :class:`~lagwise.core.experimental.ExperimentalVariogram` into fit points."""
+    rows = [(d.direction.azimuth, k, c, row) for k, d in enumerate(result.directions) for c, row in enumerate(d.classes)]
+    return points_from_rows(rows, min_pairs)
+
+
+def points_from_rows(rows, min_pairs: int) -> ExperimentalPoints:
+    """Build fit points from (azimuth, direction index, class index, row) with row.mean_distance, value, pairs."""
+    def num(v):
+        return np.nan if v is None else float(v)
+
+    distance = np.array([num(r.mean_distance) for _, _, _, r in rows])
+    value = np.array([num(r.value) for _, _, _, r in rows])
+    pairs = np.array([int(r.pairs) for _, _, _, r in rows])
+    usable = np.isfinite(distance) & np.isfinite(value) & (pairs >= min_pairs) & (np.nan_to_num(distance) > 0)
+    return ExperimentalPoints(
+        distance=np.nan_to_num(distance),
+        value=np.nan_to_num(value),
+        pairs=pairs,
+        azimuth=np.array([float(a) for a, _, _, _ in rows]),
+        direction=np.array([k for _, k, _, _ in rows]),
+        klass=np.array([c for _, _, c, _ in rows]),
+        usable=usable,
+    )
