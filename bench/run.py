@@ -1,4 +1,4 @@
-"""Run the benchmarks: ``python3 manage.py bench [variogram]``."""
+"""Run the benchmarks: ``python3 manage.py bench [variogram] [fitting]``."""
 
 from __future__ import annotations
 
@@ -7,9 +7,10 @@ from pathlib import Path
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
 
+import fitting  # noqa: E402
 import variogram  # noqa: E402
 
-SUITES = {"variogram": variogram.main}
+SUITES = {"variogram": variogram.main, "fitting": fitting.main}
 
 
 def main(argv):

@@ -94,7 +94,9 @@ def _run_case(which, n, kind):
 
 
 def main():
-    print(f"{'n':>7} {'classes':>8} {'seconds':>9} {'pairs/s':>10} {'peak MB':>8} {'baseline s':>11} {'base MB':>8} {'speed-up':>9}")
+    print(
+        f"{'n':>7} {'classes':>8} {'seconds':>9} {'pairs/s':>10} {'peak MB':>8} {'baseline s':>11} {'base MB':>8} {'speed-up':>9}"
+    )
     for kind in ("omni", "fan"):
         for n in SIZES:
             ours = _run_case("lagwise", n, kind)

@@ -15,13 +15,18 @@ from .errors import (
     UnavailableError,
     ValidationError,
 )
-from .results import DirectionVariogram, ExperimentalVariogram, VariogramClass, VariogramMap
+from .models import ModelStructure, VariogramModel
+from .results import Candidate, DirectionVariogram, ExperimentalVariogram, ModelFit, VariogramClass, VariogramMap
 from .retry import RetryPolicy
 
 __version__ = "0.1.0"
 
 __all__ = [
     "AuthError",
+    "Candidate",
+    "ModelFit",
+    "ModelStructure",
+    "VariogramModel",
     "DirectionVariogram",
     "ExperimentalVariogram",
     "Lagwise",

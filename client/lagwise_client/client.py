@@ -10,7 +10,7 @@ from typing import Any
 import requests
 
 from .errors import LagwiseError, TransportError, ValidationError, error_for
-from .results import ExperimentalVariogram, VariogramMap
+from .results import ExperimentalVariogram, ModelFit, VariogramMap
 from .retry import RETRY_STATUSES, RetryPolicy
 
 DEFAULT_TIMEOUT = 120.0
@@ -210,6 +210,61 @@ class Lagwise:
         options = dict(statistic=statistic, coordinates=coordinates, duplicates=duplicates)
         body.update({k: v for k, v in options.items() if v is not None})
         return VariogramMap.from_response(self.request("POST", "/v1/variogram-maps", body))
+
+    def fit_model(
+        self,
+        samples=None,
+        *,
+        experimental: ExperimentalVariogram | Mapping[str, Any] | None = None,
+        x=None,
+        y=None,
+        z=None,
+        values=None,
+        ids=None,
+        columns: Mapping[str, str] | None = None,
+        families: str | list[str] | None = None,
+        nugget: str | float | None = None,
+        weighting: str | None = None,
+        anisotropy: str | None = None,
+        structures: int | None = None,
+        lags: Mapping[str, Any] | None = None,
+        directions: list[Mapping[str, Any]] | None = None,
+        statistic: str | None = None,
+        min_pairs: int | None = None,
+        coordinates: str | None = None,
+        duplicates: str | None = None,
+    ) -> ModelFit:
+        """Fit variogram models (``POST /v1/model-fits``) to samples or to a previous experimental result.
+
+        ``families`` is ``"auto"`` (default on the service) or a list of names; ``nugget`` is
+        ``"fit"``, ``"none"`` or a fixed value; ``anisotropy="fit"`` fits azimuth and ratio
+        jointly over the direction classes.
+        """
+        if experimental is not None:
+            body: dict = {
+                "experimental": experimental.to_dict() if hasattr(experimental, "to_dict") else dict(experimental)
+            }
+        else:
+            body = {"samples": samples_document(samples, x=x, y=y, z=z, values=values, ids=ids, columns=columns)}
+        options = dict(
+            families=families,
+            nugget=nugget,
+            weighting=weighting,
+            anisotropy=anisotropy,
+            structures=structures,
+            lags=lags,
+            directions=directions,
+            statistic=statistic,
+            min_pairs=min_pairs,
+            coordinates=coordinates,
+            duplicates=duplicates,
+        )
+        body.update({k: v for k, v in options.items() if v is not None})
+        return ModelFit.from_response(self.request("POST", "/v1/model-fits", body))
+
+    def model_families(self) -> list[dict]:
+        """The model families with their parameters, units, bounds and validity (``GET /v1/model-families``)."""
+        return self.request("GET", "/v1/model-families")["families"]
 
     def health(self) -> dict:
         """``GET /healthz``."""

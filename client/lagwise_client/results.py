@@ -4,6 +4,8 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 
+from .models import VariogramModel
+
 
 def _dataframe(rows: list[dict]):
     try:
@@ -135,3 +137,72 @@ class VariogramMap:
             for c, hx in enumerate(self.hx)
         ]
         return _dataframe(rows)
+
+
+@dataclass(frozen=True)
+class Candidate:
+    """One candidate model tried by the fit, with its scores (lower criterion is better)."""
+
+    rank: int
+    label: str
+    model: VariogramModel | None
+    parameters: int
+    weighted_sse: float | None
+    r_squared: float | None
+    criterion: float | None
+    converged: bool
+    iterations: int
+    note: str | None = None
+
+
+@dataclass(frozen=True)
+class ModelFit:
+    """Result of :meth:`Lagwise.fit_model`.
+
+    Attributes
+    ----------
+    model : VariogramModel
+        The selected model; evaluate it locally with ``model.semivariance(h)``.
+    diagnostics : dict
+        weighted_sse, r_squared, criterion, converged, iterations.
+    candidates : tuple of Candidate
+        Every model tried, ranked.
+    experimental : dict
+        The classes used, with ``used`` flags and the model's value at each.
+    """
+
+    model: VariogramModel
+    diagnostics: dict
+    candidates: tuple[Candidate, ...]
+    experimental: dict
+    parameters: dict
+    warnings: tuple[str, ...]
+    provenance: dict
+    summary: dict | None = None
+    raw: dict = field(default_factory=dict, repr=False)
+
+    @classmethod
+    def from_response(cls, document: dict) -> ModelFit:
+        candidates = tuple(
+            Candidate(**{**c, "model": None if c["model"] is None else VariogramModel.from_dict(c["model"])})
+            for c in document["candidates"]
+        )
+        return cls(
+            model=VariogramModel.from_dict(document["model"]),
+            diagnostics=document["diagnostics"],
+            candidates=candidates,
+            experimental=document["experimental"],
+            parameters=document["parameters"],
+            warnings=tuple(document.get("warnings", [])),
+            provenance=document["provenance"],
+            summary=document.get("summary"),
+            raw=document,
+        )
+
+    def to_dict(self) -> dict:
+        """The response document."""
+        return self.raw
+
+    def to_dataframe(self):
+        """One row per candidate (needs pandas)."""
+        return _dataframe([{k: v for k, v in c.__dict__.items() if k != "model"} for c in self.candidates])

@@ -47,12 +47,19 @@ def _response_validator(path, status, media):
         ),
         ("/v1/experimental-variograms", {"lags": {"auto": "equal_pairs"}}),
         ("/v1/variogram-maps", {"cell_size": 10, "cells": 2}),
+        ("/v1/model-fits", {"lags": {"width": 8, "count": 8}, "min_pairs": 5}),
     ],
 )
 def test_responses_obey_the_contract(client, rng, path, body):
     r = client.post(path, json={"samples": random_columns(rng, n=60), **body})
     assert r.status_code == 200
     _response_validator(path, 200, "application/json").validate(r.json)
+
+
+def test_families_obey_the_contract(client):
+    spec = as_dict()
+    schema = spec["paths"]["/v1/model-families"]["get"]["responses"]["200"]["content"]["application/json"]["schema"]
+    OAS30Validator({**schema, "components": spec["components"]}).validate(client.get("/v1/model-families").json)
 
 
 def test_problems_obey_the_contract(client):

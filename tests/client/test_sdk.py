@@ -82,3 +82,39 @@ def test_transport_error_after_retries():
     with pytest.raises(TransportError, match="after 3 attempts"):
         client.health()
     assert len(slept) == 2 and slept[1] >= slept[0] * 0.5
+
+
+def test_fit_model_and_local_evaluation(lw):
+    from lagwise.core.models import Structure, VariogramModel
+
+    from tests.reference.simulate import isotropic, simulate
+
+    rng = np.random.default_rng(30)
+    coords = rng.uniform(0, 100, (400, 2))
+    values = simulate(isotropic("spherical", 1.0, 20.0), coords, rng)
+    fit = lw.fit_model(x=coords[:, 0], y=coords[:, 1], values=values, lags={"width": 3, "count": 12})
+    assert fit.candidates[0].rank == 1 and len(fit.candidates) >= 16
+    structure = fit.model.structures[0]
+    assert abs(structure.range - 20.0) / 20.0 < 0.3
+    # The SDK evaluates the model in pure Python exactly as the service does.
+    core = VariogramModel(
+        fit.model.nugget, tuple(Structure(s.family, s.partial_sill, s.range, s.extra) for s in fit.model.structures)
+    )
+    for c in fit.experimental["directions"][0]["classes"]:
+        assert fit.model.semivariance(c["mean_distance"]) == pytest.approx(c["model_value"], rel=1e-12)
+        assert fit.model.semivariance(c["mean_distance"]) == pytest.approx(
+            float(core.semivariance(np.array([c["mean_distance"]]))[0]), rel=1e-12
+        )
+    assert fit.model.covariance(0.0) == pytest.approx(fit.model.sill)
+    refit = lw.fit_model(
+        experimental=lw.experimental_variogram(
+            x=coords[:, 0], y=coords[:, 1], values=values, lags={"width": 3, "count": 12}
+        ),
+        families=["spherical"],
+    )
+    assert refit.parameters["families"] == ["spherical"]
+
+
+def test_model_families(lw):
+    families = lw.model_families()
+    assert [f["name"] for f in families][:3] == ["spherical", "exponential", "gaussian"]

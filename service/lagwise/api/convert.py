@@ -3,14 +3,16 @@
 from __future__ import annotations
 
 import math
+from dataclasses import dataclass
 
 import numpy as np
 
 from ..core.directions import DirectionClass
 from ..core.errors import FieldIssue, InvalidInput
 from ..core.experimental import ScatterRequest
+from ..core.fitting import SEMIVARIANCE_STATISTICS, points_from_rows
 from ..core.lags import LagRequest
-from ..core.samples import SampleSet, build_sample_set, columnar_pointer
+from ..core.samples import SampleSet, build_sample_set, columnar_pointer, input_hash
 
 FEATURES = "/samples/geojson/features"
 
@@ -135,3 +137,37 @@ def scatter_request(document: dict) -> ScatterRequest | None:
     """The h-scattergram request, if any."""
     raw = document.get("pairs_for_class")
     return None if raw is None else ScatterRequest(direction=raw["direction"], klass=raw["klass"], limit=raw["limit"])
+
+
+def experimental_points(document: dict, min_pairs: int):
+    """Fit points, dimension and sample variance from a previous experimental response.
+
+    Returns (points, dimension, sample_variance or None, statistic, SHA-256 of the classes).
+    """
+    given = document["experimental"]
+    statistic = (given.get("parameters") or {}).get("statistic", "semivariance")
+    if statistic not in SEMIVARIANCE_STATISTICS:
+        raise InvalidInput.at(
+            "/experimental/parameters/statistic", f"models are fitted to semivariances, not to {statistic!r}"
+        )
+    rows = [
+        (d["azimuth"], k, c, _ClassRow(row.get("mean_distance"), row.get("value"), row["pairs"]))
+        for k, d in enumerate(given["directions"])
+        for c, row in enumerate(d["classes"])
+    ]
+    points = points_from_rows(rows, min_pairs)
+    summary = given.get("summary") or {}
+    dimension = summary.get("dimension", 2)
+    if dimension not in (1, 2, 3):
+        raise InvalidInput.at("/experimental/summary/dimension", "must be 1, 2 or 3")
+    variance = summary.get("variance")
+    variance = float(variance) if type(variance) in (int, float) and math.isfinite(variance) else None
+    digest = input_hash([points.distance, points.value, points.pairs.astype(np.float64)])
+    return points, int(dimension), variance, statistic, digest
+
+
+@dataclass(frozen=True)
+class _ClassRow:
+    mean_distance: float | None
+    value: float | None
+    pairs: int

@@ -55,3 +55,34 @@ def number_array_properties(self, field, **kwargs) -> dict:
     if isinstance(field, NumberArray):
         return {"type": "array", "items": {"type": "number"}}
     return {}
+
+
+class AutoOrList(fields.Field):
+    """Either the string ``"auto"`` or a list of strings (model families)."""
+
+    def _deserialize(self, value, attr, data, **kwargs):
+        if value == "auto":
+            return "auto"
+        if isinstance(value, list) and all(isinstance(v, str) for v in value):
+            return value
+        raise ValidationError('must be "auto" or a list of family names')
+
+
+class NuggetOption(fields.Field):
+    """``"fit"``, ``"none"`` or a fixed non-negative finite number."""
+
+    def _deserialize(self, value, attr, data, **kwargs):
+        if value in ("fit", "none"):
+            return value
+        if type(value) in NUMBER_TYPES and _element_error(value) is None and value >= 0:
+            return float(value)
+        raise ValidationError('must be "fit", "none" or a fixed non-negative number')
+
+
+def choice_properties(self, field, **kwargs) -> dict:
+    """apispec attribute function documenting :class:`AutoOrList` and :class:`NuggetOption`."""
+    if isinstance(field, AutoOrList):
+        return {"oneOf": [{"type": "string", "enum": ["auto"]}, {"type": "array", "items": {"type": "string"}}]}
+    if isinstance(field, NuggetOption):
+        return {"oneOf": [{"type": "string", "enum": ["fit", "none"]}, {"type": "number", "minimum": 0}]}
+    return {}

@@ -7,7 +7,7 @@ from apispec import APISpec
 from apispec.ext.marshmallow import MarshmallowPlugin
 
 from .. import __version__
-from .fields import number_array_properties
+from .fields import choice_properties, number_array_properties
 from .operations import OPERATIONS
 from .problems import KINDS, PROBLEM_MEDIA_TYPE
 from .schemas import ProblemSchema
@@ -40,6 +40,7 @@ def build_spec() -> APISpec:
         info={"description": DESCRIPTION, "license": {"name": "Proprietary"}},
     )
     plugin.converter.add_attribute_function(number_array_properties)
+    plugin.converter.add_attribute_function(choice_properties)
     spec.components.schema("Problem", schema=ProblemSchema)
     for op in sorted(OPERATIONS, key=lambda o: o.path):
         responses = {"200": {"description": "Success", "content": {"application/json": {"schema": op.response}}}}

@@ -12,12 +12,24 @@ from flask import Blueprint, Response, current_app, g
 
 from .. import __version__
 from ..core.experimental import experimental_variogram
+from ..core.fitting import fit_model
 from ..core.maps import variogram_map
+from ..core.modelling import fit_samples
+from ..core.models import family_catalogue
 from . import convert, serialize
 from .jsonio import dumps
 from .problems import KINDS, Problem
 from .requests import load_json
-from .schemas import ExperimentalRequest, ExperimentalResponse, HealthSchema, MapRequest, MapResponse
+from .schemas import (
+    ExperimentalRequest,
+    ExperimentalResponse,
+    FamiliesResponse,
+    HealthSchema,
+    MapRequest,
+    MapResponse,
+    ModelFitRequest,
+    ModelFitResponse,
+)
 
 blueprint = Blueprint("lagwise", __name__)
 
@@ -107,6 +119,71 @@ def variogram_maps():
         limits=settings().limits,
     )
     return with_provenance(serialize.variogram_map(result, samples), samples.input_hash)
+
+
+@operation(
+    "/v1/model-fits",
+    "POST",
+    "Fit variogram models to samples or to a previous experimental variogram; ranked candidates",
+    ModelFitRequest,
+    ModelFitResponse,
+)
+def model_fits():
+    document = load_json(ModelFitRequest())
+    options = {k: document[k] for k in ("families", "nugget", "weighting", "anisotropy", "structures")}
+    if "samples" in document:
+        samples = convert.sample_set(document)
+        result = fit_samples(
+            samples,
+            lags=convert.lag_request(document),
+            directions=convert.direction_classes(document),
+            statistic=document["statistic"],
+            min_pairs=document["min_pairs"],
+            limits=settings().limits,
+            **options,
+        )
+        body = serialize.model_fit(
+            result.fit,
+            document["statistic"],
+            summary=result.experimental.summary.as_dict(),
+            sample_params={
+                **serialize.sample_parameters(samples),
+                "min_pairs": document["min_pairs"],
+                "lags": serialize.lag_parameters(result.experimental),
+            },
+            options={"families": options["families"], "structures": options["structures"]},
+        )
+        body["warnings"] = list(result.experimental.warnings) + body["warnings"]
+        return with_provenance(body, samples.input_hash)
+    points, dimension, variance, statistic, digest = convert.experimental_points(document, document["min_pairs"])
+    fit = fit_model(points, dimension=dimension, sample_variance=variance, **options)
+    body = serialize.model_fit(
+        fit,
+        statistic,
+        summary=None,
+        sample_params={"dimension": dimension, "min_pairs": document["min_pairs"]},
+        options={"families": options["families"], "structures": options["structures"]},
+    )
+    return with_provenance(body, digest)
+
+
+@operation(
+    "/v1/model-families",
+    "GET",
+    "Model families, their parameters (units, bounds) and validity",
+    response=FamiliesResponse,
+    errors=(),
+)
+def model_families():
+    return json_response(
+        {
+            "families": family_catalogue(),
+            "conventions": {
+                "range": "practical range: the distance at which a structure reaches 95 % of its partial sill (its sill for spherical, cubic, pentaspherical, circular)",
+                "anisotropy": "azimuth (degrees clockwise from north) of the longest range; ratio x range across it; vertical_ratio x range vertically",
+            },
+        }
+    )
 
 
 @operation("/healthz", "GET", "Liveness: the process answers", errors=())

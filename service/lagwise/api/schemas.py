@@ -6,12 +6,13 @@ with pointers, so a caller gets the same answer from either side.
 
 from __future__ import annotations
 
-from marshmallow import Schema, ValidationError, fields, validate, validates_schema
+from marshmallow import EXCLUDE, Schema, ValidationError, fields, validate, validates_schema
 
+from ..core.fitting import SEMIVARIANCE_STATISTICS, WEIGHTINGS
 from ..core.lags import AUTO_METHODS, MAX_CLASSES
 from ..core.samples import COORDINATE_SYSTEMS, DUPLICATE_POLICIES
 from ..core.statistics import STATISTICS
-from .fields import NumberArray
+from .fields import AutoOrList, NuggetOption, NumberArray
 
 MAX_DIRECTIONS = 36
 
@@ -118,6 +119,65 @@ class MapRequest(SampleOptions):
     statistic = fields.String(load_default="semivariance", validate=validate.OneOf(STATISTICS))
 
 
+class ExperimentalClassInput(Schema):
+    """A class of a previous experimental response (other members are ignored)."""
+
+    class Meta:
+        unknown = EXCLUDE
+
+    mean_distance = fields.Float(allow_none=True, required=True)
+    value = fields.Float(allow_none=True, required=True)
+    pairs = fields.Integer(required=True, validate=validate.Range(min=0))
+
+
+class ExperimentalDirectionInput(Schema):
+    class Meta:
+        unknown = EXCLUDE
+
+    azimuth = finite(load_default=0.0, validate=validate.Range(min=0, max=360, max_inclusive=False))
+    classes = fields.List(fields.Nested(ExperimentalClassInput), required=True, validate=validate.Length(min=1))
+
+
+class ExperimentalInput(Schema):
+    """A previous response of POST /v1/experimental-variograms (as returned)."""
+
+    class Meta:
+        unknown = EXCLUDE
+
+    directions = fields.List(
+        fields.Nested(ExperimentalDirectionInput), required=True, validate=validate.Length(min=1, max=MAX_DIRECTIONS)
+    )
+    summary = fields.Dict()
+    parameters = fields.Dict()
+
+
+class ModelFitRequest(SampleOptions):
+    """POST /v1/model-fits: samples (with classes and directions) or a previous experimental response."""
+
+    samples = fields.Nested(SamplesSchema)
+    experimental = fields.Nested(ExperimentalInput)
+    lags = fields.Nested(LagsSchema)
+    directions = fields.List(fields.Nested(DirectionSchema), validate=validate.Length(min=1, max=MAX_DIRECTIONS))
+    statistic = fields.String(load_default="semivariance", validate=validate.OneOf(SEMIVARIANCE_STATISTICS))
+    min_pairs = fields.Integer(strict=True, load_default=30, validate=validate.Range(min=1))
+    families = AutoOrList(
+        load_default="auto", metadata={"description": '"auto" or a list of family names (GET /v1/model-families).'}
+    )
+    nugget = NuggetOption(load_default="fit", metadata={"description": '"fit", "none" or a fixed value.'})
+    weighting = fields.String(load_default="pairs", validate=validate.OneOf(WEIGHTINGS))
+    anisotropy = fields.String(load_default="none", validate=validate.OneOf(("none", "fit")))
+    structures = fields.Integer(strict=True, load_default=1, validate=validate.OneOf((1, 2)))
+
+    @validates_schema
+    def _one_source(self, data, **kwargs):
+        if ("samples" in data) == ("experimental" in data):
+            raise ValidationError("give either samples or experimental (a previous experimental response), not both")
+        if "experimental" in data:
+            clash = [k for k in ("lags", "directions", "coordinates") if k in data]
+            if clash:
+                raise ValidationError(f"{', '.join(clash)} apply to samples, not to a given experimental variogram")
+
+
 # ---- responses -------------------------------------------------------------
 
 
@@ -199,6 +259,98 @@ class MapResponse(ResultEnvelope):
     )
     pairs = fields.List(fields.List(fields.Integer()))
     summary = fields.Nested(SummarySchema)
+
+
+class AnisotropySchema(Schema):
+    azimuth = fields.Float()
+    ratio = fields.Float()
+    vertical_ratio = fields.Float()
+
+
+class StructureSchema(Schema):
+    family = fields.String()
+    partial_sill = fields.Float()
+    range = fields.Float(metadata={"description": "Practical range, coordinate units."})
+    slope = fields.Float()
+    coefficient = fields.Float()
+    exponent = fields.Float()
+    smoothness = fields.Float()
+    shape = fields.Float()
+    anisotropy = fields.Nested(AnisotropySchema)
+
+
+class ModelSchema(Schema):
+    nugget = fields.Float()
+    structures = fields.List(fields.Nested(StructureSchema))
+
+
+class DiagnosticsSchema(Schema):
+    weighted_sse = fields.Float(allow_none=True)
+    r_squared = fields.Float(allow_none=True)
+    criterion = fields.Float(allow_none=True)
+    criterion_name = fields.String()
+    converged = fields.Boolean()
+    iterations = fields.Integer()
+
+
+class CandidateSchema(Schema):
+    rank = fields.Integer()
+    label = fields.String()
+    model = fields.Nested(ModelSchema, allow_none=True)
+    parameters = fields.Integer()
+    weighted_sse = fields.Float(allow_none=True)
+    r_squared = fields.Float(allow_none=True)
+    criterion = fields.Float(allow_none=True)
+    converged = fields.Boolean()
+    iterations = fields.Integer()
+    note = fields.String(allow_none=True)
+
+
+class FitClassSchema(Schema):
+    mean_distance = fields.Float(allow_none=True)
+    value = fields.Float(allow_none=True)
+    pairs = fields.Integer()
+    used = fields.Boolean()
+    model_value = fields.Float(allow_none=True)
+
+
+class FitDirectionSchema(Schema):
+    azimuth = fields.Float()
+    classes = fields.List(fields.Nested(FitClassSchema))
+
+
+class FitExperimentalSchema(Schema):
+    statistic = fields.String()
+    directions = fields.List(fields.Nested(FitDirectionSchema))
+
+
+class ModelFitResponse(ResultEnvelope):
+    model = fields.Nested(ModelSchema)
+    diagnostics = fields.Nested(DiagnosticsSchema)
+    candidates = fields.List(fields.Nested(CandidateSchema))
+    experimental = fields.Nested(FitExperimentalSchema)
+    summary = fields.Nested(SummarySchema)
+
+
+class FamilyParameterSchema(Schema):
+    name = fields.String()
+    unit = fields.String()
+    minimum = fields.Float()
+    maximum = fields.Float()
+    exclusive = fields.Boolean()
+
+
+class FamilySchema(Schema):
+    name = fields.String()
+    bounded = fields.Boolean()
+    max_dimension = fields.Integer()
+    parameters = fields.List(fields.Nested(FamilyParameterSchema))
+    formula = fields.String()
+
+
+class FamiliesResponse(Schema):
+    families = fields.List(fields.Nested(FamilySchema))
+    conventions = fields.Dict()
 
 
 class FieldErrorSchema(Schema):

@@ -49,10 +49,7 @@ def experimental(result: ExperimentalVariogram, samples: SampleSet) -> dict:
             **sample_parameters(samples),
             "statistic": result.statistic,
             "min_pairs": result.min_pairs,
-            "lags": {
-                "method": result.lag_method,
-                "edges": [[row.lower for row in d.classes] + [d.classes[-1].upper] for d in result.directions],
-            },
+            "lags": lag_parameters(result),
             "directions": [d.direction.as_dict(dimension) for d in result.directions],
             "angle_convention": ANGLES,
             "class_convention": CLASSES,
@@ -70,6 +67,14 @@ def experimental(result: ExperimentalVariogram, samples: SampleSet) -> dict:
             "head": s.head,
         }
     return document
+
+
+def lag_parameters(result: ExperimentalVariogram) -> dict:
+    """Resolved distance classes of every direction."""
+    return {
+        "method": result.lag_method,
+        "edges": [[row.lower for row in d.classes] + [d.classes[-1].upper] for d in result.directions],
+    }
 
 
 def _class_row(row) -> dict:
@@ -110,3 +115,69 @@ def variogram_map(result: VariogramMap, samples: SampleSet) -> dict:
         },
         "warnings": list(result.warnings),
     }
+
+
+CRITERION = "AICc (corrected Akaike criterion of the weighted least-squares fit; lower is better)"
+
+
+def _candidate(rank: int, c) -> dict:
+    return {
+        "rank": rank,
+        "label": c.label,
+        "model": None if c.model is None else c.model.as_dict(),
+        "parameters": c.parameters,
+        "weighted_sse": c.weighted_sse,
+        "r_squared": c.r_squared,
+        "criterion": c.criterion,
+        "converged": c.converged,
+        "iterations": c.evaluations,
+        "note": c.note,
+    }
+
+
+def model_fit(fit, statistic: str, *, summary: dict | None, sample_params: dict | None, options: dict) -> dict:
+    """Response body of ``POST /v1/model-fits`` (without provenance)."""
+    from ..core.fitting import fitted_values
+
+    best = fit.best
+    points = fit.points
+    modelled = fitted_values(fit)
+    directions: dict[int, dict] = {}
+    for i in range(points.distance.size):
+        entry = directions.setdefault(int(points.direction[i]), {"azimuth": float(points.azimuth[i]), "classes": []})
+        entry["classes"].append(
+            {
+                "mean_distance": float(points.distance[i]) if points.usable[i] or points.distance[i] > 0 else None,
+                "value": float(points.value[i]) if points.usable[i] or points.pairs[i] > 0 else None,
+                "pairs": int(points.pairs[i]),
+                "used": bool(points.usable[i]),
+                "model_value": float(modelled[i]) if points.distance[i] > 0 else None,
+            }
+        )
+    document = {
+        "model": best.model.as_dict(),
+        "diagnostics": {
+            "weighted_sse": best.weighted_sse,
+            "r_squared": best.r_squared,
+            "criterion": best.criterion,
+            "criterion_name": CRITERION,
+            "converged": best.converged,
+            "iterations": best.evaluations,
+        },
+        "candidates": [_candidate(rank + 1, c) for rank, c in enumerate(fit.candidates)],
+        "experimental": {"statistic": statistic, "directions": [directions[k] for k in sorted(directions)]},
+        "parameters": {
+            **(sample_params or {}),
+            **options,
+            "statistic": statistic,
+            "weighting": fit.weighting,
+            "nugget": fit.nugget,
+            "anisotropy": fit.anisotropy,
+            "range_convention": "practical range: 95 % of the partial sill (exact sill for spherical, cubic, pentaspherical, circular)",
+            "criterion": CRITERION,
+        },
+        "warnings": list(fit.warnings),
+    }
+    if summary is not None:
+        document["summary"] = summary
+    return document

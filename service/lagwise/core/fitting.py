@@ -14,7 +14,12 @@ parameter) from several data-driven starting points. Weights (normalised to mean
 Candidates are ranked by the corrected Akaike information criterion of a weighted
 least-squares fit, AICc = n ln(S/n) + 2p + 2p(p+1)/(n-p-1) (Hurvich & Tsai 1989),
 with S the weighted residual sum of squares, n the classes used and p the fitted
-parameters: extra structures and a nugget must earn their place.
+parameters: extra structures and a nugget must earn their place. Candidates within
+``EQUIVALENT`` units of the lowest criterion are treated as equally supported
+(Burnham & Anderson 2002, section 2.6); among them the one with the fewest
+parameters is selected, then the first in :data:`PREFERENCE` (the most widely used
+families first), since an experimental variogram cannot tell, say, a spherical
+from a pentaspherical structure.
 """
 
 from __future__ import annotations
@@ -31,7 +36,24 @@ from .models import BOUNDED_FAMILIES, FAMILIES, Anisotropy, Structure, Variogram
 
 WEIGHTINGS = ("pairs", "pairs_over_distance", "cressie", "uniform")
 NESTED_FAMILIES = ("spherical", "exponential", "gaussian")
+# "auto" tries the monotone bounded families; the hole-effect cardinal_sine fits
+# sampling wiggles as often as real periodicity, so it is tried only on request.
+AUTO_FAMILIES = tuple(f for f in BOUNDED_FAMILIES if f != "cardinal_sine")
 CRESSIE_ITERATIONS = 10
+EQUIVALENT = 2.0
+PREFERENCE = (
+    "spherical",
+    "exponential",
+    "gaussian",
+    "matern",
+    "stable",
+    "cubic",
+    "pentaspherical",
+    "circular",
+    "cardinal_sine",
+    "linear",
+    "power",
+)
 
 
 @dataclass(frozen=True)
@@ -93,6 +115,7 @@ class Candidate:
     converged: bool
     evaluations: int
     note: str | None = None
+    families: tuple[str, ...] = ()
 
 
 @dataclass(frozen=True)
@@ -125,7 +148,9 @@ def _candidate_specs(families, nugget, anisotropy, structures, dimension) -> lis
     fit_nugget = nugget == "fit"
     fixed = float(nugget) if isinstance(nugget, int | float) and not isinstance(nugget, bool) else 0.0
     nugget_options = [True, False] if fit_nugget and families == "auto" else [fit_nugget]
-    names = [f for f in BOUNDED_FAMILIES if dimension <= FAMILIES[f].max_dimension] if families == "auto" else list(families)
+    names = (
+        [f for f in AUTO_FAMILIES if dimension <= FAMILIES[f].max_dimension] if families == "auto" else list(families)
+    )
     specs = []
     for with_nugget in nugget_options:
         for name in names:
@@ -175,7 +200,11 @@ class _Problem:
             f = FAMILIES[family]
             self.names.append(f"c{k}")
             low.append(0.0)
-            high.append(3.0 * gmax if f.bounded else (10.0 * gmax / max(self.hmin, 1e-300) if family == "linear" else 10.0 * gmax))
+            high.append(
+                3.0 * gmax
+                if f.bounded
+                else (10.0 * gmax / max(self.hmin, 1e-300) if family == "linear" else 10.0 * gmax)
+            )
             if f.bounded:
                 self.names.append(f"a{k}")
                 low.append(1e-3 * self.hmin)
@@ -197,9 +226,19 @@ class _Problem:
 
     def model(self, theta: np.ndarray) -> VariogramModel:
         values = dict(zip(self.names, theta, strict=True))
-        anisotropy = Anisotropy(float(values["azimuth"]) % 180.0, float(values["ratio"])) if self.spec.fit_anisotropy else Anisotropy()
+        anisotropy = (
+            Anisotropy(float(values["azimuth"]) % 180.0, float(values["ratio"]))
+            if self.spec.fit_anisotropy
+            else Anisotropy()
+        )
         structures = tuple(
-            Structure(family, float(values[f"c{k}"]), float(values.get(f"a{k}", 1.0)), (float(values[f"e{k}"]) if f"e{k}" in values else None), anisotropy)
+            Structure(
+                family,
+                float(values[f"c{k}"]),
+                float(values.get(f"a{k}", 1.0)),
+                (float(values[f"e{k}"]) if f"e{k}" in values else None),
+                anisotropy,
+            )
             for k, family in enumerate(self.spec.families)
         )
         nugget = float(values["nugget"]) if self.spec.fit_nugget else self.spec.fixed_nugget
@@ -213,7 +252,9 @@ class _Problem:
         nugget = self.nugget0 if self.spec.fit_nugget else self.spec.fixed_nugget
         structural = max(self.sill0 - nugget, 0.05 * self.sill0)
         two = len(self.spec.families) == 2
-        ranges = [(self.range0 / 3, self.range0 * 1.5)] if two else [(self.range0,), (self.hmax / 3,), (2 * self.hmax / 3,)]
+        ranges = (
+            [(self.range0 / 3, self.range0 * 1.5)] if two else [(self.range0,), (self.hmax / 3,), (2 * self.hmax / 3,)]
+        )
         azimuths = list(self.azimuths) if self.spec.fit_anisotropy else [0.0]
         out = []
         for rs in ranges:
@@ -263,14 +304,35 @@ def _solve(problem: _Problem, weights: np.ndarray, start: np.ndarray):
 
     with python_warnings.catch_warnings():
         python_warnings.simplefilter("ignore", RuntimeWarning)
-        return least_squares(residuals, start, bounds=(problem.low, problem.high), method="trf", x_scale="jac", max_nfev=400 * problem.size)
+        return least_squares(
+            residuals,
+            start,
+            bounds=(problem.low, problem.high),
+            method="trf",
+            x_scale="jac",
+            max_nfev=400 * problem.size,
+            ftol=1e-12,
+            xtol=1e-12,
+            gtol=1e-12,
+        )
 
 
 def _fit_candidate(spec: _Spec, points: ExperimentalPoints, weighting: str, sample_variance: float | None) -> Candidate:
     problem = _Problem(spec, points, sample_variance)
     n, p = len(problem.h), problem.size
     if n <= p:
-        return Candidate(None, spec.label, p, None, None, None, False, 0, f"needs more than {p} usable classes, has {n}")
+        return Candidate(
+            None,
+            spec.label,
+            p,
+            None,
+            None,
+            None,
+            False,
+            0,
+            f"needs more than {p} usable classes, has {n}",
+            spec.families,
+        )
     first_weights = _weights("pairs" if weighting == "cressie" else weighting, problem, None)
     best, evaluations = None, 0
     for start in problem.starts():
@@ -297,7 +359,28 @@ def _fit_candidate(spec: _Spec, points: ExperimentalPoints, weighting: str, samp
     criterion = n * math.log(max(sse / n, 1e-300)) + 2 * p
     if n - p - 1 > 0:
         criterion += 2 * p * (p + 1) / (n - p - 1)
-    return Candidate(problem.model(theta), spec.label, p, sse, r2, criterion, bool(converged), int(evaluations))
+    return Candidate(
+        problem.model(theta),
+        spec.label,
+        p,
+        sse,
+        r2,
+        criterion,
+        bool(converged),
+        int(evaluations),
+        families=spec.families,
+    )
+
+
+def select(ranked: list[Candidate]) -> Candidate:
+    """The selected candidate: fewest parameters, then :data:`PREFERENCE`, among the equally supported."""
+    top = ranked[0]
+    if not top.converged:
+        return top
+    equivalent = [
+        c for c in ranked if c.converged and c.criterion is not None and c.criterion <= top.criterion + EQUIVALENT
+    ]
+    return min(equivalent, key=lambda c: (c.parameters, [PREFERENCE.index(f) for f in c.families], c.criterion))
 
 
 def _validate_options(families, nugget, weighting, anisotropy, structures, points, dimension):
@@ -306,20 +389,27 @@ def _validate_options(families, nugget, weighting, anisotropy, structures, point
         issues.append(FieldIssue("/weighting", f"must be one of {', '.join(WEIGHTINGS)}"))
     if families != "auto":
         if not families:
-            issues.append(FieldIssue("/families", "give at least one family, or \"auto\""))
+            issues.append(FieldIssue("/families", 'give at least one family, or "auto"'))
         for k, name in enumerate(families or []):
             if name not in FAMILIES:
                 issues.append(FieldIssue(f"/families/{k}", f"unknown family {name!r}; valid: {', '.join(FAMILIES)}"))
             elif dimension > FAMILIES[name].max_dimension:
-                issues.append(FieldIssue(f"/families/{k}", f"{name} is valid only up to {FAMILIES[name].max_dimension}-D; the samples are {dimension}-D"))
+                issues.append(
+                    FieldIssue(
+                        f"/families/{k}",
+                        f"{name} is valid only up to {FAMILIES[name].max_dimension}-D; the samples are {dimension}-D",
+                    )
+                )
     if isinstance(nugget, str) and nugget not in ("fit", "none"):
-        issues.append(FieldIssue("/nugget", "must be \"fit\", \"none\" or a fixed non-negative number"))
+        issues.append(FieldIssue("/nugget", 'must be "fit", "none" or a fixed non-negative number'))
     elif not isinstance(nugget, str) and not (math.isfinite(nugget) and nugget >= 0):
         issues.append(FieldIssue("/nugget", "a fixed nugget must be zero or positive"))
     if anisotropy not in ("none", "fit"):
-        issues.append(FieldIssue("/anisotropy", "must be \"none\" or \"fit\""))
+        issues.append(FieldIssue("/anisotropy", 'must be "none" or "fit"'))
     elif anisotropy == "fit" and len(np.unique(points.azimuth[points.usable])) < 2:
-        issues.append(FieldIssue("/anisotropy", "fitting anisotropy needs usable classes in at least 2 direction classes"))
+        issues.append(
+            FieldIssue("/anisotropy", "fitting anisotropy needs usable classes in at least 2 direction classes")
+        )
     if structures not in (1, 2):
         issues.append(FieldIssue("/structures", "must be 1 or 2"))
     if issues:
@@ -346,8 +436,9 @@ def fit_model(
     dimension : int
         Dimension of the samples (restricts families valid only in lower dimensions).
     families : "auto" or list of str
-        ``auto`` tries every bounded family valid in ``dimension`` with and without a
-        nugget, and nested pairs of spherical, exponential and gaussian structures.
+        ``auto`` tries every monotone bounded family valid in ``dimension`` (all bounded
+        families but the hole-effect cardinal_sine) with and without a nugget, and
+        nested pairs of spherical, exponential and gaussian structures.
     nugget : "fit", "none" or float
     weighting : str
         One of :data:`WEIGHTINGS`.
@@ -368,7 +459,9 @@ def fit_model(
     used = int(points.usable.sum())
     left_out = int(points.usable.size - used)
     if left_out:
-        notes.append(f"{left_out} classes left out of the fit (no pairs, undefined value or fewer than min_pairs pairs)")
+        notes.append(
+            f"{left_out} classes left out of the fit (no pairs, undefined value or fewer than min_pairs pairs)"
+        )
     if used == 0:
         raise InvalidInput.at("/experimental", "no class has a value and enough pairs to fit a model")
     if np.all(points.value[points.usable] == 0.0):
@@ -380,22 +473,32 @@ def fit_model(
     feasible = [c for c in candidates if c.criterion is not None]
     if not feasible:
         needed = min(c.parameters for c in candidates) + 1
-        raise InvalidInput.at("/experimental", f"{used} usable classes cannot support the candidates: at least {needed} are needed (use narrower or more classes, or lower min_pairs)")
-    ranked = sorted(feasible, key=lambda c: (not c.converged, c.criterion)) + [c for c in candidates if c.criterion is None]
-    best = ranked[0]
+        raise InvalidInput.at(
+            "/experimental",
+            f"{used} usable classes cannot support the candidates: at least {needed} are needed (use narrower or more classes, or lower min_pairs)",
+        )
+    ranked = sorted(feasible, key=lambda c: (not c.converged, c.criterion)) + [
+        c for c in candidates if c.criterion is None
+    ]
+    best = select(ranked)
     if best.r_squared is not None and best.r_squared < 0.3:
-        notes.append(f"the best model explains little of the experimental variogram (R^2 = {best.r_squared:.2f}); the data may be close to pure nugget")
+        notes.append(
+            f"the best model explains little of the experimental variogram (R^2 = {best.r_squared:.2f}); the data may be close to pure nugget"
+        )
     return FitResult(best, tuple(ranked), points, weighting, nugget, anisotropy, tuple(notes))
 
 
 def points_from_experimental(result, min_pairs: int) -> ExperimentalPoints:
     """Flatten an :class:`~lagwise.core.experimental.ExperimentalVariogram` into fit points."""
-    rows = [(d.direction.azimuth, k, c, row) for k, d in enumerate(result.directions) for c, row in enumerate(d.classes)]
+    rows = [
+        (d.direction.azimuth, k, c, row) for k, d in enumerate(result.directions) for c, row in enumerate(d.classes)
+    ]
     return points_from_rows(rows, min_pairs)
 
 
 def points_from_rows(rows, min_pairs: int) -> ExperimentalPoints:
     """Build fit points from (azimuth, direction index, class index, row) with row.mean_distance, value, pairs."""
+
     def num(v):
         return np.nan if v is None else float(v)
 
@@ -412,3 +515,16 @@ def points_from_rows(rows, min_pairs: int) -> ExperimentalPoints:
         klass=np.array([c for _, _, c, _ in rows]),
         usable=usable,
     )
+
+
+SEMIVARIANCE_STATISTICS = ("semivariance", "semivariance_robust", "semivariance_median")
+
+
+def fitted_values(result: FitResult) -> np.ndarray:
+    """The best model's semivariance at every class (vectors along each class's azimuth)."""
+    az = np.radians(result.points.azimuth)
+    h = result.points.distance
+    vectors = np.column_stack([h * np.sin(az), h * np.cos(az)])
+    model = result.best.model
+    anisotropic = any(not s.anisotropy.isotropic for s in model.structures)
+    return model.semivariance(vectors if anisotropic else h)

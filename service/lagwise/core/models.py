@@ -67,15 +67,64 @@ class Family:
 FAMILIES = {
     f.name: f
     for f in [
-        Family("spherical", True, 3, None, None, "c (1.5 r - 0.5 r^3) for r = h/a < 1, c beyond (Chilès & Delfiner 2012, eq. 2.47)"),
+        Family(
+            "spherical",
+            True,
+            3,
+            None,
+            None,
+            "c (1.5 r - 0.5 r^3) for r = h/a < 1, c beyond (Chilès & Delfiner 2012, eq. 2.47)",
+        ),
         Family("exponential", True, 3, None, None, "c (1 - exp(-3 h/a)) (Webster & Oliver 2007, eq. 6.14)"),
         Family("gaussian", True, 3, None, None, "c (1 - exp(-3 (h/a)^2)) (Webster & Oliver 2007, eq. 6.16)"),
-        Family("cubic", True, 3, None, None, "c (7 r^2 - 35/4 r^3 + 7/2 r^5 - 3/4 r^7) for r < 1 (Chilès & Delfiner 2012, eq. 2.50)"),
-        Family("pentaspherical", True, 3, None, None, "c (15/8 r - 5/4 r^3 + 3/8 r^5) for r < 1 (Webster & Oliver 2007, eq. 6.12)"),
-        Family("circular", True, 2, None, None, "c (1 - (2/pi) arccos r + (2 r/pi) sqrt(1 - r^2)) for r < 1; 1-D and 2-D only (Webster & Oliver 2007, eq. 6.10)"),
-        Family("matern", True, 3, "smoothness", (0.05, 20.0), "c (1 - 2^(1-nu)/Gamma(nu) u^nu K_nu(u)), u = h/s, s set so that 95 % is reached at a (Stein 1999)"),
-        Family("stable", True, 3, "shape", (0.05, 2.0), "c (1 - exp(-3 (h/a)^alpha)), 0 < alpha <= 2 (Chilès & Delfiner 2012, eq. 2.55)"),
-        Family("cardinal_sine", True, 3, None, None, "c (1 - sin(u)/u), u = h/s, s set so that 95 % is first reached at a; hole effect (Chilès & Delfiner 2012, eq. 2.58)"),
+        Family(
+            "cubic",
+            True,
+            3,
+            None,
+            None,
+            "c (7 r^2 - 35/4 r^3 + 7/2 r^5 - 3/4 r^7) for r < 1 (Chilès & Delfiner 2012, eq. 2.50)",
+        ),
+        Family(
+            "pentaspherical",
+            True,
+            3,
+            None,
+            None,
+            "c (15/8 r - 5/4 r^3 + 3/8 r^5) for r < 1 (Webster & Oliver 2007, eq. 6.12)",
+        ),
+        Family(
+            "circular",
+            True,
+            2,
+            None,
+            None,
+            "c (1 - (2/pi) arccos r + (2 r/pi) sqrt(1 - r^2)) for r < 1; 1-D and 2-D only (Webster & Oliver 2007, eq. 6.10)",
+        ),
+        Family(
+            "matern",
+            True,
+            3,
+            "smoothness",
+            (0.05, 20.0),
+            "c (1 - 2^(1-nu)/Gamma(nu) u^nu K_nu(u)), u = h/s, s set so that 95 % is reached at a (Stein 1999)",
+        ),
+        Family(
+            "stable",
+            True,
+            3,
+            "shape",
+            (0.05, 2.0),
+            "c (1 - exp(-3 (h/a)^alpha)), 0 < alpha <= 2 (Chilès & Delfiner 2012, eq. 2.55)",
+        ),
+        Family(
+            "cardinal_sine",
+            True,
+            3,
+            None,
+            None,
+            "c (1 - sin(u)/u), u = h/s, s set so that 95 % is first reached at a; hole effect (Chilès & Delfiner 2012, eq. 2.58)",
+        ),
         Family("linear", False, 3, None, None, "slope * h (no sill)"),
         Family("power", False, 3, "exponent", (0.0, 2.0), "coefficient * h^exponent, 0 < exponent < 2 (no sill)"),
     ]
@@ -265,7 +314,9 @@ class VariogramModel:
     def covariance(self, h: np.ndarray) -> np.ndarray:
         """C(h) = sill - gamma(h); refused for unbounded models."""
         if not self.bounded:
-            raise InvalidInput.at("/model", "the model has no sill (linear or power structure): covariances are undefined")
+            raise InvalidInput.at(
+                "/model", "the model has no sill (linear or power structure): covariances are undefined"
+            )
         return self.sill - self.semivariance(h)
 
     def as_dict(self) -> dict:
@@ -297,7 +348,9 @@ def validate_model(model: VariogramModel, dimension: int, pointer: str = "/model
             ok = value is not None and low < value and (value <= high if closed_high else value < high)
             if not ok:
                 bracket = "]" if closed_high else ")"
-                issues.append(FieldIssue(f"{base}/{family.extra}", f"is required and must lie in ({low:g}, {high:g}{bracket}"))
+                issues.append(
+                    FieldIssue(f"{base}/{family.extra}", f"is required and must lie in ({low:g}, {high:g}{bracket}")
+                )
         a = s.anisotropy
         if not (0 < a.ratio <= 1):
             issues.append(FieldIssue(f"{base}/anisotropy/ratio", "must lie in (0, 1]"))
@@ -306,6 +359,50 @@ def validate_model(model: VariogramModel, dimension: int, pointer: str = "/model
         if not (0 <= a.azimuth < 360):
             issues.append(FieldIssue(f"{base}/anisotropy/azimuth", "must lie in [0, 360) degrees"))
         if dimension > family.max_dimension:
-            issues.append(FieldIssue(f"{base}/family", f"{family.name} is a valid model only up to {family.max_dimension}-D; the samples are {dimension}-D"))
+            issues.append(
+                FieldIssue(
+                    f"{base}/family",
+                    f"{family.name} is a valid model only up to {family.max_dimension}-D; the samples are {dimension}-D",
+                )
+            )
     if issues:
         raise InvalidInput(issues)
+
+
+def family_catalogue() -> list[dict]:
+    """Every family with its parameters (units, bounds) and validity, for people and clients."""
+    catalogue = []
+    for f in FAMILIES.values():
+        if f.name == "linear":
+            params = [{"name": "slope", "unit": "value units squared per coordinate unit", "minimum": 0.0}]
+        elif f.name == "power":
+            params = [
+                {"name": "coefficient", "unit": "value units squared per coordinate unit^exponent", "minimum": 0.0},
+                {"name": "exponent", "unit": "dimensionless", "minimum": 0.0, "maximum": 2.0, "exclusive": True},
+            ]
+        else:
+            params = [
+                {"name": "partial_sill", "unit": "value units squared", "minimum": 0.0},
+                {"name": "range", "unit": "coordinate units (practical range)", "minimum": 0.0, "exclusive": True},
+            ]
+            if f.extra is not None:
+                low, high = f.extra_bounds
+                params.append(
+                    {
+                        "name": f.extra,
+                        "unit": "dimensionless",
+                        "minimum": low,
+                        "maximum": high,
+                        "exclusive": f.name != "stable",
+                    }
+                )
+        catalogue.append(
+            {
+                "name": f.name,
+                "bounded": f.bounded,
+                "max_dimension": f.max_dimension,
+                "parameters": params,
+                "formula": f.description,
+            }
+        )
+    return catalogue
