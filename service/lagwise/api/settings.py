@@ -9,6 +9,9 @@ LAGWISE_MAX_PAIRS              2000000000  pairs within the search radius x dire
 LAGWISE_MAX_MEDIAN_PAIRS       5000000     differences held for the median-based estimator
 LAGWISE_MAX_SCATTER_PAIRS      100000      pairs returned for one h-scattergram
 LAGWISE_MAX_MAP_CELLS          201         cells per side of a variogram map
+LAGWISE_MAX_UNIQUE_SAMPLES     10000       samples for kriging with the unique neighbourhood
+LAGWISE_MAX_TARGETS            2000000     prediction targets per request
+LAGWISE_MAX_KRIGING_FLOPS      2e13        estimated floating-point work of one request's kriging
 LAGWISE_THREADS                cores/workers  compute threads per worker process
 =============================  ==========  ==============================================
 """

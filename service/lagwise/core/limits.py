@@ -29,6 +29,14 @@ class Limits:
         Pairs returned for one h-scattergram (``LAGWISE_MAX_SCATTER_PAIRS``).
     max_map_cells : int
         Cells per side of a variogram map, i.e. 2 * cells + 1 (``LAGWISE_MAX_MAP_CELLS``).
+    max_unique_samples : int
+        Samples for kriging with the unique neighbourhood, whose matrix is factorised
+        whole (``LAGWISE_MAX_UNIQUE_SAMPLES``; 10,000 take about 30 s).
+    max_targets : int
+        Prediction targets per request (``LAGWISE_MAX_TARGETS``).
+    max_kriging_flops : int
+        Estimated floating-point operations of the kriging systems of one request
+        (``LAGWISE_MAX_KRIGING_FLOPS``).
     """
 
     max_samples: int = 200_000
@@ -36,6 +44,9 @@ class Limits:
     max_median_pairs: int = 5_000_000
     max_scatter_pairs: int = 100_000
     max_map_cells: int = 201
+    max_unique_samples: int = 10_000
+    max_targets: int = 2_000_000
+    max_kriging_flops: int = 20_000_000_000_000
 
     def check_samples(self, n: int) -> None:
         """Refuse more than ``max_samples`` samples."""

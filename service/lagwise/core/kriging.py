@@ -1,0 +1,326 @@
+"""Kriging: simple, ordinary and universal, with unique or moving neighbourhoods.
+
+Notation: samples z_i at x_i, target x_0. The structural covariance is
+C_s(h) = c_0 - gamma_s(h) with gamma_s the model without its nugget tau^2 and c_0
+its sill (any constant for unbounded models, which only ordinary and universal
+kriging accept: the constant cancels under the unbiasedness constraint). Each
+system is
+
+    [ K  F ] [lambda]   [k]        K_ij = C_s(x_i - x_j) + tau^2 [i = j]
+    [ F' 0 ] [  nu  ] = [f]        k_i  = C_s(x_i - x_0) + tau^2 [x_i = x_0] (micro-scale nugget)
+
+with F the drift functions at the samples (none for simple kriging, the constant 1
+for ordinary, 1 and the centred, scaled coordinates -- and for ``quadratic`` their
+squares and products -- for universal) and f those at the target. The estimate is
+lambda' z (simple: m + lambda'(z - m)); the kriging variance is
+k_00 - lambda' k - f' nu, with k_00 = C_s(0) + tau^2 for a micro-scale nugget (so
+kriging is exact at the samples and the variance elsewhere includes the nugget)
+and C_s(0) when the nugget is measurement error (estimates smoothed, variances of
+the noise-free signal). Chilès & Delfiner (2012), sections 3.3-3.4; Cressie (1993),
+section 3.2.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+from scipy.linalg import LinAlgError, lu_factor, lu_solve
+
+from .errors import FieldIssue, InvalidInput, LimitExceeded
+from .models import VariogramModel, validate_model
+from .neighbourhood import NO_NEIGHBOURS, Neighbourhood, NeighbourSearch, validate_neighbourhood
+from .samples import SampleSet
+
+KRIGING_TYPES = ("ordinary", "simple", "universal")
+DRIFTS = ("linear", "quadratic")
+NUGGET_ROLES = ("micro_scale", "measurement_error")
+TARGET_CHUNK = 20_000
+SINGULAR = "the kriging system is singular for this target's samples"
+
+
+@dataclass(frozen=True)
+class KrigingSpec:
+    """Kriging type and options (see the module notation)."""
+
+    type: str = "ordinary"
+    mean: float | None = None
+    drift: str | None = None
+    nugget_as: str = "micro_scale"
+
+    def as_dict(self) -> dict:
+        out = {"type": self.type, "nugget_as": self.nugget_as}
+        if self.type == "simple":
+            out["mean"] = self.mean
+        if self.type == "universal":
+            out["drift"] = self.drift
+        return out
+
+
+def validate_spec(spec: KrigingSpec, model: VariogramModel, dimension: int) -> KrigingSpec:
+    """Check the kriging options against the model; returns the spec with defaults filled."""
+    issues = []
+    if spec.type not in KRIGING_TYPES:
+        issues.append(FieldIssue("/kriging/type", f"must be one of {', '.join(KRIGING_TYPES)}"))
+    if spec.nugget_as not in NUGGET_ROLES:
+        issues.append(FieldIssue("/kriging/nugget_as", f"must be one of {', '.join(NUGGET_ROLES)}"))
+    if spec.type == "simple":
+        if spec.mean is None or not math.isfinite(spec.mean):
+            issues.append(FieldIssue("/kriging/mean", "simple kriging needs the known mean"))
+        if not model.bounded:
+            issues.append(FieldIssue("/model", "simple kriging needs a model with a sill; linear and power structures have none"))
+    if spec.type == "universal" and spec.drift not in DRIFTS:
+        issues.append(FieldIssue("/kriging/drift", f"universal kriging needs a drift: one of {', '.join(DRIFTS)}"))
+    if issues:
+        raise InvalidInput(issues)
+    validate_model(model, dimension)
+    return spec
+
+
+@dataclass(frozen=True)
+class Frame:
+    """Centring and scaling of coordinates for drift terms (numerical conditioning)."""
+
+    centre: np.ndarray
+    scale: float
+
+    @classmethod
+    def of(cls, coords: np.ndarray) -> "Frame":
+        centre = coords.mean(axis=0)
+        scale = float(np.max(np.abs(coords - centre))) or 1.0
+        return cls(centre, scale)
+
+    def drift(self, spec: KrigingSpec, points: np.ndarray) -> np.ndarray:
+        """Drift functions at points (..., d): shape (..., p)."""
+        if spec.type == "simple":
+            return np.zeros(points.shape[:-1] + (0,))
+        ones = np.ones(points.shape[:-1] + (1,))
+        if spec.type == "ordinary":
+            return ones
+        u = (points - self.centre) / self.scale
+        terms = [ones, u]
+        if spec.drift == "quadratic":
+            d = u.shape[-1]
+            terms.append(np.stack([u[..., a] * u[..., b] for a in range(d) for b in range(a, d)], axis=-1))
+        return np.concatenate(terms, axis=-1)
+
+
+class Covariance:
+    """C_s(h) + nugget terms for a model, evaluated on separation vectors of any leading shape."""
+
+    def __init__(self, model: VariogramModel, spec: KrigingSpec):
+        self.model = model
+        self.structural = VariogramModel(0.0, model.structures)
+        self.nugget = model.nugget
+        self.c0 = self.structural.sill if self.structural.bounded else 0.0
+        self.micro = spec.nugget_as == "micro_scale"
+
+    def between(self, a: np.ndarray, b: np.ndarray, same: bool = False) -> np.ndarray:
+        """Covariance matrix between point sets a (..., m, d) and b (..., q, d).
+
+        ``same``: a and b are the same samples (the nugget sits on the diagonal).
+        Otherwise, with a micro-scale nugget, coincident points get the nugget too.
+        """
+        h = a[..., :, None, :] - b[..., None, :, :]
+        shape = h.shape[:-1]
+        flat = h.reshape(-1, h.shape[-1])
+        cov = (self.c0 - self.structural.semivariance(flat)).reshape(shape)
+        if same:
+            m = shape[-1]
+            cov = cov + self.nugget * np.eye(m)
+        elif self.micro and self.nugget:
+            cov = cov + self.nugget * (np.abs(h).sum(axis=-1) == 0)
+        return cov
+
+    @property
+    def target_variance(self) -> float:
+        """k_00: covariance of the target with itself."""
+        return self.c0 + (self.nugget if self.micro else 0.0)
+
+
+@dataclass(frozen=True)
+class Prediction:
+    """Kriging estimates at targets.
+
+    Attributes
+    ----------
+    estimate, variance : ndarray, shape (m,)
+        NaN where no estimate could be made (see ``reasons``).
+    reasons : dict
+        Target index -> why it has no estimate.
+    weights : list of dict
+        For the targets asked for: sample indexes, weights and Lagrange multipliers.
+    """
+
+    estimate: np.ndarray
+    variance: np.ndarray
+    reasons: dict
+    weights: list
+
+
+class Kriger:
+    """Kriging from one sample set with one model, specification and neighbourhood."""
+
+    def __init__(self, samples: SampleSet, model: VariogramModel, spec: KrigingSpec, neighbourhood: Neighbourhood, *, max_unique: int = 10_000):
+        validate_neighbourhood(neighbourhood)
+        self.spec = validate_spec(spec, model, samples.dimension)
+        self.samples = samples
+        self.coords = samples.coords
+        self.values = samples.values
+        self.model = model
+        self.cov = Covariance(model, spec)
+        self.frame = Frame.of(samples.coords)
+        self.neighbourhood = neighbourhood
+        self.drift_terms = self.frame.drift(spec, samples.coords[:1]).shape[-1]
+        if neighbourhood.unique:
+            if samples.size > max_unique:
+                raise LimitExceeded(
+                    "LAGWISE_MAX_UNIQUE_SAMPLES", max_unique, samples.size,
+                    'The unique neighbourhood factorises one matrix of all samples; give a moving neighbourhood, e.g. {"max_points": 24}.',
+                    "/neighbourhood",
+                )
+            self._factor = self._factor_unique()
+        else:
+            self.search = NeighbourSearch(samples.coords, model, neighbourhood)
+
+    # ---- unique neighbourhood ---------------------------------------------
+
+    def system_matrix(self, coords: np.ndarray | None = None) -> np.ndarray:
+        """The bordered kriging matrix [[K, F], [F', 0]] of all samples (or of ``coords``)."""
+        coords = self.coords if coords is None else coords
+        K = self.cov.between(coords, coords, same=True)
+        F = self.frame.drift(self.spec, coords)
+        p = F.shape[1]
+        n = coords.shape[0]
+        A = np.zeros((n + p, n + p))
+        A[:n, :n] = K
+        A[:n, n:] = F
+        A[n:, :n] = F.T
+        return A
+
+    def _check_drift_rank(self, F: np.ndarray, pointer: str = "/samples") -> None:
+        if F.shape[1] and np.linalg.matrix_rank(F) < F.shape[1]:
+            raise InvalidInput.at(
+                pointer,
+                f"the {self.spec.drift or 'constant'} drift cannot be estimated from these samples "
+                f"(all {F.shape[0]} samples lie on a line or plane that the drift terms cannot separate)",
+            )
+
+    def _factor_unique(self):
+        A = self.system_matrix()
+        self._check_drift_rank(A[: self.samples.size, self.samples.size :])
+        try:
+            factor = lu_factor(A, check_finite=True)
+        except (LinAlgError, ValueError) as exc:
+            raise InvalidInput.at("/model", f"the kriging matrix cannot be factorised: {exc}") from None
+        diagonal = np.abs(np.diag(factor[0]))
+        if diagonal.min() <= 1e-13 * diagonal.max():
+            worst = int(factor[1][int(np.argmin(diagonal))]) if np.argmin(diagonal) < self.samples.size else None
+            who = f" (near sample {self.samples.ids[worst]})" if worst is not None and worst < self.samples.size else ""
+            raise InvalidInput.at("/samples", f"the kriging matrix is singular{who}: samples too close together for a model without nugget, or a drift the samples cannot support")
+        return factor
+
+    def _predict_unique(self, targets: np.ndarray, want_weights: set) -> Prediction:
+        m = targets.shape[0]
+        n = self.samples.size
+        estimate, variance = np.empty(m), np.empty(m)
+        weights = []
+        z = self.values
+        # Right-hand sides take n x chunk x d separations: keep them near 16 MB.
+        step = max(1, min(TARGET_CHUNK, 2_000_000 // max(n, 1)))
+        for start in range(0, m, step):
+            chunk = targets[start : start + step]
+            rhs = np.concatenate([self.cov.between(self.coords, chunk), self.frame.drift(self.spec, chunk).T], axis=0)
+            solution = lu_solve(self._factor, rhs)
+            lam = solution[:n]
+            est, var = self._finish(lam, solution[n:], rhs[:n], rhs[n:], z)
+            estimate[start : start + len(chunk)] = est
+            variance[start : start + len(chunk)] = var
+            for t in sorted(i for i in want_weights if start <= i < start + len(chunk)):
+                weights.append({"target": t, "samples": list(range(n)), "weights": lam[:, t - start], "lagrange": solution[n:, t - start]})
+        return Prediction(estimate, variance, {}, weights)
+
+    def _finish(self, lam, nu, k, f, z):
+        """Estimates and variances from weights (n, m) or (m, k) layouts, with the same rules."""
+        if self.spec.type == "simple":
+            est = self.spec.mean + np.einsum("nm,n->m", lam, z - self.spec.mean)
+        else:
+            est = np.einsum("nm,n->m", lam, z)
+        var = self.cov.target_variance - np.einsum("nm,nm->m", lam, k) - np.einsum("pm,pm->m", nu, f)
+        return est, np.maximum(var, 0.0)
+
+    # ---- moving neighbourhood ---------------------------------------------
+
+    def _predict_moving(self, targets: np.ndarray, want_weights: set, exclude: np.ndarray | None = None, workers: int = 1) -> Prediction:
+        m = targets.shape[0]
+        estimate = np.full(m, np.nan)
+        variance = np.full(m, np.nan)
+        reasons: dict = {}
+        weights = []
+        for start in range(0, m, TARGET_CHUNK):
+            stop = min(m, start + TARGET_CHUNK)
+            ex = None if exclude is None else exclude[start:stop]
+            idx, valid = self.search.query(targets[start:stop], ex, workers)
+            counts = valid.sum(axis=1)
+            for t in np.flatnonzero(counts == 0):
+                reasons[start + int(t)] = NO_NEIGHBOURS
+            for k in np.unique(counts[counts > 0]):
+                rows = np.flatnonzero(counts == k)
+                self._solve_group(targets[start:stop], idx[rows, :k], rows, start, estimate, variance, reasons, weights, want_weights)
+        return Prediction(estimate, variance, reasons, weights)
+
+    def _solve_group(self, targets, idx, rows, start, estimate, variance, reasons, weights, want_weights):
+        """Solve the systems of targets that have the same number of neighbours, as one batch."""
+        pts = self.coords[idx]
+        tgt = targets[rows][:, None, :]
+        k = idx.shape[1]
+        K = self.cov.between(pts, pts, same=True)
+        F = self.frame.drift(self.spec, pts)
+        p = F.shape[-1]
+        A = np.zeros((len(rows), k + p, k + p))
+        A[:, :k, :k] = K
+        A[:, :k, k:] = F
+        A[:, k:, :k] = np.swapaxes(F, 1, 2)
+        b = np.concatenate([self.cov.between(pts, tgt)[..., 0], self.frame.drift(self.spec, tgt)[:, 0, :]], axis=1)
+        solution, ok = _batched_solve(A, b)
+        lam, nu = solution[:, :k], solution[:, k:]
+        z = self.values[idx]
+        if self.spec.type == "simple":
+            est = self.spec.mean + np.einsum("mk,mk->m", lam, z - self.spec.mean)
+        else:
+            est = np.einsum("mk,mk->m", lam, z)
+        var = self.cov.target_variance - np.einsum("mk,mk->m", lam, b[:, :k]) - np.einsum("mp,mp->m", nu, b[:, k:])
+        positions = start + rows
+        estimate[positions[ok]] = est[ok]
+        variance[positions[ok]] = np.maximum(var[ok], 0.0)
+        for r in np.flatnonzero(~ok):
+            reasons[int(positions[r])] = SINGULAR + " (samples " + ", ".join(self.samples.ids[i] for i in idx[r]) + ")"
+        for r, t in enumerate(positions):
+            if int(t) in want_weights and ok[r]:
+                weights.append({"target": int(t), "samples": idx[r].tolist(), "weights": lam[r], "lagrange": nu[r]})
+
+    # ---- public ------------------------------------------------------------
+
+    def predict(self, targets: np.ndarray, *, weights_for: tuple[int, ...] = (), workers: int = 1) -> Prediction:
+        """Estimates and kriging variances at targets (m, d) in the samples' working coordinates."""
+        targets = np.asarray(targets, dtype=np.float64)
+        want = set(weights_for)
+        if self.neighbourhood.unique:
+            return self._predict_unique(targets, want)
+        return self._predict_moving(targets, want, workers=workers)
+
+
+def _batched_solve(A: np.ndarray, b: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Solve many small systems at once; singular ones are marked False (and left at 0)."""
+    try:
+        return np.linalg.solve(A, b[..., None])[..., 0], np.ones(len(A), dtype=bool)
+    except np.linalg.LinAlgError:
+        out = np.zeros_like(b)
+        ok = np.ones(len(A), dtype=bool)
+        for i in range(len(A)):
+            try:
+                out[i] = np.linalg.solve(A[i], b[i])
+            except np.linalg.LinAlgError:
+                ok[i] = False
+        return out, ok

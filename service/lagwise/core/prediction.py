@@ -1,0 +1,130 @@
+"""Kriging predictions at target points or on a regular grid."""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from .errors import FieldIssue, InvalidInput, LimitExceeded
+from .kriging import Kriger, KrigingSpec, Prediction
+from .limits import Limits
+from .models import VariogramModel
+from .neighbourhood import Neighbourhood
+from .samples import SampleSet
+
+MAX_WEIGHT_TARGETS = 20
+
+
+@dataclass(frozen=True)
+class Grid:
+    """A regular grid: ``origin`` and ``spacing`` per axis (coordinate units, or degrees for
+    geographic samples) and ``shape`` (points per axis); points run x fastest."""
+
+    origin: tuple[float, ...]
+    spacing: tuple[float, ...]
+    shape: tuple[int, ...]
+
+    @property
+    def size(self) -> int:
+        return math.prod(self.shape)
+
+    def points(self) -> np.ndarray:
+        axes = [o + s * np.arange(k) for o, s, k in zip(self.origin, self.spacing, self.shape, strict=True)]
+        mesh = np.meshgrid(*axes, indexing="ij")
+        # x fastest: iterate the last axis of the transposed mesh first.
+        return np.column_stack([m.transpose(tuple(reversed(range(len(axes))))).ravel() for m in mesh])
+
+    def as_dict(self) -> dict:
+        return {"origin": list(self.origin), "spacing": list(self.spacing), "shape": list(self.shape), "order": "x fastest"}
+
+
+@dataclass(frozen=True)
+class PredictionResult:
+    """Targets (as given), estimates, variances, reasons for missing values and audit weights."""
+
+    targets: np.ndarray
+    prediction: Prediction
+    grid: Grid | None
+
+
+def _validate_grid(grid: Grid, dimension: int) -> None:
+    issues = []
+    if not (len(grid.origin) == len(grid.spacing) == len(grid.shape) == dimension):
+        issues.append(FieldIssue("/grid", f"origin, spacing and shape need {dimension} entries each (the samples are {dimension}-D)"))
+    else:
+        for a, s in enumerate(grid.spacing):
+            if not (math.isfinite(s) and s > 0):
+                issues.append(FieldIssue(f"/grid/spacing/{a}", "must be positive"))
+        for a, k in enumerate(grid.shape):
+            if k < 1:
+                issues.append(FieldIssue(f"/grid/shape/{a}", "must be at least 1"))
+    if issues:
+        raise InvalidInput(issues)
+
+
+def _project(samples: SampleSet, targets: np.ndarray) -> np.ndarray:
+    if samples.projection is None:
+        return targets
+    if np.any(np.abs(targets[:, 1]) > 90):
+        bad = int(np.flatnonzero(np.abs(targets[:, 1]) > 90)[0])
+        raise InvalidInput.at(f"/targets/y/{bad}", "latitude must lie in [-90, 90] degrees")
+    x, y = samples.projection.forward(targets[:, 0], targets[:, 1])
+    return np.column_stack([x, y] + ([targets[:, 2]] if targets.shape[1] == 3 else []))
+
+
+def _check_cost(samples: SampleSet, m: int, neighbourhood: Neighbourhood, limits: Limits) -> None:
+    limits.check_samples(samples.size)
+    if m > limits.max_targets:
+        raise LimitExceeded("LAGWISE_MAX_TARGETS", limits.max_targets, m, "Predict on a coarser grid or in several requests.", "/grid")
+    n = samples.size
+    if neighbourhood.unique:
+        flops = n**3 / 3 + 2.0 * m * n * n
+    else:
+        k = min(neighbourhood.max_points, n) + 10
+        flops = m * (k**3 / 3 + 2 * k * k)
+    if flops > limits.max_kriging_flops:
+        raise LimitExceeded("LAGWISE_MAX_KRIGING_FLOPS", limits.max_kriging_flops, flops, "Use fewer targets, fewer neighbours or a moving neighbourhood.", "/neighbourhood")
+
+
+def predict(
+    samples: SampleSet,
+    model: VariogramModel,
+    *,
+    spec: KrigingSpec = KrigingSpec(),
+    neighbourhood: Neighbourhood = Neighbourhood(),
+    targets: np.ndarray | None = None,
+    grid: Grid | None = None,
+    weights_for: tuple[int, ...] = (),
+    limits: Limits = Limits(),
+    workers: int = 1,
+) -> PredictionResult:
+    """Kriging estimates and variances at ``targets`` (m, d) or on ``grid``.
+
+    Targets are in the samples' input coordinates (degrees for geographic samples).
+    ``weights_for`` lists up to 20 target indexes whose kriging weights are returned.
+    """
+    if (targets is None) == (grid is None):
+        raise InvalidInput.at("/targets", "give either targets or grid")
+    if grid is not None:
+        _validate_grid(grid, samples.dimension)
+        points = None
+    else:
+        points = np.asarray(targets, dtype=np.float64)
+        if points.ndim != 2 or points.shape[1] != samples.dimension:
+            raise InvalidInput.at("/targets", f"targets need {samples.dimension} coordinates (the samples are {samples.dimension}-D)")
+        if points.shape[0] == 0:
+            raise InvalidInput.at("/targets", "give at least one target")
+    m = grid.size if grid is not None else points.shape[0]
+    _check_cost(samples, m, neighbourhood, limits)
+    if len(weights_for) > MAX_WEIGHT_TARGETS:
+        raise InvalidInput.at("/return_weights", f"weights are returned for at most {MAX_WEIGHT_TARGETS} targets")
+    bad = [t for t in weights_for if not 0 <= t < m]
+    if bad:
+        raise InvalidInput.at("/return_weights", f"target index {bad[0]} is outside 0..{m - 1}")
+    if grid is not None:
+        points = grid.points()
+    kriger = Kriger(samples, model, spec, neighbourhood, max_unique=limits.max_unique_samples)
+    prediction = kriger.predict(_project(samples, points), weights_for=tuple(weights_for), workers=workers)
+    return PredictionResult(points, prediction, grid)
