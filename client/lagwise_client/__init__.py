@@ -16,7 +16,16 @@ from .errors import (
     ValidationError,
 )
 from .models import ModelStructure, VariogramModel
-from .results import Candidate, DirectionVariogram, ExperimentalVariogram, ModelFit, VariogramClass, VariogramMap
+from .results import (
+    Candidate,
+    CrossValidation,
+    DirectionVariogram,
+    ExperimentalVariogram,
+    ModelFit,
+    Predictions,
+    VariogramClass,
+    VariogramMap,
+)
 from .retry import RetryPolicy
 
 __version__ = "0.1.0"
@@ -24,6 +33,8 @@ __version__ = "0.1.0"
 __all__ = [
     "AuthError",
     "Candidate",
+    "CrossValidation",
+    "Predictions",
     "ModelFit",
     "ModelStructure",
     "VariogramModel",

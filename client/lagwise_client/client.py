@@ -10,7 +10,8 @@ from typing import Any
 import requests
 
 from .errors import LagwiseError, TransportError, ValidationError, error_for
-from .results import ExperimentalVariogram, ModelFit, VariogramMap
+from .models import VariogramModel
+from .results import CrossValidation, ExperimentalVariogram, ModelFit, Predictions, VariogramMap
 from .retry import RETRY_STATUSES, RetryPolicy
 
 DEFAULT_TIMEOUT = 120.0
@@ -49,6 +50,10 @@ def samples_document(
         return {name: _column(samples[source]) for name, source in names.items() if source in available}
     given = {"x": x, "y": y, "z": z, "values": values, "ids": ids}
     return {name: _column(column) for name, column in given.items() if column is not None}
+
+
+def _model(model) -> dict:
+    return model.to_dict() if hasattr(model, "to_dict") else dict(model)
 
 
 class Lagwise:
@@ -261,6 +266,63 @@ class Lagwise:
         )
         body.update({k: v for k, v in options.items() if v is not None})
         return ModelFit.from_response(self.request("POST", "/v1/model-fits", body))
+
+    def cross_validate(
+        self,
+        samples=None,
+        *,
+        model: VariogramModel | Mapping[str, Any],
+        x=None,
+        y=None,
+        z=None,
+        values=None,
+        ids=None,
+        columns: Mapping[str, str] | None = None,
+        kriging: Mapping[str, Any] | None = None,
+        neighbourhood: Mapping[str, Any] | None = None,
+        scheme: Mapping[str, Any] | None = None,
+        outlier_threshold: float | None = None,
+        coordinates: str | None = None,
+        duplicates: str | None = None,
+    ) -> CrossValidation:
+        """Cross-validate kriging with ``model`` (``POST /v1/cross-validations``).
+
+        ``kriging`` e.g. ``{"type": "ordinary"}``; ``neighbourhood`` e.g. ``{"max_points": 24}``
+        (omit it for all samples); ``scheme`` ``{"type": "leave_one_out"}`` (default) or
+        ``{"type": "k_fold", "folds": 10, "seed": 1}``.
+        """
+        body = {"samples": samples_document(samples, x=x, y=y, z=z, values=values, ids=ids, columns=columns), "model": _model(model)}
+        options = dict(kriging=kriging, neighbourhood=neighbourhood, scheme=scheme, outlier_threshold=outlier_threshold, coordinates=coordinates, duplicates=duplicates)
+        body.update({k: v for k, v in options.items() if v is not None})
+        return CrossValidation.from_response(self.request("POST", "/v1/cross-validations", body))
+
+    def predict(
+        self,
+        samples=None,
+        *,
+        model: VariogramModel | Mapping[str, Any],
+        targets: Mapping[str, Any] | None = None,
+        grid: Mapping[str, Any] | None = None,
+        x=None,
+        y=None,
+        z=None,
+        values=None,
+        ids=None,
+        columns: Mapping[str, str] | None = None,
+        kriging: Mapping[str, Any] | None = None,
+        neighbourhood: Mapping[str, Any] | None = None,
+        return_weights: list[int] | None = None,
+        coordinates: str | None = None,
+        duplicates: str | None = None,
+    ) -> Predictions:
+        """Kriging estimates and variances (``POST /v1/predictions``) at ``targets``
+        (``{"x": [...], "y": [...]}``) or on ``grid`` (``{"origin", "spacing", "shape"}``)."""
+        body = {"samples": samples_document(samples, x=x, y=y, z=z, values=values, ids=ids, columns=columns), "model": _model(model)}
+        if targets is not None:
+            body["targets"] = {k: _column(v) for k, v in targets.items()}
+        options = dict(grid=grid, kriging=kriging, neighbourhood=neighbourhood, return_weights=return_weights, coordinates=coordinates, duplicates=duplicates)
+        body.update({k: v for k, v in options.items() if v is not None})
+        return Predictions.from_response(self.request("POST", "/v1/predictions", body))
 
     def model_families(self) -> list[dict]:
         """The model families with their parameters, units, bounds and validity (``GET /v1/model-families``)."""

@@ -206,3 +206,110 @@ class ModelFit:
     def to_dataframe(self):
         """One row per candidate (needs pandas)."""
         return _dataframe([{k: v for k, v in c.__dict__.items() if k != "model"} for c in self.candidates])
+
+
+@dataclass(frozen=True)
+class CrossValidation:
+    """Result of :meth:`Lagwise.cross_validate`.
+
+    Attributes
+    ----------
+    statistics : dict
+        count, mean_error, mean_absolute_error, root_mean_square_error,
+        mean_standardized_error, root_mean_square_standardized_error, correlation,
+        goodness_of_prediction, interval_coverage_95, outliers.
+    samples : dict
+        Columnar per-sample results: id, observed, estimate, standard_deviation,
+        error (estimate - observed), standardized_error, outlier.
+    assessment : str
+        Plain-language reading of the statistics.
+    """
+
+    statistics: dict
+    samples: dict
+    assessment: str
+    unestimated: tuple[dict, ...]
+    parameters: dict
+    warnings: tuple[str, ...]
+    provenance: dict
+    raw: dict = field(default_factory=dict, repr=False)
+
+    @classmethod
+    def from_response(cls, document: dict) -> "CrossValidation":
+        return cls(
+            statistics=document["statistics"],
+            samples=document["samples"],
+            assessment=document["assessment"],
+            unestimated=tuple(document.get("unestimated", [])),
+            parameters=document["parameters"],
+            warnings=tuple(document.get("warnings", [])),
+            provenance=document["provenance"],
+            raw=document,
+        )
+
+    def to_dict(self) -> dict:
+        """The response document."""
+        return self.raw
+
+    def to_dataframe(self):
+        """One row per sample (needs pandas)."""
+        return _dataframe([dict(zip(self.samples, row, strict=True)) for row in zip(*self.samples.values(), strict=True)])
+
+
+@dataclass(frozen=True)
+class Predictions:
+    """Result of :meth:`Lagwise.predict`: columnar targets, estimates and kriging variances
+    (None where a target could not be estimated; ``unestimated`` says why)."""
+
+    x: tuple[float, ...]
+    y: tuple[float, ...] | None
+    z: tuple[float, ...] | None
+    estimate: tuple[float | None, ...]
+    variance: tuple[float | None, ...]
+    grid: dict | None
+    unestimated: tuple[dict, ...]
+    weights: tuple[dict, ...]
+    parameters: dict
+    warnings: tuple[str, ...]
+    provenance: dict
+    raw: dict = field(default_factory=dict, repr=False)
+
+    @classmethod
+    def from_response(cls, document: dict) -> "Predictions":
+        return cls(
+            x=tuple(document["x"]),
+            y=tuple(document["y"]) if "y" in document else None,
+            z=tuple(document["z"]) if "z" in document else None,
+            estimate=tuple(document["estimate"]),
+            variance=tuple(document["variance"]),
+            grid=document.get("grid"),
+            unestimated=tuple(document.get("unestimated", [])),
+            weights=tuple(document.get("weights", [])),
+            parameters=document["parameters"],
+            warnings=tuple(document.get("warnings", [])),
+            provenance=document["provenance"],
+            raw=document,
+        )
+
+    def to_dict(self) -> dict:
+        """The response document."""
+        return self.raw
+
+    def to_grid(self, which: str = "estimate"):
+        """A 2-D numpy array (rows by y, columns by x; NaN where unestimated) for a grid request.
+
+        Needs numpy (imported only here).
+        """
+        import numpy as np
+
+        if self.grid is None or len(self.grid["shape"]) != 2:
+            raise ValueError("to_grid() needs a 2-D grid prediction")
+        nx, ny = self.grid["shape"]
+        values = np.array([np.nan if v is None else v for v in getattr(self, which)], dtype=float)
+        return values.reshape(ny, nx)
+
+    def to_dataframe(self):
+        """One row per target (needs pandas)."""
+        columns = {"x": self.x, "y": self.y, "z": self.z, "estimate": self.estimate, "variance": self.variance}
+        present = {k: v for k, v in columns.items() if v is not None}
+        return _dataframe([dict(zip(present, row, strict=True)) for row in zip(*present.values(), strict=True)])

@@ -11,7 +11,12 @@ from ..core.directions import DirectionClass
 from ..core.errors import FieldIssue, InvalidInput
 from ..core.experimental import ScatterRequest
 from ..core.fitting import SEMIVARIANCE_STATISTICS, points_from_rows
+from ..core.kriging import KrigingSpec
 from ..core.lags import LagRequest
+from ..core.models import FAMILIES, Anisotropy, Structure, VariogramModel
+from ..core.neighbourhood import Neighbourhood
+from ..core.prediction import Grid
+from ..core.validation import Scheme
 from ..core.samples import SampleSet, build_sample_set, columnar_pointer, input_hash
 
 FEATURES = "/samples/geojson/features"
@@ -171,3 +176,74 @@ class _ClassRow:
     mean_distance: float | None
     value: float | None
     pairs: int
+
+
+_EXTRA = {"matern": "smoothness", "stable": "shape", "power": "exponent"}
+
+
+def variogram_model(document: dict) -> VariogramModel:
+    """The request's model, with the family-specific parameter names mapped to the core's."""
+    raw = document["model"]
+    structures = []
+    for k, s in enumerate(raw["structures"]):
+        family = s["family"]
+        if family == "linear":
+            sill = s.get("slope")
+        elif family == "power":
+            sill = s.get("coefficient")
+        else:
+            sill = s.get("partial_sill")
+        if sill is None:
+            name = {"linear": "slope", "power": "coefficient"}.get(family, "partial_sill")
+            raise InvalidInput.at(f"/model/structures/{k}/{name}", "is required")
+        if family in FAMILIES and FAMILIES[family].bounded and "range" not in s:
+            raise InvalidInput.at(f"/model/structures/{k}/range", "is required")
+        aniso = s.get("anisotropy") or {}
+        structures.append(
+            Structure(
+                family,
+                float(sill),
+                float(s.get("range", 1.0)),
+                s.get(_EXTRA.get(family, "")) if family in _EXTRA else None,
+                Anisotropy(aniso.get("azimuth", 0.0), aniso.get("ratio", 1.0), aniso.get("vertical_ratio", 1.0)),
+            )
+        )
+    return VariogramModel(float(raw["nugget"]), tuple(structures))
+
+
+def kriging_spec(document: dict) -> KrigingSpec:
+    k = document["kriging"]
+    return KrigingSpec(type=k["type"], mean=k.get("mean"), drift=k.get("drift"), nugget_as=k["nugget_as"])
+
+
+def neighbourhood(document: dict) -> Neighbourhood:
+    raw = document.get("neighbourhood")
+    if raw is None:
+        return Neighbourhood()
+    return Neighbourhood(max_points=raw["max_points"], min_points=raw["min_points"], radius=raw["radius"], sectors=raw["sectors"])
+
+
+def scheme(document: dict) -> Scheme:
+    raw = document["scheme"]
+    return Scheme(type=raw["type"], folds=raw["folds"], seed=raw["seed"])
+
+
+def targets(document: dict, dimension: int) -> np.ndarray | None:
+    """Target coordinates (m, d), or None when a grid is given."""
+    raw = document.get("targets")
+    if raw is None:
+        return None
+    columns = [raw[a] for a in ("x", "y", "z") if a in raw]
+    lengths = {len(c) for c in columns}
+    if len(lengths) > 1:
+        raise InvalidInput.at("/targets", "x, y and z must have the same length")
+    if len(columns) != dimension:
+        raise InvalidInput.at("/targets", f"targets need {dimension} coordinates (the samples are {dimension}-D)")
+    return np.column_stack(columns)
+
+
+def grid(document: dict) -> Grid | None:
+    raw = document.get("grid")
+    if raw is None:
+        return None
+    return Grid(tuple(raw["origin"]), tuple(raw["spacing"]), tuple(raw["shape"]))

@@ -13,6 +13,7 @@ from __future__ import annotations
 import json
 from typing import Any
 
+import numpy as np
 import orjson
 
 
@@ -39,6 +40,14 @@ def parse(body: bytes) -> Any:
         raise MalformedJSON(str(exc)) from None
 
 
+def _fallback(value: Any) -> Any:
+    if isinstance(value, np.ndarray):
+        return np.ascontiguousarray(value)
+    if isinstance(value, np.generic):
+        return value.item()
+    raise TypeError(f"cannot serialise {type(value).__name__}")
+
+
 def dumps(document: Any) -> bytes:
-    """Serialise a response document (numpy arrays and scalars allowed)."""
-    return orjson.dumps(document, option=orjson.OPT_SERIALIZE_NUMPY)
+    """Serialise a response document (numpy arrays, strided views and scalars allowed)."""
+    return orjson.dumps(document, default=_fallback, option=orjson.OPT_SERIALIZE_NUMPY)

@@ -16,11 +16,15 @@ from ..core.fitting import fit_model
 from ..core.maps import variogram_map
 from ..core.modelling import fit_samples
 from ..core.models import family_catalogue
+from ..core.prediction import predict
+from ..core.validation import cross_validate
 from . import convert, serialize
 from .jsonio import dumps
 from .problems import KINDS, Problem
 from .requests import load_json
 from .schemas import (
+    CrossValidationRequest,
+    CrossValidationResponse,
     ExperimentalRequest,
     ExperimentalResponse,
     FamiliesResponse,
@@ -29,6 +33,8 @@ from .schemas import (
     MapResponse,
     ModelFitRequest,
     ModelFitResponse,
+    PredictionRequest,
+    PredictionResponse,
 )
 
 blueprint = Blueprint("lagwise", __name__)
@@ -165,6 +171,57 @@ def model_fits():
         options={"families": options["families"], "structures": options["structures"]},
     )
     return with_provenance(body, digest)
+
+
+@operation(
+    "/v1/cross-validations",
+    "POST",
+    "Leave-one-out or k-fold kriging cross-validation: statistics and per-sample results",
+    CrossValidationRequest,
+    CrossValidationResponse,
+)
+def cross_validations():
+    document = load_json(CrossValidationRequest())
+    samples = convert.sample_set(document)
+    model, spec = convert.variogram_model(document), convert.kriging_spec(document)
+    hood, scheme = convert.neighbourhood(document), convert.scheme(document)
+    result = cross_validate(
+        samples,
+        model,
+        spec,
+        hood,
+        scheme,
+        outlier_threshold=document["outlier_threshold"],
+        limits=settings().limits,
+        workers=numba.get_num_threads(),
+    )
+    body = serialize.cross_validation(result, samples, model, spec, hood, scheme, document["outlier_threshold"])
+    return with_provenance(body, samples.input_hash)
+
+
+@operation(
+    "/v1/predictions",
+    "POST",
+    "Kriging estimates and variances at target points or on a grid",
+    PredictionRequest,
+    PredictionResponse,
+)
+def predictions():
+    document = load_json(PredictionRequest())
+    samples = convert.sample_set(document)
+    model, spec, hood = convert.variogram_model(document), convert.kriging_spec(document), convert.neighbourhood(document)
+    result = predict(
+        samples,
+        model,
+        spec=spec,
+        neighbourhood=hood,
+        targets=convert.targets(document, samples.dimension),
+        grid=convert.grid(document),
+        weights_for=tuple(document.get("return_weights", ())),
+        limits=settings().limits,
+        workers=numba.get_num_threads(),
+    )
+    return with_provenance(serialize.prediction(result, samples, model, spec, hood), samples.input_hash)
 
 
 @operation(

@@ -9,6 +9,7 @@ from __future__ import annotations
 from marshmallow import EXCLUDE, Schema, ValidationError, fields, validate, validates_schema
 
 from ..core.fitting import SEMIVARIANCE_STATISTICS, WEIGHTINGS
+from ..core.kriging import DRIFTS, KRIGING_TYPES, NUGGET_ROLES
 from ..core.lags import AUTO_METHODS, MAX_CLASSES
 from ..core.samples import COORDINATE_SYSTEMS, DUPLICATE_POLICIES
 from ..core.statistics import STATISTICS
@@ -176,6 +177,94 @@ class ModelFitRequest(SampleOptions):
             clash = [k for k in ("lags", "directions", "coordinates") if k in data]
             if clash:
                 raise ValidationError(f"{', '.join(clash)} apply to samples, not to a given experimental variogram")
+
+
+class AnisotropyInput(Schema):
+    azimuth = finite(load_default=0.0, validate=validate.Range(min=0, max=360, max_inclusive=False))
+    ratio = finite(load_default=1.0, validate=validate.Range(min=0, max=1, min_inclusive=False))
+    vertical_ratio = finite(load_default=1.0, validate=validate.Range(min=0, min_inclusive=False))
+
+
+class StructureInput(Schema):
+    """One structure: partial_sill and range (bounded families), slope (linear) or
+    coefficient and exponent (power); smoothness (matern), shape (stable)."""
+
+    family = fields.String(required=True)
+    partial_sill = finite(validate=validate.Range(min=0))
+    range = finite(validate=validate.Range(min=0, min_inclusive=False), metadata={"description": "Practical range, coordinate units."})
+    slope = finite(validate=validate.Range(min=0))
+    coefficient = finite(validate=validate.Range(min=0))
+    exponent = finite()
+    smoothness = finite()
+    shape = finite()
+    anisotropy = fields.Nested(AnisotropyInput)
+
+
+class ModelInput(Schema):
+    """A variogram model (GET /v1/model-families lists the families)."""
+
+    nugget = finite(load_default=0.0, validate=validate.Range(min=0))
+    structures = fields.List(fields.Nested(StructureInput), load_default=list, validate=validate.Length(max=5))
+
+
+class KrigingInput(Schema):
+    type = fields.String(load_default="ordinary", validate=validate.OneOf(KRIGING_TYPES))
+    mean = finite(metadata={"description": "Known mean (simple kriging)."})
+    drift = fields.String(validate=validate.OneOf(DRIFTS), metadata={"description": "Drift (universal kriging)."})
+    nugget_as = fields.String(load_default="micro_scale", validate=validate.OneOf(NUGGET_ROLES))
+
+
+class NeighbourhoodInput(Schema):
+    """A moving neighbourhood; omit it for the unique neighbourhood (all samples)."""
+
+    max_points = fields.Integer(strict=True, load_default=24, validate=validate.Range(min=1, max=500))
+    min_points = fields.Integer(strict=True, load_default=4, validate=validate.Range(min=1))
+    radius = finite(allow_none=True, load_default=None, validate=validate.Range(min=0, min_inclusive=False))
+    sectors = fields.Integer(strict=True, allow_none=True, load_default=None, validate=validate.Range(min=1, max=8))
+
+
+class SchemeInput(Schema):
+    type = fields.String(load_default="leave_one_out", validate=validate.OneOf(("leave_one_out", "k_fold")))
+    folds = fields.Integer(strict=True, load_default=10, validate=validate.Range(min=2))
+    seed = fields.Integer(strict=True, load_default=1, validate=validate.Range(min=0))
+
+
+class KrigingOptions(SampleOptions):
+    model = fields.Nested(ModelInput, required=True)
+    kriging = fields.Nested(KrigingInput, load_default=lambda: {"type": "ordinary", "nugget_as": "micro_scale"})
+    neighbourhood = fields.Nested(NeighbourhoodInput, allow_none=True, load_default=None)
+
+
+class CrossValidationRequest(KrigingOptions):
+    """POST /v1/cross-validations."""
+
+    scheme = fields.Nested(SchemeInput, load_default=lambda: {"type": "leave_one_out", "folds": 10, "seed": 1})
+    outlier_threshold = finite(load_default=2.5, validate=validate.Range(min=0, min_inclusive=False))
+
+
+class TargetsInput(Schema):
+    x = NumberArray(required=True)
+    y = NumberArray()
+    z = NumberArray()
+
+
+class GridInput(Schema):
+    origin = fields.List(finite(), required=True, validate=validate.Length(min=1, max=3))
+    spacing = fields.List(finite(validate=validate.Range(min=0, min_inclusive=False)), required=True, validate=validate.Length(min=1, max=3))
+    shape = fields.List(fields.Integer(strict=True, validate=validate.Range(min=1)), required=True, validate=validate.Length(min=1, max=3))
+
+
+class PredictionRequest(KrigingOptions):
+    """POST /v1/predictions: targets or a grid."""
+
+    targets = fields.Nested(TargetsInput)
+    grid = fields.Nested(GridInput)
+    return_weights = fields.List(fields.Integer(strict=True, validate=validate.Range(min=0)), validate=validate.Length(max=20), metadata={"description": "Target indexes whose kriging weights are returned (at most 20)."})
+
+    @validates_schema
+    def _one_target_kind(self, data, **kwargs):
+        if ("targets" in data) == ("grid" in data):
+            raise ValidationError("give either targets or grid")
 
 
 # ---- responses -------------------------------------------------------------
@@ -351,6 +440,66 @@ class FamilySchema(Schema):
 class FamiliesResponse(Schema):
     families = fields.List(fields.Nested(FamilySchema))
     conventions = fields.Dict()
+
+
+class CrossValidationSamplesSchema(Schema):
+    id = fields.List(fields.String())
+    observed = fields.List(fields.Float())
+    estimate = fields.List(fields.Float(allow_none=True))
+    standard_deviation = fields.List(fields.Float(allow_none=True))
+    error = fields.List(fields.Float(allow_none=True))
+    standardized_error = fields.List(fields.Float(allow_none=True))
+    outlier = fields.List(fields.Boolean())
+
+
+class CrossValidationStatisticsSchema(Schema):
+    count = fields.Integer()
+    mean_error = fields.Float(allow_none=True)
+    mean_absolute_error = fields.Float(allow_none=True)
+    root_mean_square_error = fields.Float(allow_none=True)
+    mean_standardized_error = fields.Float(allow_none=True)
+    root_mean_square_standardized_error = fields.Float(allow_none=True)
+    correlation = fields.Float(allow_none=True)
+    goodness_of_prediction = fields.Float(allow_none=True)
+    interval_coverage_95 = fields.Float(allow_none=True)
+    outliers = fields.Integer()
+
+
+class UnestimatedSchema(Schema):
+    index = fields.Integer()
+    reason = fields.String()
+
+
+class CrossValidationResponse(ResultEnvelope):
+    statistics = fields.Nested(CrossValidationStatisticsSchema)
+    samples = fields.Nested(CrossValidationSamplesSchema)
+    assessment = fields.String()
+    unestimated = fields.List(fields.Nested(UnestimatedSchema))
+
+
+class WeightsSchema(Schema):
+    target = fields.Integer()
+    samples = fields.List(fields.String())
+    weights = fields.List(fields.Float())
+    lagrange = fields.List(fields.Float())
+
+
+class GridSchema(Schema):
+    origin = fields.List(fields.Float())
+    spacing = fields.List(fields.Float())
+    shape = fields.List(fields.Integer())
+    order = fields.String()
+
+
+class PredictionResponse(ResultEnvelope):
+    x = fields.List(fields.Float())
+    y = fields.List(fields.Float())
+    z = fields.List(fields.Float())
+    estimate = fields.List(fields.Float(allow_none=True))
+    variance = fields.List(fields.Float(allow_none=True))
+    grid = fields.Nested(GridSchema)
+    unestimated = fields.List(fields.Nested(UnestimatedSchema))
+    weights = fields.List(fields.Nested(WeightsSchema))
 
 
 class FieldErrorSchema(Schema):

@@ -181,3 +181,64 @@ def model_fit(fit, statistic: str, *, summary: dict | None, sample_params: dict 
     if summary is not None:
         document["summary"] = summary
     return document
+
+
+def _unestimated(reasons: dict) -> list[dict]:
+    return [{"index": int(i), "reason": why} for i, why in sorted(reasons.items())]
+
+
+def kriging_parameters(samples: SampleSet, model, spec, neighbourhood) -> dict:
+    return {
+        **sample_parameters(samples),
+        "model": model.as_dict(),
+        "kriging": spec.as_dict(),
+        "neighbourhood": neighbourhood.as_dict(),
+        "coordinates_centred": "drift terms use coordinates centred on the sample mean and scaled by the largest offset",
+    }
+
+
+def cross_validation(result, samples: SampleSet, model, spec, neighbourhood, scheme, threshold) -> dict:
+    """Response body of ``POST /v1/cross-validations`` (without provenance)."""
+    return {
+        "statistics": result.statistics,
+        "samples": {
+            "id": list(samples.ids),
+            "observed": result.observed,
+            "estimate": result.estimate,
+            "standard_deviation": result.standard_deviation,
+            "error": result.error,
+            "standardized_error": result.standardized_error,
+            "outlier": result.outlier,
+        },
+        "assessment": result.assessment,
+        "unestimated": _unestimated(result.reasons),
+        "parameters": {
+            **kriging_parameters(samples, model, spec, neighbourhood),
+            "scheme": scheme.as_dict(),
+            "method": result.method,
+            "outlier_threshold": threshold,
+            "error_convention": "error = estimate - observed; standard_deviation is that of the error (nugget included)",
+        },
+        "warnings": list(samples.warnings),
+    }
+
+
+def prediction(result, samples: SampleSet, model, spec, neighbourhood) -> dict:
+    """Response body of ``POST /v1/predictions`` (without provenance)."""
+    points = result.targets
+    p = result.prediction
+    document = {name: points[:, a] for a, name in enumerate(("x", "y", "z")[: points.shape[1]])}
+    document.update(estimate=p.estimate, variance=p.variance, unestimated=_unestimated(p.reasons))
+    if result.grid is not None:
+        document["grid"] = result.grid.as_dict()
+    if p.weights:
+        document["weights"] = [
+            {"target": w["target"], "samples": [samples.ids[i] for i in w["samples"]], "weights": w["weights"], "lagrange": w["lagrange"]}
+            for w in p.weights
+        ]
+    document["parameters"] = {
+        **kriging_parameters(samples, model, spec, neighbourhood),
+        "variance": "kriging variance (includes the nugget unless nugget_as is measurement_error)",
+    }
+    document["warnings"] = list(samples.warnings)
+    return document
