@@ -1,4 +1,4 @@
-"""Run the benchmarks: ``python3 manage.py bench [variogram] [fitting]``."""
+"""Run the benchmarks: ``python3 manage.py bench [variogram] [fitting] [kriging]``."""
 
 from __future__ import annotations
 
@@ -8,9 +8,10 @@ from pathlib import Path
 sys.path.insert(0, str(Path(__file__).resolve().parent))
 
 import fitting  # noqa: E402
+import kriging  # noqa: E402
 import variogram  # noqa: E402
 
-SUITES = {"variogram": variogram.main, "fitting": fitting.main}
+SUITES = {"variogram": variogram.main, "fitting": fitting.main, "kriging": kriging.main}
 
 
 def main(argv):

@@ -284,6 +284,11 @@ class Kriger:
         A[:, k:, :k] = np.swapaxes(F, 1, 2)
         b = np.concatenate([self.cov.between(pts, tgt)[..., 0], self.frame.drift(self.spec, tgt)[:, 0, :]], axis=1)
         solution, ok = _batched_solve(A, b)
+        if p > 1:
+            # A drift the neighbours cannot separate (e.g. collinear samples for a linear
+            # drift) makes the system singular even when LAPACK returns numbers.
+            spread = np.linalg.svd(F, compute_uv=False)
+            ok &= spread[:, -1] > 1e-9 * spread[:, 0]
         lam, nu = solution[:, :k], solution[:, k:]
         z = self.values[idx]
         if self.spec.type == "simple":
@@ -312,9 +317,12 @@ class Kriger:
 
 
 def _batched_solve(A: np.ndarray, b: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Solve many small systems at once; singular ones are marked False (and left at 0)."""
+    """Solve many small systems at once; singular ones are marked False (and left at 0).
+
+    A solution whose residual is not small against |A| |x| + |b| also counts as singular.
+    """
     try:
-        return np.linalg.solve(A, b[..., None])[..., 0], np.ones(len(A), dtype=bool)
+        x = np.linalg.solve(A, b[..., None])[..., 0]
     except np.linalg.LinAlgError:
         out = np.zeros_like(b)
         ok = np.ones(len(A), dtype=bool)
@@ -324,3 +332,6 @@ def _batched_solve(A: np.ndarray, b: np.ndarray) -> tuple[np.ndarray, np.ndarray
             except np.linalg.LinAlgError:
                 ok[i] = False
         return out, ok
+    residual = np.abs(np.einsum("mij,mj->mi", A, x) - b).max(axis=1)
+    size = np.abs(A).max(axis=(1, 2)) * np.abs(x).max(axis=1) + np.abs(b).max(axis=1)
+    return x, residual <= 1e-8 * size

@@ -6,7 +6,8 @@ continuity. ``radius`` is in that space (coordinate units along the major axis).
 With ``sectors`` (2-D and 3-D horizontal), the plane around a target is split into
 equal angular sectors starting at north (at the major axis when the model is
 anisotropic), and each sector keeps at most
-ceil(max_points / sectors) of its nearest samples.
+ceil(max_points / sectors) of its nearest samples, chosen among the
+2 x sectors x max_points samples nearest to the target.
 """
 
 from __future__ import annotations
@@ -114,7 +115,7 @@ class NeighbourSearch:
         n = self.n
         total = self.space.shape[0]
         base = min(n.max_points, total)
-        wanted = base * 3 if n.sectors else base
+        wanted = base * n.sectors * 2 if n.sectors else base
         k = min(total, wanted + (1 if exclude is not None else 0))
         space_targets = to_search_space(targets, self.anisotropy)
         upper = n.radius if n.radius is not None else np.inf

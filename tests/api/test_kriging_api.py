@@ -1,0 +1,93 @@
+"""API tests of POST /v1/cross-validations and POST /v1/predictions (Flask test client)."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+MODEL = {"nugget": 0.1, "structures": [{"family": "spherical", "partial_sill": 1.0, "range": 40.0}]}
+
+
+@pytest.fixture()
+def cols(rng):
+    x, y = rng.uniform(0, 100, 80), rng.uniform(0, 100, 80)
+    return {"x": x.tolist(), "y": y.tolist(), "values": (np.sin(x / 15) + np.cos(y / 20) + rng.normal(0, 0.2, 80)).tolist(), "ids": [f"S{i}" for i in range(80)]}
+
+
+def test_leave_one_out(client, cols):
+    r = client.post("/v1/cross-validations", json={"samples": cols, "model": MODEL})
+    assert r.status_code == 200, r.json
+    doc = r.json
+    stats = doc["statistics"]
+    assert stats["count"] == 80 and 0 < stats["root_mean_square_standardized_error"] < 3
+    assert set(doc["samples"]) == {"id", "observed", "estimate", "standard_deviation", "error", "standardized_error", "outlier"}
+    assert doc["samples"]["id"][:2] == ["S0", "S1"]
+    e = np.array(doc["samples"]["estimate"]) - np.array(doc["samples"]["observed"])
+    np.testing.assert_allclose(doc["samples"]["error"], e, rtol=1e-12)
+    assert "RMSSE" in doc["assessment"] and doc["parameters"]["method"].startswith("leave-one-out, closed form")
+    assert doc["parameters"]["kriging"] == {"type": "ordinary", "nugget_as": "micro_scale"}
+
+
+def test_k_fold_with_moving_neighbourhood(client, cols):
+    body = {"samples": cols, "model": MODEL, "scheme": {"type": "k_fold", "folds": 4, "seed": 9}, "neighbourhood": {"max_points": 12, "sectors": 4}}
+    doc = client.post("/v1/cross-validations", json=body).json
+    assert doc["parameters"]["scheme"] == {"type": "k_fold", "folds": 4, "seed": 9}
+    assert doc["parameters"]["neighbourhood"]["max_points"] == 12
+
+
+def test_predictions_on_a_grid_with_weights(client, cols):
+    body = {"samples": cols, "model": MODEL, "grid": {"origin": [0, 0], "spacing": [25, 50], "shape": [5, 3]}, "return_weights": [0, 7]}
+    doc = client.post("/v1/predictions", json=body).json
+    assert len(doc["x"]) == len(doc["estimate"]) == len(doc["variance"]) == 15
+    assert doc["x"][:6] == [0, 25, 50, 75, 100, 0] and doc["y"][:6] == [0, 0, 0, 0, 0, 50]
+    assert doc["grid"]["order"] == "x fastest"
+    assert [w["target"] for w in doc["weights"]] == [0, 7]
+    assert abs(sum(doc["weights"][0]["weights"]) - 1) < 1e-9 and doc["weights"][0]["samples"][0] == "S0"
+
+
+def test_targets_partly_out_of_reach(client, cols):
+    body = {"samples": cols, "model": MODEL, "neighbourhood": {"max_points": 8, "min_points": 3, "radius": 20}, "targets": {"x": [50, 900], "y": [50, 900]}}
+    doc = client.post("/v1/predictions", json=body).json
+    assert doc["estimate"][0] is not None and doc["estimate"][1] is None and doc["variance"][1] is None
+    assert doc["unestimated"] == [{"index": 1, "reason": "fewer than min_points samples within the search radius"}]
+
+
+@pytest.mark.parametrize(
+    "path, extra, pointer",
+    [
+        ("/v1/predictions", {"targets": {"x": [1, 2]}}, "/targets"),
+        ("/v1/predictions", {"targets": {"x": [1], "y": [2]}, "kriging": {"type": "simple", "mean": 0}, "model": {"structures": [{"family": "power", "coefficient": 1, "exponent": 1.5}]}}, "/model"),
+        ("/v1/predictions", {"targets": {"x": [1], "y": [2]}, "neighbourhood": {"max_points": 4, "min_points": 8}}, "/neighbourhood/min_points"),
+        ("/v1/predictions", {"targets": {"x": [1], "y": [2]}, "kriging": {"type": "universal"}}, "/kriging/drift"),
+        ("/v1/predictions", {"targets": {"x": [1], "y": [2]}, "model": {"structures": [{"family": "spherical", "range": 10}]}}, "/model/structures/0/partial_sill"),
+        ("/v1/predictions", {"targets": {"x": [1], "y": [2]}, "model": {"structures": [{"family": "blob", "partial_sill": 1, "range": 10}]}}, "/model/structures/0/family"),
+        ("/v1/predictions", {"grid": {"origin": [0], "spacing": [1], "shape": [3]}}, "/grid"),
+        ("/v1/predictions", {}, ""),
+        ("/v1/cross-validations", {"scheme": {"type": "k_fold", "folds": 500}}, "/scheme/folds"),
+        ("/v1/cross-validations", {"model": {"structures": [{"family": "spherical", "partial_sill": 1, "range": 10, "anisotropy": {"ratio": 2}}]}}, "/model/structures/0/anisotropy/ratio"),
+    ],
+)
+def test_bad_kriging_requests(client, cols, path, extra, pointer):
+    body = {"samples": cols, "model": MODEL, **extra}
+    r = client.post(path, json=body)
+    assert r.status_code == 422, r.json
+    assert r.json["errors"][0]["pointer"] == pointer
+
+
+def test_model_is_required(client, cols):
+    r = client.post("/v1/cross-validations", json={"samples": cols})
+    assert r.status_code == 422 and r.json["errors"][0]["pointer"] == "/model"
+
+
+def test_unique_limit(small_limits_client):
+    cols = {"x": list(range(40)), "y": [i % 3 for i in range(40)], "values": [float(i % 5) for i in range(40)]}
+    r = small_limits_client.post("/v1/cross-validations", json={"samples": cols, "model": MODEL})
+    assert r.status_code == 422 and r.json["limit"] == "LAGWISE_MAX_UNIQUE_SAMPLES" and "max_points" in r.json["detail"]
+
+
+def test_duplicates_policy_is_honoured(client):
+    cols = {"x": [0, 0, 10, 20, 30], "y": [0, 0, 5, 0, 5], "values": [1.0, 3.0, 2.0, 4.0, 3.0]}
+    doc = client.post("/v1/cross-validations", json={"samples": cols, "model": MODEL}).json
+    assert doc["samples"]["observed"][0] == 2.0 and doc["statistics"]["count"] == 4
+    r = client.post("/v1/cross-validations", json={"samples": cols, "model": MODEL, "duplicates": "reject"})
+    assert r.status_code == 422 and r.json["errors"][0]["pointer"] == "/samples/x/1"
