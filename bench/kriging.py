@@ -65,19 +65,19 @@ def case_refits(n, count=10):
 
 def case_loo_moving(n):
     import numba
-
     from lagwise.core.neighbourhood import Neighbourhood
     from lagwise.core.validation import cross_validate
 
     samples = _samples(n, 1000.0)
     start = time.perf_counter()
-    cross_validate(samples, _model(), neighbourhood=Neighbourhood(max_points=24, min_points=4), workers=numba.get_num_threads())
+    cross_validate(
+        samples, _model(), neighbourhood=Neighbourhood(max_points=24, min_points=4), workers=numba.get_num_threads()
+    )
     return time.perf_counter() - start
 
 
 def case_predict(n, targets):
     import numba
-
     from lagwise.core.neighbourhood import Neighbourhood
     from lagwise.core.prediction import Grid, predict
 
@@ -85,7 +85,13 @@ def case_predict(n, targets):
     side = int(round(targets**0.5))
     grid = Grid((0.0, 0.0), (1000.0 / side, 1000.0 / side), (side, side))
     start = time.perf_counter()
-    result = predict(samples, _model(), neighbourhood=Neighbourhood(max_points=16, min_points=4), grid=grid, workers=numba.get_num_threads())
+    result = predict(
+        samples,
+        _model(),
+        neighbourhood=Neighbourhood(max_points=16, min_points=4),
+        grid=grid,
+        workers=numba.get_num_threads(),
+    )
     assert np.isfinite(result.prediction.estimate).all()
     return time.perf_counter() - start
 
@@ -107,11 +113,17 @@ def main():
         ours = _run("loo_unique", n)
         base = baseline.get(n, baseline[2000] * (n / 2000) ** 4)
         note = "" if n in baseline else " (extrapolated)"
-        print(f"{f'leave-one-out, unique, n={n}':<44} {ours['seconds']:>9.2f} {ours['peak_mb']:>8.0f} {base:>11.1f} {base / ours['seconds']:>8.0f}x{note}")
+        print(
+            f"{f'leave-one-out, unique, n={n}':<44} {ours['seconds']:>9.2f} {ours['peak_mb']:>8.0f} {base:>11.1f} {base / ours['seconds']:>8.0f}x{note}"
+        )
     moving = _run("loo_moving", 100_000)
-    print(f"{'leave-one-out, 24 neighbours, n=100000':<44} {moving['seconds']:>9.2f} {moving['peak_mb']:>8.0f} {'-':>11} {'-':>9}")
+    print(
+        f"{'leave-one-out, 24 neighbours, n=100000':<44} {moving['seconds']:>9.2f} {moving['peak_mb']:>8.0f} {'-':>11} {'-':>9}"
+    )
     pred = _run("predict", 100_000, 1_000_000)
-    print(f"{'1M targets, 16 neighbours, 100k samples':<44} {pred['seconds']:>9.2f} {pred['peak_mb']:>8.0f} {'-':>11} {'-':>9}")
+    print(
+        f"{'1M targets, 16 neighbours, 100k samples':<44} {pred['seconds']:>9.2f} {pred['peak_mb']:>8.0f} {'-':>11} {'-':>9}"
+    )
 
 
 if __name__ == "__main__":

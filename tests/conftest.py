@@ -24,7 +24,12 @@ def small_limits_client():
     settings = Settings(
         max_body_bytes=4096,
         limits=Limits(
-            max_samples=50, max_pairs=500, max_median_pairs=100, max_scatter_pairs=10, max_map_cells=11, max_unique_samples=30
+            max_samples=50,
+            max_pairs=500,
+            max_median_pairs=100,
+            max_scatter_pairs=10,
+            max_map_cells=11,
+            max_unique_samples=30,
         ),
     )
     return create_app({"TESTING": True}, settings=settings).test_client()

@@ -291,8 +291,18 @@ class Lagwise:
         (omit it for all samples); ``scheme`` ``{"type": "leave_one_out"}`` (default) or
         ``{"type": "k_fold", "folds": 10, "seed": 1}``.
         """
-        body = {"samples": samples_document(samples, x=x, y=y, z=z, values=values, ids=ids, columns=columns), "model": _model(model)}
-        options = dict(kriging=kriging, neighbourhood=neighbourhood, scheme=scheme, outlier_threshold=outlier_threshold, coordinates=coordinates, duplicates=duplicates)
+        body = {
+            "samples": samples_document(samples, x=x, y=y, z=z, values=values, ids=ids, columns=columns),
+            "model": _model(model),
+        }
+        options = dict(
+            kriging=kriging,
+            neighbourhood=neighbourhood,
+            scheme=scheme,
+            outlier_threshold=outlier_threshold,
+            coordinates=coordinates,
+            duplicates=duplicates,
+        )
         body.update({k: v for k, v in options.items() if v is not None})
         return CrossValidation.from_response(self.request("POST", "/v1/cross-validations", body))
 
@@ -317,10 +327,20 @@ class Lagwise:
     ) -> Predictions:
         """Kriging estimates and variances (``POST /v1/predictions``) at ``targets``
         (``{"x": [...], "y": [...]}``) or on ``grid`` (``{"origin", "spacing", "shape"}``)."""
-        body = {"samples": samples_document(samples, x=x, y=y, z=z, values=values, ids=ids, columns=columns), "model": _model(model)}
+        body = {
+            "samples": samples_document(samples, x=x, y=y, z=z, values=values, ids=ids, columns=columns),
+            "model": _model(model),
+        }
         if targets is not None:
             body["targets"] = {k: _column(v) for k, v in targets.items()}
-        options = dict(grid=grid, kriging=kriging, neighbourhood=neighbourhood, return_weights=return_weights, coordinates=coordinates, duplicates=duplicates)
+        options = dict(
+            grid=grid,
+            kriging=kriging,
+            neighbourhood=neighbourhood,
+            return_weights=return_weights,
+            coordinates=coordinates,
+            duplicates=duplicates,
+        )
         body.update({k: v for k, v in options.items() if v is not None})
         return Predictions.from_response(self.request("POST", "/v1/predictions", body))
 

@@ -235,7 +235,7 @@ class CrossValidation:
     raw: dict = field(default_factory=dict, repr=False)
 
     @classmethod
-    def from_response(cls, document: dict) -> "CrossValidation":
+    def from_response(cls, document: dict) -> CrossValidation:
         return cls(
             statistics=document["statistics"],
             samples=document["samples"],
@@ -253,7 +253,9 @@ class CrossValidation:
 
     def to_dataframe(self):
         """One row per sample (needs pandas)."""
-        return _dataframe([dict(zip(self.samples, row, strict=True)) for row in zip(*self.samples.values(), strict=True)])
+        return _dataframe(
+            [dict(zip(self.samples, row, strict=True)) for row in zip(*self.samples.values(), strict=True)]
+        )
 
 
 @dataclass(frozen=True)
@@ -275,7 +277,7 @@ class Predictions:
     raw: dict = field(default_factory=dict, repr=False)
 
     @classmethod
-    def from_response(cls, document: dict) -> "Predictions":
+    def from_response(cls, document: dict) -> Predictions:
         return cls(
             x=tuple(document["x"]),
             y=tuple(document["y"]) if "y" in document else None,

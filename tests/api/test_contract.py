@@ -48,9 +48,26 @@ def _response_validator(path, status, media):
         ("/v1/experimental-variograms", {"lags": {"auto": "equal_pairs"}}),
         ("/v1/variogram-maps", {"cell_size": 10, "cells": 2}),
         ("/v1/model-fits", {"lags": {"width": 8, "count": 8}, "min_pairs": 5}),
-        ("/v1/cross-validations", {"model": {"nugget": 0.1, "structures": [{"family": "exponential", "partial_sill": 1, "range": 30}]}}),
-        ("/v1/predictions", {"model": {"structures": [{"family": "spherical", "partial_sill": 1, "range": 30}]}, "grid": {"origin": [0, 0], "spacing": [10, 10], "shape": [3, 3]}, "return_weights": [1]}),
-        ("/v1/predictions", {"model": {"structures": [{"family": "spherical", "partial_sill": 1, "range": 30}]}, "targets": {"x": [1, 500], "y": [1, 500]}, "neighbourhood": {"max_points": 5, "radius": 20}}),
+        (
+            "/v1/cross-validations",
+            {"model": {"nugget": 0.1, "structures": [{"family": "exponential", "partial_sill": 1, "range": 30}]}},
+        ),
+        (
+            "/v1/predictions",
+            {
+                "model": {"structures": [{"family": "spherical", "partial_sill": 1, "range": 30}]},
+                "grid": {"origin": [0, 0], "spacing": [10, 10], "shape": [3, 3]},
+                "return_weights": [1],
+            },
+        ),
+        (
+            "/v1/predictions",
+            {
+                "model": {"structures": [{"family": "spherical", "partial_sill": 1, "range": 30}]},
+                "targets": {"x": [1, 500], "y": [1, 500]},
+                "neighbourhood": {"max_points": 5, "radius": 20},
+            },
+        ),
     ],
 )
 def test_responses_obey_the_contract(client, rng, path, body):

@@ -11,7 +11,12 @@ MODEL = {"nugget": 0.1, "structures": [{"family": "spherical", "partial_sill": 1
 @pytest.fixture()
 def cols(rng):
     x, y = rng.uniform(0, 100, 80), rng.uniform(0, 100, 80)
-    return {"x": x.tolist(), "y": y.tolist(), "values": (np.sin(x / 15) + np.cos(y / 20) + rng.normal(0, 0.2, 80)).tolist(), "ids": [f"S{i}" for i in range(80)]}
+    return {
+        "x": x.tolist(),
+        "y": y.tolist(),
+        "values": (np.sin(x / 15) + np.cos(y / 20) + rng.normal(0, 0.2, 80)).tolist(),
+        "ids": [f"S{i}" for i in range(80)],
+    }
 
 
 def test_leave_one_out(client, cols):
@@ -20,7 +25,15 @@ def test_leave_one_out(client, cols):
     doc = r.json
     stats = doc["statistics"]
     assert stats["count"] == 80 and 0 < stats["root_mean_square_standardized_error"] < 3
-    assert set(doc["samples"]) == {"id", "observed", "estimate", "standard_deviation", "error", "standardized_error", "outlier"}
+    assert set(doc["samples"]) == {
+        "id",
+        "observed",
+        "estimate",
+        "standard_deviation",
+        "error",
+        "standardized_error",
+        "outlier",
+    }
     assert doc["samples"]["id"][:2] == ["S0", "S1"]
     e = np.array(doc["samples"]["estimate"]) - np.array(doc["samples"]["observed"])
     np.testing.assert_allclose(doc["samples"]["error"], e, rtol=1e-12)
@@ -29,14 +42,24 @@ def test_leave_one_out(client, cols):
 
 
 def test_k_fold_with_moving_neighbourhood(client, cols):
-    body = {"samples": cols, "model": MODEL, "scheme": {"type": "k_fold", "folds": 4, "seed": 9}, "neighbourhood": {"max_points": 12, "sectors": 4}}
+    body = {
+        "samples": cols,
+        "model": MODEL,
+        "scheme": {"type": "k_fold", "folds": 4, "seed": 9},
+        "neighbourhood": {"max_points": 12, "sectors": 4},
+    }
     doc = client.post("/v1/cross-validations", json=body).json
     assert doc["parameters"]["scheme"] == {"type": "k_fold", "folds": 4, "seed": 9}
     assert doc["parameters"]["neighbourhood"]["max_points"] == 12
 
 
 def test_predictions_on_a_grid_with_weights(client, cols):
-    body = {"samples": cols, "model": MODEL, "grid": {"origin": [0, 0], "spacing": [25, 50], "shape": [5, 3]}, "return_weights": [0, 7]}
+    body = {
+        "samples": cols,
+        "model": MODEL,
+        "grid": {"origin": [0, 0], "spacing": [25, 50], "shape": [5, 3]},
+        "return_weights": [0, 7],
+    }
     doc = client.post("/v1/predictions", json=body).json
     assert len(doc["x"]) == len(doc["estimate"]) == len(doc["variance"]) == 15
     assert doc["x"][:6] == [0, 25, 50, 75, 100, 0] and doc["y"][:6] == [0, 0, 0, 0, 0, 50]
@@ -46,7 +69,12 @@ def test_predictions_on_a_grid_with_weights(client, cols):
 
 
 def test_targets_partly_out_of_reach(client, cols):
-    body = {"samples": cols, "model": MODEL, "neighbourhood": {"max_points": 8, "min_points": 3, "radius": 20}, "targets": {"x": [50, 900], "y": [50, 900]}}
+    body = {
+        "samples": cols,
+        "model": MODEL,
+        "neighbourhood": {"max_points": 8, "min_points": 3, "radius": 20},
+        "targets": {"x": [50, 900], "y": [50, 900]},
+    }
     doc = client.post("/v1/predictions", json=body).json
     assert doc["estimate"][0] is not None and doc["estimate"][1] is None and doc["variance"][1] is None
     assert doc["unestimated"] == [{"index": 1, "reason": "fewer than min_points samples within the search radius"}]
@@ -56,15 +84,46 @@ def test_targets_partly_out_of_reach(client, cols):
     "path, extra, pointer",
     [
         ("/v1/predictions", {"targets": {"x": [1, 2]}}, "/targets"),
-        ("/v1/predictions", {"targets": {"x": [1], "y": [2]}, "kriging": {"type": "simple", "mean": 0}, "model": {"structures": [{"family": "power", "coefficient": 1, "exponent": 1.5}]}}, "/model"),
-        ("/v1/predictions", {"targets": {"x": [1], "y": [2]}, "neighbourhood": {"max_points": 4, "min_points": 8}}, "/neighbourhood/min_points"),
+        (
+            "/v1/predictions",
+            {
+                "targets": {"x": [1], "y": [2]},
+                "kriging": {"type": "simple", "mean": 0},
+                "model": {"structures": [{"family": "power", "coefficient": 1, "exponent": 1.5}]},
+            },
+            "/model",
+        ),
+        (
+            "/v1/predictions",
+            {"targets": {"x": [1], "y": [2]}, "neighbourhood": {"max_points": 4, "min_points": 8}},
+            "/neighbourhood/min_points",
+        ),
         ("/v1/predictions", {"targets": {"x": [1], "y": [2]}, "kriging": {"type": "universal"}}, "/kriging/drift"),
-        ("/v1/predictions", {"targets": {"x": [1], "y": [2]}, "model": {"structures": [{"family": "spherical", "range": 10}]}}, "/model/structures/0/partial_sill"),
-        ("/v1/predictions", {"targets": {"x": [1], "y": [2]}, "model": {"structures": [{"family": "blob", "partial_sill": 1, "range": 10}]}}, "/model/structures/0/family"),
+        (
+            "/v1/predictions",
+            {"targets": {"x": [1], "y": [2]}, "model": {"structures": [{"family": "spherical", "range": 10}]}},
+            "/model/structures/0/partial_sill",
+        ),
+        (
+            "/v1/predictions",
+            {
+                "targets": {"x": [1], "y": [2]},
+                "model": {"structures": [{"family": "blob", "partial_sill": 1, "range": 10}]},
+            },
+            "/model/structures/0/family",
+        ),
         ("/v1/predictions", {"grid": {"origin": [0], "spacing": [1], "shape": [3]}}, "/grid"),
         ("/v1/predictions", {}, ""),
         ("/v1/cross-validations", {"scheme": {"type": "k_fold", "folds": 500}}, "/scheme/folds"),
-        ("/v1/cross-validations", {"model": {"structures": [{"family": "spherical", "partial_sill": 1, "range": 10, "anisotropy": {"ratio": 2}}]}}, "/model/structures/0/anisotropy/ratio"),
+        (
+            "/v1/cross-validations",
+            {
+                "model": {
+                    "structures": [{"family": "spherical", "partial_sill": 1, "range": 10, "anisotropy": {"ratio": 2}}]
+                }
+            },
+            "/model/structures/0/anisotropy/ratio",
+        ),
     ],
 )
 def test_bad_kriging_requests(client, cols, path, extra, pointer):

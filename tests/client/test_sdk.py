@@ -126,11 +126,20 @@ def test_cross_validate_and_predict(lw):
     rng = np.random.default_rng(40)
     x, y = rng.uniform(0, 100, 150), rng.uniform(0, 100, 150)
     v = np.sin(x / 20) + np.cos(y / 25) + rng.normal(0, 0.1, 150)
-    model = VariogramModel.from_dict({"nugget": 0.01, "structures": [{"family": "gaussian", "partial_sill": 1.0, "range": 60.0}]})
+    model = VariogramModel.from_dict(
+        {"nugget": 0.01, "structures": [{"family": "gaussian", "partial_sill": 1.0, "range": 60.0}]}
+    )
     cv = lw.cross_validate(x=x, y=y, values=v, model=model)
     assert cv.statistics["count"] == 150 and cv.assessment
     assert len(cv.to_dataframe()) == 150
-    grid = lw.predict(x=x, y=y, values=v, model=model, grid={"origin": [0, 0], "spacing": [10, 20], "shape": [11, 6]}, neighbourhood={"max_points": 16})
+    grid = lw.predict(
+        x=x,
+        y=y,
+        values=v,
+        model=model,
+        grid={"origin": [0, 0], "spacing": [10, 20], "shape": [11, 6]},
+        neighbourhood={"max_points": 16},
+    )
     surface = grid.to_grid()
     assert surface.shape == (6, 11) and np.isfinite(surface).all()
     assert grid.to_grid("variance").min() >= 0

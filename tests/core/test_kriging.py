@@ -4,7 +4,6 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-
 from lagwise.core.errors import InvalidInput, LimitExceeded
 from lagwise.core.kriging import Kriger, KrigingSpec
 from lagwise.core.limits import Limits
@@ -55,7 +54,9 @@ def test_bad_neighbourhoods(samples, hood, pointer):
 
 
 def test_targets_without_neighbours_get_a_reason(samples):
-    result = Kriger(samples, MODEL, KrigingSpec(), Neighbourhood(max_points=8, min_points=3, radius=15.0)).predict(np.array([[50.0, 50.0], [1000.0, 1000.0]]))
+    result = Kriger(samples, MODEL, KrigingSpec(), Neighbourhood(max_points=8, min_points=3, radius=15.0)).predict(
+        np.array([[50.0, 50.0], [1000.0, 1000.0]])
+    )
     assert np.isfinite(result.estimate[0]) and np.isnan(result.estimate[1])
     assert "min_points" in result.reasons[1]
 
@@ -90,7 +91,9 @@ def test_collinear_samples_with_linear_drift_are_refused():
 def test_singular_local_systems_are_named():
     x = np.linspace(0, 10, 12)
     samples = build_sample_set(np.sin(x), x, 2 * x + 1)
-    result = Kriger(samples, MODEL, KrigingSpec("universal", drift="linear"), Neighbourhood(max_points=6)).predict(np.array([[5.0, 5.0]]))
+    result = Kriger(samples, MODEL, KrigingSpec("universal", drift="linear"), Neighbourhood(max_points=6)).predict(
+        np.array([[5.0, 5.0]])
+    )
     assert np.isnan(result.estimate[0]) and "singular" in result.reasons[0] and "samples" in result.reasons[0]
 
 

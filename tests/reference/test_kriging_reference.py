@@ -17,14 +17,13 @@ import math
 
 import numpy as np
 import pytest
-from sklearn.gaussian_process import GaussianProcessRegressor
-from sklearn.gaussian_process.kernels import ConstantKernel, Matern
-
 from lagwise.core.kriging import Kriger, KrigingSpec
 from lagwise.core.models import Structure, VariogramModel, matern_practical_factor
 from lagwise.core.neighbourhood import Neighbourhood
 from lagwise.core.samples import build_sample_set
 from lagwise.core.validation import Scheme, _subset, cross_validate, summarise
+from sklearn.gaussian_process import GaussianProcessRegressor
+from sklearn.gaussian_process.kernels import ConstantKernel, Matern
 
 from .simulate import isotropic, simulate
 
@@ -43,7 +42,9 @@ def scene():
 def _matern_kernel(nu, sill, practical_range):
     """sklearn's Matern(length_scale=l, nu) equals rho(u) with u = h sqrt(2 nu) / l, so l = s sqrt(2 nu)."""
     scale = practical_range / matern_practical_factor(nu)
-    return ConstantKernel(sill, "fixed") * Matern(length_scale=scale * math.sqrt(2 * nu), nu=nu, length_scale_bounds="fixed")
+    return ConstantKernel(sill, "fixed") * Matern(
+        length_scale=scale * math.sqrt(2 * nu), nu=nu, length_scale_bounds="fixed"
+    )
 
 
 @pytest.mark.parametrize("nu", [0.5, 1.5, 2.5])
@@ -74,7 +75,9 @@ def test_ordinary_kriging_is_the_limit_with_an_unknown_mean(scene):
 def test_exact_at_samples_without_nugget(scene, kind):
     samples, coords, values, _ = scene
     spec = KrigingSpec(kind, mean=3.0 if kind == "simple" else None, drift="linear" if kind == "universal" else None)
-    result = Kriger(samples, VariogramModel(0.0, (Structure("spherical", 1.0, 50.0),)), spec, UNIQUE).predict(coords[:10])
+    result = Kriger(samples, VariogramModel(0.0, (Structure("spherical", 1.0, 50.0),)), spec, UNIQUE).predict(
+        coords[:10]
+    )
     np.testing.assert_allclose(result.estimate, values[:10], rtol=1e-9)
     np.testing.assert_allclose(result.variance, 0.0, atol=1e-9)
 
@@ -100,15 +103,29 @@ def test_universal_kriging_reproduces_a_linear_field(scene):
     model = VariogramModel(0.1, (Structure("exponential", 1.0, 40.0),))
     result = Kriger(trend, model, KrigingSpec("universal", drift="linear"), UNIQUE).predict(targets)
     np.testing.assert_allclose(result.estimate, 5.0 + 0.3 * targets[:, 0] - 0.7 * targets[:, 1], rtol=1e-9)
-    moving = Kriger(trend, model, KrigingSpec("universal", drift="quadratic"), Neighbourhood(max_points=16)).predict(targets)
+    moving = Kriger(trend, model, KrigingSpec("universal", drift="quadratic"), Neighbourhood(max_points=16)).predict(
+        targets
+    )
     np.testing.assert_allclose(moving.estimate, 5.0 + 0.3 * targets[:, 0] - 0.7 * targets[:, 1], rtol=1e-8)
 
 
-SPECS = [KrigingSpec("simple", mean=3.0), KrigingSpec("ordinary"), KrigingSpec("universal", drift="linear"), KrigingSpec("universal", drift="quadratic")]
+SPECS = [
+    KrigingSpec("simple", mean=3.0),
+    KrigingSpec("ordinary"),
+    KrigingSpec("universal", drift="linear"),
+    KrigingSpec("universal", drift="quadratic"),
+]
 
 
 @pytest.mark.parametrize("spec", SPECS, ids=["simple", "ordinary", "universal-linear", "universal-quadratic"])
-@pytest.mark.parametrize("model", [VariogramModel(0.2, (Structure("exponential", 1.0, 40.0),)), VariogramModel(0.0, (Structure("power", 0.05, 1.0, 1.4),))], ids=["exponential", "power"])
+@pytest.mark.parametrize(
+    "model",
+    [
+        VariogramModel(0.2, (Structure("exponential", 1.0, 40.0),)),
+        VariogramModel(0.0, (Structure("power", 0.05, 1.0, 1.4),)),
+    ],
+    ids=["exponential", "power"],
+)
 def test_closed_form_leave_one_out_equals_refits(scene, spec, model):
     samples, coords, values, _ = scene
     if spec.type == "simple" and not model.bounded:

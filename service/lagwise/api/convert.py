@@ -16,8 +16,8 @@ from ..core.lags import LagRequest
 from ..core.models import FAMILIES, Anisotropy, Structure, VariogramModel
 from ..core.neighbourhood import Neighbourhood
 from ..core.prediction import Grid
-from ..core.validation import Scheme
 from ..core.samples import SampleSet, build_sample_set, columnar_pointer, input_hash
+from ..core.validation import Scheme
 
 FEATURES = "/samples/geojson/features"
 
@@ -220,7 +220,9 @@ def neighbourhood(document: dict) -> Neighbourhood:
     raw = document.get("neighbourhood")
     if raw is None:
         return Neighbourhood()
-    return Neighbourhood(max_points=raw["max_points"], min_points=raw["min_points"], radius=raw["radius"], sectors=raw["sectors"])
+    return Neighbourhood(
+        max_points=raw["max_points"], min_points=raw["min_points"], radius=raw["radius"], sectors=raw["sectors"]
+    )
 
 
 def scheme(document: dict) -> Scheme:

@@ -209,7 +209,11 @@ def cross_validations():
 def predictions():
     document = load_json(PredictionRequest())
     samples = convert.sample_set(document)
-    model, spec, hood = convert.variogram_model(document), convert.kriging_spec(document), convert.neighbourhood(document)
+    model, spec, hood = (
+        convert.variogram_model(document),
+        convert.kriging_spec(document),
+        convert.neighbourhood(document),
+    )
     result = predict(
         samples,
         model,

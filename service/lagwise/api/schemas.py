@@ -191,7 +191,10 @@ class StructureInput(Schema):
 
     family = fields.String(required=True)
     partial_sill = finite(validate=validate.Range(min=0))
-    range = finite(validate=validate.Range(min=0, min_inclusive=False), metadata={"description": "Practical range, coordinate units."})
+    range = finite(
+        validate=validate.Range(min=0, min_inclusive=False),
+        metadata={"description": "Practical range, coordinate units."},
+    )
     slope = finite(validate=validate.Range(min=0))
     coefficient = finite(validate=validate.Range(min=0))
     exponent = finite()
@@ -250,8 +253,16 @@ class TargetsInput(Schema):
 
 class GridInput(Schema):
     origin = fields.List(finite(), required=True, validate=validate.Length(min=1, max=3))
-    spacing = fields.List(finite(validate=validate.Range(min=0, min_inclusive=False)), required=True, validate=validate.Length(min=1, max=3))
-    shape = fields.List(fields.Integer(strict=True, validate=validate.Range(min=1)), required=True, validate=validate.Length(min=1, max=3))
+    spacing = fields.List(
+        finite(validate=validate.Range(min=0, min_inclusive=False)),
+        required=True,
+        validate=validate.Length(min=1, max=3),
+    )
+    shape = fields.List(
+        fields.Integer(strict=True, validate=validate.Range(min=1)),
+        required=True,
+        validate=validate.Length(min=1, max=3),
+    )
 
 
 class PredictionRequest(KrigingOptions):
@@ -259,7 +270,11 @@ class PredictionRequest(KrigingOptions):
 
     targets = fields.Nested(TargetsInput)
     grid = fields.Nested(GridInput)
-    return_weights = fields.List(fields.Integer(strict=True, validate=validate.Range(min=0)), validate=validate.Length(max=20), metadata={"description": "Target indexes whose kriging weights are returned (at most 20)."})
+    return_weights = fields.List(
+        fields.Integer(strict=True, validate=validate.Range(min=0)),
+        validate=validate.Length(max=20),
+        metadata={"description": "Target indexes whose kriging weights are returned (at most 20)."},
+    )
 
     @validates_schema
     def _one_target_kind(self, data, **kwargs):

@@ -233,7 +233,12 @@ def prediction(result, samples: SampleSet, model, spec, neighbourhood) -> dict:
         document["grid"] = result.grid.as_dict()
     if p.weights:
         document["weights"] = [
-            {"target": w["target"], "samples": [samples.ids[i] for i in w["samples"]], "weights": w["weights"], "lagrange": w["lagrange"]}
+            {
+                "target": w["target"],
+                "samples": [samples.ids[i] for i in w["samples"]],
+                "weights": w["weights"],
+                "lagrange": w["lagrange"],
+            }
             for w in p.weights
         ]
     document["parameters"] = {

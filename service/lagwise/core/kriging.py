@@ -27,10 +27,11 @@ from dataclasses import dataclass
 
 import numpy as np
 from scipy.linalg import LinAlgError, lu_factor, lu_solve
+from scipy.spatial.distance import cdist
 
 from .errors import FieldIssue, InvalidInput, LimitExceeded
-from .models import VariogramModel, validate_model
-from .neighbourhood import NO_NEIGHBOURS, Neighbourhood, NeighbourSearch, validate_neighbourhood
+from .models import VariogramModel, unit_semivariance, validate_model
+from .neighbourhood import NO_NEIGHBOURS, Neighbourhood, NeighbourSearch, to_search_space, validate_neighbourhood
 from .samples import SampleSet
 
 KRIGING_TYPES = ("ordinary", "simple", "universal")
@@ -69,7 +70,9 @@ def validate_spec(spec: KrigingSpec, model: VariogramModel, dimension: int) -> K
         if spec.mean is None or not math.isfinite(spec.mean):
             issues.append(FieldIssue("/kriging/mean", "simple kriging needs the known mean"))
         if not model.bounded:
-            issues.append(FieldIssue("/model", "simple kriging needs a model with a sill; linear and power structures have none"))
+            issues.append(
+                FieldIssue("/model", "simple kriging needs a model with a sill; linear and power structures have none")
+            )
     if spec.type == "universal" and spec.drift not in DRIFTS:
         issues.append(FieldIssue("/kriging/drift", f"universal kriging needs a drift: one of {', '.join(DRIFTS)}"))
     if issues:
@@ -86,7 +89,7 @@ class Frame:
     scale: float
 
     @classmethod
-    def of(cls, coords: np.ndarray) -> "Frame":
+    def of(cls, coords: np.ndarray) -> Frame:
         centre = coords.mean(axis=0)
         scale = float(np.max(np.abs(coords - centre))) or 1.0
         return cls(centre, scale)
@@ -133,6 +136,27 @@ class Covariance:
             cov = cov + self.nugget * (np.abs(h).sum(axis=-1) == 0)
         return cov
 
+    def matrix(self, coords: np.ndarray, block: int = 1000) -> np.ndarray:
+        """The samples' covariance matrix K (n, n), built row block by row block.
+
+        Distances come from ``scipy.spatial.distance.cdist`` in each structure's isotropic
+        space, so memory stays near one n x n array however many structures there are.
+        """
+        n = coords.shape[0]
+        K = np.empty((n, n))
+        spaces = [to_search_space(coords, s.anisotropy) for s in self.structural.structures]
+        for start in range(0, n, block):
+            rows = slice(start, min(n, start + block))
+            part = np.full((rows.stop - start, n), self.c0)
+            for structure, space in zip(self.structural.structures, spaces, strict=True):
+                h = cdist(space[rows], space)
+                part -= structure.partial_sill * unit_semivariance(
+                    structure.family, h, structure.range, structure.extra
+                )
+            K[rows] = part
+        K[np.diag_indices(n)] += self.nugget
+        return K
+
     @property
     def target_variance(self) -> float:
         """k_00: covariance of the target with itself."""
@@ -162,7 +186,15 @@ class Prediction:
 class Kriger:
     """Kriging from one sample set with one model, specification and neighbourhood."""
 
-    def __init__(self, samples: SampleSet, model: VariogramModel, spec: KrigingSpec, neighbourhood: Neighbourhood, *, max_unique: int = 10_000):
+    def __init__(
+        self,
+        samples: SampleSet,
+        model: VariogramModel,
+        spec: KrigingSpec,
+        neighbourhood: Neighbourhood,
+        *,
+        max_unique: int = 10_000,
+    ):
         validate_neighbourhood(neighbourhood)
         self.spec = validate_spec(spec, model, samples.dimension)
         self.samples = samples
@@ -176,7 +208,9 @@ class Kriger:
         if neighbourhood.unique:
             if samples.size > max_unique:
                 raise LimitExceeded(
-                    "LAGWISE_MAX_UNIQUE_SAMPLES", max_unique, samples.size,
+                    "LAGWISE_MAX_UNIQUE_SAMPLES",
+                    max_unique,
+                    samples.size,
                     'The unique neighbourhood factorises one matrix of all samples; give a moving neighbourhood, e.g. {"max_points": 24}.',
                     "/neighbourhood",
                 )
@@ -189,7 +223,7 @@ class Kriger:
     def system_matrix(self, coords: np.ndarray | None = None) -> np.ndarray:
         """The bordered kriging matrix [[K, F], [F', 0]] of all samples (or of ``coords``)."""
         coords = self.coords if coords is None else coords
-        K = self.cov.between(coords, coords, same=True)
+        K = self.cov.matrix(coords)
         F = self.frame.drift(self.spec, coords)
         p = F.shape[1]
         n = coords.shape[0]
@@ -218,7 +252,10 @@ class Kriger:
         if diagonal.min() <= 1e-13 * diagonal.max():
             worst = int(factor[1][int(np.argmin(diagonal))]) if np.argmin(diagonal) < self.samples.size else None
             who = f" (near sample {self.samples.ids[worst]})" if worst is not None and worst < self.samples.size else ""
-            raise InvalidInput.at("/samples", f"the kriging matrix is singular{who}: samples too close together for a model without nugget, or a drift the samples cannot support")
+            raise InvalidInput.at(
+                "/samples",
+                f"the kriging matrix is singular{who}: samples too close together for a model without nugget, or a drift the samples cannot support",
+            )
         return factor
 
     def _predict_unique(self, targets: np.ndarray, want_weights: set) -> Prediction:
@@ -238,7 +275,14 @@ class Kriger:
             estimate[start : start + len(chunk)] = est
             variance[start : start + len(chunk)] = var
             for t in sorted(i for i in want_weights if start <= i < start + len(chunk)):
-                weights.append({"target": t, "samples": list(range(n)), "weights": lam[:, t - start], "lagrange": solution[n:, t - start]})
+                weights.append(
+                    {
+                        "target": t,
+                        "samples": list(range(n)),
+                        "weights": lam[:, t - start],
+                        "lagrange": solution[n:, t - start],
+                    }
+                )
         return Prediction(estimate, variance, {}, weights)
 
     def _finish(self, lam, nu, k, f, z):
@@ -252,7 +296,9 @@ class Kriger:
 
     # ---- moving neighbourhood ---------------------------------------------
 
-    def _predict_moving(self, targets: np.ndarray, want_weights: set, exclude: np.ndarray | None = None, workers: int = 1) -> Prediction:
+    def _predict_moving(
+        self, targets: np.ndarray, want_weights: set, exclude: np.ndarray | None = None, workers: int = 1
+    ) -> Prediction:
         m = targets.shape[0]
         estimate = np.full(m, np.nan)
         variance = np.full(m, np.nan)
@@ -267,7 +313,9 @@ class Kriger:
                 reasons[start + int(t)] = NO_NEIGHBOURS
             for k in np.unique(counts[counts > 0]):
                 rows = np.flatnonzero(counts == k)
-                self._solve_group(targets[start:stop], idx[rows, :k], rows, start, estimate, variance, reasons, weights, want_weights)
+                self._solve_group(
+                    targets[start:stop], idx[rows, :k], rows, start, estimate, variance, reasons, weights, want_weights
+                )
         return Prediction(estimate, variance, reasons, weights)
 
     def _solve_group(self, targets, idx, rows, start, estimate, variance, reasons, weights, want_weights):

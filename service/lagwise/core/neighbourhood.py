@@ -52,7 +52,12 @@ class Neighbourhood:
     def as_dict(self) -> dict:
         if self.unique:
             return {"kind": "unique (all samples)"}
-        return {"max_points": self.max_points, "min_points": self.min_points, "radius": self.radius, "sectors": self.sectors}
+        return {
+            "max_points": self.max_points,
+            "min_points": self.min_points,
+            "radius": self.radius,
+            "sectors": self.sectors,
+        }
 
 
 def validate_neighbourhood(n: Neighbourhood) -> None:
@@ -105,7 +110,9 @@ class NeighbourSearch:
         self.coords = coords
         self.n = neighbourhood
 
-    def query(self, targets: np.ndarray, exclude: np.ndarray | None = None, workers: int = 1) -> tuple[np.ndarray, np.ndarray]:
+    def query(
+        self, targets: np.ndarray, exclude: np.ndarray | None = None, workers: int = 1
+    ) -> tuple[np.ndarray, np.ndarray]:
         """Neighbour indices (m, k) and validity mask (m, k) for each target (m, d).
 
         ``exclude`` gives, per target, one sample index to leave out (leave-one-out).

@@ -37,7 +37,12 @@ class Grid:
         return np.column_stack([m.transpose(tuple(reversed(range(len(axes))))).ravel() for m in mesh])
 
     def as_dict(self) -> dict:
-        return {"origin": list(self.origin), "spacing": list(self.spacing), "shape": list(self.shape), "order": "x fastest"}
+        return {
+            "origin": list(self.origin),
+            "spacing": list(self.spacing),
+            "shape": list(self.shape),
+            "order": "x fastest",
+        }
 
 
 @dataclass(frozen=True)
@@ -52,7 +57,11 @@ class PredictionResult:
 def _validate_grid(grid: Grid, dimension: int) -> None:
     issues = []
     if not (len(grid.origin) == len(grid.spacing) == len(grid.shape) == dimension):
-        issues.append(FieldIssue("/grid", f"origin, spacing and shape need {dimension} entries each (the samples are {dimension}-D)"))
+        issues.append(
+            FieldIssue(
+                "/grid", f"origin, spacing and shape need {dimension} entries each (the samples are {dimension}-D)"
+            )
+        )
     else:
         for a, s in enumerate(grid.spacing):
             if not (math.isfinite(s) and s > 0):
@@ -77,7 +86,9 @@ def _project(samples: SampleSet, targets: np.ndarray) -> np.ndarray:
 def _check_cost(samples: SampleSet, m: int, neighbourhood: Neighbourhood, limits: Limits) -> None:
     limits.check_samples(samples.size)
     if m > limits.max_targets:
-        raise LimitExceeded("LAGWISE_MAX_TARGETS", limits.max_targets, m, "Predict on a coarser grid or in several requests.", "/grid")
+        raise LimitExceeded(
+            "LAGWISE_MAX_TARGETS", limits.max_targets, m, "Predict on a coarser grid or in several requests.", "/grid"
+        )
     n = samples.size
     if neighbourhood.unique:
         flops = n**3 / 3 + 2.0 * m * n * n
@@ -85,7 +96,13 @@ def _check_cost(samples: SampleSet, m: int, neighbourhood: Neighbourhood, limits
         k = min(neighbourhood.max_points, n) + 10
         flops = m * (k**3 / 3 + 2 * k * k)
     if flops > limits.max_kriging_flops:
-        raise LimitExceeded("LAGWISE_MAX_KRIGING_FLOPS", limits.max_kriging_flops, flops, "Use fewer targets, fewer neighbours or a moving neighbourhood.", "/neighbourhood")
+        raise LimitExceeded(
+            "LAGWISE_MAX_KRIGING_FLOPS",
+            limits.max_kriging_flops,
+            flops,
+            "Use fewer targets, fewer neighbours or a moving neighbourhood.",
+            "/neighbourhood",
+        )
 
 
 def predict(
@@ -113,7 +130,9 @@ def predict(
     else:
         points = np.asarray(targets, dtype=np.float64)
         if points.ndim != 2 or points.shape[1] != samples.dimension:
-            raise InvalidInput.at("/targets", f"targets need {samples.dimension} coordinates (the samples are {samples.dimension}-D)")
+            raise InvalidInput.at(
+                "/targets", f"targets need {samples.dimension} coordinates (the samples are {samples.dimension}-D)"
+            )
         if points.shape[0] == 0:
             raise InvalidInput.at("/targets", "give at least one target")
     m = grid.size if grid is not None else points.shape[0]

@@ -6,7 +6,8 @@ samples and b = [z; 0] (z - m for simple kriging), the error of the estimate of 
 from the other samples is z_i - z_hat_(-i) = (B b)_i / B_ii and its variance is
 1 / B_ii -- one factorisation instead of n. The inverse's sample block is formed
 through the Schur complement of a Cholesky factor when the covariance matrix is
-positive definite (bounded models), otherwise through LU.
+positive definite (bounded models): K = U'U, diag(K^-1) is the row norms of U^-1,
+otherwise through LU.
 
 Reported per sample (DESIGN conventions): error = estimate - observed; the standard
 deviation is that of this error (it includes the nugget whatever its role, since
@@ -20,7 +21,7 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 from scipy.linalg import LinAlgError, cho_factor, cho_solve, inv
-from scipy.linalg.lapack import dpotri
+from scipy.linalg.lapack import dtrtri
 
 from .errors import InvalidInput
 from .kriging import Kriger, KrigingSpec
@@ -42,7 +43,11 @@ class Scheme:
     seed: int = 1
 
     def as_dict(self) -> dict:
-        return {"type": self.type} if self.type == "leave_one_out" else {"type": self.type, "folds": self.folds, "seed": self.seed}
+        return (
+            {"type": self.type}
+            if self.type == "leave_one_out"
+            else {"type": self.type, "folds": self.folds, "seed": self.seed}
+        )
 
 
 @dataclass(frozen=True)
@@ -80,17 +85,19 @@ def _inverse_blocks(kriger: Kriger, rhs: np.ndarray) -> tuple[np.ndarray, np.nda
         if not kriger.model.bounded:
             raise LinAlgError("unbounded model: the covariance block is not positive definite")
         factor = cho_factor(K, lower=False, check_finite=False)
-        k_inv, info = dpotri(factor[0], lower=0)
+        # K = U'U, so K^-1 = U^-1 U^-T and diag(K^-1)_i is the squared norm of row i of U^-1.
+        u_inv, info = dtrtri(np.triu(factor[0]), lower=0)
         if info != 0:
-            raise LinAlgError("dpotri failed")
-        k_inv = np.triu(k_inv) + np.triu(k_inv, 1).T
+            raise LinAlgError("dtrtri failed")
+        k_inv_diag = np.einsum("ij,ij->i", u_inv, u_inv)
+        del u_inv
         base = cho_solve(factor, rhs, check_finite=False)
         if F.shape[1] == 0:
-            return np.diag(k_inv).copy(), base
+            return k_inv_diag, base
         kf = cho_solve(factor, F, check_finite=False)
         schur = F.T @ kf
         s_inv = np.linalg.inv(schur)
-        diag = np.diag(k_inv) - np.einsum("ip,pq,iq->i", kf, s_inv, kf)
+        diag = k_inv_diag - np.einsum("ip,pq,iq->i", kf, s_inv, kf)
         return diag, base - kf @ (s_inv @ (F.T @ base))
     except (LinAlgError, np.linalg.LinAlgError):
         B = inv(A, check_finite=False)
@@ -103,7 +110,9 @@ def _leave_one_out_unique(kriger: Kriger) -> tuple[np.ndarray, np.ndarray]:
     rhs = z - kriger.spec.mean if kriger.spec.type == "simple" else z
     diag, bz = _inverse_blocks(kriger, rhs)
     if np.any(diag <= 0):
-        raise InvalidInput.at("/model", "the kriging matrix is not positive definite on the samples' span: check the model")
+        raise InvalidInput.at(
+            "/model", "the kriging matrix is not positive definite on the samples' span: check the model"
+        )
     residual = bz / diag  # z_i - z_hat_(-i), Dubrule (1983)
     return z - residual, np.sqrt(1.0 / diag)
 
@@ -178,7 +187,9 @@ def summarise(observed, estimate, sd, threshold, reasons, method) -> CrossValida
         standardized = np.where(sd > 0, error / sd, np.nan)
     outlier = np.abs(np.nan_to_num(standardized)) > threshold
     stats = statistics(observed, estimate, error, sd, standardized, outlier)
-    return CrossValidation(observed, estimate, sd, error, standardized, outlier, stats, assess(stats, observed), reasons, method)
+    return CrossValidation(
+        observed, estimate, sd, error, standardized, outlier, stats, assess(stats, observed), reasons, method
+    )
 
 
 def _mean(a):
@@ -219,14 +230,20 @@ def assess(stats: dict, observed: np.ndarray) -> str:
     if abs(bias) < 0.05:
         parts.append("No notable bias (mean error under 5 % of the data's standard deviation).")
     else:
-        parts.append(f"Estimates are on average {'higher' if bias > 0 else 'lower'} than the observations by {abs(stats['mean_error']):.4g} ({abs(bias) * 100:.0f} % of the data's standard deviation).")
+        parts.append(
+            f"Estimates are on average {'higher' if bias > 0 else 'lower'} than the observations by {abs(stats['mean_error']):.4g} ({abs(bias) * 100:.0f} % of the data's standard deviation)."
+        )
     rmsse = stats["root_mean_square_standardized_error"]
     if rmsse is None:
         parts.append("Standardized errors are undefined (zero kriging variances).")
     elif rmsse > 1.2:
-        parts.append(f"RMSSE is {rmsse:.2f}: errors are larger than the kriging variance says, so the model understates the uncertainty (sill or nugget too small).")
+        parts.append(
+            f"RMSSE is {rmsse:.2f}: errors are larger than the kriging variance says, so the model understates the uncertainty (sill or nugget too small)."
+        )
     elif rmsse < 0.8:
-        parts.append(f"RMSSE is {rmsse:.2f}: errors are smaller than the kriging variance says, so the model overstates the uncertainty.")
+        parts.append(
+            f"RMSSE is {rmsse:.2f}: errors are smaller than the kriging variance says, so the model overstates the uncertainty."
+        )
     else:
         parts.append(f"RMSSE is {rmsse:.2f}: the kriging variance matches the size of the errors.")
     outside = 1.0 - stats["interval_coverage_95"]
@@ -234,4 +251,3 @@ def assess(stats: dict, observed: np.ndarray) -> str:
     if stats["outliers"]:
         parts.append(f"{stats['outliers']} samples are flagged as outliers; check them for errors.")
     return " ".join(parts)
-
