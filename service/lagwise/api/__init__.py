@@ -3,16 +3,16 @@
 from __future__ import annotations
 
 import threading
-import time
 from collections.abc import Mapping
 
-from flask import Flask, Response, g
+from flask import Flask, Response
 
 from ..core.warmup import warm_kernels
+from . import observability, security
 from .jsonio import dumps
 from .openapi import as_dict, as_yaml
 from .operations import blueprint
-from .problems import register_error_handlers
+from .problems import Problem, register_error_handlers
 from .settings import Settings
 
 
@@ -37,9 +37,14 @@ def create_app(config: Mapping | None = None, *, settings: Settings | None = Non
     ready = threading.Event()
     app.extensions["lagwise_ready"] = ready
 
-    @app.before_request
-    def _start_timer():
-        g.started = time.perf_counter()
+    observability.install(app)
+    security.install(app)
+
+    @app.get("/metrics")
+    def metrics():
+        if not settings.metrics_on_main_listener:
+            raise Problem("not-found", "metrics are served on LAGWISE_METRICS_BIND")
+        return observability.metrics_response()
 
     @app.get("/openapi.json")
     def openapi_json():

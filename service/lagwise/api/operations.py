@@ -2,15 +2,17 @@
 
 from __future__ import annotations
 
+import functools
 import time
 from dataclasses import dataclass
 
 import numba
 import numpy as np
 import scipy
-from flask import Blueprint, Response, current_app, g
+from flask import Blueprint, Response, current_app, g, request
 
 from .. import __version__
+from ..core.deadline import deadline
 from ..core.experimental import experimental_variogram
 from ..core.fitting import fit_model
 from ..core.maps import variogram_map
@@ -20,6 +22,7 @@ from ..core.prediction import predict
 from ..core.validation import cross_validate
 from . import convert, serialize
 from .jsonio import dumps
+from .observability import count_work
 from .problems import KINDS, Problem
 from .requests import load_json
 from .schemas import (
@@ -54,15 +57,21 @@ class Operation:
 
 
 OPERATIONS: list[Operation] = []
-COMPUTE_ERRORS = (400, 413, 415, 422, 503)
+COMPUTE_ERRORS = (400, 401, 413, 415, 422, 503)
 
 
 def operation(path, method, summary, request=None, response=HealthSchema, errors=COMPUTE_ERRORS):
-    """Register a view on the blueprint and in :data:`OPERATIONS`."""
+    """Register a view on the blueprint and in :data:`OPERATIONS`; computing views run under the deadline."""
 
     def decorate(view):
         OPERATIONS.append(Operation(path, method, view.__name__, summary, request, response, errors))
-        blueprint.add_url_rule(path, view.__name__, view, methods=[method])
+
+        @functools.wraps(view)
+        def within_deadline():
+            with deadline(settings().deadline_seconds):
+                return view()
+
+        blueprint.add_url_rule(path, view.__name__, within_deadline if request is not None else view, methods=[method])
         return view
 
     return decorate
@@ -76,7 +85,9 @@ def json_response(document: dict, status: int = 200) -> Response:
     return Response(dumps(document), status=status, mimetype="application/json")
 
 
-def with_provenance(document: dict, input_sha256: str) -> Response:
+def with_provenance(document: dict, input_sha256: str, samples: int = 0, pairs: int = 0) -> Response:
+    """Add provenance, count the work done, and answer."""
+    count_work(request.url_rule.rule, samples, pairs)
     document["provenance"] = {
         "service": "lagwise",
         "version": __version__,
@@ -108,7 +119,8 @@ def experimental_variograms():
         pairs_for_class=convert.scatter_request(document),
         limits=settings().limits,
     )
-    return with_provenance(serialize.experimental(result, samples), samples.input_hash)
+    pairs = sum(row.pairs for d in result.directions for row in d.classes)
+    return with_provenance(serialize.experimental(result, samples), samples.input_hash, samples.size, pairs)
 
 
 @operation(
@@ -124,7 +136,7 @@ def variogram_maps():
         statistic=document["statistic"],
         limits=settings().limits,
     )
-    return with_provenance(serialize.variogram_map(result, samples), samples.input_hash)
+    return with_provenance(serialize.variogram_map(result, samples), samples.input_hash, samples.size, int(result.pairs.sum()) // 2)
 
 
 @operation(
@@ -160,7 +172,8 @@ def model_fits():
             options={"families": options["families"], "structures": options["structures"]},
         )
         body["warnings"] = list(result.experimental.warnings) + body["warnings"]
-        return with_provenance(body, samples.input_hash)
+        pairs = sum(row.pairs for d in result.experimental.directions for row in d.classes)
+        return with_provenance(body, samples.input_hash, samples.size, pairs)
     points, dimension, variance, statistic, digest = convert.experimental_points(document, document["min_pairs"])
     fit = fit_model(points, dimension=dimension, sample_variance=variance, **options)
     body = serialize.model_fit(
@@ -196,7 +209,7 @@ def cross_validations():
         workers=numba.get_num_threads(),
     )
     body = serialize.cross_validation(result, samples, model, spec, hood, scheme, document["outlier_threshold"])
-    return with_provenance(body, samples.input_hash)
+    return with_provenance(body, samples.input_hash, samples.size)
 
 
 @operation(
@@ -225,7 +238,7 @@ def predictions():
         limits=settings().limits,
         workers=numba.get_num_threads(),
     )
-    return with_provenance(serialize.prediction(result, samples, model, spec, hood), samples.input_hash)
+    return with_provenance(serialize.prediction(result, samples, model, spec, hood), samples.input_hash, samples.size)
 
 
 @operation(

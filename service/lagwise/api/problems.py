@@ -11,8 +11,10 @@ from dataclasses import dataclass
 from flask import Flask, Response, request
 from werkzeug.exceptions import HTTPException
 
+from ..core.deadline import DeadlineExceeded
 from ..core.errors import InvalidInput, LimitExceeded
 from .jsonio import dumps
+from .observability import REFUSALS, logger, request_id
 
 PROBLEM_MEDIA_TYPE = "application/problem+json"
 
@@ -44,6 +46,7 @@ KINDS = {
         422, "Limit exceeded", "The request is valid but would cost more than a configured limit allows."
     ),
     "not-ready": ProblemKind(503, "Not ready", "The service is starting or stopping; retry shortly."),
+    "deadline-exceeded": ProblemKind(503, "Deadline exceeded", "The request ran past LAGWISE_DEADLINE_SECONDS; ask for less work (fewer samples, targets or classes). Retrying the same request will not help."),
     "internal-error": ProblemKind(
         500, "Internal error", "An unexpected error; this is a bug, please report it with the request id."
     ),
@@ -82,10 +85,12 @@ def problem_response(problem: Problem) -> Response:
         "status": kind.status,
         "detail": problem.detail,
         "instance": request.path,
+        "request_id": request_id(),
     }
     if problem.errors:
         document["errors"] = problem.errors
     document.update(problem.extra)
+    REFUSALS.labels(problem.kind).inc()
     return Response(dumps(document), status=kind.status, mimetype=PROBLEM_MEDIA_TYPE)
 
 
@@ -111,6 +116,7 @@ def register_error_handlers(app: Flask) -> None:
     app.register_error_handler(Problem, problem_response)
     app.register_error_handler(InvalidInput, lambda exc: problem_response(from_invalid_input(exc)))
     app.register_error_handler(LimitExceeded, lambda exc: problem_response(from_limit(exc)))
+    app.register_error_handler(DeadlineExceeded, lambda exc: problem_response(Problem("deadline-exceeded", str(exc))))
 
     def http_error(exc: HTTPException) -> Response:
         kind = _HTTP_KINDS.get(exc.code or 500)
@@ -122,7 +128,7 @@ def register_error_handlers(app: Flask) -> None:
         return problem_response(Problem(kind, detail))
 
     def unexpected(exc: Exception) -> Response:
-        app.logger.exception("unhandled error on %s", request.path)
+        logger().exception("unhandled error", extra={"request_id": request_id(), "path": request.path})
         return problem_response(Problem("internal-error", "An unexpected error occurred; it has been logged."))
 
     app.register_error_handler(HTTPException, http_error)

@@ -530,6 +530,7 @@ class ProblemSchema(Schema):
     status = fields.Integer()
     detail = fields.String()
     instance = fields.String()
+    request_id = fields.String()
     errors = fields.List(fields.Nested(FieldErrorSchema))
 
 

@@ -13,7 +13,14 @@ LAGWISE_MAX_UNIQUE_SAMPLES     10000       samples for kriging with the unique n
 LAGWISE_MAX_TARGETS            2000000     prediction targets per request
 LAGWISE_MAX_KRIGING_FLOPS      2e13        estimated floating-point work of one request's kriging
 LAGWISE_THREADS                cores/workers  compute threads per worker process
+LAGWISE_DEADLINE_SECONDS       60          time budget of one request; past it -> 503
+LAGWISE_API_KEYS               (none)      comma-separated SHA-256 hex digests of API keys
+LAGWISE_API_KEYS_FILE          (none)      file of SHA-256 hex digests, one per line (# comments)
+LAGWISE_CORS_ORIGINS           (none)      comma-separated origins allowed by CORS (off when empty)
+LAGWISE_METRICS_BIND           (none)      serve /metrics on this address instead (gunicorn master)
 =============================  ==========  ==============================================
+
+With no API key digest configured, the service is open (for a private network).
 """
 
 from __future__ import annotations
@@ -40,12 +47,29 @@ def _int_env(env: Mapping[str, str], name: str, default: int) -> int:
     return value
 
 
+def _digests(env: Mapping[str, str]) -> frozenset[str]:
+    entries = [d for d in env.get("LAGWISE_API_KEYS", "").split(",")]
+    path = env.get("LAGWISE_API_KEYS_FILE")
+    if path:
+        with open(path, encoding="utf-8") as handle:
+            entries += [line.split("#", 1)[0] for line in handle]
+    digests = frozenset(e.strip().lower() for e in entries if e.strip())
+    bad = [d for d in digests if len(d) != 64 or any(c not in "0123456789abcdef" for c in d)]
+    if bad:
+        raise ValueError("LAGWISE_API_KEYS / LAGWISE_API_KEYS_FILE must hold SHA-256 hex digests (64 hex characters)")
+    return digests
+
+
 @dataclass(frozen=True)
 class Settings:
     """Resolved service settings (see the module table)."""
 
     max_body_bytes: int = DEFAULT_MAX_BODY_BYTES
     limits: Limits = field(default_factory=Limits)
+    deadline_seconds: float = 60.0
+    api_key_digests: frozenset[str] = frozenset()
+    cors_origins: frozenset[str] = frozenset()
+    metrics_on_main_listener: bool = True
 
     @classmethod
     def from_env(cls, env: Mapping[str, str] | None = None) -> Settings:
@@ -58,4 +82,8 @@ class Settings:
         return cls(
             max_body_bytes=_int_env(env, "LAGWISE_MAX_BODY_BYTES", DEFAULT_MAX_BODY_BYTES),
             limits=Limits(**limit_values),
+            deadline_seconds=float(_int_env(env, "LAGWISE_DEADLINE_SECONDS", 60)),
+            api_key_digests=_digests(env),
+            cors_origins=frozenset(o.strip() for o in env.get("LAGWISE_CORS_ORIGINS", "").split(",") if o.strip()),
+            metrics_on_main_listener=not env.get("LAGWISE_METRICS_BIND"),
         )

@@ -8,6 +8,7 @@ import numpy as np
 
 from . import kernels as K
 from .directions import OMNIDIRECTIONAL, DirectionClass, validate_direction
+from .deadline import check_deadline
 from .errors import FieldIssue, InvalidInput
 from .lags import AUTO_FINE_BINS, LagRequest, auto_edges, validate_lags
 from .limits import Limits
@@ -220,7 +221,9 @@ def experimental_variogram(
     edges = _resolve_edges(samples, summary, prepared, lags, resolved, min_pairs, limits)
     classes = layout(resolved, edges)
     limits.check_pairs(estimate_pairs_within(samples.coords, classes.search_radius), len(resolved))
+    check_deadline()
     table, colocated = accumulate(prepared, classes, ACCUMULATION_MODE[statistic])
+    check_deadline()
     counts = table[:, :, K.COUNT]
     medians = _class_medians(statistic, prepared, classes, counts, limits)
     results = tuple(

@@ -31,6 +31,7 @@ from dataclasses import dataclass, field
 import numpy as np
 from scipy.optimize import least_squares
 
+from .deadline import check_deadline
 from .errors import FieldIssue, InvalidInput
 from .models import BOUNDED_FAMILIES, FAMILIES, Anisotropy, Structure, VariogramModel
 
@@ -336,6 +337,7 @@ def _fit_candidate(spec: _Spec, points: ExperimentalPoints, weighting: str, samp
     first_weights = _weights("pairs" if weighting == "cressie" else weighting, problem, None)
     best, evaluations = None, 0
     for start in problem.starts():
+        check_deadline()
         result = _solve(problem, first_weights, start)
         evaluations += result.nfev
         if best is None or result.cost < best.cost:

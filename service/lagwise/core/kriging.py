@@ -29,6 +29,7 @@ import numpy as np
 from scipy.linalg import LinAlgError, lu_factor, lu_solve
 from scipy.spatial.distance import cdist
 
+from .deadline import check_deadline
 from .errors import FieldIssue, InvalidInput, LimitExceeded
 from .models import VariogramModel, unit_semivariance, validate_model
 from .neighbourhood import NO_NEIGHBOURS, Neighbourhood, NeighbourSearch, to_search_space, validate_neighbourhood
@@ -267,6 +268,7 @@ class Kriger:
         # Right-hand sides take n x chunk x d separations: keep them near 16 MB.
         step = max(1, min(TARGET_CHUNK, 2_000_000 // max(n, 1)))
         for start in range(0, m, step):
+            check_deadline()
             chunk = targets[start : start + step]
             rhs = np.concatenate([self.cov.between(self.coords, chunk), self.frame.drift(self.spec, chunk).T], axis=0)
             solution = lu_solve(self._factor, rhs)
@@ -305,6 +307,7 @@ class Kriger:
         reasons: dict = {}
         weights = []
         for start in range(0, m, TARGET_CHUNK):
+            check_deadline()
             stop = min(m, start + TARGET_CHUNK)
             ex = None if exclude is None else exclude[start:stop]
             idx, valid = self.search.query(targets[start:stop], ex, workers)

@@ -23,6 +23,7 @@ import numpy as np
 from scipy.linalg import LinAlgError, cho_factor, cho_solve, inv
 from scipy.linalg.lapack import dtrtri
 
+from .deadline import check_deadline
 from .errors import InvalidInput
 from .kriging import Kriger, KrigingSpec
 from .limits import Limits
@@ -170,6 +171,7 @@ def cross_validate(
     else:
         folds = np.array_split(np.random.default_rng(scheme.seed).permutation(n), scheme.folds)
         for fold in folds:
+            check_deadline()
             keep = np.ones(n, dtype=bool)
             keep[fold] = False
             kriger = Kriger(_subset(samples, keep), model, spec, neighbourhood, max_unique=limits.max_unique_samples)
