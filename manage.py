@@ -107,6 +107,9 @@ def main(argv: list[str]) -> int:
     if command == "openapi":
         ensure_environment()
         return subprocess.run([str(BIN / "lagwise"), "openapi"], cwd=ROOT).returncode
+    if command == "cluster":
+        ensure_environment()
+        os.execv(str(PYTHON), [str(PYTHON), str(ROOT / "deploy" / "cluster.py"), *rest])
     if command == "lint":
         ensure_environment()
         return subprocess.run(
