@@ -53,6 +53,7 @@ class Cluster:
         self.env = env or {}
         self.prefix = Path(tempfile.mkdtemp(prefix="lagwise-cluster-"))
         self.instances: list[tuple[int, subprocess.Popen]] = []
+        self.logs: list = []
         self.nginx: subprocess.Popen | None = None
 
     @property
@@ -66,6 +67,7 @@ class Cluster:
         metrics.mkdir()
         env = dict(os.environ, LAGWISE_BIND=f"127.0.0.1:{port}", LAGWISE_WORKERS=str(self.workers), PROMETHEUS_MULTIPROC_DIR=str(metrics), **self.env)
         log = open(self.prefix / f"instance-{port}.log", "w")
+        self.logs.append(log)
         process = subprocess.Popen(
             [sys.executable, "-m", "gunicorn", "--config", str(CONFIG), "lagwise.api:create_app()"],
             env=env, stdout=log, stderr=log, start_new_session=True,
@@ -78,7 +80,7 @@ class Cluster:
             self.start_instance()
         for port, _ in self.instances:
             wait_ready(f"http://127.0.0.1:{port}")
-        upstreams = "\n".join(f"        server 127.0.0.1:{port} max_fails=2 fail_timeout=10s;" for port, _ in self.instances)
+        upstreams = "\n".join(f"        server 127.0.0.1:{port} max_fails=2 fail_timeout=5s;" for port, _ in self.instances)
         body = os.environ.get("LAGWISE_MAX_BODY_BYTES", str(64 * 1024 * 1024))
         config = (
             TEMPLATE.read_text()
@@ -112,6 +114,9 @@ class Cluster:
                 process.wait(timeout=60)
             except subprocess.TimeoutExpired:
                 os.killpg(process.pid, signal.SIGKILL)
+                process.wait()
+        for log in self.logs:
+            log.close()
         shutil.rmtree(self.prefix, ignore_errors=True)
 
     def __enter__(self) -> "Cluster":

@@ -126,7 +126,8 @@ class Lagwise:
         while True:
             try:
                 response = self.session.request(method, url, data=data, headers=headers, timeout=self.timeout)
-            except (requests.ConnectionError, requests.Timeout) as exc:
+            except (requests.ConnectionError, requests.Timeout, requests.exceptions.ChunkedEncodingError) as exc:
+                # A connection broken mid-answer is retried too: every endpoint is idempotent.
                 if attempt >= self.retry.retries:
                     raise TransportError(
                         f"no answer from {url} after {attempt + 1} attempts: {exc}", request_id=request_id
