@@ -65,22 +65,33 @@ class Cluster:
         port = free_port()
         metrics = self.prefix / f"metrics-{port}"
         metrics.mkdir()
-        env = dict(os.environ, LAGWISE_BIND=f"127.0.0.1:{port}", LAGWISE_WORKERS=str(self.workers), PROMETHEUS_MULTIPROC_DIR=str(metrics), **self.env)
+        env = dict(
+            os.environ,
+            LAGWISE_BIND=f"127.0.0.1:{port}",
+            LAGWISE_WORKERS=str(self.workers),
+            PROMETHEUS_MULTIPROC_DIR=str(metrics),
+            **self.env,
+        )
         log = open(self.prefix / f"instance-{port}.log", "w")
         self.logs.append(log)
         process = subprocess.Popen(
             [sys.executable, "-m", "gunicorn", "--config", str(CONFIG), "lagwise.api:create_app()"],
-            env=env, stdout=log, stderr=log, start_new_session=True,
+            env=env,
+            stdout=log,
+            stderr=log,
+            start_new_session=True,
         )
         self.instances.append((port, process))
         return port
 
-    def start(self) -> "Cluster":
+    def start(self) -> Cluster:
         for _ in range(self.count):
             self.start_instance()
         for port, _ in self.instances:
             wait_ready(f"http://127.0.0.1:{port}")
-        upstreams = "\n".join(f"        server 127.0.0.1:{port} max_fails=2 fail_timeout=5s;" for port, _ in self.instances)
+        upstreams = "\n".join(
+            f"        server 127.0.0.1:{port} max_fails=2 fail_timeout=5s;" for port, _ in self.instances
+        )
         body = os.environ.get("LAGWISE_MAX_BODY_BYTES", str(64 * 1024 * 1024))
         config = (
             TEMPLATE.read_text()
@@ -91,7 +102,10 @@ class Cluster:
         )
         (self.prefix / "nginx.conf").write_text(config)
         nginx = shutil.which("nginx") or "/usr/sbin/nginx"
-        self.nginx = subprocess.Popen([nginx, "-c", str(self.prefix / "nginx.conf"), "-p", str(self.prefix), "-g", "daemon off;"], start_new_session=True)
+        self.nginx = subprocess.Popen(
+            [nginx, "-c", str(self.prefix / "nginx.conf"), "-p", str(self.prefix), "-g", "daemon off;"],
+            start_new_session=True,
+        )
         wait_ready(self.url, 30)
         return self
 
@@ -119,7 +133,7 @@ class Cluster:
             log.close()
         shutil.rmtree(self.prefix, ignore_errors=True)
 
-    def __enter__(self) -> "Cluster":
+    def __enter__(self) -> Cluster:
         try:
             return self.start()
         except BaseException:
@@ -143,7 +157,10 @@ def main(argv=None) -> int:
     signal.signal(signal.SIGTERM, _interrupt)
     with Cluster(args.instances, args.port, args.workers) as cluster:
         ports = ", ".join(str(p) for p, _ in cluster.instances)
-        print(f"{args.instances} instances (127.0.0.1 ports {ports}) behind nginx at {cluster.url}; Ctrl-C stops them.", flush=True)
+        print(
+            f"{args.instances} instances (127.0.0.1 ports {ports}) behind nginx at {cluster.url}; Ctrl-C stops them.",
+            flush=True,
+        )
         try:
             while True:
                 time.sleep(1)

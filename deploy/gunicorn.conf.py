@@ -56,9 +56,8 @@ def when_ready(server):
     """Serve /metrics on a separate listener when LAGWISE_METRICS_BIND is set."""
     address = os.environ.get("LAGWISE_METRICS_BIND")
     if address:
-        from prometheus_client import start_http_server
-
         from lagwise.api.observability import metrics_registry
+        from prometheus_client import start_http_server
 
         host, _, port = address.rpartition(":")
         start_http_server(int(port), addr=host or "127.0.0.1", registry=metrics_registry())
@@ -67,7 +66,6 @@ def when_ready(server):
 def post_fork(server, worker):
     """Set this worker's compute threads and run the kernels once, so requests never compile."""
     import numba
-
     from lagwise.core.warmup import warm_kernels
 
     numba.set_num_threads(min(threads_per_worker, numba.config.NUMBA_NUM_THREADS))
@@ -76,9 +74,8 @@ def post_fork(server, worker):
 
 def child_exit(server, worker):
     """Fold a dead worker's live gauges away and count the restart."""
-    from prometheus_client import multiprocess
-
     from lagwise.api.observability import WORKER_RESTARTS
+    from prometheus_client import multiprocess
 
     multiprocess.mark_process_dead(worker.pid)
     WORKER_RESTARTS.inc()

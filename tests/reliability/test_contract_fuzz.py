@@ -15,6 +15,9 @@ from pathlib import Path
 import pytest
 import schemathesis
 from hypothesis import HealthCheck, settings
+from lagwise.api import create_app
+from lagwise.api.settings import Settings
+from lagwise.core.limits import Limits
 from schemathesis.checks import not_a_server_error
 from schemathesis.specs.openapi.checks import (
     content_type_conformance,
@@ -23,14 +26,19 @@ from schemathesis.specs.openapi.checks import (
     status_code_conformance,
 )
 
-from lagwise.api import create_app
-from lagwise.api.settings import Settings
-from lagwise.core.limits import Limits
 from tests.live import running_service
 
-CHECKS = [not_a_server_error, status_code_conformance, content_type_conformance, response_schema_conformance, negative_data_rejection]
+CHECKS = [
+    not_a_server_error,
+    status_code_conformance,
+    content_type_conformance,
+    response_schema_conformance,
+    negative_data_rejection,
+]
 # Small limits keep generated requests cheap; refusals over a limit are documented 422s.
-SMALL = Settings(limits=Limits(max_samples=300, max_pairs=200_000, max_targets=2000, max_unique_samples=200, max_kriging_flops=10**9))
+SMALL = Settings(
+    limits=Limits(max_samples=300, max_pairs=200_000, max_targets=2000, max_unique_samples=200, max_kriging_flops=10**9)
+)
 FUZZ = dict(deadline=None, suppress_health_check=list(HealthCheck), derandomize=True)
 
 app = create_app({"TESTING": True}, settings=SMALL)
@@ -65,8 +73,24 @@ def _run_live(examples: int) -> None:
     cli = Path(sys.executable).with_name("schemathesis")
     with running_service(LIVE_ENV) as url:
         out = subprocess.run(
-            [str(cli), "run", url + "/openapi.json", "--checks", CHECK_NAMES, "--mode", "all", "--max-examples", str(examples), "--seed", "7", "--workers", "2"],
-            capture_output=True, text=True, timeout=1800,
+            [
+                str(cli),
+                "run",
+                url + "/openapi.json",
+                "--checks",
+                CHECK_NAMES,
+                "--mode",
+                "all",
+                "--max-examples",
+                str(examples),
+                "--seed",
+                "7",
+                "--workers",
+                "2",
+            ],
+            capture_output=True,
+            text=True,
+            timeout=1800,
         )
     assert out.returncode == 0, out.stdout[-4000:] + out.stderr[-2000:]
 

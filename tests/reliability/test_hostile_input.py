@@ -66,13 +66,31 @@ def _worker_rss_kb(url: str) -> int:
 CATALOGUE = [
     ("nan literal", b'{"samples": {"x": [0, 1], "values": [1, NaN]}}', "application/json", 400, None),
     ("infinity literal", b'{"samples": {"x": [0, 1], "values": [1, Infinity]}}', "application/json", 400, None),
-    ("overflowing number", b'{"samples": {"x": [0, 1, 2], "values": [1, 2, 1e400]}}', "application/json", 422, "/samples/values/2"),
+    (
+        "overflowing number",
+        b'{"samples": {"x": [0, 1, 2], "values": [1, 2, 1e400]}}',
+        "application/json",
+        422,
+        "/samples/values/2",
+    ),
     ("deep nesting", b"[" * 200_000 + b"]" * 200_000, "application/json", 400, None),
     ("invalid utf-8", b'{"samples": "\xff\xfe"}', "application/json", 400, None),
     ("wrong media type", b"x,y,value\n0,0,1\n", "text/csv", 415, None),
-    ("unknown field", b'{"samples": {"x": [0, 1], "values": [1, 2]}, "drop_table": true}', "application/json", 422, "/drop_table"),
+    (
+        "unknown field",
+        b'{"samples": {"x": [0, 1], "values": [1, 2]}, "drop_table": true}',
+        "application/json",
+        422,
+        "/drop_table",
+    ),
     ("not an object", b'"just a string"', "application/json", 422, ""),
-    ("text in numbers", b'{"samples": {"x": [0, 1, 2], "values": [1, "2", 3]}}', "application/json", 422, "/samples/values/1"),
+    (
+        "text in numbers",
+        b'{"samples": {"x": [0, 1, 2], "values": [1, "2", 3]}}',
+        "application/json",
+        422,
+        "/samples/values/1",
+    ),
 ]
 
 

@@ -24,7 +24,9 @@ from cluster import Cluster  # noqa: E402
 
 from .workload import run  # noqa: E402
 
-pytestmark = pytest.mark.skipif(not any(os.path.exists(p) for p in ("/usr/sbin/nginx", "/usr/bin/nginx")), reason="needs Debian's nginx")
+pytestmark = pytest.mark.skipif(
+    not any(os.path.exists(p) for p in ("/usr/sbin/nginx", "/usr/bin/nginx")), reason="needs Debian's nginx"
+)
 
 
 def _workers(master_pid: int) -> list[int]:
@@ -36,7 +38,9 @@ def _counted(url: str) -> float:
     """Requests to computing endpoints that one instance counted in /metrics."""
     with urllib.request.urlopen(url + "/metrics", timeout=5) as answer:
         text = answer.read().decode()
-    pattern = re.compile(r'^lagwise_requests_total\{endpoint="/v1/[^"]+",method="POST",status="200"\} ([0-9.e+]+)$', re.M)
+    pattern = re.compile(
+        r'^lagwise_requests_total\{endpoint="/v1/[^"]+",method="POST",status="200"\} ([0-9.e+]+)$', re.M
+    )
     return sum(float(v) for v in pattern.findall(text))
 
 

@@ -7,9 +7,9 @@ import urllib.error
 import urllib.request
 
 import pytest
-
 from lagwise.api import create_app
 from lagwise.api.settings import Settings
+
 from tests.live import free_port, running_service
 
 KEY = "s3cret-key-for-tests"
@@ -24,9 +24,19 @@ def keyed():
 
 def test_api_keys(keyed):
     r = keyed.post("/v1/experimental-variograms", json=BODY)
-    assert r.status_code == 401 and r.json["type"] == "/problems/unauthorized" and "Bearer" in r.headers["WWW-Authenticate"]
-    assert keyed.post("/v1/experimental-variograms", json=BODY, headers={"Authorization": "Bearer wrong"}).status_code == 401
-    assert keyed.post("/v1/experimental-variograms", json=BODY, headers={"Authorization": f"Bearer {KEY}"}).status_code == 200
+    assert (
+        r.status_code == 401
+        and r.json["type"] == "/problems/unauthorized"
+        and "Bearer" in r.headers["WWW-Authenticate"]
+    )
+    assert (
+        keyed.post("/v1/experimental-variograms", json=BODY, headers={"Authorization": "Bearer wrong"}).status_code
+        == 401
+    )
+    assert (
+        keyed.post("/v1/experimental-variograms", json=BODY, headers={"Authorization": f"Bearer {KEY}"}).status_code
+        == 200
+    )
     assert keyed.get("/healthz").status_code == 200 and keyed.get("/readyz").status_code == 200
     assert keyed.get("/metrics").status_code == 401
 
@@ -42,7 +52,9 @@ def test_digests_from_a_file(tmp_path):
 def test_cors_off_by_default_and_on_for_configured_origins(client):
     r = client.post("/v1/experimental-variograms", json=BODY, headers={"Origin": "https://lims.example"})
     assert "Access-Control-Allow-Origin" not in r.headers
-    allowed = create_app({"TESTING": True}, settings=Settings(cors_origins=frozenset({"https://lims.example"}))).test_client()
+    allowed = create_app(
+        {"TESTING": True}, settings=Settings(cors_origins=frozenset({"https://lims.example"}))
+    ).test_client()
     r = allowed.post("/v1/experimental-variograms", json=BODY, headers={"Origin": "https://lims.example"})
     assert r.headers["Access-Control-Allow-Origin"] == "https://lims.example"
     assert allowed.options("/v1/experimental-variograms", headers={"Origin": "https://lims.example"}).status_code == 204

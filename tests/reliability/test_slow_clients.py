@@ -10,14 +10,15 @@ import time
 from pathlib import Path
 
 import pytest
-
 from lagwise_client import Lagwise
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[2] / "deploy"))
 
 from cluster import Cluster  # noqa: E402
 
-pytestmark = pytest.mark.skipif(not any(os.path.exists(p) for p in ("/usr/sbin/nginx", "/usr/bin/nginx")), reason="needs Debian's nginx")
+pytestmark = pytest.mark.skipif(
+    not any(os.path.exists(p) for p in ("/usr/sbin/nginx", "/usr/bin/nginx")), reason="needs Debian's nginx"
+)
 
 
 def test_slow_uploads_do_not_block_fast_clients():
@@ -29,7 +30,9 @@ def test_slow_uploads_do_not_block_fast_clients():
         def trickle():
             s = socket.create_connection(("127.0.0.1", port), timeout=30)
             sockets.append(s)
-            s.sendall(b"POST /v1/experimental-variograms HTTP/1.1\r\nHost: x\r\nContent-Type: application/json\r\nContent-Length: 100000\r\n\r\n")
+            s.sendall(
+                b"POST /v1/experimental-variograms HTTP/1.1\r\nHost: x\r\nContent-Type: application/json\r\nContent-Length: 100000\r\n\r\n"
+            )
             while not stop.wait(0.2):
                 try:
                     s.sendall(b" ")
@@ -44,7 +47,9 @@ def test_slow_uploads_do_not_block_fast_clients():
         with Lagwise(cluster.url, retries=0, timeout=10) as lw:
             for _ in range(20):
                 start = time.perf_counter()
-                lw.experimental_variogram(x=[0, 1, 2, 3, 4], values=[1, 2, 1, 3, 2], lags={"width": 1, "count": 3}, min_pairs=1)
+                lw.experimental_variogram(
+                    x=[0, 1, 2, 3, 4], values=[1, 2, 1, 3, 2], lags={"width": 1, "count": 3}, min_pairs=1
+                )
                 latencies.append(time.perf_counter() - start)
         stop.set()
         for t in trickling:

@@ -22,11 +22,24 @@ def _data(seed: int, n: int = 120):
 
 
 OPERATIONS = (
-    ("experimental", lambda lw, s: lw.experimental_variogram(s, lags={"width": 8, "count": 8}, directions=[{"azimuth": 0}, {"azimuth": 90}])),
+    (
+        "experimental",
+        lambda lw, s: lw.experimental_variogram(
+            s, lags={"width": 8, "count": 8}, directions=[{"azimuth": 0}, {"azimuth": 90}]
+        ),
+    ),
     ("map", lambda lw, s: lw.variogram_map(s, cell_size=10, cells=4)),
     ("fit", lambda lw, s: lw.fit_model(s, lags={"width": 8, "count": 8}, families=["spherical", "exponential"])),
     ("cross_validation", lambda lw, s: lw.cross_validate(s, model=MODEL)),
-    ("prediction", lambda lw, s: lw.predict(s, model=MODEL, grid={"origin": [0, 0], "spacing": [10, 10], "shape": [10, 10]}, neighbourhood={"max_points": 16})),
+    (
+        "prediction",
+        lambda lw, s: lw.predict(
+            s,
+            model=MODEL,
+            grid={"origin": [0, 0], "spacing": [10, 10], "shape": [10, 10]},
+            neighbourhood={"max_points": 16},
+        ),
+    ),
 )
 
 

@@ -16,19 +16,30 @@ import time
 import uuid
 
 from flask import Flask, Response, g, request
-from prometheus_client import CONTENT_TYPE_LATEST, CollectorRegistry, Counter, Gauge, Histogram, generate_latest
-from prometheus_client import multiprocess
+from prometheus_client import (
+    CONTENT_TYPE_LATEST,
+    CollectorRegistry,
+    Counter,
+    Gauge,
+    Histogram,
+    generate_latest,
+    multiprocess,
+)
 
 LATENCY_BUCKETS = (0.005, 0.01, 0.025, 0.05, 0.1, 0.25, 0.5, 1.0, 2.5, 5.0, 10.0, 20.0, 30.0, 60.0, 90.0)
 REQUEST_ID = re.compile(r"^[A-Za-z0-9._:-]{1,128}$")
 
 REQUESTS = Counter("lagwise_requests_total", "HTTP requests answered.", ["endpoint", "method", "status"])
-LATENCY = Histogram("lagwise_request_duration_seconds", "Time to answer a request.", ["endpoint"], buckets=LATENCY_BUCKETS)
+LATENCY = Histogram(
+    "lagwise_request_duration_seconds", "Time to answer a request.", ["endpoint"], buckets=LATENCY_BUCKETS
+)
 IN_FLIGHT = Gauge("lagwise_requests_in_flight", "Requests being answered.", multiprocess_mode="livesum")
 SAMPLES = Counter("lagwise_samples_processed_total", "Samples in successfully computed requests.", ["endpoint"])
 PAIRS = Counter("lagwise_pairs_processed_total", "Sample pairs binned into classes.", ["endpoint"])
 REFUSALS = Counter("lagwise_refusals_total", "Requests refused, by problem type.", ["reason"])
-WORKER_RESTARTS = Counter("lagwise_worker_restarts_total", "Worker processes that exited (crashed, recycled or stopped).")
+WORKER_RESTARTS = Counter(
+    "lagwise_worker_restarts_total", "Worker processes that exited (crashed, recycled or stopped)."
+)
 
 
 class JsonFormatter(logging.Formatter):

@@ -136,7 +136,9 @@ def variogram_maps():
         statistic=document["statistic"],
         limits=settings().limits,
     )
-    return with_provenance(serialize.variogram_map(result, samples), samples.input_hash, samples.size, int(result.pairs.sum()) // 2)
+    return with_provenance(
+        serialize.variogram_map(result, samples), samples.input_hash, samples.size, int(result.pairs.sum()) // 2
+    )
 
 
 @operation(

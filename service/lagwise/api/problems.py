@@ -46,7 +46,11 @@ KINDS = {
         422, "Limit exceeded", "The request is valid but would cost more than a configured limit allows."
     ),
     "not-ready": ProblemKind(503, "Not ready", "The service is starting or stopping; retry shortly."),
-    "deadline-exceeded": ProblemKind(503, "Deadline exceeded", "The request ran past LAGWISE_DEADLINE_SECONDS; ask for less work (fewer samples, targets or classes). Retrying the same request will not help."),
+    "deadline-exceeded": ProblemKind(
+        503,
+        "Deadline exceeded",
+        "The request ran past LAGWISE_DEADLINE_SECONDS; ask for less work (fewer samples, targets or classes). Retrying the same request will not help.",
+    ),
     "internal-error": ProblemKind(
         500, "Internal error", "An unexpected error; this is a bug, please report it with the request id."
     ),

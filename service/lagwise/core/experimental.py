@@ -7,8 +7,8 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from . import kernels as K
-from .directions import OMNIDIRECTIONAL, DirectionClass, validate_direction
 from .deadline import check_deadline
+from .directions import OMNIDIRECTIONAL, DirectionClass, validate_direction
 from .errors import FieldIssue, InvalidInput
 from .lags import AUTO_FINE_BINS, LagRequest, auto_edges, validate_lags
 from .limits import Limits
