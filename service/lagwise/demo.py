@@ -16,7 +16,7 @@ from pathlib import Path
 import numpy as np
 from scipy.linalg import cho_factor
 
-SEED = 20261201
+SEED = 20261204
 WIDTH_M, HEIGHT_M = 800.0, 500.0
 ENGINE_SHED = (560.0, 330.0)
 TRACK_AZIMUTH = 60.0
@@ -41,10 +41,10 @@ def elmsworth_samples() -> dict:
     grid = np.column_stack([gx.ravel(), gy.ravel()]) + rng.normal(0, 9.0, (240, 2))
     shed = np.array(ENGINE_SHED) + rng.normal(0, 28.0, (20, 2))
     points = np.clip(np.vstack([grid, shed]), 1.0, [WIDTH_M - 1, HEIGHT_M - 1])
-    # Log-lead field: exponential covariance, practical range 300 m along the track
-    # and 150 m across it, plus a small nugget; simulated by Cholesky factorisation.
-    h = _anisotropic_distance(points, points, TRACK_AZIMUTH, 0.5)
-    covariance = 0.55 * np.exp(-3.0 * h / 300.0) + 0.08 * np.eye(len(points))
+    # Log-lead field: exponential covariance, practical range 250 m along the track
+    # and 100 m across it, plus a small nugget; simulated by Cholesky factorisation.
+    h = _anisotropic_distance(points, points, TRACK_AZIMUTH, 0.4)
+    covariance = 0.55 * np.exp(-3.0 * h / 250.0) + 0.08 * np.eye(len(points))
     factor, _ = cho_factor(covariance, lower=True)
     field = np.tril(factor) @ rng.standard_normal(len(points))
     shed_bump = 0.9 * np.exp(-np.sum((points - ENGINE_SHED) ** 2, axis=1) / (2 * 70.0**2))

@@ -9,6 +9,7 @@ import numpy as np
 
 from ..core.directions import DirectionClass
 from ..core.errors import FieldIssue, InvalidInput
+from ..core.analysis import AnalysisOptions
 from ..core.experimental import ScatterRequest
 from ..core.fitting import SEMIVARIANCE_STATISTICS, points_from_rows
 from ..core.kriging import KrigingSpec
@@ -46,12 +47,23 @@ def _number(value) -> float | None:
     return number if math.isfinite(number) else None
 
 
+def _below_limit(raw) -> float | None:
+    """The detection limit of a result written like "<0.5", else None."""
+    if isinstance(raw, str) and raw.strip().startswith("<"):
+        try:
+            limit = float(raw.strip()[1:])
+        except ValueError:
+            return None
+        return limit if math.isfinite(limit) and limit > 0 else None
+    return None
+
+
 def _feature_columns(collection, value_property: str, id_property: str | None):
     """Read Point features into columns; raises InvalidInput naming each bad feature."""
     if collection.get("type") != "FeatureCollection" or not isinstance(collection.get("features"), list):
         raise InvalidInput.at("/samples/geojson", "must be a GeoJSON FeatureCollection with a features array")
     pointer_for = _geojson_pointer(value_property, id_property)
-    columns: dict[str, list] = {"x": [], "y": [], "z": [], "values": [], "ids": []}
+    columns: dict[str, list] = {"x": [], "y": [], "z": [], "values": [], "ids": [], "censored": [], "limits": []}
     issues: list[FieldIssue] = []
     dims = set()
     for i, feature in enumerate(collection["features"]):
@@ -70,7 +82,9 @@ def _feature_columns(collection, value_property: str, id_property: str | None):
             FieldIssue(pointer_for("xyz"[a], i), "not a finite number") for a, c in enumerate(numbers) if c is None
         )
         properties = feature.get("properties") or {}
-        value = _number(properties.get(value_property)) if isinstance(properties, dict) else None
+        raw = properties.get(value_property) if isinstance(properties, dict) else None
+        limit = _below_limit(raw)
+        value = limit if limit is not None else _number(raw)
         if value is None:
             issues.append(FieldIssue(pointer_for("values", i), "missing or not a finite number"))
         dims.add(len(coordinates))
@@ -80,6 +94,8 @@ def _feature_columns(collection, value_property: str, id_property: str | None):
         columns["y"].append(numbers[1])
         columns["z"].append(numbers[2] if len(numbers) == 3 else None)
         columns["values"].append(value)
+        columns["censored"].append(limit is not None)
+        columns["limits"].append(limit if limit is not None else np.nan)
         identifier = properties.get(id_property) if id_property else feature.get("id")
         columns["ids"].append(str(identifier) if identifier is not None else str(i))
     if len(dims) > 1:
@@ -105,6 +121,9 @@ def sample_set(document: dict) -> SampleSet:
             coordinates=document.get("coordinates", "geographic"),
             duplicates=document["duplicates"],
             pointer_for=pointer_for,
+            censored=np.array(columns["censored"]) if any(columns["censored"]) else None,
+            detection_limits=np.array(columns["limits"]) if any(columns["censored"]) else None,
+            censoring=document.get("censoring", "half_limit"),
         )
     return build_sample_set(
         samples["values"],
@@ -115,6 +134,9 @@ def sample_set(document: dict) -> SampleSet:
         coordinates=document.get("coordinates", "planar"),
         duplicates=document["duplicates"],
         pointer_for=columnar_pointer,
+        censored=np.array(samples["censored"], dtype=bool) if "censored" in samples else None,
+        detection_limits=np.array([np.nan if v is None else v for v in samples["detection_limits"]], dtype=np.float64) if "detection_limits" in samples else None,
+        censoring=document.get("censoring", "half_limit"),
     )
 
 
@@ -249,3 +271,28 @@ def grid(document: dict) -> Grid | None:
     if raw is None:
         return None
     return Grid(tuple(raw["origin"]), tuple(raw["spacing"]), tuple(raw["shape"]))
+
+
+def analysis_options(document: dict) -> AnalysisOptions:
+    """The analysis stages' options (defaults filled in by the schema)."""
+    stage = document["variogram"]
+    directions = stage.get("directions")
+    if isinstance(directions, list):
+        directions = [DirectionClass(**d) for d in directions]
+    cv = document["cross_validation"]
+    staged = {"model": {"nugget": 0.0, "structures": []}, "kriging": cv["kriging"], "neighbourhood": cv["neighbourhood"], "scheme": cv["scheme"]}
+    prediction = document.get("prediction")
+    return AnalysisOptions(
+        transform=document["transform"],
+        lags=lag_request(stage),
+        directions=directions,
+        statistic=stage["statistic"],
+        min_pairs=stage["min_pairs"],
+        families=document["fit"]["families"],
+        nugget=document["fit"]["nugget"],
+        weighting=document["fit"]["weighting"],
+        kriging=kriging_spec(staged),
+        neighbourhood=neighbourhood(staged) if cv["neighbourhood"] is not None else None,
+        scheme=scheme(staged),
+        grid=grid(prediction) if prediction else None,
+    )

@@ -86,3 +86,25 @@ def choice_properties(self, field, **kwargs) -> dict:
     if isinstance(field, NuggetOption):
         return {"oneOf": [{"type": "string", "enum": ["fit", "none"]}, {"type": "number", "minimum": 0}]}
     return {}
+
+
+class DirectionsOption(fields.Field):
+    """Either ``"auto"`` or a list of direction classes (validated by the nested schema)."""
+
+    def __init__(self, nested, **kwargs):
+        super().__init__(**kwargs)
+        self.list_field = fields.List(fields.Nested(nested))
+
+    def _deserialize(self, value, attr, data, **kwargs):
+        if value == "auto":
+            return "auto"
+        if not isinstance(value, list) or not value:
+            raise ValidationError('must be "auto" or a non-empty list of direction classes')
+        return self.list_field.deserialize(value, attr, data, **kwargs)
+
+
+def directions_properties(self, field, **kwargs) -> dict:
+    """apispec attribute function documenting :class:`DirectionsOption`."""
+    if isinstance(field, DirectionsOption):
+        return {"oneOf": [{"type": "string", "enum": ["auto"]}, {"type": "array", "items": {"$ref": "#/components/schemas/Direction"}}]}
+    return {}

@@ -7,10 +7,10 @@ from apispec import APISpec
 from apispec.ext.marshmallow import MarshmallowPlugin
 
 from .. import __version__
-from .fields import choice_properties, number_array_properties
+from .fields import choice_properties, directions_properties, number_array_properties
 from .operations import OPERATIONS
 from .problems import KINDS, PROBLEM_MEDIA_TYPE
-from .schemas import ProblemSchema
+from .schemas import DirectionSchema, ProblemSchema
 
 DESCRIPTION = """\
 Lagwise computes experimental variograms, variogram maps and related spatial
@@ -41,7 +41,9 @@ def build_spec() -> APISpec:
     )
     plugin.converter.add_attribute_function(number_array_properties)
     plugin.converter.add_attribute_function(choice_properties)
+    plugin.converter.add_attribute_function(directions_properties)
     spec.components.schema("Problem", schema=ProblemSchema)
+    spec.components.schema("Direction", schema=DirectionSchema)
     for op in sorted(OPERATIONS, key=lambda o: o.path):
         responses = {"200": {"description": "Success", "content": {"application/json": {"schema": op.response}}}}
         for status in op.errors:

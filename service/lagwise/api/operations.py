@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import functools
 import time
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numba
 import numpy as np
@@ -12,6 +12,7 @@ import scipy
 from flask import Blueprint, Response, current_app, g, request
 
 from .. import __version__
+from ..core.analysis import analyse
 from ..core.deadline import deadline
 from ..core.experimental import experimental_variogram
 from ..core.fitting import fit_model
@@ -25,7 +26,10 @@ from .jsonio import dumps
 from .observability import count_work
 from .problems import KINDS, Problem
 from .requests import load_json
+from .figure_set import render
 from .schemas import (
+    AnalysisRequest,
+    AnalysisResponse,
     CrossValidationRequest,
     CrossValidationResponse,
     ExperimentalRequest,
@@ -241,6 +245,26 @@ def predictions():
         workers=numba.get_num_threads(),
     )
     return with_provenance(serialize.prediction(result, samples, model, spec, hood), samples.input_hash, samples.size)
+
+
+@operation(
+    "/v1/analyses",
+    "POST",
+    "The whole chain in one call: checks, experimental variograms, fit, cross-validation, predictions, figures, verdict",
+    AnalysisRequest,
+    AnalysisResponse,
+)
+def analyses():
+    document = load_json(AnalysisRequest())
+    samples = convert.sample_set(document)
+    options = replace(convert.analysis_options(document), with_map="variogram_map" in document["figures"])
+    if options.grid is not None and samples.dimension != 2:
+        raise Problem("invalid-input", "prediction grids need 2-D samples", [{"pointer": "/prediction/grid", "detail": "needs 2-D samples"}])
+    result = analyse(samples, options, limits=settings().limits, workers=numba.get_num_threads())
+    figures = render(result, samples, document["figures"], document["figure_format"], tuple(document["figure_size"]))
+    body = serialize.analysis(result, samples, figures, {"families": options.families, "kriging": options.kriging, "scheme": options.scheme})
+    pairs = sum(row.pairs for d in result.omnidirectional.directions for row in d.classes)
+    return with_provenance(body, samples.input_hash, samples.size, pairs)
 
 
 @operation(

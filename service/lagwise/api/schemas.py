@@ -8,12 +8,15 @@ from __future__ import annotations
 
 from marshmallow import EXCLUDE, Schema, ValidationError, fields, validate, validates_schema
 
+from ..core.censoring import CENSORING_POLICIES
 from ..core.fitting import SEMIVARIANCE_STATISTICS, WEIGHTINGS
+from ..core.transforms import TRANSFORMS
+from ..figures import FIGURES, FORMATS
 from ..core.kriging import DRIFTS, KRIGING_TYPES, NUGGET_ROLES
 from ..core.lags import AUTO_METHODS, MAX_CLASSES
 from ..core.samples import COORDINATE_SYSTEMS, DUPLICATE_POLICIES
 from ..core.statistics import STATISTICS
-from .fields import AutoOrList, NuggetOption, NumberArray
+from .fields import AutoOrList, DirectionsOption, NuggetOption, NumberArray
 
 MAX_DIRECTIONS = 36
 
@@ -44,7 +47,7 @@ class SamplesSchema(Schema):
     @validates_schema
     def _one_layout(self, data, **kwargs):
         if "geojson" in data:
-            clash = [k for k in ("x", "y", "z", "values", "ids") if k in data]
+            clash = [k for k in ("x", "y", "z", "values", "ids", "censored", "detection_limits") if k in data]
             if clash:
                 raise ValidationError(f"give either geojson or columns, not both ({', '.join(clash)})")
             if "value_property" not in data:
@@ -67,6 +70,11 @@ class SampleOptions(Schema):
         load_default="average",
         validate=validate.OneOf(DUPLICATE_POLICIES),
         metadata={"description": "What to do with samples at the same location."},
+    )
+    censoring = fields.String(
+        load_default="half_limit",
+        validate=validate.OneOf(CENSORING_POLICIES),
+        metadata={"description": "Value given to results below their detection limit."},
     )
 
 
@@ -280,6 +288,42 @@ class PredictionRequest(KrigingOptions):
     def _one_target_kind(self, data, **kwargs):
         if ("targets" in data) == ("grid" in data):
             raise ValidationError("give either targets or grid")
+
+
+class VariogramStage(Schema):
+    lags = fields.Nested(LagsSchema)
+    directions = DirectionsOption(DirectionSchema, metadata={"description": '"auto" (a fan of 6 classes from which the anisotropy is estimated) or a list.'})
+    statistic = fields.String(load_default="semivariance", validate=validate.OneOf(SEMIVARIANCE_STATISTICS))
+    min_pairs = fields.Integer(strict=True, load_default=30, validate=validate.Range(min=1))
+
+
+class FitStage(Schema):
+    families = AutoOrList(load_default="auto")
+    nugget = NuggetOption(load_default="fit")
+    weighting = fields.String(load_default="pairs", validate=validate.OneOf(WEIGHTINGS))
+
+
+class CrossValidationStage(Schema):
+    kriging = fields.Nested(KrigingInput, load_default=lambda: {"type": "ordinary", "nugget_as": "micro_scale"})
+    neighbourhood = fields.Nested(NeighbourhoodInput, allow_none=True, load_default=None, metadata={"description": "Default: all samples up to 1500, else 24 neighbours."})
+    scheme = fields.Nested(SchemeInput, load_default=lambda: {"type": "leave_one_out", "folds": 10, "seed": 1})
+
+
+class PredictionStage(Schema):
+    grid = fields.Nested(GridInput, required=True)
+
+
+class AnalysisRequest(SampleOptions):
+    """POST /v1/analyses: the whole chain in one call."""
+
+    transform = fields.String(load_default="none", validate=validate.OneOf(TRANSFORMS))
+    variogram = fields.Nested(VariogramStage, load_default=lambda: VariogramStage().load({}))
+    fit = fields.Nested(FitStage, load_default=lambda: FitStage().load({}))
+    cross_validation = fields.Nested(CrossValidationStage, load_default=lambda: CrossValidationStage().load({}))
+    prediction = fields.Nested(PredictionStage)
+    figures = fields.List(fields.String(validate=validate.OneOf(FIGURES)), load_default=list, metadata={"description": f"Any of {', '.join(FIGURES)}."})
+    figure_format = fields.String(load_default="svg", validate=validate.OneOf(FORMATS), metadata={"description": "svg (text) or png (base64)."})
+    figure_size = fields.List(fields.Integer(strict=True, validate=validate.Range(min=200, max=3000)), validate=validate.Length(equal=2), load_default=lambda: [800, 500], metadata={"description": "Width and height in pixels."})
 
 
 # ---- responses -------------------------------------------------------------
@@ -515,6 +559,23 @@ class PredictionResponse(ResultEnvelope):
     grid = fields.Nested(GridSchema)
     unestimated = fields.List(fields.Nested(UnestimatedSchema))
     weights = fields.List(fields.Nested(WeightsSchema))
+
+
+class AnalysisExperimentalSchema(Schema):
+    omnidirectional = fields.Nested(ExperimentalResponse(only=("directions", "colocated_pairs")))
+    directional = fields.Nested(ExperimentalResponse(only=("directions", "colocated_pairs")), allow_none=True)
+    anisotropy = fields.Dict(allow_none=True)
+
+
+class AnalysisResponse(ResultEnvelope):
+    summary = fields.Nested(SummarySchema)
+    transformed_summary = fields.Nested(SummarySchema)
+    experimental = fields.Nested(AnalysisExperimentalSchema)
+    fit = fields.Nested(ModelFitResponse(only=("model", "diagnostics", "candidates")))
+    cross_validation = fields.Nested(CrossValidationResponse(only=("statistics", "samples", "assessment", "unestimated")), allow_none=True)
+    prediction = fields.Nested(PredictionResponse(only=("x", "y", "estimate", "variance", "grid", "unestimated")), allow_none=True)
+    figures = fields.Dict(keys=fields.String(), values=fields.String())
+    verdict = fields.String()
 
 
 class FieldErrorSchema(Schema):

@@ -19,6 +19,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from .censoring import substitute
 from .errors import FieldIssue, InvalidInput
 from .geographic import ACCURATE_SPAN_M, LocalProjection, centroid
 
@@ -77,7 +78,11 @@ class SampleSet:
     projection : LocalProjection or None
         Projection centre for geographic sets.
     warnings : tuple of str
-        Plain-language notes about the input (duplicates merged, wide geographic span).
+        Plain-language notes about the input (duplicates merged, censored values, wide span).
+    censored : int
+        Samples below their detection limit, substituted per ``censoring``.
+    censoring : str
+        The censoring policy applied.
     """
 
     coords: np.ndarray
@@ -89,6 +94,8 @@ class SampleSet:
     duplicates: DuplicateReport
     projection: LocalProjection | None = None
     warnings: tuple[str, ...] = field(default=())
+    censored: int = 0
+    censoring: str = "half_limit"
 
     @property
     def dimension(self) -> int:
@@ -183,6 +190,9 @@ def build_sample_set(
     coordinates: str = "planar",
     duplicates: str = "average",
     pointer_for: PointerFor = columnar_pointer,
+    censored: np.ndarray | None = None,
+    detection_limits: np.ndarray | None = None,
+    censoring: str = "half_limit",
 ) -> SampleSet:
     """Validate sample columns and build a :class:`SampleSet`.
 
@@ -201,6 +211,9 @@ def build_sample_set(
     pointer_for : callable
         Maps (field, index) to the JSON Pointer used in error messages, so that
         errors point into the caller's own input layout (columnar or GeoJSON).
+    censored, detection_limits, censoring
+        Values below a detection limit (see :mod:`lagwise.core.censoring`); the input
+        hash covers the values after substitution.
 
     Raises
     ------
@@ -211,10 +224,18 @@ def build_sample_set(
     x = np.asarray(x, dtype=np.float64)
     y = None if y is None else np.asarray(y, dtype=np.float64)
     z = None if z is None else np.asarray(z, dtype=np.float64)
+    censored_flags = None if censored is None else np.asarray(censored, dtype=bool)
+    limits = None if detection_limits is None else np.asarray(detection_limits, dtype=np.float64)
+    if censored_flags is not None and censored_flags.size == values.size:
+        # Censored entries carry no measurement: validate the substituted values.
+        values = np.where(censored_flags, 0.0, values)
     _check_columns(x, y, z, values, ids, coordinates, pointer_for)
+    values, censored_count = substitute(values, censored_flags, limits, censoring, pointer_for)
     digest = input_hash([c for c in (x, y, z) if c is not None] + [values])
 
     warnings: list[str] = []
+    if censored_count:
+        warnings.append(f"{censored_count} samples were below their detection limit; the '{censoring}' policy set their values")
     projection = None
     if coordinates == "geographic":
         projection = centroid(x, y)
@@ -255,4 +276,6 @@ def build_sample_set(
         duplicates=report,
         projection=projection,
         warnings=tuple(warnings),
+        censored=censored_count,
+        censoring=censoring,
     )
