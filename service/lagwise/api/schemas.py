@@ -561,19 +561,46 @@ class PredictionResponse(ResultEnvelope):
     weights = fields.List(fields.Nested(WeightsSchema))
 
 
+class AnalysisVariogramSchema(Schema):
+    directions = fields.List(fields.Nested(DirectionResultSchema))
+    colocated_pairs = fields.Integer()
+
+
 class AnalysisExperimentalSchema(Schema):
-    omnidirectional = fields.Nested(ExperimentalResponse(only=("directions", "colocated_pairs")))
-    directional = fields.Nested(ExperimentalResponse(only=("directions", "colocated_pairs")), allow_none=True)
+    omnidirectional = fields.Nested(AnalysisVariogramSchema)
+    directional = fields.Nested(AnalysisVariogramSchema, allow_none=True)
     anisotropy = fields.Dict(allow_none=True)
+
+
+class AnalysisFitSchema(Schema):
+    model = fields.Nested(ModelSchema)
+    diagnostics = fields.Nested(DiagnosticsSchema)
+    candidates = fields.List(fields.Nested(CandidateSchema))
+
+
+class AnalysisCrossValidationSchema(Schema):
+    statistics = fields.Nested(CrossValidationStatisticsSchema)
+    samples = fields.Nested(CrossValidationSamplesSchema)
+    assessment = fields.String()
+    unestimated = fields.List(fields.Nested(UnestimatedSchema))
+
+
+class AnalysisPredictionSchema(Schema):
+    x = fields.List(fields.Float())
+    y = fields.List(fields.Float())
+    estimate = fields.List(fields.Float(allow_none=True), metadata={"description": "Original units (back-transformed)."})
+    variance = fields.List(fields.Float(allow_none=True))
+    grid = fields.Nested(GridSchema)
+    unestimated = fields.List(fields.Nested(UnestimatedSchema))
 
 
 class AnalysisResponse(ResultEnvelope):
     summary = fields.Nested(SummarySchema)
     transformed_summary = fields.Nested(SummarySchema)
     experimental = fields.Nested(AnalysisExperimentalSchema)
-    fit = fields.Nested(ModelFitResponse(only=("model", "diagnostics", "candidates")))
-    cross_validation = fields.Nested(CrossValidationResponse(only=("statistics", "samples", "assessment", "unestimated")), allow_none=True)
-    prediction = fields.Nested(PredictionResponse(only=("x", "y", "estimate", "variance", "grid", "unestimated")), allow_none=True)
+    fit = fields.Nested(AnalysisFitSchema)
+    cross_validation = fields.Nested(AnalysisCrossValidationSchema, allow_none=True)
+    prediction = fields.Nested(AnalysisPredictionSchema, allow_none=True)
     figures = fields.Dict(keys=fields.String(), values=fields.String())
     verdict = fields.String()
 
