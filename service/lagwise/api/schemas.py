@@ -43,6 +43,14 @@ class SamplesSchema(Schema):
     id_property = fields.String(
         metadata={"description": "Feature property holding the identifier (GeoJSON input; default the feature id)."}
     )
+    censored = fields.List(
+        fields.Boolean(),
+        metadata={"description": 'True where the result is below its detection limit (GeoJSON: a value written like "<0.5").'},
+    )
+    detection_limits = fields.List(
+        fields.Float(allow_none=True, allow_nan=False),
+        metadata={"description": "Detection limits (value units), needed where censored is true."},
+    )
 
     @validates_schema
     def _one_layout(self, data, **kwargs):

@@ -12,8 +12,9 @@
     positions. Back-transform: linear interpolation in the table of (score, value)
     pairs; beyond the extreme scores the data's minimum and maximum are kept (no
     extrapolation of the tails). A Gaussian estimate y with variance s^2 back-transforms
-    to the mean and variance of the back-transformed N(y, s^2), by 40-point Gauss-Hermite
-    quadrature.
+    to the mean and variance of the back-transformed N(y, s^2), averaged over 100
+    equal-probability points y + s z_k, z_k = Phi^-1((k - 1/2)/100) (robust to the kinks of
+    the piecewise-linear table; about 0.1 % on the mean and 2 % on the variance).
 ``none``
     Values as given.
 """
@@ -29,7 +30,8 @@ from scipy.stats import rankdata
 from .errors import FieldIssue, InvalidInput
 
 TRANSFORMS = ("none", "log", "normal_score")
-_NODES, _WEIGHTS = np.polynomial.hermite.hermgauss(40)
+_QUANTILES = ndtri((np.arange(100) + 0.5) / 100)
+_CHUNK = 50_000
 
 
 @dataclass(frozen=True)
@@ -72,12 +74,14 @@ class Transform:
             mean = np.exp(estimate + variance / 2.0)
             return mean, np.exp(2.0 * estimate + variance) * np.expm1(variance)
         if self.kind == "normal_score":
-            # E[g(Y)], Y ~ N(y, s^2): sum_k w_k g(y + sqrt(2) s x_k) / sqrt(pi).
-            points = estimate[..., None] + np.sqrt(2.0 * variance)[..., None] * _NODES
-            values = self.backward(points)
-            mean = values @ _WEIGHTS / np.sqrt(np.pi)
-            second = (values**2) @ _WEIGHTS / np.sqrt(np.pi)
-            return mean, np.maximum(second - mean**2, 0.0)
+            # E[g(Y)], Y ~ N(y, s^2), as the mean of g over equal-probability points.
+            mean, spread = np.empty_like(estimate), np.empty_like(estimate)
+            for start in range(0, estimate.size, _CHUNK):
+                part = slice(start, start + _CHUNK)
+                values = self.backward(estimate[part, None] + np.sqrt(variance[part])[:, None] * _QUANTILES)
+                mean[part] = values.mean(axis=1)
+                spread[part] = np.maximum((values**2).mean(axis=1) - mean[part] ** 2, 0.0)
+            return mean, spread
         return estimate, variance
 
     def as_dict(self) -> dict:
@@ -85,7 +89,8 @@ class Transform:
             "none": "values as given",
             "log": "natural logarithm; estimates back-transformed as exp(y + s^2/2), variances as exp(2y + s^2)(exp(s^2) - 1)",
             "normal_score": "normal scores of Hazen plotting positions (r - 1/2)/n, ties averaged; back-transform by linear "
-            "interpolation of the score table, tails held at the data's extremes; estimates by Gauss-Hermite quadrature",
+            "interpolation of the score table, tails held at the data's extremes; estimates averaged over 100 "
+            "equal-probability points of their Gaussian distribution",
         }
         return {"kind": self.kind, "method": descriptions[self.kind]}
 
