@@ -17,6 +17,7 @@ from .errors import (
 )
 from .models import ModelStructure, VariogramModel
 from .results import (
+    Analysis,
     Candidate,
     CrossValidation,
     DirectionVariogram,
@@ -31,6 +32,7 @@ from .retry import RetryPolicy
 __version__ = "0.1.0"
 
 __all__ = [
+    "Analysis",
     "AuthError",
     "Candidate",
     "CrossValidation",

@@ -11,7 +11,7 @@ import requests
 
 from .errors import LagwiseError, TransportError, ValidationError, error_for
 from .models import VariogramModel
-from .results import CrossValidation, ExperimentalVariogram, ModelFit, Predictions, VariogramMap
+from .results import Analysis, CrossValidation, ExperimentalVariogram, ModelFit, Predictions, VariogramMap
 from .retry import RETRY_STATUSES, RetryPolicy
 
 DEFAULT_TIMEOUT = 120.0
@@ -344,6 +344,50 @@ class Lagwise:
         )
         body.update({k: v for k, v in options.items() if v is not None})
         return Predictions.from_response(self.request("POST", "/v1/predictions", body))
+
+    def analyze(
+        self,
+        samples=None,
+        *,
+        x=None,
+        y=None,
+        z=None,
+        values=None,
+        ids=None,
+        columns: Mapping[str, str] | None = None,
+        transform: str | None = None,
+        variogram: Mapping[str, Any] | None = None,
+        fit: Mapping[str, Any] | None = None,
+        cross_validation: Mapping[str, Any] | None = None,
+        prediction: Mapping[str, Any] | None = None,
+        figures: list[str] | None = None,
+        figure_format: str | None = None,
+        figure_size: tuple[int, int] | None = None,
+        censoring: str | None = None,
+        coordinates: str | None = None,
+        duplicates: str | None = None,
+    ) -> Analysis:
+        """The whole chain in one call (``POST /v1/analyses``).
+
+        ``variogram`` e.g. ``{"directions": "auto"}``; ``prediction`` ``{"grid": {...}}``;
+        ``figures`` any of variogram, variogram_map, cross_validation, prediction_map.
+        """
+        body = {"samples": samples_document(samples, x=x, y=y, z=z, values=values, ids=ids, columns=columns)}
+        options = dict(
+            transform=transform,
+            variogram=variogram,
+            fit=fit,
+            cross_validation=cross_validation,
+            prediction=prediction,
+            figures=figures,
+            figure_format=figure_format,
+            figure_size=list(figure_size) if figure_size else None,
+            censoring=censoring,
+            coordinates=coordinates,
+            duplicates=duplicates,
+        )
+        body.update({k: v for k, v in options.items() if v is not None})
+        return Analysis.from_response(self.request("POST", "/v1/analyses", body))
 
     def model_families(self) -> list[dict]:
         """The model families with their parameters, units, bounds and validity (``GET /v1/model-families``)."""

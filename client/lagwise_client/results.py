@@ -315,3 +315,80 @@ class Predictions:
         columns = {"x": self.x, "y": self.y, "z": self.z, "estimate": self.estimate, "variance": self.variance}
         present = {k: v for k, v in columns.items() if v is not None}
         return _dataframe([dict(zip(present, row, strict=True)) for row in zip(*present.values(), strict=True)])
+
+
+@dataclass(frozen=True)
+class Analysis:
+    """Result of :meth:`Lagwise.analyze`: the stages as attributes.
+
+    Attributes
+    ----------
+    summary, transformed_summary : dict
+    experimental : dict
+        ``omnidirectional`` and ``directional`` classes, and the ``anisotropy`` estimate.
+    model : VariogramModel
+        The selected model (in transformed units when a transform was asked for).
+    fit : dict
+        model, diagnostics, candidates.
+    cross_validation : dict or None
+        statistics, samples, assessment.
+    prediction : dict or None
+        Columnar grid predictions in original units.
+    figures : dict
+        Figure name -> SVG text or base64 PNG.
+    verdict : str
+    """
+
+    summary: dict
+    transformed_summary: dict
+    experimental: dict
+    model: VariogramModel
+    fit: dict
+    cross_validation: dict | None
+    prediction: dict | None
+    figures: dict
+    warnings: tuple[str, ...]
+    verdict: str
+    parameters: dict
+    provenance: dict
+    raw: dict = field(default_factory=dict, repr=False)
+
+    @classmethod
+    def from_response(cls, document: dict) -> Analysis:
+        return cls(
+            summary=document["summary"],
+            transformed_summary=document["transformed_summary"],
+            experimental=document["experimental"],
+            model=VariogramModel.from_dict(document["fit"]["model"]),
+            fit=document["fit"],
+            cross_validation=document.get("cross_validation"),
+            prediction=document.get("prediction"),
+            figures=document.get("figures", {}),
+            warnings=tuple(document.get("warnings", [])),
+            verdict=document["verdict"],
+            parameters=document["parameters"],
+            provenance=document["provenance"],
+            raw=document,
+        )
+
+    def to_dict(self) -> dict:
+        """The response document."""
+        return self.raw
+
+    def save_figures(self, folder) -> list:
+        """Write each figure to ``folder`` (``<name>.svg`` or ``<name>.png``); returns the paths."""
+        import base64
+        from pathlib import Path
+
+        target = Path(folder)
+        target.mkdir(parents=True, exist_ok=True)
+        png = self.parameters.get("figure_format") == "png"
+        paths = []
+        for name, content in self.figures.items():
+            path = target / f"{name}.{'png' if png else 'svg'}"
+            if png:
+                path.write_bytes(base64.b64decode(content))
+            else:
+                path.write_text(content, encoding="utf-8")
+            paths.append(path)
+        return paths

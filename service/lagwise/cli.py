@@ -30,7 +30,7 @@ def demo(args: argparse.Namespace) -> int:
 
     summary = run_demo(args.url, Path(args.out))
     print(summary.read_text())
-    print(f"Report written to {Path(args.out).resolve()} (summary.txt, report.json, samples.json)")
+    print(f"Report written to {Path(args.out).resolve()} (index.html, summary.txt, report.json, figures/)")
     return 0
 
 

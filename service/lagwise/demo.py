@@ -9,8 +9,9 @@ generated deterministically from a seed; it describes no real place.
 
 from __future__ import annotations
 
+import html
 import json
-import math
+import time
 from pathlib import Path
 
 import numpy as np
@@ -60,16 +61,18 @@ def elmsworth_samples() -> dict:
 def run_demo(base_url: str, out_dir: Path) -> Path:
     """Run the demo through the SDK against a running service; write the report folder.
 
-    Returns the path of the text summary.
+    The folder holds ``samples.json``, ``report.json`` (every response), ``figures/``
+    (SVG), ``index.html`` (a one-page summary) and ``summary.txt``. Returns the path of
+    the text summary.
     """
     from lagwise_client import Lagwise
 
     out_dir.mkdir(parents=True, exist_ok=True)
     samples = elmsworth_samples()
     (out_dir / "samples.json").write_text(json.dumps(samples, indent=1))
+    log_samples = dict(samples, values=np.log(samples["values"]).tolist())
     with Lagwise(base_url) as client:
         omni = client.experimental_variogram(samples, lags={"auto": "equal_width"})
-        log_samples = dict(samples, values=np.log(samples["values"]).tolist())
         directional = client.experimental_variogram(
             log_samples,
             lags={"width": 40.0, "count": 10},
@@ -78,32 +81,28 @@ def run_demo(base_url: str, out_dir: Path) -> Path:
                 {"azimuth": TRACK_AZIMUTH + 90.0, "tolerance": 22.5},
             ],
         )
-        robust = client.experimental_variogram(
-            log_samples, lags={"width": 40.0, "count": 10}, statistic="semivariance_robust"
+        started = time.perf_counter()
+        analysis = client.analyze(
+            samples,
+            transform="log",
+            variogram={"directions": "auto"},
+            cross_validation={"neighbourhood": {"max_points": 24, "min_points": 4}},
+            prediction={"grid": {"origin": [10.0, 10.0], "spacing": [20.0, 20.0], "shape": [40, 25]}},
+            figures=["variogram", "variogram_map", "cross_validation", "prediction_map"],
         )
-        vmap = client.variogram_map(log_samples, cell_size=40.0, cells=8)
-        fit = client.fit_model(log_samples, lags={"width": 30.0, "count": 14}, families="auto")
-        cv = client.cross_validate(log_samples, model=fit.model, neighbourhood={"max_points": 24, "min_points": 4})
-        grid = client.predict(
-            log_samples,
-            model=fit.model,
-            grid={"origin": [10.0, 10.0], "spacing": [20.0, 20.0], "shape": [40, 25]},
-            neighbourhood={"max_points": 24, "min_points": 4},
-        )
+        seconds = time.perf_counter() - started
     report = {
         "scenario": "Elmsworth former rail depot, soil lead (mg/kg) - invented data",
         "caution": CAUTION,
         "omnidirectional_lead": omni.to_dict(),
         "directional_log_lead": directional.to_dict(),
-        "robust_log_lead": robust.to_dict(),
-        "variogram_map_log_lead": vmap.to_dict(),
-        "model_fit_log_lead": fit.to_dict(),
-        "cross_validation_log_lead": cv.to_dict(),
-        "prediction_log_lead": grid.to_dict(),
+        "analysis": analysis.to_dict(),
     }
     (out_dir / "report.json").write_text(json.dumps(report, indent=1))
+    analysis.save_figures(out_dir / "figures")
+    (out_dir / "index.html").write_text(_html(omni, analysis))
     summary_path = out_dir / "summary.txt"
-    summary_path.write_text(_summary_text(omni, directional, vmap, fit, cv, grid))
+    summary_path.write_text(_summary_text(omni, directional, analysis, seconds))
     return summary_path
 
 
@@ -134,15 +133,15 @@ def _ratio_along_across(directional) -> str:
 def _model_text(model) -> str:
     parts = [f"nugget {model.nugget:.3f}"]
     for s in model.structures:
-        text = f"{s.family} (partial sill {s.partial_sill:.3f}, range {s.range:.0f} m"
-        if s.ratio != 1.0:
-            text += f", azimuth {s.azimuth:.0f}, ratio {s.ratio:.2f}"
-        parts.append(text + ")")
+        parts.append(f"{s.family} (partial sill {s.partial_sill:.3f}, range {s.range:.0f} m)")
     return " + ".join(parts)
 
 
-def _summary_text(omni, directional, vmap, fit, cv, grid) -> str:
+def _summary_text(omni, directional, analysis, seconds) -> str:
     s = omni.summary
+    cv = analysis.cross_validation["statistics"]
+    estimate = [v for v in analysis.prediction["estimate"] if v is not None]
+    anisotropy = analysis.experimental["anisotropy"]
     lines = [
         "Elmsworth former rail depot - soil lead (mg/kg), INVENTED demo data",
         "",
@@ -159,21 +158,49 @@ def _summary_text(omni, directional, vmap, fit, cv, grid) -> str:
         *_table(directional.directions[1]),
         "",
         "Finding: " + _ratio_along_across(directional),
-        f"Variogram map of log-lead: {len(vmap.hx)} x {len(vmap.hy)} cells of {vmap.parameters['cell_size']:g} m.",
         "",
-        f"Fitted model of log-lead ({len(fit.candidates)} candidates ranked): " + _model_text(fit.model),
-        f"  R^2 {fit.diagnostics['r_squared']:.3f}; runner-up: " + ", ".join(c.label for c in fit.candidates[1:4]),
+        f"One-call analysis of log-lead ({seconds:.2f} s through the SDK):",
+        f"  model ({len(analysis.fit['candidates'])} candidates ranked): " + _model_text(analysis.model),
+        f"  anisotropy from 6 direction classes: azimuth {anisotropy['azimuth']:.0f}, ratio {anisotropy['ratio']:.2f}"
+        if anisotropy
+        else "  anisotropy: not estimated",
+        "  leave-one-out (24 neighbours): " + ", ".join(f"{k} {v:.3f}" for k, v in cv.items() if isinstance(v, float)),
+        f"  kriging map: {len(estimate)} nodes of 20 m, estimated lead {min(estimate):.0f}-{max(estimate):.0f} mg/kg (lognormal back-transform)",
+        "  verdict: " + analysis.verdict,
         "",
-        "Leave-one-out cross-validation (ordinary kriging, 24 neighbours), log-lead:",
-        "  " + ", ".join(f"{k} {v:.3f}" for k, v in cv.statistics.items() if isinstance(v, float)),
-        "  " + cv.assessment,
-        f"Kriging map: {len(grid.estimate)} grid nodes of 20 m; "
-        f"estimated lead from {math.exp(min(v for v in grid.estimate if v is not None)):.0f} to "
-        f"{math.exp(max(v for v in grid.estimate if v is not None)):.0f} mg/kg (back-transformed medians).",
-        "",
-        "Warnings: " + ("; ".join(omni.warnings) if omni.warnings else "none"),
+        "Warnings: " + ("; ".join(analysis.warnings) if analysis.warnings else "none"),
         "",
         "CAUTION: " + CAUTION,
         "",
     ]
     return "\n".join(lines)
+
+
+def _html(omni, analysis) -> str:
+    """A self-contained one-page HTML summary (inline SVG figures, no external resources)."""
+    cv = analysis.cross_validation["statistics"]
+    rows = "".join(
+        f"<tr><th>{html.escape(k.replace('_', ' '))}</th><td>{v:.4g}</td></tr>"
+        for k, v in cv.items()
+        if isinstance(v, float)
+    )
+    warnings = "".join(f"<li>{html.escape(w)}</li>" for w in analysis.warnings) or "<li>none</li>"
+    figures = "".join(
+        f"<figure><figcaption>{html.escape(name.replace('_', ' '))}</figcaption>{svg[svg.index('<svg') :]}</figure>"
+        for name, svg in analysis.figures.items()
+    )
+    s = omni.summary
+    return f"""<!doctype html>
+<html lang="en"><head><meta charset="utf-8"><title>Elmsworth soil lead - Lagwise report</title>
+<style>body{{font-family:system-ui,sans-serif;color:#2f3e46;max-width:980px;margin:2em auto;padding:0 1em}}
+.caution{{border-left:4px solid #8e4a7d;background:#f6eef4;padding:.6em 1em}}table{{border-collapse:collapse}}
+th,td{{text-align:left;padding:.2em .8em;border-bottom:1px solid #e9eef0}}figure{{margin:1.5em 0}}svg{{max-width:100%;height:auto}}</style></head>
+<body><h1>Elmsworth former rail depot: soil lead</h1>
+<p class="caution"><strong>Invented demo data.</strong> {html.escape(CAUTION)}</p>
+<p>{s["samples"]} samples, mean {s["mean"]:.1f} mg/kg, values {s["minimum"]:.1f} to {s["maximum"]:.1f} mg/kg.</p>
+<h2>Verdict</h2><p>{html.escape(analysis.verdict)}</p>
+<h2>Cross-validation (log-lead)</h2><table>{rows}</table>
+<h2>Warnings</h2><ul>{warnings}</ul>
+<h2>Figures</h2>{figures}
+</body></html>
+"""

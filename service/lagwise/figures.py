@@ -68,17 +68,39 @@ def variogram(analysis, units: dict, size=(800, 500), fmt="svg"):
         h = np.array([r.mean_distance for r in rows])
         g = np.array([r.value for r in rows])
         n = np.array([r.pairs for r in rows])
-        label = "all directions" if d.direction.tolerance >= 90 else f"azimuth {d.direction.azimuth:g}° ± {d.direction.tolerance:g}°"
+        label = (
+            "all directions"
+            if d.direction.tolerance >= 90
+            else f"azimuth {d.direction.azimuth:g}° ± {d.direction.tolerance:g}°"
+        )
         colour = DIRECTION_COLOURS[k % len(DIRECTION_COLOURS)]
-        ax.scatter(h, g, s=12 + 60 * np.sqrt(n / n.max()), color=colour, alpha=0.9, label=label, gid="experimental-points" if k == 0 else f"experimental-points-{k}", zorder=3)
+        ax.scatter(
+            h,
+            g,
+            s=12 + 60 * np.sqrt(n / n.max()),
+            color=colour,
+            alpha=0.9,
+            label=label,
+            gid="experimental-points" if k == 0 else f"experimental-points-{k}",
+            zorder=3,
+        )
         if len(experimental.directions) == 1:
             for x, y, count in zip(h, g, n, strict=True):
-                ax.annotate(str(count), (x, y), textcoords="offset points", xytext=(0, 7), ha="center", fontsize=6, color=SLATE)
+                ax.annotate(
+                    str(count), (x, y), textcoords="offset points", xytext=(0, 7), ha="center", fontsize=6, color=SLATE
+                )
         top = max(top, float(h.max()))
     model = analysis.fit.best.model
     if top > 0:
         grid = np.linspace(0.0, top * 1.05, 200)
-        ax.plot(grid[1:], model.semivariance(grid[1:]), color=AMBER, linewidth=2, label=f"model: {analysis.fit.best.label}", gid="model-curve")
+        ax.plot(
+            grid[1:],
+            model.semivariance(grid[1:]),
+            color=AMBER,
+            linewidth=2,
+            label=f"model: {analysis.fit.best.label}",
+            gid="model-curve",
+        )
     statistic = STATISTIC_NAMES.get(experimental.statistic, experimental.statistic)
     ax.set_xlabel(f"separation distance ({units['distance']})")
     ax.set_ylabel(f"{statistic} ({units['gamma']})")

@@ -8,7 +8,6 @@ import xml.etree.ElementTree as ET
 
 import numpy as np
 import pytest
-
 from lagwise.demo import elmsworth_samples
 
 URL = "/v1/analyses"
@@ -26,7 +25,9 @@ def test_analysis_equals_the_separate_endpoints(client, demo, transform):
     values = np.log(demo["values"]).tolist() if transform == "log" else demo["values"]
     samples = {**demo, "values": values}
     experimental = client.post("/v1/experimental-variograms", json={"samples": samples}).json
-    assert doc["experimental"]["omnidirectional"]["directions"][0]["classes"] == experimental["directions"][0]["classes"]
+    assert (
+        doc["experimental"]["omnidirectional"]["directions"][0]["classes"] == experimental["directions"][0]["classes"]
+    )
     fit = client.post("/v1/model-fits", json={"experimental": experimental}).json
     assert doc["fit"]["model"] == fit["model"] and doc["fit"]["candidates"] == fit["candidates"]
     cv = client.post("/v1/cross-validations", json={"samples": samples, "model": fit["model"]}).json
@@ -37,7 +38,9 @@ def test_analysis_equals_the_separate_endpoints(client, demo, transform):
 def test_predictions_are_back_transformed(client, demo):
     grid = {"origin": [10, 10], "spacing": [100, 100], "shape": [8, 5]}
     doc = client.post(URL, json={"samples": demo, "transform": "log", "prediction": {"grid": grid}}).json
-    log_doc = client.post(URL, json={"samples": {**demo, "values": np.log(demo["values"]).tolist()}, "prediction": {"grid": grid}}).json
+    log_doc = client.post(
+        URL, json={"samples": {**demo, "values": np.log(demo["values"]).tolist()}, "prediction": {"grid": grid}}
+    ).json
     mu, var = np.array(log_doc["prediction"]["estimate"]), np.array(log_doc["prediction"]["variance"])
     np.testing.assert_allclose(doc["prediction"]["estimate"], np.exp(mu + var / 2), rtol=1e-9)
     assert doc["parameters"]["prediction_units"].startswith("original units")
@@ -49,7 +52,14 @@ def _png_size(data: bytes) -> tuple[int, int]:
 
 
 def test_figures(client, demo):
-    doc = client.post(URL, json={"samples": demo, "figures": ["variogram", "variogram_map", "cross_validation"], "prediction": {"grid": {"origin": [0, 0], "spacing": [100, 100], "shape": [9, 6]}}}).json
+    doc = client.post(
+        URL,
+        json={
+            "samples": demo,
+            "figures": ["variogram", "variogram_map", "cross_validation"],
+            "prediction": {"grid": {"origin": [0, 0], "spacing": [100, 100], "shape": [9, 6]}},
+        },
+    ).json
     svg = ET.fromstring(doc["figures"]["variogram"])
     group = next(e for e in svg.iter() if e.get("id") == "experimental-points")
     markers = [e for e in group.iter() if e.tag.endswith("path")]
@@ -57,14 +67,26 @@ def test_figures(client, demo):
     assert len(markers) == len(non_empty)
     for name in ("variogram_map", "cross_validation"):
         ET.fromstring(doc["figures"][name])
-    png = client.post(URL, json={"samples": demo, "figures": ["variogram", "prediction_map"], "figure_format": "png", "figure_size": [640, 400], "prediction": {"grid": {"origin": [0, 0], "spacing": [100, 100], "shape": [9, 6]}}}).json
+    png = client.post(
+        URL,
+        json={
+            "samples": demo,
+            "figures": ["variogram", "prediction_map"],
+            "figure_format": "png",
+            "figure_size": [640, 400],
+            "prediction": {"grid": {"origin": [0, 0], "spacing": [100, 100], "shape": [9, 6]}},
+        },
+    ).json
     for name in ("variogram", "prediction_map"):
         assert _png_size(base64.b64decode(png["figures"][name])) == (640, 400)
 
 
 def test_normal_score_and_censored_values(client, demo):
     censored = [i % 25 == 0 for i in range(len(demo["values"]))]
-    body = {"samples": {**demo, "censored": censored, "detection_limits": [10.0 if c else None for c in censored]}, "transform": "normal_score"}
+    body = {
+        "samples": {**demo, "censored": censored, "detection_limits": [10.0 if c else None for c in censored]},
+        "transform": "normal_score",
+    }
     doc = client.post(URL, json=body).json
     assert doc["parameters"]["censored_samples"] == sum(censored) and doc["parameters"]["censoring"] == "half_limit"
     assert any("detection limit" in w for w in doc["warnings"])
@@ -72,8 +94,21 @@ def test_normal_score_and_censored_values(client, demo):
 
 
 def test_geojson_less_than_qualifier(client):
-    features = [{"type": "Feature", "geometry": {"type": "Point", "coordinates": [i * 10.0, (i % 7) * 10.0]}, "properties": {"pb": "<5" if i % 9 == 0 else 10.0 + i % 5}} for i in range(60)]
-    doc = client.post(URL, json={"samples": {"geojson": {"type": "FeatureCollection", "features": features}, "value_property": "pb"}, "coordinates": "planar"}).json
+    features = [
+        {
+            "type": "Feature",
+            "geometry": {"type": "Point", "coordinates": [i * 10.0, (i % 7) * 10.0]},
+            "properties": {"pb": "<5" if i % 9 == 0 else 10.0 + i % 5},
+        }
+        for i in range(60)
+    ]
+    doc = client.post(
+        URL,
+        json={
+            "samples": {"geojson": {"type": "FeatureCollection", "features": features}, "value_property": "pb"},
+            "coordinates": "planar",
+        },
+    ).json
     assert doc["parameters"]["censored_samples"] == 7
 
 
@@ -81,7 +116,10 @@ def test_geojson_less_than_qualifier(client):
     "body, pointer",
     [
         ({"transform": "log", "samples": {"x": [0, 1, 2, 3], "values": [1.0, -2.0, 3.0, 0.0]}}, "/samples/values/1"),
-        ({"samples": {"x": [0, 1, 2, 3], "values": [1.0, 2.0, 3.0, 4.0], "censored": [False, True, False, False]}}, "/samples/detection_limits"),
+        (
+            {"samples": {"x": [0, 1, 2, 3], "values": [1.0, 2.0, 3.0, 4.0], "censored": [False, True, False, False]}},
+            "/samples/detection_limits",
+        ),
         ({"figure_format": "gif"}, "/figure_format"),
         ({"figures": ["pie_chart"]}, "/figures/0"),
         ({"variogram": {"directions": "sideways"}}, "/variogram/directions"),
@@ -95,5 +133,8 @@ def test_bad_analysis_requests(client, demo, body, pointer):
 
 def test_grid_too_large(small_limits_client):
     cols = {"x": list(range(40)), "y": [i % 3 for i in range(40)], "values": [float(i % 5) for i in range(40)]}
-    r = small_limits_client.post(URL, json={"samples": cols, "prediction": {"grid": {"origin": [0, 0], "spacing": [1, 1], "shape": [3000, 3000]}}})
+    r = small_limits_client.post(
+        URL,
+        json={"samples": cols, "prediction": {"grid": {"origin": [0, 0], "spacing": [1, 1], "shape": [3000, 3000]}}},
+    )
     assert r.status_code == 422 and r.json["type"] in ("/problems/limit-exceeded", "/problems/invalid-input")

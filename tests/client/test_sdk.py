@@ -145,3 +145,20 @@ def test_cross_validate_and_predict(lw):
     assert grid.to_grid("variance").min() >= 0
     points = lw.predict(x=x, y=y, values=v, model=model, targets={"x": x[:3], "y": y[:3]})
     np.testing.assert_allclose(points.estimate, v[:3], rtol=1e-6)
+
+
+def test_analyze_with_figures(lw, tmp_path):
+    from lagwise.demo import elmsworth_samples
+
+    result = lw.analyze(
+        elmsworth_samples(),
+        transform="log",
+        variogram={"directions": "auto"},
+        figures=["variogram", "cross_validation"],
+        figure_format="png",
+    )
+    assert result.verdict.startswith("Spatial structure found") and result.model.structures
+    assert result.cross_validation["statistics"]["count"] == 260
+    paths = result.save_figures(tmp_path)
+    assert sorted(p.name for p in paths) == ["cross_validation.png", "variogram.png"]
+    assert paths[0].read_bytes()[:4] == b"\x89PNG"

@@ -4,7 +4,6 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-
 from lagwise.core.errors import InvalidInput
 from lagwise.core.samples import build_sample_set
 
@@ -13,14 +12,26 @@ X = [0.0, 1.0, 2.0, 3.0]
 
 @pytest.mark.parametrize("policy, expected", [("half_limit", 0.25), ("limit", 0.5), ("zero", 0.0)])
 def test_policies(policy, expected):
-    samples = build_sample_set([1.0, 2.0, 999.0, 4.0], X, censored=[False, False, True, False], detection_limits=[np.nan, np.nan, 0.5, np.nan], censoring=policy)
+    samples = build_sample_set(
+        [1.0, 2.0, 999.0, 4.0],
+        X,
+        censored=[False, False, True, False],
+        detection_limits=[np.nan, np.nan, 0.5, np.nan],
+        censoring=policy,
+    )
     assert samples.values[2] == expected and samples.censored == 1
     assert policy in samples.warnings[0]
 
 
 def test_reject_names_the_samples():
     with pytest.raises(InvalidInput) as info:
-        build_sample_set([1.0, 2.0, 3.0, 4.0], X, censored=[False, True, False, True], detection_limits=[0, 0.5, 0, 0.5], censoring="reject")
+        build_sample_set(
+            [1.0, 2.0, 3.0, 4.0],
+            X,
+            censored=[False, True, False, True],
+            detection_limits=[0, 0.5, 0, 0.5],
+            censoring="reject",
+        )
     assert [i.pointer for i in info.value.issues] == ["/samples/censored/1", "/samples/censored/3"]
 
 

@@ -70,6 +70,14 @@ def test_demo_through_the_sdk(url, tmp_path: Path):
     assert out.returncode == 0, out.stderr
     assert "CAUTION" in out.stdout and "INVENTED" in out.stdout
     report = json.loads((tmp_path / "report.json").read_text())
+    assert "Caution" in (tmp_path / "index.html").read_text() or "CAUTION" in out.stdout
+    assert sorted(p.name for p in (tmp_path / "figures").iterdir()) == [
+        "cross_validation.svg",
+        "prediction_map.svg",
+        "variogram.svg",
+        "variogram_map.svg",
+    ]
+    assert report["analysis"]["verdict"]
     classes = report["omnidirectional_lead"]["directions"][0]["classes"]
     assert len(classes) >= 5 and all(c["pairs"] >= 30 for c in classes)
     along, across = (d["classes"] for d in report["directional_log_lead"]["directions"])

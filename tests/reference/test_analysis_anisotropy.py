@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import numpy as np
-
 from lagwise.core.analysis import AnalysisOptions, analyse
 from lagwise.core.lags import LagRequest
 from lagwise.core.samples import build_sample_set
@@ -20,7 +19,9 @@ def test_auto_directions_find_the_axis_in_most_replicates():
         coords = rng.uniform(0, 100, (1000, 2))
         values = simulate(anisotropic("spherical", 1.0, 20.0, 60.0, 0.5, 0.1), coords, rng)
         samples = build_sample_set(values, coords[:, 0], coords[:, 1])
-        result = analyse(samples, AnalysisOptions(lags=LagRequest(width=2.0, count=12), directions="auto", families=["spherical"]))
+        result = analyse(
+            samples, AnalysisOptions(lags=LagRequest(width=2.0, count=12), directions="auto", families=["spherical"])
+        )
         gap = abs((result.anisotropy.azimuth - 60.0 + 90.0) % 180.0 - 90.0)
         hits += gap <= 15.0
     assert hits > 4

@@ -7,10 +7,9 @@ import math
 
 import numpy as np
 import pytest
-from scipy import stats
-
 from lagwise.core.errors import InvalidInput
 from lagwise.core.transforms import fit_transform
+from scipy import stats
 
 
 def test_normal_scores_are_quantiles_of_hazen_positions():

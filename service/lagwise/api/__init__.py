@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import threading
 from collections.abc import Mapping
+from pathlib import Path
 
 from flask import Flask, Response
 
@@ -14,6 +15,12 @@ from .openapi import as_dict, as_yaml
 from .operations import blueprint
 from .problems import Problem, register_error_handlers
 from .settings import Settings
+
+# The page's own script and styles are inline; it talks only to this service.
+PAGE_POLICY = (
+    "default-src 'none'; script-src 'unsafe-inline'; style-src 'unsafe-inline'; img-src data: blob:; "
+    "connect-src 'self'; form-action 'none'; frame-ancestors 'none'; base-uri 'none'"
+)
 
 
 def create_app(config: Mapping | None = None, *, settings: Settings | None = None, warm: bool = True) -> Flask:
@@ -45,6 +52,14 @@ def create_app(config: Mapping | None = None, *, settings: Settings | None = Non
         if not settings.metrics_on_main_listener:
             raise Problem("not-found", "metrics are served on LAGWISE_METRICS_BIND")
         return observability.metrics_response()
+
+    page = (Path(__file__).parent / "static" / "page.html").read_bytes()
+
+    @app.get("/")
+    def home():
+        response = Response(page, mimetype="text/html")
+        response.headers["Content-Security-Policy"] = PAGE_POLICY
+        return response
 
     @app.get("/openapi.json")
     def openapi_json():

@@ -7,9 +7,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from ..core.analysis import AnalysisOptions
 from ..core.directions import DirectionClass
 from ..core.errors import FieldIssue, InvalidInput
-from ..core.analysis import AnalysisOptions
 from ..core.experimental import ScatterRequest
 from ..core.fitting import SEMIVARIANCE_STATISTICS, points_from_rows
 from ..core.kriging import KrigingSpec
@@ -135,7 +135,9 @@ def sample_set(document: dict) -> SampleSet:
         duplicates=document["duplicates"],
         pointer_for=columnar_pointer,
         censored=np.array(samples["censored"], dtype=bool) if "censored" in samples else None,
-        detection_limits=np.array([np.nan if v is None else v for v in samples["detection_limits"]], dtype=np.float64) if "detection_limits" in samples else None,
+        detection_limits=np.array([np.nan if v is None else v for v in samples["detection_limits"]], dtype=np.float64)
+        if "detection_limits" in samples
+        else None,
         censoring=document.get("censoring", "half_limit"),
     )
 
@@ -280,7 +282,12 @@ def analysis_options(document: dict) -> AnalysisOptions:
     if isinstance(directions, list):
         directions = [DirectionClass(**d) for d in directions]
     cv = document["cross_validation"]
-    staged = {"model": {"nugget": 0.0, "structures": []}, "kriging": cv["kriging"], "neighbourhood": cv["neighbourhood"], "scheme": cv["scheme"]}
+    staged = {
+        "model": {"nugget": 0.0, "structures": []},
+        "kriging": cv["kriging"],
+        "neighbourhood": cv["neighbourhood"],
+        "scheme": cv["scheme"],
+    }
     prediction = document.get("prediction")
     return AnalysisOptions(
         transform=document["transform"],

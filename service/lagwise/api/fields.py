@@ -106,5 +106,10 @@ class DirectionsOption(fields.Field):
 def directions_properties(self, field, **kwargs) -> dict:
     """apispec attribute function documenting :class:`DirectionsOption`."""
     if isinstance(field, DirectionsOption):
-        return {"oneOf": [{"type": "string", "enum": ["auto"]}, {"type": "array", "items": {"$ref": "#/components/schemas/Direction"}}]}
+        return {
+            "oneOf": [
+                {"type": "string", "enum": ["auto"]},
+                {"type": "array", "items": {"$ref": "#/components/schemas/Direction"}},
+            ]
+        }
     return {}

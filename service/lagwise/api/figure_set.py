@@ -12,7 +12,9 @@ def render(result, samples, names: list[str], fmt: str, size: tuple[int, int]) -
     from .. import figures
 
     distance = "metres" if samples.coordinates == "geographic" else "coordinate units"
-    value = "value units" if result.transform.kind == "none" else f"{result.transform.kind.replace('_', ' ')} of the value"
+    value = (
+        "value units" if result.transform.kind == "none" else f"{result.transform.kind.replace('_', ' ')} of the value"
+    )
     units = {"distance": distance, "coordinate": distance, "value": value, "gamma": f"({value})²"}
     out = {}
     for name in names:
@@ -24,7 +26,9 @@ def render(result, samples, names: list[str], fmt: str, size: tuple[int, int]) -
             image = figures.cross_validation(result.cross_validation, units, size, fmt)
         elif name == "prediction_map" and result.prediction is not None:
             original = {**units, "value": "value units"}
-            image = figures.prediction_map(result.prediction.grid, result.back_transformed[0], samples.coords, original, size, fmt)
+            image = figures.prediction_map(
+                result.prediction.grid, result.back_transformed[0], samples.coords, original, size, fmt
+            )
         else:
             continue
         out[name] = image if fmt == "svg" else base64.b64encode(image).decode("ascii")

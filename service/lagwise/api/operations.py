@@ -22,11 +22,11 @@ from ..core.models import family_catalogue
 from ..core.prediction import predict
 from ..core.validation import cross_validate
 from . import convert, serialize
+from .figure_set import render
 from .jsonio import dumps
 from .observability import count_work
 from .problems import KINDS, Problem
 from .requests import load_json
-from .figure_set import render
 from .schemas import (
     AnalysisRequest,
     AnalysisResponse,
@@ -259,10 +259,24 @@ def analyses():
     samples = convert.sample_set(document)
     options = replace(convert.analysis_options(document), with_map="variogram_map" in document["figures"])
     if options.grid is not None and samples.dimension != 2:
-        raise Problem("invalid-input", "prediction grids need 2-D samples", [{"pointer": "/prediction/grid", "detail": "needs 2-D samples"}])
+        raise Problem(
+            "invalid-input",
+            "prediction grids need 2-D samples",
+            [{"pointer": "/prediction/grid", "detail": "needs 2-D samples"}],
+        )
     result = analyse(samples, options, limits=settings().limits, workers=numba.get_num_threads())
     figures = render(result, samples, document["figures"], document["figure_format"], tuple(document["figure_size"]))
-    body = serialize.analysis(result, samples, figures, {"families": options.families, "kriging": options.kriging, "scheme": options.scheme})
+    body = serialize.analysis(
+        result,
+        samples,
+        figures,
+        {
+            "families": options.families,
+            "kriging": options.kriging,
+            "scheme": options.scheme,
+            "figure_format": document["figure_format"],
+        },
+    )
     pairs = sum(row.pairs for d in result.omnidirectional.directions for row in d.classes)
     return with_provenance(body, samples.input_hash, samples.size, pairs)
 

@@ -10,12 +10,12 @@ from marshmallow import EXCLUDE, Schema, ValidationError, fields, validate, vali
 
 from ..core.censoring import CENSORING_POLICIES
 from ..core.fitting import SEMIVARIANCE_STATISTICS, WEIGHTINGS
-from ..core.transforms import TRANSFORMS
-from ..figures import FIGURES, FORMATS
 from ..core.kriging import DRIFTS, KRIGING_TYPES, NUGGET_ROLES
 from ..core.lags import AUTO_METHODS, MAX_CLASSES
 from ..core.samples import COORDINATE_SYSTEMS, DUPLICATE_POLICIES
 from ..core.statistics import STATISTICS
+from ..core.transforms import TRANSFORMS
+from ..figures import FIGURES, FORMATS
 from .fields import AutoOrList, DirectionsOption, NuggetOption, NumberArray
 
 MAX_DIRECTIONS = 36
@@ -45,7 +45,9 @@ class SamplesSchema(Schema):
     )
     censored = fields.List(
         fields.Boolean(),
-        metadata={"description": 'True where the result is below its detection limit (GeoJSON: a value written like "<0.5").'},
+        metadata={
+            "description": 'True where the result is below its detection limit (GeoJSON: a value written like "<0.5").'
+        },
     )
     detection_limits = fields.List(
         fields.Float(allow_none=True, allow_nan=False),
@@ -300,7 +302,10 @@ class PredictionRequest(KrigingOptions):
 
 class VariogramStage(Schema):
     lags = fields.Nested(LagsSchema)
-    directions = DirectionsOption(DirectionSchema, metadata={"description": '"auto" (a fan of 6 classes from which the anisotropy is estimated) or a list.'})
+    directions = DirectionsOption(
+        DirectionSchema,
+        metadata={"description": '"auto" (a fan of 6 classes from which the anisotropy is estimated) or a list.'},
+    )
     statistic = fields.String(load_default="semivariance", validate=validate.OneOf(SEMIVARIANCE_STATISTICS))
     min_pairs = fields.Integer(strict=True, load_default=30, validate=validate.Range(min=1))
 
@@ -313,7 +318,12 @@ class FitStage(Schema):
 
 class CrossValidationStage(Schema):
     kriging = fields.Nested(KrigingInput, load_default=lambda: {"type": "ordinary", "nugget_as": "micro_scale"})
-    neighbourhood = fields.Nested(NeighbourhoodInput, allow_none=True, load_default=None, metadata={"description": "Default: all samples up to 1500, else 24 neighbours."})
+    neighbourhood = fields.Nested(
+        NeighbourhoodInput,
+        allow_none=True,
+        load_default=None,
+        metadata={"description": "Default: all samples up to 1500, else 24 neighbours."},
+    )
     scheme = fields.Nested(SchemeInput, load_default=lambda: {"type": "leave_one_out", "folds": 10, "seed": 1})
 
 
@@ -329,9 +339,20 @@ class AnalysisRequest(SampleOptions):
     fit = fields.Nested(FitStage, load_default=lambda: FitStage().load({}))
     cross_validation = fields.Nested(CrossValidationStage, load_default=lambda: CrossValidationStage().load({}))
     prediction = fields.Nested(PredictionStage)
-    figures = fields.List(fields.String(validate=validate.OneOf(FIGURES)), load_default=list, metadata={"description": f"Any of {', '.join(FIGURES)}."})
-    figure_format = fields.String(load_default="svg", validate=validate.OneOf(FORMATS), metadata={"description": "svg (text) or png (base64)."})
-    figure_size = fields.List(fields.Integer(strict=True, validate=validate.Range(min=200, max=3000)), validate=validate.Length(equal=2), load_default=lambda: [800, 500], metadata={"description": "Width and height in pixels."})
+    figures = fields.List(
+        fields.String(validate=validate.OneOf(FIGURES)),
+        load_default=list,
+        metadata={"description": f"Any of {', '.join(FIGURES)}."},
+    )
+    figure_format = fields.String(
+        load_default="svg", validate=validate.OneOf(FORMATS), metadata={"description": "svg (text) or png (base64)."}
+    )
+    figure_size = fields.List(
+        fields.Integer(strict=True, validate=validate.Range(min=200, max=3000)),
+        validate=validate.Length(equal=2),
+        load_default=lambda: [800, 500],
+        metadata={"description": "Width and height in pixels."},
+    )
 
 
 # ---- responses -------------------------------------------------------------
@@ -596,7 +617,9 @@ class AnalysisCrossValidationSchema(Schema):
 class AnalysisPredictionSchema(Schema):
     x = fields.List(fields.Float())
     y = fields.List(fields.Float())
-    estimate = fields.List(fields.Float(allow_none=True), metadata={"description": "Original units (back-transformed)."})
+    estimate = fields.List(
+        fields.Float(allow_none=True), metadata={"description": "Original units (back-transformed)."}
+    )
     variance = fields.List(fields.Float(allow_none=True))
     grid = fields.Nested(GridSchema)
     unestimated = fields.List(fields.Nested(UnestimatedSchema))

@@ -250,7 +250,12 @@ def prediction(result, samples: SampleSet, model, spec, neighbourhood) -> dict:
 
 
 def _experimental_body(result) -> dict:
-    return {"directions": [{**d.direction.as_dict(2), "classes": [_class_row(r) for r in d.classes]} for d in result.directions], "colocated_pairs": result.colocated_pairs}
+    return {
+        "directions": [
+            {**d.direction.as_dict(2), "classes": [_class_row(r) for r in d.classes]} for d in result.directions
+        ],
+        "colocated_pairs": result.colocated_pairs,
+    }
 
 
 def analysis(result, samples: SampleSet, figures: dict, options: dict) -> dict:
@@ -263,7 +268,9 @@ def analysis(result, samples: SampleSet, figures: dict, options: dict) -> dict:
         "experimental": {
             "omnidirectional": _experimental_body(result.omnidirectional),
             "directional": _experimental_body(result.directional) if result.directional is not None else None,
-            "anisotropy": None if result.anisotropy is None else {**result.anisotropy.__dict__, "method": "joint fit over 6 direction classes of tolerance 15 degrees"},
+            "anisotropy": None
+            if result.anisotropy is None
+            else {**result.anisotropy.__dict__, "method": "joint fit over 6 direction classes of tolerance 15 degrees"},
         },
         "fit": {k: fit_body[k] for k in ("model", "diagnostics", "candidates")},
         "cross_validation": None,
@@ -273,7 +280,9 @@ def analysis(result, samples: SampleSet, figures: dict, options: dict) -> dict:
         "verdict": result.verdict,
     }
     if cv is not None:
-        body = cross_validation(cv, samples, result.fit.best.model, options["kriging"], result.neighbourhood, options["scheme"], 2.5)
+        body = cross_validation(
+            cv, samples, result.fit.best.model, options["kriging"], result.neighbourhood, options["scheme"], 2.5
+        )
         document["cross_validation"] = {k: body[k] for k in ("statistics", "samples", "assessment", "unestimated")}
     if result.prediction is not None:
         estimate, variance = result.back_transformed
@@ -291,9 +300,19 @@ def analysis(result, samples: SampleSet, figures: dict, options: dict) -> dict:
         "censoring": samples.censoring,
         "censored_samples": samples.censored,
         "transform": result.transform.as_dict(),
-        "variogram": {"statistic": result.omnidirectional.statistic, "min_pairs": result.omnidirectional.min_pairs, "lags": lag_parameters(result.omnidirectional)},
+        "variogram": {
+            "statistic": result.omnidirectional.statistic,
+            "min_pairs": result.omnidirectional.min_pairs,
+            "lags": lag_parameters(result.omnidirectional),
+        },
         "fit": {"families": options["families"], "nugget": result.fit.nugget, "weighting": result.fit.weighting},
-        "cross_validation": {"kriging": options["kriging"].as_dict(), "neighbourhood": result.neighbourhood.as_dict(), "scheme": options["scheme"].as_dict(), "units": "transformed values" if result.transform.kind != "none" else "values"},
+        "cross_validation": {
+            "kriging": options["kriging"].as_dict(),
+            "neighbourhood": result.neighbourhood.as_dict(),
+            "scheme": options["scheme"].as_dict(),
+            "units": "transformed values" if result.transform.kind != "none" else "values",
+        },
         "prediction_units": "original units (back-transformed)" if result.transform.kind != "none" else "values",
+        "figure_format": options.get("figure_format"),
     }
     return document

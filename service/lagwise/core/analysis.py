@@ -87,11 +87,25 @@ def _neighbourhood(options: AnalysisOptions, samples: SampleSet) -> Neighbourhoo
 
 
 def _estimate_anisotropy(samples, options, family, limits) -> tuple[ExperimentalVariogram, Anisotropy | None]:
-    fan = experimental_variogram(samples, lags=options.lags, directions=list(AUTO_FAN), statistic=options.statistic, min_pairs=options.min_pairs, limits=limits)
+    fan = experimental_variogram(
+        samples,
+        lags=options.lags,
+        directions=list(AUTO_FAN),
+        statistic=options.statistic,
+        min_pairs=options.min_pairs,
+        limits=limits,
+    )
     points = points_from_experimental(fan, options.min_pairs)
     if len(np.unique(points.azimuth[points.usable])) < 2:
         return fan, None
-    fit = fit_model(points, dimension=samples.dimension, families=[family], nugget=options.nugget, weighting=options.weighting, anisotropy="fit")
+    fit = fit_model(
+        points,
+        dimension=samples.dimension,
+        families=[family],
+        nugget=options.nugget,
+        weighting=options.weighting,
+        anisotropy="fit",
+    )
     structure = fit.best.model.structures[0]
     return fan, Anisotropy(structure.anisotropy.azimuth, structure.anisotropy.ratio, family)
 
@@ -105,11 +119,15 @@ def _trend_share(samples: SampleSet) -> float:
     return float(1.0 - np.sum(residual**2) / total) if total > 0 else 0.0
 
 
-def analyse(samples: SampleSet, options: AnalysisOptions = AnalysisOptions(), *, limits: Limits = Limits(), workers: int = 1) -> Analysis:
+def analyse(
+    samples: SampleSet, options: AnalysisOptions = AnalysisOptions(), *, limits: Limits = Limits(), workers: int = 1
+) -> Analysis:
     """Run the chain on ``samples`` (see the module docstring)."""
     transform = fit_transform(options.transform, samples.values, samples.source_index)
     working = replace(samples, values=transform.forward(samples.values))
-    omni = experimental_variogram(working, lags=options.lags, statistic=options.statistic, min_pairs=options.min_pairs, limits=limits)
+    omni = experimental_variogram(
+        working, lags=options.lags, statistic=options.statistic, min_pairs=options.min_pairs, limits=limits
+    )
     fit = fit_model(
         points_from_experimental(omni, options.min_pairs),
         dimension=samples.dimension,
@@ -122,18 +140,37 @@ def analyse(samples: SampleSet, options: AnalysisOptions = AnalysisOptions(), *,
     if options.directions == "auto" and samples.dimension >= 2 and fit.best.model.structures:
         directional, anisotropy = _estimate_anisotropy(working, options, fit.best.model.structures[0].family, limits)
     elif isinstance(options.directions, list):
-        directional = experimental_variogram(working, lags=options.lags, directions=options.directions, statistic=options.statistic, min_pairs=options.min_pairs, limits=limits)
+        directional = experimental_variogram(
+            working,
+            lags=options.lags,
+            directions=options.directions,
+            statistic=options.statistic,
+            min_pairs=options.min_pairs,
+            limits=limits,
+        )
     hood = _neighbourhood(options, samples)
     model = fit.best.model
-    cv = cross_validate(working, model, options.kriging, hood, options.scheme, limits=limits, workers=workers) if model.structures or model.nugget > 0 else None
+    cv = (
+        cross_validate(working, model, options.kriging, hood, options.scheme, limits=limits, workers=workers)
+        if model.structures or model.nugget > 0
+        else None
+    )
     prediction, back = None, None
     if options.grid is not None and cv is not None:
-        prediction = predict(working, model, spec=options.kriging, neighbourhood=hood, grid=options.grid, limits=limits, workers=workers)
+        prediction = predict(
+            working, model, spec=options.kriging, neighbourhood=hood, grid=options.grid, limits=limits, workers=workers
+        )
         back = transform.back_estimate(prediction.prediction.estimate, prediction.prediction.variance)
     vmap = None
     if options.with_map and samples.dimension >= 2:
         cells = 10
-        vmap = variogram_map(working, cell_size=omni.summary.max_distance / 2 / (cells + 0.5), cells=cells, statistic=options.statistic, limits=limits)
+        vmap = variogram_map(
+            working,
+            cell_size=omni.summary.max_distance / 2 / (cells + 0.5),
+            cells=cells,
+            statistic=options.statistic,
+            limits=limits,
+        )
     notes = list(omni.warnings) + list(fit.warnings)
     notes += _warnings(samples, fit, cv, anisotropy)
     return Analysis(
@@ -154,20 +191,30 @@ def analyse(samples: SampleSet, options: AnalysisOptions = AnalysisOptions(), *,
     )
 
 
-def _warnings(samples: SampleSet, fit: FitResult, cv: CrossValidation | None, anisotropy: Anisotropy | None) -> list[str]:
+def _warnings(
+    samples: SampleSet, fit: FitResult, cv: CrossValidation | None, anisotropy: Anisotropy | None
+) -> list[str]:
     notes = []
     if samples.size < FEW_SAMPLES:
         notes.append(f"only {samples.size} samples: fewer than about {FEW_SAMPLES} make variograms unreliable")
     share = _trend_share(samples)
     if share > 0.3:
-        notes.append(f"a linear trend in the coordinates explains {share * 100:.0f} % of the variance: consider universal kriging (a drift)")
+        notes.append(
+            f"a linear trend in the coordinates explains {share * 100:.0f} % of the variance: consider universal kriging (a drift)"
+        )
     if cv is not None and cv.statistics["outliers"]:
-        notes.append(f"{cv.statistics['outliers']} samples have large cross-validation errors (see cross_validation.samples.outlier)")
+        notes.append(
+            f"{cv.statistics['outliers']} samples have large cross-validation errors (see cross_validation.samples.outlier)"
+        )
     model = fit.best.model
     if model.structures and model.sill and model.nugget / model.sill > 0.8:
-        notes.append(f"the nugget is {model.nugget / model.sill * 100:.0f} % of the sill: the fit barely beats a pure nugget (little spatial structure)")
+        notes.append(
+            f"the nugget is {model.nugget / model.sill * 100:.0f} % of the sill: the fit barely beats a pure nugget (little spatial structure)"
+        )
     if anisotropy is not None and anisotropy.ratio < 0.7:
-        notes.append(f"continuity looks longer along azimuth {anisotropy.azimuth:.0f} (ratio {anisotropy.ratio:.2f}); the fitted model is isotropic")
+        notes.append(
+            f"continuity looks longer along azimuth {anisotropy.azimuth:.0f} (ratio {anisotropy.ratio:.2f}); the fitted model is isotropic"
+        )
     return notes
 
 
@@ -177,15 +224,23 @@ def _verdict(fit: FitResult, cv: CrossValidation | None, anisotropy: Anisotropy 
         return "No spatial structure: the values vary as much between close samples as between distant ones, so kriging adds nothing to the mean."
     structure = model.structures[0]
     share = model.nugget / model.sill if model.sill else 0.0
-    parts = [f"Spatial structure found: {fit.best.label}, practical range {structure.range:.4g}, nugget {share * 100:.0f} % of the sill."]
+    parts = [
+        f"Spatial structure found: {fit.best.label}, practical range {structure.range:.4g}, nugget {share * 100:.0f} % of the sill."
+    ]
     if anisotropy is not None:
-        parts.append(f"Direction classes suggest the longest continuity along azimuth {anisotropy.azimuth:.0f} degrees (range ratio {anisotropy.ratio:.2f}).")
+        parts.append(
+            f"Direction classes suggest the longest continuity along azimuth {anisotropy.azimuth:.0f} degrees (range ratio {anisotropy.ratio:.2f})."
+        )
     if cv is not None and cv.statistics["root_mean_square_standardized_error"] is not None:
         rmsse = cv.statistics["root_mean_square_standardized_error"]
         honest = 0.8 <= rmsse <= 1.2
         parts.append(
             f"Cross-validation: RMSSE {rmsse:.2f}, correlation {cv.statistics['correlation'] or 0:.2f}; "
-            + ("the model predicts held-out samples honestly and is fit for mapping." if honest else "the kriging variances do not match the errors; review the model before mapping.")
+            + (
+                "the model predicts held-out samples honestly and is fit for mapping."
+                if honest
+                else "the kriging variances do not match the errors; review the model before mapping."
+            )
         )
     if share > 0.8:
         parts.append("The structure is weak: maps will be smooth and close to the mean.")

@@ -40,22 +40,41 @@ def substitute(
         raise InvalidInput.at("/censoring", f"must be one of {', '.join(CENSORING_POLICIES)}")
     if censored is None:
         if limits is not None:
-            raise InvalidInput.at(pointer_for("censored", None), "detection_limits need the censored flags that say which samples they apply to")
+            raise InvalidInput.at(
+                pointer_for("censored", None),
+                "detection_limits need the censored flags that say which samples they apply to",
+            )
         return values, 0
     if censored.size != values.size:
-        raise InvalidInput.at(pointer_for("censored", None), f"has {censored.size} entries but values has {values.size}")
+        raise InvalidInput.at(
+            pointer_for("censored", None), f"has {censored.size} entries but values has {values.size}"
+        )
     flagged = np.flatnonzero(censored)
     if flagged.size == 0:
         return values, 0
     if policy == "reject":
-        raise InvalidInput([FieldIssue(pointer_for("censored", int(i)), "below the detection limit (censoring policy is 'reject')") for i in flagged[:20]])
+        raise InvalidInput(
+            [
+                FieldIssue(pointer_for("censored", int(i)), "below the detection limit (censoring policy is 'reject')")
+                for i in flagged[:20]
+            ]
+        )
     if limits is None:
         raise InvalidInput.at(pointer_for("detection_limits", None), "censored samples need their detection limits")
     if limits.size != values.size:
-        raise InvalidInput.at(pointer_for("detection_limits", None), f"has {limits.size} entries but values has {values.size}")
+        raise InvalidInput.at(
+            pointer_for("detection_limits", None), f"has {limits.size} entries but values has {values.size}"
+        )
     bad = [i for i in flagged if not (np.isfinite(limits[i]) and limits[i] > 0)]
     if bad:
-        raise InvalidInput([FieldIssue(pointer_for("detection_limits", int(i)), "a censored sample needs a positive detection limit") for i in bad[:20]])
+        raise InvalidInput(
+            [
+                FieldIssue(
+                    pointer_for("detection_limits", int(i)), "a censored sample needs a positive detection limit"
+                )
+                for i in bad[:20]
+            ]
+        )
     out = np.array(values, dtype=np.float64)
     out[flagged] = _FACTOR[policy] * limits[flagged]
     return out, int(flagged.size)

@@ -235,7 +235,9 @@ def build_sample_set(
 
     warnings: list[str] = []
     if censored_count:
-        warnings.append(f"{censored_count} samples were below their detection limit; the '{censoring}' policy set their values")
+        warnings.append(
+            f"{censored_count} samples were below their detection limit; the '{censoring}' policy set their values"
+        )
     projection = None
     if coordinates == "geographic":
         projection = centroid(x, y)

@@ -104,7 +104,12 @@ def fit_transform(kind: str, values: np.ndarray, source_index: np.ndarray | None
         bad = np.flatnonzero(values <= 0)
         if bad.size:
             index = source_index if source_index is not None else np.arange(values.size)
-            raise InvalidInput([FieldIssue(f"/samples/values/{int(index[i])}", "the log transform needs positive values") for i in bad[:20]])
+            raise InvalidInput(
+                [
+                    FieldIssue(f"/samples/values/{int(index[i])}", "the log transform needs positive values")
+                    for i in bad[:20]
+                ]
+            )
         return Transform("log")
     if kind == "normal_score":
         n = values.size
