@@ -52,6 +52,11 @@ def samples_document(
     return {name: _column(column) for name, column in given.items() if column is not None}
 
 
+def _given(options: dict) -> dict:
+    """The options the caller set (None means: the service's default)."""
+    return {k: v for k, v in options.items() if v is not None}
+
+
 def _model(model) -> dict:
     return model.to_dict() if hasattr(model, "to_dict") else dict(model)
 
@@ -188,7 +193,7 @@ class Lagwise:
             duplicates=duplicates,
             pairs_for_class=pairs_for_class,
         )
-        body.update({k: v for k, v in options.items() if v is not None})
+        body.update(_given(options))
         return ExperimentalVariogram.from_response(self.request("POST", "/v1/experimental-variograms", body))
 
     def variogram_map(
@@ -214,7 +219,7 @@ class Lagwise:
             "cells": cells,
         }
         options = dict(statistic=statistic, coordinates=coordinates, duplicates=duplicates)
-        body.update({k: v for k, v in options.items() if v is not None})
+        body.update(_given(options))
         return VariogramMap.from_response(self.request("POST", "/v1/variogram-maps", body))
 
     def fit_model(
@@ -265,7 +270,7 @@ class Lagwise:
             coordinates=coordinates,
             duplicates=duplicates,
         )
-        body.update({k: v for k, v in options.items() if v is not None})
+        body.update(_given(options))
         return ModelFit.from_response(self.request("POST", "/v1/model-fits", body))
 
     def cross_validate(
@@ -304,7 +309,7 @@ class Lagwise:
             coordinates=coordinates,
             duplicates=duplicates,
         )
-        body.update({k: v for k, v in options.items() if v is not None})
+        body.update(_given(options))
         return CrossValidation.from_response(self.request("POST", "/v1/cross-validations", body))
 
     def predict(
@@ -342,7 +347,7 @@ class Lagwise:
             coordinates=coordinates,
             duplicates=duplicates,
         )
-        body.update({k: v for k, v in options.items() if v is not None})
+        body.update(_given(options))
         return Predictions.from_response(self.request("POST", "/v1/predictions", body))
 
     def analyze(
@@ -386,7 +391,7 @@ class Lagwise:
             coordinates=coordinates,
             duplicates=duplicates,
         )
-        body.update({k: v for k, v in options.items() if v is not None})
+        body.update(_given(options))
         return Analysis.from_response(self.request("POST", "/v1/analyses", body))
 
     def model_families(self) -> list[dict]:
