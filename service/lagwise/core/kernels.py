@@ -253,20 +253,16 @@ def accumulate_horizontal(pts, vals, mean, max_d2, dirs, padded, lut, inv_cell, 
                     c -= np.int64(padded[0, c + 1] > d)
                     # Out-of-class and co-located pairs go to the dropped bin kmax.
                     c = c if (c >= 0) & (padded[0, c + 2] < np.inf) & (d2 > 0.0) & (d2 <= max_d2) else kmax
-                    # Margin of each direction test (>= 0: member); usually exactly one
-                    # direction passes, so the pair is added once without a branch.
+                    # Usually exactly one direction admits the pair, so it is added once
+                    # without a branch; several admit it only where sectors overlap.
                     passes = 0
                     best = 0
-                    best_margin = -1.0
                     for k in range(ndir):
                         proj = dx * dirs[k, 0] + dy * dirs[k, 1]
                         perp = dx * dirs[k, 1] - dy * dirs[k, 0]
-                        margin = proj * proj - hh2 * dirs[k, 11]
-                        margin = margin if perp * perp <= dirs[k, 3] else -1.0
-                        passes += np.int64(margin >= 0.0)
-                        better = margin > best_margin
-                        best = k if better else best
-                        best_margin = margin if better else best_margin
+                        inside = (proj * proj >= hh2 * dirs[k, 11]) & (perp * perp <= dirs[k, 3])
+                        passes += np.int64(inside)
+                        best = k if inside else best
                     if passes <= 1:
                         b = class_in(c, best, shared, lut, padded, m, d, d2, max_d2, kmax)
                         b = b if passes == 1 else kmax
