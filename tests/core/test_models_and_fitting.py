@@ -114,3 +114,9 @@ def test_fixed_nugget_and_ranking():
     criteria = [c.criterion for c in fit.candidates if c.criterion is not None]
     assert criteria == sorted(criteria)
     assert fit.best.families == ("spherical",)
+
+
+def test_range_beyond_the_classes_is_flagged():
+    h = np.linspace(10, 100, 10)
+    fit = fit_model(_points(0.01 * h, h=h), dimension=2, families=["spherical"])
+    assert any("has not levelled off" in w for w in fit.warnings)

@@ -483,6 +483,13 @@ def fit_model(
         c for c in candidates if c.criterion is None
     ]
     best = select(ranked)
+    longest = max((st.range for st in best.model.structures if FAMILIES[st.family].bounded), default=0.0)
+    reach = float(points.distance[points.usable].max())
+    if longest > 1.5 * reach:
+        notes.append(
+            f"the fitted range ({longest:.4g}) lies far beyond the largest class distance ({reach:.4g}): the variogram "
+            "has not levelled off, so the sill and range are uncertain; consider a trend (universal kriging) or an unbounded model"
+        )
     if best.r_squared is not None and best.r_squared < 0.3:
         notes.append(
             f"the best model explains little of the experimental variogram (R^2 = {best.r_squared:.2f}); the data may be close to pure nugget"
