@@ -202,14 +202,15 @@ def add_oriented(table, b, d, vi, vj, dx, dy, dz, dirs, k, mode, mean):
 
 
 @njit(parallel=True, cache=True)
-def accumulate_horizontal(pts, vals, mean, max_d2, dirs, padded, lut, inv_cell, shared, mode, nthreads):
+def accumulate_horizontal(pts, vals, mean, max_d2, dirs, padded, lut, inv_cell, shared, planar, mode, nthreads):
     """Fast path of :func:`accumulate_classes` for classes without dip or vertical band.
 
     Class lookup: ``lut[k, m]`` is ``searchsorted(edges_k, m * cell, "right") - 1`` for
     fine cells narrower than the narrowest class, so one step up and one step down
     (against ``padded[k] = [-inf, edges_k..., +inf...]``) give exactly
     ``searchsorted(edges_k, d, "right") - 1``. ``shared`` means every direction has
-    the same edges, so the class is looked up once per pair.
+    the same edges, so the class is looked up once per pair; ``planar`` means every
+    sample has z = 0 (1-D and 2-D sets), so the third coordinate is never read.
 
     Distances inside the search radius but outside the classes go to a dropped bin
     ``kmax``; for direction membership every direction's margin is computed and the
@@ -239,7 +240,7 @@ def accumulate_horizontal(pts, vals, mean, max_d2, dirs, padded, lut, inv_cell, 
                     if dx * dx > max_d2:
                         break
                     dy = pts[j, 1] - yi
-                    dz = pts[j, 2] - zi
+                    dz = 0.0 if planar else pts[j, 2] - zi
                     d2 = dx * dx + dy * dy + dz * dz
                     if d2 > max_d2:
                         continue
