@@ -202,15 +202,16 @@ def add_oriented(table, b, d, vi, vj, dx, dy, dz, dirs, k, mode, mean):
 
 
 @njit(parallel=True, cache=True)
-def accumulate_horizontal(pts, vals, mean, max_d2, dirs, padded, lut, inv_cell, shared, planar, mode, nthreads):
+def accumulate_horizontal(pts, vals, mean, max_d2, dirs, padded, lut, inv_cell, shared, mode, nthreads):
     """Fast path of :func:`accumulate_classes` for classes without dip or vertical band.
 
     Class lookup: ``lut[k, m]`` is ``searchsorted(edges_k, m * cell, "right") - 1`` for
     fine cells narrower than the narrowest class, so one step up and one step down
     (against ``padded[k] = [-inf, edges_k..., +inf...]``) give exactly
     ``searchsorted(edges_k, d, "right") - 1``. ``shared`` means every direction has
-    the same edges, so the class is looked up once per pair; ``planar`` means every
-    sample has z = 0 (1-D and 2-D sets), so the third coordinate is never read.
+    the same edges, so the class is looked up once per pair. Coordinates and direction
+    parameters are copied into contiguous columns first, and each sample gathers the
+    indexes of its neighbours within the radius in a branch-free pass before binning.
 
     Distances inside the search radius but outside the classes go to a dropped bin
     ``kmax``; for direction membership every direction's margin is computed and the
@@ -226,24 +227,40 @@ def accumulate_horizontal(pts, vals, mean, max_d2, dirs, padded, lut, inv_cell, 
     tables = np.zeros((nthreads, ndir * stride, ACCUMULATORS))
     colocated = np.zeros(nthreads, dtype=np.int64)
     nblocks = (n + ROW_BLOCK - 1) // ROW_BLOCK
+    xs = np.ascontiguousarray(pts[:, 0])
+    ys = np.ascontiguousarray(pts[:, 1])
+    zs = np.ascontiguousarray(pts[:, 2])
+    radius = math.sqrt(max_d2)
+    ux = np.ascontiguousarray(dirs[:, 0])
+    uy = np.ascontiguousarray(dirs[:, 1])
+    band2 = np.ascontiguousarray(dirs[:, 3])
+    cos2 = np.ascontiguousarray(dirs[:, 11])
     for t in prange(nthreads):
         table = tables[t]
         zero_pairs = 0
+        near = np.empty(n, dtype=np.int64)
         for blk in range(t, nblocks, nthreads):
             for i in range(blk * ROW_BLOCK, min(n, (blk + 1) * ROW_BLOCK)):
-                xi = pts[i, 0]
-                yi = pts[i, 1]
-                zi = pts[i, 2]
+                xi = xs[i]
+                yi = ys[i]
+                zi = zs[i]
                 vi = vals[i]
-                for j in range(i + 1, n):
-                    dx = pts[j, 0] - xi
-                    if dx * dx > max_d2:
-                        break
-                    dy = pts[j, 1] - yi
-                    dz = 0.0 if planar else pts[j, 2] - zi
+                # First pass: indexes of the samples within the radius, gathered without
+                # branches; second pass: bin those pairs.
+                end = np.searchsorted(xs, xi + radius, side="right")
+                count = 0
+                for j in range(i + 1, end):
+                    dx = xs[j] - xi
+                    dy = ys[j] - yi
+                    dz = zs[j] - zi
+                    near[count] = j
+                    count += np.int64(dx * dx + dy * dy + dz * dz <= max_d2)
+                for q in range(count):
+                    j = near[q]
+                    dx = xs[j] - xi
+                    dy = ys[j] - yi
+                    dz = zs[j] - zi
                     d2 = dx * dx + dy * dy + dz * dz
-                    if d2 > max_d2:
-                        continue
                     zero_pairs += np.int64(d2 == 0.0)
                     d = math.sqrt(d2)
                     vj = vals[j]
@@ -259,9 +276,9 @@ def accumulate_horizontal(pts, vals, mean, max_d2, dirs, padded, lut, inv_cell, 
                     passes = 0
                     best = 0
                     for k in range(ndir):
-                        proj = dx * dirs[k, 0] + dy * dirs[k, 1]
-                        perp = dx * dirs[k, 1] - dy * dirs[k, 0]
-                        inside = (proj * proj >= hh2 * dirs[k, 11]) & (perp * perp <= dirs[k, 3])
+                        proj = dx * ux[k] + dy * uy[k]
+                        perp = dx * uy[k] - dy * ux[k]
+                        inside = (proj * proj >= hh2 * cos2[k]) & (perp * perp <= band2[k])
                         passes += np.int64(inside)
                         best = k if inside else best
                     if passes <= 1:

@@ -37,8 +37,6 @@ class PreparedSamples:
         Largest absolute sample value (for rounding-noise thresholds).
     order : ndarray, shape (n,)
         Input index of each sorted sample.
-    planar : bool
-        The samples have at most two coordinates (z is zero padding).
     """
 
     points: np.ndarray
@@ -46,7 +44,6 @@ class PreparedSamples:
     mean: float
     scale: float
     order: np.ndarray
-    planar: bool = True
 
 
 def prepare(coords: np.ndarray, values: np.ndarray) -> PreparedSamples:
@@ -61,7 +58,6 @@ def prepare(coords: np.ndarray, values: np.ndarray) -> PreparedSamples:
         mean=mean,
         scale=float(np.max(np.abs(values))),
         order=order,
-        planar=coords.shape[1] < 3,
     )
 
 
@@ -162,7 +158,6 @@ def accumulate(prepared: PreparedSamples, classes: ClassLayout, mode: int) -> tu
             classes.lookup,
             classes.inv_cell,
             classes.shared,
-            prepared.planar,
             mode,
             numba.get_num_threads(),
         )
