@@ -112,9 +112,13 @@ def main(argv: list[str]) -> int:
         os.execv(str(PYTHON), [str(PYTHON), str(ROOT / "deploy" / "cluster.py"), *rest])
     if command == "lint":
         ensure_environment()
-        return subprocess.run(
-            [str(BIN / "ruff"), "check", "service", "client", "tests", "bench", "manage.py"], cwd=ROOT
-        ).returncode
+        trees = ["service", "client", "tests", "bench", "deploy", "manage.py"]
+        steps = [
+            [str(BIN / "ruff"), "check", *trees],
+            [str(BIN / "ruff"), "format", "--check", *trees],
+            [str(BIN / "mypy")],
+        ]
+        return max(subprocess.run(step, cwd=ROOT).returncode for step in steps)
     print(__doc__)
     return 0 if command == "help" else 2
 

@@ -38,7 +38,8 @@ def read_body() -> bytes:
     if "wsgi.input_terminated" not in request.environ:
         return b""
     stream = request.environ["wsgi.input"]
-    blocks, total = [], 0
+    blocks: list[bytes] = []
+    total = 0
     while True:
         block = stream.read(READ_BLOCK)
         if not block:

@@ -26,7 +26,7 @@ from numba import njit, prange
 # fork-safe. Each sync worker runs one request at a time, so the layer's lack of
 # support for concurrent parallel regions from several Python threads is moot.
 if not os.environ.get("NUMBA_THREADING_LAYER"):
-    numba.config.THREADING_LAYER = "workqueue"
+    numba.config.THREADING_LAYER = "workqueue"  # type: ignore[attr-defined]
 
 COUNT, DISTANCE, SQUARE, ROOT, ABSOLUTE, TAIL, HEAD, TAIL2, HEAD2, PRODUCT, RELATIVE = range(11)
 ACCUMULATORS = 11

@@ -52,7 +52,7 @@ class KrigingSpec:
     nugget_as: str = "micro_scale"
 
     def as_dict(self) -> dict:
-        out = {"type": self.type, "nugget_as": self.nugget_as}
+        out: dict = {"type": self.type, "nugget_as": self.nugget_as}
         if self.type == "simple":
             out["mean"] = self.mean
         if self.type == "universal":
@@ -305,7 +305,7 @@ class Kriger:
         estimate = np.full(m, np.nan)
         variance = np.full(m, np.nan)
         reasons: dict = {}
-        weights = []
+        weights: list[dict] = []
         for start in range(0, m, TARGET_CHUNK):
             check_deadline()
             stop = min(m, start + TARGET_CHUNK)
