@@ -51,7 +51,6 @@ def case_loo_unique(n):
 def case_refits(n, count=10):
     from lagwise.core.kriging import Kriger, KrigingSpec
     from lagwise.core.neighbourhood import Neighbourhood
-    from lagwise.core.validation import _subset
 
     samples = _samples(n, 100.0 * (n / 1000) ** 0.5)
     model = _model()
@@ -59,7 +58,7 @@ def case_refits(n, count=10):
     for i in range(count):
         keep = np.ones(n, dtype=bool)
         keep[i] = False
-        Kriger(_subset(samples, keep), model, KrigingSpec(), Neighbourhood()).predict(samples.coords[i : i + 1])
+        Kriger(samples.subset(keep), model, KrigingSpec(), Neighbourhood()).predict(samples.coords[i : i + 1])
     return (time.perf_counter() - start) / count * n
 
 

@@ -21,7 +21,7 @@ from lagwise.core.kriging import Kriger, KrigingSpec
 from lagwise.core.models import Structure, VariogramModel, matern_practical_factor
 from lagwise.core.neighbourhood import Neighbourhood
 from lagwise.core.samples import build_sample_set
-from lagwise.core.validation import Scheme, _subset, cross_validate, summarise
+from lagwise.core.validation import Scheme, cross_validate, summarise
 from sklearn.gaussian_process import GaussianProcessRegressor
 from sklearn.gaussian_process.kernels import ConstantKernel, Matern
 
@@ -134,7 +134,7 @@ def test_closed_form_leave_one_out_equals_refits(scene, spec, model):
     for i in range(samples.size):
         keep = np.ones(samples.size, dtype=bool)
         keep[i] = False
-        refit = Kriger(_subset(samples, keep), model, spec, UNIQUE).predict(coords[i : i + 1])
+        refit = Kriger(samples.subset(keep), model, spec, UNIQUE).predict(coords[i : i + 1])
         assert fast.estimate[i] == pytest.approx(refit.estimate[0], rel=1e-8)
         assert fast.standard_deviation[i] == pytest.approx(math.sqrt(refit.variance[0]), rel=1e-8)
 
@@ -147,7 +147,7 @@ def test_moving_leave_one_out_equals_refits(scene):
     for i in range(0, samples.size, 7):
         keep = np.ones(samples.size, dtype=bool)
         keep[i] = False
-        refit = Kriger(_subset(samples, keep), model, KrigingSpec("ordinary"), hood).predict(coords[i : i + 1])
+        refit = Kriger(samples.subset(keep), model, KrigingSpec("ordinary"), hood).predict(coords[i : i + 1])
         assert fast.estimate[i] == pytest.approx(refit.estimate[0], rel=1e-10)
 
 

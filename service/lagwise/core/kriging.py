@@ -358,13 +358,28 @@ class Kriger:
 
     # ---- public ------------------------------------------------------------
 
-    def predict(self, targets: np.ndarray, *, weights_for: tuple[int, ...] = (), workers: int = 1) -> Prediction:
-        """Estimates and kriging variances at targets (m, d) in the samples' working coordinates."""
+    def predict(
+        self,
+        targets: np.ndarray,
+        *,
+        weights_for: tuple[int, ...] = (),
+        exclude: np.ndarray | None = None,
+        workers: int = 1,
+    ) -> Prediction:
+        """Estimates and kriging variances at targets (m, d) in the samples' working coordinates.
+
+        ``exclude`` (moving neighbourhoods only) names, per target, one sample to leave out
+        of its neighbourhood (leave-one-out at the samples themselves).
+        """
         targets = np.asarray(targets, dtype=np.float64)
         want = set(weights_for)
         if self.neighbourhood.unique:
+            if exclude is not None:
+                raise ValueError(
+                    "leaving samples out of the unique neighbourhood uses the closed form (lagwise.core.validation)"
+                )
             return self._predict_unique(targets, want)
-        return self._predict_moving(targets, want, workers=workers)
+        return self._predict_moving(targets, want, exclude, workers)
 
 
 def _batched_solve(A: np.ndarray, b: np.ndarray) -> tuple[np.ndarray, np.ndarray]:

@@ -15,7 +15,7 @@ from __future__ import annotations
 
 import hashlib
 from collections.abc import Callable, Sequence
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 
@@ -106,6 +106,16 @@ class SampleSet:
     def size(self) -> int:
         """Number of samples after duplicate handling."""
         return int(self.values.shape[0])
+
+    def subset(self, keep: np.ndarray) -> SampleSet:
+        """The samples where the boolean mask ``keep`` is true (e.g. the training part of a fold)."""
+        return replace(
+            self,
+            coords=self.coords[keep],
+            values=self.values[keep],
+            ids=tuple(self.ids[i] for i in np.flatnonzero(keep)),
+            source_index=self.source_index[keep],
+        )
 
 
 def input_hash(columns: Sequence[np.ndarray]) -> str:

@@ -17,7 +17,7 @@ an observation is compared), standardized error = error / standard deviation.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, replace
+from dataclasses import dataclass
 
 import numpy as np
 from scipy.linalg import LinAlgError, cho_factor, cho_solve, inv
@@ -65,16 +65,6 @@ class CrossValidation:
     assessment: str
     reasons: dict
     method: str
-
-
-def _subset(samples: SampleSet, keep: np.ndarray) -> SampleSet:
-    return replace(
-        samples,
-        coords=samples.coords[keep],
-        values=samples.values[keep],
-        ids=tuple(samples.ids[i] for i in np.flatnonzero(keep)),
-        source_index=samples.source_index[keep],
-    )
 
 
 def _inverse_blocks(kriger: Kriger, rhs: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -164,7 +154,7 @@ def cross_validate(
             estimate, sd = _leave_one_out_unique(kriger)
             method = "leave-one-out, closed form (Dubrule 1983)"
         else:
-            result = kriger._predict_moving(samples.coords, set(), exclude=np.arange(n), workers=workers)
+            result = kriger.predict(samples.coords, exclude=np.arange(n), workers=workers)
             estimate, sd = result.estimate, _observation_sd(kriger, result.variance)
             reasons = result.reasons
             method = "leave-one-out, moving neighbourhood"
@@ -174,7 +164,7 @@ def cross_validate(
             check_deadline()
             keep = np.ones(n, dtype=bool)
             keep[fold] = False
-            kriger = Kriger(_subset(samples, keep), model, spec, neighbourhood, max_unique=limits.max_unique_samples)
+            kriger = Kriger(samples.subset(keep), model, spec, neighbourhood, max_unique=limits.max_unique_samples)
             result = kriger.predict(samples.coords[fold], workers=workers)
             estimate[fold], sd[fold] = result.estimate, _observation_sd(kriger, result.variance)
             reasons.update({int(fold[t]): why for t, why in result.reasons.items()})
