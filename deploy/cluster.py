@@ -31,9 +31,12 @@ def free_port() -> int:
         return s.getsockname()[1]
 
 
-def wait_ready(url: str, seconds: float = 300.0) -> None:
+def wait_ready(url: str, seconds: float = 300.0, process: subprocess.Popen | None = None) -> None:
+    """Poll ``url``/readyz until it answers 200; fail early if ``process`` exits."""
     deadline = time.monotonic() + seconds
     while time.monotonic() < deadline:
+        if process is not None and process.poll() is not None:
+            raise RuntimeError(f"the service exited with status {process.returncode}")
         try:
             with urllib.request.urlopen(url + "/readyz", timeout=2) as answer:
                 if answer.status == 200:

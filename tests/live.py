@@ -5,21 +5,16 @@ from __future__ import annotations
 import contextlib
 import os
 import signal
-import socket
 import subprocess
 import sys
-import time
-import urllib.request
 from pathlib import Path
+
+sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "deploy"))
+
+from cluster import free_port, wait_ready  # noqa: E402
 
 ROOT = Path(__file__).resolve().parents[1]
 CONFIG = ROOT / "deploy" / "gunicorn.conf.py"
-
-
-def free_port() -> int:
-    with socket.socket() as s:
-        s.bind(("127.0.0.1", 0))
-        return s.getsockname()[1]
 
 
 @contextlib.contextmanager
@@ -38,19 +33,7 @@ def running_service(env: dict | None = None, workers: int = 2, ready_within: flo
     )
     url = f"http://127.0.0.1:{port}"
     try:
-        deadline = time.monotonic() + ready_within
-        while True:
-            if process.poll() is not None:
-                raise RuntimeError(f"gunicorn exited with {process.returncode}")
-            try:
-                with urllib.request.urlopen(url + "/readyz", timeout=2) as answer:
-                    if answer.status == 200:
-                        break
-            except OSError:
-                pass
-            if time.monotonic() > deadline:
-                raise RuntimeError("gunicorn did not become ready")
-            time.sleep(0.2)
+        wait_ready(url, ready_within, process)
         yield url
     finally:
         if process.poll() is None:
