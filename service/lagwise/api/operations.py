@@ -275,6 +275,7 @@ def analyses():
             "kriging": options.kriging,
             "scheme": options.scheme,
             "figure_format": document["figure_format"],
+            "figure_size": document["figure_size"],
         },
     )
     pairs = sum(row.pairs for d in result.omnidirectional.directions for row in d.classes)

@@ -313,6 +313,8 @@ def analysis(result, samples: SampleSet, figures: dict, options: dict) -> dict:
             "units": "transformed values" if result.transform.kind != "none" else "values",
         },
         "prediction_units": "original units (back-transformed)" if result.transform.kind != "none" else "values",
+        "figures": list(figures),
         "figure_format": options.get("figure_format"),
+        "figure_size": options.get("figure_size"),
     }
     return document
