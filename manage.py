@@ -13,10 +13,9 @@ from __future__ import annotations
 
 import hashlib
 import os
+import signal
 import subprocess
 import sys
-import time
-import urllib.request
 import venv
 from pathlib import Path
 
@@ -25,6 +24,10 @@ VENV = ROOT / ".venv"
 BIN = VENV / "bin"
 PYTHON = BIN / "python"
 STAMP = VENV / ".lagwise-installed"
+sys.path.insert(0, str(ROOT / "deploy"))
+
+from cluster import wait_ready  # noqa: E402  (standard library only, like this script)
+
 PORT = int(os.environ.get("LAGWISE_PORT", "8750"))
 
 
@@ -49,28 +52,22 @@ def ensure_environment() -> None:
     STAMP.write_text(wanted)
 
 
-def _wait_ready(url: str, process: subprocess.Popen, seconds: float = 600.0) -> None:
-    deadline = time.monotonic() + seconds
-    while time.monotonic() < deadline:
-        if process.poll() is not None:
-            raise SystemExit(f"the service exited with status {process.returncode}")
-        try:
-            with urllib.request.urlopen(url + "/readyz", timeout=2) as answer:
-                if answer.status == 200:
-                    return
-        except OSError:
-            time.sleep(0.5)
-    raise SystemExit("the service did not become ready in time")
+def _interrupt(*_):
+    raise KeyboardInterrupt
 
 
 def run() -> int:
     ensure_environment()
+    signal.signal(signal.SIGTERM, _interrupt)
     url = f"http://127.0.0.1:{PORT}"
     env = dict(os.environ, LAGWISE_BIND=f"127.0.0.1:{PORT}")
     print(f"starting the service on {url} (first start compiles the kernels; later starts load them) ...", flush=True)
     service = subprocess.Popen([str(BIN / "lagwise"), "serve"], env=env, cwd=ROOT)
     try:
-        _wait_ready(url, service)
+        try:
+            wait_ready(url, 600.0, service)
+        except RuntimeError as exc:
+            raise SystemExit(str(exc)) from None
         subprocess.run(
             [str(BIN / "lagwise"), "demo", "--url", url, "--out", str(ROOT / "reports" / "elmsworth")], check=True
         )

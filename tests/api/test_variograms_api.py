@@ -6,6 +6,7 @@ import hashlib
 
 import numpy as np
 import pytest
+from lagwise.core.statistics import STATISTICS
 
 from tests.conftest import random_columns
 
@@ -126,19 +127,7 @@ def test_problem_types_are_described(client):
     assert r.status_code == 200 and r.json["status"] == 422
 
 
-@pytest.mark.parametrize(
-    "statistic",
-    [
-        "semivariance",
-        "semivariance_robust",
-        "semivariance_median",
-        "madogram",
-        "covariance",
-        "covariance_noncentered",
-        "correlogram",
-        "pairwise_relative",
-    ],
-)
+@pytest.mark.parametrize("statistic", STATISTICS)
 def test_every_statistic(client, rng, statistic):
     cols = random_columns(rng, n=60)
     r = client.post(URL, json={"samples": cols, "statistic": statistic})
