@@ -138,3 +138,32 @@ def test_grid_too_large(small_limits_client):
         json={"samples": cols, "prediction": {"grid": {"origin": [0, 0], "spacing": [1, 1], "shape": [3000, 3000]}}},
     )
     assert r.status_code == 422 and r.json["type"] in ("/problems/limit-exceeded", "/problems/invalid-input")
+
+
+def test_one_dimensional_analysis_reports_an_unusable_model_instead_of_failing(client):
+    """A gaussian structure without nugget on a dense transect makes the kriging matrix singular:
+    the analysis still reports the variogram and the fit, with a warning and no cross-validation."""
+    rng = np.random.default_rng(1)
+    x = rng.uniform(0, 100, 80)
+    values = np.sin(x / 10) + rng.normal(0, 0.2, 80)
+    doc = client.post(
+        URL,
+        json={
+            "samples": {"x": x.tolist(), "values": values.tolist()},
+            "fit": {"families": ["gaussian"], "nugget": "none"},
+        },
+    ).json
+    assert doc["fit"]["model"]["structures"][0]["family"] == "gaussian"
+    assert doc["cross_validation"] is None
+    assert any("kriging was not possible" in w for w in doc["warnings"])
+    assert "could not run" in doc["verdict"]
+
+
+def test_sectors_need_two_dimensions(client):
+    body = {
+        "samples": {"x": [0, 1, 2, 3, 4, 5], "values": [1, 2, 1, 3, 2, 4]},
+        "model": {"structures": [{"family": "spherical", "partial_sill": 1, "range": 3}]},
+        "neighbourhood": {"max_points": 4, "sectors": 2},
+    }
+    r = client.post("/v1/cross-validations", json=body)
+    assert r.status_code == 422 and r.json["errors"][0]["pointer"] == "/neighbourhood/sectors"

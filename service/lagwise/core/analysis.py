@@ -14,6 +14,7 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 
 from .directions import DirectionClass
+from .errors import InvalidInput
 from .experimental import ExperimentalVariogram, experimental_variogram
 from .fitting import FitResult, fit_model, points_from_experimental
 from .kriging import KrigingSpec
@@ -150,17 +151,27 @@ def analyse(
         )
     hood = _neighbourhood(options, samples)
     model = fit.best.model
-    cv = (
-        cross_validate(working, model, options.kriging, hood, options.scheme, limits=limits, workers=workers)
-        if model.structures or model.nugget > 0
-        else None
-    )
-    prediction, back = None, None
-    if options.grid is not None and cv is not None:
-        prediction = predict(
-            working, model, spec=options.kriging, neighbourhood=hood, grid=options.grid, limits=limits, workers=workers
-        )
-        back = transform.back_estimate(prediction.prediction.estimate, prediction.prediction.variance)
+    cv, prediction, back, refused = None, None, None, None
+    if model.structures or model.nugget > 0:
+        try:
+            cv = cross_validate(working, model, options.kriging, hood, options.scheme, limits=limits, workers=workers)
+            if options.grid is not None:
+                prediction = predict(
+                    working,
+                    model,
+                    spec=options.kriging,
+                    neighbourhood=hood,
+                    grid=options.grid,
+                    limits=limits,
+                    workers=workers,
+                )
+                back = transform.back_estimate(prediction.prediction.estimate, prediction.prediction.variance)
+        except InvalidInput as exc:
+            # A model the kriging systems cannot use (e.g. a gaussian structure without nugget on
+            # dense samples) still leaves the variogram and the fit worth reporting.
+            refused = (
+                f"kriging was not possible with the selected model ({exc.summary}); fit with a nugget or another family"
+            )
     vmap = None
     if options.with_map and samples.dimension >= 2:
         cells = 10
@@ -173,6 +184,8 @@ def analyse(
         )
     notes = list(omni.warnings) + list(fit.warnings)
     notes += _warnings(samples, fit, cv, anisotropy)
+    if refused:
+        notes.append(refused)
     return Analysis(
         transform=transform,
         summary=summarise(samples.coords, samples.values),
@@ -231,7 +244,9 @@ def _verdict(fit: FitResult, cv: CrossValidation | None, anisotropy: Anisotropy 
         parts.append(
             f"Direction classes suggest the longest continuity along azimuth {anisotropy.azimuth:.0f} degrees (range ratio {anisotropy.ratio:.2f})."
         )
-    if cv is not None and cv.statistics["root_mean_square_standardized_error"] is not None:
+    if cv is None:
+        parts.append("Cross-validation could not run with this model (see the warnings); review the model before mapping.")
+    elif cv.statistics["root_mean_square_standardized_error"] is not None:
         rmsse = cv.statistics["root_mean_square_standardized_error"]
         honest = 0.8 <= rmsse <= 1.2
         parts.append(

@@ -196,7 +196,7 @@ class Kriger:
         *,
         max_unique: int = 10_000,
     ):
-        validate_neighbourhood(neighbourhood)
+        validate_neighbourhood(neighbourhood, samples.dimension)
         self.spec = validate_spec(spec, model, samples.dimension)
         self.samples = samples
         self.coords = samples.coords

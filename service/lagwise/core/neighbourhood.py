@@ -60,7 +60,7 @@ class Neighbourhood:
         }
 
 
-def validate_neighbourhood(n: Neighbourhood) -> None:
+def validate_neighbourhood(n: Neighbourhood, dimension: int = 2) -> None:
     """Raises InvalidInput naming ``/neighbourhood/<field>``."""
     issues = []
     if n.max_points is not None and not 1 <= n.max_points <= 500:
@@ -75,6 +75,8 @@ def validate_neighbourhood(n: Neighbourhood) -> None:
         issues.append(FieldIssue("/neighbourhood/sectors", "must be from 1 to 8"))
     if n.sectors is not None and n.max_points is None:
         issues.append(FieldIssue("/neighbourhood/sectors", "needs max_points"))
+    if n.sectors is not None and dimension < 2:
+        issues.append(FieldIssue("/neighbourhood/sectors", "angular sectors need 2-D or 3-D samples"))
     if issues:
         raise InvalidInput(issues)
 
