@@ -167,3 +167,10 @@ def test_sectors_need_two_dimensions(client):
     }
     r = client.post("/v1/cross-validations", json=body)
     assert r.status_code == 422 and r.json["errors"][0]["pointer"] == "/neighbourhood/sectors"
+
+
+def test_constant_values_get_a_plain_verdict(client):
+    cols = {"x": list(range(30)), "y": [i % 4 for i in range(30)], "values": [2.0] * 30}
+    doc = client.post(URL, json={"samples": cols, "figures": ["variogram"]}).json
+    assert doc["verdict"] == "All values are equal: there is no variation to model or map."
+    assert doc["fit"]["model"] == {"nugget": 0.0, "structures": []}

@@ -200,7 +200,7 @@ def analyse(
         back_transformed=back,
         variogram_map=vmap,
         warnings=tuple(dict.fromkeys(notes)),
-        verdict=_verdict(fit, cv, anisotropy),
+        verdict=_verdict(fit, cv, anisotropy, constant=omni.summary.variance == 0.0),
     )
 
 
@@ -231,8 +231,12 @@ def _warnings(
     return notes
 
 
-def _verdict(fit: FitResult, cv: CrossValidation | None, anisotropy: Anisotropy | None) -> str:
+def _verdict(
+    fit: FitResult, cv: CrossValidation | None, anisotropy: Anisotropy | None, *, constant: bool = False
+) -> str:
     model = fit.best.model
+    if constant:
+        return "All values are equal: there is no variation to model or map."
     if not model.structures:
         return "No spatial structure: the values vary as much between close samples as between distant ones, so kriging adds nothing to the mean."
     structure = model.structures[0]
@@ -245,7 +249,9 @@ def _verdict(fit: FitResult, cv: CrossValidation | None, anisotropy: Anisotropy 
             f"Direction classes suggest the longest continuity along azimuth {anisotropy.azimuth:.0f} degrees (range ratio {anisotropy.ratio:.2f})."
         )
     if cv is None:
-        parts.append("Cross-validation could not run with this model (see the warnings); review the model before mapping.")
+        parts.append(
+            "Cross-validation could not run with this model (see the warnings); review the model before mapping."
+        )
     elif cv.statistics["root_mean_square_standardized_error"] is not None:
         rmsse = cv.statistics["root_mean_square_standardized_error"]
         honest = 0.8 <= rmsse <= 1.2
