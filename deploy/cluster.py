@@ -46,6 +46,18 @@ def wait_ready(url: str, seconds: float = 300.0, process: subprocess.Popen | Non
     raise RuntimeError(f"{url} did not become ready")
 
 
+def spawn_gunicorn(env: dict, log, cwd: Path | None = None) -> subprocess.Popen:
+    """Start gunicorn with the project's configuration in its own session (so it can be signalled whole)."""
+    return subprocess.Popen(
+        [sys.executable, "-m", "gunicorn", "--config", str(CONFIG), "lagwise.api:create_app()"],
+        env=env,
+        cwd=cwd,
+        stdout=log,
+        stderr=log,
+        start_new_session=True,
+    )
+
+
 class Cluster:
     """Instances and a balancer; a context manager that stops everything it started."""
 
@@ -77,14 +89,7 @@ class Cluster:
         )
         log = open(self.prefix / f"instance-{port}.log", "w")
         self.logs.append(log)
-        process = subprocess.Popen(
-            [sys.executable, "-m", "gunicorn", "--config", str(CONFIG), "lagwise.api:create_app()"],
-            env=env,
-            stdout=log,
-            stderr=log,
-            start_new_session=True,
-        )
-        self.instances.append((port, process))
+        self.instances.append((port, spawn_gunicorn(env, log)))
         return port
 
     def start(self) -> Cluster:

@@ -11,10 +11,9 @@ from pathlib import Path
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "deploy"))
 
-from cluster import free_port, wait_ready  # noqa: E402
+from cluster import free_port, spawn_gunicorn, wait_ready  # noqa: E402
 
 ROOT = Path(__file__).resolve().parents[1]
-CONFIG = ROOT / "deploy" / "gunicorn.conf.py"
 
 
 @contextlib.contextmanager
@@ -23,14 +22,7 @@ def running_service(env: dict | None = None, workers: int = 2, ready_within: flo
     port = free_port()
     environment = dict(os.environ, LAGWISE_BIND=f"127.0.0.1:{port}", LAGWISE_WORKERS=str(workers), **(env or {}))
     log = open(os.devnull, "w")
-    process = subprocess.Popen(
-        [sys.executable, "-m", "gunicorn", "--config", str(CONFIG), "lagwise.api:create_app()"],
-        env=environment,
-        cwd=ROOT,
-        stdout=log,
-        stderr=log,
-        start_new_session=True,
-    )
+    process = spawn_gunicorn(environment, log, ROOT)
     url = f"http://127.0.0.1:{port}"
     try:
         wait_ready(url, ready_within, process)

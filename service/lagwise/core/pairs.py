@@ -177,18 +177,14 @@ def accumulate(prepared: PreparedSamples, classes: ClassLayout, mode: int) -> tu
     return table.reshape(classes.table.shape[0], classes.kmax, K.ACCUMULATORS), int(colocated)
 
 
-def _no_scatter() -> tuple[np.ndarray, np.ndarray]:
-    return np.zeros(0), np.zeros(0)
+_NONE_F = np.zeros(0)
+_NONE_I = np.zeros(0, dtype=np.int64)
 
 
-def absolute_differences(prepared: PreparedSamples, classes: ClassLayout, counts: np.ndarray) -> list[np.ndarray]:
-    """|Delta| of every pair of every bin (bins ordered direction-major), given the bins' counts."""
-    flat = counts.reshape(-1).astype(np.int64)
-    starts = np.concatenate([[0], np.cumsum(flat)[:-1]]).astype(np.int64)
-    out = np.empty(int(flat.sum()))
+def _collect(prepared, classes, offsets, ends, out_abs, target, stride, tail, head) -> int:
+    """One serial pass of :func:`lagwise.core.kernels.collect_pairs` over the layout's classes."""
     radius = classes.search_radius
-    tail, head = _no_scatter()
-    K.collect_pairs(
+    return K.collect_pairs(
         prepared.points,
         prepared.values,
         radius * radius,
@@ -196,14 +192,22 @@ def absolute_differences(prepared: PreparedSamples, classes: ClassLayout, counts
         classes.edges,
         classes.counts,
         classes.inv_width,
-        starts.copy(),
-        starts + flat,
-        out,
-        -1,
-        1,
+        offsets,
+        ends,
+        out_abs,
+        target,
+        stride,
         tail,
         head,
     )
+
+
+def absolute_differences(prepared: PreparedSamples, classes: ClassLayout, counts: np.ndarray) -> list[np.ndarray]:
+    """|Delta| of every pair of every bin (bins ordered direction-major), given the bins' counts."""
+    flat = counts.reshape(-1).astype(np.int64)
+    starts = np.concatenate([[0], np.cumsum(flat)[:-1]]).astype(np.int64)
+    out = np.empty(int(flat.sum()))
+    _collect(prepared, classes, starts.copy(), starts + flat, out, -1, 1, _NONE_F, _NONE_F)
     return [out[s : s + c] for s, c in zip(starts, flat, strict=False)]
 
 
@@ -215,23 +219,7 @@ def scatter_pairs(prepared: PreparedSamples, classes: ClassLayout, bin_index: in
     """
     stride = max(1, -(-total // limit))
     tail, head = np.empty(limit), np.empty(limit)
-    radius = classes.search_radius
-    written = K.collect_pairs(
-        prepared.points,
-        prepared.values,
-        radius * radius,
-        classes.table,
-        classes.edges,
-        classes.counts,
-        classes.inv_width,
-        np.zeros(0, dtype=np.int64),
-        np.zeros(0, dtype=np.int64),
-        np.zeros(0),
-        bin_index,
-        stride,
-        tail,
-        head,
-    )
+    written = _collect(prepared, classes, _NONE_I, _NONE_I, _NONE_F, bin_index, stride, tail, head)
     return tail[:written] + prepared.mean, head[:written] + prepared.mean, stride
 
 
