@@ -16,10 +16,10 @@ from scipy.spatial.distance import cdist
 
 
 def _points():
-    from lagwise.core.experimental import experimental_variogram
-    from lagwise.core.fitting import points_from_experimental
-    from lagwise.core.lags import LagRequest
-    from lagwise.core.samples import build_sample_set
+    from lagwise.core.data.samples import build_sample_set
+    from lagwise.core.modelling.fitting import points_from_experimental
+    from lagwise.core.variography.experimental import experimental_variogram
+    from lagwise.core.variography.lags import LagRequest
 
     rng = np.random.default_rng(3)
     coords = rng.uniform(0, 100, (600, 2))

@@ -25,7 +25,7 @@ MODEL = {"nugget": 0.1, "family": "spherical", "sill": 1.0, "range": 30.0}
 
 
 def _samples(n, side):
-    from lagwise.core.samples import build_sample_set
+    from lagwise.core.data.samples import build_sample_set
 
     rng = np.random.default_rng(n)
     coords = rng.uniform(0, side, (n, 2))
@@ -34,13 +34,13 @@ def _samples(n, side):
 
 
 def _model():
-    from lagwise.core.models import Structure, VariogramModel
+    from lagwise.core.modelling.models import Structure, VariogramModel
 
     return VariogramModel(MODEL["nugget"], (Structure(MODEL["family"], MODEL["sill"], MODEL["range"]),))
 
 
 def case_loo_unique(n):
-    from lagwise.core.validation import cross_validate
+    from lagwise.core.kriging.cross_validation import cross_validate
 
     samples = _samples(n, 100.0 * (n / 1000) ** 0.5)
     start = time.perf_counter()
@@ -49,8 +49,8 @@ def case_loo_unique(n):
 
 
 def case_refits(n, count=10):
-    from lagwise.core.kriging import Kriger, KrigingSpec
-    from lagwise.core.neighbourhood import Neighbourhood
+    from lagwise.core.kriging.neighbourhood import Neighbourhood
+    from lagwise.core.kriging.systems import Kriger, KrigingSpec
 
     samples = _samples(n, 100.0 * (n / 1000) ** 0.5)
     model = _model()
@@ -64,8 +64,8 @@ def case_refits(n, count=10):
 
 def case_loo_moving(n):
     import numba
-    from lagwise.core.neighbourhood import Neighbourhood
-    from lagwise.core.validation import cross_validate
+    from lagwise.core.kriging.cross_validation import cross_validate
+    from lagwise.core.kriging.neighbourhood import Neighbourhood
 
     samples = _samples(n, 1000.0)
     start = time.perf_counter()
@@ -77,8 +77,8 @@ def case_loo_moving(n):
 
 def case_predict(n, targets):
     import numba
-    from lagwise.core.neighbourhood import Neighbourhood
-    from lagwise.core.prediction import Grid, predict
+    from lagwise.core.kriging.neighbourhood import Neighbourhood
+    from lagwise.core.kriging.prediction import Grid, predict
 
     samples = _samples(n, 1000.0)
     side = int(round(targets**0.5))

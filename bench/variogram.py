@@ -30,11 +30,11 @@ def _data(n):
 
 
 def _lagwise(n, kind, repeats):
-    from lagwise.core.directions import DirectionClass
-    from lagwise.core.experimental import experimental_variogram
-    from lagwise.core.lags import LagRequest
+    from lagwise.core.data.samples import build_sample_set
     from lagwise.core.limits import Limits
-    from lagwise.core.samples import build_sample_set
+    from lagwise.core.variography.directions import DirectionClass
+    from lagwise.core.variography.experimental import experimental_variogram
+    from lagwise.core.variography.lags import LagRequest
     from lagwise.core.warmup import warm_kernels
 
     warm_kernels()

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-from lagwise.core.models import Structure, VariogramModel
+from lagwise.core.modelling.models import Structure, VariogramModel
 
 from tests.reference.simulate import isotropic, simulate
 

@@ -6,7 +6,7 @@ import hashlib
 
 import numpy as np
 import pytest
-from lagwise.core.statistics import STATISTICS
+from lagwise.core.variography.statistics import STATISTICS
 
 from tests.conftest import random_columns
 

@@ -85,7 +85,7 @@ def test_transport_error_after_retries():
 
 
 def test_fit_model_and_local_evaluation(lw):
-    from lagwise.core.models import Structure, VariogramModel
+    from lagwise.core.modelling.models import Structure, VariogramModel
 
     from tests.reference.simulate import isotropic, simulate
 

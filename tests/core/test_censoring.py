@@ -1,11 +1,11 @@
-"""Unit tests of lagwise.core.censoring through build_sample_set."""
+"""Unit tests of lagwise.core.data.censoring through build_sample_set."""
 
 from __future__ import annotations
 
 import numpy as np
 import pytest
+from lagwise.core.data.samples import build_sample_set
 from lagwise.core.errors import InvalidInput
-from lagwise.core.samples import build_sample_set
 
 X = [0.0, 1.0, 2.0, 3.0]
 

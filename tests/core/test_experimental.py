@@ -1,4 +1,4 @@
-"""Unit tests of lagwise.core.experimental, maps, summary and limits."""
+"""Unit tests of lagwise.core.variography.experimental, maps, summary and limits."""
 
 from __future__ import annotations
 
@@ -7,13 +7,13 @@ import sys
 
 import numpy as np
 import pytest
+from lagwise.core.data.samples import build_sample_set
+from lagwise.core.data.summary import largest_separation, summarise
 from lagwise.core.errors import InvalidInput, LimitExceeded
-from lagwise.core.experimental import ScatterRequest, experimental_variogram
-from lagwise.core.lags import LagRequest
 from lagwise.core.limits import Limits
-from lagwise.core.maps import variogram_map
-from lagwise.core.samples import build_sample_set
-from lagwise.core.summary import largest_separation, summarise
+from lagwise.core.variography.experimental import ScatterRequest, experimental_variogram
+from lagwise.core.variography.lags import LagRequest
+from lagwise.core.variography.maps import variogram_map
 from scipy.spatial.distance import pdist
 
 
@@ -101,7 +101,7 @@ def test_map_needs_two_dimensions():
 
 def test_core_does_not_import_web_framework():
     """House style: lagwise.core imports no web framework (checked in a fresh process)."""
-    code = "import sys, lagwise.core.experimental, lagwise.core.maps, lagwise.core.warmup; print('flask' in sys.modules, 'marshmallow' in sys.modules)"
+    code = "import sys, lagwise.core.variography.experimental, lagwise.core.variography.maps, lagwise.core.warmup; print('flask' in sys.modules, 'marshmallow' in sys.modules)"
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True).stdout
     assert out.split() == ["False", "False"]
 

@@ -1,17 +1,17 @@
-"""Unit tests of lagwise.core.kriging, neighbourhood, validation and prediction: options and refusals."""
+"""Unit tests of lagwise.core.kriging.systems, neighbourhood, validation and prediction: options and refusals."""
 
 from __future__ import annotations
 
 import numpy as np
 import pytest
+from lagwise.core.data.samples import build_sample_set
 from lagwise.core.errors import InvalidInput, LimitExceeded
-from lagwise.core.kriging import Kriger, KrigingSpec
+from lagwise.core.kriging.cross_validation import Scheme, cross_validate
+from lagwise.core.kriging.neighbourhood import Neighbourhood, NeighbourSearch
+from lagwise.core.kriging.prediction import Grid, predict
+from lagwise.core.kriging.systems import Kriger, KrigingSpec
 from lagwise.core.limits import Limits
-from lagwise.core.models import Anisotropy, Structure, VariogramModel
-from lagwise.core.neighbourhood import Neighbourhood, NeighbourSearch
-from lagwise.core.prediction import Grid, predict
-from lagwise.core.samples import build_sample_set
-from lagwise.core.validation import Scheme, cross_validate
+from lagwise.core.modelling.models import Anisotropy, Structure, VariogramModel
 
 MODEL = VariogramModel(0.1, (Structure("spherical", 1.0, 40.0),))
 

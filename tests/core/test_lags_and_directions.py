@@ -1,14 +1,14 @@
-"""Unit tests of distance classes (lagwise.core.lags) and direction classes (lagwise.core.directions)."""
+"""Unit tests of distance classes (lagwise.core.variography.lags) and direction classes (lagwise.core.variography.directions)."""
 
 from __future__ import annotations
 
 import numpy as np
 import pytest
-from lagwise.core.directions import DirectionClass, validate_direction
+from lagwise.core.data.samples import build_sample_set
 from lagwise.core.errors import InvalidInput
-from lagwise.core.experimental import experimental_variogram
-from lagwise.core.lags import AUTO_MAX_CLASSES, LagRequest, auto_edges, validate_lags
-from lagwise.core.samples import build_sample_set
+from lagwise.core.variography.directions import DirectionClass, validate_direction
+from lagwise.core.variography.experimental import experimental_variogram
+from lagwise.core.variography.lags import AUTO_MAX_CLASSES, LagRequest, auto_edges, validate_lags
 
 
 def test_width_count_edges():

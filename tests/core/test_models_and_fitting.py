@@ -1,12 +1,12 @@
-"""Unit tests of lagwise.core.models and lagwise.core.fitting: validation and edge cases."""
+"""Unit tests of lagwise.core.modelling.models and lagwise.core.modelling.fitting: validation and edge cases."""
 
 from __future__ import annotations
 
 import numpy as np
 import pytest
 from lagwise.core.errors import InvalidInput
-from lagwise.core.fitting import ExperimentalPoints, fit_model
-from lagwise.core.models import Anisotropy, Structure, VariogramModel, family_catalogue, validate_model
+from lagwise.core.modelling.fitting import ExperimentalPoints, fit_model
+from lagwise.core.modelling.models import Anisotropy, Structure, VariogramModel, family_catalogue, validate_model
 
 
 def _points(values, pairs=100, h=None):

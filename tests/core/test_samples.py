@@ -1,4 +1,4 @@
-"""Unit tests of lagwise.core.samples: validation, duplicates, hashing."""
+"""Unit tests of lagwise.core.data.samples: validation, duplicates, hashing."""
 
 from __future__ import annotations
 
@@ -6,8 +6,8 @@ import hashlib
 
 import numpy as np
 import pytest
+from lagwise.core.data.samples import build_sample_set
 from lagwise.core.errors import InvalidInput
-from lagwise.core.samples import build_sample_set
 
 
 def pointers(exc: InvalidInput) -> list[str]:

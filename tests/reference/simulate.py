@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 import numpy as np
-from lagwise.core.models import Anisotropy, Structure, VariogramModel
+from lagwise.core.modelling.models import Anisotropy, Structure, VariogramModel
 from scipy.linalg import cholesky
 from scipy.spatial.distance import cdist
 

@@ -9,11 +9,11 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-from lagwise.core.directions import DirectionClass
-from lagwise.core.experimental import experimental_variogram
-from lagwise.core.lags import LagRequest
-from lagwise.core.samples import build_sample_set
-from lagwise.core.statistics import STATISTICS
+from lagwise.core.data.samples import build_sample_set
+from lagwise.core.variography.directions import DirectionClass
+from lagwise.core.variography.experimental import experimental_variogram
+from lagwise.core.variography.lags import LagRequest
+from lagwise.core.variography.statistics import STATISTICS
 
 from .brute import class_statistics, members, pair_table
 

@@ -7,12 +7,12 @@ import math
 
 import numpy as np
 import pytest
-from lagwise.core.directions import DirectionClass
-from lagwise.core.fitting import ExperimentalPoints, fit_model
-from lagwise.core.lags import LagRequest
-from lagwise.core.modelling import fit_samples
-from lagwise.core.models import Anisotropy, Structure, VariogramModel
-from lagwise.core.samples import build_sample_set
+from lagwise.core.data.samples import build_sample_set
+from lagwise.core.modelling.fitting import ExperimentalPoints, fit_model
+from lagwise.core.modelling.from_samples import fit_samples
+from lagwise.core.modelling.models import Anisotropy, Structure, VariogramModel
+from lagwise.core.variography.directions import DirectionClass
+from lagwise.core.variography.lags import LagRequest
 
 from .simulate import anisotropic, isotropic, simulate
 

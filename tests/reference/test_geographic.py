@@ -10,7 +10,7 @@ import math
 
 import numpy as np
 import pytest
-from lagwise.core.samples import build_sample_set
+from lagwise.core.data.samples import build_sample_set
 from scipy.spatial.distance import pdist
 
 R = 6_371_008.8

@@ -11,10 +11,10 @@ import numpy as np
 import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
-from lagwise.core.directions import DirectionClass
-from lagwise.core.experimental import experimental_variogram
-from lagwise.core.lags import LagRequest
-from lagwise.core.samples import build_sample_set
+from lagwise.core.data.samples import build_sample_set
+from lagwise.core.variography.directions import DirectionClass
+from lagwise.core.variography.experimental import experimental_variogram
+from lagwise.core.variography.lags import LagRequest
 
 LAGS = LagRequest(edges=(0.0, 7.0, 15.0, 30.0, 45.0))
 DIRECTIONS = [DirectionClass(0.0, 90.0), DirectionClass(40.0, 30.0, 12.0)]

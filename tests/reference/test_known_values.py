@@ -4,9 +4,9 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-from lagwise.core.experimental import experimental_variogram
-from lagwise.core.lags import LagRequest
-from lagwise.core.samples import build_sample_set
+from lagwise.core.data.samples import build_sample_set
+from lagwise.core.variography.experimental import experimental_variogram
+from lagwise.core.variography.lags import LagRequest
 
 
 def _transect(values):

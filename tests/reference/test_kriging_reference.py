@@ -17,11 +17,11 @@ import math
 
 import numpy as np
 import pytest
-from lagwise.core.kriging import Kriger, KrigingSpec
-from lagwise.core.models import Structure, VariogramModel, matern_practical_factor
-from lagwise.core.neighbourhood import Neighbourhood
-from lagwise.core.samples import build_sample_set
-from lagwise.core.validation import Scheme, cross_validate, summarise
+from lagwise.core.data.samples import build_sample_set
+from lagwise.core.kriging.cross_validation import Scheme, cross_validate, summarise
+from lagwise.core.kriging.neighbourhood import Neighbourhood
+from lagwise.core.kriging.systems import Kriger, KrigingSpec
+from lagwise.core.modelling.models import Structure, VariogramModel, matern_practical_factor
 from sklearn.gaussian_process import GaussianProcessRegressor
 from sklearn.gaussian_process.kernels import ConstantKernel, Matern
 

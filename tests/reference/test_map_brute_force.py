@@ -4,8 +4,8 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-from lagwise.core.maps import variogram_map
-from lagwise.core.samples import build_sample_set
+from lagwise.core.data.samples import build_sample_set
+from lagwise.core.variography.maps import variogram_map
 
 
 @pytest.mark.parametrize("statistic", ["semivariance", "madogram", "covariance", "semivariance_median"])

@@ -7,7 +7,7 @@ import math
 import numpy as np
 import pytest
 from lagwise.core.errors import InvalidInput
-from lagwise.core.models import (
+from lagwise.core.modelling.models import (
     BOUNDED_FAMILIES,
     Structure,
     VariogramModel,

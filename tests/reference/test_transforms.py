@@ -7,8 +7,8 @@ import math
 
 import numpy as np
 import pytest
+from lagwise.core.data.transforms import fit_transform
 from lagwise.core.errors import InvalidInput
-from lagwise.core.transforms import fit_transform
 from scipy import stats
 
 

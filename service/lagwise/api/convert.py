@@ -8,17 +8,17 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..core.analysis import AnalysisOptions
-from ..core.directions import DirectionClass
+from ..core.data.samples import SampleSet, build_sample_set, columnar_pointer, input_hash
 from ..core.errors import FieldIssue, InvalidInput
-from ..core.experimental import ScatterRequest
-from ..core.fitting import SEMIVARIANCE_STATISTICS, points_from_rows
-from ..core.kriging import KrigingSpec
-from ..core.lags import LagRequest
-from ..core.models import FAMILIES, Anisotropy, Structure, VariogramModel
-from ..core.neighbourhood import Neighbourhood
-from ..core.prediction import Grid
-from ..core.samples import SampleSet, build_sample_set, columnar_pointer, input_hash
-from ..core.validation import Scheme
+from ..core.kriging.cross_validation import Scheme
+from ..core.kriging.neighbourhood import Neighbourhood
+from ..core.kriging.prediction import Grid
+from ..core.kriging.systems import KrigingSpec
+from ..core.modelling.fitting import SEMIVARIANCE_STATISTICS, points_from_rows
+from ..core.modelling.models import FAMILIES, Anisotropy, Structure, VariogramModel
+from ..core.variography.directions import DirectionClass
+from ..core.variography.experimental import ScatterRequest
+from ..core.variography.lags import LagRequest
 
 FEATURES = "/samples/geojson/features"
 

@@ -14,19 +14,19 @@ from flask import Blueprint, Response, current_app, g, request
 from .. import __version__
 from ..core.analysis import analyse
 from ..core.deadline import deadline
-from ..core.experimental import experimental_variogram
-from ..core.fitting import fit_model
-from ..core.maps import variogram_map
-from ..core.modelling import fit_samples
-from ..core.models import family_catalogue
-from ..core.prediction import predict
-from ..core.validation import cross_validate
+from ..core.kriging.cross_validation import cross_validate
+from ..core.kriging.prediction import predict
+from ..core.modelling.fitting import fit_model
+from ..core.modelling.from_samples import fit_samples
+from ..core.modelling.models import family_catalogue
+from ..core.variography.experimental import experimental_variogram
+from ..core.variography.maps import variogram_map
 from . import convert, serialize
+from .body import load_json
 from .figure_set import render
 from .jsonio import dumps
 from .observability import count_work
 from .problems import KINDS, Problem
-from .requests import load_json
 from .schemas import (
     AnalysisRequest,
     AnalysisResponse,

@@ -8,13 +8,13 @@ from __future__ import annotations
 
 from marshmallow import EXCLUDE, Schema, ValidationError, fields, validate, validates_schema
 
-from ..core.censoring import CENSORING_POLICIES
-from ..core.fitting import SEMIVARIANCE_STATISTICS, WEIGHTINGS
-from ..core.kriging import DRIFTS, KRIGING_TYPES, NUGGET_ROLES
-from ..core.lags import AUTO_METHODS, MAX_CLASSES
-from ..core.samples import COORDINATE_SYSTEMS, DUPLICATE_POLICIES
-from ..core.statistics import STATISTICS
-from ..core.transforms import TRANSFORMS
+from ..core.data.censoring import CENSORING_POLICIES
+from ..core.data.samples import COORDINATE_SYSTEMS, DUPLICATE_POLICIES
+from ..core.data.transforms import TRANSFORMS
+from ..core.kriging.systems import DRIFTS, KRIGING_TYPES, NUGGET_ROLES
+from ..core.modelling.fitting import SEMIVARIANCE_STATISTICS, WEIGHTINGS
+from ..core.variography.lags import AUTO_METHODS, MAX_CLASSES
+from ..core.variography.statistics import STATISTICS
 from ..figures import FIGURES, FORMATS
 from .fields import AutoOrList, DirectionsOption, NuggetOption, NumberArray
 

@@ -2,9 +2,9 @@
 
 from __future__ import annotations
 
-from ..core.experimental import ExperimentalVariogram
-from ..core.maps import VariogramMap
-from ..core.samples import SampleSet
+from ..core.data.samples import SampleSet
+from ..core.variography.experimental import ExperimentalVariogram
+from ..core.variography.maps import VariogramMap
 
 ANGLES = "degrees; azimuth clockwise from north (+y), folded into [0, 180); dip below horizontal"
 CLASSES = "half-open [lower, upper); divisors N"
@@ -137,7 +137,7 @@ def _candidate(rank: int, c) -> dict:
 
 def model_fit(fit, statistic: str, *, summary: dict | None, sample_params: dict | None, options: dict) -> dict:
     """Response body of ``POST /v1/model-fits`` (without provenance)."""
-    from ..core.fitting import fitted_values
+    from ..core.modelling.fitting import fitted_values
 
     best = fit.best
     points = fit.points

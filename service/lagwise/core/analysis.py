@@ -4,7 +4,7 @@ cross-validation and optional predictions, with warnings and a plain-language ve
 Every stage calls the same core functions as the separate endpoints, so its numbers
 are theirs for the same inputs. Variograms, fits and cross-validation run on the
 transformed values (reported in those units); predictions are back-transformed to the
-original units (see :mod:`lagwise.core.transforms`).
+original units (see :mod:`lagwise.core.data.transforms`).
 """
 
 from __future__ import annotations
@@ -13,20 +13,20 @@ from dataclasses import dataclass, field, replace
 
 import numpy as np
 
-from .directions import DirectionClass
+from .data.samples import SampleSet
+from .data.summary import Summary, summarise
+from .data.transforms import Transform, fit_transform
 from .errors import InvalidInput
-from .experimental import ExperimentalVariogram, experimental_variogram
-from .fitting import FitResult, fit_model, points_from_experimental
-from .kriging import KrigingSpec
-from .lags import LagRequest
+from .kriging.cross_validation import CrossValidation, Scheme, cross_validate
+from .kriging.neighbourhood import Neighbourhood
+from .kriging.prediction import Grid, PredictionResult, predict
+from .kriging.systems import KrigingSpec
 from .limits import Limits
-from .maps import VariogramMap, variogram_map
-from .neighbourhood import Neighbourhood
-from .prediction import Grid, PredictionResult, predict
-from .samples import SampleSet
-from .summary import Summary, summarise
-from .transforms import Transform, fit_transform
-from .validation import CrossValidation, Scheme, cross_validate
+from .modelling.fitting import FitResult, fit_model, points_from_experimental
+from .variography.directions import DirectionClass
+from .variography.experimental import ExperimentalVariogram, experimental_variogram
+from .variography.lags import LagRequest
+from .variography.maps import VariogramMap, variogram_map
 
 AUTO_FAN = tuple(DirectionClass(a, 15.0) for a in (0.0, 30.0, 60.0, 90.0, 120.0, 150.0))
 FEW_SAMPLES = 50

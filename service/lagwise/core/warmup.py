@@ -9,12 +9,12 @@ from __future__ import annotations
 
 import numpy as np
 
-from .directions import DirectionClass
-from .experimental import ScatterRequest, experimental_variogram
-from .lags import LagRequest
-from .maps import variogram_map
-from .samples import build_sample_set
-from .statistics import STATISTICS
+from .data.samples import build_sample_set
+from .variography.directions import DirectionClass
+from .variography.experimental import ScatterRequest, experimental_variogram
+from .variography.lags import LagRequest
+from .variography.maps import variogram_map
+from .variography.statistics import STATISTICS
 
 _warm = False
 
@@ -41,7 +41,7 @@ def warm_kernels() -> None:
 
 def compile_kernels() -> None:
     """Compile every kernel for the argument types the engine uses, without running it."""
-    from . import kernels as K
+    from .variography import kernels as K
 
     f8, i8 = "float64", "int64"
     a1, a2 = f"{f8}[::1]", f"{f8}[:, ::1]"

@@ -15,13 +15,13 @@ from dataclasses import dataclass, field
 import numba
 import numpy as np
 
+from ..data.samples import SampleSet
+from ..data.summary import Summary, summarise
+from ..errors import FieldIssue, InvalidInput
+from ..limits import Limits
 from . import kernels as K
-from .errors import FieldIssue, InvalidInput
-from .limits import Limits
 from .pairs import estimate_pairs_within, prepare
-from .samples import SampleSet
 from .statistics import ACCUMULATION_MODE, STATISTICS, class_value
-from .summary import Summary, summarise
 
 
 @dataclass(frozen=True)
@@ -89,7 +89,7 @@ def variogram_map(
     cells : int
         Cells on each side of the origin (the map has 2 * cells + 1 per side).
     statistic : str
-        One of :data:`lagwise.core.statistics.STATISTICS`.
+        One of :data:`lagwise.core.variography.statistics.STATISTICS`.
     limits : Limits
         Cost limits, checked before the pair passes.
     """

@@ -29,11 +29,11 @@ import numpy as np
 from scipy.linalg import LinAlgError, lu_factor, lu_solve
 from scipy.spatial.distance import cdist
 
-from .deadline import check_deadline
-from .errors import FieldIssue, InvalidInput, LimitExceeded
-from .models import VariogramModel, unit_semivariance, validate_model
+from ..data.samples import SampleSet
+from ..deadline import check_deadline
+from ..errors import FieldIssue, InvalidInput, LimitExceeded
+from ..modelling.models import VariogramModel, unit_semivariance, validate_model
 from .neighbourhood import NO_NEIGHBOURS, Neighbourhood, NeighbourSearch, to_search_space, validate_neighbourhood
-from .samples import SampleSet
 
 KRIGING_TYPES = ("ordinary", "simple", "universal")
 DRIFTS = ("linear", "quadratic")
@@ -376,7 +376,7 @@ class Kriger:
         if self.neighbourhood.unique:
             if exclude is not None:
                 raise ValueError(
-                    "leaving samples out of the unique neighbourhood uses the closed form (lagwise.core.validation)"
+                    "leaving samples out of the unique neighbourhood uses the closed form (lagwise.core.kriging.cross_validation)"
                 )
             return self._predict_unique(targets, want)
         return self._predict_moving(targets, want, exclude, workers)

@@ -12,7 +12,7 @@ from collections.abc import Callable
 
 import numpy as np
 
-from .errors import FieldIssue, InvalidInput
+from ..errors import FieldIssue, InvalidInput
 
 CENSORING_POLICIES = ("half_limit", "limit", "zero", "reject")
 _FACTOR = {"half_limit": 0.5, "limit": 1.0, "zero": 0.0}

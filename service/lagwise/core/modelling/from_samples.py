@@ -4,13 +4,13 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-from .directions import DirectionClass
-from .errors import InvalidInput
-from .experimental import ExperimentalVariogram, experimental_variogram
+from ..data.samples import SampleSet
+from ..errors import InvalidInput
+from ..limits import Limits
+from ..variography.directions import DirectionClass
+from ..variography.experimental import ExperimentalVariogram, experimental_variogram
+from ..variography.lags import LagRequest
 from .fitting import SEMIVARIANCE_STATISTICS, FitResult, fit_model, points_from_experimental
-from .lags import LagRequest
-from .limits import Limits
-from .samples import SampleSet
 
 
 @dataclass(frozen=True)
@@ -33,7 +33,7 @@ def fit_samples(
 ) -> SampleFit:
     """Compute the experimental variogram of ``samples`` and fit models to it.
 
-    ``fit_options`` are those of :func:`lagwise.core.fitting.fit_model`
+    ``fit_options`` are those of :func:`lagwise.core.modelling.fitting.fit_model`
     (families, nugget, weighting, anisotropy, structures).
     """
     if statistic not in SEMIVARIANCE_STATISTICS:

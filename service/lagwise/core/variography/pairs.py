@@ -74,7 +74,7 @@ class ClassLayout:
     inv_width : ndarray, shape (ndir,)
         1 / width for equal-width classes, 0 for irregular edges.
     table : ndarray
-        Direction parameters (:func:`lagwise.core.directions.direction_table`).
+        Direction parameters (:func:`lagwise.core.variography.directions.direction_table`).
     padded : ndarray, shape (ndir, kmax + 3)
         ``[-inf, edges..., +inf...]`` per direction, for the fast kernel.
     lookup : ndarray of int64, shape (ndir, cells + 1)
@@ -182,7 +182,7 @@ _NONE_I = np.zeros(0, dtype=np.int64)
 
 
 def _collect(prepared, classes, offsets, ends, out_abs, target, stride, tail, head) -> int:
-    """One serial pass of :func:`lagwise.core.kernels.collect_pairs` over the layout's classes."""
+    """One serial pass of :func:`lagwise.core.variography.kernels.collect_pairs` over the layout's classes."""
     radius = classes.search_radius
     return K.collect_pairs(
         prepared.points,

@@ -23,13 +23,13 @@ import numpy as np
 from scipy.linalg import LinAlgError, cho_factor, cho_solve, inv
 from scipy.linalg.lapack import dtrtri
 
-from .deadline import check_deadline
-from .errors import InvalidInput
-from .kriging import Kriger, KrigingSpec
-from .limits import Limits
-from .models import VariogramModel
+from ..data.samples import SampleSet
+from ..deadline import check_deadline
+from ..errors import InvalidInput
+from ..limits import Limits
+from ..modelling.models import VariogramModel
 from .neighbourhood import Neighbourhood
-from .samples import SampleSet
+from .systems import Kriger, KrigingSpec
 
 Z95 = 1.959963984540054  # scipy.stats.norm.ppf(0.975)
 DEFAULT_OUTLIER_THRESHOLD = 2.5

@@ -18,8 +18,8 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.spatial import cKDTree
 
-from .errors import FieldIssue, InvalidInput
-from .models import Anisotropy, VariogramModel
+from ..errors import FieldIssue, InvalidInput
+from ..modelling.models import Anisotropy, VariogramModel
 
 NO_NEIGHBOURS = "fewer than min_points samples within the search radius"
 

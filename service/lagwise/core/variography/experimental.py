@@ -6,12 +6,14 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from ..data.samples import SampleSet
+from ..data.summary import Summary, summarise
+from ..deadline import check_deadline
+from ..errors import FieldIssue, InvalidInput
+from ..limits import Limits
 from . import kernels as K
-from .deadline import check_deadline
 from .directions import OMNIDIRECTIONAL, DirectionClass, validate_direction
-from .errors import FieldIssue, InvalidInput
 from .lags import AUTO_FINE_BINS, LagRequest, auto_edges, validate_lags
-from .limits import Limits
 from .pairs import (
     PreparedSamples,
     absolute_differences,
@@ -21,9 +23,7 @@ from .pairs import (
     prepare,
     scatter_pairs,
 )
-from .samples import SampleSet
 from .statistics import ACCUMULATION_MODE, COVARIANCE_TYPE, STATISTICS, class_value
-from .summary import Summary, summarise
 
 DEFAULT_MIN_PAIRS = 30
 DEFAULT_SCATTER_LIMIT = 2000
@@ -198,11 +198,11 @@ def experimental_variogram(
     samples : SampleSet
         Validated samples.
     lags : LagRequest
-        Distance classes (see :mod:`lagwise.core.lags`); default ``auto`` equal width.
+        Distance classes (see :mod:`lagwise.core.variography.lags`); default ``auto`` equal width.
     directions : list of DirectionClass, optional
         Direction classes; default one omnidirectional class.
     statistic : str
-        One of :data:`lagwise.core.statistics.STATISTICS`.
+        One of :data:`lagwise.core.variography.statistics.STATISTICS`.
     min_pairs : int
         Classes with fewer pairs are flagged ``sparse`` (default 30, common practice).
     pairs_for_class : ScatterRequest, optional

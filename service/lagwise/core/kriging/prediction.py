@@ -7,12 +7,12 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .errors import FieldIssue, InvalidInput, LimitExceeded
-from .kriging import Kriger, KrigingSpec, Prediction
-from .limits import Limits
-from .models import VariogramModel
+from ..data.samples import SampleSet
+from ..errors import FieldIssue, InvalidInput, LimitExceeded
+from ..limits import Limits
+from ..modelling.models import VariogramModel
 from .neighbourhood import Neighbourhood
-from .samples import SampleSet
+from .systems import Kriger, KrigingSpec, Prediction
 
 MAX_WEIGHT_TARGETS = 20
 

@@ -27,7 +27,7 @@ import numpy as np
 from scipy.special import ndtri
 from scipy.stats import rankdata
 
-from .errors import FieldIssue, InvalidInput
+from ..errors import FieldIssue, InvalidInput
 
 TRANSFORMS = ("none", "log", "normal_score")
 _QUANTILES = ndtri((np.arange(100) + 0.5) / 100)

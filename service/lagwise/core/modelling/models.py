@@ -32,7 +32,7 @@ from scipy.optimize import brentq
 from scipy.special import gamma as gamma_function
 from scipy.special import kv
 
-from .errors import FieldIssue, InvalidInput
+from ..errors import FieldIssue, InvalidInput
 
 PRACTICAL = 0.95
 

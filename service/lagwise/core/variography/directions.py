@@ -24,7 +24,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .errors import FieldIssue, InvalidInput
+from ..errors import FieldIssue, InvalidInput
 
 # Columns of the per-direction parameter table handed to the pair kernels.
 UX, UY, COS_TOL, BAND2, HAS_DIP, DIP, DIP_TOL, WX, WY, WZ, VBAND2, COS2_TOL = range(12)

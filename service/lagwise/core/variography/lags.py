@@ -22,7 +22,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .errors import FieldIssue, InvalidInput
+from ..errors import FieldIssue, InvalidInput
 
 AUTO_METHODS = ("equal_width", "equal_pairs")
 AUTO_MAX_CLASSES = 15

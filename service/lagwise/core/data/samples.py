@@ -6,7 +6,7 @@ Conventions
   unit as x and y) makes it 3-D and needs ``y``.
 * ``coordinates="planar"``: any consistent length unit. ``"geographic"``: x is
   longitude and y latitude in WGS84 degrees; they are projected to metres about
-  the data centroid (see :mod:`lagwise.core.geographic`); z stays in metres.
+  the data centroid (see :mod:`lagwise.core.data.geographic`); z stays in metres.
 * Samples at the same location are duplicates: ``"average"`` (default) keeps one
   sample with the mean value, ``"first"`` keeps the first, ``"reject"`` refuses.
 """
@@ -19,8 +19,8 @@ from dataclasses import dataclass, field, replace
 
 import numpy as np
 
+from ..errors import FieldIssue, InvalidInput
 from .censoring import substitute
-from .errors import FieldIssue, InvalidInput
 from .geographic import ACCURATE_SPAN_M, LocalProjection, centroid
 
 COORDINATE_SYSTEMS = ("planar", "geographic")
@@ -222,7 +222,7 @@ def build_sample_set(
         Maps (field, index) to the JSON Pointer used in error messages, so that
         errors point into the caller's own input layout (columnar or GeoJSON).
     censored, detection_limits, censoring
-        Values below a detection limit (see :mod:`lagwise.core.censoring`); the input
+        Values below a detection limit (see :mod:`lagwise.core.data.censoring`); the input
         hash covers the values after substitution.
 
     Raises

@@ -31,8 +31,8 @@ from dataclasses import dataclass, field
 import numpy as np
 from scipy.optimize import least_squares
 
-from .deadline import check_deadline
-from .errors import FieldIssue, InvalidInput
+from ..deadline import check_deadline
+from ..errors import FieldIssue, InvalidInput
 from .models import BOUNDED_FAMILIES, FAMILIES, Anisotropy, Structure, VariogramModel
 
 WEIGHTINGS = ("pairs", "pairs_over_distance", "cressie", "uniform")
@@ -498,7 +498,7 @@ def fit_model(
 
 
 def points_from_experimental(result, min_pairs: int) -> ExperimentalPoints:
-    """Flatten an :class:`~lagwise.core.experimental.ExperimentalVariogram` into fit points."""
+    """Flatten an :class:`~lagwise.core.variography.experimental.ExperimentalVariogram` into fit points."""
     rows = [
         (d.direction.azimuth, k, c, row) for k, d in enumerate(result.directions) for c, row in enumerate(d.classes)
     ]

@@ -79,7 +79,7 @@ def class_value(statistic: str, row: np.ndarray, mean: float, scale: float, medi
     Parameters
     ----------
     row : ndarray, shape (ACCUMULATORS,)
-        Sums over the class's pairs of centred values (see :mod:`lagwise.core.kernels`).
+        Sums over the class's pairs of centred values (see :mod:`lagwise.core.variography.kernels`).
     mean : float
         The value the tail and head values were centred on.
     scale : float

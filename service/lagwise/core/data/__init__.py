@@ -1,0 +1,1 @@
+"""Sample data: validated sample sets, censored values, geographic coordinates, transforms, summaries."""

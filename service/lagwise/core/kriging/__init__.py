@@ -1,0 +1,1 @@
+"""Kriging: systems, neighbourhood search, cross-validation and predictions."""

@@ -1,0 +1,1 @@
+"""Variogram models: families, nested and anisotropic structures, fitting."""
