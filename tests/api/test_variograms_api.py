@@ -104,6 +104,34 @@ def test_map_round_trip(client, rng):
     assert all(pairs[r][c] == pairs[6 - r][6 - c] for r in range(7) for c in range(7))
 
 
+def test_map_from_samples_alone_follows_the_class_rule(client):
+    """Omitted cell size and count: typical spacing (median nearest neighbour, scipy cKDTree) and half the extent."""
+    from scipy.spatial import cKDTree
+    from scipy.spatial.distance import pdist
+
+    gx, gy = np.meshgrid(np.arange(20) * 15.0, np.arange(12) * 15.0)
+    x, y = gx.ravel(), gy.ravel()
+    values = np.sin(x / 40.0) + np.cos(y / 25.0)
+    r = client.post(
+        "/v1/variogram-maps", json={"samples": {"x": x.tolist(), "y": y.tolist(), "values": values.tolist()}}
+    )
+    assert r.status_code == 200, r.json
+    parameters = r.json["parameters"]
+    coords = np.column_stack([x, y])
+    spacing = float(np.median(cKDTree(coords).query(coords, k=2)[0][:, 1]))
+    assert parameters["typical_spacing"] == pytest.approx(spacing) == pytest.approx(15.0)
+    # 240 samples over a 285 x 165 hull: sqrt(30 * area) / n is about 1.0 m, below the spacing.
+    assert parameters["cell_size"] == pytest.approx(15.0)
+    reach = pdist(coords).max() / 2
+    assert parameters["cells"] == round(reach / 15.0 - 0.5)
+    assert len(r.json["hx"]) == 2 * parameters["cells"] + 1
+    sized = client.post(
+        "/v1/variogram-maps",
+        json={"samples": {"x": x.tolist(), "y": y.tolist(), "values": values.tolist()}, "cells": 5},
+    ).json["parameters"]
+    assert sized["cells"] == 5 and sized["cell_size"] == pytest.approx(reach / 5.5)
+
+
 def test_null_with_reason_never_nan(client):
     body = {
         "samples": {"x": [0, 1, 2, 3], "y": [0, 0, 1, 1], "values": [2, 2, 2, 2]},

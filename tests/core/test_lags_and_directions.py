@@ -5,10 +5,18 @@ from __future__ import annotations
 import numpy as np
 import pytest
 from lagwise.core.data.samples import build_sample_set
+from lagwise.core.data.spacing import typical_spacing
 from lagwise.core.errors import InvalidInput
 from lagwise.core.variography.directions import DirectionClass, validate_direction
 from lagwise.core.variography.experimental import experimental_variogram
-from lagwise.core.variography.lags import AUTO_MAX_CLASSES, LagRequest, auto_edges, validate_lags
+from lagwise.core.variography.lags import (
+    LagRequest,
+    merge_sparse,
+    quantile_edges,
+    spacing_edges,
+    validate_lags,
+)
+from scipy.spatial.distance import pdist, squareform
 
 
 def test_width_count_edges():
@@ -35,19 +43,64 @@ def test_bad_lags(request_, pointer):
     assert info.value.issues[0].pointer == pointer
 
 
-def test_auto_equal_width_meets_min_pairs():
-    fine = np.full(300, 10.0)  # 3000 pairs spread evenly
-    edges = auto_edges("equal_width", 150.0, fine, 30)
-    assert len(edges) - 1 == AUTO_MAX_CLASSES
-    sparse = np.zeros(300)
-    sparse[:5] = 10.0  # 50 pairs, all at short distances
-    edges = auto_edges("equal_width", 150.0, sparse, 30)
-    assert len(edges) == 2
+def test_spacing_edges_centre_classes_on_multiples_of_the_width():
+    """Edges 0, w/2, 3w/2, ...; a last part shorter than w/2 joins its neighbour (hand-computed)."""
+    assert spacing_edges(100.0, 20.0).tolist() == [0.0, 10.0, 30.0, 50.0, 70.0, 90.0, 100.0]
+    assert spacing_edges(95.0, 20.0).tolist() == [0.0, 10.0, 30.0, 50.0, 70.0, 95.0]
+    assert spacing_edges(8.0, 20.0).tolist() == [0.0, 8.0]
+
+
+def test_merge_sparse_keeps_min_pairs():
+    """Sparse classes join the next; a sparse last class joins the one before (hand-computed)."""
+    edges = np.array([0.0, 10.0, 30.0, 50.0, 70.0, 100.0])
+    assert merge_sparse(edges, np.array([0, 40, 10, 25, 12]), 30).tolist() == [0.0, 30.0, 100.0]
+    assert merge_sparse(edges, np.array([35, 40, 50, 60, 70]), 30).tolist() == edges.tolist()
+    assert merge_sparse(edges, np.array([1, 2, 3, 4, 5]), 30).tolist() == [0.0, 100.0]
+
+
+def test_typical_spacing_is_the_median_nearest_neighbour_distance():
+    """Median nearest-neighbour distance against a brute-force scipy.spatial.distance.pdist matrix."""
+    rng = np.random.default_rng(4)
+    coords = rng.uniform(0, 100, (200, 2))
+    d = squareform(pdist(coords))
+    np.fill_diagonal(d, np.inf)
+    assert typical_spacing(coords) == pytest.approx(np.median(d.min(axis=1)))
+    doubled = np.vstack([coords, coords[:10]])  # co-located copies look further for a distinct neighbour
+    assert typical_spacing(doubled) > 0
+
+
+def test_default_classes_see_a_60_m_structure_on_a_20_m_design():
+    """On a 20 m grid a spherical structure of range 60 m (Cholesky simulation, scipy) shows in the classes.
+
+    The first class must end below 60 m and the semivariance must rise through the
+    classes below 60 m and level off beyond (spherical model: gamma(h) = sill at h >= range).
+    """
+    from tests.reference.simulate import isotropic, simulate
+
+    gx, gy = np.meshgrid(np.arange(24) * 20.0, np.arange(24) * 20.0)
+    coords = np.column_stack([gx.ravel(), gy.ravel()])
+    model = isotropic("spherical", 1.0, 60.0, nugget=0.05)
+    rng = np.random.default_rng(11)
+    short, long = [], []
+    for _ in range(4):
+        values = simulate(model, coords, rng)
+        result = experimental_variogram(build_sample_set(values, coords[:, 0], coords[:, 1]))
+        classes = result.directions[0].classes
+        assert result.spacing == pytest.approx(20.0)
+        assert classes[0].upper < 60.0
+        assert all(row.pairs >= 30 for row in classes)
+        below = [row for row in classes if row.upper <= 60.0]
+        assert len(below) >= 2
+        short.append(below[0].value / result.summary.variance)
+        long.append(np.mean([row.value for row in classes if row.lower >= 90.0]) / result.summary.variance)
+    # Model: gamma(20 m .. 28 m) / sill is about 0.5; beyond the range it is 1.
+    assert np.mean(short) < 0.7
+    assert np.mean(long) > 0.85
 
 
 def test_auto_equal_pairs_balances_counts():
     fine = np.linspace(1, 50, 300)  # more pairs at long distances
-    edges = auto_edges("equal_pairs", 300.0, fine, 30)
+    edges = quantile_edges(300.0, fine, 30)
     cumulative = np.concatenate([[0], np.cumsum(fine)])
     per_class = np.diff(np.interp(edges, np.linspace(0, 300, 301), cumulative))
     assert per_class.max() / per_class.min() < 1.05

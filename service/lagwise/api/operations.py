@@ -135,9 +135,10 @@ def variogram_maps():
     samples = convert.sample_set(document)
     result = variogram_map(
         samples,
-        cell_size=document["cell_size"],
-        cells=document["cells"],
+        cell_size=document.get("cell_size"),
+        cells=document.get("cells"),
         statistic=document["statistic"],
+        min_pairs=document["min_pairs"],
         limits=settings().limits,
     )
     return with_provenance(

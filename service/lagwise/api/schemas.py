@@ -133,9 +133,28 @@ class ExperimentalRequest(SampleOptions):
 class MapRequest(SampleOptions):
     """POST /v1/variogram-maps."""
 
-    cell_size = finite(required=True, validate=validate.Range(min=0, min_inclusive=False))
-    cells = fields.Integer(strict=True, required=True, validate=validate.Range(min=1))
+    cell_size = finite(
+        validate=validate.Range(min=0, min_inclusive=False),
+        metadata={
+            "description": "Cell side, coordinate units. Default: the typical sample spacing (median nearest-neighbour "
+            "distance), enlarged so that a cell holds about min_pairs pairs on average and at most 40 cells lie on "
+            "each side of the origin."
+        },
+    )
+    cells = fields.Integer(
+        strict=True,
+        validate=validate.Range(min=1),
+        metadata={
+            "description": "Cells on each side of the origin. Default: enough to reach half the largest separation."
+        },
+    )
     statistic = fields.String(load_default="semivariance", validate=validate.OneOf(STATISTICS))
+    min_pairs = fields.Integer(
+        strict=True,
+        load_default=30,
+        validate=validate.Range(min=1),
+        metadata={"description": "Average pairs per cell the automatic cell size aims for."},
+    )
 
 
 class ExperimentalClassInput(Schema):

@@ -71,10 +71,17 @@ def experimental(result: ExperimentalVariogram, samples: SampleSet) -> dict:
 
 def lag_parameters(result: ExperimentalVariogram) -> dict:
     """Resolved distance classes of every direction."""
-    return {
+    out = {
         "method": result.lag_method,
         "edges": [[row.lower for row in d.classes] + [d.classes[-1].upper] for d in result.directions],
     }
+    if result.spacing is not None:
+        out["typical_spacing"] = result.spacing
+        out["rule"] = (
+            "width = typical spacing (median nearest-neighbour distance), at least 1/40 of the largest distance; "
+            "edges 0, w/2, 3w/2, ... up to half the extent; classes under min_pairs merged with the next"
+        )
+    return out
 
 
 def _class_row(row) -> dict:
@@ -111,6 +118,17 @@ def variogram_map(result: VariogramMap, samples: SampleSet) -> dict:
             "statistic": result.statistic,
             "cell_size": result.cell_size,
             "cells": result.cells,
+            **(
+                {}
+                if result.spacing is None
+                else {
+                    "typical_spacing": result.spacing,
+                    "min_pairs": result.min_pairs,
+                    "cell_rule": "omitted values: cell side = typical spacing (median nearest-neighbour distance), at "
+                    "least sqrt(min_pairs * hull area) / n and half the largest separation / 40.5; cells reach half "
+                    "the largest separation",
+                }
+            ),
             "cell_convention": "cell (i, j) holds hx in [(i - 1/2) s, (i + 1/2) s) and hy likewise; each pair counted as h and -h; rows by hy",
         },
         "warnings": list(result.warnings),

@@ -7,13 +7,22 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from ..data.samples import SampleSet
+from ..data.spacing import typical_spacing
 from ..data.summary import Summary, summarise
 from ..deadline import check_deadline
 from ..errors import FieldIssue, InvalidInput
 from ..limits import Limits
 from . import kernels as K
 from .directions import OMNIDIRECTIONAL, DirectionClass, validate_direction
-from .lags import AUTO_FINE_BINS, LagRequest, auto_edges, validate_lags
+from .lags import (
+    AUTO_FINE_BINS,
+    LagRequest,
+    merge_sparse,
+    quantile_edges,
+    spacing_edges,
+    spacing_width,
+    validate_lags,
+)
 from .pairs import (
     PreparedSamples,
     absolute_differences,
@@ -111,6 +120,9 @@ class ExperimentalVariogram:
         ``width``, ``edges``, ``equal_width`` or ``equal_pairs``.
     colocated_pairs : int
         Zero-distance pairs, which belong to no class.
+    spacing : float or None
+        Typical sample spacing (median nearest-neighbour distance, coordinate units)
+        the ``equal_width`` classes were built from; None for other class requests.
     scattergram : Scattergram or None
     warnings : tuple of str
     """
@@ -122,6 +134,7 @@ class ExperimentalVariogram:
     lag_method: str
     colocated_pairs: int
     scattergram: Scattergram | None
+    spacing: float | None = None
     warnings: tuple[str, ...] = field(default=())
 
 
@@ -155,16 +168,23 @@ def _half_extent(samples: SampleSet, summary: Summary, direction: DirectionClass
 
 
 def _resolve_edges(samples, summary, prepared, lags, directions, min_pairs, limits):
+    """Edges per direction and the typical spacing they were built from (None for explicit classes)."""
     explicit = validate_lags(lags)
     if explicit is not None:
-        return [explicit] * len(directions)
+        return [explicit] * len(directions), None
     largest = [_half_extent(samples, summary, d) for d in directions]
     if min(largest) <= 0:
         raise InvalidInput.at("/directions", "the samples have no extent along a requested direction")
     limits.check_pairs(estimate_pairs_within(samples.coords, max(largest)), len(directions))
-    fine = layout(directions, [np.linspace(0.0, top, AUTO_FINE_BINS + 1) for top in largest])
-    table, _ = accumulate(prepared, fine, K.MODE_COUNT)
-    return [auto_edges(lags.method, top, table[k, :, K.COUNT], min_pairs) for k, top in enumerate(largest)]
+    if lags.method == "equal_pairs":
+        fine = layout(directions, [np.linspace(0.0, top, AUTO_FINE_BINS + 1) for top in largest])
+        table, _ = accumulate(prepared, fine, K.MODE_COUNT)
+        return [quantile_edges(top, table[k, :, K.COUNT], min_pairs) for k, top in enumerate(largest)], None
+    spacing = typical_spacing(samples.coords)
+    candidates = [spacing_edges(top, spacing_width(top, spacing)) for top in largest]
+    table, _ = accumulate(prepared, layout(directions, candidates), K.MODE_COUNT)
+    edges = [merge_sparse(e, table[k, : len(e) - 1, K.COUNT], min_pairs) for k, e in enumerate(candidates)]
+    return edges, spacing
 
 
 def _scattergram(request, prepared, classes, counts, limits) -> Scattergram:
@@ -218,7 +238,7 @@ def experimental_variogram(
     resolved, warnings = _validate_options(samples, statistic, min_pairs, directions)
     summary = summarise(samples.coords, samples.values)
     prepared = prepare(samples.coords, samples.values)
-    edges = _resolve_edges(samples, summary, prepared, lags, resolved, min_pairs, limits)
+    edges, spacing = _resolve_edges(samples, summary, prepared, lags, resolved, min_pairs, limits)
     classes = layout(resolved, edges)
     limits.check_pairs(estimate_pairs_within(samples.coords, classes.search_radius), len(resolved))
     check_deadline()
@@ -239,6 +259,7 @@ def experimental_variogram(
         min_pairs=min_pairs,
         lag_method=lags.method,
         colocated_pairs=colocated,
+        spacing=spacing,
         scattergram=scatter,
         warnings=tuple(list(samples.warnings) + warnings),
     )

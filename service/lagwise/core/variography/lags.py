@@ -8,12 +8,23 @@ sets). Three ways to ask for them:
 * ``auto``: the largest distance is half the field's extent in the class direction
   (a rule of thumb of the trade: beyond about half the field fewer and fewer
   samples take part) -- half the largest separation for the omnidirectional class,
-  half the spread of the samples' projections on the class line otherwise. The
-  class count is the largest, up to ``AUTO_MAX_CLASSES``, for which every class
-  holds at least ``min_pairs`` pairs (one class when none does). ``equal_width``
-  splits that distance evenly; ``equal_pairs`` places edges at pair-count quantiles,
-  read from a first counting pass on ``AUTO_FINE_BINS`` fine classes, so quantile
-  edges are resolved to 1/``AUTO_FINE_BINS`` of the largest distance.
+  half the spread of the samples' projections on the class line otherwise.
+
+  ``equal_width`` (the default) resolves the shortest spacing the data support: the
+  width w is the typical sample spacing, the median distance from a sample to its
+  nearest neighbour (:func:`lagwise.core.data.spacing.typical_spacing`), or ``largest / AUTO_MAX_SPACING_CLASSES``
+  when that is larger. Classes are centred on multiples of w, edges
+  0, w/2, 3w/2, 5w/2, ... up to the largest distance, so the nearest-neighbour pairs
+  sit in the middle of a class rather than on an edge (on a regular grid they would
+  otherwise straddle it). Classes with fewer than ``min_pairs`` pairs are then merged
+  with the next one (the last with the one before), by exact counts from a counting
+  pass, until every class holds ``min_pairs`` pairs or one class is left.
+
+  ``equal_pairs`` uses the largest class count, up to ``AUTO_MAX_CLASSES``, for which
+  every class holds at least ``min_pairs`` pairs (one class when none does), and
+  places edges at pair-count quantiles read from a first counting pass on
+  ``AUTO_FINE_BINS`` fine classes, so quantile edges are resolved to
+  1/``AUTO_FINE_BINS`` of the largest distance.
 """
 
 from __future__ import annotations
@@ -26,6 +37,7 @@ from ..errors import FieldIssue, InvalidInput
 
 AUTO_METHODS = ("equal_width", "equal_pairs")
 AUTO_MAX_CLASSES = 15
+AUTO_MAX_SPACING_CLASSES = 40
 AUTO_FINE_BINS = 300
 MAX_CLASSES = 1000
 
@@ -91,8 +103,8 @@ def _validate_edges(edges: tuple[float, ...]) -> np.ndarray:
     return e
 
 
-def auto_edges(method: str, largest: float, fine_counts: np.ndarray, min_pairs: int) -> np.ndarray:
-    """Choose class edges from pair counts on ``len(fine_counts)`` equal fine classes up to ``largest``.
+def quantile_edges(largest: float, fine_counts: np.ndarray, min_pairs: int) -> np.ndarray:
+    """``equal_pairs`` edges from pair counts on ``len(fine_counts)`` equal fine classes up to ``largest``.
 
     Returns strictly increasing edges starting at 0 and ending at ``largest``.
     """
@@ -101,13 +113,48 @@ def auto_edges(method: str, largest: float, fine_counts: np.ndarray, min_pairs: 
     fine_edges = np.linspace(0.0, largest, fine + 1)
     total = cumulative[-1]
     for k in range(AUTO_MAX_CLASSES, 0, -1):
-        if method == "equal_width":
-            edges = np.linspace(0.0, largest, k + 1)
-        else:
-            edges = np.interp(np.linspace(0.0, total, k + 1), cumulative, fine_edges)
-            edges[0], edges[-1] = 0.0, largest
-            edges = np.unique(edges)
+        edges = np.interp(np.linspace(0.0, total, k + 1), cumulative, fine_edges)
+        edges[0], edges[-1] = 0.0, largest
+        edges = np.unique(edges)
         in_class = np.diff(np.interp(edges, fine_edges, cumulative))
         if len(edges) == k + 1 and in_class.min() >= min_pairs:
             return edges
     return np.array([0.0, largest])
+
+
+def spacing_width(largest: float, spacing: float) -> float:
+    """Class width of the ``equal_width`` rule: the spacing, at least ``largest / AUTO_MAX_SPACING_CLASSES``."""
+    return max(spacing, largest / AUTO_MAX_SPACING_CLASSES)
+
+
+def spacing_edges(largest: float, width: float) -> np.ndarray:
+    """Candidate edges 0, w/2, 3w/2, ... ending at ``largest`` (a last part shorter than w/2 joins its neighbour)."""
+    inner = np.arange(0.5, largest / width, 1.0) * width
+    inner = inner[inner <= largest - 0.5 * width]
+    if inner.size == 0:
+        return np.array([0.0, largest])
+    return np.concatenate([[0.0], inner, [largest]])
+
+
+def merge_sparse(edges: np.ndarray, counts: np.ndarray, min_pairs: int) -> np.ndarray:
+    """Merge classes with fewer than ``min_pairs`` pairs into the next (the last into the one before).
+
+    ``counts`` are the exact pairs of each class [edges[i], edges[i+1]). Returns the
+    kept edges; a single class remains when no merge meets ``min_pairs``.
+    """
+    edges = list(np.asarray(edges, dtype=np.float64))
+    counts = list(np.asarray(counts, dtype=np.float64))
+    i = 0
+    while len(counts) > 1 and i < len(counts):
+        if counts[i] >= min_pairs:
+            i += 1
+            continue
+        if i == len(counts) - 1:
+            # The last class joins the one before it.
+            counts[i - 1] += counts.pop(i)
+            edges.pop(i)
+            i -= 1
+        else:
+            counts[i] += counts.pop(i + 1)
+            edges.pop(i + 1)
+    return np.array(edges)

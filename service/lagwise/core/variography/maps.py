@@ -5,6 +5,14 @@ hx in [(i - 1/2) s, (i + 1/2) s) and hy in [(j - 1/2) s, (j + 1/2) s), s the cel
 size; every pair counts twice, as h (tail -> head) and as -h (head -> tail), so the
 map is symmetric through the origin for the symmetric statistics. For 3-D samples
 the vertical separation is ignored. Rows of the output run by hy, columns by hx.
+
+Omitted cell size and count follow the rule of the automatic distance classes
+(:mod:`lagwise.core.variography.lags`): the map reaches half the largest separation
+R, and the cell side is the typical sample spacing, enlarged where needed so that a
+cell holds about ``min_pairs`` pairs on average (n samples over a hull of area A put
+about n^2 s^2 / A ordered pairs in a cell of side s, so s >= sqrt(min_pairs A) / n)
+and so that at most ``AUTO_MAX_MAP_CELLS`` cells lie on each side of the origin.
+Given only the cell size, the count reaches R; given only the count, the size does.
 """
 
 from __future__ import annotations
@@ -14,14 +22,19 @@ from dataclasses import dataclass, field
 
 import numba
 import numpy as np
+from scipy.spatial import ConvexHull, QhullError
 
 from ..data.samples import SampleSet
+from ..data.spacing import typical_spacing
 from ..data.summary import Summary, summarise
 from ..errors import FieldIssue, InvalidInput
 from ..limits import Limits
 from . import kernels as K
 from .pairs import estimate_pairs_within, prepare
 from .statistics import ACCUMULATION_MODE, STATISTICS, class_value
+
+AUTO_MAX_MAP_CELLS = 40
+DEFAULT_MAP_MIN_PAIRS = 30
 
 
 @dataclass(frozen=True)
@@ -37,6 +50,10 @@ class VariogramMap:
         a cell has no pairs or the statistic is undefined.
     pairs : ndarray of int, shape (2 * cells + 1, 2 * cells + 1)
         Pairs per cell (each pair counted as h and as -h).
+    spacing : float or None
+        Typical sample spacing, when the cell size or count was chosen automatically.
+    min_pairs : int
+        Average pairs per cell the automatic rule aimed for.
     """
 
     hx: np.ndarray
@@ -48,6 +65,34 @@ class VariogramMap:
     cells: int
     summary: Summary
     warnings: tuple[str, ...] = field(default=())
+    spacing: float | None = None
+    min_pairs: int = DEFAULT_MAP_MIN_PAIRS
+
+
+def _hull_area(points: np.ndarray) -> float:
+    """Area of the convex hull of 2-D points (the bounding box for flat sets), squared units."""
+    try:
+        return float(ConvexHull(points).volume)
+    except (QhullError, ValueError):
+        return float(np.prod(np.ptp(points, axis=0)))
+
+
+def automatic_cells(
+    samples: SampleSet, summary: Summary, cell_size: float | None, cells: int | None, min_pairs: int, top: int
+) -> tuple[float, int, float]:
+    """Cell size and count for omitted values (see the module docstring); returns (size, cells, spacing)."""
+    horizontal = samples.coords[:, :2]
+    spacing = typical_spacing(horizontal)
+    reach = 0.5 * summary.max_distance
+    if cell_size is None and cells is not None:
+        return reach / (cells + 0.5), cells, spacing
+    if cell_size is None:
+        area = _hull_area(horizontal)
+        dense_enough = math.sqrt(min_pairs * area) / samples.size if area > 0 else 0.0
+        cell_size = max(spacing, dense_enough, reach / (min(AUTO_MAX_MAP_CELLS, top) + 0.5))
+    if cells is None:
+        cells = int(min(top, max(1, round(reach / cell_size - 0.5))))
+    return float(cell_size), int(cells), spacing
 
 
 def _validate(samples, cell_size, cells, statistic, limits):
@@ -73,9 +118,10 @@ def _validate(samples, cell_size, cells, statistic, limits):
 def variogram_map(
     samples: SampleSet,
     *,
-    cell_size: float,
-    cells: int,
+    cell_size: float | None = None,
+    cells: int | None = None,
     statistic: str = "semivariance",
+    min_pairs: int = DEFAULT_MAP_MIN_PAIRS,
     limits: Limits = Limits(),
 ) -> VariogramMap:
     """Compute a variogram map (see the module conventions).
@@ -84,17 +130,32 @@ def variogram_map(
     ----------
     samples : SampleSet
         Validated 2-D or 3-D samples.
-    cell_size : float
-        Side of a square cell, coordinate units.
-    cells : int
-        Cells on each side of the origin (the map has 2 * cells + 1 per side).
+    cell_size : float, optional
+        Side of a square cell, coordinate units (default: the automatic rule of the
+        module docstring).
+    cells : int, optional
+        Cells on each side of the origin (the map has 2 * cells + 1 per side;
+        default: enough to reach half the largest separation).
     statistic : str
         One of :data:`lagwise.core.variography.statistics.STATISTICS`.
+    min_pairs : int
+        Average pairs per cell the automatic cell size aims for (default 30).
     limits : Limits
         Cost limits, checked before the pair passes.
     """
     limits.check_samples(samples.size)
-    _validate(samples, cell_size, cells, statistic, limits)
+    if min_pairs < 1:
+        raise InvalidInput.at("/min_pairs", "must be at least 1")
+    summary = summarise(samples.coords, samples.values)
+    spacing = None
+    if samples.dimension >= 2 and (cell_size is None or cells is None):
+        top = (limits.max_map_cells - 1) // 2
+        cell_size, cells, spacing = automatic_cells(samples, summary, cell_size, cells, min_pairs, top)
+        if not cell_size > 0:
+            raise InvalidInput.at("/cell_size", "the samples have no horizontal extent; give a cell size")
+    _validate(
+        samples, cell_size if cell_size is not None else 1.0, cells if cells is not None else 1, statistic, limits
+    )
     reach = (cells + 0.5) * cell_size
     limits.check_pairs(estimate_pairs_within(samples.coords[:, :2], reach * math.sqrt(2.0)), 2, "/cells")
     prepared = prepare(samples.coords, samples.values)
@@ -120,8 +181,10 @@ def variogram_map(
         statistic=statistic,
         cell_size=float(cell_size),
         cells=int(cells),
-        summary=summarise(samples.coords, samples.values),
+        summary=summary,
         warnings=tuple(warnings),
+        spacing=spacing,
+        min_pairs=int(min_pairs),
     )
 
 
