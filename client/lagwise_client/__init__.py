@@ -8,13 +8,17 @@
 from .client import Lagwise
 from .errors import (
     AuthError,
+    ColumnsError,
+    DeadlineError,
     LagwiseError,
     LimitError,
     MalformedRequestError,
+    ResponseError,
     TransportError,
     UnavailableError,
     ValidationError,
 )
+from .families import FAMILIES, Family, Parameter
 from .models import ModelStructure, VariogramModel
 from .results import (
     Analysis,
@@ -28,28 +32,36 @@ from .results import (
     VariogramMap,
 )
 from .retry import RetryPolicy
+from .samples import samples_document
 
 __version__ = "0.1.0"
 
 __all__ = [
+    "FAMILIES",
     "Analysis",
     "AuthError",
     "Candidate",
+    "ColumnsError",
     "CrossValidation",
-    "Predictions",
-    "ModelFit",
-    "ModelStructure",
-    "VariogramModel",
+    "DeadlineError",
     "DirectionVariogram",
     "ExperimentalVariogram",
+    "Family",
     "Lagwise",
     "LagwiseError",
     "LimitError",
     "MalformedRequestError",
+    "ModelFit",
+    "ModelStructure",
+    "Parameter",
+    "Predictions",
+    "ResponseError",
     "RetryPolicy",
     "TransportError",
     "UnavailableError",
     "ValidationError",
     "VariogramClass",
     "VariogramMap",
+    "VariogramModel",
+    "samples_document",
 ]

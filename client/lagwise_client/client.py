@@ -4,61 +4,89 @@ from __future__ import annotations
 
 import json
 import uuid
-from collections.abc import Mapping
+from collections.abc import Callable, Mapping
 from typing import Any
 
 import requests
+from urllib3.exceptions import ReadTimeoutError  # urllib3 is requests' own transport
 
-from .errors import LagwiseError, TransportError, ValidationError, error_for
+from .errors import LagwiseError, ResponseError, TransportError, ValidationError, error_for
 from .models import VariogramModel
 from .results import Analysis, CrossValidation, ExperimentalVariogram, ModelFit, Predictions, VariogramMap
-from .retry import RETRY_STATUSES, RetryPolicy
+from .retry import RetryPolicy
+from .samples import SAMPLE_MEMBERS, column, samples_document
 
 DEFAULT_TIMEOUT = 120.0
-SAMPLE_COLUMNS = ("x", "y", "z", "values", "ids")
+
+# Failures without an HTTP answer; a connection broken mid-answer counts as one.
+NO_ANSWER = (requests.ConnectionError, requests.Timeout, requests.exceptions.ChunkedEncodingError)
 
 
-def _column(value) -> list:
-    """A list from a list, tuple, numpy array or pandas Series (no numpy import needed)."""
-    if hasattr(value, "tolist"):
-        return value.tolist()
-    return list(value)
+def _is_read_timeout(exc: Exception) -> bool:
+    """True when the request was sent and the answer did not come in time.
 
-
-def samples_document(
-    samples=None, *, x=None, y=None, z=None, values=None, ids=None, columns: Mapping[str, str] | None = None
-) -> dict:
-    """Build the ``samples`` member from columns or from a table.
-
-    Parameters
-    ----------
-    samples : pandas.DataFrame or mapping, optional
-        A table with columns x, y, z (optional), values and ids (optional); rename
-        with ``columns``, e.g. ``{"values": "lead_mg_kg", "ids": "sample"}``. A mapping
-        that already holds ``geojson`` is sent as it is.
-    x, y, z, values, ids : sequence, optional
-        Columns given one by one (lists, tuples, numpy arrays).
+    requests raises ``ReadTimeout`` while waiting for the status line, and a ``ConnectionError``
+    wrapping urllib3's ``ReadTimeoutError`` when the body stalls after the headers.
     """
-    if samples is not None:
-        if isinstance(samples, Mapping) and "geojson" in samples:
-            return dict(samples)
-        names = {name: name for name in SAMPLE_COLUMNS}
-        names.update(columns or {})
-        available = set(samples.keys()) if isinstance(samples, Mapping) else set(samples.columns)
-        if names["values"] not in available and "value" in available and not columns:
-            names["values"] = "value"
-        return {name: _column(samples[source]) for name, source in names.items() if source in available}
-    given = {"x": x, "y": y, "z": z, "values": values, "ids": ids}
-    return {name: _column(column) for name, column in given.items() if column is not None}
+    if isinstance(exc, requests.ReadTimeout):
+        return True
+    return isinstance(exc, requests.ConnectionError) and any(isinstance(a, ReadTimeoutError) for a in exc.args)
 
 
-def _given(options: dict) -> dict:
-    """The options the caller set (None means: the service's default)."""
-    return {k: v for k, v in options.items() if v is not None}
+def _plain(value: Any) -> Any:
+    """JSON form of numpy scalars that slipped into a list (``np.int64`` is not an ``int``)."""
+    if hasattr(value, "item"):
+        return value.item()
+    raise TypeError(f"a {type(value).__name__} value cannot be sent as JSON")
 
 
-def _model(model) -> dict:
-    return model.to_dict() if hasattr(model, "to_dict") else dict(model)
+def _encode(body: Mapping[str, Any], request_id: str) -> bytes:
+    try:
+        return json.dumps(body, allow_nan=False, separators=(",", ":"), default=_plain).encode()
+    except ValueError as exc:
+        raise ValidationError(
+            f"the request holds NaN or Infinity, which JSON cannot carry: {exc}", request_id=request_id
+        ) from None
+
+
+def _model(model: VariogramModel | Mapping[str, Any]) -> dict:
+    return model.to_dict() if isinstance(model, VariogramModel) else dict(model)
+
+
+def _experimental(experimental: ExperimentalVariogram | Mapping[str, Any]) -> dict:
+    return experimental.to_dict() if isinstance(experimental, ExperimentalVariogram) else dict(experimental)
+
+
+def _targets(targets: Mapping[str, Any]) -> dict:
+    return {name: column(values) for name, values in targets.items()}
+
+
+# Arguments sent in another form than the caller gave them.
+CONVERSIONS: dict[str, Callable[[Any], Any]] = {
+    "model": _model,
+    "experimental": _experimental,
+    "targets": _targets,
+    "figure_size": list,
+}
+SAMPLE_ARGUMENTS = frozenset({"self", "samples", "columns", *SAMPLE_MEMBERS})
+
+
+def request_body(arguments: Mapping[str, Any]) -> dict:
+    """The JSON body of a computing request from an endpoint method's arguments.
+
+    ``samples``, ``columns`` and the sample members (``x`` ... ``detection_limits``) become the
+    ``samples`` member (see :func:`samples_document`); every other argument that is not None
+    is sent under its own name (None means: the service's default).
+    """
+    members = {name: arguments.get(name) for name in SAMPLE_MEMBERS}
+    sample_set = samples_document(arguments.get("samples"), columns=arguments.get("columns"), **members)
+    body: dict[str, Any] = {"samples": sample_set} if sample_set else {}
+    for name, value in arguments.items():
+        if name in SAMPLE_ARGUMENTS or value is None:
+            continue
+        convert = CONVERSIONS.get(name)
+        body[name] = convert(value) if convert else value
+    return body
 
 
 class Lagwise:
@@ -73,8 +101,9 @@ class Lagwise:
     timeout : float, seconds
         Per-attempt timeout (connect and read).
     retries : int or RetryPolicy
-        Retries on connection errors and on 429/502/503/504 (every computing
-        endpoint is idempotent, so retrying is safe).
+        Retries on connection errors and on 429/502/503/504, never on a 503
+        ``deadline-exceeded``; read timeouts of computing requests only with
+        ``RetryPolicy(retry_read_timeouts=True)`` (see :mod:`lagwise_client.retry`).
     session : requests.Session, optional
         Reused for every call (connection pooling); one is created by default.
     """
@@ -111,52 +140,77 @@ class Lagwise:
     def __repr__(self) -> str:
         return f"Lagwise({self.base_url!r})"
 
-    # ---- transport ---------------------------------------------------------
+    # ---- the one request path ----------------------------------------------
 
-    def request(self, method: str, path: str, body: dict | None = None) -> dict:
-        """Send one request with retries; returns the JSON document or raises :class:`LagwiseError`."""
+    def request(self, method: str, path: str, body: Mapping[str, Any] | None = None) -> dict:
+        """Send one request with retries; returns the JSON document or raises :class:`LagwiseError`.
+
+        Every attempt carries the same ``X-Request-ID``. ``POST`` requests compute: their read
+        timeouts are retried only with ``RetryPolicy(retry_read_timeouts=True)``.
+        """
         request_id = uuid.uuid4().hex
         headers = {"X-Request-ID": request_id}
         data = None
         if body is not None:
-            try:
-                data = json.dumps(body, allow_nan=False, separators=(",", ":")).encode()
-            except ValueError as exc:
-                raise ValidationError(
-                    f"the request holds NaN or Infinity, which JSON cannot carry: {exc}", request_id=request_id
-                ) from None
+            data = _encode(body, request_id)
             headers["Content-Type"] = "application/json"
         url = self.base_url + path
+        computing = method.upper() == "POST"
         attempt = 0
         while True:
             try:
                 response = self.session.request(method, url, data=data, headers=headers, timeout=self.timeout)
-            except (requests.ConnectionError, requests.Timeout, requests.exceptions.ChunkedEncodingError) as exc:
-                # A connection broken mid-answer is retried too: every endpoint is idempotent.
-                if attempt >= self.retry.retries:
-                    raise TransportError(
-                        f"no answer from {url} after {attempt + 1} attempts: {exc}", request_id=request_id
-                    ) from exc
-                self.retry.sleep(self.retry.delay(attempt))
-                attempt += 1
-                continue
-            if response.status_code in RETRY_STATUSES and attempt < self.retry.retries:
+            except NO_ANSWER as exc:
+                read_timeout = _is_read_timeout(exc)
+                if attempt < self.retry.retries and self.retry.retries_failure(
+                    read_timeout=read_timeout, computing=computing
+                ):
+                    self.retry.sleep(self.retry.delay(attempt))
+                    attempt += 1
+                    continue
+                raise TransportError(
+                    self._no_answer(url, attempt, exc, read_timeout, computing), request_id=request_id
+                ) from exc
+            document = self._read(response)
+            if response.status_code < 400:
+                if not isinstance(document, dict):
+                    raise ResponseError(
+                        f"{url} answered {response.status_code} without a JSON object",
+                        status=response.status_code,
+                        request_id=request_id,
+                    )
+                return document
+            problem = document if isinstance(document, dict) else {"detail": str(document)[:500]}
+            if attempt < self.retry.retries and self.retry.retries_status(response.status_code, problem.get("type")):
                 self.retry.sleep(self.retry.delay(attempt, response.headers.get("Retry-After")))
                 attempt += 1
                 continue
-            return self._document(response, request_id)
+            raise error_for(response.status_code, problem, request_id)
+
+    def _no_answer(self, url: str, attempt: int, exc: Exception, read_timeout: bool, computing: bool) -> str:
+        if read_timeout and computing and not self.retry.retry_read_timeouts:
+            return (
+                f"no answer from {url} within {self.timeout} s after {attempt + 1} attempts; not resent, since "
+                f"the service is probably still computing (raise timeout, or retry with "
+                f"RetryPolicy(retry_read_timeouts=True)): {exc}"
+            )
+        return f"no answer from {url} after {attempt + 1} attempts: {exc}"
 
     @staticmethod
-    def _document(response: requests.Response, request_id: str) -> dict:
+    def _read(response: requests.Response) -> Any:
+        """The JSON body, or for a body that is not JSON a problem-like document with its text."""
         try:
-            document = response.json()
+            return response.json()
         except ValueError:
-            document = {"detail": response.text[:500] or response.reason}
-        if response.status_code >= 400:
-            raise error_for(response.status_code, document if isinstance(document, dict) else {}, request_id)
-        if not isinstance(document, dict):
-            raise LagwiseError("unexpected response body", status=response.status_code, request_id=request_id)
-        return document
+            return {"detail": response.text[:500] or response.reason}
+
+    def _compute(self, path: str, result: Any, arguments: Mapping[str, Any]) -> Any:
+        """POST the body built from an endpoint method's ``arguments`` and read the result.
+
+        Each endpoint method's keyword names are the request's member names, so the method
+        passes ``locals()`` and its signature is the one definition of what it sends.
+        """
+        return result.from_response(self.request("POST", path, request_body(arguments)))
 
     # ---- endpoints ---------------------------------------------------------
 
@@ -169,58 +223,50 @@ class Lagwise:
         z=None,
         values=None,
         ids=None,
+        censored=None,
+        detection_limits=None,
         columns: Mapping[str, str] | None = None,
         lags: Mapping[str, Any] | None = None,
         directions: list[Mapping[str, Any]] | None = None,
         statistic: str | None = None,
         min_pairs: int | None = None,
+        censoring: str | None = None,
         coordinates: str | None = None,
         duplicates: str | None = None,
         pairs_for_class: Mapping[str, int] | None = None,
     ) -> ExperimentalVariogram:
         """Experimental variogram per direction class (``POST /v1/experimental-variograms``).
 
-        Samples come as a table (``samples``) or as columns (``x``, ``y``, ``z``,
-        ``values``, ``ids``); options are those of the API and default on the service.
+        Samples come as a table (``samples``, see :func:`samples_document`) or as columns
+        (``x``, ``y``, ``z``, ``values``, ``ids``, ``censored``, ``detection_limits``); options
+        are those of the API and default on the service.
         """
-        body = {"samples": samples_document(samples, x=x, y=y, z=z, values=values, ids=ids, columns=columns)}
-        options = dict(
-            lags=lags,
-            directions=directions,
-            statistic=statistic,
-            min_pairs=min_pairs,
-            coordinates=coordinates,
-            duplicates=duplicates,
-            pairs_for_class=pairs_for_class,
-        )
-        body.update(_given(options))
-        return ExperimentalVariogram.from_response(self.request("POST", "/v1/experimental-variograms", body))
+        return self._compute("/v1/experimental-variograms", ExperimentalVariogram, locals())
 
     def variogram_map(
         self,
         samples=None,
         *,
-        cell_size: float,
-        cells: int,
+        cell_size: float | None = None,
+        cells: int | None = None,
         x=None,
         y=None,
         z=None,
         values=None,
         ids=None,
+        censored=None,
+        detection_limits=None,
         columns: Mapping[str, str] | None = None,
         statistic: str | None = None,
+        censoring: str | None = None,
         coordinates: str | None = None,
         duplicates: str | None = None,
     ) -> VariogramMap:
-        """Variogram map on (2 cells + 1)^2 square cells of side ``cell_size`` (``POST /v1/variogram-maps``)."""
-        body = {
-            "samples": samples_document(samples, x=x, y=y, z=z, values=values, ids=ids, columns=columns),
-            "cell_size": cell_size,
-            "cells": cells,
-        }
-        options = dict(statistic=statistic, coordinates=coordinates, duplicates=duplicates)
-        body.update(_given(options))
-        return VariogramMap.from_response(self.request("POST", "/v1/variogram-maps", body))
+        """Variogram map on (2 cells + 1)^2 square cells of side ``cell_size`` (``POST /v1/variogram-maps``).
+
+        The service chooses ``cell_size`` and ``cells`` from the samples' spacing when they are omitted.
+        """
+        return self._compute("/v1/variogram-maps", VariogramMap, locals())
 
     def fit_model(
         self,
@@ -232,6 +278,8 @@ class Lagwise:
         z=None,
         values=None,
         ids=None,
+        censored=None,
+        detection_limits=None,
         columns: Mapping[str, str] | None = None,
         families: str | list[str] | None = None,
         nugget: str | float | None = None,
@@ -242,6 +290,7 @@ class Lagwise:
         directions: list[Mapping[str, Any]] | None = None,
         statistic: str | None = None,
         min_pairs: int | None = None,
+        censoring: str | None = None,
         coordinates: str | None = None,
         duplicates: str | None = None,
     ) -> ModelFit:
@@ -251,27 +300,7 @@ class Lagwise:
         ``"fit"``, ``"none"`` or a fixed value; ``anisotropy="fit"`` fits azimuth and ratio
         jointly over the direction classes.
         """
-        if experimental is not None:
-            body: dict = {
-                "experimental": experimental.to_dict() if hasattr(experimental, "to_dict") else dict(experimental)
-            }
-        else:
-            body = {"samples": samples_document(samples, x=x, y=y, z=z, values=values, ids=ids, columns=columns)}
-        options = dict(
-            families=families,
-            nugget=nugget,
-            weighting=weighting,
-            anisotropy=anisotropy,
-            structures=structures,
-            lags=lags,
-            directions=directions,
-            statistic=statistic,
-            min_pairs=min_pairs,
-            coordinates=coordinates,
-            duplicates=duplicates,
-        )
-        body.update(_given(options))
-        return ModelFit.from_response(self.request("POST", "/v1/model-fits", body))
+        return self._compute("/v1/model-fits", ModelFit, locals())
 
     def cross_validate(
         self,
@@ -283,11 +312,14 @@ class Lagwise:
         z=None,
         values=None,
         ids=None,
+        censored=None,
+        detection_limits=None,
         columns: Mapping[str, str] | None = None,
         kriging: Mapping[str, Any] | None = None,
         neighbourhood: Mapping[str, Any] | None = None,
         scheme: Mapping[str, Any] | None = None,
         outlier_threshold: float | None = None,
+        censoring: str | None = None,
         coordinates: str | None = None,
         duplicates: str | None = None,
     ) -> CrossValidation:
@@ -297,20 +329,7 @@ class Lagwise:
         (omit it for all samples); ``scheme`` ``{"type": "leave_one_out"}`` (default) or
         ``{"type": "k_fold", "folds": 10, "seed": 1}``.
         """
-        body = {
-            "samples": samples_document(samples, x=x, y=y, z=z, values=values, ids=ids, columns=columns),
-            "model": _model(model),
-        }
-        options = dict(
-            kriging=kriging,
-            neighbourhood=neighbourhood,
-            scheme=scheme,
-            outlier_threshold=outlier_threshold,
-            coordinates=coordinates,
-            duplicates=duplicates,
-        )
-        body.update(_given(options))
-        return CrossValidation.from_response(self.request("POST", "/v1/cross-validations", body))
+        return self._compute("/v1/cross-validations", CrossValidation, locals())
 
     def predict(
         self,
@@ -324,31 +343,19 @@ class Lagwise:
         z=None,
         values=None,
         ids=None,
+        censored=None,
+        detection_limits=None,
         columns: Mapping[str, str] | None = None,
         kriging: Mapping[str, Any] | None = None,
         neighbourhood: Mapping[str, Any] | None = None,
         return_weights: list[int] | None = None,
+        censoring: str | None = None,
         coordinates: str | None = None,
         duplicates: str | None = None,
     ) -> Predictions:
         """Kriging estimates and variances (``POST /v1/predictions``) at ``targets``
         (``{"x": [...], "y": [...]}``) or on ``grid`` (``{"origin", "spacing", "shape"}``)."""
-        body = {
-            "samples": samples_document(samples, x=x, y=y, z=z, values=values, ids=ids, columns=columns),
-            "model": _model(model),
-        }
-        if targets is not None:
-            body["targets"] = {k: _column(v) for k, v in targets.items()}
-        options = dict(
-            grid=grid,
-            kriging=kriging,
-            neighbourhood=neighbourhood,
-            return_weights=return_weights,
-            coordinates=coordinates,
-            duplicates=duplicates,
-        )
-        body.update(_given(options))
-        return Predictions.from_response(self.request("POST", "/v1/predictions", body))
+        return self._compute("/v1/predictions", Predictions, locals())
 
     def analyze(
         self,
@@ -359,6 +366,8 @@ class Lagwise:
         z=None,
         values=None,
         ids=None,
+        censored=None,
+        detection_limits=None,
         columns: Mapping[str, str] | None = None,
         transform: str | None = None,
         variogram: Mapping[str, Any] | None = None,
@@ -377,26 +386,14 @@ class Lagwise:
         ``variogram`` e.g. ``{"directions": "auto"}``; ``prediction`` ``{"grid": {...}}``;
         ``figures`` any of variogram, variogram_map, cross_validation, prediction_map.
         """
-        body = {"samples": samples_document(samples, x=x, y=y, z=z, values=values, ids=ids, columns=columns)}
-        options = dict(
-            transform=transform,
-            variogram=variogram,
-            fit=fit,
-            cross_validation=cross_validation,
-            prediction=prediction,
-            figures=figures,
-            figure_format=figure_format,
-            figure_size=list(figure_size) if figure_size else None,
-            censoring=censoring,
-            coordinates=coordinates,
-            duplicates=duplicates,
-        )
-        body.update(_given(options))
-        return Analysis.from_response(self.request("POST", "/v1/analyses", body))
+        return self._compute("/v1/analyses", Analysis, locals())
 
     def model_families(self) -> list[dict]:
         """The model families with their parameters, units, bounds and validity (``GET /v1/model-families``)."""
-        return self.request("GET", "/v1/model-families")["families"]
+        document = self.request("GET", "/v1/model-families")
+        if not isinstance(document.get("families"), list):
+            raise ResponseError("the model-families answer has no families list")
+        return document["families"]
 
     def health(self) -> dict:
         """``GET /healthz``."""

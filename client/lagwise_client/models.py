@@ -8,9 +8,12 @@ at its range (its whole sill for spherical, cubic, pentaspherical and circular).
 from __future__ import annotations
 
 import math
-from collections.abc import Sequence
+from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
 from functools import lru_cache
+from typing import Any
+
+from .families import FAMILIES, RANGE, family
 
 PRACTICAL = 0.95
 
@@ -59,39 +62,51 @@ def _sine_factor() -> float:
     return _bisect(lambda u: 1.0 - math.sin(u) / u - PRACTICAL, 0.5, math.pi)
 
 
-def _unit(family: str, h: float, a: float, extra: float | None) -> float:
-    if family == "linear":
+def _unit(name: str, h: float, a: float, extra: float | None) -> float:
+    """Semivariance of a structure with unit magnitude at isotropic distance ``h``, range ``a``."""
+    shape = family(name).shape  # raises for a family this client does not know, naming the known ones
+    if shape and extra is None:
+        raise ValueError(f"the {name} family needs its {shape}")
+    e = 0.0 if extra is None else float(extra)  # read only by families with a shape parameter
+    if name == "linear":
         return h
-    if family == "power":
-        return h**extra
+    if name == "power":
+        return h**e
     r = h / a
-    if family == "exponential":
+    if name == "exponential":
         return 1.0 - math.exp(-3.0 * r)
-    if family == "gaussian":
+    if name == "gaussian":
         return 1.0 - math.exp(-3.0 * r * r)
-    if family == "stable":
-        return 1.0 - math.exp(-3.0 * r**extra)
-    if family == "matern":
-        return 1.0 - _matern_rho(h * _matern_factor(extra) / a, extra)
-    if family == "cardinal_sine":
+    if name == "stable":
+        return 1.0 - math.exp(-3.0 * r**e)
+    if name == "matern":
+        return 1.0 - _matern_rho(h * _matern_factor(e) / a, e)
+    if name == "cardinal_sine":
         u = h * _sine_factor() / a
         return 0.0 if u < 1e-12 else 1.0 - math.sin(u) / u
     if r >= 1.0:
         return 1.0
-    if family == "spherical":
+    if name == "spherical":
         return 1.5 * r - 0.5 * r**3
-    if family == "cubic":
+    if name == "cubic":
         return 7 * r**2 - 35 / 4 * r**3 + 7 / 2 * r**5 - 3 / 4 * r**7
-    if family == "pentaspherical":
+    if name == "pentaspherical":
         return 15 / 8 * r - 5 / 4 * r**3 + 3 / 8 * r**5
-    if family == "circular":
+    if name == "circular":
         return 1.0 - (2 / math.pi) * math.acos(r) + (2 / math.pi) * r * math.sqrt(1.0 - r * r)
-    raise ValueError(f"unknown family {family!r}")
+    raise ValueError(f"the client has no formula for the {name} family; update lagwise-client")
 
 
 @dataclass(frozen=True)
 class ModelStructure:
-    """One structure as the service describes it (see ``GET /v1/model-families``)."""
+    """One structure as the service describes it (see ``GET /v1/model-families``).
+
+    ``partial_sill`` holds the family's magnitude (partial sill, or slope for ``linear``,
+    coefficient for ``power``) and ``extra`` its shape parameter (smoothness, shape,
+    exponent), whatever the family calls them; :mod:`lagwise_client.families` has the names.
+    ``raw`` keeps the structure as the service sent it, so that a family this client does not
+    know yet is sent back unchanged.
+    """
 
     family: str
     partial_sill: float = 0.0
@@ -100,25 +115,69 @@ class ModelStructure:
     azimuth: float = 0.0
     ratio: float = 1.0
     vertical_ratio: float = 1.0
+    raw: Mapping[str, Any] = field(default_factory=dict, repr=False, compare=False)
 
     @classmethod
-    def from_dict(cls, d: dict) -> ModelStructure:
+    def from_dict(cls, d: Mapping[str, Any]) -> ModelStructure:
+        name = d.get("family")
+        if not isinstance(name, str):
+            raise ValueError(f"a structure needs a family name, got {name!r}")
         aniso = d.get("anisotropy") or {}
-        sill = d.get("partial_sill", d.get("slope", d.get("coefficient", 0.0)))
-        extra = d.get("smoothness", d.get("shape", d.get("exponent")))
-        return cls(
-            d["family"],
-            sill,
-            d.get("range", 1.0),
-            extra,
-            aniso.get("azimuth", 0.0),
-            aniso.get("ratio", 1.0),
-            aniso.get("vertical_ratio", 1.0),
+        geometry = dict(
+            azimuth=aniso.get("azimuth", 0.0),
+            ratio=aniso.get("ratio", 1.0),
+            vertical_ratio=aniso.get("vertical_ratio", 1.0),
         )
+        known = FAMILIES.get(name)
+        if known is None:
+            return cls(name, **geometry, raw=dict(d))
+        return cls(
+            name,
+            d.get(known.magnitude, 0.0),
+            d.get(RANGE, 1.0) if known.has_range else 1.0,
+            d.get(known.shape) if known.shape else None,
+            **geometry,
+            raw=dict(d),
+        )
+
+    def to_dict(self) -> dict:
+        """The structure as the service reads it."""
+        known = FAMILIES.get(self.family)
+        if known is None:
+            if self.raw:
+                return dict(self.raw)
+            known = family(self.family)  # raises, naming the known families
+        entry: dict[str, Any] = {"family": self.family, known.magnitude: self.partial_sill}
+        if known.has_range:
+            entry[RANGE] = self.range
+        if known.shape:
+            entry[known.shape] = self.extra
+        if (self.azimuth, self.ratio, self.vertical_ratio) != (0.0, 1.0, 1.0):
+            entry["anisotropy"] = {"azimuth": self.azimuth, "ratio": self.ratio, "vertical_ratio": self.vertical_ratio}
+        return entry
+
+    def check(self, dimension: int | None = None) -> ModelStructure:
+        """Raise ValueError naming the first parameter outside its family's bounds; returns self.
+
+        ``dimension`` (1, 2 or 3), when given, is checked against the family's validity.
+        """
+        known = family(self.family)
+        values: dict[str, float | None] = {known.magnitude: self.partial_sill, RANGE: self.range}
+        if known.shape:
+            values[known.shape] = self.extra
+        for parameter in known.parameters:
+            value = values[parameter.name]
+            if value is None or not parameter.admits(float(value)):
+                raise ValueError(f"{self.family}: {parameter.name} = {value!r} must be {parameter.bounds_text()}")
+        if dimension is not None and dimension > known.max_dimension:
+            raise ValueError(
+                f"{self.family} is a valid model up to {known.max_dimension} dimensions only, not {dimension}"
+            )
+        return self
 
     @property
     def bounded(self) -> bool:
-        return self.family not in ("linear", "power")
+        return family(self.family).bounded
 
     def distance(self, h: float | Sequence[float]) -> float:
         """Rescaled isotropic distance of a distance or a separation vector (x, y[, z])."""
@@ -148,27 +207,21 @@ class VariogramModel:
     structures: tuple[ModelStructure, ...] = field(default_factory=tuple)
 
     @classmethod
-    def from_dict(cls, d: dict) -> VariogramModel:
+    def from_dict(cls, d: Mapping[str, Any]) -> VariogramModel:
+        """Read a model (unknown members are ignored)."""
         return cls(float(d.get("nugget", 0.0)), tuple(ModelStructure.from_dict(s) for s in d.get("structures", [])))
 
     def to_dict(self) -> dict:
-        out = []
-        for s in self.structures:
-            entry: dict = {"family": s.family}
-            if s.family == "linear":
-                entry["slope"] = s.partial_sill
-            elif s.family == "power":
-                entry.update(coefficient=s.partial_sill, exponent=s.extra)
-            else:
-                entry.update(partial_sill=s.partial_sill, range=s.range)
-                if s.family == "matern":
-                    entry["smoothness"] = s.extra
-                if s.family == "stable":
-                    entry["shape"] = s.extra
-            if (s.azimuth, s.ratio, s.vertical_ratio) != (0.0, 1.0, 1.0):
-                entry["anisotropy"] = {"azimuth": s.azimuth, "ratio": s.ratio, "vertical_ratio": s.vertical_ratio}
-            out.append(entry)
-        return {"nugget": self.nugget, "structures": out}
+        """The model as the service reads it (a request's ``model``)."""
+        return {"nugget": self.nugget, "structures": [s.to_dict() for s in self.structures]}
+
+    def check(self, dimension: int | None = None) -> VariogramModel:
+        """Raise ValueError for a negative nugget or a structure parameter out of bounds; returns self."""
+        if not (math.isfinite(self.nugget) and self.nugget >= 0):
+            raise ValueError(f"nugget = {self.nugget!r} must be >= 0")
+        for structure in self.structures:
+            structure.check(dimension)
+        return self
 
     @property
     def sill(self) -> float | None:

@@ -1,10 +1,21 @@
-"""Small typed results returned by the client (plain Python; pandas optional)."""
+"""Small typed results returned by the client (plain Python; pandas optional).
+
+Results are read tolerantly: each class takes the members it knows from the response and
+ignores the others, so a newer service that adds members does not break a deployed client;
+the whole document of each part stays in its ``raw`` attribute. A member with a default may be
+missing; a missing member without one raises :class:`ResponseError` naming its place.
+"""
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from collections.abc import Mapping
+from dataclasses import MISSING, dataclass, field, fields
+from typing import Any, TypeVar
 
+from .errors import ResponseError
 from .models import VariogramModel
+
+T = TypeVar("T")
 
 
 def _dataframe(rows: list[dict]):
@@ -15,37 +26,106 @@ def _dataframe(rows: list[dict]):
     return pd.DataFrame(rows)
 
 
-@dataclass(frozen=True)
+def _object(payload: Any, where: str) -> Mapping[str, Any]:
+    if not isinstance(payload, Mapping):
+        raise ResponseError(f"the response's {where or '/'} is not a JSON object")
+    return payload
+
+
+def _items(document: Mapping[str, Any], name: str, where: str, required: bool = True) -> list:
+    """The list ``document[name]`` ([] when an optional list is missing or null)."""
+    value = document.get(name)
+    if value is None and not required:
+        return []
+    if not isinstance(value, list):
+        raise ResponseError(f"the response's {where}/{name} is missing or not a list")
+    return value
+
+
+def _read(cls: type[T], payload: Any, where: str, **typed: Any) -> T:
+    """An instance of the result dataclass ``cls`` from the members of ``payload`` it knows.
+
+    Parameters
+    ----------
+    payload : mapping
+        The part of the response (kept whole in ``raw``).
+    where : str
+        Its JSON pointer in the response, for messages.
+    typed
+        Members already turned into their typed form (nested results, tuples).
+    """
+    document = _object(payload, where)
+    values: dict[str, Any] = {}
+    for f in fields(cls):  # type: ignore[arg-type]
+        if f.name == "raw":
+            continue
+        if f.name in typed:
+            values[f.name] = typed[f.name]
+        elif f.name in document:
+            values[f.name] = document[f.name]
+        elif f.default is MISSING and f.default_factory is MISSING:
+            raise ResponseError(f"the response lacks {where}/{f.name}")
+    values["raw"] = dict(document)
+    return cls(**values)
+
+
+def _row(result: Any) -> dict:
+    """The typed members of a result as a flat dict (``raw`` left out)."""
+    return {f.name: getattr(result, f.name) for f in fields(result) if f.name != "raw"}
+
+
+def _raw() -> Any:
+    return field(default_factory=dict, repr=False, compare=False)
+
+
+@dataclass(frozen=True, kw_only=True)
 class VariogramClass:
     """One distance class: bounds [lower, upper), mean distance, pair count, value (None if undefined)."""
 
     lower: float
     upper: float
-    mean_distance: float | None
     pairs: int
-    value: float | None
-    sparse: bool
+    value: float | None = None
+    mean_distance: float | None = None
+    sparse: bool = False
     reason: str | None = None
     tail_mean: float | None = None
     head_mean: float | None = None
     tail_sd: float | None = None
     head_sd: float | None = None
+    raw: dict = _raw()
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, kw_only=True)
 class DirectionVariogram:
     """The classes of one direction class (angles in degrees)."""
 
     azimuth: float
-    tolerance: float
-    bandwidth: float | None
     classes: tuple[VariogramClass, ...]
+    tolerance: float | None = None
+    bandwidth: float | None = None
     dip: float | None = None
     dip_tolerance: float | None = None
     vertical_bandwidth: float | None = None
+    raw: dict = _raw()
+
+    @classmethod
+    def from_response(cls, payload: Any, where: str = "") -> DirectionVariogram:
+        document = _object(payload, where)
+        classes = tuple(
+            _read(VariogramClass, c, f"{where}/classes/{i}") for i, c in enumerate(_items(document, "classes", where))
+        )
+        return _read(cls, document, where, classes=classes)
 
 
-@dataclass(frozen=True)
+def _directions(document: Mapping[str, Any], where: str, required: bool = True) -> tuple[DirectionVariogram, ...]:
+    return tuple(
+        DirectionVariogram.from_response(d, f"{where}/directions/{i}")
+        for i, d in enumerate(_items(document, "directions", where, required))
+    )
+
+
+@dataclass(frozen=True, kw_only=True)
 class ExperimentalVariogram:
     """Result of :meth:`Lagwise.experimental_variogram`.
 
@@ -61,27 +141,22 @@ class ExperimentalVariogram:
     """
 
     directions: tuple[DirectionVariogram, ...]
-    summary: dict
-    parameters: dict
-    warnings: tuple[str, ...]
-    provenance: dict
+    summary: dict = field(default_factory=dict)
+    parameters: dict = field(default_factory=dict)
+    warnings: tuple[str, ...] = ()
+    provenance: dict = field(default_factory=dict)
     pairs_for_class: dict | None = None
-    raw: dict = field(default_factory=dict, repr=False)
+    raw: dict = _raw()
 
     @classmethod
-    def from_response(cls, document: dict) -> ExperimentalVariogram:
-        directions = []
-        for d in document["directions"]:
-            classes = tuple(VariogramClass(**c) for c in d["classes"])
-            directions.append(DirectionVariogram(**{k: v for k, v in d.items() if k != "classes"}, classes=classes))
-        return cls(
-            directions=tuple(directions),
-            summary=document["summary"],
-            parameters=document["parameters"],
-            warnings=tuple(document.get("warnings", [])),
-            provenance=document["provenance"],
-            pairs_for_class=document.get("pairs_for_class"),
-            raw=document,
+    def from_response(cls, document: Any) -> ExperimentalVariogram:
+        document = _object(document, "")
+        return _read(
+            cls,
+            document,
+            "",
+            directions=_directions(document, ""),
+            warnings=tuple(_items(document, "warnings", "", required=False)),
         )
 
     def to_dict(self) -> dict:
@@ -93,11 +168,11 @@ class ExperimentalVariogram:
         rows = []
         for index, d in enumerate(self.directions):
             for c in d.classes:
-                rows.append({"direction": index, "azimuth": d.azimuth, "tolerance": d.tolerance, **c.__dict__})
+                rows.append({"direction": index, "azimuth": d.azimuth, "tolerance": d.tolerance, **_row(c)})
         return _dataframe(rows)
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, kw_only=True)
 class VariogramMap:
     """Result of :meth:`Lagwise.variogram_map`: values[row][column], rows by hy."""
 
@@ -105,24 +180,24 @@ class VariogramMap:
     hy: tuple[float, ...]
     values: tuple[tuple[float | None, ...], ...]
     pairs: tuple[tuple[int, ...], ...]
-    summary: dict
-    parameters: dict
-    warnings: tuple[str, ...]
-    provenance: dict
-    raw: dict = field(default_factory=dict, repr=False)
+    summary: dict = field(default_factory=dict)
+    parameters: dict = field(default_factory=dict)
+    warnings: tuple[str, ...] = ()
+    provenance: dict = field(default_factory=dict)
+    raw: dict = _raw()
 
     @classmethod
-    def from_response(cls, document: dict) -> VariogramMap:
-        return cls(
-            hx=tuple(document["hx"]),
-            hy=tuple(document["hy"]),
-            values=tuple(tuple(row) for row in document["values"]),
-            pairs=tuple(tuple(row) for row in document["pairs"]),
-            summary=document["summary"],
-            parameters=document["parameters"],
-            warnings=tuple(document.get("warnings", [])),
-            provenance=document["provenance"],
-            raw=document,
+    def from_response(cls, document: Any) -> VariogramMap:
+        document = _object(document, "")
+        return _read(
+            cls,
+            document,
+            "",
+            hx=tuple(_items(document, "hx", "")),
+            hy=tuple(_items(document, "hy", "")),
+            values=tuple(tuple(row) for row in _items(document, "values", "")),
+            pairs=tuple(tuple(row) for row in _items(document, "pairs", "")),
+            warnings=tuple(_items(document, "warnings", "", required=False)),
         )
 
     def to_dict(self) -> dict:
@@ -139,23 +214,47 @@ class VariogramMap:
         return _dataframe(rows)
 
 
-@dataclass(frozen=True)
+def _model(payload: Any, where: str) -> VariogramModel:
+    try:
+        return VariogramModel.from_dict(_object(payload, where))
+    except (TypeError, ValueError) as exc:
+        raise ResponseError(f"the response's {where} is not a readable model: {exc}") from None
+
+
+@dataclass(frozen=True, kw_only=True)
 class Candidate:
-    """One candidate model tried by the fit, with its scores (lower criterion is better)."""
+    """One candidate model tried by the fit, with its scores (lower criterion is better).
+
+    ``model`` is None when the candidate's fit failed (``note`` says why).
+    """
 
     rank: int
     label: str
-    model: VariogramModel | None
-    parameters: int
-    weighted_sse: float | None
-    r_squared: float | None
-    criterion: float | None
-    converged: bool
-    iterations: int
+    model: VariogramModel | None = None
+    parameters: int | None = None
+    weighted_sse: float | None = None
+    r_squared: float | None = None
+    criterion: float | None = None
+    converged: bool = False
+    iterations: int | None = None
     note: str | None = None
+    raw: dict = _raw()
+
+    @classmethod
+    def from_response(cls, payload: Any, where: str) -> Candidate:
+        document = _object(payload, where)
+        model = document.get("model")
+        return _read(cls, document, where, model=None if model is None else _model(model, f"{where}/model"))
 
 
-@dataclass(frozen=True)
+def _candidates(document: Mapping[str, Any], where: str) -> tuple[Candidate, ...]:
+    return tuple(
+        Candidate.from_response(c, f"{where}/candidates/{i}")
+        for i, c in enumerate(_items(document, "candidates", where, required=False))
+    )
+
+
+@dataclass(frozen=True, kw_only=True)
 class ModelFit:
     """Result of :meth:`Lagwise.fit_model`.
 
@@ -172,31 +271,27 @@ class ModelFit:
     """
 
     model: VariogramModel
-    diagnostics: dict
-    candidates: tuple[Candidate, ...]
-    experimental: dict
-    parameters: dict
-    warnings: tuple[str, ...]
-    provenance: dict
+    diagnostics: dict = field(default_factory=dict)
+    candidates: tuple[Candidate, ...] = ()
+    experimental: dict = field(default_factory=dict)
+    parameters: dict = field(default_factory=dict)
+    warnings: tuple[str, ...] = ()
+    provenance: dict = field(default_factory=dict)
     summary: dict | None = None
-    raw: dict = field(default_factory=dict, repr=False)
+    raw: dict = _raw()
 
     @classmethod
-    def from_response(cls, document: dict) -> ModelFit:
-        candidates = tuple(
-            Candidate(**{**c, "model": None if c["model"] is None else VariogramModel.from_dict(c["model"])})
-            for c in document["candidates"]
-        )
-        return cls(
-            model=VariogramModel.from_dict(document["model"]),
-            diagnostics=document["diagnostics"],
-            candidates=candidates,
-            experimental=document["experimental"],
-            parameters=document["parameters"],
-            warnings=tuple(document.get("warnings", [])),
-            provenance=document["provenance"],
-            summary=document.get("summary"),
-            raw=document,
+    def from_response(cls, document: Any) -> ModelFit:
+        document = _object(document, "")
+        if "model" not in document:
+            raise ResponseError("the response lacks /model")
+        return _read(
+            cls,
+            document,
+            "",
+            model=_model(document["model"], "/model"),
+            candidates=_candidates(document, ""),
+            warnings=tuple(_items(document, "warnings", "", required=False)),
         )
 
     def to_dict(self) -> dict:
@@ -205,10 +300,10 @@ class ModelFit:
 
     def to_dataframe(self):
         """One row per candidate (needs pandas)."""
-        return _dataframe([{k: v for k, v in c.__dict__.items() if k != "model"} for c in self.candidates])
+        return _dataframe([{k: v for k, v in _row(c).items() if k != "model"} for c in self.candidates])
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, kw_only=True)
 class CrossValidation:
     """Result of :meth:`Lagwise.cross_validate`.
 
@@ -227,24 +322,22 @@ class CrossValidation:
 
     statistics: dict
     samples: dict
-    assessment: str
-    unestimated: tuple[dict, ...]
-    parameters: dict
-    warnings: tuple[str, ...]
-    provenance: dict
-    raw: dict = field(default_factory=dict, repr=False)
+    assessment: str = ""
+    unestimated: tuple[dict, ...] = ()
+    parameters: dict = field(default_factory=dict)
+    warnings: tuple[str, ...] = ()
+    provenance: dict = field(default_factory=dict)
+    raw: dict = _raw()
 
     @classmethod
-    def from_response(cls, document: dict) -> CrossValidation:
-        return cls(
-            statistics=document["statistics"],
-            samples=document["samples"],
-            assessment=document["assessment"],
-            unestimated=tuple(document.get("unestimated", [])),
-            parameters=document["parameters"],
-            warnings=tuple(document.get("warnings", [])),
-            provenance=document["provenance"],
-            raw=document,
+    def from_response(cls, document: Any) -> CrossValidation:
+        document = _object(document, "")
+        return _read(
+            cls,
+            document,
+            "",
+            unestimated=tuple(_items(document, "unestimated", "", required=False)),
+            warnings=tuple(_items(document, "warnings", "", required=False)),
         )
 
     def to_dict(self) -> dict:
@@ -258,39 +351,44 @@ class CrossValidation:
         )
 
 
-@dataclass(frozen=True)
+def _optional_tuple(document: Mapping[str, Any], name: str) -> tuple | None:
+    value = document.get(name)
+    return None if value is None else tuple(value)
+
+
+@dataclass(frozen=True, kw_only=True)
 class Predictions:
     """Result of :meth:`Lagwise.predict`: columnar targets, estimates and kriging variances
     (None where a target could not be estimated; ``unestimated`` says why)."""
 
     x: tuple[float, ...]
-    y: tuple[float, ...] | None
-    z: tuple[float, ...] | None
     estimate: tuple[float | None, ...]
     variance: tuple[float | None, ...]
-    grid: dict | None
-    unestimated: tuple[dict, ...]
-    weights: tuple[dict, ...]
-    parameters: dict
-    warnings: tuple[str, ...]
-    provenance: dict
-    raw: dict = field(default_factory=dict, repr=False)
+    y: tuple[float, ...] | None = None
+    z: tuple[float, ...] | None = None
+    grid: dict | None = None
+    unestimated: tuple[dict, ...] = ()
+    weights: tuple[dict, ...] = ()
+    parameters: dict = field(default_factory=dict)
+    warnings: tuple[str, ...] = ()
+    provenance: dict = field(default_factory=dict)
+    raw: dict = _raw()
 
     @classmethod
-    def from_response(cls, document: dict) -> Predictions:
-        return cls(
-            x=tuple(document["x"]),
-            y=tuple(document["y"]) if "y" in document else None,
-            z=tuple(document["z"]) if "z" in document else None,
-            estimate=tuple(document["estimate"]),
-            variance=tuple(document["variance"]),
-            grid=document.get("grid"),
-            unestimated=tuple(document.get("unestimated", [])),
-            weights=tuple(document.get("weights", [])),
-            parameters=document["parameters"],
-            warnings=tuple(document.get("warnings", [])),
-            provenance=document["provenance"],
-            raw=document,
+    def from_response(cls, document: Any) -> Predictions:
+        document = _object(document, "")
+        return _read(
+            cls,
+            document,
+            "",
+            x=tuple(_items(document, "x", "")),
+            y=_optional_tuple(document, "y"),
+            z=_optional_tuple(document, "z"),
+            estimate=tuple(_items(document, "estimate", "")),
+            variance=tuple(_items(document, "variance", "")),
+            unestimated=tuple(_items(document, "unestimated", "", required=False)),
+            weights=tuple(_items(document, "weights", "", required=False)),
+            warnings=tuple(_items(document, "warnings", "", required=False)),
         )
 
     def to_dict(self) -> dict:
@@ -317,7 +415,7 @@ class Predictions:
         return _dataframe([dict(zip(present, row, strict=True)) for row in zip(*present.values(), strict=True)])
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, kw_only=True)
 class Analysis:
     """Result of :meth:`Lagwise.analyze`: the stages as attributes.
 
@@ -329,7 +427,9 @@ class Analysis:
     model : VariogramModel
         The selected model (in transformed units when a transform was asked for).
     fit : dict
-        model, diagnostics, candidates.
+        model, diagnostics, candidates (as in the response).
+    candidates : tuple of Candidate
+        The fit's candidates, typed.
     cross_validation : dict or None
         statistics, samples, assessment.
     prediction : dict or None
@@ -339,36 +439,35 @@ class Analysis:
     verdict : str
     """
 
-    summary: dict
-    transformed_summary: dict
-    experimental: dict
     model: VariogramModel
     fit: dict
-    cross_validation: dict | None
-    prediction: dict | None
-    figures: dict
-    warnings: tuple[str, ...]
-    verdict: str
-    parameters: dict
-    provenance: dict
-    raw: dict = field(default_factory=dict, repr=False)
+    candidates: tuple[Candidate, ...] = ()
+    summary: dict = field(default_factory=dict)
+    transformed_summary: dict = field(default_factory=dict)
+    experimental: dict = field(default_factory=dict)
+    cross_validation: dict | None = None
+    prediction: dict | None = None
+    figures: dict = field(default_factory=dict)
+    warnings: tuple[str, ...] = ()
+    verdict: str = ""
+    parameters: dict = field(default_factory=dict)
+    provenance: dict = field(default_factory=dict)
+    raw: dict = _raw()
 
     @classmethod
-    def from_response(cls, document: dict) -> Analysis:
-        return cls(
-            summary=document["summary"],
-            transformed_summary=document["transformed_summary"],
-            experimental=document["experimental"],
-            model=VariogramModel.from_dict(document["fit"]["model"]),
-            fit=document["fit"],
-            cross_validation=document.get("cross_validation"),
-            prediction=document.get("prediction"),
-            figures=document.get("figures", {}),
-            warnings=tuple(document.get("warnings", [])),
-            verdict=document["verdict"],
-            parameters=document["parameters"],
-            provenance=document["provenance"],
-            raw=document,
+    def from_response(cls, document: Any) -> Analysis:
+        document = _object(document, "")
+        fit = _object(document.get("fit"), "/fit")
+        if "model" not in fit:
+            raise ResponseError("the response lacks /fit/model")
+        return _read(
+            cls,
+            document,
+            "",
+            model=_model(fit["model"], "/fit/model"),
+            candidates=_candidates(fit, "/fit"),
+            figures=document.get("figures") or {},
+            warnings=tuple(_items(document, "warnings", "", required=False)),
         )
 
     def to_dict(self) -> dict:

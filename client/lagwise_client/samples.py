@@ -1,0 +1,164 @@
+"""The request's ``samples`` member, from columns given one by one or from a table.
+
+A table is a mapping of column name to sequence (a ``dict``) or a pandas DataFrame. Every
+sample member the service reads is taken from it when present, including the censoring
+flags and detection limits; ``columns`` renames members to the table's own column names and
+is checked before anything is sent.
+"""
+
+from __future__ import annotations
+
+import math
+import numbers
+from collections.abc import Mapping
+from typing import Any
+
+from .errors import ColumnsError
+
+SAMPLE_MEMBERS = ("x", "y", "z", "values", "ids", "censored", "detection_limits")
+
+
+def column(value: Any) -> list:
+    """A list from a list, tuple, numpy array or pandas Series (no numpy import needed)."""
+    if hasattr(value, "tolist"):
+        return value.tolist()
+    return list(value)
+
+
+def _identifier(value: Any) -> Any:
+    # Integer ids (a DataFrame's default, numpy integers) travel as their decimal text; anything
+    # else is sent as it is and the service names the offending index if it is not text.
+    if isinstance(value, numbers.Integral) and not isinstance(value, bool):
+        return str(int(value))
+    return value
+
+
+def _limit(value: Any) -> Any:
+    # A table marks "no detection limit" with a missing value (NaN in pandas); JSON says null.
+    if isinstance(value, float) and math.isnan(value):
+        return None
+    return value
+
+
+def _member(name: str, values: Any) -> list:
+    items = column(values)
+    if name == "ids":
+        return [_identifier(v) for v in items]
+    if name == "detection_limits":
+        return [_limit(v) for v in items]
+    return items
+
+
+def _table_columns(samples: Any) -> list:
+    if isinstance(samples, Mapping):
+        return list(samples.keys())
+    if hasattr(samples, "columns"):
+        return list(samples.columns)
+    raise TypeError(f"samples must be a mapping of columns or a pandas DataFrame, got {type(samples).__name__}")
+
+
+def _source_names(available: list, columns: Mapping[str, Any] | None) -> dict[str, Any]:
+    """Member -> table column, after checking every key and column named in ``columns``."""
+    names: dict[str, Any] = {name: name for name in SAMPLE_MEMBERS}
+    for key, source in (columns or {}).items():
+        if key not in SAMPLE_MEMBERS:
+            raise ColumnsError(
+                f"columns: {key!r} is not a sample member; the members are {', '.join(SAMPLE_MEMBERS)}",
+                key=key,
+                column=None,
+                available=SAMPLE_MEMBERS,
+            )
+        if source not in available:
+            raise ColumnsError(
+                f"columns: {key!r} maps to {source!r}, which the table lacks; "
+                f"its columns are {', '.join(map(str, available))}",
+                key=key,
+                column=source,
+                available=available,
+            )
+        names[key] = source
+    if "values" not in (columns or {}) and "values" not in available and "value" in available:
+        names["values"] = "value"
+    return names
+
+
+def samples_document(
+    samples: Any = None,
+    *,
+    x: Any = None,
+    y: Any = None,
+    z: Any = None,
+    values: Any = None,
+    ids: Any = None,
+    censored: Any = None,
+    detection_limits: Any = None,
+    columns: Mapping[str, Any] | None = None,
+) -> dict:
+    """Build the ``samples`` member from a table or from columns.
+
+    Parameters
+    ----------
+    samples : pandas.DataFrame or mapping, optional
+        A table whose columns x, y, z, values (or value), ids, censored and detection_limits
+        are sent when present; rename with ``columns``, e.g. ``{"values": "lead_mg_kg",
+        "ids": "sample"}``. A mapping that holds ``geojson`` is sent as it is.
+    x, y, z, values, ids, censored, detection_limits : sequence, optional
+        Columns given one by one (lists, tuples, numpy arrays, pandas Series), instead of
+        ``samples``.
+    columns : mapping, optional
+        Sample member -> the table's column name.
+
+    Returns
+    -------
+    dict
+        Columns as lists; integer ids as text; missing detection limits (NaN) as None; a
+        table's missing value (NaN) at a censored sample as its detection limit (the service
+        ignores the value of a censored sample).
+
+    Raises
+    ------
+    ColumnsError
+        ``columns`` names an unknown member or a column the table lacks.
+    TypeError
+        Both a table and separate columns are given, or ``columns`` without a table.
+    """
+    given = {
+        "x": x,
+        "y": y,
+        "z": z,
+        "values": values,
+        "ids": ids,
+        "censored": censored,
+        "detection_limits": detection_limits,
+    }
+    separate = [name for name, value in given.items() if value is not None]
+    if samples is None:
+        if columns:
+            raise TypeError("columns renames the columns of a table given as samples; no table was given")
+        return {name: _member(name, given[name]) for name in separate}
+    if separate:
+        raise TypeError(
+            f"give the samples as a table or as separate columns, not both (also given: {', '.join(separate)})"
+        )
+    if isinstance(samples, Mapping) and "geojson" in samples:
+        if columns:
+            raise TypeError("columns applies to tables, not to GeoJSON samples (use value_property, id_property)")
+        return dict(samples)
+    available = _table_columns(samples)
+    names = _source_names(available, columns)
+    document = {name: _member(name, samples[source]) for name, source in names.items() if source in available}
+    _fill_censored_values(document)
+    return document
+
+
+def _fill_censored_values(document: dict) -> None:
+    """Send a censored sample's missing value (NaN in a table) as its detection limit.
+
+    The service ignores the value of a censored sample, but JSON cannot carry NaN.
+    """
+    flags, values, limits = (document.get(k) for k in ("censored", "values", "detection_limits"))
+    if not (flags and values and limits) or not len(flags) == len(values) == len(limits):
+        return
+    for i, (flag, value, limit) in enumerate(zip(flags, values, limits, strict=True)):
+        if flag is True and isinstance(value, float) and math.isnan(value) and limit is not None:
+            values[i] = limit
