@@ -42,8 +42,23 @@ def _items(document: Mapping[str, Any], name: str, where: str, required: bool = 
     return value
 
 
+def _member(f: Any, value: Any, where: str) -> Any:
+    """A response member in the form its field declares: JSON arrays become tuples (rows too)."""
+    annotation = str(f.type)
+    if value is None or not annotation.startswith("tuple"):
+        return value
+    if not isinstance(value, list):
+        raise ResponseError(f"the response's {where}/{f.name} is not a list")
+    if annotation.startswith("tuple[tuple"):
+        return tuple(tuple(row) if isinstance(row, list) else row for row in value)
+    return tuple(value)
+
+
 def _read(cls: type[T], payload: Any, where: str, **typed: Any) -> T:
     """An instance of the result dataclass ``cls`` from the members of ``payload`` it knows.
+
+    A member that is missing or null takes its field's default; one without a default must be
+    present. Arrays become tuples where the field says so.
 
     Parameters
     ----------
@@ -52,21 +67,37 @@ def _read(cls: type[T], payload: Any, where: str, **typed: Any) -> T:
     where : str
         Its JSON pointer in the response, for messages.
     typed
-        Members already turned into their typed form (nested results, tuples).
+        Members already turned into their typed form (nested results).
     """
     document = _object(payload, where)
     values: dict[str, Any] = {}
     for f in fields(cls):  # type: ignore[arg-type]
         if f.name == "raw":
             continue
+        has_default = f.default is not MISSING or f.default_factory is not MISSING
         if f.name in typed:
             values[f.name] = typed[f.name]
-        elif f.name in document:
-            values[f.name] = document[f.name]
-        elif f.default is MISSING and f.default_factory is MISSING:
+        elif document.get(f.name) is not None or (f.name in document and not has_default):
+            values[f.name] = _member(f, document[f.name], where)
+        elif not has_default:
             raise ResponseError(f"the response lacks {where}/{f.name}")
     values["raw"] = dict(document)
     return cls(**values)
+
+
+class Response:
+    """What every result read from a whole response has: ``from_response`` and ``to_dict``."""
+
+    raw: dict
+
+    @classmethod
+    def from_response(cls, document: Any) -> Any:
+        """Read the response document (see the module's notes on tolerance)."""
+        return _read(cls, document, "")
+
+    def to_dict(self) -> dict:
+        """The response document."""
+        return self.raw
 
 
 def _row(result: Any) -> dict:
@@ -110,7 +141,8 @@ class DirectionVariogram:
     raw: dict = _raw()
 
     @classmethod
-    def from_response(cls, payload: Any, where: str = "") -> DirectionVariogram:
+    def read(cls, payload: Any, where: str) -> DirectionVariogram:
+        """Read one direction of a response, ``where`` being its JSON pointer."""
         document = _object(payload, where)
         classes = tuple(
             _read(VariogramClass, c, f"{where}/classes/{i}") for i, c in enumerate(_items(document, "classes", where))
@@ -120,13 +152,13 @@ class DirectionVariogram:
 
 def _directions(document: Mapping[str, Any], where: str, required: bool = True) -> tuple[DirectionVariogram, ...]:
     return tuple(
-        DirectionVariogram.from_response(d, f"{where}/directions/{i}")
+        DirectionVariogram.read(d, f"{where}/directions/{i}")
         for i, d in enumerate(_items(document, "directions", where, required))
     )
 
 
 @dataclass(frozen=True, kw_only=True)
-class ExperimentalVariogram:
+class ExperimentalVariogram(Response):
     """Result of :meth:`Lagwise.experimental_variogram`.
 
     Attributes
@@ -151,17 +183,7 @@ class ExperimentalVariogram:
     @classmethod
     def from_response(cls, document: Any) -> ExperimentalVariogram:
         document = _object(document, "")
-        return _read(
-            cls,
-            document,
-            "",
-            directions=_directions(document, ""),
-            warnings=tuple(_items(document, "warnings", "", required=False)),
-        )
-
-    def to_dict(self) -> dict:
-        """The response document."""
-        return self.raw
+        return _read(cls, document, "", directions=_directions(document, ""))
 
     def to_dataframe(self):
         """One row per (direction, class) with the direction's azimuth and tolerance (needs pandas)."""
@@ -173,7 +195,7 @@ class ExperimentalVariogram:
 
 
 @dataclass(frozen=True, kw_only=True)
-class VariogramMap:
+class VariogramMap(Response):
     """Result of :meth:`Lagwise.variogram_map`: values[row][column], rows by hy."""
 
     hx: tuple[float, ...]
@@ -185,24 +207,6 @@ class VariogramMap:
     warnings: tuple[str, ...] = ()
     provenance: dict = field(default_factory=dict)
     raw: dict = _raw()
-
-    @classmethod
-    def from_response(cls, document: Any) -> VariogramMap:
-        document = _object(document, "")
-        return _read(
-            cls,
-            document,
-            "",
-            hx=tuple(_items(document, "hx", "")),
-            hy=tuple(_items(document, "hy", "")),
-            values=tuple(tuple(row) for row in _items(document, "values", "")),
-            pairs=tuple(tuple(row) for row in _items(document, "pairs", "")),
-            warnings=tuple(_items(document, "warnings", "", required=False)),
-        )
-
-    def to_dict(self) -> dict:
-        """The response document."""
-        return self.raw
 
     def to_dataframe(self):
         """One row per cell: hx, hy, value, pairs (needs pandas)."""
@@ -225,7 +229,8 @@ def _model(payload: Any, where: str) -> VariogramModel:
 class Candidate:
     """One candidate model tried by the fit, with its scores (lower criterion is better).
 
-    ``model`` is None when the candidate's fit failed (``note`` says why).
+    ``model`` is None when the candidate's fit failed (``note`` says why); ``selected`` is true
+    on the candidate the fit chose (from services that say so).
     """
 
     rank: int
@@ -238,10 +243,12 @@ class Candidate:
     converged: bool = False
     iterations: int | None = None
     note: str | None = None
+    selected: bool = False
     raw: dict = _raw()
 
     @classmethod
-    def from_response(cls, payload: Any, where: str) -> Candidate:
+    def read(cls, payload: Any, where: str) -> Candidate:
+        """Read one candidate of a response, ``where`` being its JSON pointer."""
         document = _object(payload, where)
         model = document.get("model")
         return _read(cls, document, where, model=None if model is None else _model(model, f"{where}/model"))
@@ -249,13 +256,20 @@ class Candidate:
 
 def _candidates(document: Mapping[str, Any], where: str) -> tuple[Candidate, ...]:
     return tuple(
-        Candidate.from_response(c, f"{where}/candidates/{i}")
+        Candidate.read(c, f"{where}/candidates/{i}")
         for i, c in enumerate(_items(document, "candidates", where, required=False))
     )
 
 
+def _fitted(fit: Mapping[str, Any], where: str) -> dict[str, Any]:
+    """The selected model and the candidates of a fit's document."""
+    if "model" not in fit:
+        raise ResponseError(f"the response lacks {where}/model")
+    return {"model": _model(fit["model"], f"{where}/model"), "candidates": _candidates(fit, where)}
+
+
 @dataclass(frozen=True, kw_only=True)
-class ModelFit:
+class ModelFit(Response):
     """Result of :meth:`Lagwise.fit_model`.
 
     Attributes
@@ -283,20 +297,7 @@ class ModelFit:
     @classmethod
     def from_response(cls, document: Any) -> ModelFit:
         document = _object(document, "")
-        if "model" not in document:
-            raise ResponseError("the response lacks /model")
-        return _read(
-            cls,
-            document,
-            "",
-            model=_model(document["model"], "/model"),
-            candidates=_candidates(document, ""),
-            warnings=tuple(_items(document, "warnings", "", required=False)),
-        )
-
-    def to_dict(self) -> dict:
-        """The response document."""
-        return self.raw
+        return _read(cls, document, "", **_fitted(document, ""))
 
     def to_dataframe(self):
         """One row per candidate (needs pandas)."""
@@ -304,7 +305,7 @@ class ModelFit:
 
 
 @dataclass(frozen=True, kw_only=True)
-class CrossValidation:
+class CrossValidation(Response):
     """Result of :meth:`Lagwise.cross_validate`.
 
     Attributes
@@ -329,21 +330,6 @@ class CrossValidation:
     provenance: dict = field(default_factory=dict)
     raw: dict = _raw()
 
-    @classmethod
-    def from_response(cls, document: Any) -> CrossValidation:
-        document = _object(document, "")
-        return _read(
-            cls,
-            document,
-            "",
-            unestimated=tuple(_items(document, "unestimated", "", required=False)),
-            warnings=tuple(_items(document, "warnings", "", required=False)),
-        )
-
-    def to_dict(self) -> dict:
-        """The response document."""
-        return self.raw
-
     def to_dataframe(self):
         """One row per sample (needs pandas)."""
         return _dataframe(
@@ -351,13 +337,8 @@ class CrossValidation:
         )
 
 
-def _optional_tuple(document: Mapping[str, Any], name: str) -> tuple | None:
-    value = document.get(name)
-    return None if value is None else tuple(value)
-
-
 @dataclass(frozen=True, kw_only=True)
-class Predictions:
+class Predictions(Response):
     """Result of :meth:`Lagwise.predict`: columnar targets, estimates and kriging variances
     (None where a target could not be estimated; ``unestimated`` says why)."""
 
@@ -373,27 +354,6 @@ class Predictions:
     warnings: tuple[str, ...] = ()
     provenance: dict = field(default_factory=dict)
     raw: dict = _raw()
-
-    @classmethod
-    def from_response(cls, document: Any) -> Predictions:
-        document = _object(document, "")
-        return _read(
-            cls,
-            document,
-            "",
-            x=tuple(_items(document, "x", "")),
-            y=_optional_tuple(document, "y"),
-            z=_optional_tuple(document, "z"),
-            estimate=tuple(_items(document, "estimate", "")),
-            variance=tuple(_items(document, "variance", "")),
-            unestimated=tuple(_items(document, "unestimated", "", required=False)),
-            weights=tuple(_items(document, "weights", "", required=False)),
-            warnings=tuple(_items(document, "warnings", "", required=False)),
-        )
-
-    def to_dict(self) -> dict:
-        """The response document."""
-        return self.raw
 
     def to_grid(self, which: str = "estimate"):
         """A 2-D numpy array (rows by y, columns by x; NaN where unestimated) for a grid request.
@@ -416,7 +376,7 @@ class Predictions:
 
 
 @dataclass(frozen=True, kw_only=True)
-class Analysis:
+class Analysis(Response):
     """Result of :meth:`Lagwise.analyze`: the stages as attributes.
 
     Attributes
@@ -457,22 +417,7 @@ class Analysis:
     @classmethod
     def from_response(cls, document: Any) -> Analysis:
         document = _object(document, "")
-        fit = _object(document.get("fit"), "/fit")
-        if "model" not in fit:
-            raise ResponseError("the response lacks /fit/model")
-        return _read(
-            cls,
-            document,
-            "",
-            model=_model(fit["model"], "/fit/model"),
-            candidates=_candidates(fit, "/fit"),
-            figures=document.get("figures") or {},
-            warnings=tuple(_items(document, "warnings", "", required=False)),
-        )
-
-    def to_dict(self) -> dict:
-        """The response document."""
-        return self.raw
+        return _read(cls, document, "", **_fitted(_object(document.get("fit"), "/fit"), "/fit"))
 
     def save_figures(self, folder) -> list:
         """Write each figure to ``folder`` (``<name>.svg`` or ``<name>.png``); returns the paths."""
