@@ -12,6 +12,9 @@ LAGWISE_MAX_MAP_CELLS          201         cells per side of a variogram map
 LAGWISE_MAX_UNIQUE_SAMPLES     10000       samples for kriging with the unique neighbourhood
 LAGWISE_MAX_TARGETS            2000000     prediction targets per request
 LAGWISE_MAX_KRIGING_FLOPS      2e13        estimated floating-point work of one request's kriging
+LAGWISE_MEMORY_BUDGET_BYTES    268435456   working memory of one request's largest arrays (256 MiB):
+                                           batched kriging solves are cut to fit it; unique-
+                                           neighbourhood matrices beyond it are refused
 LAGWISE_THREADS                cores/workers  compute threads per worker process
 LAGWISE_DEADLINE_SECONDS       60          time budget of one request; past it -> 503
 LAGWISE_API_KEYS               (none)      comma-separated SHA-256 hex digests of API keys

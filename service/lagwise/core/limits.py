@@ -37,6 +37,10 @@ class Limits:
     max_kriging_flops : int
         Estimated floating-point operations of the kriging systems of one request
         (``LAGWISE_MAX_KRIGING_FLOPS``).
+    memory_budget_bytes : int
+        Working memory of one request's largest arrays (``LAGWISE_MEMORY_BUDGET_BYTES``,
+        256 MiB): batched kriging solves and neighbour searches are cut to fit it, and
+        dense matrices that cannot be cut (the unique neighbourhood) must fit it.
     """
 
     max_samples: int = 200_000
@@ -47,6 +51,7 @@ class Limits:
     max_unique_samples: int = 10_000
     max_targets: int = 2_000_000
     max_kriging_flops: int = 20_000_000_000_000
+    memory_budget_bytes: int = 256 * 1024 * 1024
 
     def check_samples(self, n: int) -> None:
         """Refuse more than ``max_samples`` samples."""

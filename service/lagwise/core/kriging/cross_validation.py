@@ -28,6 +28,7 @@ from ..deadline import check_deadline
 from ..errors import InvalidInput
 from ..limits import Limits
 from ..modelling.models import VariogramModel
+from .cost import UNIQUE_LOO_COPIES, UNIQUE_PREDICTION_COPIES, check_kriging, cross_validation_flops, drift_terms
 from .neighbourhood import Neighbourhood
 from .systems import Kriger, KrigingSpec
 
@@ -113,6 +114,22 @@ def _observation_sd(kriger: Kriger, variance: np.ndarray) -> np.ndarray:
     return np.sqrt(variance + extra)
 
 
+def _check_cost(n: int, dimension: int, spec: KrigingSpec, hood: Neighbourhood, scheme: Scheme, limits: Limits) -> None:
+    """Refuse cross-validation above the kriging limits (operations and dense-matrix memory)."""
+    p = drift_terms(spec.type, spec.drift, dimension)
+    folds = None if scheme.type == "leave_one_out" else scheme.folds
+    check_kriging(
+        limits,
+        n,
+        n,
+        hood,
+        p,
+        flops=cross_validation_flops(n, folds, hood, p),
+        unique_copies=UNIQUE_LOO_COPIES if folds is None else UNIQUE_PREDICTION_COPIES,
+        what="cross-validation",
+    )
+
+
 def cross_validate(
     samples: SampleSet,
     model: VariogramModel,
@@ -146,10 +163,18 @@ def cross_validate(
     if not (math.isfinite(outlier_threshold) and outlier_threshold > 0):
         raise InvalidInput.at("/outlier_threshold", "must be positive")
     n = samples.size
+    _check_cost(n, samples.dimension, spec, neighbourhood, scheme, limits)
     estimate, sd = np.full(n, np.nan), np.full(n, np.nan)
     reasons: dict = {}
     if scheme.type == "leave_one_out":
-        kriger = Kriger(samples, model, spec, neighbourhood, max_unique=limits.max_unique_samples)
+        kriger = Kriger(
+            samples,
+            model,
+            spec,
+            neighbourhood,
+            max_unique=limits.max_unique_samples,
+            memory_budget=limits.memory_budget_bytes,
+        )
         if neighbourhood.unique:
             estimate, sd = _leave_one_out_unique(kriger)
             method = "leave-one-out, closed form (Dubrule 1983)"
@@ -164,7 +189,14 @@ def cross_validate(
             check_deadline()
             keep = np.ones(n, dtype=bool)
             keep[fold] = False
-            kriger = Kriger(samples.subset(keep), model, spec, neighbourhood, max_unique=limits.max_unique_samples)
+            kriger = Kriger(
+                samples.subset(keep),
+                model,
+                spec,
+                neighbourhood,
+                max_unique=limits.max_unique_samples,
+                memory_budget=limits.memory_budget_bytes,
+            )
             result = kriger.predict(samples.coords[fold], workers=workers)
             estimate[fold], sd[fold] = result.estimate, _observation_sd(kriger, result.variance)
             reasons.update({int(fold[t]): why for t, why in result.reasons.items()})

@@ -112,6 +112,14 @@ class NeighbourSearch:
         self.coords = coords
         self.n = neighbourhood
 
+    def candidates(self, leave_one_out: bool = False) -> int:
+        """Samples the search looks at per target (the k of the k-d tree query)."""
+        n = self.n
+        total = self.space.shape[0]
+        base = min(n.max_points, total)
+        wanted = base * n.sectors * 2 if n.sectors else base
+        return min(total, wanted + (1 if leave_one_out else 0))
+
     def query(
         self, targets: np.ndarray, exclude: np.ndarray | None = None, workers: int = 1
     ) -> tuple[np.ndarray, np.ndarray]:
@@ -122,10 +130,8 @@ class NeighbourSearch:
         below ``min_points`` gets an all-false row.
         """
         n = self.n
-        total = self.space.shape[0]
-        base = min(n.max_points, total)
-        wanted = base * n.sectors * 2 if n.sectors else base
-        k = min(total, wanted + (1 if exclude is not None else 0))
+        base = min(n.max_points, self.space.shape[0])
+        k = self.candidates(exclude is not None)
         space_targets = to_search_space(targets, self.anisotropy)
         upper = n.radius if n.radius is not None else np.inf
         dist, idx = self.tree.query(space_targets, k=k, distance_upper_bound=upper, workers=workers)

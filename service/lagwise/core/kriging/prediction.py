@@ -11,6 +11,7 @@ from ..data.samples import SampleSet
 from ..errors import FieldIssue, InvalidInput, LimitExceeded
 from ..limits import Limits
 from ..modelling.models import VariogramModel
+from .cost import check_kriging, drift_terms
 from .neighbourhood import Neighbourhood
 from .systems import Kriger, KrigingSpec, Prediction
 
@@ -83,26 +84,14 @@ def _project(samples: SampleSet, targets: np.ndarray) -> np.ndarray:
     return np.column_stack([x, y] + ([targets[:, 2]] if targets.shape[1] == 3 else []))
 
 
-def _check_cost(samples: SampleSet, m: int, neighbourhood: Neighbourhood, limits: Limits) -> None:
+def _check_cost(samples: SampleSet, m: int, neighbourhood: Neighbourhood, spec: KrigingSpec, limits: Limits) -> None:
     limits.check_samples(samples.size)
     if m > limits.max_targets:
         raise LimitExceeded(
             "LAGWISE_MAX_TARGETS", limits.max_targets, m, "Predict on a coarser grid or in several requests.", "/grid"
         )
-    n = samples.size
-    if neighbourhood.unique:
-        flops = n**3 / 3 + 2.0 * m * n * n
-    else:
-        k = min(neighbourhood.max_points, n) + 10
-        flops = m * (k**3 / 3 + 2 * k * k)
-    if flops > limits.max_kriging_flops:
-        raise LimitExceeded(
-            "LAGWISE_MAX_KRIGING_FLOPS",
-            limits.max_kriging_flops,
-            flops,
-            "Use fewer targets, fewer neighbours or a moving neighbourhood.",
-            "/neighbourhood",
-        )
+    p = drift_terms(spec.type, spec.drift, samples.dimension)
+    check_kriging(limits, samples.size, m, neighbourhood, p, what="prediction")
 
 
 def predict(
@@ -136,7 +125,7 @@ def predict(
         if points.shape[0] == 0:
             raise InvalidInput.at("/targets", "give at least one target")
     m = grid.size if grid is not None else points.shape[0]
-    _check_cost(samples, m, neighbourhood, limits)
+    _check_cost(samples, m, neighbourhood, spec, limits)
     if len(weights_for) > MAX_WEIGHT_TARGETS:
         raise InvalidInput.at("/return_weights", f"weights are returned for at most {MAX_WEIGHT_TARGETS} targets")
     bad = [t for t in weights_for if not 0 <= t < m]
@@ -144,6 +133,13 @@ def predict(
         raise InvalidInput.at("/return_weights", f"target index {bad[0]} is outside 0..{m - 1}")
     if grid is not None:
         points = grid.points()
-    kriger = Kriger(samples, model, spec, neighbourhood, max_unique=limits.max_unique_samples)
+    kriger = Kriger(
+        samples,
+        model,
+        spec,
+        neighbourhood,
+        max_unique=limits.max_unique_samples,
+        memory_budget=limits.memory_budget_bytes,
+    )
     prediction = kriger.predict(_project(samples, points), weights_for=tuple(weights_for), workers=workers)
     return PredictionResult(points, prediction, grid)

@@ -32,7 +32,9 @@ from scipy.spatial.distance import cdist
 from ..data.samples import SampleSet
 from ..deadline import check_deadline
 from ..errors import FieldIssue, InvalidInput, LimitExceeded
+from ..limits import Limits
 from ..modelling.models import VariogramModel, unit_semivariance, validate_model
+from .cost import batch_rows, query_rows
 from .neighbourhood import NO_NEIGHBOURS, Neighbourhood, NeighbourSearch, to_search_space, validate_neighbourhood
 
 KRIGING_TYPES = ("ordinary", "simple", "universal")
@@ -195,6 +197,7 @@ class Kriger:
         neighbourhood: Neighbourhood,
         *,
         max_unique: int = 10_000,
+        memory_budget: int = Limits.memory_budget_bytes,
     ):
         validate_neighbourhood(neighbourhood, samples.dimension)
         self.spec = validate_spec(spec, model, samples.dimension)
@@ -205,6 +208,7 @@ class Kriger:
         self.cov = Covariance(model, spec)
         self.frame = Frame.of(samples.coords)
         self.neighbourhood = neighbourhood
+        self.memory_budget = memory_budget
         self.drift_terms = self.frame.drift(spec, samples.coords[:1]).shape[-1]
         if neighbourhood.unique:
             if samples.size > max_unique:
@@ -306,19 +310,32 @@ class Kriger:
         variance = np.full(m, np.nan)
         reasons: dict = {}
         weights: list[dict] = []
-        for start in range(0, m, TARGET_CHUNK):
+        step = min(TARGET_CHUNK, query_rows(self.search.candidates(exclude is not None), self.memory_budget))
+        for start in range(0, m, step):
             check_deadline()
-            stop = min(m, start + TARGET_CHUNK)
+            stop = min(m, start + step)
             ex = None if exclude is None else exclude[start:stop]
             idx, valid = self.search.query(targets[start:stop], ex, workers)
             counts = valid.sum(axis=1)
             for t in np.flatnonzero(counts == 0):
                 reasons[start + int(t)] = NO_NEIGHBOURS
             for k in np.unique(counts[counts > 0]):
-                rows = np.flatnonzero(counts == k)
-                self._solve_group(
-                    targets[start:stop], idx[rows, :k], rows, start, estimate, variance, reasons, weights, want_weights
-                )
+                group = np.flatnonzero(counts == k)
+                batch = batch_rows(int(k), self.drift_terms, self.samples.dimension, self.memory_budget)
+                for first in range(0, len(group), batch):
+                    check_deadline()
+                    rows = group[first : first + batch]
+                    self._solve_group(
+                        targets[start:stop],
+                        idx[rows, :k],
+                        rows,
+                        start,
+                        estimate,
+                        variance,
+                        reasons,
+                        weights,
+                        want_weights,
+                    )
         return Prediction(estimate, variance, reasons, weights)
 
     def _solve_group(self, targets, idx, rows, start, estimate, variance, reasons, weights, want_weights):
