@@ -202,37 +202,30 @@ class _ClassRow:
     pairs: int
 
 
-_EXTRA = {"matern": "smoothness", "stable": "shape", "power": "exponent"}
+def _structure(pointer: str, raw: dict) -> Structure:
+    """One request structure, its family's parameter names (the family table) mapped to the core's slots."""
+    family = FAMILIES.get(raw["family"])
+    if family is None:
+        raise InvalidInput.at(f"{pointer}/family", f"unknown family {raw['family']!r}; valid: {', '.join(FAMILIES)}")
+    missing = [p.name for p in family.parameters if p.slot != "shape" and raw.get(p.name) is None]
+    if missing:
+        raise InvalidInput([FieldIssue(f"{pointer}/{name}", "is required") for name in missing])
+    slots = {p.slot: raw.get(p.name) for p in family.parameters}
+    aniso = raw.get("anisotropy") or {}
+    return Structure(
+        family.name,
+        float(slots["sill"]),
+        float(slots.get("range", 1.0)),
+        slots.get("shape"),
+        Anisotropy(aniso.get("azimuth", 0.0), aniso.get("ratio", 1.0), aniso.get("vertical_ratio", 1.0)),
+    )
 
 
 def variogram_model(document: dict) -> VariogramModel:
     """The request's model, with the family-specific parameter names mapped to the core's."""
     raw = document["model"]
-    structures = []
-    for k, s in enumerate(raw["structures"]):
-        family = s["family"]
-        if family == "linear":
-            sill = s.get("slope")
-        elif family == "power":
-            sill = s.get("coefficient")
-        else:
-            sill = s.get("partial_sill")
-        if sill is None:
-            name = {"linear": "slope", "power": "coefficient"}.get(family, "partial_sill")
-            raise InvalidInput.at(f"/model/structures/{k}/{name}", "is required")
-        if family in FAMILIES and FAMILIES[family].bounded and "range" not in s:
-            raise InvalidInput.at(f"/model/structures/{k}/range", "is required")
-        aniso = s.get("anisotropy") or {}
-        structures.append(
-            Structure(
-                family,
-                float(sill),
-                float(s.get("range", 1.0)),
-                s.get(_EXTRA.get(family, "")) if family in _EXTRA else None,
-                Anisotropy(aniso.get("azimuth", 0.0), aniso.get("ratio", 1.0), aniso.get("vertical_ratio", 1.0)),
-            )
-        )
-    return VariogramModel(float(raw["nugget"]), tuple(structures))
+    structures = tuple(_structure(f"/model/structures/{k}", s) for k, s in enumerate(raw["structures"]))
+    return VariogramModel(float(raw["nugget"]), structures)
 
 
 def kriging_spec(document: dict) -> KrigingSpec:

@@ -16,9 +16,9 @@ from ..core.analysis import analyse
 from ..core.deadline import deadline
 from ..core.kriging.cross_validation import cross_validate
 from ..core.kriging.prediction import predict
+from ..core.modelling.families import FIT_SCALES, family_catalogue, model_parameter_catalogue
 from ..core.modelling.fitting import fit_model
 from ..core.modelling.from_samples import fit_samples
-from ..core.modelling.models import family_catalogue
 from ..core.variography.experimental import experimental_variogram
 from ..core.variography.maps import variogram_map
 from . import convert, serialize
@@ -294,6 +294,8 @@ def model_families():
     return json_response(
         {
             "families": family_catalogue(),
+            "model_parameters": model_parameter_catalogue(),
+            "fit_scales": FIT_SCALES,
             "conventions": {
                 "range": "practical range: the distance at which a structure reaches 95 % of its partial sill (its sill for spherical, cubic, pentaspherical, circular)",
                 "anisotropy": "azimuth (degrees clockwise from north) of the longest range; ratio x range across it; vertical_ratio x range vertically",

@@ -12,7 +12,9 @@ from ..core.data.censoring import CENSORING_POLICIES
 from ..core.data.samples import COORDINATE_SYSTEMS, DUPLICATE_POLICIES
 from ..core.data.transforms import TRANSFORMS
 from ..core.kriging.systems import DRIFTS, KRIGING_TYPES, NUGGET_ROLES
+from ..core.modelling.families import ANISOTROPY, FAMILIES, UNIT_KINDS, Parameter, structure_parameters
 from ..core.modelling.fitting import SEMIVARIANCE_STATISTICS, WEIGHTINGS
+from ..core.modelling.models import Anisotropy
 from ..core.variography.lags import AUTO_METHODS, MAX_CLASSES
 from ..core.variography.statistics import STATISTICS
 from ..figures import FIGURES, FORMATS
@@ -216,28 +218,32 @@ class ModelFitRequest(SampleOptions):
                 raise ValidationError(f"{', '.join(clash)} apply to samples, not to a given experimental variogram")
 
 
-class AnisotropyInput(Schema):
-    azimuth = finite(load_default=0.0, validate=validate.Range(min=0, max=360, max_inclusive=False))
-    ratio = finite(load_default=1.0, validate=validate.Range(min=0, max=1, min_inclusive=False))
-    vertical_ratio = finite(load_default=1.0, validate=validate.Range(min=0, min_inclusive=False))
-
-
-class StructureInput(Schema):
-    """One structure: partial_sill and range (bounded families), slope (linear) or
-    coefficient and exponent (power); smoothness (matern), shape (stable)."""
-
-    family = fields.String(required=True)
-    partial_sill = finite(validate=validate.Range(min=0))
-    range = finite(
-        validate=validate.Range(min=0, min_inclusive=False),
-        metadata={"description": "Practical range, coordinate units."},
+def _bounded(parameter: Parameter, **kwargs) -> fields.Float:
+    """A finite float field checked against a parameter's documented bounds (the family table)."""
+    b = parameter.bounds
+    rule = validate.Range(
+        min=b.minimum,
+        max=b.maximum,
+        min_inclusive=not b.minimum_exclusive,
+        max_inclusive=not b.maximum_exclusive,
     )
-    slope = finite(validate=validate.Range(min=0))
-    coefficient = finite(validate=validate.Range(min=0))
-    exponent = finite()
-    smoothness = finite()
-    shape = finite()
-    anisotropy = fields.Nested(AnisotropyInput)
+    return finite(validate=rule, metadata={"description": parameter.unit}, **kwargs)
+
+
+AnisotropyInput = Schema.from_dict(
+    {p.name: _bounded(p, load_default=getattr(Anisotropy(), p.name)) for p in ANISOTROPY}, name="AnisotropyInput"
+)
+
+StructureInput = Schema.from_dict(
+    {
+        "family": fields.String(required=True, validate=validate.OneOf(FAMILIES)),
+        **{name: _bounded(p) for name, p in structure_parameters().items()},
+        "anisotropy": fields.Nested(AnisotropyInput),
+    },
+    name="StructureInput",
+)
+StructureInput.__doc__ = """One structure: its family's parameters (GET /v1/model-families), e.g. partial_sill and
+range (bounded families), slope (linear), coefficient and exponent (power)."""
 
 
 class ModelInput(Schema):
@@ -463,16 +469,14 @@ class AnisotropySchema(Schema):
     vertical_ratio = fields.Float()
 
 
-class StructureSchema(Schema):
-    family = fields.String()
-    partial_sill = fields.Float()
-    range = fields.Float(metadata={"description": "Practical range, coordinate units."})
-    slope = fields.Float()
-    coefficient = fields.Float()
-    exponent = fields.Float()
-    smoothness = fields.Float()
-    shape = fields.Float()
-    anisotropy = fields.Nested(AnisotropySchema)
+StructureSchema = Schema.from_dict(
+    {
+        "family": fields.String(),
+        **{name: fields.Float(metadata={"description": p.unit}) for name, p in structure_parameters().items()},
+        "anisotropy": fields.Nested(AnisotropySchema),
+    },
+    name="StructureSchema",
+)
 
 
 class ModelSchema(Schema):
@@ -528,12 +532,30 @@ class ModelFitResponse(ResultEnvelope):
     summary = fields.Nested(SummarySchema)
 
 
+class FitRuleSchema(Schema):
+    """A fit bound or start: factor times a named fit scale."""
+
+    factor = fields.Float()
+    scale = fields.String(metadata={"description": "A key of fit_scales."})
+
+
+class FamilyParameterFitSchema(Schema):
+    low = fields.Nested(FitRuleSchema)
+    high = fields.Nested(FitRuleSchema)
+    start = fields.Nested(FitRuleSchema)
+
+
 class FamilyParameterSchema(Schema):
     name = fields.String()
     unit = fields.String()
+    kind = fields.String(validate=validate.OneOf(UNIT_KINDS))
+    slot = fields.String(metadata={"description": "sill, range or shape; empty for model-wide parameters."})
     minimum = fields.Float()
     maximum = fields.Float()
-    exclusive = fields.Boolean()
+    exclusive = fields.Boolean(metadata={"description": "Every given end is open."})
+    minimum_exclusive = fields.Boolean()
+    maximum_exclusive = fields.Boolean()
+    fit = fields.Nested(FamilyParameterFitSchema, metadata={"description": "Bounds and start of a fit."})
 
 
 class FamilySchema(Schema):
@@ -542,10 +564,15 @@ class FamilySchema(Schema):
     max_dimension = fields.Integer()
     parameters = fields.List(fields.Nested(FamilyParameterSchema))
     formula = fields.String()
+    source = fields.String()
 
 
 class FamiliesResponse(Schema):
     families = fields.List(fields.Nested(FamilySchema))
+    model_parameters = fields.List(
+        fields.Nested(FamilyParameterSchema), metadata={"description": "The nugget and the anisotropy."}
+    )
+    fit_scales = fields.Dict(keys=fields.String(), values=fields.String())
     conventions = fields.Dict()
 
 

@@ -33,6 +33,7 @@ from scipy.optimize import least_squares
 
 from ..deadline import check_deadline
 from ..errors import FieldIssue, InvalidInput
+from .families import AZIMUTH, NUGGET, RATIO, Parameter, Scaled
 from .models import BOUNDED_FAMILIES, FAMILIES, Anisotropy, Structure, VariogramModel
 
 WEIGHTINGS = ("pairs", "pairs_over_distance", "cressie", "uniform")
@@ -163,8 +164,19 @@ def _candidate_specs(families, nugget, anisotropy, structures, dimension) -> lis
     return specs
 
 
+_SLOT_PREFIX = {"sill": "c", "range": "a", "shape": "e"}
+
+
+def _fit_rule(parameter: Parameter, which: str) -> Scaled:
+    """A parameter's fit bound or start from the family table (fitted parameters have all three)."""
+    rule = getattr(parameter, which)
+    if rule is None:
+        raise ValueError(f"{parameter.name} is not a fitted parameter")
+    return rule
+
+
 class _Problem:
-    """Parameter packing, bounds and starting points of one candidate."""
+    """Parameter packing, bounds and starting points of one candidate (from the family table)."""
 
     def __init__(self, spec: _Spec, points: ExperimentalPoints, sample_variance: float | None):
         self.spec = spec
@@ -191,35 +203,26 @@ class _Problem:
         else:
             self.nugget0 = 0.0
         self.gmax = gmax
-        self.names: list[str] = []
-        low, high = [], []
+        # Data-driven fit scales of the family table (numerator, denominator).
+        self.scales: dict[str, tuple[float, float]] = {
+            "one": (1.0, 1.0),
+            "largest_semivariance": (gmax, 1.0),
+            "largest_semivariance_per_shortest_distance": (gmax, max(self.hmin, 1e-300)),
+            "largest_semivariance_per_longest_distance": (gmax, self.hmax),
+            "shortest_distance": (self.hmin, 1.0),
+            "longest_distance": (self.hmax, 1.0),
+        }
+        # (name, parameter, structure index or None) in the order of theta.
+        self.layout: list[tuple[str, Parameter, int | None]] = []
         if spec.fit_nugget:
-            self.names.append("nugget")
-            low.append(0.0)
-            high.append(1.5 * gmax)
+            self.layout.append(("nugget", NUGGET, None))
         for k, family in enumerate(spec.families):
-            f = FAMILIES[family]
-            self.names.append(f"c{k}")
-            low.append(0.0)
-            high.append(
-                3.0 * gmax
-                if f.bounded
-                else (10.0 * gmax / max(self.hmin, 1e-300) if family == "linear" else 10.0 * gmax)
-            )
-            if f.bounded:
-                self.names.append(f"a{k}")
-                low.append(1e-3 * self.hmin)
-                high.append(5.0 * self.hmax)
-            if f.extra is not None:
-                self.names.append(f"e{k}")
-                lo, hi = f.extra_bounds
-                low.append(max(lo, 0.1) if family != "power" else 0.01)
-                high.append(min(hi, 10.0) if family == "matern" else (hi if family == "stable" else 1.99))
+            self.layout += [(f"{_SLOT_PREFIX[p.slot]}{k}", p, k) for p in FAMILIES[family].parameters]
         if spec.fit_anisotropy:
-            self.names += ["azimuth", "ratio"]
-            low += [0.0, 0.05]
-            high += [180.0, 1.0]
-        self.low, self.high = np.array(low), np.array(high)
+            self.layout += [("azimuth", AZIMUTH, None), ("ratio", RATIO, None)]
+        self.names = [name for name, _, _ in self.layout]
+        self.low = np.array([_fit_rule(p, "fit_low").value(self.scales) for _, p, _ in self.layout])
+        self.high = np.array([_fit_rule(p, "fit_high").value(self.scales) for _, p, _ in self.layout])
 
     @property
     def size(self) -> int:
@@ -256,31 +259,22 @@ class _Problem:
         ranges = (
             [(self.range0 / 3, self.range0 * 1.5)] if two else [(self.range0,), (self.hmax / 3,), (2 * self.hmax / 3,)]
         )
+        if not any(p.slot == "range" for _, p, _ in self.layout):
+            ranges = ranges[:1]  # the start sets differ only in their ranges
+        shares = (0.4, 0.6) if two else (1.0,)
         azimuths = list(self.azimuths) if self.spec.fit_anisotropy else [0.0]
         out = []
         for rs in ranges:
             for az in azimuths:
-                theta = []
-                if self.spec.fit_nugget:
-                    theta.append(nugget)
-                for k, family in enumerate(self.spec.families):
-                    f = FAMILIES[family]
-                    share = (0.4, 0.6)[k] if two else 1.0
-                    if family == "linear":
-                        theta.append(self.gmax / self.hmax)
-                    elif family == "power":
-                        theta.append(self.gmax / self.hmax)
-                    else:
-                        theta.append(structural * share)
-                    if f.bounded:
-                        theta.append(rs[k])
-                    if f.extra is not None:
-                        theta.append({"matern": 1.0, "stable": 1.0, "power": 1.0}[family])
-                if self.spec.fit_anisotropy:
-                    theta += [az, 0.6]
+                scales = {**self.scales, "nugget_guess": (nugget, 1.0), "class_azimuth": (az, 1.0)}
+                per_structure = [
+                    {**scales, "structural_sill": (structural * share, 1.0), "range_guess": (r, 1.0)}
+                    for share, r in zip(shares, rs, strict=True)
+                ]
+                theta = [
+                    _fit_rule(p, "start").value(scales if k is None else per_structure[k]) for _, p, k in self.layout
+                ]
                 out.append(np.clip(np.array(theta, dtype=float), self.low + 1e-12 * np.abs(self.low), self.high))
-            if family == "power" and len(out) >= 1 and not self.spec.fit_anisotropy:
-                break
         return out
 
 

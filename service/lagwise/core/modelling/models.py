@@ -24,6 +24,7 @@ sqrt((h.u)^2 + (h.p / ratio)^2 + (h_z / vertical_ratio)^2).
 from __future__ import annotations
 
 import math
+from collections.abc import Callable
 from dataclasses import dataclass, field
 from functools import lru_cache
 
@@ -33,103 +34,25 @@ from scipy.special import gamma as gamma_function
 from scipy.special import kv
 
 from ..errors import FieldIssue, InvalidInput
+from .families import ANISOTROPY, BOUNDED_FAMILIES, FAMILIES, NUGGET, Family, Parameter, family_catalogue
+
+__all__ = [
+    "BOUNDED_FAMILIES",
+    "FAMILIES",
+    "PRACTICAL",
+    "UNIT_SHAPES",
+    "Anisotropy",
+    "Family",
+    "Structure",
+    "VariogramModel",
+    "cardinal_sine_factor",
+    "family_catalogue",
+    "matern_practical_factor",
+    "unit_semivariance",
+    "validate_model",
+]
 
 PRACTICAL = 0.95
-
-
-@dataclass(frozen=True)
-class Family:
-    """A model family.
-
-    Attributes
-    ----------
-    name : str
-    bounded : bool
-        Has a sill (usable for covariances and simple kriging).
-    max_dimension : int
-        Largest dimension in which it is a valid (conditionally negative definite) model.
-    extra : str or None
-        Name of the family's shape parameter (``smoothness``, ``shape``, ``exponent``).
-    extra_bounds : tuple of float
-        Open/closed bounds of that parameter (low, high) as documented.
-    description : str
-        Formula in words with its source.
-    """
-
-    name: str
-    bounded: bool
-    max_dimension: int
-    extra: str | None
-    extra_bounds: tuple[float, float] | None
-    description: str
-
-
-FAMILIES = {
-    f.name: f
-    for f in [
-        Family(
-            "spherical",
-            True,
-            3,
-            None,
-            None,
-            "c (1.5 r - 0.5 r^3) for r = h/a < 1, c beyond (Chilès & Delfiner 2012, eq. 2.47)",
-        ),
-        Family("exponential", True, 3, None, None, "c (1 - exp(-3 h/a)) (Webster & Oliver 2007, eq. 6.14)"),
-        Family("gaussian", True, 3, None, None, "c (1 - exp(-3 (h/a)^2)) (Webster & Oliver 2007, eq. 6.16)"),
-        Family(
-            "cubic",
-            True,
-            3,
-            None,
-            None,
-            "c (7 r^2 - 35/4 r^3 + 7/2 r^5 - 3/4 r^7) for r < 1 (Chilès & Delfiner 2012, eq. 2.50)",
-        ),
-        Family(
-            "pentaspherical",
-            True,
-            3,
-            None,
-            None,
-            "c (15/8 r - 5/4 r^3 + 3/8 r^5) for r < 1 (Webster & Oliver 2007, eq. 6.12)",
-        ),
-        Family(
-            "circular",
-            True,
-            2,
-            None,
-            None,
-            "c (1 - (2/pi) arccos r + (2 r/pi) sqrt(1 - r^2)) for r < 1; 1-D and 2-D only (Webster & Oliver 2007, eq. 6.10)",
-        ),
-        Family(
-            "matern",
-            True,
-            3,
-            "smoothness",
-            (0.05, 20.0),
-            "c (1 - 2^(1-nu)/Gamma(nu) u^nu K_nu(u)), u = h/s, s set so that 95 % is reached at a (Stein 1999)",
-        ),
-        Family(
-            "stable",
-            True,
-            3,
-            "shape",
-            (0.05, 2.0),
-            "c (1 - exp(-3 (h/a)^alpha)), 0 < alpha <= 2 (Chilès & Delfiner 2012, eq. 2.55)",
-        ),
-        Family(
-            "cardinal_sine",
-            True,
-            3,
-            None,
-            None,
-            "c (1 - sin(u)/u), u = h/s, s set so that 95 % is first reached at a; hole effect (Chilès & Delfiner 2012, eq. 2.58)",
-        ),
-        Family("linear", False, 3, None, None, "slope * h (no sill)"),
-        Family("power", False, 3, "exponent", (0.0, 2.0), "coefficient * h^exponent, 0 < exponent < 2 (no sill)"),
-    ]
-}
-BOUNDED_FAMILIES = tuple(name for name, f in FAMILIES.items() if f.bounded)
 
 
 def _matern_rho(u: np.ndarray, nu: float) -> np.ndarray:
@@ -155,48 +78,101 @@ def cardinal_sine_factor() -> float:
     return float(brentq(lambda u: 1.0 - math.sin(u) / u - PRACTICAL, 0.5, math.pi, xtol=1e-15))
 
 
+def _ratio(h: np.ndarray, a: float) -> tuple[np.ndarray, np.ndarray]:
+    """r = h / a and whether each r lies inside the range."""
+    r = h / a
+    return r, r < 1.0
+
+
+def _spherical(h, a, extra):
+    r, inside = _ratio(h, a)
+    rc = np.minimum(r, 1.0)
+    return np.where(inside, 1.5 * rc - 0.5 * rc**3, 1.0)
+
+
+def _exponential(h, a, extra):
+    return 1.0 - np.exp(-3.0 * (h / a))
+
+
+def _gaussian(h, a, extra):
+    r = h / a
+    return 1.0 - np.exp(-3.0 * r * r)
+
+
+def _stable(h, a, extra):
+    return 1.0 - np.exp(-3.0 * (h / a) ** extra)
+
+
+def _cubic(h, a, extra):
+    r, inside = _ratio(h, a)
+    rc = np.minimum(r, 1.0)
+    return np.where(inside, 7 * rc**2 - 35 / 4 * rc**3 + 7 / 2 * rc**5 - 3 / 4 * rc**7, 1.0)
+
+
+def _pentaspherical(h, a, extra):
+    r, inside = _ratio(h, a)
+    rc = np.minimum(r, 1.0)
+    return np.where(inside, 15 / 8 * rc - 5 / 4 * rc**3 + 3 / 8 * rc**5, 1.0)
+
+
+def _circular(h, a, extra):
+    r, inside = _ratio(h, a)
+    rc = np.minimum(r, 1.0)
+    return np.where(inside, 1.0 - (2 / math.pi) * np.arccos(rc) + (2 / math.pi) * rc * np.sqrt(1.0 - rc * rc), 1.0)
+
+
+def _matern(h, a, extra):
+    return 1.0 - _matern_rho(h * (matern_practical_factor(float(extra)) / a), float(extra))
+
+
+def _cardinal_sine(h, a, extra):
+    u = h * (cardinal_sine_factor() / a)
+    safe = np.where(u > 1e-12, u, 1.0)
+    return np.where(u > 1e-12, 1.0 - np.sin(safe) / safe, 0.0)
+
+
+def _linear(h, a, extra):
+    return h.copy()
+
+
+def _power(h, a, extra):
+    return h**extra
+
+
+# The formula of each family named in :data:`FAMILIES` (same names, same order).
+UNIT_SHAPES: dict[str, Callable[[np.ndarray, float, float | None], np.ndarray]] = {
+    "spherical": _spherical,
+    "exponential": _exponential,
+    "gaussian": _gaussian,
+    "cubic": _cubic,
+    "pentaspherical": _pentaspherical,
+    "circular": _circular,
+    "matern": _matern,
+    "stable": _stable,
+    "cardinal_sine": _cardinal_sine,
+    "linear": _linear,
+    "power": _power,
+}
+
+
 def unit_semivariance(family: str, h: np.ndarray, a: float, extra: float | None = None) -> np.ndarray:
     """Semivariance of a structure with unit partial sill (or unit slope/coefficient).
 
     Parameters
     ----------
     family : str
+        A name of :data:`FAMILIES`.
     h : ndarray
         Isotropic (rescaled) distances, >= 0, coordinate units.
     a : float
-        Practical range (ignored by ``linear`` and ``power``).
+        Practical range, coordinate units (ignored by ``linear`` and ``power``).
     extra : float, optional
-        smoothness (matern), shape (stable) or exponent (power).
+        The family's shape parameter: smoothness (matern), shape (stable) or exponent (power).
     """
-    h = np.asarray(h, dtype=np.float64)
-    if family == "linear":
-        return h.copy()
-    if family == "power":
-        return h**extra
-    r = h / a
-    inside = r < 1.0
-    rc = np.minimum(r, 1.0)
-    if family == "spherical":
-        return np.where(inside, 1.5 * rc - 0.5 * rc**3, 1.0)
-    if family == "exponential":
-        return 1.0 - np.exp(-3.0 * r)
-    if family == "gaussian":
-        return 1.0 - np.exp(-3.0 * r * r)
-    if family == "stable":
-        return 1.0 - np.exp(-3.0 * r**extra)
-    if family == "cubic":
-        return np.where(inside, 7 * rc**2 - 35 / 4 * rc**3 + 7 / 2 * rc**5 - 3 / 4 * rc**7, 1.0)
-    if family == "pentaspherical":
-        return np.where(inside, 15 / 8 * rc - 5 / 4 * rc**3 + 3 / 8 * rc**5, 1.0)
-    if family == "circular":
-        return np.where(inside, 1.0 - (2 / math.pi) * np.arccos(rc) + (2 / math.pi) * rc * np.sqrt(1.0 - rc * rc), 1.0)
-    if family == "matern":
-        return 1.0 - _matern_rho(h * (matern_practical_factor(float(extra)) / a), float(extra))
-    if family == "cardinal_sine":
-        u = h * (cardinal_sine_factor() / a)
-        safe = np.where(u > 1e-12, u, 1.0)
-        return np.where(u > 1e-12, 1.0 - np.sin(safe) / safe, 0.0)
-    raise ValueError(f"unknown family {family!r}")
+    shape = UNIT_SHAPES.get(family)
+    if shape is None:
+        raise ValueError(f"unknown family {family!r}")
+    return shape(np.asarray(h, dtype=np.float64), a, extra)
 
 
 @dataclass(frozen=True)
@@ -257,18 +233,14 @@ class Structure:
         distances = self.anisotropy.distances(h) if np.ndim(h) == 2 else np.abs(np.asarray(h, dtype=np.float64))
         return self.partial_sill * unit_semivariance(self.family, distances, self.range, self.extra)
 
+    def slot_value(self, slot: str) -> float | None:
+        """The value held in a parameter slot (``sill``, ``range`` or ``shape``)."""
+        return {"sill": self.partial_sill, "range": self.range, "shape": self.extra}[slot]
+
     def as_dict(self) -> dict:
+        """The structure with its family's parameter names (see :data:`FAMILIES`)."""
         out: dict = {"family": self.family}
-        if self.family == "linear":
-            out["slope"] = self.partial_sill
-        elif self.family == "power":
-            out.update(coefficient=self.partial_sill, exponent=self.extra)
-        else:
-            out.update(partial_sill=self.partial_sill, range=self.range)
-            if self.family == "matern":
-                out["smoothness"] = self.extra
-            if self.family == "stable":
-                out["shape"] = self.extra
+        out.update((p.name, self.slot_value(p.slot)) for p in FAMILIES[self.family].parameters)
         if not self.anisotropy.isotropic or self.anisotropy.azimuth != 0.0:
             out["anisotropy"] = {
                 "azimuth": self.anisotropy.azimuth,
@@ -323,11 +295,22 @@ class VariogramModel:
         return {"nugget": self.nugget, "structures": [s.as_dict() for s in self.structures]}
 
 
+def _check(issues: list[FieldIssue], pointer: str, parameter: Parameter, value: float | None) -> None:
+    if not parameter.bounds.contains(value):
+        rule = parameter.bounds.requirement(parameter.kind)
+        issues.append(FieldIssue(pointer, rule if value is not None else f"is required and {rule}"))
+
+
 def validate_model(model: VariogramModel, dimension: int, pointer: str = "/model") -> None:
-    """Check parameters and validity in ``dimension``; raises InvalidInput naming the fields."""
-    issues = []
-    if not (math.isfinite(model.nugget) and model.nugget >= 0):
-        issues.append(FieldIssue(f"{pointer}/nugget", "must be zero or positive"))
+    """Check parameters (bounds of :data:`FAMILIES`) and validity in ``dimension``.
+
+    Raises
+    ------
+    InvalidInput
+        Naming each offending field below ``pointer``.
+    """
+    issues: list[FieldIssue] = []
+    _check(issues, f"{pointer}/nugget", NUGGET, model.nugget)
     if not model.structures and model.nugget <= 0:
         issues.append(FieldIssue(f"{pointer}/structures", "a model needs a structure or a positive nugget"))
     for k, s in enumerate(model.structures):
@@ -336,28 +319,10 @@ def validate_model(model: VariogramModel, dimension: int, pointer: str = "/model
         if family is None:
             issues.append(FieldIssue(f"{base}/family", f"unknown family {s.family!r}; valid: {', '.join(FAMILIES)}"))
             continue
-        if not (math.isfinite(s.partial_sill) and s.partial_sill >= 0):
-            name = {"linear": "slope", "power": "coefficient"}.get(s.family, "partial_sill")
-            issues.append(FieldIssue(f"{base}/{name}", "must be zero or positive"))
-        if family.bounded and not (math.isfinite(s.range) and s.range > 0):
-            issues.append(FieldIssue(f"{base}/range", "must be a positive distance"))
-        if family.extra is not None:
-            low, high = family.extra_bounds
-            value = s.extra
-            closed_high = family.name == "stable"
-            ok = value is not None and low < value and (value <= high if closed_high else value < high)
-            if not ok:
-                bracket = "]" if closed_high else ")"
-                issues.append(
-                    FieldIssue(f"{base}/{family.extra}", f"is required and must lie in ({low:g}, {high:g}{bracket}")
-                )
-        a = s.anisotropy
-        if not (0 < a.ratio <= 1):
-            issues.append(FieldIssue(f"{base}/anisotropy/ratio", "must lie in (0, 1]"))
-        if not (0 < a.vertical_ratio <= 1e6):
-            issues.append(FieldIssue(f"{base}/anisotropy/vertical_ratio", "must be positive"))
-        if not (0 <= a.azimuth < 360):
-            issues.append(FieldIssue(f"{base}/anisotropy/azimuth", "must lie in [0, 360) degrees"))
+        for parameter in family.parameters:
+            _check(issues, f"{base}/{parameter.name}", parameter, s.slot_value(parameter.slot))
+        for parameter in ANISOTROPY:
+            _check(issues, f"{base}/anisotropy/{parameter.name}", parameter, getattr(s.anisotropy, parameter.name))
         if dimension > family.max_dimension:
             issues.append(
                 FieldIssue(
@@ -367,42 +332,3 @@ def validate_model(model: VariogramModel, dimension: int, pointer: str = "/model
             )
     if issues:
         raise InvalidInput(issues)
-
-
-def family_catalogue() -> list[dict]:
-    """Every family with its parameters (units, bounds) and validity, for people and clients."""
-    catalogue = []
-    for f in FAMILIES.values():
-        if f.name == "linear":
-            params = [{"name": "slope", "unit": "value units squared per coordinate unit", "minimum": 0.0}]
-        elif f.name == "power":
-            params = [
-                {"name": "coefficient", "unit": "value units squared per coordinate unit^exponent", "minimum": 0.0},
-                {"name": "exponent", "unit": "dimensionless", "minimum": 0.0, "maximum": 2.0, "exclusive": True},
-            ]
-        else:
-            params = [
-                {"name": "partial_sill", "unit": "value units squared", "minimum": 0.0},
-                {"name": "range", "unit": "coordinate units (practical range)", "minimum": 0.0, "exclusive": True},
-            ]
-            if f.extra is not None:
-                low, high = f.extra_bounds
-                params.append(
-                    {
-                        "name": f.extra,
-                        "unit": "dimensionless",
-                        "minimum": low,
-                        "maximum": high,
-                        "exclusive": f.name != "stable",
-                    }
-                )
-        catalogue.append(
-            {
-                "name": f.name,
-                "bounded": f.bounded,
-                "max_dimension": f.max_dimension,
-                "parameters": params,
-                "formula": f.description,
-            }
-        )
-    return catalogue
