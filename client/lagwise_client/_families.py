@@ -14,16 +14,54 @@ CATALOGUE: list[dict[str, Any]] = [
             {
                 "name": "partial_sill",
                 "unit": "value units squared",
+                "kind": "value_squared",
+                "slot": "sill",
                 "minimum": 0.0,
+                "exclusive": False,
+                "minimum_exclusive": False,
+                "maximum_exclusive": False,
+                "fit": {
+                    "low": {
+                        "factor": 0.0,
+                        "scale": "one",
+                    },
+                    "high": {
+                        "factor": 3.0,
+                        "scale": "largest_semivariance",
+                    },
+                    "start": {
+                        "factor": 1.0,
+                        "scale": "structural_sill",
+                    },
+                },
             },
             {
                 "name": "range",
                 "unit": "coordinate units (practical range)",
+                "kind": "distance",
+                "slot": "range",
                 "minimum": 0.0,
                 "exclusive": True,
+                "minimum_exclusive": True,
+                "maximum_exclusive": False,
+                "fit": {
+                    "low": {
+                        "factor": 0.001,
+                        "scale": "shortest_distance",
+                    },
+                    "high": {
+                        "factor": 5.0,
+                        "scale": "longest_distance",
+                    },
+                    "start": {
+                        "factor": 1.0,
+                        "scale": "range_guess",
+                    },
+                },
             },
         ],
         "formula": "c (1.5 r - 0.5 r^3) for r = h/a < 1, c beyond (Chilès & Delfiner 2012, eq. 2.47)",
+        "source": "Chilès & Delfiner 2012, eq. 2.47",
     },
     {
         "name": "exponential",
@@ -33,16 +71,54 @@ CATALOGUE: list[dict[str, Any]] = [
             {
                 "name": "partial_sill",
                 "unit": "value units squared",
+                "kind": "value_squared",
+                "slot": "sill",
                 "minimum": 0.0,
+                "exclusive": False,
+                "minimum_exclusive": False,
+                "maximum_exclusive": False,
+                "fit": {
+                    "low": {
+                        "factor": 0.0,
+                        "scale": "one",
+                    },
+                    "high": {
+                        "factor": 3.0,
+                        "scale": "largest_semivariance",
+                    },
+                    "start": {
+                        "factor": 1.0,
+                        "scale": "structural_sill",
+                    },
+                },
             },
             {
                 "name": "range",
                 "unit": "coordinate units (practical range)",
+                "kind": "distance",
+                "slot": "range",
                 "minimum": 0.0,
                 "exclusive": True,
+                "minimum_exclusive": True,
+                "maximum_exclusive": False,
+                "fit": {
+                    "low": {
+                        "factor": 0.001,
+                        "scale": "shortest_distance",
+                    },
+                    "high": {
+                        "factor": 5.0,
+                        "scale": "longest_distance",
+                    },
+                    "start": {
+                        "factor": 1.0,
+                        "scale": "range_guess",
+                    },
+                },
             },
         ],
         "formula": "c (1 - exp(-3 h/a)) (Webster & Oliver 2007, eq. 6.14)",
+        "source": "Webster & Oliver 2007, eq. 6.14",
     },
     {
         "name": "gaussian",
@@ -52,16 +128,54 @@ CATALOGUE: list[dict[str, Any]] = [
             {
                 "name": "partial_sill",
                 "unit": "value units squared",
+                "kind": "value_squared",
+                "slot": "sill",
                 "minimum": 0.0,
+                "exclusive": False,
+                "minimum_exclusive": False,
+                "maximum_exclusive": False,
+                "fit": {
+                    "low": {
+                        "factor": 0.0,
+                        "scale": "one",
+                    },
+                    "high": {
+                        "factor": 3.0,
+                        "scale": "largest_semivariance",
+                    },
+                    "start": {
+                        "factor": 1.0,
+                        "scale": "structural_sill",
+                    },
+                },
             },
             {
                 "name": "range",
                 "unit": "coordinate units (practical range)",
+                "kind": "distance",
+                "slot": "range",
                 "minimum": 0.0,
                 "exclusive": True,
+                "minimum_exclusive": True,
+                "maximum_exclusive": False,
+                "fit": {
+                    "low": {
+                        "factor": 0.001,
+                        "scale": "shortest_distance",
+                    },
+                    "high": {
+                        "factor": 5.0,
+                        "scale": "longest_distance",
+                    },
+                    "start": {
+                        "factor": 1.0,
+                        "scale": "range_guess",
+                    },
+                },
             },
         ],
         "formula": "c (1 - exp(-3 (h/a)^2)) (Webster & Oliver 2007, eq. 6.16)",
+        "source": "Webster & Oliver 2007, eq. 6.16",
     },
     {
         "name": "cubic",
@@ -71,16 +185,54 @@ CATALOGUE: list[dict[str, Any]] = [
             {
                 "name": "partial_sill",
                 "unit": "value units squared",
+                "kind": "value_squared",
+                "slot": "sill",
                 "minimum": 0.0,
+                "exclusive": False,
+                "minimum_exclusive": False,
+                "maximum_exclusive": False,
+                "fit": {
+                    "low": {
+                        "factor": 0.0,
+                        "scale": "one",
+                    },
+                    "high": {
+                        "factor": 3.0,
+                        "scale": "largest_semivariance",
+                    },
+                    "start": {
+                        "factor": 1.0,
+                        "scale": "structural_sill",
+                    },
+                },
             },
             {
                 "name": "range",
                 "unit": "coordinate units (practical range)",
+                "kind": "distance",
+                "slot": "range",
                 "minimum": 0.0,
                 "exclusive": True,
+                "minimum_exclusive": True,
+                "maximum_exclusive": False,
+                "fit": {
+                    "low": {
+                        "factor": 0.001,
+                        "scale": "shortest_distance",
+                    },
+                    "high": {
+                        "factor": 5.0,
+                        "scale": "longest_distance",
+                    },
+                    "start": {
+                        "factor": 1.0,
+                        "scale": "range_guess",
+                    },
+                },
             },
         ],
         "formula": "c (7 r^2 - 35/4 r^3 + 7/2 r^5 - 3/4 r^7) for r < 1 (Chilès & Delfiner 2012, eq. 2.50)",
+        "source": "Chilès & Delfiner 2012, eq. 2.50",
     },
     {
         "name": "pentaspherical",
@@ -90,16 +242,54 @@ CATALOGUE: list[dict[str, Any]] = [
             {
                 "name": "partial_sill",
                 "unit": "value units squared",
+                "kind": "value_squared",
+                "slot": "sill",
                 "minimum": 0.0,
+                "exclusive": False,
+                "minimum_exclusive": False,
+                "maximum_exclusive": False,
+                "fit": {
+                    "low": {
+                        "factor": 0.0,
+                        "scale": "one",
+                    },
+                    "high": {
+                        "factor": 3.0,
+                        "scale": "largest_semivariance",
+                    },
+                    "start": {
+                        "factor": 1.0,
+                        "scale": "structural_sill",
+                    },
+                },
             },
             {
                 "name": "range",
                 "unit": "coordinate units (practical range)",
+                "kind": "distance",
+                "slot": "range",
                 "minimum": 0.0,
                 "exclusive": True,
+                "minimum_exclusive": True,
+                "maximum_exclusive": False,
+                "fit": {
+                    "low": {
+                        "factor": 0.001,
+                        "scale": "shortest_distance",
+                    },
+                    "high": {
+                        "factor": 5.0,
+                        "scale": "longest_distance",
+                    },
+                    "start": {
+                        "factor": 1.0,
+                        "scale": "range_guess",
+                    },
+                },
             },
         ],
         "formula": "c (15/8 r - 5/4 r^3 + 3/8 r^5) for r < 1 (Webster & Oliver 2007, eq. 6.12)",
+        "source": "Webster & Oliver 2007, eq. 6.12",
     },
     {
         "name": "circular",
@@ -109,16 +299,54 @@ CATALOGUE: list[dict[str, Any]] = [
             {
                 "name": "partial_sill",
                 "unit": "value units squared",
+                "kind": "value_squared",
+                "slot": "sill",
                 "minimum": 0.0,
+                "exclusive": False,
+                "minimum_exclusive": False,
+                "maximum_exclusive": False,
+                "fit": {
+                    "low": {
+                        "factor": 0.0,
+                        "scale": "one",
+                    },
+                    "high": {
+                        "factor": 3.0,
+                        "scale": "largest_semivariance",
+                    },
+                    "start": {
+                        "factor": 1.0,
+                        "scale": "structural_sill",
+                    },
+                },
             },
             {
                 "name": "range",
                 "unit": "coordinate units (practical range)",
+                "kind": "distance",
+                "slot": "range",
                 "minimum": 0.0,
                 "exclusive": True,
+                "minimum_exclusive": True,
+                "maximum_exclusive": False,
+                "fit": {
+                    "low": {
+                        "factor": 0.001,
+                        "scale": "shortest_distance",
+                    },
+                    "high": {
+                        "factor": 5.0,
+                        "scale": "longest_distance",
+                    },
+                    "start": {
+                        "factor": 1.0,
+                        "scale": "range_guess",
+                    },
+                },
             },
         ],
         "formula": "c (1 - (2/pi) arccos r + (2 r/pi) sqrt(1 - r^2)) for r < 1; 1-D and 2-D only (Webster & Oliver 2007, eq. 6.10)",
+        "source": "Webster & Oliver 2007, eq. 6.10",
     },
     {
         "name": "matern",
@@ -128,23 +356,79 @@ CATALOGUE: list[dict[str, Any]] = [
             {
                 "name": "partial_sill",
                 "unit": "value units squared",
+                "kind": "value_squared",
+                "slot": "sill",
                 "minimum": 0.0,
+                "exclusive": False,
+                "minimum_exclusive": False,
+                "maximum_exclusive": False,
+                "fit": {
+                    "low": {
+                        "factor": 0.0,
+                        "scale": "one",
+                    },
+                    "high": {
+                        "factor": 3.0,
+                        "scale": "largest_semivariance",
+                    },
+                    "start": {
+                        "factor": 1.0,
+                        "scale": "structural_sill",
+                    },
+                },
             },
             {
                 "name": "range",
                 "unit": "coordinate units (practical range)",
+                "kind": "distance",
+                "slot": "range",
                 "minimum": 0.0,
                 "exclusive": True,
+                "minimum_exclusive": True,
+                "maximum_exclusive": False,
+                "fit": {
+                    "low": {
+                        "factor": 0.001,
+                        "scale": "shortest_distance",
+                    },
+                    "high": {
+                        "factor": 5.0,
+                        "scale": "longest_distance",
+                    },
+                    "start": {
+                        "factor": 1.0,
+                        "scale": "range_guess",
+                    },
+                },
             },
             {
                 "name": "smoothness",
                 "unit": "dimensionless",
+                "kind": "dimensionless",
+                "slot": "shape",
                 "minimum": 0.05,
                 "maximum": 20.0,
                 "exclusive": True,
+                "minimum_exclusive": True,
+                "maximum_exclusive": True,
+                "fit": {
+                    "low": {
+                        "factor": 0.1,
+                        "scale": "one",
+                    },
+                    "high": {
+                        "factor": 10.0,
+                        "scale": "one",
+                    },
+                    "start": {
+                        "factor": 1.0,
+                        "scale": "one",
+                    },
+                },
             },
         ],
         "formula": "c (1 - 2^(1-nu)/Gamma(nu) u^nu K_nu(u)), u = h/s, s set so that 95 % is reached at a (Stein 1999)",
+        "source": "Stein 1999",
     },
     {
         "name": "stable",
@@ -154,23 +438,79 @@ CATALOGUE: list[dict[str, Any]] = [
             {
                 "name": "partial_sill",
                 "unit": "value units squared",
+                "kind": "value_squared",
+                "slot": "sill",
                 "minimum": 0.0,
+                "exclusive": False,
+                "minimum_exclusive": False,
+                "maximum_exclusive": False,
+                "fit": {
+                    "low": {
+                        "factor": 0.0,
+                        "scale": "one",
+                    },
+                    "high": {
+                        "factor": 3.0,
+                        "scale": "largest_semivariance",
+                    },
+                    "start": {
+                        "factor": 1.0,
+                        "scale": "structural_sill",
+                    },
+                },
             },
             {
                 "name": "range",
                 "unit": "coordinate units (practical range)",
+                "kind": "distance",
+                "slot": "range",
                 "minimum": 0.0,
                 "exclusive": True,
+                "minimum_exclusive": True,
+                "maximum_exclusive": False,
+                "fit": {
+                    "low": {
+                        "factor": 0.001,
+                        "scale": "shortest_distance",
+                    },
+                    "high": {
+                        "factor": 5.0,
+                        "scale": "longest_distance",
+                    },
+                    "start": {
+                        "factor": 1.0,
+                        "scale": "range_guess",
+                    },
+                },
             },
             {
                 "name": "shape",
                 "unit": "dimensionless",
+                "kind": "dimensionless",
+                "slot": "shape",
                 "minimum": 0.05,
                 "maximum": 2.0,
                 "exclusive": False,
+                "minimum_exclusive": True,
+                "maximum_exclusive": False,
+                "fit": {
+                    "low": {
+                        "factor": 0.1,
+                        "scale": "one",
+                    },
+                    "high": {
+                        "factor": 2.0,
+                        "scale": "one",
+                    },
+                    "start": {
+                        "factor": 1.0,
+                        "scale": "one",
+                    },
+                },
             },
         ],
         "formula": "c (1 - exp(-3 (h/a)^alpha)), 0 < alpha <= 2 (Chilès & Delfiner 2012, eq. 2.55)",
+        "source": "Chilès & Delfiner 2012, eq. 2.55",
     },
     {
         "name": "cardinal_sine",
@@ -180,16 +520,54 @@ CATALOGUE: list[dict[str, Any]] = [
             {
                 "name": "partial_sill",
                 "unit": "value units squared",
+                "kind": "value_squared",
+                "slot": "sill",
                 "minimum": 0.0,
+                "exclusive": False,
+                "minimum_exclusive": False,
+                "maximum_exclusive": False,
+                "fit": {
+                    "low": {
+                        "factor": 0.0,
+                        "scale": "one",
+                    },
+                    "high": {
+                        "factor": 3.0,
+                        "scale": "largest_semivariance",
+                    },
+                    "start": {
+                        "factor": 1.0,
+                        "scale": "structural_sill",
+                    },
+                },
             },
             {
                 "name": "range",
                 "unit": "coordinate units (practical range)",
+                "kind": "distance",
+                "slot": "range",
                 "minimum": 0.0,
                 "exclusive": True,
+                "minimum_exclusive": True,
+                "maximum_exclusive": False,
+                "fit": {
+                    "low": {
+                        "factor": 0.001,
+                        "scale": "shortest_distance",
+                    },
+                    "high": {
+                        "factor": 5.0,
+                        "scale": "longest_distance",
+                    },
+                    "start": {
+                        "factor": 1.0,
+                        "scale": "range_guess",
+                    },
+                },
             },
         ],
         "formula": "c (1 - sin(u)/u), u = h/s, s set so that 95 % is first reached at a; hole effect (Chilès & Delfiner 2012, eq. 2.58)",
+        "source": "Chilès & Delfiner 2012, eq. 2.58",
     },
     {
         "name": "linear",
@@ -199,10 +577,30 @@ CATALOGUE: list[dict[str, Any]] = [
             {
                 "name": "slope",
                 "unit": "value units squared per coordinate unit",
+                "kind": "value_squared_per_distance",
+                "slot": "sill",
                 "minimum": 0.0,
+                "exclusive": False,
+                "minimum_exclusive": False,
+                "maximum_exclusive": False,
+                "fit": {
+                    "low": {
+                        "factor": 0.0,
+                        "scale": "one",
+                    },
+                    "high": {
+                        "factor": 10.0,
+                        "scale": "largest_semivariance_per_shortest_distance",
+                    },
+                    "start": {
+                        "factor": 1.0,
+                        "scale": "largest_semivariance_per_longest_distance",
+                    },
+                },
             },
         ],
-        "formula": "slope * h (no sill)",
+        "formula": "slope * h, no sill (Chilès & Delfiner 2012, section 2.5)",
+        "source": "Chilès & Delfiner 2012, section 2.5",
     },
     {
         "name": "power",
@@ -212,16 +610,54 @@ CATALOGUE: list[dict[str, Any]] = [
             {
                 "name": "coefficient",
                 "unit": "value units squared per coordinate unit^exponent",
+                "kind": "value_squared_per_distance_power",
+                "slot": "sill",
                 "minimum": 0.0,
+                "exclusive": False,
+                "minimum_exclusive": False,
+                "maximum_exclusive": False,
+                "fit": {
+                    "low": {
+                        "factor": 0.0,
+                        "scale": "one",
+                    },
+                    "high": {
+                        "factor": 10.0,
+                        "scale": "largest_semivariance",
+                    },
+                    "start": {
+                        "factor": 1.0,
+                        "scale": "largest_semivariance_per_longest_distance",
+                    },
+                },
             },
             {
                 "name": "exponent",
                 "unit": "dimensionless",
+                "kind": "dimensionless",
+                "slot": "shape",
                 "minimum": 0.0,
                 "maximum": 2.0,
                 "exclusive": True,
+                "minimum_exclusive": True,
+                "maximum_exclusive": True,
+                "fit": {
+                    "low": {
+                        "factor": 0.01,
+                        "scale": "one",
+                    },
+                    "high": {
+                        "factor": 1.99,
+                        "scale": "one",
+                    },
+                    "start": {
+                        "factor": 1.0,
+                        "scale": "one",
+                    },
+                },
             },
         ],
-        "formula": "coefficient * h^exponent, 0 < exponent < 2 (no sill)",
+        "formula": "coefficient * h^exponent, 0 < exponent < 2, no sill (Chilès & Delfiner 2012, section 2.5)",
+        "source": "Chilès & Delfiner 2012, section 2.5",
     },
 ]
