@@ -20,8 +20,9 @@ class Limits:
     max_samples : int
         Samples per request (``LAGWISE_MAX_SAMPLES``).
     max_pairs : int
-        Pairs within the search radius, times the number of direction classes
-        (``LAGWISE_MAX_PAIRS``); the pair kernels run at about 1e8 pairs/s.
+        Pair work of one request (``LAGWISE_MAX_PAIRS``): for each pass of the pair
+        kernels, the pairs the x-sorted sweep visits plus the pairs within the search
+        radius times the number of direction classes; the kernels run at about 1e8 pairs/s.
     max_median_pairs : int
         Pairs whose differences the median-based estimator may hold in memory
         (8 bytes each, ``LAGWISE_MAX_MEDIAN_PAIRS``).
@@ -64,15 +65,20 @@ class Limits:
                 "/samples",
             )
 
-    def check_pairs(self, pairs: int, directions: int, pointer: str = "/lags") -> None:
-        """Refuse when pairs within the search radius times direction classes exceed ``max_pairs``."""
-        cost = pairs * max(directions, 1)
+    def check_pairs(
+        self, pairs: int, directions: int, pointer: str = "/lags", *, visited: int = 0, passes: int = 1
+    ) -> None:
+        """Refuse when ``passes`` x (visited pairs + pairs within the radius x direction classes) exceed ``max_pairs``."""
+        cost = passes * (visited + pairs * max(directions, 1))
         if cost > self.max_pairs:
             raise LimitExceeded(
                 "LAGWISE_MAX_PAIRS",
                 self.max_pairs,
                 cost,
-                "Shorten the largest distance class, use fewer direction classes or fewer samples.",
+                f"{passes} pass(es) over the pairs: {visited:,} visited by the sweep along x and {pairs:,} within "
+                f"the search radius for {max(directions, 1)} direction class(es). Shorten the largest distance "
+                "class, use fewer direction classes, fewer samples, or a statistic other than the median and "
+                "no h-scattergram.",
                 pointer,
             )
 

@@ -45,10 +45,13 @@ def compile_kernels() -> None:
 
     f8, i8 = "float64", "int64"
     a1, a2 = f"{f8}[::1]", f"{f8}[:, ::1]"
-    K.accumulate_classes.compile(f"({a2}, {a1}, {f8}, {f8}, {a2}, {a2}, {i8}[::1], {a1}, {i8}, {i8})")
-    K.accumulate_map.compile(f"({a2}, {a1}, {f8}, {f8}, {i8}, {i8}, {i8})")
-    K.accumulate_horizontal.compile(f"({a2}, {a1}, {f8}, {f8}, {a2}, {a2}, {i8}[:, ::1], {f8}, boolean, {i8}, {i8})")
-    K.collect_pairs.compile(
-        f"({a2}, {a1}, {f8}, {a2}, {a2}, {i8}[::1], {a1}, {i8}[::1], {i8}[::1], {a1}, {i8}, {i8}, {a1}, {a1})"
+    rows = f"{i8}, {i8}"
+    K.accumulate_classes.compile(f"({a2}, {a1}, {f8}, {f8}, {a2}, {a2}, {i8}[::1], {a1}, {i8}, {i8}, {rows})")
+    K.accumulate_map.compile(f"({a2}, {a1}, {f8}, {f8}, {i8}, {i8}, {i8}, {rows})")
+    K.accumulate_horizontal.compile(
+        f"({a2}, {a1}, {f8}, {f8}, {a2}, {a2}, {i8}[:, ::1], {f8}, boolean, {i8}, {i8}, {rows})"
     )
-    K.collect_map_differences.compile(f"({a2}, {a1}, {f8}, {i8}, {i8}[::1], {i8}[::1], {a1})")
+    K.collect_pairs.compile(
+        f"({a2}, {a1}, {f8}, {a2}, {a2}, {i8}[::1], {a1}, {i8}[::1], {i8}[::1], {a1}, {i8}, {i8}, {a1}, {a1}, {i8}[::1], {rows})"
+    )
+    K.collect_map_differences.compile(f"({a2}, {a1}, {f8}, {i8}, {i8}[::1], {i8}[::1], {a1}, {rows})")

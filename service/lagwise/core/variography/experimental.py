@@ -31,6 +31,7 @@ from .pairs import (
     layout,
     prepare,
     scatter_pairs,
+    sweep_visits,
 )
 from .statistics import ACCUMULATION_MODE, COVARIANCE_TYPE, STATISTICS, class_value
 
@@ -167,7 +168,19 @@ def _half_extent(samples: SampleSet, summary: Summary, direction: DirectionClass
     return 0.5 * float(np.ptp(projection))
 
 
-def _resolve_edges(samples, summary, prepared, lags, directions, min_pairs, limits):
+def pair_passes(lags: LagRequest, statistic: str, scattergram: bool) -> int:
+    """Passes of the pair kernels: automatic classes count once, the statistic once,
+    the median's differences and the h-scattergram once more each."""
+    explicit = lags.width is not None or lags.edges is not None
+    return 1 + (0 if explicit else 1) + (statistic == "semivariance_median") + int(scattergram)
+
+
+def _check_pairs(samples, prepared, radius, directions, passes, limits):
+    visited = int(sweep_visits(prepared.points[:, 0], radius).sum())
+    limits.check_pairs(estimate_pairs_within(samples.coords, radius), directions, visited=visited, passes=passes)
+
+
+def _resolve_edges(samples, summary, prepared, lags, directions, min_pairs, limits, passes):
     """Edges per direction and the typical spacing they were built from (None for explicit classes)."""
     explicit = validate_lags(lags)
     if explicit is not None:
@@ -175,7 +188,7 @@ def _resolve_edges(samples, summary, prepared, lags, directions, min_pairs, limi
     largest = [_half_extent(samples, summary, d) for d in directions]
     if min(largest) <= 0:
         raise InvalidInput.at("/directions", "the samples have no extent along a requested direction")
-    limits.check_pairs(estimate_pairs_within(samples.coords, max(largest)), len(directions))
+    _check_pairs(samples, prepared, max(largest), len(directions), passes, limits)
     if lags.method == "equal_pairs":
         fine = layout(directions, [np.linspace(0.0, top, AUTO_FINE_BINS + 1) for top in largest])
         table, _ = accumulate(prepared, fine, K.MODE_COUNT)
@@ -238,9 +251,10 @@ def experimental_variogram(
     resolved, warnings = _validate_options(samples, statistic, min_pairs, directions)
     summary = summarise(samples.coords, samples.values)
     prepared = prepare(samples.coords, samples.values)
-    edges, spacing = _resolve_edges(samples, summary, prepared, lags, resolved, min_pairs, limits)
+    passes = pair_passes(lags, statistic, pairs_for_class is not None)
+    edges, spacing = _resolve_edges(samples, summary, prepared, lags, resolved, min_pairs, limits, passes)
     classes = layout(resolved, edges)
-    limits.check_pairs(estimate_pairs_within(samples.coords, classes.search_radius), len(resolved))
+    _check_pairs(samples, prepared, classes.search_radius, len(resolved), passes, limits)
     check_deadline()
     table, colocated = accumulate(prepared, classes, ACCUMULATION_MODE[statistic])
     check_deadline()

@@ -130,8 +130,9 @@ def add_pair(table, b, d, tail, head, mode, mean):
 
 
 @njit(parallel=True, cache=True)
-def accumulate_classes(pts, vals, mean, max_d2, dirs, edges, nk, inv_width, mode, nthreads):
-    """Accumulate every pair within sqrt(max_d2) into (direction, class) bins.
+def accumulate_classes(pts, vals, mean, max_d2, dirs, edges, nk, inv_width, mode, nthreads, first, last):
+    """Accumulate every pair within sqrt(max_d2) whose first sample is in rows [first, last)
+    into (direction, class) bins.
 
     Returns the table of shape (ndir * kmax, ACCUMULATORS), bin = k * kmax + class,
     and the number of co-located (zero-distance) pairs, which fall in no class.
@@ -141,12 +142,12 @@ def accumulate_classes(pts, vals, mean, max_d2, dirs, edges, nk, inv_width, mode
     kmax = edges.shape[1] - 1
     tables = np.zeros((nthreads, ndir * kmax, ACCUMULATORS))
     colocated = np.zeros(nthreads, dtype=np.int64)
-    nblocks = (n + ROW_BLOCK - 1) // ROW_BLOCK
+    nblocks = (last - first + ROW_BLOCK - 1) // ROW_BLOCK
     for t in prange(nthreads):
         table = tables[t]
         zero_pairs = 0
         for blk in range(t, nblocks, nthreads):
-            for i in range(blk * ROW_BLOCK, min(n, (blk + 1) * ROW_BLOCK)):
+            for i in range(first + blk * ROW_BLOCK, min(last, first + (blk + 1) * ROW_BLOCK)):
                 xi = pts[i, 0]
                 yi = pts[i, 1]
                 zi = pts[i, 2]
@@ -202,8 +203,8 @@ def add_oriented(table, b, d, vi, vj, dx, dy, dz, dirs, k, mode, mean):
 
 
 @njit(parallel=True, cache=True)
-def accumulate_horizontal(pts, vals, mean, max_d2, dirs, padded, lut, inv_cell, shared, mode, nthreads):
-    """Fast path of :func:`accumulate_classes` for classes without dip or vertical band.
+def accumulate_horizontal(pts, vals, mean, max_d2, dirs, padded, lut, inv_cell, shared, mode, nthreads, first, last):
+    """Fast path of :func:`accumulate_classes` (rows [first, last)) for classes without dip or vertical band.
 
     Class lookup: ``lut[k, m]`` is ``searchsorted(edges_k, m * cell, "right") - 1`` for
     fine cells narrower than the narrowest class, so one step up and one step down
@@ -226,7 +227,7 @@ def accumulate_horizontal(pts, vals, mean, max_d2, dirs, padded, lut, inv_cell, 
     last_cell = lut.shape[1] - 1
     tables = np.zeros((nthreads, ndir * stride, ACCUMULATORS))
     colocated = np.zeros(nthreads, dtype=np.int64)
-    nblocks = (n + ROW_BLOCK - 1) // ROW_BLOCK
+    nblocks = (last - first + ROW_BLOCK - 1) // ROW_BLOCK
     xs = np.ascontiguousarray(pts[:, 0])
     ys = np.ascontiguousarray(pts[:, 1])
     zs = np.ascontiguousarray(pts[:, 2])
@@ -240,7 +241,7 @@ def accumulate_horizontal(pts, vals, mean, max_d2, dirs, padded, lut, inv_cell, 
         zero_pairs = 0
         near = np.empty(n, dtype=np.int64)
         for blk in range(t, nblocks, nthreads):
-            for i in range(blk * ROW_BLOCK, min(n, (blk + 1) * ROW_BLOCK)):
+            for i in range(first + blk * ROW_BLOCK, min(last, first + (blk + 1) * ROW_BLOCK)):
                 xi = xs[i]
                 yi = ys[i]
                 zi = zs[i]
@@ -302,24 +303,41 @@ def accumulate_horizontal(pts, vals, mean, max_d2, dirs, padded, lut, inv_cell, 
 
 @njit(cache=True)
 def collect_pairs(
-    pts, vals, max_d2, dirs, edges, nk, inv_width, offsets, ends, out_abs, target, stride, out_tail, out_head
+    pts,
+    vals,
+    max_d2,
+    dirs,
+    edges,
+    nk,
+    inv_width,
+    offsets,
+    ends,
+    out_abs,
+    target,
+    stride,
+    out_tail,
+    out_head,
+    state,
+    first,
+    last,
 ):
-    """Serial pass that copies pair values out of the accumulators' reach.
+    """Serial pass over rows [first, last) that copies pair values out of the accumulators' reach.
 
     When ``out_abs`` is non-empty, |head - tail| of every member pair is written at
     ``offsets[bin]`` onwards, never past ``ends[bin]`` (offsets are advanced; they
     come from the counts of an earlier pass, and the bound keeps a disagreement from
     writing outside the bin). When ``target >= 0``, every ``stride``-th pair of that bin (in
     visiting order) has its centred tail and head values written to out_tail/out_head.
-    Returns how many scattergram pairs were written.
+    ``state`` holds (pairs of the target bin seen, scattergram pairs written) and is
+    carried from one range of rows to the next.
     """
     n = pts.shape[0]
     ndir = dirs.shape[0]
     kmax = edges.shape[1] - 1
-    seen = 0
-    written = 0
+    seen = state[0]
+    written = state[1]
     want_abs = out_abs.shape[0] > 0
-    for i in range(n):
+    for i in range(first, last):
         for j in range(i + 1, n):
             dx = pts[j, 0] - pts[i, 0]
             if dx * dx > max_d2:
@@ -344,7 +362,8 @@ def collect_pairs(
                         out_head[written] = vals[j] if sign > 0 else vals[i]
                         written += 1
                     seen += 1
-    return written
+    state[0] = seen
+    state[1] = written
 
 
 @njit(cache=True)
@@ -358,8 +377,9 @@ def map_cell(hx, hy, cell, cells):
 
 
 @njit(parallel=True, cache=True)
-def accumulate_map(pts, vals, mean, cell, cells, mode, nthreads):
-    """Accumulate every pair, as h and as -h, into the cells of a variogram map.
+def accumulate_map(pts, vals, mean, cell, cells, mode, nthreads, first, last):
+    """Accumulate every pair whose first sample is in rows [first, last), as h and as -h,
+    into the cells of a variogram map.
 
     Cell (i, j) collects horizontal separations with hx in [(i - 1/2) cell, (i + 1/2) cell)
     and hy likewise, i, j in [-cells, cells]; the pair (a, b) counts with tail a and head
@@ -369,11 +389,11 @@ def accumulate_map(pts, vals, mean, cell, cells, mode, nthreads):
     width = 2 * cells + 1
     reach = (cells + 0.5) * cell
     tables = np.zeros((nthreads, width * width, ACCUMULATORS))
-    nblocks = (n + ROW_BLOCK - 1) // ROW_BLOCK
+    nblocks = (last - first + ROW_BLOCK - 1) // ROW_BLOCK
     for t in prange(nthreads):
         table = tables[t]
         for blk in range(t, nblocks, nthreads):
-            for i in range(blk * ROW_BLOCK, min(n, (blk + 1) * ROW_BLOCK)):
+            for i in range(first + blk * ROW_BLOCK, min(last, first + (blk + 1) * ROW_BLOCK)):
                 for j in range(i + 1, n):
                     dx = pts[j, 0] - pts[i, 0]
                     if dx > reach:
@@ -392,11 +412,12 @@ def accumulate_map(pts, vals, mean, cell, cells, mode, nthreads):
 
 
 @njit(cache=True)
-def collect_map_differences(pts, vals, cell, cells, offsets, ends, out_abs):
-    """Serial pass writing |head - tail| of every map pair at offsets[cell] onwards (up to ends[cell])."""
+def collect_map_differences(pts, vals, cell, cells, offsets, ends, out_abs, first, last):
+    """Serial pass over rows [first, last) writing |head - tail| of every map pair at
+    offsets[cell] onwards (up to ends[cell])."""
     n = pts.shape[0]
     reach = (cells + 0.5) * cell
-    for i in range(n):
+    for i in range(first, last):
         for j in range(i + 1, n):
             dx = pts[j, 0] - pts[i, 0]
             if dx > reach:

@@ -29,6 +29,7 @@ sets). Three ways to ask for them:
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 
 import numpy as np
@@ -81,6 +82,8 @@ def validate_lags(request: LagRequest) -> np.ndarray | None:
             issues.append(FieldIssue("/lags/width", "must be a positive distance"))
         if request.count is None or not 1 <= request.count <= MAX_CLASSES:
             issues.append(FieldIssue("/lags/count", f"must be a whole number from 1 to {MAX_CLASSES}"))
+        elif request.width is not None and not math.isfinite(request.width * request.count):
+            issues.append(FieldIssue("/lags/width", "width x count must be a finite distance"))
         if issues:
             raise InvalidInput(issues)
         return request.width * np.arange(request.count + 1, dtype=np.float64)

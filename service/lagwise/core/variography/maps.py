@@ -30,7 +30,7 @@ from ..data.summary import Summary, summarise
 from ..errors import FieldIssue, InvalidInput
 from ..limits import Limits
 from . import kernels as K
-from .pairs import estimate_pairs_within, prepare
+from .pairs import estimate_pairs_within, in_chunks, prepare, sweep_visits
 from .statistics import ACCUMULATION_MODE, STATISTICS, class_value
 
 AUTO_MAX_MAP_CELLS = 40
@@ -157,15 +157,35 @@ def variogram_map(
         samples, cell_size if cell_size is not None else 1.0, cells if cells is not None else 1, statistic, limits
     )
     reach = (cells + 0.5) * cell_size
-    limits.check_pairs(estimate_pairs_within(samples.coords[:, :2], reach * math.sqrt(2.0)), 2, "/cells")
     prepared = prepare(samples.coords, samples.values)
-    mode = ACCUMULATION_MODE[statistic]
-    table = K.accumulate_map(
-        prepared.points, prepared.values, prepared.mean, cell_size, cells, mode, numba.get_num_threads()
+    visits = sweep_visits(prepared.points[:, 0], reach)
+    limits.check_pairs(
+        estimate_pairs_within(samples.coords[:, :2], reach * math.sqrt(2.0)),
+        2,
+        "/cells",
+        visited=int(visits.sum()),
+        passes=2 if statistic == "semivariance_median" else 1,
     )
+    mode = ACCUMULATION_MODE[statistic]
+    table = np.zeros(((2 * cells + 1) ** 2, K.ACCUMULATORS))
+
+    def run(first: int, last: int) -> None:
+        table[:] += K.accumulate_map(
+            prepared.points,
+            prepared.values,
+            prepared.mean,
+            cell_size,
+            cells,
+            mode,
+            numba.get_num_threads(),
+            first,
+            last,
+        )
+
+    in_chunks(visits, run)
     width = 2 * cells + 1
     counts = table[:, K.COUNT].astype(np.int64)
-    medians = _cell_medians(statistic, prepared, cell_size, cells, counts, limits)
+    medians = _cell_medians(statistic, prepared, cell_size, cells, counts, visits, limits)
     flat = [
         class_value(statistic, table[b], prepared.mean, prepared.scale, medians[b]).value for b in range(width * width)
     ]
@@ -188,14 +208,20 @@ def variogram_map(
     )
 
 
-def _cell_medians(statistic, prepared, cell_size, cells, counts, limits) -> np.ndarray:
+def _cell_medians(statistic, prepared, cell_size, cells, counts, visits, limits) -> np.ndarray:
     medians = np.full(counts.shape, np.nan)
     if statistic != "semivariance_median":
         return medians
     limits.check_median_pairs(int(counts.sum()))
     starts = np.concatenate([[0], np.cumsum(counts)[:-1]]).astype(np.int64)
     out = np.empty(int(counts.sum()))
-    K.collect_map_differences(prepared.points, prepared.values, cell_size, cells, starts.copy(), starts + counts, out)
+    offsets, ends = starts.copy(), starts + counts
+    in_chunks(
+        visits,
+        lambda first, last: K.collect_map_differences(
+            prepared.points, prepared.values, cell_size, cells, offsets, ends, out, first, last
+        ),
+    )
     for b, (s, c) in enumerate(zip(starts, counts, strict=False)):
         if c:
             medians[b] = float(np.median(out[s : s + c]))

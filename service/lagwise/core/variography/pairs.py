@@ -14,10 +14,12 @@ import numba
 import numpy as np
 from scipy.spatial.distance import pdist
 
+from ..deadline import check_deadline
 from . import kernels as K
 from .directions import HAS_DIP, VBAND2, DirectionClass, direction_table
 
 ESTIMATE_SUBSET = 2000
+CHUNK_VISITS = 50_000_000  # visited pairs per kernel call (about half a second): the deadline is checked between calls
 MAX_LOOKUP_CELLS = 1 << 16
 
 
@@ -144,37 +146,82 @@ def layout(directions: list[DirectionClass], edges_per_direction: list[np.ndarra
     )
 
 
+def sweep_visits(xs: np.ndarray, reach: float) -> np.ndarray:
+    """Pairs each sample visits in the x-sorted sweep: the later samples within ``reach`` along x.
+
+    ``xs`` is sorted. The sweep's work follows these visits, not the pairs within the
+    search radius: samples strung out along y all lie within any reach of each other
+    along x, so every pair is visited even when few are close.
+    """
+    ends = np.searchsorted(xs, xs + reach, side="right")
+    return np.maximum(ends - np.arange(1, xs.size + 1), 0).astype(np.int64)
+
+
+def row_chunks(visits: np.ndarray, per_chunk: int) -> list[tuple[int, int]]:
+    """Split the sweep's rows into ranges of about ``per_chunk`` visited pairs each
+    (whole blocks of :data:`lagwise.core.variography.kernels.ROW_BLOCK` rows)."""
+    n = visits.size
+    total = np.cumsum(visits)
+    if n == 0 or total[-1] <= per_chunk:
+        return [(0, n)]
+    cuts = np.searchsorted(total, np.arange(per_chunk, total[-1], per_chunk), side="right")
+    cuts = np.unique((cuts // K.ROW_BLOCK + 1) * K.ROW_BLOCK)
+    bounds = [0] + [int(c) for c in cuts if 0 < c < n] + [n]
+    return list(zip(bounds[:-1], bounds[1:], strict=True))
+
+
+def in_chunks(visits: np.ndarray, run) -> None:
+    """Call ``run(first, last)`` for each range of rows, checking the deadline between ranges."""
+    for first, last in row_chunks(visits, CHUNK_VISITS):
+        check_deadline()
+        run(first, last)
+    check_deadline()
+
+
 def accumulate(prepared: PreparedSamples, classes: ClassLayout, mode: int) -> tuple[np.ndarray, int]:
-    """Run the pair kernel; returns the table (ndir, kmax, ACCUMULATORS) and co-located pairs."""
+    """Run the pair kernel over ranges of rows; returns the table (ndir, kmax, ACCUMULATORS) and co-located pairs."""
     radius = classes.search_radius
-    if classes.horizontal:
-        table, colocated = K.accumulate_horizontal(
-            prepared.points,
-            prepared.values,
-            prepared.mean,
-            radius * radius,
-            classes.table,
-            classes.padded,
-            classes.lookup,
-            classes.inv_cell,
-            classes.shared,
-            mode,
-            numba.get_num_threads(),
-        )
-        return table.reshape(classes.table.shape[0], classes.kmax, K.ACCUMULATORS), int(colocated)
-    table, colocated = K.accumulate_classes(
-        prepared.points,
-        prepared.values,
-        prepared.mean,
-        radius * radius,
-        classes.table,
-        classes.edges,
-        classes.counts,
-        classes.inv_width,
-        mode,
-        numba.get_num_threads(),
-    )
-    return table.reshape(classes.table.shape[0], classes.kmax, K.ACCUMULATORS), int(colocated)
+    visits = sweep_visits(prepared.points[:, 0], radius)
+    total = np.zeros((classes.table.shape[0] * classes.kmax, K.ACCUMULATORS))
+    colocated = [0]
+
+    def run(first: int, last: int) -> None:
+        if classes.horizontal:
+            table, zero = K.accumulate_horizontal(
+                prepared.points,
+                prepared.values,
+                prepared.mean,
+                radius * radius,
+                classes.table,
+                classes.padded,
+                classes.lookup,
+                classes.inv_cell,
+                classes.shared,
+                mode,
+                numba.get_num_threads(),
+                first,
+                last,
+            )
+        else:
+            table, zero = K.accumulate_classes(
+                prepared.points,
+                prepared.values,
+                prepared.mean,
+                radius * radius,
+                classes.table,
+                classes.edges,
+                classes.counts,
+                classes.inv_width,
+                mode,
+                numba.get_num_threads(),
+                first,
+                last,
+            )
+        total[:] += table
+        colocated[0] += int(zero)
+
+    in_chunks(visits, run)
+    return total.reshape(classes.table.shape[0], classes.kmax, K.ACCUMULATORS), colocated[0]
 
 
 _NONE_F = np.zeros(0)
@@ -182,24 +229,34 @@ _NONE_I = np.zeros(0, dtype=np.int64)
 
 
 def _collect(prepared, classes, offsets, ends, out_abs, target, stride, tail, head) -> int:
-    """One serial pass of :func:`lagwise.core.variography.kernels.collect_pairs` over the layout's classes."""
+    """Serial passes of :func:`lagwise.core.variography.kernels.collect_pairs` over the layout's classes,
+    range of rows by range; returns the scattergram pairs written."""
     radius = classes.search_radius
-    return K.collect_pairs(
-        prepared.points,
-        prepared.values,
-        radius * radius,
-        classes.table,
-        classes.edges,
-        classes.counts,
-        classes.inv_width,
-        offsets,
-        ends,
-        out_abs,
-        target,
-        stride,
-        tail,
-        head,
-    )
+    state = np.zeros(2, dtype=np.int64)
+
+    def run(first: int, last: int) -> None:
+        K.collect_pairs(
+            prepared.points,
+            prepared.values,
+            radius * radius,
+            classes.table,
+            classes.edges,
+            classes.counts,
+            classes.inv_width,
+            offsets,
+            ends,
+            out_abs,
+            target,
+            stride,
+            tail,
+            head,
+            state,
+            first,
+            last,
+        )
+
+    in_chunks(sweep_visits(prepared.points[:, 0], radius), run)
+    return int(state[1])
 
 
 def absolute_differences(prepared: PreparedSamples, classes: ClassLayout, counts: np.ndarray) -> list[np.ndarray]:
