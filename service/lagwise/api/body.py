@@ -10,10 +10,19 @@ from .problems import Problem
 
 
 def _pointers(messages, prefix: str = "") -> list[dict]:
-    """Flatten marshmallow's nested error messages into JSON Pointer entries."""
+    """Flatten marshmallow's nested error messages into JSON Pointer entries.
+
+    Elements a capped list did not check (``"_unchecked"``) become one entry at the list
+    with ``unchecked`` set to their number.
+    """
     if isinstance(messages, dict):
         out = []
         for key, value in messages.items():
+            if key == "_unchecked":
+                out.append(
+                    {"pointer": prefix, "detail": f"{value} further elements were not checked", "unchecked": value}
+                )
+                continue
             where = prefix if key == "_schema" else f"{prefix}/{key}"
             out.extend(_pointers(value, where))
         return out
@@ -73,10 +82,13 @@ def load_json(schema: Schema) -> dict:
     try:
         return schema.load(document)
     except ValidationError as exc:
-        errors = _pointers(exc.messages)
+        entries = _pointers(exc.messages)
+        unchecked = sum(e.get("unchecked", 0) for e in entries)
+        errors = [e for e in entries if "unchecked" not in e]
         detail = (
             f"{errors[0]['pointer']}: {errors[0]['detail']}"
-            if len(errors) == 1
+            if len(errors) == 1 and not unchecked
             else f"{len(errors)} fields are invalid"
+            + (f" and {unchecked} elements were not checked" if unchecked else "")
         )
-        raise Problem("invalid-input", detail, errors) from None
+        raise Problem("invalid-input", detail, errors, omitted=unchecked) from None

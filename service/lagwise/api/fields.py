@@ -8,6 +8,8 @@ import numpy as np
 from marshmallow import ValidationError, fields
 
 NUMBER_TYPES = (int, float)
+MAX_ELEMENT_ERRORS = 20
+MAX_FAMILIES = 32
 
 
 def _element_error(value) -> str | None:
@@ -57,15 +59,48 @@ def number_array_properties(self, field, **kwargs) -> dict:
     return {}
 
 
+class CappedList(fields.List):
+    """A list whose element errors stop after :data:`MAX_ELEMENT_ERRORS` entries.
+
+    marshmallow's list keeps one message per bad element, so a body of a million bad
+    entries would build a million messages; this one stops early and reports how many
+    elements it did not check under the key ``"_unchecked"``.
+    """
+
+    def _deserialize(self, value, attr, data, **kwargs):
+        if not isinstance(value, list):
+            raise ValidationError("must be an array")
+        out, errors = [], {}
+        for index, element in enumerate(value):
+            try:
+                out.append(self.inner.deserialize(element, **kwargs))
+            except ValidationError as exc:
+                errors[index] = exc.messages
+                if len(errors) == MAX_ELEMENT_ERRORS:
+                    if index + 1 < len(value):
+                        errors["_unchecked"] = len(value) - index - 1
+                    break
+        if errors:
+            raise ValidationError(errors)
+        return out
+
+
 class AutoOrList(fields.Field):
-    """Either the string ``"auto"`` or a list of strings (model families)."""
+    """Either the string ``"auto"`` or a list of distinct strings (model families, at most :data:`MAX_FAMILIES`)."""
 
     def _deserialize(self, value, attr, data, **kwargs):
         if value == "auto":
             return "auto"
-        if isinstance(value, list) and all(isinstance(v, str) for v in value):
-            return value
-        raise ValidationError('must be "auto" or a list of family names')
+        if not (isinstance(value, list) and all(isinstance(v, str) for v in value)):
+            raise ValidationError('must be "auto" or a list of family names')
+        if len(value) > MAX_FAMILIES:
+            raise ValidationError(f"at most {MAX_FAMILIES} families (each listed once)")
+        seen: dict[str, int] = {}
+        for index, name in enumerate(value):
+            if name in seen:
+                raise ValidationError({index: [f"repeats {name!r} (entry {seen[name]}); list each family once"]})
+            seen[name] = index
+        return value
 
 
 class NuggetOption(fields.Field):

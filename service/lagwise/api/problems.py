@@ -17,6 +17,7 @@ from .jsonio import dumps
 from .observability import REFUSALS, logger, request_id
 
 PROBLEM_MEDIA_TYPE = "application/problem+json"
+MAX_LISTED_ERRORS = 100
 
 
 @dataclass(frozen=True)
@@ -67,16 +68,20 @@ class Problem(Exception):
     detail : str
         What happened, for this request.
     errors : list of dict, optional
-        ``{"pointer": ..., "detail": ...}`` per offending field.
+        ``{"pointer": ..., "detail": ...}`` per offending field; at most
+        :data:`MAX_LISTED_ERRORS` are sent, and ``errors_omitted`` counts the rest.
+    omitted : int
+        Further problems known but not in ``errors`` (e.g. list elements left unchecked).
     extra : dict, optional
         Further members (e.g. the limit's name and value).
     """
 
-    def __init__(self, kind: str, detail: str, errors: list[dict] | None = None, **extra):
+    def __init__(self, kind: str, detail: str, errors: list[dict] | None = None, *, omitted: int = 0, **extra):
         super().__init__(detail)
         self.kind = kind
         self.detail = detail
-        self.errors = errors or []
+        self.errors = (errors or [])[:MAX_LISTED_ERRORS]
+        self.omitted = omitted + max(0, len(errors or []) - MAX_LISTED_ERRORS)
         self.extra = extra
 
 
@@ -93,6 +98,8 @@ def problem_response(problem: Problem) -> Response:
     }
     if problem.errors:
         document["errors"] = problem.errors
+    if problem.omitted:
+        document["errors_omitted"] = problem.omitted
     document.update(problem.extra)
     REFUSALS.labels(problem.kind).inc()
     return Response(dumps(document), status=kind.status, mimetype=PROBLEM_MEDIA_TYPE)

@@ -18,7 +18,7 @@ from ..core.modelling.models import Anisotropy
 from ..core.variography.lags import AUTO_METHODS, MAX_CLASSES
 from ..core.variography.statistics import STATISTICS
 from ..figures import FIGURES, FORMATS
-from .fields import AutoOrList, DirectionsOption, NuggetOption, NumberArray
+from .fields import AutoOrList, CappedList, DirectionsOption, NuggetOption, NumberArray
 
 MAX_DIRECTIONS = 36
 
@@ -39,19 +39,19 @@ class SamplesSchema(Schema):
         }
     )
     values = NumberArray(metadata={"description": "Measured values."})
-    ids = fields.List(fields.String(), metadata={"description": "Sample identifiers echoed in per-sample outputs."})
+    ids = CappedList(fields.String(), metadata={"description": "Sample identifiers echoed in per-sample outputs."})
     geojson = fields.Dict(metadata={"description": "A GeoJSON FeatureCollection (RFC 7946) of Point features."})
     value_property = fields.String(metadata={"description": "Feature property holding the value (GeoJSON input)."})
     id_property = fields.String(
         metadata={"description": "Feature property holding the identifier (GeoJSON input; default the feature id)."}
     )
-    censored = fields.List(
+    censored = CappedList(
         fields.Boolean(),
         metadata={
             "description": 'True where the result is below its detection limit (GeoJSON: a value written like "<0.5").'
         },
     )
-    detection_limits = fields.List(
+    detection_limits = CappedList(
         fields.Float(allow_none=True, allow_nan=False),
         metadata={"description": "Detection limits (value units), needed where censored is true."},
     )
@@ -313,7 +313,7 @@ class PredictionRequest(KrigingOptions):
 
     targets = fields.Nested(TargetsInput)
     grid = fields.Nested(GridInput)
-    return_weights = fields.List(
+    return_weights = CappedList(
         fields.Integer(strict=True, validate=validate.Range(min=0)),
         validate=validate.Length(max=20),
         metadata={"description": "Target indexes whose kriging weights are returned (at most 20)."},
@@ -696,7 +696,15 @@ class ProblemSchema(Schema):
     detail = fields.String()
     instance = fields.String()
     request_id = fields.String()
-    errors = fields.List(fields.Nested(FieldErrorSchema))
+    errors = fields.List(
+        fields.Nested(FieldErrorSchema), metadata={"description": "Offending fields, at most 100 entries."}
+    )
+    errors_omitted = fields.Integer(
+        metadata={
+            "description": "Further problems not listed in errors: entries past the first 100, and list elements "
+            "left unchecked after the first 20 bad ones of a list."
+        }
+    )
 
 
 class HealthSchema(Schema):
