@@ -377,14 +377,20 @@ class Lagwise:
         figures: list[str] | None = None,
         figure_format: str | None = None,
         figure_size: tuple[int, int] | None = None,
+        figure_colour_scale: str | None = None,
+        variable: Mapping[str, Any] | None = None,
+        coordinate_unit: str | None = None,
         censoring: str | None = None,
         coordinates: str | None = None,
         duplicates: str | None = None,
     ) -> Analysis:
         """The whole chain in one call (``POST /v1/analyses``).
 
-        ``variogram`` e.g. ``{"directions": "auto"}``; ``prediction`` ``{"grid": {...}}``;
-        ``figures`` any of variogram, variogram_map, cross_validation, prediction_map.
+        ``variogram`` e.g. ``{"directions": "auto"}``; ``prediction`` ``{"grid": {...},
+        "thresholds": [...]}``; ``figures`` any of variogram, variogram_map, cross_validation,
+        prediction_map, standard_deviation_map; ``variable`` ``{"name": "lead", "unit":
+        "mg/kg"}`` and ``coordinate_unit`` (e.g. ``"m"``) label the figures;
+        ``figure_colour_scale`` auto, linear, log or quantile.
         """
         return self._compute("/v1/analyses", Analysis, locals())
 

@@ -88,7 +88,9 @@ def run_demo(base_url: str, out_dir: Path) -> Path:
             variogram={"directions": "auto"},
             cross_validation={"neighbourhood": {"max_points": 24, "min_points": 4}},
             prediction={"grid": {"origin": [10.0, 10.0], "spacing": [20.0, 20.0], "shape": [40, 25]}},
-            figures=["variogram", "variogram_map", "cross_validation", "prediction_map"],
+            figures=["variogram", "variogram_map", "cross_validation", "prediction_map", "standard_deviation_map"],
+            variable={"name": "lead", "unit": "mg/kg"},
+            coordinate_unit="m",
         )
         seconds = time.perf_counter() - started
     report = {

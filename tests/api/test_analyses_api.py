@@ -61,7 +61,7 @@ def test_figures(client, demo):
         },
     ).json
     svg = ET.fromstring(doc["figures"]["variogram"])
-    group = next(e for e in svg.iter() if e.get("id") == "experimental-points")
+    group = next(e for e in svg.iter() if e.get("id") == "experimental-points-0")
     markers = [e for e in group.iter() if e.tag.endswith("path")]
     non_empty = [c for c in doc["experimental"]["omnidirectional"]["directions"][0]["classes"] if c["pairs"] > 0]
     assert len(markers) == len(non_empty)

@@ -74,6 +74,7 @@ def test_demo_through_the_sdk(url, tmp_path: Path):
     assert sorted(p.name for p in (tmp_path / "figures").iterdir()) == [
         "cross_validation.svg",
         "prediction_map.svg",
+        "standard_deviation_map.svg",
         "variogram.svg",
         "variogram_map.svg",
     ]

@@ -70,3 +70,24 @@ def test_projection_centre_is_exact():
     centre = samples.projection
     x, y = centre.forward(np.array([10.1]), np.array([50.0]))
     assert math.hypot(x[0], y[0]) == pytest.approx(haversine(centre.longitude, centre.latitude, 10.1, 50.0), rel=1e-12)
+
+
+def test_inverse_lands_at_the_right_distance_and_bearing_from_the_centre():
+    """Projected (x, y) back to degrees: the point lies hypot(x, y) from the centre (haversine) on the
+    initial bearing atan2(x, y) (azimuthal equidistant, Snyder 1987, eqs. 20-14, 20-15, 25-15)."""
+    centre = build_sample_set(
+        np.ones(3), np.array([6.0, 6.1, 5.9]), np.array([46.0, 46.1, 45.9]), coordinates="geographic"
+    ).projection
+    rng = np.random.default_rng(9)
+    x, y = rng.uniform(-40_000, 40_000, 50), rng.uniform(-40_000, 40_000, 50)
+    lon, lat = centre.inverse(x, y)
+    for k in range(50):
+        assert haversine(centre.longitude, centre.latitude, lon[k], lat[k]) == pytest.approx(
+            math.hypot(x[k], y[k]), rel=1e-9
+        )
+        assert bearing(centre.longitude, centre.latitude, lon[k], lat[k]) == pytest.approx(
+            math.degrees(math.atan2(x[k], y[k])) % 360.0, abs=1e-7
+        )
+    back_x, back_y = centre.forward(lon, lat)
+    np.testing.assert_allclose(np.column_stack([back_x, back_y]), np.column_stack([x, y]), atol=1e-6)
+    assert centre.inverse(np.array([0.0]), np.array([0.0])) == pytest.approx((centre.longitude, centre.latitude))

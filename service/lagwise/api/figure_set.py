@@ -4,30 +4,74 @@ from __future__ import annotations
 
 import base64
 
+import numpy as np
 
-def render(result, samples, names: list[str], fmt: str, size: tuple[int, int]) -> dict:
-    """Figure name -> SVG text or base64 PNG, for the figures that apply to this result."""
+from .. import figures
+
+
+def labels_for(document: dict, samples, transform: str) -> figures.Labels:
+    """Names and units of a request's figures (``variable``, ``coordinate_unit``)."""
+    variable = document["variable"]
+    return figures.Labels(
+        name=variable["name"],
+        unit=variable["unit"],
+        coordinate_unit=document["coordinate_unit"],
+        transform=transform,
+        geographic=samples.coordinates == "geographic",
+    )
+
+
+def _map_coordinates(samples) -> np.ndarray:
+    """Sample locations in the coordinates maps are drawn in (degrees for geographic sets)."""
+    if samples.coordinates != "geographic":
+        return samples.coords[:, : min(samples.dimension, 2)]
+    lon, lat = samples.projection.inverse(samples.coords[:, 0], samples.coords[:, 1])
+    return np.column_stack([lon, lat])
+
+
+def render(result, samples, document: dict) -> dict:
+    """Figure name -> SVG text or base64 PNG, for the requested figures that apply to ``result``."""
+    names = document["figures"]
     if not names:
         return {}
-    from .. import figures
-
-    distance = "metres" if samples.coordinates == "geographic" else "coordinate units"
-    value = (
-        "value units" if result.transform.kind == "none" else f"{result.transform.kind.replace('_', ' ')} of the value"
-    )
-    units = {"distance": distance, "coordinate": distance, "value": value, "gamma": f"({value})²"}
+    fmt, size = document["figure_format"], tuple(document["figure_size"])
+    labels = labels_for(document, samples, result.transform.kind)
+    where = _map_coordinates(samples)
+    experimental = result.directional or result.omnidirectional
+    model = result.fit.best.model
+    prediction = result.prediction
     out = {}
     for name in names:
         if name == "variogram":
-            image = figures.variogram(result, units, size, fmt)
+            image = figures.variogram(
+                experimental,
+                model,
+                result.fit.best.label,
+                labels,
+                sill_reference=result.transformed_summary.variance,
+                size=size,
+                fmt=fmt,
+            )
         elif name == "variogram_map" and result.variogram_map is not None:
-            image = figures.variogram_map(result.variogram_map, units, size, fmt)
+            image = figures.variogram_map(
+                result.variogram_map, labels, min_pairs=experimental.min_pairs, model=model, size=size, fmt=fmt
+            )
         elif name == "cross_validation" and result.cross_validation is not None:
-            image = figures.cross_validation(result.cross_validation, units, size, fmt)
-        elif name == "prediction_map" and result.prediction is not None:
-            original = {**units, "value": "value units"}
+            image = figures.cross_validation(result.cross_validation, where, labels, size=size, fmt=fmt)
+        elif name == "prediction_map" and prediction is not None:
             image = figures.prediction_map(
-                result.prediction.grid, result.back_transformed[0], samples.coords, original, size, fmt
+                prediction.grid,
+                result.back_transformed[0],
+                labels,
+                sample_xy=where,
+                scale=document["figure_colour_scale"],
+                thresholds=tuple(document["prediction"]["thresholds"]),
+                size=size,
+                fmt=fmt,
+            )
+        elif name == "standard_deviation_map" and prediction is not None:
+            image = figures.standard_deviation_map(
+                prediction.grid, np.sqrt(result.back_transformed[1]), labels, sample_xy=where, size=size, fmt=fmt
             )
         else:
             continue

@@ -266,7 +266,7 @@ def analyses():
             [{"pointer": "/prediction/grid", "detail": "needs 2-D samples"}],
         )
     result = analyse(samples, options, limits=settings().limits, workers=numba.get_num_threads())
-    figures = render(result, samples, document["figures"], document["figure_format"], tuple(document["figure_size"]))
+    figures = render(result, samples, document)
     body = serialize.analysis(
         result,
         samples,
@@ -277,6 +277,10 @@ def analyses():
             "scheme": options.scheme,
             "figure_format": document["figure_format"],
             "figure_size": document["figure_size"],
+            "figure_colour_scale": document["figure_colour_scale"],
+            "variable": document["variable"],
+            "coordinate_unit": "m" if samples.coordinates == "geographic" else document["coordinate_unit"],
+            "thresholds": document["prediction"]["thresholds"] if "prediction" in document else [],
         },
     )
     pairs = sum(row.pairs for d in result.omnidirectional.directions for row in d.classes)

@@ -6,6 +6,8 @@ with pointers, so a caller gets the same answer from either side.
 
 from __future__ import annotations
 
+import unicodedata
+
 from marshmallow import EXCLUDE, Schema, ValidationError, fields, validate, validates_schema
 
 from ..core.data.censoring import CENSORING_POLICIES
@@ -17,10 +19,11 @@ from ..core.modelling.fitting import SEMIVARIANCE_STATISTICS, WEIGHTINGS
 from ..core.modelling.models import Anisotropy
 from ..core.variography.lags import AUTO_METHODS, MAX_CLASSES
 from ..core.variography.statistics import STATISTICS
-from ..figures import FIGURES, FORMATS
+from ..figures import COLOUR_SCALES, FIGURES, FORMATS
 from .fields import AutoOrList, CappedList, DirectionsOption, NuggetOption, NumberArray
 
 MAX_DIRECTIONS = 36
+MAX_THRESHOLDS = 20
 
 
 def finite(**kwargs) -> fields.Float:
@@ -354,6 +357,31 @@ class CrossValidationStage(Schema):
 
 class PredictionStage(Schema):
     grid = fields.Nested(GridInput, required=True)
+    thresholds = fields.List(
+        finite(),
+        validate=validate.Length(max=MAX_THRESHOLDS),
+        load_default=list,
+        metadata={"description": "Values in original units; the prediction map draws their contours."},
+    )
+
+
+def _printable(text: str) -> None:
+    if any(unicodedata.category(c).startswith("C") for c in text):
+        raise ValidationError("must not contain control characters")
+
+
+class VariableSchema(Schema):
+    """What was measured, for labels and the echo."""
+
+    name = fields.String(
+        load_default="value", validate=[validate.Length(min=1, max=60), _printable], metadata={"example": "lead"}
+    )
+    unit = fields.String(
+        load_default=None,
+        allow_none=True,
+        validate=[validate.Length(min=1, max=30), _printable],
+        metadata={"example": "mg/kg"},
+    )
 
 
 class AnalysisRequest(SampleOptions):
@@ -378,6 +406,27 @@ class AnalysisRequest(SampleOptions):
         load_default=lambda: [800, 500],
         metadata={"description": "Width and height in pixels."},
     )
+    figure_colour_scale = fields.String(
+        load_default="auto",
+        validate=validate.OneOf(COLOUR_SCALES),
+        metadata={"description": "Colours of the prediction map; auto: log for log and normal-score transforms."},
+    )
+    variable = fields.Nested(VariableSchema, load_default=lambda: VariableSchema().load({}))
+    coordinate_unit = fields.String(
+        load_default=None,
+        allow_none=True,
+        validate=[validate.Length(min=1, max=20), _printable],
+        metadata={"description": "Unit of planar coordinates (e.g. m); geographic coordinates measure distances in m."},
+    )
+
+    @validates_schema
+    def _metres_for_geographic(self, data, **kwargs):
+        unit = data.get("coordinate_unit")
+        if data.get("coordinates") == "geographic" and unit not in (None, "m"):
+            raise ValidationError(
+                "geographic coordinates are degrees and their distances metres: omit coordinate_unit or give m",
+                "coordinate_unit",
+            )
 
 
 # ---- responses -------------------------------------------------------------

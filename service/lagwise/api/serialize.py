@@ -334,5 +334,9 @@ def analysis(result, samples: SampleSet, figures: dict, options: dict) -> dict:
         "figures": list(figures),
         "figure_format": options.get("figure_format"),
         "figure_size": options.get("figure_size"),
+        "figure_colour_scale": options.get("figure_colour_scale"),
+        "variable": options.get("variable"),
+        "coordinate_unit": options.get("coordinate_unit"),
+        "thresholds": options.get("thresholds"),
     }
     return document

@@ -174,14 +174,8 @@ def analyse(
             )
     vmap = None
     if options.with_map and samples.dimension >= 2:
-        cells = 10
-        vmap = variogram_map(
-            working,
-            cell_size=omni.summary.max_distance / 2 / (cells + 0.5),
-            cells=cells,
-            statistic=options.statistic,
-            limits=limits,
-        )
+        # Cells from the automatic rule (about the typical sample spacing), as /v1/variogram-maps.
+        vmap = variogram_map(working, statistic=options.statistic, min_pairs=options.min_pairs, limits=limits)
     notes = list(omni.warnings) + list(fit.warnings)
     notes += _warnings(samples, fit, cv, anisotropy)
     if refused:

@@ -49,6 +49,20 @@ class LocalProjection:
         y = EARTH_RADIUS_M * k * (np.cos(phi0) * np.sin(phi) - np.sin(phi0) * np.cos(phi) * np.cos(dlam))
         return x, y
 
+    def inverse(self, x: np.ndarray, y: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Metres east (x) and north (y) of the centre back to longitude and latitude, degrees."""
+        lam0, phi0 = np.radians(self.longitude), np.radians(self.latitude)
+        x, y = np.asarray(x, dtype=np.float64), np.asarray(y, dtype=np.float64)
+        rho = np.hypot(x, y)
+        c = rho / EARTH_RADIUS_M  # angular distance from the centre (Snyder 1987, eq. 25-15)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            along = np.where(rho > 0, y * np.sin(c) / rho, 0.0)
+        # Snyder (1987), eqs. 20-14 and 20-15 (general spherical inverse with c from rho).
+        phi = np.arcsin(np.clip(np.cos(c) * np.sin(phi0) + along * np.cos(phi0), -1.0, 1.0))
+        lam = lam0 + np.arctan2(x * np.sin(c), rho * np.cos(phi0) * np.cos(c) - y * np.sin(phi0) * np.sin(c))
+        lon = (np.degrees(lam) + 180.0) % 360.0 - 180.0
+        return lon, np.degrees(phi)
+
 
 def centroid(lon: np.ndarray, lat: np.ndarray) -> LocalProjection:
     """Spherical centroid of the points (mean of unit vectors), as a projection centre."""
