@@ -150,3 +150,25 @@ def test_duplicates_policy_is_honoured(client):
     assert doc["samples"]["observed"][0] == 2.0 and doc["statistics"]["count"] == 4
     r = client.post("/v1/cross-validations", json={"samples": cols, "model": MODEL, "duplicates": "reject"})
     assert r.status_code == 422 and r.json["errors"][0]["pointer"] == "/samples/x/1"
+
+
+def test_simple_kriging_mean_defaults_to_the_declustered_mean(client, rng):
+    """Clustered samples (a dense patch of high values): simple kriging without a mean uses the
+    cell-declustered mean (Deutsch 1989), echoed in parameters.kriging.mean."""
+    from lagwise.core.data.declustering import decluster
+
+    x = np.concatenate([rng.uniform(0, 100, 60), rng.uniform(0, 10, 60)])
+    y = np.concatenate([rng.uniform(0, 100, 60), rng.uniform(0, 10, 60)])
+    values = np.concatenate([rng.normal(0, 1, 60), rng.normal(5, 1, 60)])
+    body = {
+        "samples": {"x": x.tolist(), "y": y.tolist(), "values": values.tolist()},
+        "model": MODEL,
+        "kriging": {"type": "simple"},
+        "targets": {"x": [50.0], "y": [50.0]},
+    }
+    r = client.post("/v1/predictions", json=body)
+    assert r.status_code == 200, r.json
+    expected = decluster(np.column_stack([x, y]), values)
+    assert expected.clustered
+    assert r.json["parameters"]["kriging"]["mean"] == pytest.approx(expected.declustered_mean)
+    assert r.json["parameters"]["kriging"]["mean"] < values.mean()

@@ -8,6 +8,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..core.analysis import AnalysisOptions
+from ..core.data.declustering import decluster
 from ..core.data.samples import SampleSet, build_sample_set, columnar_pointer, input_hash
 from ..core.errors import FieldIssue, InvalidInput
 from ..core.kriging.cross_validation import Scheme
@@ -190,6 +191,9 @@ def experimental_points(document: dict, min_pairs: int):
     if dimension not in (1, 2, 3):
         raise InvalidInput.at("/experimental/summary/dimension", "must be 1, 2 or 3")
     variance = summary.get("variance")
+    if (summary.get("declustering") or {}).get("weights_used"):
+        # Clustered sampling: the declustered variance is the sill reference.
+        variance = summary.get("declustered_variance", variance)
     variance = float(variance) if type(variance) in (int, float) and math.isfinite(variance) else None
     digest = input_hash([points.distance, points.value, points.pairs.astype(np.float64)])
     return points, int(dimension), variance, statistic, digest
@@ -228,9 +232,13 @@ def variogram_model(document: dict) -> VariogramModel:
     return VariogramModel(float(raw["nugget"]), structures)
 
 
-def kriging_spec(document: dict) -> KrigingSpec:
+def kriging_spec(document: dict, samples: SampleSet | None = None) -> KrigingSpec:
+    """The kriging options; simple kriging without a mean takes the samples' declustered mean (when given samples)."""
     k = document["kriging"]
-    return KrigingSpec(type=k["type"], mean=k.get("mean"), drift=k.get("drift"), nugget_as=k["nugget_as"])
+    mean = k.get("mean")
+    if mean is None and k["type"] == "simple" and samples is not None:
+        mean = decluster(samples.coords, samples.values).mean_of(samples.values)
+    return KrigingSpec(type=k["type"], mean=mean, drift=k.get("drift"), nugget_as=k["nugget_as"])
 
 
 def neighbourhood(document: dict) -> Neighbourhood:

@@ -1,4 +1,4 @@
-"""Summary statistics of a sample set: moments, extent and largest separation."""
+"""Summary statistics of a sample set: plain and declustered moments, extent and largest separation."""
 
 from __future__ import annotations
 
@@ -7,6 +7,8 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.spatial import ConvexHull, QhullError
 from scipy.spatial.distance import pdist
+
+from .declustering import Declustering, decluster
 
 AXES = ("x", "y", "z")
 SMALL_SET = 3000
@@ -30,6 +32,13 @@ class Summary:
         ``{axis: [min, max]}`` of the working coordinates (metres for geographic sets).
     max_distance : float
         Largest separation between two samples, in coordinate units.
+    declustered_mean, declustered_variance : float or None
+        Mean and variance under the cell-declustering weights
+        (:mod:`lagwise.core.data.declustering`), reported whether or not sampling is
+        judged clustered.
+    declustering : dict or None
+        Cell size, whether sampling is clustered (and the weights used) and the
+        evidence (:meth:`~lagwise.core.data.declustering.Declustering.as_dict`).
     """
 
     samples: int
@@ -40,6 +49,27 @@ class Summary:
     maximum: float
     extent: dict
     max_distance: float
+    declustered_mean: float | None = None
+    declustered_variance: float | None = None
+    declustering: dict | None = None
+
+    @property
+    def reference_variance(self) -> float:
+        """The sill reference: the declustered variance when sampling is clustered, else the plain variance."""
+        if (
+            self.declustering is not None
+            and self.declustering["weights_used"]
+            and self.declustered_variance is not None
+        ):
+            return self.declustered_variance
+        return self.variance
+
+    @property
+    def reference_mean(self) -> float:
+        """The declustered mean when sampling is clustered, else the plain mean (e.g. a simple-kriging mean)."""
+        if self.declustering is not None and self.declustering["weights_used"] and self.declustered_mean is not None:
+            return self.declustered_mean
+        return self.mean
 
     def as_dict(self) -> dict:
         """Plain dictionary for serialisation."""
@@ -60,9 +90,17 @@ def largest_separation(coords: np.ndarray) -> float:
     return float(pdist(coords[hull.vertices]).max())
 
 
-def summarise(coords: np.ndarray, values: np.ndarray) -> Summary:
-    """Compute the :class:`Summary` of coordinates (n, d) and values (n,)."""
+def summarise(coords: np.ndarray, values: np.ndarray, declustering: Declustering | None = None) -> Summary:
+    """Compute the :class:`Summary` of coordinates (n, d) and values (n,).
+
+    ``declustering`` gives weights found earlier (e.g. on the original values when
+    ``values`` are transformed); by default they are found from ``values``. The
+    declustered moments use its cell-declustering weights.
+    """
     mean = float(np.mean(values))
+    declustering = declustering if declustering is not None else decluster(coords, values)
+    weights = declustering.weights
+    declustered_mean = float(np.dot(weights, values))
     return Summary(
         samples=int(values.size),
         dimension=int(coords.shape[1]),
@@ -72,4 +110,7 @@ def summarise(coords: np.ndarray, values: np.ndarray) -> Summary:
         maximum=float(np.max(values)),
         extent={AXES[a]: [float(coords[:, a].min()), float(coords[:, a].max())] for a in range(coords.shape[1])},
         max_distance=largest_separation(coords),
+        declustered_mean=declustered_mean,
+        declustered_variance=float(np.dot(weights, (values - declustered_mean) ** 2)),
+        declustering=declustering.as_dict(),
     )

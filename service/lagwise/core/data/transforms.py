@@ -9,7 +9,10 @@
 ``normal_score``
     Each value maps to the standard normal quantile of its plotting position
     p = (r - 1/2) / n, r its rank (Hazen 1914); tied values share the mean of their
-    positions. Back-transform: linear interpolation in the table of (score, value)
+    positions. With declustering weights w (sum 1; :mod:`lagwise.core.data.declustering`)
+    the position is the weighted form, p = W_below + w_tie / 2, W_below the weight of
+    the smaller values and w_tie that of the tied group (equal weights 1/n give
+    Hazen's positions back), so the score table follows the declustered distribution. Back-transform: linear interpolation in the table of (score, value)
     pairs; beyond the extreme scores the data's minimum and maximum are kept (no
     extrapolation of the tails). A Gaussian estimate y with variance s^2 back-transforms
     to the mean and variance of the back-transformed N(y, s^2), averaged over 100
@@ -44,11 +47,14 @@ class Transform:
         ``none``, ``log`` or ``normal_score``.
     scores, values : ndarray or None
         Sorted normal scores and the data values they stand for (normal_score only).
+    weighted : bool
+        The plotting positions used declustering weights.
     """
 
     kind: str
     scores: np.ndarray | None = None
     values: np.ndarray | None = None
+    weighted: bool = False
 
     def forward(self, z: np.ndarray) -> np.ndarray:
         """Transform data values (those the transform was built from, for normal scores)."""
@@ -92,11 +98,20 @@ class Transform:
             "interpolation of the score table, tails held at the data's extremes; estimates averaged over 100 "
             "equal-probability points of their Gaussian distribution",
         }
-        return {"kind": self.kind, "method": descriptions[self.kind]}
+        method = descriptions[self.kind]
+        if self.weighted:
+            method += "; plotting positions weighted by the declustering weights (W_below + w_tie / 2)"
+        return {"kind": self.kind, "method": method}
 
 
-def fit_transform(kind: str, values: np.ndarray, source_index: np.ndarray | None = None) -> Transform:
-    """Build a transform from the data values; raises InvalidInput naming bad samples."""
+def fit_transform(
+    kind: str, values: np.ndarray, source_index: np.ndarray | None = None, weights: np.ndarray | None = None
+) -> Transform:
+    """Build a transform from the data values; raises InvalidInput naming bad samples.
+
+    ``weights`` (one per value, positive; normalised here) are declustering weights
+    for the normal-score plotting positions; None or equal weights give Hazen's.
+    """
     if kind not in TRANSFORMS:
         raise InvalidInput.at("/transform", f"must be one of {', '.join(TRANSFORMS)}")
     values = np.asarray(values, dtype=np.float64)
@@ -113,9 +128,15 @@ def fit_transform(kind: str, values: np.ndarray, source_index: np.ndarray | None
         return Transform("log")
     if kind == "normal_score":
         n = values.size
-        positions = (rankdata(values, method="average") - 0.5) / n  # Hazen (1914), mid-ranks for ties
         order = np.argsort(values, kind="stable")
-        scores = ndtri(positions[order])
         unique_values, first = np.unique(values[order], return_index=True)
-        return Transform("normal_score", scores[first], unique_values)
+        equal = weights is None or np.ptp(weights) <= 1e-12 * np.max(weights)
+        if equal:
+            positions = (rankdata(values, method="average") - 0.5) / n  # Hazen (1914), mid-ranks for ties
+            return Transform("normal_score", ndtri(positions[order])[first], unique_values)
+        w = np.asarray(weights, dtype=np.float64)[order]
+        w = w / w.sum()
+        group = np.add.reduceat(w, first)  # weight of each tied group
+        below = np.concatenate([[0.0], np.cumsum(group)[:-1]])
+        return Transform("normal_score", ndtri(below + 0.5 * group), unique_values, weighted=True)
     return Transform("none")

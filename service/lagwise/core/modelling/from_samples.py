@@ -44,5 +44,7 @@ def fit_samples(
         samples, lags=lags, directions=directions, statistic=statistic, min_pairs=min_pairs, limits=limits
     )
     points = points_from_experimental(experimental, min_pairs)
-    fit = fit_model(points, dimension=samples.dimension, sample_variance=experimental.summary.variance, **fit_options)
+    fit = fit_model(
+        points, dimension=samples.dimension, sample_variance=experimental.summary.reference_variance, **fit_options
+    )
     return SampleFit(experimental, fit)

@@ -24,6 +24,7 @@ import numba
 import numpy as np
 from scipy.spatial import ConvexHull, QhullError
 
+from ..data.declustering import Declustering, decluster
 from ..data.samples import SampleSet
 from ..data.spacing import typical_spacing
 from ..data.summary import Summary, summarise
@@ -123,6 +124,7 @@ def variogram_map(
     statistic: str = "semivariance",
     min_pairs: int = DEFAULT_MAP_MIN_PAIRS,
     limits: Limits = Limits(),
+    declustering: Declustering | None = None,
 ) -> VariogramMap:
     """Compute a variogram map (see the module conventions).
 
@@ -142,11 +144,16 @@ def variogram_map(
         Average pairs per cell the automatic cell size aims for (default 30).
     limits : Limits
         Cost limits, checked before the pair passes.
+    declustering : Declustering, optional
+        Declustering weights found earlier (e.g. from the original values when the
+        samples carry transformed ones); default: found from the samples' values.
     """
     limits.check_samples(samples.size)
     if min_pairs < 1:
         raise InvalidInput.at("/min_pairs", "must be at least 1")
-    summary = summarise(samples.coords, samples.values)
+    if declustering is None:
+        declustering = decluster(samples.coords, samples.values)
+    summary = summarise(samples.coords, samples.values, declustering)
     spacing = None
     if samples.dimension >= 2 and (cell_size is None or cells is None):
         top = (limits.max_map_cells - 1) // 2
@@ -191,6 +198,8 @@ def variogram_map(
     ]
     centres = cell_size * np.arange(-cells, cells + 1, dtype=np.float64)
     warnings = list(samples.warnings)
+    if declustering.warning:
+        warnings.append(declustering.warning)
     if samples.dimension == 3:
         warnings.append("3-D samples: the map uses horizontal separations and ignores the vertical one")
     return VariogramMap(
