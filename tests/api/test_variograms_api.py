@@ -132,6 +132,20 @@ def test_map_from_samples_alone_follows_the_class_rule(client):
     assert sized["cells"] == 5 and sized["cell_size"] == pytest.approx(reach / 5.5)
 
 
+def test_classes_carry_their_uncertainty(client, rng):
+    cols = random_columns(rng, n=150)
+    doc = client.post(URL, json={"samples": cols}).json
+    assert doc["parameters"]["class_uncertainty"]["blocks"] == 8
+    assert "jackknife" in doc["parameters"]["class_uncertainty"]["method"]
+    for row in doc["directions"][0]["classes"]:
+        lower, upper = row["interval_95"]
+        assert row["standard_error"] > 0 and lower < row["value"] < upper
+    few = client.post(URL, json={"samples": random_columns(rng, n=20)}).json
+    row = few["directions"][0]["classes"][0]
+    assert row["standard_error"] is None and row["interval_95"] is None and row["uncertainty_reason"]
+    assert few["parameters"]["class_uncertainty"] == {"method": None, "blocks": None}
+
+
 def test_null_with_reason_never_nan(client):
     body = {
         "samples": {"x": [0, 1, 2, 3], "y": [0, 0, 1, 1], "values": [2, 2, 2, 2]},

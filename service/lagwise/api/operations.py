@@ -203,7 +203,7 @@ def model_fits():
 def cross_validations():
     document = load_json(CrossValidationRequest())
     samples = convert.sample_set(document)
-    model, spec = convert.variogram_model(document), convert.kriging_spec(document)
+    model, spec = convert.variogram_model(document), convert.kriging_spec(document, samples)
     hood, scheme = convert.neighbourhood(document), convert.scheme(document)
     result = cross_validate(
         samples,
@@ -231,7 +231,7 @@ def predictions():
     samples = convert.sample_set(document)
     model, spec, hood = (
         convert.variogram_model(document),
-        convert.kriging_spec(document),
+        convert.kriging_spec(document, samples),
         convert.neighbourhood(document),
     )
     result = predict(

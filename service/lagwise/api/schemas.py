@@ -258,7 +258,12 @@ class ModelInput(Schema):
 
 class KrigingInput(Schema):
     type = fields.String(load_default="ordinary", validate=validate.OneOf(KRIGING_TYPES))
-    mean = finite(metadata={"description": "Known mean (simple kriging)."})
+    mean = finite(
+        metadata={
+            "description": "Known mean (simple kriging). Default: the samples' mean, declustered (cell declustering) "
+            "when sampling is clustered."
+        }
+    )
     drift = fields.String(validate=validate.OneOf(DRIFTS), metadata={"description": "Drift (universal kriging)."})
     nugget_as = fields.String(load_default="micro_scale", validate=validate.OneOf(NUGGET_ROLES))
 
@@ -444,6 +449,32 @@ class ProvenanceSchema(Schema):
     elapsed_ms = fields.Float()
 
 
+class DeclusteringSchema(Schema):
+    """Cell declustering of the samples (weights used only when sampling is clustered)."""
+
+    method = fields.String()
+    cell_size = fields.Float(allow_none=True, metadata={"description": "Chosen cell size, coordinate units."})
+    clustered = fields.Boolean()
+    weights_used = fields.Boolean(
+        metadata={"description": "The summary's reference moments, normal scores and sill reference use the weights."}
+    )
+    over_sampled = fields.String(
+        allow_none=True, metadata={"description": "high (declustered mean minimised) or low (maximised)."}
+    )
+    nearest_neighbour_ratio = fields.Float(
+        allow_none=True,
+        metadata={
+            "description": "Mean nearest-neighbour distance over its value for a random pattern (Clark & Evans 1954)."
+        },
+    )
+    nearest_neighbour_z = fields.Float(allow_none=True)
+    mean_shift_z = fields.Float(
+        allow_none=True,
+        metadata={"description": "Declustered minus plain mean in standard errors of a random assignment of values."},
+    )
+    reason = fields.String(allow_none=True)
+
+
 class SummarySchema(Schema):
     samples = fields.Integer()
     dimension = fields.Integer()
@@ -453,6 +484,13 @@ class SummarySchema(Schema):
     maximum = fields.Float()
     extent = fields.Dict(keys=fields.String(), values=fields.List(fields.Float()))
     max_distance = fields.Float()
+    declustered_mean = fields.Float(
+        allow_none=True, metadata={"description": "Mean under the cell-declustering weights."}
+    )
+    declustered_variance = fields.Float(
+        allow_none=True, metadata={"description": "Variance under the cell-declustering weights (weights sum to 1)."}
+    )
+    declustering = fields.Nested(DeclusteringSchema, allow_none=True)
 
 
 class ClassSchema(Schema):
@@ -467,6 +505,20 @@ class ClassSchema(Schema):
     head_mean = fields.Float(allow_none=True)
     tail_sd = fields.Float(allow_none=True)
     head_sd = fields.Float(allow_none=True)
+    standard_error = fields.Float(
+        allow_none=True,
+        metadata={
+            "description": "Standard error of value: delete-one-block jackknife over spatial blocks of samples "
+            "(parameters.class_uncertainty); null with uncertainty_reason when undefined."
+        },
+    )
+    interval_95 = fields.List(
+        fields.Float(),
+        allow_none=True,
+        validate=validate.Length(equal=2),
+        metadata={"description": "[lower, upper] 95 % interval of the class's expected value."},
+    )
+    uncertainty_reason = fields.String(metadata={"description": "Why standard_error is null."})
 
 
 class DirectionResultSchema(Schema):

@@ -53,6 +53,7 @@ def experimental(result: ExperimentalVariogram, samples: SampleSet) -> dict:
             "directions": [d.direction.as_dict(dimension) for d in result.directions],
             "angle_convention": ANGLES,
             "class_convention": CLASSES,
+            "class_uncertainty": uncertainty_parameters(result),
         },
         "warnings": list(result.warnings),
     }
@@ -67,6 +68,13 @@ def experimental(result: ExperimentalVariogram, samples: SampleSet) -> dict:
             "head": s.head,
         }
     return document
+
+
+def uncertainty_parameters(result: ExperimentalVariogram) -> dict:
+    """How the classes' standard errors and intervals were found."""
+    if result.uncertainty is None:
+        return {"method": None, "blocks": None}
+    return {"method": result.uncertainty.method, "blocks": result.uncertainty.blocks}
 
 
 def lag_parameters(result: ExperimentalVariogram) -> dict:
@@ -92,9 +100,13 @@ def _class_row(row) -> dict:
         "pairs": row.pairs,
         "value": _as_float(row.value),
         "sparse": row.sparse,
+        "standard_error": _as_float(row.standard_error),
+        "interval_95": None if row.interval_95 is None else [float(v) for v in row.interval_95],
     }
     if row.reason is not None:
         out["reason"] = row.reason
+    if row.standard_error is None and row.uncertainty_reason is not None:
+        out["uncertainty_reason"] = row.uncertainty_reason
     if row.tail_mean is not None:
         out.update(
             tail_mean=_as_float(row.tail_mean),
@@ -322,6 +334,7 @@ def analysis(result, samples: SampleSet, figures: dict, options: dict) -> dict:
             "statistic": result.omnidirectional.statistic,
             "min_pairs": result.omnidirectional.min_pairs,
             "lags": lag_parameters(result.omnidirectional),
+            "class_uncertainty": uncertainty_parameters(result.omnidirectional),
         },
         "fit": {"families": options["families"], "nugget": result.fit.nugget, "weighting": result.fit.weighting},
         "cross_validation": {

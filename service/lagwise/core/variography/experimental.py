@@ -6,6 +6,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from ..data.declustering import Declustering, decluster
 from ..data.samples import SampleSet
 from ..data.spacing import typical_spacing
 from ..data.summary import Summary, summarise
@@ -34,6 +35,7 @@ from .pairs import (
     sweep_visits,
 )
 from .statistics import ACCUMULATION_MODE, COVARIANCE_TYPE, STATISTICS, class_value
+from .uncertainty import ClassUncertainty, UncertaintyPlan, class_uncertainties
 
 DEFAULT_MIN_PAIRS = 30
 DEFAULT_SCATTER_LIMIT = 2000
@@ -72,6 +74,11 @@ class ClassRow:
         The statistic (None when undefined, with ``reason``).
     sparse : bool
         Fewer than ``min_pairs`` pairs.
+    standard_error : float or None
+        Standard error of ``value`` (delete-one-block jackknife,
+        :mod:`lagwise.core.variography.uncertainty`); None with ``uncertainty_reason``.
+    interval_95 : tuple of float or None
+        95 % interval of the class's expected value.
     """
 
     lower: float
@@ -85,6 +92,9 @@ class ClassRow:
     head_mean: float | None = None
     tail_sd: float | None = None
     head_sd: float | None = None
+    standard_error: float | None = None
+    interval_95: tuple[float, float] | None = None
+    uncertainty_reason: str | None = None
 
 
 @dataclass(frozen=True)
@@ -121,6 +131,8 @@ class ExperimentalVariogram:
         ``width``, ``edges``, ``equal_width`` or ``equal_pairs``.
     colocated_pairs : int
         Zero-distance pairs, which belong to no class.
+    uncertainty : UncertaintyPlan or None
+        Blocks and method of the class uncertainties (None when no pass ran).
     spacing : float or None
         Typical sample spacing (median nearest-neighbour distance, coordinate units)
         the ``equal_width`` classes were built from; None for other class requests.
@@ -136,6 +148,7 @@ class ExperimentalVariogram:
     colocated_pairs: int
     scattergram: Scattergram | None
     spacing: float | None = None
+    uncertainty: UncertaintyPlan | None = None
     warnings: tuple[str, ...] = field(default=())
 
 
@@ -223,6 +236,7 @@ def experimental_variogram(
     min_pairs: int = DEFAULT_MIN_PAIRS,
     pairs_for_class: ScatterRequest | None = None,
     limits: Limits = Limits(),
+    declustering: Declustering | None = None,
 ) -> ExperimentalVariogram:
     """Compute an experimental variogram (or covariance-type statistic) per direction class.
 
@@ -242,6 +256,9 @@ def experimental_variogram(
         Also return the pairs of one class.
     limits : Limits
         Cost limits, checked before the pair passes.
+    declustering : Declustering, optional
+        Declustering weights found earlier (e.g. from the original values when the
+        samples carry transformed ones); default: found from the samples' values.
 
     Raises
     ------
@@ -249,7 +266,9 @@ def experimental_variogram(
     """
     limits.check_samples(samples.size)
     resolved, warnings = _validate_options(samples, statistic, min_pairs, directions)
-    summary = summarise(samples.coords, samples.values)
+    if declustering is None:
+        declustering = decluster(samples.coords, samples.values)
+    summary = summarise(samples.coords, samples.values, declustering)
     prepared = prepare(samples.coords, samples.values)
     passes = pair_passes(lags, statistic, pairs_for_class is not None)
     edges, spacing = _resolve_edges(samples, summary, prepared, lags, resolved, min_pairs, limits, passes)
@@ -260,11 +279,15 @@ def experimental_variogram(
     check_deadline()
     counts = table[:, :, K.COUNT]
     medians = _class_medians(statistic, prepared, classes, counts, limits)
+    uncertain, plan = class_uncertainties(statistic, prepared, classes, samples.coords, int(counts.sum()))
+    check_deadline()
     results = tuple(
-        DirectionResult(d, _rows(statistic, table[k], edges[k], medians[k], min_pairs, prepared))
+        DirectionResult(d, _rows(statistic, table[k], edges[k], medians[k], min_pairs, prepared, uncertain[k]))
         for k, d in enumerate(resolved)
     )
     warnings.extend(_class_warnings(results, min_pairs, summary))
+    if declustering.warning:
+        warnings.append(declustering.warning)
     scatter = None if pairs_for_class is None else _scattergram(pairs_for_class, prepared, classes, counts, limits)
     return ExperimentalVariogram(
         directions=results,
@@ -274,6 +297,7 @@ def experimental_variogram(
         lag_method=lags.method,
         colocated_pairs=colocated,
         spacing=spacing,
+        uncertainty=plan,
         scattergram=scatter,
         warnings=tuple(list(samples.warnings) + warnings),
     )
@@ -290,7 +314,9 @@ def _class_medians(statistic, prepared: PreparedSamples, classes, counts, limits
     return medians
 
 
-def _rows(statistic, table, edges, medians, min_pairs, prepared) -> tuple[ClassRow, ...]:
+def _rows(
+    statistic, table, edges, medians, min_pairs, prepared, uncertain: list[ClassUncertainty]
+) -> tuple[ClassRow, ...]:
     rows = []
     for c in range(len(edges) - 1):
         row = table[c]
@@ -309,6 +335,9 @@ def _rows(statistic, table, edges, medians, min_pairs, prepared) -> tuple[ClassR
                 head_mean=v.head_mean if statistic in COVARIANCE_TYPE else None,
                 tail_sd=v.tail_sd if statistic in COVARIANCE_TYPE else None,
                 head_sd=v.head_sd if statistic in COVARIANCE_TYPE else None,
+                standard_error=uncertain[c].standard_error if v.value is not None else None,
+                interval_95=uncertain[c].interval_95 if v.value is not None else None,
+                uncertainty_reason=uncertain[c].reason if v.value is not None else v.reason,
             )
         )
     return tuple(rows)

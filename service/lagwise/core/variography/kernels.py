@@ -434,3 +434,54 @@ def collect_map_differences(pts, vals, cell, cells, offsets, ends, out_abs, firs
             if b >= 0 and offsets[b] < ends[b]:
                 out_abs[offsets[b]] = a
                 offsets[b] += 1
+
+
+@njit(parallel=True, cache=True)
+def accumulate_blocks(pts, vals, mean, max_d2, dirs, edges, nk, inv_width, mode, blocks, nblocks, nthreads):
+    """Accumulate every pair into (direction, class) bins, in total and per spatial block.
+
+    ``blocks[i]`` is the block (0 .. nblocks - 1) of sample i. A pair is added to the
+    total table once and to the table of each block it touches (once when both ends
+    share a block), so ``total - by_block[b]`` holds the sums of the pairs that avoid
+    block b. Returns (total of shape (ndir * kmax, ACCUMULATORS), by_block of shape
+    (nblocks, ndir * kmax, ACCUMULATORS)).
+    """
+    n = pts.shape[0]
+    ndir = dirs.shape[0]
+    kmax = edges.shape[1] - 1
+    bins = ndir * kmax
+    totals = np.zeros((nthreads, bins, ACCUMULATORS))
+    tables = np.zeros((nthreads, nblocks, bins, ACCUMULATORS))
+    nrows = (n + ROW_BLOCK - 1) // ROW_BLOCK
+    for t in prange(nthreads):
+        total = totals[t]
+        table = tables[t]
+        for blk in range(t, nrows, nthreads):
+            for i in range(blk * ROW_BLOCK, min(n, (blk + 1) * ROW_BLOCK)):
+                xi = pts[i, 0]
+                yi = pts[i, 1]
+                zi = pts[i, 2]
+                bi = blocks[i]
+                for j in range(i + 1, n):
+                    dx = pts[j, 0] - xi
+                    if dx * dx > max_d2:
+                        break
+                    dy = pts[j, 1] - yi
+                    dz = pts[j, 2] - zi
+                    d2 = dx * dx + dy * dy + dz * dz
+                    if d2 > max_d2 or d2 == 0.0:
+                        continue
+                    d = math.sqrt(d2)
+                    bj = blocks[j]
+                    for k in range(ndir):
+                        c, sign = classify(dx, dy, dz, d, dirs, k, edges, nk, inv_width)
+                        if c < 0:
+                            continue
+                        b = k * kmax + c
+                        tail = vals[i] if sign > 0 else vals[j]
+                        head = vals[j] if sign > 0 else vals[i]
+                        add_pair(total, b, d, tail, head, mode, mean)
+                        add_pair(table[bi], b, d, tail, head, mode, mean)
+                        if bj != bi:
+                            add_pair(table[bj], b, d, tail, head, mode, mean)
+    return totals.sum(axis=0), tables.sum(axis=0)

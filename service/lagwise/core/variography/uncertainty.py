@@ -1,0 +1,203 @@
+"""How sure is each class? A delete-one-block jackknife over spatial blocks of samples.
+
+Why this method: the pairs of a class are not independent -- a sample takes part in
+many pairs and nearby pairs share the field's local fluctuations -- so the spread of
+the pairs' squared differences divided by sqrt(N) understates the error. The
+samples are split into B spatial blocks of nearly equal counts (recursive halving
+of the longest side at the median); dropping one block at a time removes every pair
+that touches it, and the spread of the B recomputed statistics gives the standard
+error (block jackknife for dependent data: Kuensch 1989, Annals of Statistics 17(3))
+
+    SE = sqrt((B - 1) / B * sum_b (theta_(b) - mean_b theta_(b))^2).
+
+It is cheap: one extra pass of the pair kernel keeps per-block accumulators (each
+pair is added to the blocks of its two ends), and theta_(b) is the class statistic
+of the total sums minus block b's sums, so no pass is repeated.
+
+The 95 % interval is theta * exp(+-t SE / theta) (a normal interval for log theta
+by the delta method; semivariances are positive and right-skewed), t the 97.5 %
+quantile of Student's t with B - 1 degrees of freedom. Covariance-type statistics
+can be negative and get the symmetric interval theta +- t SE.
+
+Undefined (null, with a reason): classes without pairs, classes whose pairs touch
+fewer than ``MIN_BLOCKS_TOUCHED`` blocks or vanish when one block is dropped, the
+median-based statistic (no pair sums to subtract), sets too small for
+``MIN_BLOCKS`` blocks of ``SAMPLES_PER_BLOCK`` samples, and passes over
+``MAX_UNCERTAINTY_PAIRS`` pair-directions (the pass is skipped to bound its cost).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numba
+import numpy as np
+from scipy.stats import t as student_t
+
+from . import kernels as K
+from .statistics import ACCUMULATION_MODE, COVARIANCE_TYPE, class_value
+
+MAX_BLOCKS = 8
+MIN_BLOCKS = 6
+SAMPLES_PER_BLOCK = 6
+MIN_BLOCKS_TOUCHED = 5
+MAX_UNCERTAINTY_PAIRS = 50_000_000
+MAX_BLOCK_CELLS = 4_000_000
+LOG_RATIO_CAP = 30.0
+METHOD = (
+    "delete-one-block jackknife over spatial blocks of samples (Kuensch 1989); 95 % interval "
+    "theta * exp(+-t SE / theta), t of Student with blocks - 1 degrees of freedom (theta +- t SE for covariances)"
+)
+
+
+@dataclass(frozen=True)
+class ClassUncertainty:
+    """Uncertainty of one class statistic.
+
+    Attributes
+    ----------
+    standard_error : float or None
+        Jackknife standard error, units of the statistic.
+    interval_95 : tuple of float or None
+        (lower, upper) 95 % interval.
+    reason : str or None
+        Why the uncertainty is undefined.
+    """
+
+    standard_error: float | None
+    interval_95: tuple[float, float] | None
+    reason: str | None = None
+
+
+@dataclass(frozen=True)
+class UncertaintyPlan:
+    """The blocks used (for the audit trail)."""
+
+    blocks: int
+    method: str = METHOD
+
+
+def spatial_blocks(coords: np.ndarray, count: int) -> np.ndarray:
+    """Block label (0 .. count - 1) of each sample: recursive median halving of the longest side.
+
+    Parts get sample counts in proportion to their share of ``count`` blocks, so
+    blocks hold nearly equal numbers of samples.
+    """
+    labels = np.empty(coords.shape[0], dtype=np.int64)
+    stack = [(np.arange(coords.shape[0]), count, 0)]
+    while stack:
+        index, k, first = stack.pop()
+        if k == 1:
+            labels[index] = first
+            continue
+        part = coords[index]
+        axis = int(np.argmax(np.ptp(part, axis=0)))
+        order = index[np.argsort(part[:, axis], kind="stable")]
+        left = k // 2
+        cut = int(round(index.size * left / k))
+        stack.append((order[:cut], left, first))
+        stack.append((order[cut:], k - left, first + left))
+    return labels
+
+
+def block_count(samples: int) -> int:
+    """Blocks for a set of ``samples``: at most ``MAX_BLOCKS``, at least ``SAMPLES_PER_BLOCK`` samples each."""
+    return min(MAX_BLOCKS, samples // SAMPLES_PER_BLOCK)
+
+
+def _undefined(reason: str, shape: tuple[int, int]) -> list[list[ClassUncertainty]]:
+    return [[ClassUncertainty(None, None, reason) for _ in range(shape[1])] for _ in range(shape[0])]
+
+
+def class_uncertainties(
+    statistic: str, prepared, classes, coords: np.ndarray, pairs_in_classes: int
+) -> tuple[list[list[ClassUncertainty]], UncertaintyPlan | None]:
+    """Uncertainty of every class of every direction (see the module docstring).
+
+    Parameters
+    ----------
+    statistic : str
+        The class statistic.
+    prepared : PreparedSamples
+        Samples laid out for the kernels.
+    classes : ClassLayout
+        Direction and distance classes.
+    coords : ndarray, shape (n, d)
+        Working coordinates in input order (blocks are built from them).
+    pairs_in_classes : int
+        Pairs counted in the classes over all directions (bounds the pass's cost).
+
+    Returns
+    -------
+    (rows, plan)
+        rows[k][c] for direction k and class c; plan is None when no pass ran.
+    """
+    shape = (classes.table.shape[0], classes.kmax)
+    blocks = block_count(coords.shape[0])
+    if statistic == "semivariance_median":
+        return _undefined("not available for the median-based statistic (no pair sums to leave out)", shape), None
+    if blocks < MIN_BLOCKS:
+        return _undefined(
+            f"too few samples for {MIN_BLOCKS} spatial blocks of {SAMPLES_PER_BLOCK} samples", shape
+        ), None
+    if pairs_in_classes > MAX_UNCERTAINTY_PAIRS:
+        return _undefined(f"skipped: more than {MAX_UNCERTAINTY_PAIRS:.0e} pairs in the classes", shape), None
+    while blocks > MIN_BLOCKS and blocks * shape[0] * shape[1] > MAX_BLOCK_CELLS:
+        blocks //= 2
+    if blocks * shape[0] * shape[1] > MAX_BLOCK_CELLS:
+        return _undefined("skipped: too many classes for the per-block sums", shape), None
+    labels = spatial_blocks(coords, blocks)[prepared.order]
+    total, by_block = K.accumulate_blocks(
+        prepared.points,
+        prepared.values,
+        prepared.mean,
+        classes.search_radius**2,
+        classes.table,
+        classes.edges,
+        classes.counts,
+        classes.inv_width,
+        ACCUMULATION_MODE[statistic],
+        labels,
+        blocks,
+        numba.get_num_threads(),
+    )
+    factor = float(student_t.ppf(0.975, blocks - 1))
+    rows = []
+    for k in range(shape[0]):
+        row = []
+        for c in range(shape[1]):
+            b = k * classes.kmax + c
+            row.append(_one_class(statistic, total[b], by_block[:, b], prepared, factor))
+        rows.append(row)
+    return rows, UncertaintyPlan(blocks)
+
+
+def _one_class(statistic, total, by_block, prepared, factor) -> ClassUncertainty:
+    if total[K.COUNT] == 0:
+        return ClassUncertainty(None, None, "no pairs in this class")
+    touched = int(np.count_nonzero(by_block[:, K.COUNT]))
+    if touched < MIN_BLOCKS_TOUCHED:
+        return ClassUncertainty(
+            None, None, f"the class's pairs touch only {touched} spatial blocks (fewer than {MIN_BLOCKS_TOUCHED})"
+        )
+    full = class_value(statistic, total, prepared.mean, prepared.scale, None).value
+    replicates = []
+    for b in range(by_block.shape[0]):
+        left = total - by_block[b]
+        value = class_value(statistic, left, prepared.mean, prepared.scale, None).value if left[K.COUNT] > 0 else None
+        if value is None:
+            return ClassUncertainty(None, None, "the statistic is undefined once one spatial block is left out")
+        replicates.append(value)
+    if full is None:
+        return ClassUncertainty(None, None, "the statistic is undefined for this class")
+    replicates = np.array(replicates)
+    blocks = replicates.size
+    se = math.sqrt((blocks - 1) / blocks * float(np.sum((replicates - replicates.mean()) ** 2)))
+    if statistic in COVARIANCE_TYPE or full <= 0.0:
+        return ClassUncertainty(se, (full - factor * se, full + factor * se))
+    ratio = factor * se / full
+    if ratio > LOG_RATIO_CAP:
+        # Far too uncertain for the log-scale form to stay finite: from zero to the symmetric upper bound.
+        return ClassUncertainty(se, (0.0, full + factor * se))
+    return ClassUncertainty(se, (full * math.exp(-ratio), full * math.exp(ratio)))
