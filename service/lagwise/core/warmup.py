@@ -21,7 +21,8 @@ _warm = False
 
 def _tiny_samples():
     rng = np.random.default_rng(7)
-    return build_sample_set(rng.uniform(1.0, 2.0, 24), rng.uniform(0, 10, 24), rng.uniform(0, 10, 24))
+    # 40 samples: enough spatial blocks for the class-uncertainty kernel to run too.
+    return build_sample_set(rng.uniform(1.0, 2.0, 40), rng.uniform(0, 10, 40), rng.uniform(0, 10, 40))
 
 
 def warm_kernels() -> None:
@@ -53,5 +54,8 @@ def compile_kernels() -> None:
     )
     K.collect_pairs.compile(
         f"({a2}, {a1}, {f8}, {a2}, {a2}, {i8}[::1], {a1}, {i8}[::1], {i8}[::1], {a1}, {i8}, {i8}, {a1}, {a1}, {i8}[::1], {rows})"
+    )
+    K.accumulate_blocks.compile(
+        f"({a2}, {a1}, {f8}, {f8}, {a2}, {a2}, {i8}[::1], {a1}, {i8}, {i8}[::1], {i8}, {i8}, {rows})"
     )
     K.collect_map_differences.compile(f"({a2}, {a1}, {f8}, {i8}, {i8}[::1], {i8}[::1], {a1}, {rows})")

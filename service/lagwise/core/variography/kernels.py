@@ -437,8 +437,11 @@ def collect_map_differences(pts, vals, cell, cells, offsets, ends, out_abs, firs
 
 
 @njit(parallel=True, cache=True)
-def accumulate_blocks(pts, vals, mean, max_d2, dirs, edges, nk, inv_width, mode, blocks, nblocks, nthreads):
-    """Accumulate every pair into (direction, class) bins, in total and per spatial block.
+def accumulate_blocks(
+    pts, vals, mean, max_d2, dirs, edges, nk, inv_width, mode, blocks, nblocks, nthreads, first, last
+):
+    """Accumulate every pair whose first sample is in rows [first, last) into (direction, class)
+    bins, in total and per spatial block.
 
     ``blocks[i]`` is the block (0 .. nblocks - 1) of sample i. A pair is added to the
     total table once and to the table of each block it touches (once when both ends
@@ -452,12 +455,12 @@ def accumulate_blocks(pts, vals, mean, max_d2, dirs, edges, nk, inv_width, mode,
     bins = ndir * kmax
     totals = np.zeros((nthreads, bins, ACCUMULATORS))
     tables = np.zeros((nthreads, nblocks, bins, ACCUMULATORS))
-    nrows = (n + ROW_BLOCK - 1) // ROW_BLOCK
+    nrows = (last - first + ROW_BLOCK - 1) // ROW_BLOCK
     for t in prange(nthreads):
         total = totals[t]
         table = tables[t]
         for blk in range(t, nrows, nthreads):
-            for i in range(blk * ROW_BLOCK, min(n, (blk + 1) * ROW_BLOCK)):
+            for i in range(first + blk * ROW_BLOCK, min(last, first + (blk + 1) * ROW_BLOCK)):
                 xi = pts[i, 0]
                 yi = pts[i, 1]
                 zi = pts[i, 2]

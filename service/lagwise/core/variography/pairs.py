@@ -224,6 +224,44 @@ def accumulate(prepared: PreparedSamples, classes: ClassLayout, mode: int) -> tu
     return total.reshape(classes.table.shape[0], classes.kmax, K.ACCUMULATORS), colocated[0]
 
 
+def accumulate_by_block(
+    prepared: PreparedSamples, classes: ClassLayout, mode: int, blocks: np.ndarray, nblocks: int
+) -> tuple[np.ndarray, np.ndarray]:
+    """Run the per-block pair kernel over ranges of rows (deadline checked between them).
+
+    ``blocks`` labels the samples in prepared (x-sorted) order. Returns the total table
+    (ndir * kmax, ACCUMULATORS) and the per-block tables (nblocks, ndir * kmax, ACCUMULATORS);
+    see :func:`lagwise.core.variography.kernels.accumulate_blocks`.
+    """
+    radius = classes.search_radius
+    bins = classes.table.shape[0] * classes.kmax
+    total = np.zeros((bins, K.ACCUMULATORS))
+    by_block = np.zeros((nblocks, bins, K.ACCUMULATORS))
+
+    def run(first: int, last: int) -> None:
+        part, parts = K.accumulate_blocks(
+            prepared.points,
+            prepared.values,
+            prepared.mean,
+            radius * radius,
+            classes.table,
+            classes.edges,
+            classes.counts,
+            classes.inv_width,
+            mode,
+            blocks,
+            nblocks,
+            numba.get_num_threads(),
+            first,
+            last,
+        )
+        total[:] += part
+        by_block[:] += parts
+
+    in_chunks(sweep_visits(prepared.points[:, 0], radius), run)
+    return total, by_block
+
+
 _NONE_F = np.zeros(0)
 _NONE_I = np.zeros(0, dtype=np.int64)
 

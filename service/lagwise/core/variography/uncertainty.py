@@ -23,7 +23,8 @@ Undefined (null, with a reason): classes without pairs, classes whose pairs touc
 fewer than ``MIN_BLOCKS_TOUCHED`` blocks or vanish when one block is dropped, the
 median-based statistic (no pair sums to subtract), sets too small for
 ``MIN_BLOCKS`` blocks of ``SAMPLES_PER_BLOCK`` samples, and passes over
-``MAX_UNCERTAINTY_PAIRS`` pair-directions (the pass is skipped to bound its cost).
+``MAX_UNCERTAINTY_PAIRS`` pairs (the pass is skipped, not refused, to bound its cost;
+it runs in ranges of rows with the request's deadline checked between them).
 """
 
 from __future__ import annotations
@@ -31,11 +32,11 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
-import numba
 import numpy as np
 from scipy.stats import t as student_t
 
 from . import kernels as K
+from .pairs import accumulate_by_block, sweep_visits
 from .statistics import ACCUMULATION_MODE, COVARIANCE_TYPE, class_value
 
 MAX_BLOCKS = 8
@@ -126,7 +127,8 @@ def class_uncertainties(
     coords : ndarray, shape (n, d)
         Working coordinates in input order (blocks are built from them).
     pairs_in_classes : int
-        Pairs counted in the classes over all directions (bounds the pass's cost).
+        Pairs counted in the classes over all directions; with the pairs the x-sorted
+        sweep visits, it bounds the pass's cost (skipped above ``MAX_UNCERTAINTY_PAIRS``).
 
     Returns
     -------
@@ -141,27 +143,15 @@ def class_uncertainties(
         return _undefined(
             f"too few samples for {MIN_BLOCKS} spatial blocks of {SAMPLES_PER_BLOCK} samples", shape
         ), None
-    if pairs_in_classes > MAX_UNCERTAINTY_PAIRS:
+    work = max(pairs_in_classes, int(sweep_visits(prepared.points[:, 0], classes.search_radius).sum()))
+    if work > MAX_UNCERTAINTY_PAIRS:
         return _undefined(f"skipped: more than {MAX_UNCERTAINTY_PAIRS:.0e} pairs in the classes", shape), None
     while blocks > MIN_BLOCKS and blocks * shape[0] * shape[1] > MAX_BLOCK_CELLS:
         blocks //= 2
     if blocks * shape[0] * shape[1] > MAX_BLOCK_CELLS:
         return _undefined("skipped: too many classes for the per-block sums", shape), None
     labels = spatial_blocks(coords, blocks)[prepared.order]
-    total, by_block = K.accumulate_blocks(
-        prepared.points,
-        prepared.values,
-        prepared.mean,
-        classes.search_radius**2,
-        classes.table,
-        classes.edges,
-        classes.counts,
-        classes.inv_width,
-        ACCUMULATION_MODE[statistic],
-        labels,
-        blocks,
-        numba.get_num_threads(),
-    )
+    total, by_block = accumulate_by_block(prepared, classes, ACCUMULATION_MODE[statistic], labels, blocks)
     factor = float(student_t.ppf(0.975, blocks - 1))
     rows = []
     for k in range(shape[0]):
