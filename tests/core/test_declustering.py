@@ -106,3 +106,21 @@ def test_weighted_normal_scores():
     assert not equal.weighted
     hazen = ndtri((rankdata(values) - 0.5) / 50)
     assert equal.forward(values) == pytest.approx(hazen)
+
+
+def test_weighted_start_shares_the_weights_between_stages():
+    """Normal scores from weighted plotting positions have a declustered mean near 0 and variance
+    near 1 (the standard normal's moments, discretised), while the plain moments are pulled
+    toward the over-sampled patch."""
+    from lagwise.core.data.declustering import weighted_start
+
+    rng = np.random.default_rng(1)
+    coords = np.vstack([rng.uniform(0, 100, (150, 2)), rng.uniform(0, 10, (100, 2))])
+    values = np.exp(np.concatenate([rng.normal(0, 1, 150), rng.normal(2, 0.5, 100)]))
+    start = weighted_start(coords, values, "normal_score")
+    assert start.declustering.clustered and start.transform.weighted
+    assert abs(start.simple_kriging_mean) < 0.05 and abs(start.sill_reference - 1.0) < 0.1
+    assert start.values.mean() > 0.2  # unweighted mean of the scores is pulled up by the patch
+    plain = weighted_start(coords[:150], values[:150], "log")
+    assert not plain.declustering.clustered
+    assert plain.simple_kriging_mean == pytest.approx(np.log(values[:150]).mean())

@@ -51,6 +51,7 @@ from scipy.special import gamma
 from scipy.stats import qmc
 
 from .spacing import nearest_distances
+from .transforms import Transform, fit_transform
 
 CELL_SIZES = 24
 ORIGINS = 8
@@ -287,3 +288,44 @@ def decluster(coords: np.ndarray, values: np.ndarray, *, seed: int = 0) -> Declu
         ratio_z=None if ratio_z is None else float(ratio_z),
         shift_z=float(shift_z),
     )
+
+
+@dataclass(frozen=True)
+class WeightedStart:
+    """Declustering and transform of an analysis, found once and shared by its stages.
+
+    Attributes
+    ----------
+    declustering : Declustering
+        Found from the original values.
+    transform : Transform
+        Fitted with the declustering weights (normal-score plotting positions).
+    values : ndarray
+        Transformed values, in sample order.
+    """
+
+    declustering: Declustering
+    transform: Transform
+    values: np.ndarray
+
+    @property
+    def simple_kriging_mean(self) -> float:
+        """Default simple-kriging mean, in transformed units: the (declustered when clustered) mean."""
+        return self.declustering.mean_of(self.values)
+
+    @property
+    def sill_reference(self) -> float:
+        """Sill reference in transformed units: the (declustered when clustered) variance."""
+        return self.declustering.variance_of(self.values)
+
+
+def weighted_start(coords: np.ndarray, values: np.ndarray, transform: str, source_index=None) -> WeightedStart:
+    """Hook for the whole-chain analysis: decluster the original values, then fit the transform with the weights.
+
+    Pass ``declustering`` on to ``experimental_variogram`` and ``variogram_map`` (their
+    summaries then use the same weights), ``sill_reference`` to the fit as the sample
+    variance, and ``simple_kriging_mean`` where simple kriging has no mean.
+    """
+    declustering = decluster(coords, values)
+    fitted = fit_transform(transform, values, source_index, weights=declustering.used_weights)
+    return WeightedStart(declustering, fitted, fitted.forward(values))

@@ -191,3 +191,58 @@ def _one_class(statistic, total, by_block, prepared, factor) -> ClassUncertainty
         # Far too uncertain for the log-scale form to stay finite: from zero to the symmetric upper bound.
         return ClassUncertainty(se, (0.0, full + factor * se))
     return ClassUncertainty(se, (full * math.exp(-ratio), full * math.exp(ratio)))
+
+
+@dataclass(frozen=True)
+class StructureEvidence:
+    """Whether the short classes show a structure beyond their own noise.
+
+    Attributes
+    ----------
+    resolved : bool
+        Each of the first ``checked`` classes with an interval has its whole 95 %
+        interval below the sill reference.
+    below : int
+        How many of those classes lie wholly below it.
+    checked : int
+        Classes looked at (fewer than asked when intervals are missing).
+    text : str
+        One plain sentence for a verdict.
+    """
+
+    resolved: bool
+    below: int
+    checked: int
+    text: str
+
+
+def structure_evidence(classes, reference: float, leading: int = 2) -> StructureEvidence:
+    """Do the ``leading`` shortest classes lie below the sill reference beyond their noise?
+
+    Parameters
+    ----------
+    classes : sequence of ClassRow
+        Classes of one direction (semivariance-type statistic), shortest first.
+    reference : float
+        Sill reference (the declustered variance when sampling is clustered), squared value units.
+    leading : int
+        Classes that must each have a 95 % interval wholly below ``reference``
+        (two by default: a single class falls below by chance about 1 time in 40).
+
+    Spatial continuity means close samples differ less than the field as a whole, so
+    the shortest classes sit below the sill; when their intervals reach the sill,
+    the structure is inside the noise of its classes.
+    """
+    rows = [r for r in classes if r.interval_95 is not None and not r.sparse][:leading]
+    below = sum(r.interval_95[1] < reference for r in rows)
+    resolved = len(rows) == leading and below == leading
+    if resolved:
+        text = f"the {leading} shortest classes lie below the sill reference beyond their 95 % intervals"
+    elif len(rows) < leading:
+        text = f"fewer than {leading} short classes carry an uncertainty, so the structure cannot be told from noise"
+    else:
+        text = (
+            f"{below} of the {leading} shortest classes lie below the sill reference beyond their 95 % intervals: "
+            "the structure is inside the noise of its classes"
+        )
+    return StructureEvidence(resolved, below, len(rows), text)
