@@ -136,3 +136,22 @@ def test_fitted_model_evaluates_like_the_core(client, field_samples):
     classes = doc["experimental"]["directions"][0]["classes"]
     h = np.array([c["mean_distance"] for c in classes])
     np.testing.assert_allclose([c["model_value"] for c in classes], model.semivariance(h), rtol=1e-12)
+
+
+def test_inverse_variance_weighting_from_a_previous_experimental_response(client, field_samples):
+    experimental = client.post("/v1/experimental-variograms", json={"samples": field_samples}).json
+    assert all(row["standard_error"] for row in experimental["directions"][0]["classes"])
+    body = {"experimental": experimental, "families": ["spherical"], "weighting": "inverse_variance"}
+    r = client.post(URL, json=body)
+    assert r.status_code == 200, r.json
+    assert r.json["parameters"]["weighting"] == "inverse_variance"
+    same = client.post(
+        URL, json={"samples": field_samples, "families": ["spherical"], "weighting": "inverse_variance"}
+    ).json
+    given, recomputed = r.json["model"], same["model"]
+    assert recomputed["nugget"] == pytest.approx(given["nugget"], rel=1e-6)
+    assert recomputed["structures"][0]["range"] == pytest.approx(given["structures"][0]["range"], rel=1e-6)
+    for row in experimental["directions"][0]["classes"]:
+        row.pop("standard_error")
+    refused = client.post(URL, json=body)
+    assert refused.status_code == 422 and refused.json["errors"][0]["pointer"] == "/weighting"

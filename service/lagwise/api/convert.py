@@ -181,7 +181,12 @@ def experimental_points(document: dict, min_pairs: int):
             "/experimental/parameters/statistic", f"models are fitted to semivariances, not to {statistic!r}"
         )
     rows = [
-        (d["azimuth"], k, c, _ClassRow(row.get("mean_distance"), row.get("value"), row["pairs"]))
+        (
+            d["azimuth"],
+            k,
+            c,
+            _ClassRow(row.get("mean_distance"), row.get("value"), row["pairs"], row.get("standard_error")),
+        )
         for k, d in enumerate(given["directions"])
         for c, row in enumerate(d["classes"])
     ]
@@ -204,6 +209,7 @@ class _ClassRow:
     mean_distance: float | None
     value: float | None
     pairs: int
+    standard_error: float | None = None
 
 
 def _structure(pointer: str, raw: dict) -> Structure:

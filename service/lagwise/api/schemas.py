@@ -171,6 +171,9 @@ class ExperimentalClassInput(Schema):
     mean_distance = fields.Float(allow_none=True, required=True)
     value = fields.Float(allow_none=True, required=True)
     pairs = fields.Integer(required=True, validate=validate.Range(min=0))
+    standard_error = fields.Float(
+        allow_none=True, metadata={"description": "Class standard error (used by weighting inverse_variance)."}
+    )
 
 
 class ExperimentalDirectionInput(Schema):

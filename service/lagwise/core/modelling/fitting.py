@@ -9,7 +9,11 @@ parameter) from several data-driven starting points. Weights (normalised to mean
 * ``cressie``: N(h) / gamma(h; theta)^2, Cressie (1985), Math. Geology 17(5), iterated:
   the weights are recomputed from the last fit until the parameters settle, so that
   at the optimum the objective is sum N(h) [gamma_hat(h) / gamma(h; theta) - 1]^2;
-* ``uniform``: 1.
+* ``uniform``: 1;
+* ``inverse_variance``: 1 / SE(h)^2, SE the class's standard error (delete-one-block
+  jackknife, :mod:`lagwise.core.variography.uncertainty`), raised to at least
+  ``SE_FLOOR_SHARE`` times the median SE (weighted least squares with known
+  variances, common practice; the floor guards against a chance small jackknife SE).
 
 Candidates are ranked by the corrected Akaike information criterion of a weighted
 least-squares fit, AICc = n ln(S/n) + 2p + 2p(p+1)/(n-p-1) (Hurvich & Tsai 1989),
@@ -36,7 +40,10 @@ from ..errors import FieldIssue, InvalidInput
 from .families import AZIMUTH, NUGGET, RATIO, Parameter, Scaled
 from .models import BOUNDED_FAMILIES, FAMILIES, Anisotropy, Structure, VariogramModel
 
-WEIGHTINGS = ("pairs", "pairs_over_distance", "cressie", "uniform")
+WEIGHTINGS = ("pairs", "pairs_over_distance", "cressie", "uniform", "inverse_variance")
+# inverse_variance: standard errors below this share of their median are raised to it, so that
+# one class whose jackknife error is small by chance does not dominate the fit.
+SE_FLOOR_SHARE = 0.25
 NESTED_FAMILIES = ("spherical", "exponential", "gaussian")
 # "auto" tries the monotone bounded families; the hole-effect cardinal_sine fits
 # sampling wiggles as often as real periodicity, so it is tried only on request.
@@ -84,6 +91,7 @@ class ExperimentalPoints:
     direction: np.ndarray
     klass: np.ndarray
     usable: np.ndarray
+    standard_error: np.ndarray | None = None
 
 
 @dataclass(frozen=True)
@@ -184,6 +192,7 @@ class _Problem:
         self.h = points.distance[use]
         self.gamma = points.value[use]
         self.pairs = points.pairs[use].astype(float)
+        self.standard_error = None if points.standard_error is None else points.standard_error[use]
         az = np.radians(points.azimuth[use])
         self.vectors = np.column_stack([self.h * np.sin(az), self.h * np.cos(az)])
         self.azimuths = np.unique(points.azimuth[use])
@@ -286,6 +295,9 @@ def _weights(weighting: str, problem: _Problem, fitted: np.ndarray | None) -> np
     elif weighting == "cressie":
         base = fitted if fitted is not None else problem.gamma
         w = problem.pairs / np.maximum(base, 1e-9 * problem.gmax) ** 2
+    elif weighting == "inverse_variance":
+        se = problem.standard_error
+        w = 1.0 / np.maximum(se, SE_FLOOR_SHARE * float(np.median(se))) ** 2
     else:
         w = problem.pairs.copy()
     return w / w.mean()
@@ -383,6 +395,21 @@ def _validate_options(families, nugget, weighting, anisotropy, structures, point
     issues = []
     if weighting not in WEIGHTINGS:
         issues.append(FieldIssue("/weighting", f"must be one of {', '.join(WEIGHTINGS)}"))
+    elif weighting == "inverse_variance":
+        se = points.standard_error
+        lacking = (
+            int(points.usable.sum())
+            if se is None
+            else int(np.count_nonzero(points.usable & ~(np.nan_to_num(se, nan=0.0) > 0)))
+        )
+        if lacking:
+            issues.append(
+                FieldIssue(
+                    "/weighting",
+                    f"inverse_variance needs a positive standard error on every class used; {lacking} lack one "
+                    "(see each class's uncertainty_reason)",
+                )
+            )
     if families != "auto":
         if not families:
             issues.append(FieldIssue("/families", 'give at least one family, or "auto"'))
@@ -508,6 +535,7 @@ def points_from_rows(rows, min_pairs: int) -> ExperimentalPoints:
     distance = np.array([num(r.mean_distance) for _, _, _, r in rows])
     value = np.array([num(r.value) for _, _, _, r in rows])
     pairs = np.array([int(r.pairs) for _, _, _, r in rows])
+    standard_error = np.array([num(getattr(r, "standard_error", None)) for _, _, _, r in rows])
     usable = np.isfinite(distance) & np.isfinite(value) & (pairs >= min_pairs) & (np.nan_to_num(distance) > 0)
     return ExperimentalPoints(
         distance=np.nan_to_num(distance),
@@ -517,6 +545,7 @@ def points_from_rows(rows, min_pairs: int) -> ExperimentalPoints:
         direction=np.array([k for _, k, _, _ in rows]),
         klass=np.array([c for _, _, c, _ in rows]),
         usable=usable,
+        standard_error=standard_error,
     )
 
 
