@@ -79,55 +79,51 @@ def test_model_along_an_azimuth_applies_the_anisotropy():
 
 
 def test_each_direction_gets_its_own_model_curve(fan):
-    svg = figures.variogram(fan, MODEL, "exponential", LEAD, sill_reference=1.0)
+    svg = figures.variogram(fan, MODEL, LEAD, sill_reference=1.0)
     ids = _ids(svg)
     assert {"experimental-points-0", "experimental-points-1", "model-curve-0", "model-curve-1"} <= ids
     assert {"pair-counts-0", "pair-counts-1"} <= ids
     texts = _texts(svg)
     assert "model along 60°" in texts and "model along 150°" in texts
+    assert any("exponential (partial sill 0.9, range 300 m along 60°, ratio 0.40)" in t for t in texts)
     assert "separation distance (m)" in texts and "semivariance of lead ((mg/kg)²)" in texts
 
 
 def test_an_isotropic_model_is_drawn_once(fan):
     model = VariogramModel(0.1, (Structure("spherical", 0.9, 200.0),))
-    ids = _ids(figures.variogram(fan, model, "spherical", LEAD))
+    ids = _ids(figures.variogram(fan, model, LEAD))
     assert "model-curve-0" in ids and "model-curve-1" not in ids
 
 
 @dataclass(frozen=True)
-class Interval:
-    lower: float
-    upper: float
-
-
-@dataclass(frozen=True)
 class RowWithUncertainty(ClassRow):
-    uncertainty: Interval | None = None
+    interval_95: tuple[float, float] | None = None
 
 
 def test_uncertainty_bars_only_when_classes_carry_them(fan):
-    assert not any(i.startswith("class-uncertainty") for i in _ids(figures.variogram(fan, MODEL, "m", LEAD)))
+    assert not any(i.startswith("class-uncertainty") for i in _ids(figures.variogram(fan, MODEL, LEAD)))
     rows = tuple(
-        RowWithUncertainty(**r.__dict__, uncertainty=Interval(0.8 * r.value, 1.2 * r.value) if r.value else None)
+        RowWithUncertainty(**r.__dict__, interval_95=(0.8 * r.value, 1.2 * r.value) if r.value else None)
         for r in fan.directions[0].classes
     )
     widened = type(fan)(**{**fan.__dict__, "directions": (DirectionResult(fan.directions[0].direction, rows),)})
-    ids = _ids(figures.variogram(widened, MODEL, "m", LEAD))
-    assert "class-uncertainty-0" in ids
+    svg = figures.variogram(widened, MODEL, LEAD)
+    assert "class-uncertainty-0" in _ids(svg)
+    assert any("bars: 95 % intervals" in t for t in _texts(svg))
 
 
 def test_two_renders_are_byte_identical_and_text_is_text(fan):
-    first = figures.variogram(fan, MODEL, "exponential", LEAD)
-    second = figures.variogram(fan, MODEL, "exponential", LEAD)
+    first = figures.variogram(fan, MODEL, LEAD)
+    second = figures.variogram(fan, MODEL, LEAD)
     assert first == second
     assert "<dc:date>" not in first
     assert len(_texts(first)) > 10  # tick labels, axis labels, title, legend as <text>
-    png = [figures.variogram(fan, MODEL, "exponential", LEAD, fmt="png", size=(500, 320)) for _ in range(2)]
+    png = [figures.variogram(fan, MODEL, LEAD, fmt="png", size=(500, 320)) for _ in range(2)]
     assert png[0] == png[1]
 
 
 def test_png_decodes_at_the_requested_size(fan):
-    data = figures.variogram(fan, MODEL, "exponential", LEAD, fmt="png", size=(640, 410))
+    data = figures.variogram(fan, MODEL, LEAD, fmt="png", size=(640, 410))
     assert data[:8] == b"\x89PNG\r\n\x1a\n" and struct.unpack(">II", data[16:24]) == (640, 410)
     assert imread(io.BytesIO(data)).shape[:2] == (410, 640)
 

@@ -46,7 +46,6 @@ def render(result, samples, document: dict) -> dict:
             image = figures.variogram(
                 experimental,
                 model,
-                result.fit.best.label,
                 labels,
                 sill_reference=result.transformed_summary.variance,
                 size=size,

@@ -33,9 +33,26 @@ def along(model, azimuth: float, distances: np.ndarray) -> np.ndarray:
 
 
 def _interval(row) -> tuple[float, float] | None:
-    """A class's uncertainty interval (semivariance bounds) when the class carries one."""
-    uncertainty = getattr(row, "uncertainty", None)
-    return None if uncertainty is None else (uncertainty.lower, uncertainty.upper)
+    """A class's 95 % interval (``interval_95``, statistic units) when the class carries one."""
+    return getattr(row, "interval_95", None)
+
+
+def describe(model, labels: Labels) -> str:
+    """One line naming the model's nugget and structures, with ranges in the distance unit."""
+    unit = "" if labels.distance_unit is None else f" {labels.distance_unit}"
+    parts = [f"nugget {model.nugget:.3g}"] if model.nugget > 0 or not model.structures else []
+    for s in model.structures:
+        if s.family == "linear":
+            parts.append(f"linear (slope {s.partial_sill:.3g})")
+            continue
+        if s.family == "power":
+            parts.append(f"power (coefficient {s.partial_sill:.3g}, exponent {s.extra:.3g})")
+            continue
+        text = f"{s.family.replace('_', ' ')} (partial sill {s.partial_sill:.3g}, range {s.range:.4g}{unit}"
+        if not s.anisotropy.isotropic:
+            text += f" along {s.anisotropy.azimuth:.0f}°, ratio {s.anisotropy.ratio:.2f}"
+        parts.append(text + ")")
+    return "model: " + " + ".join(parts)
 
 
 def _curves(model, directions) -> list[tuple[float | None, str, str]]:
@@ -58,7 +75,6 @@ def _curves(model, directions) -> list[tuple[float | None, str, str]]:
 def variogram(
     experimental,
     model,
-    model_label: str,
     labels: Labels,
     *,
     sill_reference: float | None = None,
@@ -73,8 +89,6 @@ def variogram(
         The classes drawn (one colour per direction class).
     model : VariogramModel
         The selected model; drawn along each class's azimuth when it is anisotropic.
-    model_label : str
-        Short description of the model for the legend.
     labels : Labels
         Names and units.
     sill_reference : float, optional
@@ -92,6 +106,8 @@ def variogram(
     """
     directions = [d for d in experimental.directions if any(r.pairs > 0 and r.value is not None for r in d.classes)]
     min_pairs = experimental.min_pairs
+
+    has_bars = any(_interval(r) is not None for d in directions for r in d.classes if r.pairs > 0)
 
     def draw(fig):
         top, bottom = fig.subplots(2, 1, sharex=True, height_ratios=[4, 1.2])
@@ -128,8 +144,8 @@ def variogram(
         if sill_reference is not None:
             top.axhline(sill_reference, color=SLATE, linewidth=0.9, linestyle=":", label="variance of the samples")
         bottom.axhline(min_pairs, color=SLATE, linewidth=0.8, linestyle="--")
-        bottom.annotate(f"{min_pairs} pairs", (reach, min_pairs), xytext=(2, 2), textcoords="offset points",
-                        fontsize=7, ha="right", va="bottom")  # fmt: skip
+        bottom.annotate(f"{min_pairs} pairs", (0, min_pairs), xytext=(3, 2), textcoords="offset points", fontsize=7,
+                        ha="left", va="bottom", bbox={"facecolor": "white", "edgecolor": "none", "pad": 0.5})  # fmt: skip
         top.set_ylabel(labels.gamma(experimental.statistic))
         top.set_xlim(0, reach * 1.02)
         top.set_ylim(bottom=0)
@@ -138,7 +154,8 @@ def variogram(
         style_axes(
             top,
             f"Experimental {STATISTIC_NAMES.get(experimental.statistic, experimental.statistic)} and fitted model",
-            f"{model_label}; marker area grows with the pairs of a class, hollow: fewer than {min_pairs} pairs",
+            f"{describe(model, labels)}\nmarker area grows with the pairs of a class; hollow: fewer than {min_pairs} pairs"
+            + ("; bars: 95 % intervals" if has_bars else ""),
         )
         style_axes(bottom, "Pairs per class")
         bottom.title.set_fontsize(8)
