@@ -5,7 +5,7 @@ from __future__ import annotations
 import io
 import struct
 import xml.etree.ElementTree as ET
-from dataclasses import dataclass
+from dataclasses import replace
 
 import numpy as np
 import pytest
@@ -14,7 +14,7 @@ from lagwise.core.data.samples import build_sample_set
 from lagwise.core.kriging.prediction import Grid
 from lagwise.core.modelling.models import Anisotropy, Structure, VariogramModel
 from lagwise.core.variography.directions import DirectionClass
-from lagwise.core.variography.experimental import ClassRow, DirectionResult, experimental_variogram
+from lagwise.core.variography.experimental import DirectionResult, experimental_variogram
 from lagwise.core.variography.maps import variogram_map
 from lagwise.figures.maps import resolve_scale
 from lagwise.figures.variogram import along, masked_cells
@@ -95,21 +95,22 @@ def test_an_isotropic_model_is_drawn_once(fan):
     assert "model-curve-0" in ids and "model-curve-1" not in ids
 
 
-@dataclass(frozen=True)
-class RowWithUncertainty(ClassRow):
-    interval_95: tuple[float, float] | None = None
+def _with_intervals(experimental, interval):
+    directions = tuple(
+        DirectionResult(d.direction, tuple(replace(r, interval_95=interval(r)) for r in d.classes))
+        for d in experimental.directions
+    )
+    return replace(experimental, directions=directions)
 
 
 def test_uncertainty_bars_only_when_classes_carry_them(fan):
-    assert not any(i.startswith("class-uncertainty") for i in _ids(figures.variogram(fan, MODEL, LEAD)))
-    rows = tuple(
-        RowWithUncertainty(**r.__dict__, interval_95=(0.8 * r.value, 1.2 * r.value) if r.value else None)
-        for r in fan.directions[0].classes
-    )
-    widened = type(fan)(**{**fan.__dict__, "directions": (DirectionResult(fan.directions[0].direction, rows),)})
-    svg = figures.variogram(widened, MODEL, LEAD)
-    assert "class-uncertainty-0" in _ids(svg)
+    """The classes' 95 % intervals (jackknife, from the experimental variogram) are drawn as bars."""
+    svg = figures.variogram(fan, MODEL, LEAD)
+    assert {"class-uncertainty-0", "class-uncertainty-1"} <= _ids(svg)
     assert any("bars: 95 % intervals" in t for t in _texts(svg))
+    bare = figures.variogram(_with_intervals(fan, lambda r: None), MODEL, LEAD)
+    assert not any(i.startswith("class-uncertainty") for i in _ids(bare))
+    assert not any("bars:" in t for t in _texts(bare))
 
 
 def test_two_renders_are_byte_identical_and_text_is_text(fan):
