@@ -4,9 +4,28 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
+from flask import Flask
 from lagwise.api import create_app
 from lagwise.api.settings import Settings
 from lagwise.core.limits import Limits
+
+from tests.contract_check import TALLY, ContractClient
+
+
+@pytest.fixture(autouse=True, scope="session")
+def _responses_obey_the_contract():
+    """Every Flask test client of the session checks each response against openapi/openapi.yaml."""
+    with pytest.MonkeyPatch.context() as patch:
+        patch.setattr(Flask, "test_client_class", ContractClient)
+        yield
+
+
+def pytest_terminal_summary(terminalreporter):
+    if TALLY["checked"]:
+        terminalreporter.write_line(
+            f"contract: {TALLY['checked']} responses checked against openapi/openapi.yaml, "
+            f"{TALLY['mismatches']} mismatches"
+        )
 
 
 @pytest.fixture(scope="session")

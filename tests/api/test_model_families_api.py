@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 import pytest
-from lagwise.api.schemas import AnisotropyInput, StructureInput
+from lagwise.api.schemas import STRUCTURE_FORMS, AnisotropyInput
 from lagwise.core.modelling.families import (
     ANISOTROPY,
     FAMILIES,
@@ -23,11 +23,17 @@ def test_catalogue_is_the_table(client):
 
 
 def test_request_fields_carry_the_documented_bounds():
-    declared = StructureInput().fields
-    assert set(declared) == {"family", "anisotropy", *structure_parameters()}
-    assert list(declared["family"].validate.choices) == list(FAMILIES)
-    for name, parameter in [*structure_parameters().items(), *((p.name, p) for p in ANISOTROPY)]:
-        field = declared[name] if name in declared else AnisotropyInput().fields[name]
+    assert set(STRUCTURE_FORMS) == set(FAMILIES)
+    for name, family in FAMILIES.items():
+        declared = STRUCTURE_FORMS[name]().fields
+        assert set(declared) == {"family", "anisotropy", *(p.name for p in family.parameters)}
+        assert declared["family"].validate.comparable == name
+        assert all(declared[p.name].required for p in family.parameters)
+        for parameter in family.parameters:
+            assert structure_parameters()[parameter.name] == parameter
+    for parameter in [*structure_parameters().values(), *ANISOTROPY]:
+        form = next((f for f in STRUCTURE_FORMS.values() if parameter.name in f().fields), AnisotropyInput)
+        field = form().fields[parameter.name]
         rule = next(v for v in field.validators if isinstance(v, validate.Range))
         b = parameter.bounds
         assert (rule.min, rule.max, rule.min_inclusive, rule.max_inclusive) == (

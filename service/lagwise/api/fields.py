@@ -1,15 +1,18 @@
-"""Custom marshmallow fields."""
+"""Custom marshmallow fields and the apispec functions that document them."""
 
 from __future__ import annotations
 
 import math
+from collections.abc import Callable, Mapping
 
 import numpy as np
-from marshmallow import ValidationError, fields
+from marshmallow import Schema, ValidationError, fields
 
 NUMBER_TYPES = (int, float)
 MAX_ELEMENT_ERRORS = 20
 MAX_FAMILIES = 32
+# Array numbers stay below this magnitude, so that squares and sums of squares are finite doubles.
+MAX_MAGNITUDE = 1e150
 
 
 def _element_error(value) -> str | None:
@@ -20,11 +23,13 @@ def _element_error(value) -> str | None:
             return "not a finite number (overflows to infinity)"
     except OverflowError:
         return "not a finite number (overflows to infinity)"
+    if abs(value) > MAX_MAGNITUDE:
+        return f"magnitude above {MAX_MAGNITUDE:g}"
     return None
 
 
 class NumberArray(fields.Field):
-    """A JSON array of finite numbers, deserialised to a float64 numpy array.
+    """A JSON array of finite numbers (magnitude at most :data:`MAX_MAGNITUDE`), deserialised to float64.
 
     Errors name each offending index (at most 20), e.g. ``{17: ["not a number"]}``.
     """
@@ -35,7 +40,7 @@ class NumberArray(fields.Field):
         if {type(v) for v in value} <= set(NUMBER_TYPES):
             try:
                 array = np.array(value, dtype=np.float64)
-                if np.isfinite(array).all():
+                if np.isfinite(array).all() and (array.size == 0 or np.abs(array).max() <= MAX_MAGNITUDE):
                     return array
             except OverflowError:
                 pass
@@ -50,13 +55,6 @@ class NumberArray(fields.Field):
 
     def _serialize(self, value, attr, obj, **kwargs):
         return None if value is None else [float(v) for v in value]
-
-
-def number_array_properties(self, field, **kwargs) -> dict:
-    """apispec attribute function: document :class:`NumberArray` as an array of numbers."""
-    if isinstance(field, NumberArray):
-        return {"type": "array", "items": {"type": "number"}}
-    return {}
 
 
 class CappedList(fields.List):
@@ -86,17 +84,23 @@ class CappedList(fields.List):
 
 
 class AutoOrList(fields.Field):
-    """Either the string ``"auto"`` or a list of distinct strings (model families, at most :data:`MAX_FAMILIES`)."""
+    """Either ``"auto"`` or a list of distinct allowed strings (model families, at most :data:`MAX_FAMILIES`)."""
+
+    def __init__(self, choices: tuple[str, ...], **kwargs):
+        super().__init__(**kwargs)
+        self.choices = choices
 
     def _deserialize(self, value, attr, data, **kwargs):
         if value == "auto":
             return "auto"
-        if not (isinstance(value, list) and all(isinstance(v, str) for v in value)):
-            raise ValidationError('must be "auto" or a list of family names')
+        if not isinstance(value, list) or not value or not all(isinstance(v, str) for v in value):
+            raise ValidationError('must be "auto" or a non-empty list of family names')
         if len(value) > MAX_FAMILIES:
             raise ValidationError(f"at most {MAX_FAMILIES} families (each listed once)")
         seen: dict[str, int] = {}
         for index, name in enumerate(value):
+            if name not in self.choices:
+                raise ValidationError({index: [f"unknown family {name!r}; valid: {', '.join(self.choices)}"]})
             if name in seen:
                 raise ValidationError({index: [f"repeats {name!r} (entry {seen[name]}); list each family once"]})
             seen[name] = index
@@ -114,37 +118,126 @@ class NuggetOption(fields.Field):
         raise ValidationError('must be "fit", "none" or a fixed non-negative number')
 
 
-def choice_properties(self, field, **kwargs) -> dict:
-    """apispec attribute function documenting :class:`AutoOrList` and :class:`NuggetOption`."""
-    if isinstance(field, AutoOrList):
-        return {"oneOf": [{"type": "string", "enum": ["auto"]}, {"type": "array", "items": {"type": "string"}}]}
-    if isinstance(field, NuggetOption):
-        return {"oneOf": [{"type": "string", "enum": ["fit", "none"]}, {"type": "number", "minimum": 0}]}
-    return {}
-
-
 class DirectionsOption(fields.Field):
     """Either ``"auto"`` or a list of direction classes (validated by the nested schema)."""
 
-    def __init__(self, nested, **kwargs):
+    def __init__(self, nested, *, max_length: int, **kwargs):
         super().__init__(**kwargs)
+        self.nested = nested
+        self.max_length = max_length
         self.list_field = fields.List(fields.Nested(nested))
 
     def _deserialize(self, value, attr, data, **kwargs):
         if value == "auto":
             return "auto"
-        if not isinstance(value, list) or not value:
-            raise ValidationError('must be "auto" or a non-empty list of direction classes')
+        if not isinstance(value, list) or not 1 <= len(value) <= self.max_length:
+            raise ValidationError(f'must be "auto" or a list of 1 to {self.max_length} direction classes')
         return self.list_field.deserialize(value, attr, data, **kwargs)
 
 
-def directions_properties(self, field, **kwargs) -> dict:
-    """apispec attribute function documenting :class:`DirectionsOption`."""
+class Variants(fields.Field):
+    """An object that takes one of several forms, each a schema of its own.
+
+    The form is picked from the members present (or from a discriminating member) and
+    the object is loaded with that form's schema, so members of another form are refused
+    as unknown. Documented as ``oneOf`` (with a ``discriminator`` when there is one).
+
+    Parameters
+    ----------
+    forms : mapping of str to Schema class
+        Every form by a short name.
+    pick : callable
+        Given the JSON object, the name of its form; raises ``ValidationError`` when no
+        form fits.
+    discriminator : str, optional
+        The member whose value is the form's name (documented with a mapping).
+    """
+
+    def __init__(
+        self,
+        forms: Mapping[str, type[Schema]],
+        pick: Callable[[dict], str],
+        *,
+        discriminator: str | None = None,
+        **kwargs,
+    ):
+        super().__init__(**kwargs)
+        self.forms = dict(forms)
+        self.pick = pick
+        self.discriminator = discriminator
+
+    def _deserialize(self, value, attr, data, **kwargs):
+        if not isinstance(value, dict):
+            raise ValidationError("must be an object")
+        return self.forms[self.pick(value)]().load(value)
+
+    def _serialize(self, value, attr, obj, **kwargs):
+        return value
+
+
+def by_discriminator(member: str, names: tuple[str, ...]) -> Callable[[dict], str]:
+    """A :class:`Variants` picker reading the form's name from ``member``."""
+
+    def pick(value: dict) -> str:
+        name = value.get(member)
+        if name not in names:
+            raise ValidationError({member: [f"must be one of: {', '.join(names)}"]})
+        return name
+
+    return pick
+
+
+# ---- apispec attribute functions (bound to the converter: ``self.resolve_nested_schema``) ----
+
+
+def number_array_properties(self, field, **kwargs) -> dict:
+    """Document :class:`NumberArray` as an array of numbers."""
+    if isinstance(field, NumberArray):
+        return {"type": "array", "items": {"type": "number", "minimum": -MAX_MAGNITUDE, "maximum": MAX_MAGNITUDE}}
+    return {}
+
+
+def choice_properties(self, field, **kwargs) -> dict:
+    """Document :class:`AutoOrList`, :class:`NuggetOption` and :class:`DirectionsOption`."""
+    if isinstance(field, AutoOrList):
+        return {
+            "oneOf": [
+                {"type": "string", "enum": ["auto"]},
+                {
+                    "type": "array",
+                    "minItems": 1,
+                    "maxItems": MAX_FAMILIES,
+                    "uniqueItems": True,
+                    "items": {"type": "string", "enum": list(field.choices)},
+                },
+            ]
+        }
+    if isinstance(field, NuggetOption):
+        return {"oneOf": [{"type": "string", "enum": ["fit", "none"]}, {"type": "number", "minimum": 0}]}
     if isinstance(field, DirectionsOption):
         return {
             "oneOf": [
                 {"type": "string", "enum": ["auto"]},
-                {"type": "array", "items": {"$ref": "#/components/schemas/Direction"}},
+                {
+                    "type": "array",
+                    "minItems": 1,
+                    "maxItems": field.max_length,
+                    "items": self.resolve_nested_schema(field.nested),
+                },
             ]
         }
     return {}
+
+
+def variants_properties(self, field, **kwargs) -> dict:
+    """Document :class:`Variants` as ``oneOf`` references (with the discriminator's mapping)."""
+    if not isinstance(field, Variants):
+        return {}
+    refs = {name: self.resolve_nested_schema(form) for name, form in field.forms.items()}
+    out: dict = {"oneOf": list(refs.values())}
+    if field.discriminator is not None:
+        out["discriminator"] = {
+            "propertyName": field.discriminator,
+            "mapping": {name: ref["$ref"] for name, ref in refs.items()},
+        }
+    return out

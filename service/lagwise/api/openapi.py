@@ -1,17 +1,29 @@
-"""The OpenAPI document, generated from the marshmallow schemas (apispec)."""
+"""The OpenAPI 3.1 document, generated from the marshmallow schemas (apispec).
+
+Nulls follow JSON Schema 2020-12 (``type: [number, "null"]``; a nullable object is
+``anyOf: [{$ref}, {type: "null"}]``). Every path declares each status it can answer,
+a ``default`` problem for the unexpected, the ``X-Request-ID`` header both ways and
+whether it needs an API key (the bearer scheme ``apiKey``; open paths say
+``security: []``).
+"""
 
 from __future__ import annotations
+
+from dataclasses import dataclass
 
 import yaml
 from apispec import APISpec
 from apispec.ext.marshmallow import MarshmallowPlugin
 
 from .. import __version__
-from .fields import choice_properties, directions_properties, number_array_properties
+from . import examples
+from .fields import choice_properties, number_array_properties, variants_properties
 from .operations import OPERATIONS
 from .problems import KINDS, PROBLEM_MEDIA_TYPE
-from .schemas import DirectionSchema, ProblemSchema
+from .schemas import ProblemKindSchema, ProblemSchema
+from .security import is_open
 
+OPENAPI_VERSION = "3.1.0"
 DESCRIPTION = """\
 Lagwise computes experimental variograms, variogram maps and related spatial
 statistics from georeferenced samples. Every computing endpoint is a pure,
@@ -24,9 +36,123 @@ Refusals are RFC 9457 problems (application/problem+json) whose `errors` list
 names each offending field with a JSON Pointer, down to the sample index.
 Undefined values are `null` with a `reason`; NaN and Infinity never appear.
 
+When the deployment configures API keys, every computing path needs
+`Authorization: Bearer <key>`; the page, the contract, the problem descriptions
+and the health probes stay open.
+
 Estimates are statistical; decisions about health or safety follow local
 regulations and the judgement of a qualified professional.
 """
+SECURITY_SCHEME = "apiKey"
+REQUEST_ID_DOC = (
+    "Correlates a request with its logs. A well-formed value (1 to 128 of A-Z a-z 0-9 . _ : -) is echoed; "
+    "otherwise the service makes one up. The same value is the problem's request_id."
+)
+# A readable component name for each problem status.
+PROBLEM_RESPONSES = {
+    400: "MalformedJSON",
+    401: "Unauthorized",
+    404: "NotFound",
+    405: "MethodNotAllowed",
+    413: "BodyTooLarge",
+    415: "UnsupportedMediaType",
+    422: "InvalidInput",
+    503: "Unavailable",
+}
+
+
+@dataclass(frozen=True)
+class Document:
+    """A path outside the blueprint's operations that serves a fixed document (not JSON, or open)."""
+
+    path: str
+    operation_id: str
+    summary: str
+    media_type: str
+    schema: dict | str
+    errors: tuple[int, ...] = ()
+    parameters: tuple[dict, ...] = ()
+
+
+DOCUMENTS = (
+    Document(
+        "/", "page", "A browser page for people: upload a table, map columns, analyse", "text/html", {"type": "string"}
+    ),
+    Document("/openapi.json", "openapi_json", "This contract as JSON", "application/json", {"type": "object"}),
+    Document("/openapi.yaml", "openapi_yaml", "This contract as YAML", "application/yaml", {"type": "object"}),
+    Document(
+        "/metrics",
+        "metrics",
+        "Prometheus metrics (404 when they are served on LAGWISE_METRICS_BIND instead)",
+        "text/plain",
+        {"type": "string"},
+        errors=(404,),
+    ),
+    Document(
+        "/problems/{kind}",
+        "problem_kind",
+        "Describe a kind of refusal (the type of a problem)",
+        "application/json",
+        "ProblemKind",
+        errors=(404,),
+        parameters=(
+            {
+                "name": "kind",
+                "in": "path",
+                "required": True,
+                "description": "The last segment of a problem's type.",
+                "schema": {"type": "string", "enum": list(KINDS)},
+            },
+        ),
+    ),
+)
+
+
+def _problem_component(status: int) -> dict:
+    kinds = {name: k for name, k in KINDS.items() if k.status == status}
+    response: dict = {
+        "description": " / ".join(k.title for k in kinds.values())
+        + ": "
+        + " ".join(k.description for k in kinds.values()),
+        "headers": {"X-Request-ID": {"$ref": "#/components/headers/RequestId"}},
+        "content": {PROBLEM_MEDIA_TYPE: {"schema": {"$ref": "#/components/schemas/Problem"}}},
+    }
+    if status == 422:
+        response["content"][PROBLEM_MEDIA_TYPE]["examples"] = {
+            "invalid-input": {"summary": "A field is invalid", "value": examples.INVALID_INPUT},
+            "limit-exceeded": {"summary": "Over a configured limit", "value": examples.LIMIT_EXCEEDED},
+        }
+    return response
+
+
+def _responses(success: dict, statuses: set[int]) -> dict:
+    out = {"200": success}
+    for status in sorted(statuses):
+        out[str(status)] = {"$ref": f"#/components/responses/{PROBLEM_RESPONSES[status]}"}
+    out["default"] = {"$ref": "#/components/responses/Unexpected"}
+    return out
+
+
+def _statuses(path: str, errors: tuple[int, ...]) -> set[int]:
+    """Every path refuses other methods (405) and, unless open, a missing key (401)."""
+    return set(errors) | {405} | (set() if is_open(path) else {401})
+
+
+def _success(media_type: str, schema, example) -> dict:
+    content: dict = {"schema": schema}
+    if example is not None:
+        content["example"] = example
+    return {
+        "description": "Success",
+        "headers": {"X-Request-ID": {"$ref": "#/components/headers/RequestId"}},
+        "content": {media_type: content},
+    }
+
+
+def _request_schema(request) -> object:
+    if isinstance(request, tuple):
+        return {"oneOf": list(request)}
+    return request
 
 
 def build_spec() -> APISpec:
@@ -35,37 +161,89 @@ def build_spec() -> APISpec:
     spec = APISpec(
         title="Lagwise",
         version=__version__,
-        openapi_version="3.0.3",
+        openapi_version=OPENAPI_VERSION,
         plugins=[plugin],
-        info={"description": DESCRIPTION, "license": {"name": "Proprietary"}},
+        info={"description": DESCRIPTION, "license": {"name": "Proprietary", "identifier": "LicenseRef-Proprietary"}},
+        servers=[{"url": "/", "description": "The service that serves this document."}],
+        # A key, or none where the deployment configures no keys; open paths override with [].
+        security=[{SECURITY_SCHEME: []}, {}],
     )
     plugin.converter.add_attribute_function(number_array_properties)
     plugin.converter.add_attribute_function(choice_properties)
-    plugin.converter.add_attribute_function(directions_properties)
+    plugin.converter.add_attribute_function(variants_properties)
+    spec.components.security_scheme(
+        SECURITY_SCHEME,
+        {
+            "type": "http",
+            "scheme": "bearer",
+            "description": "An API key, when the deployment configures keys (LAGWISE_API_KEY_DIGESTS): Authorization: Bearer <key>.",
+        },
+    )
+    spec.components.header("RequestId", {"description": REQUEST_ID_DOC, "schema": {"type": "string"}})
+    spec.components.parameter(
+        "RequestId", "header", {"name": "X-Request-ID", "description": REQUEST_ID_DOC, "schema": {"type": "string"}}
+    )
     spec.components.schema("Problem", schema=ProblemSchema)
-    spec.components.schema("Direction", schema=DirectionSchema)
-    for op in sorted(OPERATIONS, key=lambda o: o.path):
-        responses = {"200": {"description": "Success", "content": {"application/json": {"schema": op.response}}}}
-        for status in op.errors:
-            titles = sorted({k.title for k in KINDS.values() if k.status == status})
-            responses[str(status)] = {
-                "description": " / ".join(titles),
-                "content": {PROBLEM_MEDIA_TYPE: {"schema": "Problem"}},
-            }
+    spec.components.schema("ProblemKind", schema=ProblemKindSchema)
+    for status, name in PROBLEM_RESPONSES.items():
+        spec.components.response(name, _problem_component(status))
+    spec.components.response(
+        "Unexpected",
+        {
+            "description": "Internal error: a bug, reported with the request id.",
+            "headers": {"X-Request-ID": {"$ref": "#/components/headers/RequestId"}},
+            "content": {PROBLEM_MEDIA_TYPE: {"schema": {"$ref": "#/components/schemas/Problem"}}},
+        },
+    )
+    request_id = "RequestId"
+    entries: list[tuple[str, str, dict]] = []
+    for op in OPERATIONS:
+        name = op.operation_id
         body = {}
         if op.request is not None:
-            body = {"requestBody": {"required": True, "content": {"application/json": {"schema": op.request}}}}
-        spec.path(
-            path=op.path,
-            operations={
-                op.method.lower(): {
-                    "operationId": op.operation_id,
-                    "summary": op.summary,
-                    **body,
-                    "responses": responses,
+            body = {
+                "requestBody": {
+                    "required": True,
+                    "content": {
+                        "application/json": {
+                            "schema": _request_schema(op.request),
+                            "example": examples.REQUESTS[name],
+                        }
+                    },
                 }
-            },
+            }
+        success = _success("application/json", op.response, examples.RESPONSES.get(name))
+        entries.append(
+            (
+                op.path,
+                op.method.lower(),
+                {
+                    "operationId": name,
+                    "summary": op.summary,
+                    "parameters": [request_id],
+                    **body,
+                    "responses": _responses(success, _statuses(op.path, op.errors)),
+                },
+            )
         )
+    for doc in DOCUMENTS:
+        success = _success(doc.media_type, doc.schema, examples.RESPONSES[doc.operation_id])
+        entries.append(
+            (
+                doc.path,
+                "get",
+                {
+                    "operationId": doc.operation_id,
+                    "summary": doc.summary,
+                    "parameters": [*doc.parameters, request_id],
+                    "responses": _responses(success, _statuses(doc.path, doc.errors)),
+                },
+            )
+        )
+    for path, method, operation in sorted(entries, key=lambda e: e[0]):
+        if is_open(path):
+            operation["security"] = []
+        spec.path(path=path, operations={method: operation})
     return spec
 
 

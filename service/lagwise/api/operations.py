@@ -38,8 +38,12 @@ from .schemas import (
     HealthSchema,
     MapRequest,
     MapResponse,
+    ModelFitFromExperimental,
+    ModelFitFromSamples,
     ModelFitRequest,
     ModelFitResponse,
+    PredictionAtTargets,
+    PredictionOnGrid,
     PredictionRequest,
     PredictionResponse,
 )
@@ -55,13 +59,13 @@ class Operation:
     method: str
     operation_id: str
     summary: str
-    request: type | None
+    request: type | tuple[type, ...] | None
     response: type
     errors: tuple[int, ...]
 
 
 OPERATIONS: list[Operation] = []
-COMPUTE_ERRORS = (400, 401, 413, 415, 422, 503)
+COMPUTE_ERRORS = (400, 413, 415, 422, 503)
 
 
 def operation(path, method, summary, request=None, response=HealthSchema, errors=COMPUTE_ERRORS):
@@ -150,7 +154,7 @@ def variogram_maps():
     "/v1/model-fits",
     "POST",
     "Fit variogram models to samples or to a previous experimental variogram; ranked candidates",
-    ModelFitRequest,
+    (ModelFitFromSamples, ModelFitFromExperimental),
     ModelFitResponse,
 )
 def model_fits():
@@ -223,7 +227,7 @@ def cross_validations():
     "/v1/predictions",
     "POST",
     "Kriging estimates and variances at target points or on a grid",
-    PredictionRequest,
+    (PredictionAtTargets, PredictionOnGrid),
     PredictionResponse,
 )
 def predictions():

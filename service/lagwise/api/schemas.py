@@ -1,11 +1,17 @@
 """Request and response schemas (marshmallow); they also generate the OpenAPI document.
 
 Range checks here document the contract; the core checks the same rules again
-with pointers, so a caller gets the same answer from either side.
+with pointers, so a caller gets the same answer from either side. Objects that take
+one of several forms (samples as columns or GeoJSON; distance classes; a structure
+of each family) are :class:`~lagwise.api.fields.Variants` of one schema per form, so
+that the contract says ``oneOf`` and the service loads exactly the form it documents.
+Response schemas mark every member that is always present as required
+(:func:`always_present`), so that generated clients get non-optional attributes.
 """
 
 from __future__ import annotations
 
+import copy
 import unicodedata
 
 from marshmallow import EXCLUDE, Schema, ValidationError, fields, validate, validates_schema
@@ -14,16 +20,19 @@ from ..core.data.censoring import CENSORING_POLICIES
 from ..core.data.samples import COORDINATE_SYSTEMS, DUPLICATE_POLICIES
 from ..core.data.transforms import TRANSFORMS
 from ..core.kriging.systems import DRIFTS, KRIGING_TYPES, NUGGET_ROLES
-from ..core.modelling.families import ANISOTROPY, FAMILIES, UNIT_KINDS, Parameter, structure_parameters
+from ..core.modelling.families import ANISOTROPY, FAMILIES, NUGGET, UNIT_KINDS, Family, Parameter
 from ..core.modelling.fitting import SEMIVARIANCE_STATISTICS, WEIGHTINGS
 from ..core.modelling.models import Anisotropy
 from ..core.variography.lags import AUTO_METHODS, MAX_CLASSES
-from ..core.variography.statistics import STATISTICS
+from ..core.variography.statistics import CLASS_REASONS, STATISTICS
 from ..figures import COLOUR_SCALES, FIGURES, FORMATS
-from .fields import AutoOrList, CappedList, DirectionsOption, NuggetOption, NumberArray
+from .fields import AutoOrList, CappedList, DirectionsOption, NuggetOption, NumberArray, Variants, by_discriminator
+from .problems import KINDS
 
 MAX_DIRECTIONS = 36
 MAX_THRESHOLDS = 20
+PLAUSIBLE = 1e100
+FAMILY_NAMES = tuple(FAMILIES)
 
 
 def finite(**kwargs) -> fields.Float:
@@ -31,77 +40,136 @@ def finite(**kwargs) -> fields.Float:
     return fields.Float(allow_nan=False, **kwargs)
 
 
-class SamplesSchema(Schema):
-    """Samples as columns (x, y, z, values, ids) or as a GeoJSON FeatureCollection of Points."""
+def one_of(choices, **kwargs) -> fields.String:
+    """A string field restricted to ``choices`` (documented as an enum)."""
+    return fields.String(validate=validate.OneOf(choices), **kwargs)
 
-    x = NumberArray(metadata={"description": "Easting, or longitude in degrees for geographic coordinates."})
+
+def always_present(*optional: str):
+    """Class decorator for response schemas: every member is required except ``optional``.
+
+    The fields are copied first, so a parent schema's own fields keep their setting.
+    """
+
+    def mark(cls: type[Schema]) -> type[Schema]:
+        for name, field in list(cls._declared_fields.items()):
+            field = copy.copy(field)
+            field.required = name not in optional
+            cls._declared_fields[name] = field
+        return cls
+
+    return mark
+
+
+# ---- samples -----------------------------------------------------------------
+
+
+class SampleColumns(Schema):
+    """Samples as columns of equal length."""
+
+    x = NumberArray(
+        required=True, metadata={"description": "Easting, or longitude in degrees for geographic coordinates."}
+    )
     y = NumberArray(metadata={"description": "Northing, or latitude in degrees; makes the set 2-D."})
     z = NumberArray(
         metadata={
             "description": "Elevation, positive up, same unit as x and y (metres for geographic); makes the set 3-D."
         }
     )
-    values = NumberArray(metadata={"description": "Measured values."})
+    values = NumberArray(required=True, metadata={"description": "Measured values."})
     ids = CappedList(fields.String(), metadata={"description": "Sample identifiers echoed in per-sample outputs."})
-    geojson = fields.Dict(metadata={"description": "A GeoJSON FeatureCollection (RFC 7946) of Point features."})
-    value_property = fields.String(metadata={"description": "Feature property holding the value (GeoJSON input)."})
-    id_property = fields.String(
-        metadata={"description": "Feature property holding the identifier (GeoJSON input; default the feature id)."}
-    )
     censored = CappedList(
-        fields.Boolean(),
-        metadata={
-            "description": 'True where the result is below its detection limit (GeoJSON: a value written like "<0.5").'
-        },
+        fields.Boolean(), metadata={"description": "True where the result is below its detection limit."}
     )
     detection_limits = CappedList(
         fields.Float(allow_none=True, allow_nan=False),
         metadata={"description": "Detection limits (value units), needed where censored is true."},
     )
 
-    @validates_schema
-    def _one_layout(self, data, **kwargs):
-        if "geojson" in data:
-            clash = [k for k in ("x", "y", "z", "values", "ids", "censored", "detection_limits") if k in data]
-            if clash:
-                raise ValidationError(f"give either geojson or columns, not both ({', '.join(clash)})")
-            if "value_property" not in data:
-                raise ValidationError("required with geojson", "value_property")
-            return
-        missing = {k: ["required"] for k in ("x", "values") if k not in data}
-        if missing:
-            raise ValidationError(missing)
+
+class SampleFeatures(Schema):
+    """Samples as a GeoJSON FeatureCollection (RFC 7946) of Point features."""
+
+    geojson = fields.Dict(
+        required=True, metadata={"description": "A GeoJSON FeatureCollection (RFC 7946) of Point features."}
+    )
+    value_property = fields.String(
+        required=True,
+        metadata={"description": 'Feature property holding the value (a value written like "<0.5" is censored).'},
+    )
+    id_property = fields.String(
+        metadata={"description": "Feature property holding the identifier (default the feature id)."}
+    )
+
+
+def _sample_form(value: dict) -> str:
+    return "features" if "geojson" in value else "columns"
+
+
+def samples_field(**kwargs) -> Variants:
+    """Samples as columns or as GeoJSON features."""
+    return Variants({"columns": SampleColumns, "features": SampleFeatures}, _sample_form, **kwargs)
 
 
 class SampleOptions(Schema):
     """Options shared by every request that carries samples."""
 
-    samples = fields.Nested(SamplesSchema, required=True)
-    coordinates = fields.String(
-        validate=validate.OneOf(COORDINATE_SYSTEMS),
+    samples = samples_field(required=True)
+    coordinates = one_of(
+        COORDINATE_SYSTEMS,
         metadata={"description": "planar (default for columns) or geographic (WGS84 degrees; default for GeoJSON)."},
     )
-    duplicates = fields.String(
+    duplicates = one_of(
+        DUPLICATE_POLICIES,
         load_default="average",
-        validate=validate.OneOf(DUPLICATE_POLICIES),
         metadata={"description": "What to do with samples at the same location."},
     )
-    censoring = fields.String(
+    censoring = one_of(
+        CENSORING_POLICIES,
         load_default="half_limit",
-        validate=validate.OneOf(CENSORING_POLICIES),
         metadata={"description": "Value given to results below their detection limit."},
     )
 
 
-class LagsSchema(Schema):
-    """Distance classes: width and count, explicit edges, or auto."""
+# ---- distance and direction classes -------------------------------------------------
+
+
+class LagWidths(Schema):
+    """Contiguous classes [0, w), [w, 2w), ... [(count - 1) w, count w)."""
 
     width = finite(
-        validate=validate.Range(min=0, min_inclusive=False), metadata={"description": "Class width, coordinate units."}
+        required=True,
+        validate=validate.Range(min=0, min_inclusive=False),
+        metadata={"description": "Class width, coordinate units."},
     )
-    count = fields.Integer(strict=True, validate=validate.Range(min=1, max=MAX_CLASSES))
-    edges = fields.List(finite(), validate=validate.Length(min=2, max=MAX_CLASSES + 1))
-    auto = fields.String(validate=validate.OneOf(AUTO_METHODS))
+    count = fields.Integer(strict=True, required=True, validate=validate.Range(min=1, max=MAX_CLASSES))
+
+
+class LagEdges(Schema):
+    """Classes [e_i, e_i+1) between strictly increasing edges (coordinate units)."""
+
+    edges = fields.List(finite(), required=True, validate=validate.Length(min=2, max=MAX_CLASSES + 1))
+
+
+class LagAuto(Schema):
+    """Classes chosen from the data up to half the field's extent (an empty object: equal_width)."""
+
+    auto = one_of(
+        AUTO_METHODS, metadata={"description": "equal_width (default) or equal_pairs (pair-count quantiles)."}
+    )
+
+
+def _lag_form(value: dict) -> str:
+    if "edges" in value:
+        return "edges"
+    if "width" in value or "count" in value:
+        return "widths"
+    return "auto"
+
+
+def lags_field(**kwargs) -> Variants:
+    """Distance classes: width and count, explicit edges, or auto."""
+    return Variants({"widths": LagWidths, "edges": LagEdges, "auto": LagAuto}, _lag_form, **kwargs)
 
 
 class DirectionSchema(Schema):
@@ -125,12 +193,16 @@ class ScatterRequestSchema(Schema):
     limit = fields.Integer(strict=True, load_default=2000, validate=validate.Range(min=1))
 
 
+def directions_list(**kwargs) -> fields.List:
+    return fields.List(fields.Nested(DirectionSchema), validate=validate.Length(min=1, max=MAX_DIRECTIONS), **kwargs)
+
+
 class ExperimentalRequest(SampleOptions):
     """POST /v1/experimental-variograms."""
 
-    lags = fields.Nested(LagsSchema)
-    directions = fields.List(fields.Nested(DirectionSchema), validate=validate.Length(min=1, max=MAX_DIRECTIONS))
-    statistic = fields.String(load_default="semivariance", validate=validate.OneOf(STATISTICS))
+    lags = lags_field()
+    directions = directions_list()
+    statistic = one_of(STATISTICS, load_default="semivariance")
     min_pairs = fields.Integer(strict=True, load_default=30, validate=validate.Range(min=1))
     pairs_for_class = fields.Nested(ScatterRequestSchema)
 
@@ -153,7 +225,7 @@ class MapRequest(SampleOptions):
             "description": "Cells on each side of the origin. Default: enough to reach half the largest separation."
         },
     )
-    statistic = fields.String(load_default="semivariance", validate=validate.OneOf(STATISTICS))
+    statistic = one_of(STATISTICS, load_default="semivariance")
     min_pairs = fields.Integer(
         strict=True,
         load_default=30,
@@ -162,17 +234,80 @@ class MapRequest(SampleOptions):
     )
 
 
+# ---- models ------------------------------------------------------------------------
+
+
+def _bounded(parameter: Parameter, **kwargs) -> fields.Float:
+    """A finite float field checked against a parameter's documented bounds (the family table)."""
+    b = parameter.bounds
+    rule = validate.Range(
+        min=b.minimum,
+        max=b.maximum,
+        min_inclusive=not b.minimum_exclusive,
+        max_inclusive=not b.maximum_exclusive,
+    )
+    doc: dict = {"description": parameter.unit.capitalize() + "."}
+    if b.minimum is not None and b.minimum_exclusive:
+        doc["exclusiveMinimum"] = b.minimum
+    if b.maximum is not None and b.maximum_exclusive:
+        doc["exclusiveMaximum"] = b.maximum
+    return finite(validate=rule, metadata=doc, **kwargs)
+
+
+AnisotropyInput = Schema.from_dict(
+    {p.name: _bounded(p, load_default=getattr(Anisotropy(), p.name)) for p in ANISOTROPY}, name="AnisotropyInput"
+)
+AnisotropyInput.__doc__ = "Geometric anisotropy; omitted: isotropic."
+
+
+def _structure_form(family: Family) -> type[Schema]:
+    """The schema of one family's structure: its own parameters, all required, and an optional anisotropy."""
+    members: dict = {
+        "family": fields.String(required=True, validate=validate.Equal(family.name)),
+        **{p.name: _bounded(p, required=True) for p in family.parameters},
+        "anisotropy": fields.Nested(AnisotropyInput),
+    }
+    title = "".join(part.capitalize() for part in family.name.split("_"))
+    form = Schema.from_dict(members, name=f"{title}Structure")
+    form.__doc__ = f"A {family.name.replace('_', ' ')} structure: {family.description}."
+    return form
+
+
+STRUCTURE_FORMS = {name: _structure_form(f) for name, f in FAMILIES.items()}
+
+
+class Model(Schema):
+    """A variogram model: a nugget plus nested structures (GET /v1/model-families lists the families).
+
+    Fitted models in responses use this same schema, so a response's model can be sent back as it is.
+    """
+
+    nugget = _bounded(NUGGET, load_default=0.0)
+    structures = fields.List(
+        Variants(STRUCTURE_FORMS, by_discriminator("family", FAMILY_NAMES), discriminator="family"),
+        load_default=list,
+        validate=validate.Length(max=5),
+    )
+
+
+# ---- fitting -----------------------------------------------------------------------
+
+
 class ExperimentalClassInput(Schema):
     """A class of a previous experimental response (other members are ignored)."""
 
     class Meta:
         unknown = EXCLUDE
 
-    mean_distance = fields.Float(allow_none=True, required=True)
-    value = fields.Float(allow_none=True, required=True)
-    pairs = fields.Integer(required=True, validate=validate.Range(min=0))
-    standard_error = fields.Float(
-        allow_none=True, metadata={"description": "Class standard error (used by weighting inverse_variance)."}
+    # Magnitudes are bounded so that weighted squared residuals stay within the float range;
+    # counts are held as 64-bit integers.
+    mean_distance = finite(allow_none=True, required=True, validate=validate.Range(min=0, max=PLAUSIBLE))
+    value = finite(allow_none=True, required=True, validate=validate.Range(min=-PLAUSIBLE, max=PLAUSIBLE))
+    pairs = fields.Integer(required=True, validate=validate.Range(min=0, max=2**62))
+    standard_error = finite(
+        allow_none=True,
+        validate=validate.Range(min=0, max=PLAUSIBLE),
+        metadata={"description": "Class standard error (used by weighting inverse_variance)."},
     )
 
 
@@ -200,18 +335,20 @@ class ExperimentalInput(Schema):
 class ModelFitRequest(SampleOptions):
     """POST /v1/model-fits: samples (with classes and directions) or a previous experimental response."""
 
-    samples = fields.Nested(SamplesSchema)
+    samples = samples_field()
     experimental = fields.Nested(ExperimentalInput)
-    lags = fields.Nested(LagsSchema)
-    directions = fields.List(fields.Nested(DirectionSchema), validate=validate.Length(min=1, max=MAX_DIRECTIONS))
-    statistic = fields.String(load_default="semivariance", validate=validate.OneOf(SEMIVARIANCE_STATISTICS))
+    lags = lags_field()
+    directions = directions_list()
+    statistic = one_of(SEMIVARIANCE_STATISTICS, load_default="semivariance")
     min_pairs = fields.Integer(strict=True, load_default=30, validate=validate.Range(min=1))
     families = AutoOrList(
-        load_default="auto", metadata={"description": '"auto" or a list of family names (GET /v1/model-families).'}
+        FAMILY_NAMES,
+        load_default="auto",
+        metadata={"description": '"auto" or a list of family names (GET /v1/model-families).'},
     )
     nugget = NuggetOption(load_default="fit", metadata={"description": '"fit", "none" or a fixed value.'})
-    weighting = fields.String(load_default="pairs", validate=validate.OneOf(WEIGHTINGS))
-    anisotropy = fields.String(load_default="none", validate=validate.OneOf(("none", "fit")))
+    weighting = one_of(WEIGHTINGS, load_default="pairs")
+    anisotropy = one_of(("none", "fit"), load_default="none")
     structures = fields.Integer(strict=True, load_default=1, validate=validate.OneOf((1, 2)))
 
     @validates_schema
@@ -224,51 +361,37 @@ class ModelFitRequest(SampleOptions):
                 raise ValidationError(f"{', '.join(clash)} apply to samples, not to a given experimental variogram")
 
 
-def _bounded(parameter: Parameter, **kwargs) -> fields.Float:
-    """A finite float field checked against a parameter's documented bounds (the family table)."""
-    b = parameter.bounds
-    rule = validate.Range(
-        min=b.minimum,
-        max=b.maximum,
-        min_inclusive=not b.minimum_exclusive,
-        max_inclusive=not b.maximum_exclusive,
-    )
-    return finite(validate=rule, metadata={"description": parameter.unit}, **kwargs)
+class ModelFitFromSamples(ModelFitRequest):
+    """POST /v1/model-fits on samples: the experimental variogram is computed first."""
+
+    samples = samples_field(required=True)
+
+    class Meta:
+        exclude = ("experimental",)
 
 
-AnisotropyInput = Schema.from_dict(
-    {p.name: _bounded(p, load_default=getattr(Anisotropy(), p.name)) for p in ANISOTROPY}, name="AnisotropyInput"
-)
+class ModelFitFromExperimental(ModelFitRequest):
+    """POST /v1/model-fits on a previous experimental response."""
 
-StructureInput = Schema.from_dict(
-    {
-        "family": fields.String(required=True, validate=validate.OneOf(FAMILIES)),
-        **{name: _bounded(p) for name, p in structure_parameters().items()},
-        "anisotropy": fields.Nested(AnisotropyInput),
-    },
-    name="StructureInput",
-)
-StructureInput.__doc__ = """One structure: its family's parameters (GET /v1/model-families), e.g. partial_sill and
-range (bounded families), slope (linear), coefficient and exponent (power)."""
+    experimental = fields.Nested(ExperimentalInput, required=True)
+
+    class Meta:
+        exclude = ("samples", "lags", "directions", "coordinates")
 
 
-class ModelInput(Schema):
-    """A variogram model (GET /v1/model-families lists the families)."""
-
-    nugget = finite(load_default=0.0, validate=validate.Range(min=0))
-    structures = fields.List(fields.Nested(StructureInput), load_default=list, validate=validate.Length(max=5))
+# ---- kriging -----------------------------------------------------------------------
 
 
 class KrigingInput(Schema):
-    type = fields.String(load_default="ordinary", validate=validate.OneOf(KRIGING_TYPES))
+    type = one_of(KRIGING_TYPES, load_default="ordinary")
     mean = finite(
         metadata={
             "description": "Known mean (simple kriging). Default: the samples' mean, declustered (cell declustering) "
             "when sampling is clustered."
         }
     )
-    drift = fields.String(validate=validate.OneOf(DRIFTS), metadata={"description": "Drift (universal kriging)."})
-    nugget_as = fields.String(load_default="micro_scale", validate=validate.OneOf(NUGGET_ROLES))
+    drift = one_of(DRIFTS, metadata={"description": "Drift (universal kriging)."})
+    nugget_as = one_of(NUGGET_ROLES, load_default="micro_scale")
 
 
 class NeighbourhoodInput(Schema):
@@ -281,13 +404,13 @@ class NeighbourhoodInput(Schema):
 
 
 class SchemeInput(Schema):
-    type = fields.String(load_default="leave_one_out", validate=validate.OneOf(("leave_one_out", "k_fold")))
+    type = one_of(("leave_one_out", "k_fold"), load_default="leave_one_out")
     folds = fields.Integer(strict=True, load_default=10, validate=validate.Range(min=2))
     seed = fields.Integer(strict=True, load_default=1, validate=validate.Range(min=0))
 
 
 class KrigingOptions(SampleOptions):
-    model = fields.Nested(ModelInput, required=True)
+    model = fields.Nested(Model, required=True)
     kriging = fields.Nested(KrigingInput, load_default=lambda: {"type": "ordinary", "nugget_as": "micro_scale"})
     neighbourhood = fields.Nested(NeighbourhoodInput, allow_none=True, load_default=None)
 
@@ -336,20 +459,42 @@ class PredictionRequest(KrigingOptions):
             raise ValidationError("give either targets or grid")
 
 
+class PredictionAtTargets(PredictionRequest):
+    """POST /v1/predictions at target points."""
+
+    targets = fields.Nested(TargetsInput, required=True)
+
+    class Meta:
+        exclude = ("grid",)
+
+
+class PredictionOnGrid(PredictionRequest):
+    """POST /v1/predictions on a regular grid (x fastest)."""
+
+    grid = fields.Nested(GridInput, required=True)
+
+    class Meta:
+        exclude = ("targets",)
+
+
+# ---- analyses ----------------------------------------------------------------------
+
+
 class VariogramStage(Schema):
-    lags = fields.Nested(LagsSchema)
+    lags = lags_field()
     directions = DirectionsOption(
         DirectionSchema,
+        max_length=MAX_DIRECTIONS,
         metadata={"description": '"auto" (a fan of 6 classes from which the anisotropy is estimated) or a list.'},
     )
-    statistic = fields.String(load_default="semivariance", validate=validate.OneOf(SEMIVARIANCE_STATISTICS))
+    statistic = one_of(SEMIVARIANCE_STATISTICS, load_default="semivariance")
     min_pairs = fields.Integer(strict=True, load_default=30, validate=validate.Range(min=1))
 
 
 class FitStage(Schema):
-    families = AutoOrList(load_default="auto")
+    families = AutoOrList(FAMILY_NAMES, load_default="auto")
     nugget = NuggetOption(load_default="fit")
-    weighting = fields.String(load_default="pairs", validate=validate.OneOf(WEIGHTINGS))
+    weighting = one_of(WEIGHTINGS, load_default="pairs")
 
 
 class CrossValidationStage(Schema):
@@ -395,28 +540,26 @@ class VariableSchema(Schema):
 class AnalysisRequest(SampleOptions):
     """POST /v1/analyses: the whole chain in one call."""
 
-    transform = fields.String(load_default="none", validate=validate.OneOf(TRANSFORMS))
+    transform = one_of(TRANSFORMS, load_default="none")
     variogram = fields.Nested(VariogramStage, load_default=lambda: VariogramStage().load({}))
     fit = fields.Nested(FitStage, load_default=lambda: FitStage().load({}))
     cross_validation = fields.Nested(CrossValidationStage, load_default=lambda: CrossValidationStage().load({}))
     prediction = fields.Nested(PredictionStage)
     figures = fields.List(
-        fields.String(validate=validate.OneOf(FIGURES)),
+        one_of(FIGURES),
         load_default=list,
         metadata={"description": f"Any of {', '.join(FIGURES)}."},
     )
-    figure_format = fields.String(
-        load_default="svg", validate=validate.OneOf(FORMATS), metadata={"description": "svg (text) or png (base64)."}
-    )
+    figure_format = one_of(FORMATS, load_default="svg", metadata={"description": "svg (text) or png (base64)."})
     figure_size = fields.List(
         fields.Integer(strict=True, validate=validate.Range(min=200, max=3000)),
         validate=validate.Length(equal=2),
         load_default=lambda: [800, 500],
         metadata={"description": "Width and height in pixels."},
     )
-    figure_colour_scale = fields.String(
+    figure_colour_scale = one_of(
+        COLOUR_SCALES,
         load_default="auto",
-        validate=validate.OneOf(COLOUR_SCALES),
         metadata={"description": "Colours of the prediction map; auto: log for log and normal-score transforms."},
     )
     variable = fields.Nested(VariableSchema, load_default=lambda: VariableSchema().load({}))
@@ -440,6 +583,7 @@ class AnalysisRequest(SampleOptions):
 # ---- responses -------------------------------------------------------------
 
 
+@always_present()
 class ProvenanceSchema(Schema):
     service = fields.String()
     version = fields.String()
@@ -452,6 +596,7 @@ class ProvenanceSchema(Schema):
     elapsed_ms = fields.Float()
 
 
+@always_present()
 class DeclusteringSchema(Schema):
     """Cell declustering of the samples (weights used only when sampling is clustered)."""
 
@@ -478,6 +623,7 @@ class DeclusteringSchema(Schema):
     reason = fields.String(allow_none=True)
 
 
+@always_present()
 class SummarySchema(Schema):
     samples = fields.Integer()
     dimension = fields.Integer()
@@ -496,18 +642,19 @@ class SummarySchema(Schema):
     declustering = fields.Nested(DeclusteringSchema, allow_none=True)
 
 
+@always_present("reason", "tail_mean", "head_mean", "tail_sd", "head_sd", "uncertainty_reason")
 class ClassSchema(Schema):
     lower = fields.Float()
     upper = fields.Float()
     mean_distance = fields.Float(allow_none=True)
     pairs = fields.Integer()
     value = fields.Float(allow_none=True)
-    reason = fields.String(allow_none=True)
+    reason = one_of(CLASS_REASONS, metadata={"description": "Why value is null."})
     sparse = fields.Boolean()
-    tail_mean = fields.Float(allow_none=True)
-    head_mean = fields.Float(allow_none=True)
-    tail_sd = fields.Float(allow_none=True)
-    head_sd = fields.Float(allow_none=True)
+    tail_mean = fields.Float(metadata={"description": "Covariance-type statistics only."})
+    head_mean = fields.Float()
+    tail_sd = fields.Float()
+    head_sd = fields.Float()
     standard_error = fields.Float(
         allow_none=True,
         metadata={
@@ -524,7 +671,10 @@ class ClassSchema(Schema):
     uncertainty_reason = fields.String(metadata={"description": "Why standard_error is null."})
 
 
+@always_present("dip", "dip_tolerance", "vertical_bandwidth")
 class DirectionResultSchema(Schema):
+    """A direction class as resolved (dip members for 3-D samples only) and its distance classes."""
+
     azimuth = fields.Float()
     tolerance = fields.Float()
     bandwidth = fields.Float(allow_none=True)
@@ -534,6 +684,7 @@ class DirectionResultSchema(Schema):
     classes = fields.List(fields.Nested(ClassSchema))
 
 
+@always_present()
 class ScattergramSchema(Schema):
     direction = fields.Integer()
     klass = fields.Integer(data_key="class")
@@ -543,12 +694,14 @@ class ScattergramSchema(Schema):
     head = fields.List(fields.Float())
 
 
+@always_present()
 class ResultEnvelope(Schema):
     parameters = fields.Dict(metadata={"description": "Every resolved parameter, defaults filled in."})
     warnings = fields.List(fields.String())
     provenance = fields.Nested(ProvenanceSchema)
 
 
+@always_present("pairs_for_class")
 class ExperimentalResponse(ResultEnvelope):
     directions = fields.List(fields.Nested(DirectionResultSchema))
     summary = fields.Nested(SummarySchema)
@@ -556,6 +709,7 @@ class ExperimentalResponse(ResultEnvelope):
     pairs_for_class = fields.Nested(ScattergramSchema)
 
 
+@always_present()
 class MapResponse(ResultEnvelope):
     hx = fields.List(fields.Float())
     hy = fields.List(fields.Float())
@@ -567,27 +721,7 @@ class MapResponse(ResultEnvelope):
     summary = fields.Nested(SummarySchema)
 
 
-class AnisotropySchema(Schema):
-    azimuth = fields.Float()
-    ratio = fields.Float()
-    vertical_ratio = fields.Float()
-
-
-StructureSchema = Schema.from_dict(
-    {
-        "family": fields.String(),
-        **{name: fields.Float(metadata={"description": p.unit}) for name, p in structure_parameters().items()},
-        "anisotropy": fields.Nested(AnisotropySchema),
-    },
-    name="StructureSchema",
-)
-
-
-class ModelSchema(Schema):
-    nugget = fields.Float()
-    structures = fields.List(fields.Nested(StructureSchema))
-
-
+@always_present()
 class DiagnosticsSchema(Schema):
     weighted_sse = fields.Float(allow_none=True)
     r_squared = fields.Float(allow_none=True)
@@ -597,10 +731,12 @@ class DiagnosticsSchema(Schema):
     iterations = fields.Integer()
 
 
+@always_present()
 class CandidateSchema(Schema):
     rank = fields.Integer()
     label = fields.String()
-    model = fields.Nested(ModelSchema, allow_none=True)
+    model = fields.Nested(Model, allow_none=True, metadata={"description": "Null when the fit failed (see note)."})
+    selected = fields.Boolean(metadata={"description": "True for the one candidate returned as the model."})
     parameters = fields.Integer()
     weighted_sse = fields.Float(allow_none=True)
     r_squared = fields.Float(allow_none=True)
@@ -610,6 +746,7 @@ class CandidateSchema(Schema):
     note = fields.String(allow_none=True)
 
 
+@always_present()
 class FitClassSchema(Schema):
     mean_distance = fields.Float(allow_none=True)
     value = fields.Float(allow_none=True)
@@ -618,24 +755,28 @@ class FitClassSchema(Schema):
     model_value = fields.Float(allow_none=True)
 
 
+@always_present()
 class FitDirectionSchema(Schema):
     azimuth = fields.Float()
     classes = fields.List(fields.Nested(FitClassSchema))
 
 
+@always_present()
 class FitExperimentalSchema(Schema):
-    statistic = fields.String()
+    statistic = one_of(STATISTICS)
     directions = fields.List(fields.Nested(FitDirectionSchema))
 
 
+@always_present("summary")
 class ModelFitResponse(ResultEnvelope):
-    model = fields.Nested(ModelSchema)
+    model = fields.Nested(Model)
     diagnostics = fields.Nested(DiagnosticsSchema)
     candidates = fields.List(fields.Nested(CandidateSchema))
     experimental = fields.Nested(FitExperimentalSchema)
-    summary = fields.Nested(SummarySchema)
+    summary = fields.Nested(SummarySchema, metadata={"description": "Absent when fitted to a given experimental."})
 
 
+@always_present()
 class FitRuleSchema(Schema):
     """A fit bound or start: factor times a named fit scale."""
 
@@ -643,12 +784,14 @@ class FitRuleSchema(Schema):
     scale = fields.String(metadata={"description": "A key of fit_scales."})
 
 
+@always_present()
 class FamilyParameterFitSchema(Schema):
     low = fields.Nested(FitRuleSchema)
     high = fields.Nested(FitRuleSchema)
     start = fields.Nested(FitRuleSchema)
 
 
+@always_present("minimum", "maximum", "fit")
 class FamilyParameterSchema(Schema):
     name = fields.String()
     unit = fields.String()
@@ -662,8 +805,9 @@ class FamilyParameterSchema(Schema):
     fit = fields.Nested(FamilyParameterFitSchema, metadata={"description": "Bounds and start of a fit."})
 
 
+@always_present()
 class FamilySchema(Schema):
-    name = fields.String()
+    name = one_of(FAMILY_NAMES)
     bounded = fields.Boolean()
     max_dimension = fields.Integer()
     parameters = fields.List(fields.Nested(FamilyParameterSchema))
@@ -671,15 +815,17 @@ class FamilySchema(Schema):
     source = fields.String()
 
 
+@always_present()
 class FamiliesResponse(Schema):
     families = fields.List(fields.Nested(FamilySchema))
     model_parameters = fields.List(
         fields.Nested(FamilyParameterSchema), metadata={"description": "The nugget and the anisotropy."}
     )
     fit_scales = fields.Dict(keys=fields.String(), values=fields.String())
-    conventions = fields.Dict()
+    conventions = fields.Dict(keys=fields.String(), values=fields.String())
 
 
+@always_present()
 class CrossValidationSamplesSchema(Schema):
     id = fields.List(fields.String())
     observed = fields.List(fields.Float())
@@ -690,6 +836,7 @@ class CrossValidationSamplesSchema(Schema):
     outlier = fields.List(fields.Boolean())
 
 
+@always_present()
 class CrossValidationStatisticsSchema(Schema):
     count = fields.Integer()
     mean_error = fields.Float(allow_none=True)
@@ -703,11 +850,13 @@ class CrossValidationStatisticsSchema(Schema):
     outliers = fields.Integer()
 
 
+@always_present()
 class UnestimatedSchema(Schema):
     index = fields.Integer()
     reason = fields.String()
 
 
+@always_present()
 class CrossValidationResponse(ResultEnvelope):
     statistics = fields.Nested(CrossValidationStatisticsSchema)
     samples = fields.Nested(CrossValidationSamplesSchema)
@@ -715,6 +864,7 @@ class CrossValidationResponse(ResultEnvelope):
     unestimated = fields.List(fields.Nested(UnestimatedSchema))
 
 
+@always_present()
 class WeightsSchema(Schema):
     target = fields.Integer()
     samples = fields.List(fields.String())
@@ -722,6 +872,7 @@ class WeightsSchema(Schema):
     lagrange = fields.List(fields.Float())
 
 
+@always_present()
 class GridSchema(Schema):
     origin = fields.List(fields.Float())
     spacing = fields.List(fields.Float())
@@ -729,34 +880,39 @@ class GridSchema(Schema):
     order = fields.String()
 
 
+@always_present("y", "z", "grid", "weights")
 class PredictionResponse(ResultEnvelope):
     x = fields.List(fields.Float())
-    y = fields.List(fields.Float())
-    z = fields.List(fields.Float())
+    y = fields.List(fields.Float(), metadata={"description": "2-D and 3-D samples."})
+    z = fields.List(fields.Float(), metadata={"description": "3-D samples."})
     estimate = fields.List(fields.Float(allow_none=True))
     variance = fields.List(fields.Float(allow_none=True))
-    grid = fields.Nested(GridSchema)
+    grid = fields.Nested(GridSchema, metadata={"description": "Predictions on a grid."})
     unestimated = fields.List(fields.Nested(UnestimatedSchema))
-    weights = fields.List(fields.Nested(WeightsSchema))
+    weights = fields.List(fields.Nested(WeightsSchema), metadata={"description": "When return_weights was given."})
 
 
+@always_present()
 class AnalysisVariogramSchema(Schema):
     directions = fields.List(fields.Nested(DirectionResultSchema))
     colocated_pairs = fields.Integer()
 
 
+@always_present()
 class AnalysisExperimentalSchema(Schema):
     omnidirectional = fields.Nested(AnalysisVariogramSchema)
     directional = fields.Nested(AnalysisVariogramSchema, allow_none=True)
     anisotropy = fields.Dict(allow_none=True)
 
 
+@always_present()
 class AnalysisFitSchema(Schema):
-    model = fields.Nested(ModelSchema)
+    model = fields.Nested(Model)
     diagnostics = fields.Nested(DiagnosticsSchema)
     candidates = fields.List(fields.Nested(CandidateSchema))
 
 
+@always_present()
 class AnalysisCrossValidationSchema(Schema):
     statistics = fields.Nested(CrossValidationStatisticsSchema)
     samples = fields.Nested(CrossValidationSamplesSchema)
@@ -764,6 +920,7 @@ class AnalysisCrossValidationSchema(Schema):
     unestimated = fields.List(fields.Nested(UnestimatedSchema))
 
 
+@always_present()
 class AnalysisPredictionSchema(Schema):
     x = fields.List(fields.Float())
     y = fields.List(fields.Float())
@@ -775,6 +932,7 @@ class AnalysisPredictionSchema(Schema):
     unestimated = fields.List(fields.Nested(UnestimatedSchema))
 
 
+@always_present()
 class AnalysisResponse(ResultEnvelope):
     summary = fields.Nested(SummarySchema)
     transformed_summary = fields.Nested(SummarySchema)
@@ -786,20 +944,28 @@ class AnalysisResponse(ResultEnvelope):
     verdict = fields.String()
 
 
+# ---- problems and small documents ---------------------------------------------------
+
+PROBLEM_TYPES = tuple(f"/problems/{kind}" for kind in KINDS)
+PROBLEM_STATUSES = tuple(sorted({k.status for k in KINDS.values()}))
+
+
+@always_present()
 class FieldErrorSchema(Schema):
     pointer = fields.String(metadata={"description": "JSON Pointer (RFC 6901) into the request."})
     detail = fields.String()
 
 
+@always_present("errors", "errors_omitted", "limit", "allowed", "requested")
 class ProblemSchema(Schema):
-    """RFC 9457 problem details."""
+    """RFC 9457 problem details; a limit-exceeded problem also names the limit and both costs."""
 
-    type = fields.String()
+    type = one_of(PROBLEM_TYPES, metadata={"description": "URI reference of the kind; GET it for a description."})
     title = fields.String()
-    status = fields.Integer()
+    status = fields.Integer(validate=validate.OneOf(PROBLEM_STATUSES))
     detail = fields.String()
-    instance = fields.String()
-    request_id = fields.String()
+    instance = fields.String(metadata={"description": "The request's path."})
+    request_id = fields.String(metadata={"description": "Also in the X-Request-ID response header."})
     errors = fields.List(
         fields.Nested(FieldErrorSchema), metadata={"description": "Offending fields, at most 100 entries."}
     )
@@ -809,7 +975,21 @@ class ProblemSchema(Schema):
             "left unchecked after the first 20 bad ones of a list."
         }
     )
+    limit = fields.String(metadata={"description": "limit-exceeded: the LAGWISE_* variable that sets the limit."})
+    allowed = fields.Float(metadata={"description": "limit-exceeded: the configured value."})
+    requested = fields.Float(metadata={"description": "limit-exceeded: what this request would need (same unit)."})
 
 
+@always_present()
+class ProblemKindSchema(Schema):
+    """A kind of refusal, described for people."""
+
+    type = one_of(PROBLEM_TYPES)
+    title = fields.String()
+    status = fields.Integer(validate=validate.OneOf(PROBLEM_STATUSES))
+    description = fields.String()
+
+
+@always_present()
 class HealthSchema(Schema):
-    status = fields.String()
+    status = one_of(("alive", "ready"))

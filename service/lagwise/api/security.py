@@ -9,7 +9,10 @@ from flask import Flask, Response, request
 
 from .problems import Problem
 
-OPEN_PATHS = frozenset({"/healthz", "/readyz"})
+# Open even when keys are configured: the probes, the page (whose own key field must be
+# reachable), the contract and the problem descriptions. Everything that computes needs a key.
+OPEN_PATHS = frozenset({"/healthz", "/readyz", "/", "/openapi.json", "/openapi.yaml"})
+OPEN_PREFIXES = ("/problems/",)
 SECURITY_HEADERS = {
     "X-Content-Type-Options": "nosniff",
     "X-Frame-Options": "DENY",
@@ -17,6 +20,11 @@ SECURITY_HEADERS = {
     "Cache-Control": "no-store",
     "Content-Security-Policy": "default-src 'none'; frame-ancestors 'none'",
 }
+
+
+def is_open(path: str) -> bool:
+    """Whether ``path`` answers without an API key."""
+    return path in OPEN_PATHS or path.startswith(OPEN_PREFIXES)
 
 
 def key_matches(presented: str, digests: frozenset[str]) -> bool:
@@ -36,7 +44,7 @@ def install(app: Flask) -> None:
     def _authenticate():
         if request.method == "OPTIONS" and settings.cors_origins:
             return Response(status=204)
-        if not settings.api_key_digests or request.path in OPEN_PATHS:
+        if not settings.api_key_digests or is_open(request.path):
             return None
         scheme, _, key = request.headers.get("Authorization", "").partition(" ")
         if scheme.lower() != "bearer" or not key or not key_matches(key.strip(), settings.api_key_digests):

@@ -150,11 +150,12 @@ def variogram_map(result: VariogramMap, samples: SampleSet) -> dict:
 CRITERION = "AICc (corrected Akaike criterion of the weighted least-squares fit; lower is better)"
 
 
-def _candidate(rank: int, c) -> dict:
+def _candidate(rank: int, c, selected: bool) -> dict:
     return {
         "rank": rank,
         "label": c.label,
         "model": None if c.model is None else c.model.as_dict(),
+        "selected": selected,
         "parameters": c.parameters,
         "weighted_sse": c.weighted_sse,
         "r_squared": c.r_squared,
@@ -194,7 +195,7 @@ def model_fit(fit, statistic: str, *, summary: dict | None, sample_params: dict 
             "converged": best.converged,
             "iterations": best.evaluations,
         },
-        "candidates": [_candidate(rank + 1, c) for rank, c in enumerate(fit.candidates)],
+        "candidates": [_candidate(rank + 1, c, c is best) for rank, c in enumerate(fit.candidates)],
         "experimental": {"statistic": statistic, "directions": [directions[k] for k in sorted(directions)]},
         "parameters": {
             **(sample_params or {}),

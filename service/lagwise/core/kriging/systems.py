@@ -23,10 +23,11 @@ section 3.2.
 from __future__ import annotations
 
 import math
+import warnings
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.linalg import LinAlgError, lu_factor, lu_solve
+from scipy.linalg import LinAlgError, LinAlgWarning, lu_factor, lu_solve
 from scipy.spatial.distance import cdist
 
 from ..data.samples import SampleSet
@@ -131,7 +132,9 @@ class Covariance:
         h = a[..., :, None, :] - b[..., None, :, :]
         shape = h.shape[:-1]
         flat = h.reshape(-1, h.shape[-1])
-        cov = (self.c0 - self.structural.semivariance(flat)).reshape(shape)
+        with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
+            cov = (self.c0 - self.structural.semivariance(flat)).reshape(shape)
+        _require_finite(cov)
         if same:
             m = shape[-1]
             cov = cov + self.nugget * np.eye(m)
@@ -153,9 +156,11 @@ class Covariance:
             part = np.full((rows.stop - start, n), self.c0)
             for structure, space in zip(self.structural.structures, spaces, strict=True):
                 h = cdist(space[rows], space)
-                part -= structure.partial_sill * unit_semivariance(
-                    structure.family, h, structure.range, structure.extra
-                )
+                with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
+                    part -= structure.partial_sill * unit_semivariance(
+                        structure.family, h, structure.range, structure.extra
+                    )
+            _require_finite(part)
             K[rows] = part
         K[np.diag_indices(n)] += self.nugget
         return K
@@ -164,6 +169,16 @@ class Covariance:
     def target_variance(self) -> float:
         """k_00: covariance of the target with itself."""
         return self.c0 + (self.nugget if self.micro else 0.0)
+
+
+def _require_finite(cov: np.ndarray) -> None:
+    """Refuse a model whose covariances overflow for these separations (e.g. a range of 1e-320)."""
+    if not np.isfinite(cov).all():
+        raise InvalidInput.at(
+            "/model",
+            "the model gives non-finite covariances at these separations; check that every range is a "
+            "sensible distance in the samples' unit",
+        )
 
 
 @dataclass(frozen=True)
@@ -250,7 +265,10 @@ class Kriger:
         A = self.system_matrix()
         self._check_drift_rank(A[: self.samples.size, self.samples.size :])
         try:
-            factor = lu_factor(A, check_finite=True)
+            with warnings.catch_warnings():
+                # An exactly singular factor is reported below, with the sample it is near.
+                warnings.simplefilter("ignore", LinAlgWarning)
+                factor = lu_factor(A, check_finite=True)
         except (LinAlgError, ValueError) as exc:
             raise InvalidInput.at("/model", f"the kriging matrix cannot be factorised: {exc}") from None
         diagonal = np.abs(np.diag(factor[0]))

@@ -363,6 +363,8 @@ NUGGET = Parameter(
     Scaled(1.5, "largest_semivariance"),
     Scaled(1.0, "nugget_guess"),
 )
+# Ratios far below any real anisotropy would stretch separations past the float range.
+MIN_RATIO = 1e-6
 # A fitted anisotropy searches azimuths modulo 180 degrees (an axis, not a heading).
 AZIMUTH = Parameter(
     "azimuth",
@@ -379,14 +381,12 @@ RATIO = Parameter(
     "",
     "dimensionless",
     UNIT_KINDS["dimensionless"],
-    Interval(0.0, 1.0, minimum_exclusive=True),
+    Interval(MIN_RATIO, 1.0),
     Scaled(0.05, "one"),
     Scaled(1.0, "one"),
     Scaled(0.6, "one"),
 )
-VERTICAL_RATIO = Parameter(
-    "vertical_ratio", "", "dimensionless", UNIT_KINDS["dimensionless"], Interval(0.0, 1e6, minimum_exclusive=True)
-)
+VERTICAL_RATIO = Parameter("vertical_ratio", "", "dimensionless", UNIT_KINDS["dimensionless"], Interval(MIN_RATIO, 1e6))
 ANISOTROPY = (AZIMUTH, RATIO, VERTICAL_RATIO)
 
 

@@ -344,10 +344,27 @@ def _fit_candidate(spec: _Spec, points: ExperimentalPoints, weighting: str, samp
     best, evaluations = None, 0
     for start in problem.starts():
         check_deadline()
-        result = _solve(problem, first_weights, start)
+        try:
+            result = _solve(problem, first_weights, start)
+        except ValueError:
+            # least_squares refuses a start whose residuals overflow (classes with extreme values).
+            continue
         evaluations += result.nfev
         if best is None or result.cost < best.cost:
             best = result
+    if best is None:
+        return Candidate(
+            None,
+            spec.label,
+            p,
+            None,
+            None,
+            None,
+            False,
+            evaluations,
+            "the model cannot be evaluated at these classes (values overflow)",
+            spec.families,
+        )
     theta, converged = best.x, best.status > 0
     if weighting == "cressie":
         for _ in range(CRESSIE_ITERATIONS):

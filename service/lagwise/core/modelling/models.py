@@ -172,7 +172,10 @@ def unit_semivariance(family: str, h: np.ndarray, a: float, extra: float | None 
     shape = UNIT_SHAPES.get(family)
     if shape is None:
         raise ValueError(f"unknown family {family!r}")
-    return shape(np.asarray(h, dtype=np.float64), a, extra)
+    # h / a can overflow for extreme inputs; most shapes then reach their limit (exp(-inf) = 0),
+    # the others give NaN, which callers treat as undefined (kriging refuses non-finite systems).
+    with np.errstate(over="ignore", invalid="ignore"):
+        return shape(np.asarray(h, dtype=np.float64), a, extra)
 
 
 @dataclass(frozen=True)

@@ -48,6 +48,8 @@ ACCUMULATION_MODE = {
 # Dowd (1984): 2.198 * median(|Delta|)^2 estimates 2 gamma for Gaussian increments.
 DOWD_FACTOR = 2.198
 NO_PAIRS = "no pairs in this class"
+CONSTANT_ENDS = "tail or head values are constant in this class (zero standard deviation)"
+CLASS_REASONS = (NO_PAIRS, CONSTANT_ENDS)
 
 
 @dataclass(frozen=True)
@@ -119,5 +121,5 @@ def _covariance_value(statistic: str, row: np.ndarray, n: float, mean: float, sc
         return ClassValue(raw, **moments)
     noise = 1e-10 * max(scale, 1e-300)
     if tail_sd <= noise or head_sd <= noise:
-        return ClassValue(None, "tail or head values are constant in this class (zero standard deviation)", **moments)
+        return ClassValue(None, CONSTANT_ENDS, **moments)
     return ClassValue(centred / (tail_sd * head_sd), **moments)
