@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import math
+import textwrap
 
 import numpy as np
 from matplotlib.colors import Normalize, to_rgba
@@ -39,7 +40,7 @@ def _interval(row) -> tuple[float, float] | None:
 
 def describe(model, labels: Labels) -> str:
     """One line naming the model's nugget and structures, with ranges in the distance unit."""
-    unit = "" if labels.distance_unit is None else f" {labels.distance_unit}"
+    unit = "" if labels.distance_unit is None else f"\u00a0{labels.distance_unit}"  # no break before the unit
     parts = [f"nugget {model.nugget:.3g}"] if model.nugget > 0 or not model.structures else []
     for s in model.structures:
         if s.family == "linear":
@@ -107,6 +108,7 @@ def variogram(
     directions = [d for d in experimental.directions if any(r.pairs > 0 and r.value is not None for r in d.classes)]
     min_pairs = experimental.min_pairs
 
+    characters = max(40, int(size[0] / 12))  # a subtitle line that fits beside the legend at 10 pt
     has_bars = any(_interval(r) is not None for d in directions for r in d.classes if r.pairs > 0)
 
     def draw(fig):
@@ -125,11 +127,12 @@ def variogram(
                         label=_direction_label(d.direction), gid=f"experimental-points-{k}", zorder=3)  # fmt: skip
             intervals = [(x, y, _interval(r)) for x, y, r in zip(h, g, rows, strict=True) if _interval(r) is not None]
             if intervals:
-                x, y, bounds = zip(*intervals, strict=True)
-                low = np.array(y) - np.array([b[0] for b in bounds])
-                high = np.array([b[1] for b in bounds]) - np.array(y)
-                top.errorbar(x, y, yerr=[low, high], fmt="none", ecolor=colour, elinewidth=1, capsize=2,
-                             gid=f"class-uncertainty-{k}", zorder=2)  # fmt: skip
+                x, y, bounds = (np.array(column) for column in zip(*intervals, strict=True))
+                low, high = np.maximum(y - bounds[:, 0], 0.0), np.maximum(bounds[:, 1] - y, 0.0)
+                # Bars of different directions side by side, not on top of each other.
+                shift = (k - (len(directions) - 1) / 2) * 0.006 * reach
+                top.errorbar(x + shift, y, yerr=[low, high], fmt="none", ecolor=colour, elinewidth=0.9, capsize=1.5,
+                             alpha=0.75 if len(directions) > 1 else 1.0, gid=f"class-uncertainty-{k}", zorder=2)  # fmt: skip
             width = np.array([r.upper - r.lower for r in rows]) * share
             offset = np.array([r.lower for r in rows]) + (
                 np.array([r.upper - r.lower for r in rows]) * (0.1 + share * k)
@@ -154,7 +157,8 @@ def variogram(
         style_axes(
             top,
             f"Experimental {STATISTIC_NAMES.get(experimental.statistic, experimental.statistic)} and fitted model",
-            f"{describe(model, labels)}\nmarker area grows with the pairs of a class; hollow: fewer than {min_pairs} pairs"
+            textwrap.fill(describe(model, labels), width=characters)
+            + f"\nmarker area grows with the pairs of a class; hollow: fewer than {min_pairs} pairs"
             + ("; bars: 95 % intervals" if has_bars else ""),
         )
         style_axes(bottom, "Pairs per class")
