@@ -5,7 +5,7 @@ The samples are small made-up values on a 5 x 4 grid of 10-unit spacing.
 
 from __future__ import annotations
 
-from ..core.modelling.families import family_catalogue
+from ..core.modelling.families import FIT_SCALES, family_catalogue, model_parameter_catalogue
 from .problems import KINDS
 
 _X = [float(10 * (i % 5)) for i in range(20)]
@@ -47,6 +47,8 @@ RESPONSES: dict[str, object] = {
     "healthz": {"status": "alive"},
     "model_families": {
         "families": family_catalogue()[:1],
+        "model_parameters": model_parameter_catalogue()[:1],
+        "fit_scales": FIT_SCALES,
         "conventions": {"range": "practical range: the distance at which a structure reaches 95 % of its partial sill"},
     },
     "readyz": {"status": "ready"},

@@ -61,6 +61,24 @@ PROBLEM_RESPONSES = {
 }
 
 
+TAGS = (
+    {"name": "computations", "description": "Pure, idempotent computations on samples: same request, same numbers."},
+    {"name": "reference", "description": "What the service knows: model families and kinds of refusal."},
+    {"name": "service", "description": "Probes, metrics, the browser page and this contract."},
+)
+REFERENCE = frozenset({"model_families", "problem_kind"})
+COMPUTATION_NOTE = (
+    "Pure and idempotent: the same request gives the same numbers, so a client may retry it. "
+    "Refusals are problems naming each offending field by JSON Pointer."
+)
+
+
+def _tag(operation_id: str, computes: bool) -> list[str]:
+    if computes:
+        return ["computations"]
+    return ["reference" if operation_id in REFERENCE else "service"]
+
+
 @dataclass(frozen=True)
 class Document:
     """A path outside the blueprint's operations that serves a fixed document (not JSON, or open)."""
@@ -163,7 +181,12 @@ def build_spec() -> APISpec:
         version=__version__,
         openapi_version=OPENAPI_VERSION,
         plugins=[plugin],
-        info={"description": DESCRIPTION, "license": {"name": "Proprietary", "identifier": "LicenseRef-Proprietary"}},
+        info={
+            "description": DESCRIPTION,
+            "license": {"name": "Proprietary", "identifier": "LicenseRef-Proprietary"},
+            "contact": {"name": "Lagwise maintainers"},
+        },
+        tags=list(TAGS),
         servers=[{"url": "/", "description": "The service that serves this document."}],
         # A key, or none where the deployment configures no keys; open paths override with [].
         security=[{SECURITY_SCHEME: []}, {}],
@@ -220,6 +243,8 @@ def build_spec() -> APISpec:
                 {
                     "operationId": name,
                     "summary": op.summary,
+                    "description": f"{op.summary}. " + (COMPUTATION_NOTE if op.request is not None else "Read only."),
+                    "tags": _tag(name, op.request is not None),
                     "parameters": [request_id],
                     **body,
                     "responses": _responses(success, _statuses(op.path, op.errors)),
@@ -235,6 +260,8 @@ def build_spec() -> APISpec:
                 {
                     "operationId": doc.operation_id,
                     "summary": doc.summary,
+                    "description": f"{doc.summary}. Read only; served as {doc.media_type}.",
+                    "tags": _tag(doc.operation_id, False),
                     "parameters": [*doc.parameters, request_id],
                     "responses": _responses(success, _statuses(doc.path, doc.errors)),
                 },
@@ -247,9 +274,24 @@ def build_spec() -> APISpec:
     return spec
 
 
+def _one_bound_per_side(node) -> None:
+    """Keep only the exclusive bound where apispec wrote an inclusive one beside it (same value)."""
+    if isinstance(node, dict):
+        for inclusive, exclusive in (("minimum", "exclusiveMinimum"), ("maximum", "exclusiveMaximum")):
+            if exclusive in node and node.get(inclusive) == node[exclusive]:
+                del node[inclusive]
+        for value in node.values():
+            _one_bound_per_side(value)
+    elif isinstance(node, list):
+        for value in node:
+            _one_bound_per_side(value)
+
+
 def as_dict() -> dict:
     """The OpenAPI document as a dictionary."""
-    return build_spec().to_dict()
+    document = build_spec().to_dict()
+    _one_bound_per_side(document)
+    return document
 
 
 def as_yaml() -> str:
