@@ -2,7 +2,8 @@
 
     python3 manage.py cluster [--instances 2] [--port 8760]
 
-Each instance is a gunicorn master with its own workers and metrics folder; nginx
+Each instance is ``lagwise serve`` (its front, a gunicorn master and workers) with its own
+sockets and metrics folder; nginx
 (Debian package ``nginx``) balances between them. Ctrl-C stops everything.
 """
 
@@ -21,7 +22,6 @@ import urllib.request
 from pathlib import Path
 
 HERE = Path(__file__).resolve().parent
-CONFIG = HERE / "gunicorn.conf.py"
 TEMPLATE = HERE / "nginx.conf.template"
 
 
@@ -46,10 +46,10 @@ def wait_ready(url: str, seconds: float = 300.0, process: subprocess.Popen | Non
     raise RuntimeError(f"{url} did not become ready")
 
 
-def spawn_gunicorn(env: dict, log, cwd: Path | None = None) -> subprocess.Popen:
-    """Start gunicorn with the project's configuration in its own session (so it can be signalled whole)."""
+def spawn_service(bind: str, env: dict, log, cwd: Path | None = None) -> subprocess.Popen:
+    """Start ``lagwise serve`` (front and gunicorn) in its own session, so that it can be signalled whole."""
     return subprocess.Popen(
-        [sys.executable, "-m", "gunicorn", "--config", str(CONFIG), "lagwise.api:create_app()"],
+        [sys.executable, "-m", "lagwise.cli", "serve", "--bind", bind],
         env=env,
         cwd=cwd,
         stdout=log,
@@ -82,14 +82,13 @@ class Cluster:
         metrics.mkdir()
         env = dict(
             os.environ,
-            LAGWISE_BIND=f"127.0.0.1:{port}",
             LAGWISE_WORKERS=str(self.workers),
             PROMETHEUS_MULTIPROC_DIR=str(metrics),
             **self.env,
         )
         log = open(self.prefix / f"instance-{port}.log", "w")
         self.logs.append(log)
-        self.instances.append((port, spawn_gunicorn(env, log)))
+        self.instances.append((port, spawn_service(f"127.0.0.1:{port}", env, log)))
         return port
 
     def start(self) -> Cluster:
@@ -118,7 +117,7 @@ class Cluster:
         return self
 
     def signal_instance(self, index: int, sig: int) -> None:
-        """Send a signal to one instance's gunicorn master."""
+        """Send a signal to one instance (its front passes it on to the gunicorn master)."""
         os.kill(self.instances[index][1].pid, sig)
 
     def stop(self) -> None:

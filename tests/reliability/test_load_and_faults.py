@@ -29,9 +29,14 @@ pytestmark = pytest.mark.skipif(
 )
 
 
-def _workers(master_pid: int) -> list[int]:
-    children = Path(f"/proc/{master_pid}/task/{master_pid}/children")
+def _children(pid: int) -> list[int]:
+    children = Path(f"/proc/{pid}/task/{pid}/children")
     return [int(p) for p in children.read_text().split()] if children.exists() else []
+
+
+def _workers(instance_pid: int) -> list[int]:
+    """The gunicorn workers of one instance (``lagwise serve`` -> gunicorn master -> workers)."""
+    return [worker for master in _children(instance_pid) for worker in _children(master)]
 
 
 def _counted(url: str) -> float:

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import zlib
+
 from flask import current_app, request
 from marshmallow import Schema, ValidationError
 
@@ -32,10 +34,15 @@ def _pointers(messages, prefix: str = "") -> list[dict]:
 
 
 READ_BLOCK = 1 << 16
+ACCEPTED_ENCODINGS = "gzip"
 
 
-def read_body() -> bytes:
-    """The request body, refusing more than ``MAX_CONTENT_LENGTH`` bytes.
+def _too_large(limit: int) -> Problem:
+    return Problem("body-too-large", f"The body exceeds the limit of {limit} bytes (LAGWISE_MAX_BODY_BYTES).")
+
+
+def _raw_body(limit: int) -> bytes:
+    """The body as sent, refusing more than ``limit`` bytes.
 
     With a Content-Length, Flask refuses an oversized body before reading it. A
     chunked body (no Content-Length, de-chunked by the server) is read block by
@@ -43,7 +50,6 @@ def read_body() -> bytes:
     """
     if request.content_length is not None:
         return request.get_data(cache=False)
-    limit = current_app.config["MAX_CONTENT_LENGTH"]
     if "wsgi.input_terminated" not in request.environ:
         return b""
     stream = request.environ["wsgi.input"]
@@ -55,8 +61,50 @@ def read_body() -> bytes:
             return b"".join(blocks)
         total += len(block)
         if total > limit:
-            raise Problem("body-too-large", f"The body exceeds the limit of {limit} bytes (LAGWISE_MAX_BODY_BYTES).")
+            raise _too_large(limit)
         blocks.append(block)
+
+
+def _gunzip(data: bytes, limit: int) -> bytes:
+    """Decode a gzip body (RFC 9112 §7.2), refusing more than ``limit`` decoded bytes before holding them."""
+    decoder = zlib.decompressobj(16 + zlib.MAX_WBITS)
+    blocks: list[bytes] = []
+    total = 0
+    try:
+        pending = data
+        while not decoder.eof:
+            block = decoder.decompress(pending, READ_BLOCK)
+            pending = decoder.unconsumed_tail
+            if not block and not pending:
+                break
+            total += len(block)
+            if total > limit:
+                raise _too_large(limit)
+            blocks.append(block)
+    except zlib.error as exc:
+        raise Problem("malformed-request", f"The gzip body is corrupt: {exc}.") from None
+    if not decoder.eof or decoder.unused_data:
+        raise Problem("malformed-request", "The gzip body is truncated or followed by other data.")
+    return b"".join(blocks)
+
+
+def read_body() -> bytes:
+    """The request body, decoded, refusing more than ``MAX_CONTENT_LENGTH`` bytes sent or decoded.
+
+    ``Content-Encoding: gzip`` is decoded within the same limit (a small compressed body
+    cannot expand past it); any other coding is refused with 415 and ``Accept-Encoding``.
+    """
+    limit = current_app.config["MAX_CONTENT_LENGTH"]
+    codings = [c.strip().lower() for c in request.headers.get("Content-Encoding", "").split(",") if c.strip()]
+    codings = [c for c in codings if c != "identity"]
+    if codings and codings != ["gzip"] and codings != ["x-gzip"]:
+        raise Problem(
+            "unsupported-media-type",
+            f"Content-Encoding {', '.join(codings)} is not supported; send the body as is or gzip-compressed.",
+            headers={"Accept-Encoding": ACCEPTED_ENCODINGS},
+        )
+    body = _raw_body(limit)
+    return _gunzip(body, limit) if codings else body
 
 
 def load_json(schema: Schema) -> dict:

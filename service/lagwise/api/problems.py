@@ -9,10 +9,11 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 from flask import Flask, Response, request
-from werkzeug.exceptions import HTTPException
+from werkzeug.exceptions import HTTPException, MethodNotAllowed
 
 from ..core.deadline import DeadlineExceeded
 from ..core.errors import InvalidInput, LimitExceeded
+from ..serving.answers import FRONT_KINDS
 from .jsonio import dumps
 from .observability import REFUSALS, logger, request_id
 
@@ -55,6 +56,8 @@ KINDS = {
     "internal-error": ProblemKind(
         500, "Internal error", "An unexpected error; this is a bug, please report it with the request id."
     ),
+    # Written by the front (lagwise serve) for what never reaches a worker, or a worker lost mid-request.
+    **{kind: ProblemKind(*entry) for kind, entry in FRONT_KINDS.items()},
 }
 
 
@@ -72,16 +75,28 @@ class Problem(Exception):
         :data:`MAX_LISTED_ERRORS` are sent, and ``errors_omitted`` counts the rest.
     omitted : int
         Further problems known but not in ``errors`` (e.g. list elements left unchecked).
+    headers : dict, optional
+        Response header fields that go with it (e.g. ``Allow`` for a 405).
     extra : dict, optional
         Further members (e.g. the limit's name and value).
     """
 
-    def __init__(self, kind: str, detail: str, errors: list[dict] | None = None, *, omitted: int = 0, **extra):
+    def __init__(
+        self,
+        kind: str,
+        detail: str,
+        errors: list[dict] | None = None,
+        *,
+        omitted: int = 0,
+        headers: dict | None = None,
+        **extra,
+    ):
         super().__init__(detail)
         self.kind = kind
         self.detail = detail
         self.errors = (errors or [])[:MAX_LISTED_ERRORS]
         self.omitted = omitted + max(0, len(errors or []) - MAX_LISTED_ERRORS)
+        self.headers = headers or {}
         self.extra = extra
 
 
@@ -102,7 +117,7 @@ def problem_response(problem: Problem) -> Response:
         document["errors_omitted"] = problem.omitted
     document.update(problem.extra)
     REFUSALS.labels(problem.kind).inc()
-    return Response(dumps(document), status=kind.status, mimetype=PROBLEM_MEDIA_TYPE)
+    return Response(dumps(document), status=kind.status, mimetype=PROBLEM_MEDIA_TYPE, headers=problem.headers)
 
 
 def from_invalid_input(exc: InvalidInput) -> Problem:
@@ -134,9 +149,14 @@ def register_error_handlers(app: Flask) -> None:
         if kind is None:
             return problem_response(Problem("internal-error", exc.description or "unexpected HTTP error"))
         detail = KINDS[kind].description
+        headers = {}
         if kind == "body-too-large":
             detail = f"The body exceeds the limit of {app.config['MAX_CONTENT_LENGTH']} bytes (LAGWISE_MAX_BODY_BYTES)."
-        return problem_response(Problem(kind, detail))
+        if isinstance(exc, MethodNotAllowed) and exc.valid_methods:
+            allowed = ", ".join(sorted(exc.valid_methods))
+            headers["Allow"] = allowed
+            detail = f"{request.method} is not allowed on {request.path}; allowed: {allowed}."
+        return problem_response(Problem(kind, detail, headers=headers))
 
     def unexpected(exc: Exception) -> Response:
         logger().exception("unhandled error", extra={"request_id": request_id(), "path": request.path})

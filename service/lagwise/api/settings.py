@@ -1,29 +1,8 @@
-"""Service configuration: ``LAGWISE_*`` environment variables and their defaults.
+"""Service settings resolved from the ``LAGWISE_*`` environment variables.
 
-=============================  ==========  ==============================================
-variable                       default     meaning
-=============================  ==========  ==============================================
-LAGWISE_MAX_BODY_BYTES         67108864    largest request body (64 MiB); larger -> 413
-LAGWISE_MAX_SAMPLES            200000      samples per request
-LAGWISE_MAX_PAIRS              2000000000  pairs within the search radius x direction classes
-LAGWISE_MAX_MEDIAN_PAIRS       5000000     differences held for the median-based estimator
-LAGWISE_MAX_SCATTER_PAIRS      100000      pairs returned for one h-scattergram
-LAGWISE_MAX_MAP_CELLS          201         cells per side of a variogram map
-LAGWISE_MAX_UNIQUE_SAMPLES     10000       samples for kriging with the unique neighbourhood
-LAGWISE_MAX_TARGETS            2000000     prediction targets per request
-LAGWISE_MAX_KRIGING_FLOPS      2e13        estimated floating-point work of one request's kriging
-LAGWISE_MEMORY_BUDGET_BYTES    268435456   working memory of one request's largest arrays (256 MiB):
-                                           batched kriging solves are cut to fit it; unique-
-                                           neighbourhood matrices beyond it are refused
-LAGWISE_THREADS                cores/workers  compute threads per worker process
-LAGWISE_DEADLINE_SECONDS       60          time budget of one request; past it -> 503
-LAGWISE_API_KEYS               (none)      comma-separated SHA-256 hex digests of API keys
-LAGWISE_API_KEYS_FILE          (none)      file of SHA-256 hex digests, one per line (# comments)
-LAGWISE_CORS_ORIGINS           (none)      comma-separated origins allowed by CORS (off when empty)
-LAGWISE_METRICS_BIND           (none)      serve /metrics on this address instead (gunicorn master)
-=============================  ==========  ==============================================
-
-With no API key digest configured, the service is open (for a private network).
+The variables, their defaults and meanings are listed once, in
+:mod:`lagwise.configuration` (the README's table is generated from it). With no API
+key digest configured, the service is open (for a private network).
 """
 
 from __future__ import annotations
@@ -32,27 +11,15 @@ import os
 from collections.abc import Mapping
 from dataclasses import dataclass, field, fields
 
+from ..configuration import value, whole_number
 from ..core.limits import Limits
 
-DEFAULT_MAX_BODY_BYTES = 64 * 1024 * 1024
-
-
-def _int_env(env: Mapping[str, str], name: str, default: int) -> int:
-    raw = env.get(name)
-    if raw is None or raw == "":
-        return default
-    try:
-        value = int(float(raw))
-    except ValueError as exc:
-        raise ValueError(f"{name} must be a whole number, got {raw!r}") from exc
-    if value < 1:
-        raise ValueError(f"{name} must be at least 1, got {raw!r}")
-    return value
+DEFAULT_MAX_BODY_BYTES = int(value("LAGWISE_MAX_BODY_BYTES", {}))
 
 
 def _digests(env: Mapping[str, str]) -> frozenset[str]:
-    entries = [d for d in env.get("LAGWISE_API_KEYS", "").split(",")]
-    path = env.get("LAGWISE_API_KEYS_FILE")
+    entries = value("LAGWISE_API_KEYS", env).split(",")
+    path = value("LAGWISE_API_KEYS_FILE", env)
     if path:
         with open(path, encoding="utf-8") as handle:
             entries += [line.split("#", 1)[0] for line in handle]
@@ -65,7 +32,7 @@ def _digests(env: Mapping[str, str]) -> frozenset[str]:
 
 @dataclass(frozen=True)
 class Settings:
-    """Resolved service settings (see the module table)."""
+    """Resolved service settings (see :mod:`lagwise.configuration` for the variables)."""
 
     max_body_bytes: int = DEFAULT_MAX_BODY_BYTES
     limits: Limits = field(default_factory=Limits)
@@ -78,15 +45,12 @@ class Settings:
     def from_env(cls, env: Mapping[str, str] | None = None) -> Settings:
         """Read the ``LAGWISE_*`` variables (``os.environ`` by default)."""
         env = os.environ if env is None else env
-        defaults = Limits()
-        limit_values = {
-            f.name: _int_env(env, f"LAGWISE_{f.name.upper()}", getattr(defaults, f.name)) for f in fields(Limits)
-        }
+        limit_values = {f.name: whole_number(f"LAGWISE_{f.name.upper()}", env) for f in fields(Limits)}
         return cls(
-            max_body_bytes=_int_env(env, "LAGWISE_MAX_BODY_BYTES", DEFAULT_MAX_BODY_BYTES),
+            max_body_bytes=whole_number("LAGWISE_MAX_BODY_BYTES", env),
             limits=Limits(**limit_values),
-            deadline_seconds=float(_int_env(env, "LAGWISE_DEADLINE_SECONDS", 60)),
+            deadline_seconds=float(whole_number("LAGWISE_DEADLINE_SECONDS", env)),
             api_key_digests=_digests(env),
-            cors_origins=frozenset(o.strip() for o in env.get("LAGWISE_CORS_ORIGINS", "").split(",") if o.strip()),
-            metrics_on_main_listener=not env.get("LAGWISE_METRICS_BIND"),
+            cors_origins=frozenset(o.strip() for o in value("LAGWISE_CORS_ORIGINS", env).split(",") if o.strip()),
+            metrics_on_main_listener=not value("LAGWISE_METRICS_BIND", env),
         )

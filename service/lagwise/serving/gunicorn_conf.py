@@ -1,16 +1,18 @@
-"""gunicorn configuration for Lagwise (CPU-bound, pure requests).
+"""gunicorn settings and hooks for Lagwise (CPU-bound, pure requests).
 
-Environment variables (defaults in brackets):
-LAGWISE_BIND [127.0.0.1:8750], LAGWISE_WORKERS [cores], LAGWISE_THREADS [cores / workers,
-at least 1: compute threads per worker], LAGWISE_DEADLINE_SECONDS [60: in-app time budget;
-the worker timeout sits 30 s above it], LAGWISE_MAX_REQUESTS [2000: worker recycling],
-LAGWISE_TRUSTED_PROXIES [127.0.0.1], LAGWISE_METRICS_BIND [none: serve /metrics on the
-main listener], PROMETHEUS_MULTIPROC_DIR [a fresh temporary folder].
+Load it as ``gunicorn --config python:lagwise.serving.gunicorn_conf 'lagwise.api:create_app()'``
+(it ships inside the package, so an installed wheel has it). ``lagwise serve`` runs gunicorn
+behind the front (:mod:`lagwise.serving.front`) and gives it a private Unix socket and control
+socket on the command line, which win over ``bind`` and ``control_socket`` below. The
+``LAGWISE_*`` variables read here are listed in :mod:`lagwise.configuration`;
+``PROMETHEUS_MULTIPROC_DIR`` defaults to a fresh temporary folder.
 """
 
 import os
 import shutil
 import tempfile
+
+from lagwise.configuration import value, whole_number
 
 # BLAS threads are pinned to 1 per worker before numpy is imported anywhere:
 # workers x compute threads must not exceed the cores.
@@ -23,22 +25,25 @@ if not os.environ.get("PROMETHEUS_MULTIPROC_DIR"):
 _metrics_dir = os.environ["PROMETHEUS_MULTIPROC_DIR"]
 
 _cores = os.cpu_count() or 1
-bind = os.environ.get("LAGWISE_BIND", "127.0.0.1:8750")
-workers = int(os.environ.get("LAGWISE_WORKERS", _cores))
+bind = value("LAGWISE_BIND")
+workers = whole_number("LAGWISE_WORKERS", fallback=_cores)
 worker_class = "sync"
-timeout = int(float(os.environ.get("LAGWISE_DEADLINE_SECONDS", 60))) + 30
-graceful_timeout = int(os.environ.get("LAGWISE_GRACEFUL_SECONDS", 90))
+timeout = whole_number("LAGWISE_DEADLINE_SECONDS") + 30
+graceful_timeout = whole_number("LAGWISE_GRACEFUL_SECONDS")
 keepalive = 5
-max_requests = int(os.environ.get("LAGWISE_MAX_REQUESTS", 2000))
+max_requests = whole_number("LAGWISE_MAX_REQUESTS")
 max_requests_jitter = max(1, max_requests // 10)
 worker_tmp_dir = "/dev/shm" if os.path.isdir("/dev/shm") else None
-forwarded_allow_ips = os.environ.get("LAGWISE_TRUSTED_PROXIES", "127.0.0.1")
+forwarded_allow_ips = value("LAGWISE_TRUSTED_PROXIES")
 accesslog = None
 errorlog = "-"
-loglevel = os.environ.get("LAGWISE_LOG_LEVEL", "info").lower()
+loglevel = value("LAGWISE_LOG_LEVEL").lower()
 limit_request_line = 8190
 limit_request_fields = 100
-threads_per_worker = int(os.environ.get("LAGWISE_THREADS", max(1, _cores // max(workers, 1))))
+threads_per_worker = whole_number("LAGWISE_THREADS", fallback=max(1, _cores // max(workers, 1)))
+# gunicorn's default control socket is one per user (in the home folder): every instance would
+# share it, and stopping one would delete it for the others. This one belongs to this master.
+control_socket = os.path.join(tempfile.gettempdir(), f"lagwise-gunicorn-{os.getpid()}.ctl")
 
 
 def on_starting(server):
@@ -54,10 +59,11 @@ def on_starting(server):
 
 def when_ready(server):
     """Serve /metrics on a separate listener when LAGWISE_METRICS_BIND is set."""
-    address = os.environ.get("LAGWISE_METRICS_BIND")
+    address = value("LAGWISE_METRICS_BIND")
     if address:
-        from lagwise.api.observability import metrics_registry
         from prometheus_client import start_http_server
+
+        from lagwise.api.observability import metrics_registry
 
         host, _, port = address.rpartition(":")
         start_http_server(int(port), addr=host or "127.0.0.1", registry=metrics_registry())
@@ -66,6 +72,7 @@ def when_ready(server):
 def post_fork(server, worker):
     """Set this worker's compute threads and run the kernels once, so requests never compile."""
     import numba
+
     from lagwise.core.warmup import warm_kernels
 
     numba.set_num_threads(min(threads_per_worker, numba.config.NUMBA_NUM_THREADS))
@@ -74,8 +81,9 @@ def post_fork(server, worker):
 
 def child_exit(server, worker):
     """Fold a dead worker's live gauges away and count the restart."""
-    from lagwise.api.observability import WORKER_RESTARTS
     from prometheus_client import multiprocess
+
+    from lagwise.api.observability import WORKER_RESTARTS
 
     multiprocess.mark_process_dead(worker.pid)
     WORKER_RESTARTS.inc()
