@@ -60,7 +60,8 @@ def _limit_meaning(name: str) -> str:
     if match is None:
         return "cost limit checked before work (422 `limit-exceeded` above it)"
     text = " ".join(line.strip() for line in match.group(1).splitlines())
-    text = re.sub(r",?\s*``LAGWISE_[A-Z_]+``;?\s*", "", text)
+    text = re.sub(r",\s*``LAGWISE_[A-Z_]+``", "", text)
+    text = re.sub(r"``LAGWISE_[A-Z_]+``[;,]?\s*", "", text)
     text = re.sub(r"\s*\(\)", "", text).replace("``", "`").rstrip(".")
     return text[0].lower() + text[1:]
 
