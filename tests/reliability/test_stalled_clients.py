@@ -51,7 +51,8 @@ def _post(url: str, body: bytes, headers: dict | None = None):
         with urllib.request.urlopen(request, timeout=120) as answer:
             return answer.status, answer.headers, json.load(answer)
     except urllib.error.HTTPError as error:
-        return error.code, error.headers, json.load(error)
+        with error:
+            return error.code, error.headers, json.load(error)
 
 
 def _heavy_body(n: int, seed: int) -> bytes:
@@ -207,10 +208,12 @@ def test_method_not_allowed_names_the_allowed_methods(service):
         urllib.request.urlopen(request, timeout=10)
     assert raised.value.code == 405
     assert set(raised.value.headers["Allow"].replace(" ", "").split(",")) >= {"GET", "HEAD"}
-    assert json.load(raised.value)["type"] == "/problems/method-not-allowed"
+    with raised.value:
+        assert json.load(raised.value)["type"] == "/problems/method-not-allowed"
     request = urllib.request.Request(service + URL, method="GET")
     with pytest.raises(urllib.error.HTTPError) as raised:
         urllib.request.urlopen(request, timeout=10)
+    raised.value.close()
     assert raised.value.code == 405 and "POST" in raised.value.headers["Allow"]
 
 
