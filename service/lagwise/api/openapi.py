@@ -199,7 +199,7 @@ def build_spec() -> APISpec:
         {
             "type": "http",
             "scheme": "bearer",
-            "description": "An API key, when the deployment configures keys (LAGWISE_API_KEY_DIGESTS): Authorization: Bearer <key>.",
+            "description": "An API key, when the deployment configures keys (LAGWISE_API_KEYS or LAGWISE_API_KEYS_FILE): Authorization: Bearer <key>.",
         },
     )
     spec.components.header("RequestId", {"description": REQUEST_ID_DOC, "schema": {"type": "string"}})
