@@ -56,7 +56,10 @@ def _raw_body(limit: int) -> bytes:
     blocks: list[bytes] = []
     total = 0
     while True:
-        block = stream.read(READ_BLOCK)
+        try:
+            block = stream.read(READ_BLOCK)
+        except Exception as exc:  # the server's de-chunking: e.g. an invalid chunk size
+            raise Problem("malformed-json", f"the chunked body cannot be read: {exc}") from None
         if not block:
             return b"".join(blocks)
         total += len(block)

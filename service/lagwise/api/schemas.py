@@ -302,7 +302,11 @@ class ExperimentalClassInput(Schema):
     # Magnitudes are bounded so that weighted squared residuals stay within the float range;
     # counts are held as 64-bit integers.
     mean_distance = finite(allow_none=True, required=True, validate=validate.Range(min=0, max=PLAUSIBLE))
-    value = finite(allow_none=True, required=True, validate=validate.Range(min=-PLAUSIBLE, max=PLAUSIBLE))
+    value = finite(
+        allow_none=True,
+        required=True,
+        validate=validate.Range(min=0, max=PLAUSIBLE, error="semivariances cannot be negative (at most {max})"),
+    )
     pairs = fields.Integer(required=True, validate=validate.Range(min=0, max=2**62))
     standard_error = finite(
         allow_none=True,

@@ -25,6 +25,8 @@ from .geographic import ACCURATE_SPAN_M, LocalProjection, centroid
 
 COORDINATE_SYSTEMS = ("planar", "geographic")
 DUPLICATE_POLICIES = ("average", "first", "reject")
+MAX_SPREAD = 1e150
+MIN_SPREAD = 1e-150
 
 PointerFor = Callable[[str, int | None], str]
 
@@ -157,6 +159,45 @@ def _check_columns(x, y, z, values, ids, coordinates, pointer_for) -> None:
             issues.append(FieldIssue(pointer_for("x", int(i)), "longitude must lie in [-180, 180] degrees"))
     if issues:
         raise InvalidInput(issues)
+    _check_scale(x, y, z, values, pointer_for)
+
+
+def _check_scale(x, y, z, values, pointer_for) -> None:
+    """Refuse spreads whose squares leave float64: pair statistics square differences.
+
+    Values spread over more than :data:`MAX_SPREAD` give squared differences that
+    overflow; values that differ, but by less than :data:`MIN_SPREAD`, give squared
+    differences that underflow to 0 (they would look constant). Coordinates spread
+    over more than :data:`MAX_SPREAD` overflow squared distances.
+    """
+    issues = []
+    spread = float(np.ptp(values))
+    if spread > MAX_SPREAD or 0.0 < spread < MIN_SPREAD:
+        where = int(np.argmax(values))
+        size = "more" if spread > MAX_SPREAD else "less"
+        issues.append(
+            FieldIssue(
+                pointer_for("values", where),
+                f"values span {spread:.3g} ({size} than the {MAX_SPREAD if size == 'more' else MIN_SPREAD:g} "
+                "whose squares float64 can hold); rescale the values (another unit)",
+            )
+        )
+    for name, column in (("x", x), ("y", y), ("z", z)):
+        if column is not None and float(np.ptp(column)) > MAX_SPREAD:
+            issues.append(
+                FieldIssue(
+                    pointer_for(name, int(np.argmax(np.abs(column)))),
+                    f"coordinates span more than {MAX_SPREAD:g}, whose squared distances overflow; use another unit",
+                )
+            )
+    if issues:
+        raise InvalidInput(issues)
+
+
+def _normalise_degrees(lon: np.ndarray, lat: np.ndarray) -> np.ndarray:
+    """One longitude per place: -180 becomes 180, and the poles take longitude 0."""
+    lon = np.where(lon == -180.0, 180.0, lon)
+    return np.where(np.abs(lat) == 90.0, 0.0, lon)
 
 
 def _resolve_duplicates(coords, values, ids, policy, pointer_for):
@@ -250,8 +291,9 @@ def build_sample_set(
         )
     projection = None
     if coordinates == "geographic":
-        projection = centroid(x, y)
-        px, py = projection.forward(x, y)
+        lon = _normalise_degrees(x, y)
+        projection = centroid(lon, y)
+        px, py = projection.forward(lon, y)
         columns = [px, py] + ([z] if z is not None else [])
     else:
         columns = [c for c in (x, y, z) if c is not None]

@@ -7,7 +7,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ..data.samples import SampleSet
+from ..data.samples import MAX_SPREAD, SampleSet
 from ..errors import FieldIssue, InvalidInput, LimitExceeded
 from ..limits import Limits
 from ..modelling.models import VariogramModel
@@ -84,6 +84,21 @@ def _project(samples: SampleSet, targets: np.ndarray) -> np.ndarray:
     return np.column_stack([x, y] + ([targets[:, 2]] if targets.shape[1] == 3 else []))
 
 
+def _check_reach(samples: SampleSet, points: np.ndarray, on_grid: bool) -> None:
+    """Refuse targets so far from the samples that squared separations overflow float64."""
+    centre = 0.5 * (samples.coords.min(axis=0) + samples.coords.max(axis=0))
+    with np.errstate(over="ignore", invalid="ignore"):
+        far = ~(np.abs(points - centre) <= MAX_SPREAD).all(axis=1)
+    if far.any():
+        first = int(np.flatnonzero(far)[0])
+        pointer = "/grid" if on_grid else f"/targets/x/{first}"
+        raise InvalidInput.at(
+            pointer,
+            f"target {first} lies more than {MAX_SPREAD:g} coordinate units from the samples, "
+            "where squared separations overflow; move it nearer",
+        )
+
+
 def _check_cost(samples: SampleSet, m: int, neighbourhood: Neighbourhood, spec: KrigingSpec, limits: Limits) -> None:
     limits.check_samples(samples.size)
     if m > limits.max_targets:
@@ -133,6 +148,8 @@ def predict(
         raise InvalidInput.at("/return_weights", f"target index {bad[0]} is outside 0..{m - 1}")
     if grid is not None:
         points = grid.points()
+    projected = _project(samples, points)
+    _check_reach(samples, projected, grid is not None)
     kriger = Kriger(
         samples,
         model,
@@ -141,5 +158,5 @@ def predict(
         max_unique=limits.max_unique_samples,
         memory_budget=limits.memory_budget_bytes,
     )
-    prediction = kriger.predict(_project(samples, points), weights_for=tuple(weights_for), workers=workers)
+    prediction = kriger.predict(projected, weights_for=tuple(weights_for), workers=workers)
     return PredictionResult(points, prediction, grid)

@@ -110,6 +110,13 @@ def validate_direction(raw: DirectionClass, index: int, dimension: int) -> tuple
     return resolved, warnings
 
 
+def _square(bandwidth: float | None) -> float:
+    """A band's square; no band, or one too wide to square in float64 (no limit either way), is infinite."""
+    if bandwidth is None or bandwidth > 1e150:
+        return math.inf
+    return bandwidth * bandwidth
+
+
 def direction_table(directions: list[DirectionClass]) -> np.ndarray:
     """Pack direction classes into the float64 table read by the pair kernels.
 
@@ -121,7 +128,7 @@ def direction_table(directions: list[DirectionClass]) -> np.ndarray:
         az, dip = math.radians(d.azimuth), math.radians(d.dip)
         table[k, UX], table[k, UY] = math.sin(az), math.cos(az)
         table[k, COS_TOL] = math.cos(math.radians(d.tolerance)) - 1e-12
-        table[k, BAND2] = math.inf if d.bandwidth is None else d.bandwidth**2
+        table[k, BAND2] = _square(d.bandwidth)
         table[k, HAS_DIP] = 1.0 if d.dip_tolerance < 90.0 else 0.0
         table[k, DIP], table[k, DIP_TOL] = dip, math.radians(d.dip_tolerance) + 1e-12
         table[k, WX], table[k, WY], table[k, WZ] = (
@@ -129,7 +136,7 @@ def direction_table(directions: list[DirectionClass]) -> np.ndarray:
             math.cos(az) * math.sin(dip),
             math.cos(dip),
         )
-        table[k, VBAND2] = math.inf if d.vertical_bandwidth is None else d.vertical_bandwidth**2
+        table[k, VBAND2] = _square(d.vertical_bandwidth)
         # Squared cosine for the fast kernel's test proj^2 >= |h|^2 cos^2 (0 admits every pair).
         table[k, COS2_TOL] = table[k, COS_TOL] ** 2 if table[k, COS_TOL] > 0.0 else 0.0
     return table

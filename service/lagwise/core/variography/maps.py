@@ -25,7 +25,7 @@ import numpy as np
 from scipy.spatial import ConvexHull, QhullError
 
 from ..data.declustering import Declustering, decluster
-from ..data.samples import SampleSet
+from ..data.samples import MAX_SPREAD, SampleSet
 from ..data.spacing import typical_spacing
 from ..data.summary import Summary, summarise
 from ..errors import FieldIssue, InvalidInput
@@ -102,6 +102,8 @@ def _validate(samples, cell_size, cells, statistic, limits):
         issues.append(FieldIssue("/samples/y", "a variogram map needs 2-D or 3-D samples"))
     if not (cell_size > 0 and math.isfinite(cell_size)):
         issues.append(FieldIssue("/cell_size", "must be a positive distance"))
+    elif cell_size * (cells + 0.5) > MAX_SPREAD:
+        issues.append(FieldIssue("/cell_size", f"the map would reach beyond {MAX_SPREAD:g}, whose squares overflow"))
     top = (limits.max_map_cells - 1) // 2
     if not 1 <= cells <= top:
         issues.append(FieldIssue("/cells", f"must be a whole number from 1 to {top} (LAGWISE_MAX_MAP_CELLS)"))
