@@ -38,7 +38,7 @@ def render(result, samples, document: dict) -> dict:
     labels = labels_for(document, samples, result.transform.kind)
     where = _map_coordinates(samples)
     experimental = result.directional or result.omnidirectional
-    model = result.fit.best.model
+    model = result.model
     prediction = result.prediction
     out = {}
     for name in names:

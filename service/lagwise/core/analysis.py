@@ -80,6 +80,11 @@ class Analysis:
     warnings: tuple[str, ...] = field(default=())
     verdict: str = ""
 
+    @property
+    def model(self):
+        """The variogram model the cross-validation and the map used (working units)."""
+        return self.fit.best.model
+
 
 def _neighbourhood(options: AnalysisOptions, samples: SampleSet) -> Neighbourhood:
     if options.neighbourhood is not None:
