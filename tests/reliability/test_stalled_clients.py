@@ -138,6 +138,12 @@ def _children(pid: int) -> list[int]:
     return [int(p) for p in path.read_text().split()] if path.exists() else []
 
 
+def _cpu_seconds(pid: int) -> float:
+    """User and system CPU time of a process, seconds (proc(5): fields 14 and 15, in clock ticks)."""
+    fields = Path(f"/proc/{pid}/stat").read_text().rsplit(")", 1)[1].split()
+    return (int(fields[11]) + int(fields[12])) / os.sysconf("SC_CLK_TCK")
+
+
 def _instance_pid(port: int) -> int:
     """The ``lagwise serve`` process listening on this port."""
     for cmdline in Path("/proc").glob("[0-9]*/cmdline"):
@@ -154,10 +160,14 @@ def test_a_worker_killed_mid_request_gives_a_problem(service):
     port = urlparse(service).port
     outcome: list = []
     thread = threading.Thread(target=lambda: outcome.append(_post(service, _heavy_body(15_000, 3))))
-    thread.start()
-    time.sleep(1.5)
     workers = [w for master in _children(_instance_pid(port)) for w in _children(master)]
     assert len(workers) == 2
+    idle = {w: _cpu_seconds(w) for w in workers}
+    thread.start()
+    # Kill only once a worker is computing this request (0.5 s of CPU time more than at rest).
+    deadline = time.monotonic() + 60
+    while max(_cpu_seconds(w) - idle[w] for w in workers) < 0.5 and time.monotonic() < deadline:
+        time.sleep(0.1)
     for worker in workers:
         os.kill(worker, signal.SIGKILL)
     thread.join()
