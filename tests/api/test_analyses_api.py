@@ -20,8 +20,9 @@ def demo():
 
 @pytest.mark.parametrize("transform", ["none", "log"])
 def test_analysis_equals_the_separate_endpoints(client, demo, transform):
-    """The analysis result equals the sequence of separate endpoint calls (same numbers)."""
-    doc = client.post(URL, json={"samples": demo, "transform": transform}).json
+    """With one strategy (no comparison), the analysis equals the separate endpoint calls (same numbers)."""
+    single = {"fit": {"compare": False, "anisotropy": "none"}, "cross_validation": {"kriging": {"type": "ordinary"}}}
+    doc = client.post(URL, json={"samples": demo, "transform": transform, **single}).json
     values = np.log(demo["values"]).tolist() if transform == "log" else demo["values"]
     samples = {**demo, "values": values}
     experimental = client.post("/v1/experimental-variograms", json={"samples": samples}).json
@@ -57,6 +58,7 @@ def test_figures(client, demo):
         json={
             "samples": demo,
             "figures": ["variogram", "variogram_map", "cross_validation"],
+            "fit": {"anisotropy": "none"},
             "prediction": {"grid": {"origin": [0, 0], "spacing": [100, 100], "shape": [9, 6]}},
         },
     ).json
@@ -142,7 +144,8 @@ def test_grid_too_large(small_limits_client):
 
 def test_one_dimensional_analysis_reports_an_unusable_model_instead_of_failing(client):
     """A gaussian structure without nugget on a dense transect makes the kriging matrix singular:
-    the analysis still reports the variogram and the fit, with a warning and no cross-validation."""
+    the analysis still reports the variogram and the fit, with a warning and no cross-validation
+    when it was asked to use that model alone, and falls back to the null otherwise."""
     rng = np.random.default_rng(1)
     x = rng.uniform(0, 100, 80)
     values = np.sin(x / 10) + rng.normal(0, 0.2, 80)
@@ -150,13 +153,23 @@ def test_one_dimensional_analysis_reports_an_unusable_model_instead_of_failing(c
         URL,
         json={
             "samples": {"x": x.tolist(), "values": values.tolist()},
-            "fit": {"families": ["gaussian"], "nugget": "none"},
+            "fit": {"families": ["gaussian"], "nugget": "none", "compare": False},
         },
     ).json
     assert doc["fit"]["model"]["structures"][0]["family"] == "gaussian"
-    assert doc["cross_validation"] is None
-    assert any("kriging was not possible" in w for w in doc["warnings"])
-    assert "could not run" in doc["verdict"]
+    assert doc["cross_validation"] is None and doc["selection"] is None
+    assert any("refused" in w and "condition" in w for w in doc["warnings"])
+    assert doc["verdict"]["level"] == "review" and not doc["verdict"]["usable"]
+    compared = client.post(
+        URL,
+        json={
+            "samples": {"x": x.tolist(), "values": values.tolist()},
+            "fit": {"families": ["gaussian"], "nugget": "none"},
+        },
+    ).json
+    strategies = {s["name"]: s for s in compared["selection"]["strategies"]}
+    assert strategies["isotropic"]["why"].startswith("refused") and strategies["pure_nugget"]["selected"]
+    assert compared["verdict"]["level"] == "review"
 
 
 def test_sectors_need_two_dimensions(client):
@@ -172,5 +185,9 @@ def test_sectors_need_two_dimensions(client):
 def test_constant_values_get_a_plain_verdict(client):
     cols = {"x": list(range(30)), "y": [i % 4 for i in range(30)], "values": [2.0] * 30}
     doc = client.post(URL, json={"samples": cols, "figures": ["variogram"]}).json
-    assert doc["verdict"] == "All values are equal: there is no variation to model or map."
+    assert doc["verdict"] == {
+        "usable": False,
+        "level": "no_structure",
+        "text": "All values are equal: there is no variation to model or map.",
+    }
     assert doc["fit"]["model"] == {"nugget": 0.0, "structures": []}

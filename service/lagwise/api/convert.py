@@ -10,13 +10,14 @@ import numpy as np
 from ..core.analysis import AnalysisOptions
 from ..core.data.declustering import decluster
 from ..core.data.samples import SampleSet, build_sample_set, columnar_pointer, input_hash
-from ..core.errors import FieldIssue, InvalidInput
+from ..core.errors import FieldIssue, InvalidInput, pointers_under
 from ..core.kriging.cross_validation import Scheme
 from ..core.kriging.neighbourhood import Neighbourhood
 from ..core.kriging.prediction import Grid
 from ..core.kriging.systems import KrigingSpec
 from ..core.modelling.fitting import SEMIVARIANCE_STATISTICS, points_from_rows
 from ..core.modelling.models import FAMILIES, Anisotropy, Structure, VariogramModel
+from ..core.stages import CrossValidationOptions, FitOptions, PredictionOptions, VariogramOptions
 from ..core.variography.directions import DirectionClass
 from ..core.variography.experimental import ScatterRequest
 from ..core.variography.lags import LagRequest
@@ -282,31 +283,39 @@ def grid(document: dict) -> Grid | None:
     return Grid(tuple(raw["origin"]), tuple(raw["spacing"]), tuple(raw["shape"]))
 
 
+def _stage_model(fit: dict) -> VariogramModel | None:
+    if "model" not in fit:
+        return None
+    with pointers_under("/fit"):
+        return variogram_model(fit)
+
+
 def analysis_options(document: dict) -> AnalysisOptions:
     """The analysis stages' options (defaults filled in by the schema)."""
     stage = document["variogram"]
     directions = stage.get("directions")
     if isinstance(directions, list):
-        directions = [DirectionClass(**d) for d in directions]
-    cv = document["cross_validation"]
-    staged = {
-        "model": {"nugget": 0.0, "structures": []},
-        "kriging": cv["kriging"],
-        "neighbourhood": cv["neighbourhood"],
-        "scheme": cv["scheme"],
-    }
+        directions = tuple(DirectionClass(**d) for d in directions)
+    fit, cv = document["fit"], document["cross_validation"]
+    staged = {"neighbourhood": cv["neighbourhood"], "scheme": cv["scheme"]}
     prediction = document.get("prediction")
     return AnalysisOptions(
         transform=document["transform"],
-        lags=lag_request(stage),
-        directions=directions,
-        statistic=stage["statistic"],
-        min_pairs=stage["min_pairs"],
-        families=document["fit"]["families"],
-        nugget=document["fit"]["nugget"],
-        weighting=document["fit"]["weighting"],
-        kriging=kriging_spec(staged),
-        neighbourhood=neighbourhood(staged) if cv["neighbourhood"] is not None else None,
-        scheme=scheme(staged),
-        grid=grid(prediction) if prediction else None,
+        variogram=VariogramOptions(
+            lags=lag_request(stage), directions=directions, statistic=stage["statistic"], min_pairs=stage["min_pairs"]
+        ),
+        fit=FitOptions(
+            families=fit["families"] if fit["families"] == "auto" else tuple(fit["families"]),
+            nugget=fit["nugget"],
+            weighting=fit["weighting"],
+            anisotropy=fit["anisotropy"],
+            model=_stage_model(fit),
+            compare=fit["compare"],
+        ),
+        cross_validation=CrossValidationOptions(
+            kriging=None if cv["kriging"] == "auto" else kriging_spec(cv),
+            neighbourhood=neighbourhood(staged) if cv["neighbourhood"] is not None else None,
+            scheme=scheme(staged),
+        ),
+        prediction=PredictionOptions(grid(prediction)) if prediction else None,
     )

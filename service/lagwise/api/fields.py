@@ -187,6 +187,21 @@ def by_discriminator(member: str, names: tuple[str, ...]) -> Callable[[dict], st
     return pick
 
 
+class AutoOrNested(fields.Field):
+    """Either ``"auto"`` or an object validated by a nested schema (e.g. the kriging options)."""
+
+    def __init__(self, nested, **kwargs):
+        super().__init__(**kwargs)
+        self.nested_field = fields.Nested(nested)
+
+    def _deserialize(self, value, attr, data, **kwargs):
+        if value == "auto":
+            return "auto"
+        if not isinstance(value, dict):
+            raise ValidationError('must be "auto" or an object')
+        return self.nested_field.deserialize(value, attr, data, **kwargs)
+
+
 # ---- apispec attribute functions (bound to the converter: ``self.resolve_nested_schema``) ----
 
 
@@ -224,6 +239,13 @@ def choice_properties(self, field, **kwargs) -> dict:
                     "maxItems": field.max_length,
                     "items": self.resolve_nested_schema(field.nested),
                 },
+            ]
+        }
+    if isinstance(field, AutoOrNested):
+        return {
+            "oneOf": [
+                {"type": "string", "enum": ["auto"]},
+                self.resolve_nested_schema(field.nested_field.nested),
             ]
         }
     return {}

@@ -263,22 +263,14 @@ def analyses():
     document = load_json(AnalysisRequest())
     samples = convert.sample_set(document)
     options = replace(convert.analysis_options(document), with_map="variogram_map" in document["figures"])
-    if options.grid is not None and samples.dimension != 2:
-        raise Problem(
-            "invalid-input",
-            "prediction grids need 2-D samples",
-            [{"pointer": "/prediction/grid", "detail": "needs 2-D samples"}],
-        )
     result = analyse(samples, options, limits=settings().limits, workers=numba.get_num_threads())
     figures = render(result, samples, document)
     body = serialize.analysis(
         result,
         samples,
         figures,
+        options,
         {
-            "families": options.families,
-            "kriging": options.kriging,
-            "scheme": options.scheme,
             "figure_format": document["figure_format"],
             "figure_size": document["figure_size"],
             "figure_colour_scale": document["figure_colour_scale"],

@@ -23,10 +23,22 @@ from ..core.kriging.systems import DRIFTS, KRIGING_TYPES, NUGGET_ROLES
 from ..core.modelling.families import ANISOTROPY, FAMILIES, NUGGET, UNIT_KINDS, Family, Parameter
 from ..core.modelling.fitting import SEMIVARIANCE_STATISTICS, WEIGHTINGS
 from ..core.modelling.models import Anisotropy
+from ..core.selection import STRATEGY_NAMES
+from ..core.stages import ANISOTROPY_CHOICES
 from ..core.variography.lags import AUTO_METHODS, MAX_CLASSES
 from ..core.variography.statistics import CLASS_REASONS, STATISTICS
+from ..core.verdict import LEVELS as VERDICT_LEVELS
 from ..figures import COLOUR_SCALES, FIGURES, FORMATS
-from .fields import AutoOrList, CappedList, DirectionsOption, NuggetOption, NumberArray, Variants, by_discriminator
+from .fields import (
+    AutoOrList,
+    AutoOrNested,
+    CappedList,
+    DirectionsOption,
+    NuggetOption,
+    NumberArray,
+    Variants,
+    by_discriminator,
+)
 from .problems import KINDS
 
 MAX_DIRECTIONS = 36
@@ -499,10 +511,35 @@ class FitStage(Schema):
     families = AutoOrList(FAMILY_NAMES, load_default="auto")
     nugget = NuggetOption(load_default="fit")
     weighting = one_of(WEIGHTINGS, load_default="pairs")
+    anisotropy = one_of(
+        ANISOTROPY_CHOICES,
+        load_default="auto",
+        metadata={
+            "description": "auto: an anisotropic strategy is compared by cross-validation when a fan of direction "
+            "classes shows a difference in continuity; none; fit: always fitted and compared."
+        },
+    )
+    model = fields.Nested(
+        Model, metadata={"description": "A given model (working units): skips fitting; compared with the null."}
+    )
+    compare = fields.Boolean(
+        load_default=True,
+        metadata={
+            "description": "Compare strategies (pure nugget, isotropic, anisotropic, drift) by cross-validation "
+            "(default); false uses the fitted model alone."
+        },
+    )
 
 
 class CrossValidationStage(Schema):
-    kriging = fields.Nested(KrigingInput, load_default=lambda: {"type": "ordinary", "nugget_as": "micro_scale"})
+    kriging = AutoOrNested(
+        KrigingInput,
+        load_default="auto",
+        metadata={
+            "description": "auto (default): ordinary kriging, or universal kriging with a drift on the residual "
+            "variogram when a trend is significant and wins the cross-validation; or fixed kriging options."
+        },
+    )
     neighbourhood = fields.Nested(
         NeighbourhoodInput,
         allow_none=True,
@@ -902,11 +939,48 @@ class AnalysisVariogramSchema(Schema):
     colocated_pairs = fields.Integer()
 
 
+class AnisotropyEstimateSchema(Schema):
+    azimuth = fields.Float(metadata={"description": "Degrees clockwise from north of the longest continuity."})
+    ratio = fields.Float(metadata={"description": "Range across / range along, in (0, 1]."})
+    family = fields.String()
+    supported = fields.Boolean(
+        metadata={"description": "True when the anisotropic strategy won the cross-validation (it is then used)."}
+    )
+    why = fields.String()
+    method = fields.String()
+
+
 @always_present()
 class AnalysisExperimentalSchema(Schema):
     omnidirectional = fields.Nested(AnalysisVariogramSchema)
     directional = fields.Nested(AnalysisVariogramSchema, allow_none=True)
-    anisotropy = fields.Dict(allow_none=True)
+    residual = fields.Nested(
+        AnalysisVariogramSchema,
+        allow_none=True,
+        metadata={"description": "Variogram of the residuals from the drift (when a drift strategy was tried)."},
+    )
+    anisotropy = fields.Nested(AnisotropyEstimateSchema, allow_none=True)
+
+
+class StrategySchema(Schema):
+    name = fields.String(validate=validate.OneOf(STRATEGY_NAMES))
+    model = fields.Nested(Model)
+    kriging = fields.Dict()
+    statistics = fields.Nested(CrossValidationStatisticsSchema, allow_none=True)
+    selected = fields.Boolean()
+    why = fields.String()
+
+
+class SelectionSchema(Schema):
+    strategies = fields.List(fields.Nested(StrategySchema))
+    reason = fields.String()
+    rule = fields.String()
+
+
+class VerdictSchema(Schema):
+    usable = fields.Boolean(metadata={"description": "The map and its intervals can be used as they are."})
+    level = fields.String(validate=validate.OneOf(VERDICT_LEVELS))
+    text = fields.String()
 
 
 @always_present()
@@ -945,7 +1019,8 @@ class AnalysisResponse(ResultEnvelope):
     cross_validation = fields.Nested(AnalysisCrossValidationSchema, allow_none=True)
     prediction = fields.Nested(AnalysisPredictionSchema, allow_none=True)
     figures = fields.Dict(keys=fields.String(), values=fields.String())
-    verdict = fields.String()
+    selection = fields.Nested(SelectionSchema, allow_none=True)
+    verdict = fields.Nested(VerdictSchema)
 
 
 # ---- problems and small documents ---------------------------------------------------

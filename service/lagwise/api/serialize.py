@@ -2,7 +2,9 @@
 
 from __future__ import annotations
 
+from ..core.analysis import FAN_DESCRIPTION
 from ..core.data.samples import SampleSet
+from ..core.selection import RULE as SELECTION_RULE
 from ..core.variography.experimental import ExperimentalVariogram
 from ..core.variography.maps import VariogramMap
 
@@ -289,8 +291,35 @@ def _experimental_body(result) -> dict:
     }
 
 
-def analysis(result, samples: SampleSet, figures: dict, options: dict) -> dict:
-    """Response body of ``POST /v1/analyses`` (without provenance)."""
+def _strategy(strategy) -> dict:
+    return {
+        "name": strategy.name,
+        "model": strategy.model.as_dict(),
+        "kriging": strategy.kriging.as_dict(),
+        "statistics": strategy.cross_validation.statistics if strategy.cross_validation is not None else None,
+        "selected": strategy.selected,
+        "why": strategy.why,
+    }
+
+
+def _selection(selection) -> dict | None:
+    if selection is None:
+        return None
+    return {
+        "strategies": [_strategy(s) for s in selection.strategies],
+        "reason": selection.reason,
+        "rule": SELECTION_RULE,
+    }
+
+
+def _anisotropy(estimate) -> dict | None:
+    if estimate is None:
+        return None
+    return {**estimate.__dict__, "method": FAN_DESCRIPTION}
+
+
+def analysis(result, samples: SampleSet, figures: dict, options, figure_options: dict) -> dict:
+    """Response body of ``POST /v1/analyses`` (without provenance); ``options`` is the AnalysisOptions."""
     fit_body = model_fit(result.fit, result.omnidirectional.statistic, summary=None, sample_params={}, options={})
     cv = result.cross_validation
     document = {
@@ -299,20 +328,21 @@ def analysis(result, samples: SampleSet, figures: dict, options: dict) -> dict:
         "experimental": {
             "omnidirectional": _experimental_body(result.omnidirectional),
             "directional": _experimental_body(result.directional) if result.directional is not None else None,
-            "anisotropy": None
-            if result.anisotropy is None
-            else {**result.anisotropy.__dict__, "method": "joint fit over 6 direction classes of tolerance 15 degrees"},
+            "residual": _experimental_body(result.residual) if result.residual is not None else None,
+            "anisotropy": _anisotropy(result.anisotropy),
         },
-        "fit": {k: fit_body[k] for k in ("model", "diagnostics", "candidates")},
+        "fit": {**{k: fit_body[k] for k in ("diagnostics", "candidates")}, "model": result.model.as_dict()},
+        "selection": _selection(result.selection),
         "cross_validation": None,
         "prediction": None,
         "figures": figures,
         "warnings": list(result.warnings),
-        "verdict": result.verdict,
+        "verdict": result.verdict.as_dict(),
     }
+    stage = options.cross_validation
     if cv is not None:
         body = cross_validation(
-            cv, samples, result.fit.best.model, options["kriging"], result.neighbourhood, options["scheme"], 2.5
+            cv, samples, result.model, result.kriging, result.neighbourhood, stage.scheme, stage.outlier_threshold
         )
         document["cross_validation"] = {k: body[k] for k in ("statistics", "samples", "assessment", "unestimated")}
     if result.prediction is not None:
@@ -337,20 +367,29 @@ def analysis(result, samples: SampleSet, figures: dict, options: dict) -> dict:
             "lags": lag_parameters(result.omnidirectional),
             "class_uncertainty": uncertainty_parameters(result.omnidirectional),
         },
-        "fit": {"families": options["families"], "nugget": result.fit.nugget, "weighting": result.fit.weighting},
+        "fit": {
+            "families": options.fit.families if options.fit.families == "auto" else list(options.fit.families),
+            "nugget": result.fit.nugget,
+            "weighting": result.fit.weighting,
+            "anisotropy": options.fit.anisotropy,
+            "compare": options.fit.compare,
+            "given_model": options.fit.model is not None,
+        },
         "cross_validation": {
-            "kriging": options["kriging"].as_dict(),
+            "kriging": "auto" if stage.kriging is None else stage.kriging.as_dict(),
+            "kriging_used": result.kriging.as_dict(),
             "neighbourhood": result.neighbourhood.as_dict(),
-            "scheme": options["scheme"].as_dict(),
+            "scheme": stage.scheme.as_dict(),
             "units": "transformed values" if result.transform.kind != "none" else "values",
         },
+        "envelope": result.envelope.as_dict(),
         "prediction_units": "original units (back-transformed)" if result.transform.kind != "none" else "values",
         "figures": list(figures),
-        "figure_format": options.get("figure_format"),
-        "figure_size": options.get("figure_size"),
-        "figure_colour_scale": options.get("figure_colour_scale"),
-        "variable": options.get("variable"),
-        "coordinate_unit": options.get("coordinate_unit"),
-        "thresholds": options.get("thresholds"),
+        "figure_format": figure_options.get("figure_format"),
+        "figure_size": figure_options.get("figure_size"),
+        "figure_colour_scale": figure_options.get("figure_colour_scale"),
+        "variable": figure_options.get("variable"),
+        "coordinate_unit": figure_options.get("coordinate_unit"),
+        "thresholds": figure_options.get("thresholds"),
     }
     return document

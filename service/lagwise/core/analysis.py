@@ -1,14 +1,24 @@
-"""The whole chain in one call: checks, summary, experimental variograms, fit,
-cross-validation and optional predictions, with warnings and a plain-language verdict.
+"""The whole chain in one call, deciding as an expert would when nobody is watching.
 
-Every stage calls the same core functions as the separate endpoints, so its numbers
-are theirs for the same inputs. Variograms, fits and cross-validation run on the
-transformed values (reported in those units); predictions are back-transformed to the
-original units (see :mod:`lagwise.core.data.transforms`).
+1. Every stage's options are validated before any work (:mod:`.stages`).
+2. Transform; omnidirectional experimental variogram; automatic fit.
+3. Strategies (:mod:`.selection`): the pure nugget (null), the isotropic fit, a
+   geometric-anisotropic fit over a fan of direction classes when the fan shows a
+   difference in continuity, and universal kriging on the residual variogram of a
+   linear (and, with enough samples, quadratic) drift when a trend is significant
+   (:mod:`.modelling.trend`). Each is cross-validated; the selection rule picks one.
+4. Predictions with the selected strategy; estimates outside the plausible envelope
+   of the data are withheld (null with a reason), never returned silently.
+5. Warnings and a verdict (:mod:`.verdict`).
+
+Variograms, fits and cross-validation run on the transformed values (reported in
+those units); predictions are back-transformed to the original units (see
+:mod:`lagwise.core.data.transforms`).
 """
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field, replace
 
 import numpy as np
@@ -16,69 +26,93 @@ import numpy as np
 from .data.samples import SampleSet
 from .data.summary import Summary, summarise
 from .data.transforms import Transform, fit_transform
-from .errors import InvalidInput
-from .kriging.cross_validation import CrossValidation, Scheme, cross_validate
+from .errors import InvalidInput, SingularSystem, pointers_under
+from .kriging.cross_validation import CrossValidation, cross_validate
 from .kriging.neighbourhood import Neighbourhood
-from .kriging.prediction import Grid, PredictionResult, predict
+from .kriging.prediction import PredictionResult, predict
 from .kriging.systems import KrigingSpec
 from .limits import Limits
 from .modelling.fitting import FitResult, fit_model, points_from_experimental
+from .modelling.models import Anisotropy as ModelAnisotropy
+from .modelling.models import VariogramModel
+from .modelling.trend import QUADRATIC_MIN_SAMPLES, ResidualModel, TrendTest, residual_model, test_trend
+from .selection import Envelope, Selection, Strategy, null_cross_validation, pure_nugget, screen, select
+from .stages import CrossValidationOptions, FitOptions, PredictionOptions, VariogramOptions, validate_stages
 from .variography.directions import DirectionClass
 from .variography.experimental import ExperimentalVariogram, experimental_variogram
-from .variography.lags import LagRequest
 from .variography.maps import VariogramMap, variogram_map
+from .verdict import Verdict, judge
 
 AUTO_FAN = tuple(DirectionClass(a, 15.0) for a in (0.0, 30.0, 60.0, 90.0, 120.0, 150.0))
+FAN_DESCRIPTION = "joint fit over 6 direction classes of tolerance 15 degrees (azimuths 0, 30, ..., 150)"
+ANISOTROPY_WORTH_TESTING = 0.85
 FEW_SAMPLES = 50
 UNIQUE_UP_TO = 1500
+ORDINARY = KrigingSpec()
+CALIBRATED = (0.67, 1.5)
+CANDIDATES_SCORED = 3
 
 
 @dataclass(frozen=True)
 class AnalysisOptions:
-    """What to run (defaults filled in; see the endpoint's documentation)."""
+    """What to run: the transform and one options object per stage (see :mod:`.stages`)."""
 
     transform: str = "none"
-    lags: LagRequest = LagRequest()
-    directions: list[DirectionClass] | str | None = None
-    statistic: str = "semivariance"
-    min_pairs: int = 30
-    families: str | list[str] = "auto"
-    nugget: str | float = "fit"
-    weighting: str = "pairs"
-    kriging: KrigingSpec = KrigingSpec()
-    neighbourhood: Neighbourhood | None = None
-    scheme: Scheme = Scheme()
-    grid: Grid | None = None
+    variogram: VariogramOptions = VariogramOptions()
+    fit: FitOptions = FitOptions()
+    cross_validation: CrossValidationOptions = CrossValidationOptions()
+    prediction: PredictionOptions | None = None
     with_map: bool = False
 
 
 @dataclass(frozen=True)
 class Anisotropy:
-    """Anisotropy estimated from a fan of direction classes (degrees; ratio in (0, 1])."""
+    """Anisotropy estimated from a fan of direction classes.
+
+    Attributes
+    ----------
+    azimuth : float
+        Degrees clockwise from north of the longest continuity.
+    ratio : float
+        Range across / range along, in (0, 1].
+    family : str
+    supported : bool
+        The anisotropic strategy was selected by cross-validation.
+    why : str
+        The comparison that decided it.
+    """
 
     azimuth: float
     ratio: float
     family: str
+    supported: bool = False
+    why: str = ""
 
 
 @dataclass(frozen=True)
 class Analysis:
-    """Result of :func:`analyse`."""
+    """Result of :func:`analyse` (models and statistics in working units)."""
 
     transform: Transform
     summary: Summary
     transformed_summary: Summary
     omnidirectional: ExperimentalVariogram
     directional: ExperimentalVariogram | None
+    residual: ExperimentalVariogram | None
     anisotropy: Anisotropy | None
+    trend: TrendTest | None
+    selection: Selection | None
     fit: FitResult
+    model: VariogramModel
+    kriging: KrigingSpec
     neighbourhood: Neighbourhood
-    cross_validation: CrossValidation
+    cross_validation: CrossValidation | None
     prediction: PredictionResult | None
     back_transformed: tuple[np.ndarray, np.ndarray] | None
+    envelope: Envelope
     variogram_map: VariogramMap | None = None
     warnings: tuple[str, ...] = field(default=())
-    verdict: str = ""
+    verdict: Verdict = Verdict(False, "review", "")
 
     @property
     def model(self):
@@ -87,181 +121,436 @@ class Analysis:
 
 
 def _neighbourhood(options: AnalysisOptions, samples: SampleSet) -> Neighbourhood:
-    if options.neighbourhood is not None:
-        return options.neighbourhood
+    given = options.cross_validation.neighbourhood
+    if given is not None:
+        return given
     return Neighbourhood() if samples.size <= UNIQUE_UP_TO else Neighbourhood(max_points=24, min_points=4)
 
 
-def _estimate_anisotropy(samples, options, family, limits) -> tuple[ExperimentalVariogram, Anisotropy | None]:
-    fan = experimental_variogram(
-        samples,
-        lags=options.lags,
-        directions=list(AUTO_FAN),
-        statistic=options.statistic,
-        min_pairs=options.min_pairs,
-        limits=limits,
-    )
-    points = points_from_experimental(fan, options.min_pairs)
-    if len(np.unique(points.azimuth[points.usable])) < 2:
+def _variogram(samples: SampleSet, stage: VariogramOptions, limits: Limits, directions=None) -> ExperimentalVariogram:
+    with pointers_under("/variogram"):
+        return experimental_variogram(
+            samples,
+            lags=stage.lags,
+            directions=None if directions is None else list(directions),
+            statistic=stage.statistic,
+            min_pairs=stage.min_pairs,
+            limits=limits,
+        )
+
+
+def _fit(points, samples: SampleSet, stage: FitOptions, variance: float, **overrides) -> FitResult:
+    arguments = {
+        "families": stage.families if stage.families == "auto" else list(stage.families),
+        "nugget": stage.nugget,
+        "weighting": stage.weighting,
+        "structures": stage.structures,
+        **overrides,
+    }
+    with pointers_under("/fit"):
+        return fit_model(points, dimension=samples.dimension, sample_variance=variance, **arguments)
+
+
+def _anisotropic_fit(
+    working: SampleSet, options: AnalysisOptions, isotropic: FitResult, variance: float, limits: Limits
+):
+    """The fan (or the given direction classes) and a joint anisotropic fit of the isotropic winner's form."""
+    stage = options.variogram
+    directions = stage.directions if isinstance(stage.directions, tuple) else AUTO_FAN
+    fan = _variogram(working, stage, limits, directions)
+    points = points_from_experimental(fan, stage.min_pairs)
+    best = isotropic.best.model
+    if len(np.unique(points.azimuth[points.usable])) < 2 or not best.structures:
         return fan, None
-    fit = fit_model(
+    nugget = "fit" if best.nugget > 0 and options.fit.nugget == "fit" else options.fit.nugget
+    families = [s.family for s in best.structures]
+    fit = _fit(
         points,
-        dimension=samples.dimension,
-        families=[family],
-        nugget=options.nugget,
-        weighting=options.weighting,
+        working,
+        options.fit,
+        variance,
+        families=families[:1],
+        nugget=nugget,
         anisotropy="fit",
+        structures=len(families),
+        guarded=True,
     )
-    structure = fit.best.model.structures[0]
-    return fan, Anisotropy(structure.anisotropy.azimuth, structure.anisotropy.ratio, family)
+    return fan, fit
 
 
-def _trend_share(samples: SampleSet) -> float:
-    """R^2 of a linear regression of the values on the coordinates."""
-    design = np.column_stack([np.ones(samples.size), samples.coords - samples.coords.mean(axis=0)])
-    coefficients, *_ = np.linalg.lstsq(design, samples.values, rcond=None)
-    residual = samples.values - design @ coefficients
-    total = np.sum((samples.values - samples.values.mean()) ** 2)
-    return float(1.0 - np.sum(residual**2) / total) if total > 0 else 0.0
+def _cross_validate(model, spec, working, hood, options, limits, workers) -> CrossValidation:
+    stage = options.cross_validation
+    with pointers_under("/cross_validation"):
+        return cross_validate(
+            working,
+            model,
+            spec,
+            hood,
+            stage.scheme,
+            outlier_threshold=stage.outlier_threshold,
+            limits=limits,
+            workers=workers,
+        )
+
+
+def _calibrated(cv: CrossValidation) -> bool:
+    rmsse = cv.statistics["root_mean_square_standardized_error"]
+    return rmsse is not None and CALIBRATED[0] <= rmsse <= CALIBRATED[1]
+
+
+def _score(
+    name: str,
+    candidates: list[tuple[VariogramModel, FitResult | None]],
+    spec: KrigingSpec,
+    working: SampleSet,
+    hood: Neighbourhood,
+    options: AnalysisOptions,
+    limits: Limits,
+    workers: int,
+) -> Strategy:
+    """Cross-validate a strategy's candidate models and keep the best one.
+
+    The best is the lowest cross-validation mean squared error among candidates whose
+    RMSSE lies within :data:`CALIBRATED` (honest variances); when none does, the one with
+    RMSSE closest to 1. A candidate whose systems are singular is skipped.
+    """
+    scored: list[tuple[VariogramModel, FitResult | None, CrossValidation]] = []
+    refusals = []
+    for model, fit in candidates:
+        try:
+            scored.append((model, fit, _cross_validate(model, spec, working, hood, options, limits, workers)))
+        except SingularSystem as exc:
+            refusals.append(exc.summary)
+    if not scored:
+        model, fit = candidates[0]
+        return Strategy(
+            name, model, spec, fit, None, refused=f"kriging systems cannot be solved reliably: {refusals[0]}"
+        )
+
+    def mse(cv: CrossValidation) -> float:
+        rmse = cv.statistics["root_mean_square_error"]
+        return math.inf if rmse is None else rmse * rmse
+
+    honest = [s for s in scored if _calibrated(s[2])]
+    if honest:
+        model, fit, cv = min(honest, key=lambda s: mse(s[2]))
+    else:
+        model, fit, cv = min(
+            scored, key=lambda s: abs(math.log(s[2].statistics["root_mean_square_standardized_error"] or 1e-300))
+        )
+    return Strategy(name, model, spec, fit, cv)
+
+
+def _ranked_models(fit: FitResult, count: int) -> list[tuple[VariogramModel, FitResult]]:
+    """The ``count`` best-ranked fitted candidates of distinct form, each as the fit's selection."""
+    chosen = [fit.best]
+    for candidate in fit.candidates:
+        if len(chosen) >= count:
+            break
+        if candidate.model is not None and candidate.converged and candidate.label not in {c.label for c in chosen}:
+            chosen.append(candidate)
+    return [(c.model, replace(fit, best=c)) for c in chosen if c.model is not None]
+
+
+def _directional_ellipse(
+    fan: ExperimentalVariogram, isotropic: FitResult, working: SampleSet, options
+) -> VariogramModel | None:
+    """Geometric anisotropy from ranges fitted direction by direction (common practice).
+
+    Each direction class of the fan is fitted alone with the isotropic winner's family,
+    nugget and partial sill fixed to the isotropic values' family and nugget; the major
+    axis is the direction of the longest range and the ratio is the range perpendicular
+    to it over that longest range.
+    """
+    best = isotropic.best.model
+    if len(best.structures) != 1 or not best.structures[0].bounded:
+        return None
+    structure = best.structures[0]
+    ranges: dict[float, float] = {}
+    for direction in fan.directions:
+        points = points_from_experimental(replace(fan, directions=(direction,)), options.variogram.min_pairs)
+        if int(points.usable.sum()) < 3:
+            continue
+        try:
+            fit = fit_model(
+                points,
+                dimension=working.dimension,
+                families=[structure.family],
+                nugget=best.nugget,
+                weighting=options.fit.weighting,
+                sample_variance=fan.summary.variance,
+                guarded=True,
+            )
+        except InvalidInput:
+            continue
+        if fit.best.model is not None and fit.best.model.structures:
+            ranges[direction.direction.azimuth % 180.0] = fit.best.model.structures[0].range
+    if len(ranges) < 2:
+        return None
+    major = max(ranges, key=lambda a: ranges[a])
+    across = min(ranges, key=lambda a: abs(((a - major) % 180.0) - 90.0))
+    ratio = float(np.clip(ranges[across] / ranges[major], 0.05, 1.0))
+    return VariogramModel(
+        best.nugget,
+        (replace(structure, range=ranges[major], anisotropy=ModelAnisotropy(major, ratio)),),
+    )
+
+
+def _strategies(working, options, hood, limits, workers, omni):
+    """Build and score the strategies; returns (strategies, isotropic fit, fan, anisotropic fit, trend, residuals)."""
+    fit_stage, cv_stage = options.fit, options.cross_validation
+    fixed = cv_stage.kriging
+    base = fixed if fixed is not None and fixed.type != "universal" else ORDINARY
+    points = points_from_experimental(omni, options.variogram.min_pairs)
+    variance = omni.summary.variance
+    strategies: list[Strategy] = []
+    if fit_stage.compare:
+        null = pure_nugget(working.values)
+        strategies.append(
+            Strategy(
+                "pure_nugget",
+                null,
+                ORDINARY,
+                None,
+                null_cross_validation(working.values, outlier_threshold=cv_stage.outlier_threshold),
+            )
+        )
+    if fit_stage.model is not None:
+        isotropic = _fit(points, working, fit_stage, variance)
+        strategies.append(_score("given", [(fit_stage.model, None)], base, working, hood, options, limits, workers))
+        return strategies, isotropic, None, None, None, None
+    isotropic = _fit(points, working, fit_stage, variance)
+    universal_only = fixed is not None and fixed.type == "universal"
+    scored_candidates = CANDIDATES_SCORED if fit_stage.compare else 1
+    if not universal_only:
+        strategies.append(
+            _score(
+                "isotropic", _ranked_models(isotropic, scored_candidates), base, working, hood, options, limits, workers
+            )
+        )
+    fan, anisotropic = None, None
+    wants_fan = options.variogram.directions is not None or fit_stage.anisotropy != "none"
+    if working.dimension >= 2 and wants_fan and isotropic.best.model.structures:
+        fan, anisotropic = _anisotropic_fit(working, options, isotropic, variance, limits)
+    if anisotropic is not None and fan is not None and fit_stage.anisotropy != "none" and not universal_only:
+        candidates = _ranked_models(anisotropic, 2 if fit_stage.compare else 1)
+        ellipse = _directional_ellipse(fan, isotropic, working, options) if fit_stage.compare else None
+        if ellipse is not None:
+            candidates.append((ellipse, anisotropic))
+        ratio = min(m.structures[0].anisotropy.ratio for m, _ in candidates)
+        if fit_stage.anisotropy == "fit" or ratio < ANISOTROPY_WORTH_TESTING:
+            strategies.append(_score("anisotropic", candidates, base, working, hood, options, limits, workers))
+    trend, residuals = None, None
+    drift_allowed = fixed is None or universal_only
+    if drift_allowed and working.dimension >= 1 and (fit_stage.compare or universal_only):
+        trend, residuals = _drift_strategies(working, options, hood, limits, workers, strategies, fixed)
+    return strategies, isotropic, fan, anisotropic, trend, residuals
+
+
+def _drift_strategies(working, options, hood, limits, workers, strategies, fixed):
+    """Universal kriging on residual models, for the drifts the data support (or the one asked for)."""
+    degrees = [1, 2] if fixed is None else [2 if fixed.drift == "quadratic" else 1]
+    trend = test_trend(working, 1)
+    residuals: ResidualModel | None = None
+    for degree in degrees:
+        test = test_trend(working, degree)
+        if fixed is None and (not test.significant or (degree == 2 and working.size < QUADRATIC_MIN_SAMPLES)):
+            continue
+        stage = options.variogram
+        model = residual_model(
+            working,
+            degree,
+            lags=stage.lags,
+            statistic=stage.statistic,
+            min_pairs=stage.min_pairs,
+            fit_options={
+                "families": "auto" if options.fit.families == "auto" else list(options.fit.families),
+                "nugget": options.fit.nugget,
+                "weighting": options.fit.weighting,
+            },
+            limits=limits,
+        )
+        residuals = residuals or model
+        spec = KrigingSpec(
+            type="universal",
+            drift="linear" if degree == 1 else "quadratic",
+            nugget_as=(fixed or ORDINARY).nugget_as,
+        )
+        name = "linear_drift" if degree == 1 else "quadratic_drift"
+        strategies.append(_score(name, _ranked_models(model.fit, 2), spec, working, hood, options, limits, workers))
+    return trend, residuals
+
+
+def _predict(working, transform, strategy: Strategy, hood, options, envelope, limits, workers):
+    """Predictions with the selected strategy; estimates outside the envelope withheld."""
+    assert options.prediction is not None
+    with pointers_under("/prediction"):
+        result = predict(
+            working,
+            strategy.model,
+            spec=strategy.kriging,
+            neighbourhood=hood,
+            grid=options.prediction.grid,
+            limits=limits,
+            workers=workers,
+        )
+    estimate = result.prediction.estimate
+    stray = np.flatnonzero(envelope.outside(estimate))
+    reasons = dict(result.prediction.reasons)
+    for i in stray:
+        reasons[int(i)] = (
+            f"the estimate ({estimate[i]:.4g}) falls outside the plausible envelope [{envelope.low:.4g}, "
+            f"{envelope.high:.4g}] of the data: withheld"
+        )
+    if stray.size:
+        estimate = estimate.copy()
+        variance = result.prediction.variance.copy()
+        estimate[stray] = np.nan
+        variance[stray] = np.nan
+        result = replace(
+            result, prediction=replace(result.prediction, estimate=estimate, variance=variance, reasons=reasons)
+        )
+    back = transform.back_estimate(result.prediction.estimate, result.prediction.variance)
+    return result, back, int(stray.size)
 
 
 def analyse(
     samples: SampleSet, options: AnalysisOptions = AnalysisOptions(), *, limits: Limits = Limits(), workers: int = 1
 ) -> Analysis:
     """Run the chain on ``samples`` (see the module docstring)."""
+    validate_stages(
+        samples,
+        {
+            "/variogram": options.variogram,
+            "/fit": options.fit,
+            "/cross_validation": options.cross_validation,
+            "/prediction": options.prediction,
+        },
+    )
     transform = fit_transform(options.transform, samples.values, samples.source_index)
     working = replace(samples, values=transform.forward(samples.values))
-    omni = experimental_variogram(
-        working, lags=options.lags, statistic=options.statistic, min_pairs=options.min_pairs, limits=limits
-    )
-    fit = fit_model(
-        points_from_experimental(omni, options.min_pairs),
-        dimension=samples.dimension,
-        families=options.families,
-        nugget=options.nugget,
-        weighting=options.weighting,
-        sample_variance=omni.summary.variance,
-    )
-    directional, anisotropy = None, None
-    if options.directions == "auto" and samples.dimension >= 2 and fit.best.model.structures:
-        directional, anisotropy = _estimate_anisotropy(working, options, fit.best.model.structures[0].family, limits)
-    elif isinstance(options.directions, list):
-        directional = experimental_variogram(
-            working,
-            lags=options.lags,
-            directions=options.directions,
-            statistic=options.statistic,
-            min_pairs=options.min_pairs,
-            limits=limits,
-        )
+    envelope = Envelope.of(working.values)
+    omni = _variogram(working, options.variogram, limits)
     hood = _neighbourhood(options, samples)
-    model = fit.best.model
-    cv, prediction, back, refused = None, None, None, None
-    if model.structures or model.nugget > 0:
-        try:
-            cv = cross_validate(working, model, options.kriging, hood, options.scheme, limits=limits, workers=workers)
-            if options.grid is not None:
-                prediction = predict(
-                    working,
-                    model,
-                    spec=options.kriging,
-                    neighbourhood=hood,
-                    grid=options.grid,
-                    limits=limits,
-                    workers=workers,
-                )
-                back = transform.back_estimate(prediction.prediction.estimate, prediction.prediction.variance)
-        except InvalidInput as exc:
-            # A model the kriging systems cannot use (e.g. a gaussian structure without nugget on
-            # dense samples) still leaves the variogram and the fit worth reporting.
-            refused = (
-                f"kriging was not possible with the selected model ({exc.summary}); fit with a nugget or another family"
-            )
+    constant = omni.summary.variance == 0.0
+    notes = list(omni.warnings)
+    if constant:
+        fit = _fit(points_from_experimental(omni, options.variogram.min_pairs), working, options.fit, 0.0)
+        return Analysis(
+            transform=transform,
+            summary=summarise(samples.coords, samples.values),
+            transformed_summary=omni.summary,
+            omnidirectional=omni,
+            directional=None,
+            residual=None,
+            anisotropy=None,
+            trend=None,
+            selection=None,
+            fit=fit,
+            model=fit.best.model,
+            kriging=ORDINARY,
+            neighbourhood=hood,
+            cross_validation=None,
+            prediction=None,
+            back_transformed=None,
+            envelope=envelope,
+            warnings=tuple(dict.fromkeys(notes + list(fit.warnings))),
+            verdict=judge(constant=True, strategy=None, model=None, label="", statistics=None),
+        )
+    scored, isotropic, fan, anisotropic, trend, residuals = _strategies(working, options, hood, limits, workers, omni)
+    estimated_by_null = (
+        scored[0].cross_validation.statistics["count"] if scored and scored[0].name == "pure_nugget" else 0
+    )
+    scored = [screen(s, envelope, estimated_by_null) for s in scored]
+    selection = select(scored) if any(s.refused is None for s in scored) else None
+    chosen = selection.selected if selection is not None else None
+    fit = chosen.fit if chosen is not None and chosen.fit is not None else isotropic
+    model = chosen.model if chosen is not None else isotropic.best.model
+    spec = chosen.kriging if chosen is not None else ORDINARY
+    prediction, back, withheld = None, None, 0
+    if chosen is not None and options.prediction is not None:
+        prediction, back, withheld = _predict(working, transform, chosen, hood, options, envelope, limits, workers)
+    anisotropy = _anisotropy(anisotropic, selection)
     vmap = None
     if options.with_map and samples.dimension >= 2:
         # Cells from the automatic rule (about the typical sample spacing), as /v1/variogram-maps.
-        vmap = variogram_map(working, statistic=options.statistic, min_pairs=options.min_pairs, limits=limits)
-    notes = list(omni.warnings) + list(fit.warnings)
-    notes += _warnings(samples, fit, cv, anisotropy)
-    if refused:
-        notes.append(refused)
+        vmap = variogram_map(
+            working, statistic=options.variogram.statistic, min_pairs=options.variogram.min_pairs, limits=limits
+        )
+    notes += list(fit.warnings)
+    notes += _warnings(samples, scored, selection, chosen, trend, withheld)
+    ignored_trend = bool(
+        trend is not None
+        and trend.significant
+        and options.cross_validation.kriging is not None
+        and options.cross_validation.kriging.type != "universal"
+    )
+    verdict = judge(
+        constant=False,
+        strategy=chosen.name if chosen is not None else None,
+        model=model,
+        label=fit.best.label if chosen is not None and chosen.fit is not None else chosen.name if chosen else "",
+        statistics=chosen.cross_validation.statistics if chosen is not None and chosen.cross_validation else None,
+        ignored_trend=ignored_trend,
+        refused_structure=selection is not None
+        and any(s.refused is not None and s.name != "pure_nugget" for s in selection.strategies),
+    )
     return Analysis(
         transform=transform,
         summary=summarise(samples.coords, samples.values),
         transformed_summary=omni.summary,
         omnidirectional=omni,
-        directional=directional,
+        directional=fan,
+        residual=residuals.experimental if residuals is not None else None,
         anisotropy=anisotropy,
+        trend=trend,
+        selection=selection,
         fit=fit,
+        model=model,
+        kriging=spec,
         neighbourhood=hood,
-        cross_validation=cv,
+        cross_validation=chosen.cross_validation if chosen is not None else None,
         prediction=prediction,
         back_transformed=back,
+        envelope=envelope,
         variogram_map=vmap,
         warnings=tuple(dict.fromkeys(notes)),
-        verdict=_verdict(fit, cv, anisotropy, constant=omni.summary.variance == 0.0),
+        verdict=verdict,
     )
 
 
-def _warnings(
-    samples: SampleSet, fit: FitResult, cv: CrossValidation | None, anisotropy: Anisotropy | None
-) -> list[str]:
+def _anisotropy(anisotropic: FitResult | None, selection: Selection | None) -> Anisotropy | None:
+    """The anisotropy estimate: the anisotropic strategy's model when it was scored, else the joint fit's."""
+    strategy = selection.named("anisotropic") if selection is not None else None
+    model = strategy.model if strategy is not None else anisotropic.best.model if anisotropic is not None else None
+    if model is None or not model.structures:
+        return None
+    structure = model.structures[0]
+    supported = bool(strategy is not None and strategy.selected)
+    why = strategy.why if strategy is not None else "the fan shows no clear difference in continuity between directions"
+    return Anisotropy(structure.anisotropy.azimuth, structure.anisotropy.ratio, structure.family, supported, why)
+
+
+def _warnings(samples, scored, selection, chosen, trend, withheld) -> list[str]:
     notes = []
     if samples.size < FEW_SAMPLES:
         notes.append(f"only {samples.size} samples: fewer than about {FEW_SAMPLES} make variograms unreliable")
-    share = _trend_share(samples)
-    if share > 0.3:
+    for s in scored:
+        if s.refused is not None:
+            notes.append(f"strategy {s.name} refused: {s.refused}")
+    if selection is None:
+        notes.append("no strategy could be cross-validated: every kriging set-up was refused")
+    if chosen is not None and chosen.cross_validation is not None and chosen.cross_validation.statistics["outliers"]:
+        count = chosen.cross_validation.statistics["outliers"]
+        notes.append(f"{count} samples have large cross-validation errors (see cross_validation.samples.outlier)")
+    if trend is not None and trend.significant and (chosen is None or "drift" not in chosen.name):
         notes.append(
-            f"a linear trend in the coordinates explains {share * 100:.0f} % of the variance: consider universal kriging (a drift)"
+            f"a linear trend in the coordinates explains {trend.share * 100:.0f} % of the variance, "
+            "but kriging with a drift did not predict held-out samples better"
         )
-    if cv is not None and cv.statistics["outliers"]:
-        notes.append(
-            f"{cv.statistics['outliers']} samples have large cross-validation errors (see cross_validation.samples.outlier)"
-        )
-    model = fit.best.model
-    if model.structures and model.sill and model.nugget / model.sill > 0.8:
-        notes.append(
-            f"the nugget is {model.nugget / model.sill * 100:.0f} % of the sill: the fit barely beats a pure nugget (little spatial structure)"
-        )
-    if anisotropy is not None and anisotropy.ratio < 0.7:
-        notes.append(
-            f"continuity looks longer along azimuth {anisotropy.azimuth:.0f} (ratio {anisotropy.ratio:.2f}); the fitted model is isotropic"
-        )
+    model = chosen.model if chosen is not None else None
+    if model is not None and model.structures and model.sill and model.nugget / model.sill > 0.8:
+        notes.append(f"the nugget is {model.nugget / model.sill * 100:.0f} % of the sill: the structure is weak")
+    if withheld:
+        notes.append(f"{withheld} prediction nodes fall outside the plausible envelope of the data and are withheld")
     return notes
-
-
-def _verdict(
-    fit: FitResult, cv: CrossValidation | None, anisotropy: Anisotropy | None, *, constant: bool = False
-) -> str:
-    model = fit.best.model
-    if constant:
-        return "All values are equal: there is no variation to model or map."
-    if not model.structures:
-        return "No spatial structure: the values vary as much between close samples as between distant ones, so kriging adds nothing to the mean."
-    structure = model.structures[0]
-    share = model.nugget / model.sill if model.sill else 0.0
-    parts = [
-        f"Spatial structure found: {fit.best.label}, practical range {structure.range:.4g}, nugget {share * 100:.0f} % of the sill."
-    ]
-    if anisotropy is not None:
-        parts.append(
-            f"Direction classes suggest the longest continuity along azimuth {anisotropy.azimuth:.0f} degrees (range ratio {anisotropy.ratio:.2f})."
-        )
-    if cv is None:
-        parts.append(
-            "Cross-validation could not run with this model (see the warnings); review the model before mapping."
-        )
-    elif cv.statistics["root_mean_square_standardized_error"] is not None:
-        rmsse = cv.statistics["root_mean_square_standardized_error"]
-        honest = 0.8 <= rmsse <= 1.2
-        parts.append(
-            f"Cross-validation: RMSSE {rmsse:.2f}, correlation {cv.statistics['correlation'] or 0:.2f}; "
-            + (
-                "the model predicts held-out samples honestly and is fit for mapping."
-                if honest
-                else "the kriging variances do not match the errors; review the model before mapping."
-            )
-        )
-    if share > 0.8:
-        parts.append("The structure is weak: maps will be smooth and close to the mean.")
-    return " ".join(parts)

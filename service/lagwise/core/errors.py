@@ -5,12 +5,16 @@ RFC 9457 problems in one place.
 
 ``LagwiseCoreError``
  ├── ``InvalidInput``   -- input that can never be computed (names each offending field)
+ │    └── ``SingularSystem`` -- a kriging system the samples and model make singular or
+ │                              ill-conditioned (an analysis falls back to another strategy)
  └── ``LimitExceeded``  -- valid input whose estimated cost exceeds a configured limit
 """
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+import contextlib
+from collections.abc import Iterator
+from dataclasses import dataclass, replace
 
 
 @dataclass(frozen=True)
@@ -45,6 +49,33 @@ class InvalidInput(LagwiseCoreError):
     def at(cls, pointer: str, detail: str) -> InvalidInput:
         """Build an error about a single field."""
         return cls(FieldIssue(pointer, detail))
+
+    def under(self, base: str) -> InvalidInput:
+        """The same error with every pointer moved under ``base`` (e.g. ``/fit``)."""
+        moved = type(self).__new__(type(self))
+        InvalidInput.__init__(moved, [replace(i, pointer=base + i.pointer) for i in self.issues], self.summary)
+        return moved
+
+
+class SingularSystem(InvalidInput):
+    """A kriging system that cannot be solved reliably (singular or ill-conditioned)."""
+
+
+@contextlib.contextmanager
+def pointers_under(base: str) -> Iterator[None]:
+    """Re-raise any :class:`InvalidInput` raised inside with its pointers under ``base``.
+
+    The separate endpoints take each stage's options at the top of the request; the
+    analysis request nests them (``/variogram``, ``/fit``, ``/cross_validation``,
+    ``/prediction``), so the same core validators serve both.
+    """
+    if not base:
+        yield
+        return
+    try:
+        yield
+    except InvalidInput as exc:
+        raise exc.under(base) from None
 
 
 class LimitExceeded(LagwiseCoreError):

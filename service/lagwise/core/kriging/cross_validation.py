@@ -25,7 +25,7 @@ from scipy.linalg.lapack import dtrtri
 
 from ..data.samples import SampleSet
 from ..deadline import check_deadline
-from ..errors import InvalidInput
+from ..errors import InvalidInput, SingularSystem
 from ..limits import Limits
 from ..modelling.models import VariogramModel
 from .cost import UNIQUE_LOO_COPIES, UNIQUE_PREDICTION_COPIES, check_kriging, cross_validation_flops, drift_terms
@@ -102,7 +102,7 @@ def _leave_one_out_unique(kriger: Kriger) -> tuple[np.ndarray, np.ndarray]:
     rhs = z - kriger.spec.mean if kriger.spec.type == "simple" else z
     diag, bz = _inverse_blocks(kriger, rhs)
     if np.any(diag <= 0):
-        raise InvalidInput.at(
+        raise SingularSystem.at(
             "/model", "the kriging matrix is not positive definite on the samples' span: check the model"
         )
     residual = bz / diag  # z_i - z_hat_(-i), Dubrule (1983)
@@ -128,6 +128,16 @@ def _check_cost(n: int, dimension: int, spec: KrigingSpec, hood: Neighbourhood, 
         unique_copies=UNIQUE_LOO_COPIES if folds is None else UNIQUE_PREDICTION_COPIES,
         what="cross-validation",
     )
+
+
+def validate_scheme(scheme: Scheme, samples: int, outlier_threshold: float = DEFAULT_OUTLIER_THRESHOLD) -> None:
+    """Check a scheme against the number of samples; raises InvalidInput naming ``/scheme/...``."""
+    if scheme.type not in ("leave_one_out", "k_fold"):
+        raise InvalidInput.at("/scheme/type", "must be leave_one_out or k_fold")
+    if scheme.type == "k_fold" and not 2 <= scheme.folds <= samples:
+        raise InvalidInput.at("/scheme/folds", f"must be from 2 to the number of samples ({samples})")
+    if not (math.isfinite(outlier_threshold) and outlier_threshold > 0):
+        raise InvalidInput.at("/outlier_threshold", "must be positive")
 
 
 def cross_validate(
@@ -156,12 +166,7 @@ def cross_validate(
         Bad scheme, model, kriging options or neighbourhood.
     """
     limits.check_samples(samples.size)
-    if scheme.type not in ("leave_one_out", "k_fold"):
-        raise InvalidInput.at("/scheme/type", "must be leave_one_out or k_fold")
-    if scheme.type == "k_fold" and not 2 <= scheme.folds <= samples.size:
-        raise InvalidInput.at("/scheme/folds", f"must be from 2 to the number of samples ({samples.size})")
-    if not (math.isfinite(outlier_threshold) and outlier_threshold > 0):
-        raise InvalidInput.at("/outlier_threshold", "must be positive")
+    validate_scheme(scheme, samples.size, outlier_threshold)
     n = samples.size
     _check_cost(n, samples.dimension, spec, neighbourhood, scheme, limits)
     estimate, sd = np.full(n, np.nan), np.full(n, np.nan)

@@ -55,7 +55,8 @@ class PredictionResult:
     grid: Grid | None
 
 
-def _validate_grid(grid: Grid, dimension: int) -> None:
+def validate_grid(grid: Grid, dimension: int) -> None:
+    """Check a grid against the samples' dimension; raises InvalidInput naming ``/grid/...``."""
     issues = []
     if not (len(grid.origin) == len(grid.spacing) == len(grid.shape) == dimension):
         issues.append(
@@ -129,7 +130,7 @@ def predict(
     if (targets is None) == (grid is None):
         raise InvalidInput.at("/targets", "give either targets or grid")
     if grid is not None:
-        _validate_grid(grid, samples.dimension)
+        validate_grid(grid, samples.dimension)
         points = None
     else:
         points = np.asarray(targets, dtype=np.float64)

@@ -32,9 +32,10 @@ from scipy.spatial.distance import cdist
 
 from ..data.samples import SampleSet
 from ..deadline import check_deadline
-from ..errors import FieldIssue, InvalidInput, LimitExceeded
+from ..errors import FieldIssue, InvalidInput, LimitExceeded, SingularSystem
 from ..limits import Limits
 from ..modelling.models import VariogramModel, unit_semivariance, validate_model
+from .conditioning import RCOND_MIN, covariance_rcond, pivot_ratios
 from .cost import batch_rows, query_rows
 from .neighbourhood import NO_NEIGHBOURS, Neighbourhood, NeighbourSearch, to_search_space, validate_neighbourhood
 
@@ -43,6 +44,10 @@ DRIFTS = ("linear", "quadratic")
 NUGGET_ROLES = ("micro_scale", "measurement_error")
 TARGET_CHUNK = 20_000
 SINGULAR = "the kriging system is singular for this target's samples"
+ILL_CONDITIONED = (
+    "the kriging system of this target's samples is ill-conditioned (reciprocal condition below 1e-12): "
+    "samples too close together for a model this smooth without a nugget"
+)
 
 
 @dataclass(frozen=True)
@@ -63,24 +68,28 @@ class KrigingSpec:
         return out
 
 
-def validate_spec(spec: KrigingSpec, model: VariogramModel, dimension: int) -> KrigingSpec:
-    """Check the kriging options against the model; returns the spec with defaults filled."""
+def validate_kriging_options(spec: KrigingSpec) -> None:
+    """Check the kriging options that need no model; raises InvalidInput naming ``/kriging/<field>``."""
     issues = []
     if spec.type not in KRIGING_TYPES:
         issues.append(FieldIssue("/kriging/type", f"must be one of {', '.join(KRIGING_TYPES)}"))
     if spec.nugget_as not in NUGGET_ROLES:
         issues.append(FieldIssue("/kriging/nugget_as", f"must be one of {', '.join(NUGGET_ROLES)}"))
-    if spec.type == "simple":
-        if spec.mean is None or not math.isfinite(spec.mean):
-            issues.append(FieldIssue("/kriging/mean", "simple kriging needs the known mean"))
-        if not model.bounded:
-            issues.append(
-                FieldIssue("/model", "simple kriging needs a model with a sill; linear and power structures have none")
-            )
+    if spec.type == "simple" and (spec.mean is None or not math.isfinite(spec.mean)):
+        issues.append(FieldIssue("/kriging/mean", "simple kriging needs the known mean"))
     if spec.type == "universal" and spec.drift not in DRIFTS:
         issues.append(FieldIssue("/kriging/drift", f"universal kriging needs a drift: one of {', '.join(DRIFTS)}"))
     if issues:
         raise InvalidInput(issues)
+
+
+def validate_spec(spec: KrigingSpec, model: VariogramModel, dimension: int) -> KrigingSpec:
+    """Check the kriging options against the model; returns the spec with defaults filled."""
+    validate_kriging_options(spec)
+    if spec.type == "simple" and not model.bounded:
+        raise InvalidInput.at(
+            "/model", "simple kriging needs a model with a sill; linear and power structures have none"
+        )
     validate_model(model, dimension)
     return spec
 
@@ -255,7 +264,7 @@ class Kriger:
 
     def _check_drift_rank(self, F: np.ndarray, pointer: str = "/samples") -> None:
         if F.shape[1] and np.linalg.matrix_rank(F) < F.shape[1]:
-            raise InvalidInput.at(
+            raise SingularSystem.at(
                 pointer,
                 f"the {self.spec.drift or 'constant'} drift cannot be estimated from these samples "
                 f"(all {F.shape[0]} samples lie on a line or plane that the drift terms cannot separate)",
@@ -263,19 +272,28 @@ class Kriger:
 
     def _factor_unique(self):
         A = self.system_matrix()
-        self._check_drift_rank(A[: self.samples.size, self.samples.size :])
+        n = self.samples.size
+        self._check_drift_rank(A[:n, n:])
+        if self.model.bounded:
+            rcond = covariance_rcond(A[:n, :n])
+            if rcond < RCOND_MIN:
+                raise SingularSystem.at(
+                    "/model",
+                    f"the samples' covariance matrix is ill-conditioned (reciprocal condition {rcond:.1e} < {RCOND_MIN:g}): "
+                    "samples too close together for a model this smooth without a nugget; add a nugget or use another family",
+                )
         try:
             with warnings.catch_warnings():
                 # An exactly singular factor is reported below, with the sample it is near.
                 warnings.simplefilter("ignore", LinAlgWarning)
                 factor = lu_factor(A, check_finite=True)
         except (LinAlgError, ValueError) as exc:
-            raise InvalidInput.at("/model", f"the kriging matrix cannot be factorised: {exc}") from None
+            raise SingularSystem.at("/model", f"the kriging matrix cannot be factorised: {exc}") from None
         diagonal = np.abs(np.diag(factor[0]))
         if diagonal.min() <= 1e-13 * diagonal.max():
             worst = int(factor[1][int(np.argmin(diagonal))]) if np.argmin(diagonal) < self.samples.size else None
             who = f" (near sample {self.samples.ids[worst]})" if worst is not None and worst < self.samples.size else ""
-            raise InvalidInput.at(
+            raise SingularSystem.at(
                 "/samples",
                 f"the kriging matrix is singular{who}: samples too close together for a model without nugget, or a drift the samples cannot support",
             )
@@ -370,6 +388,7 @@ class Kriger:
         A[:, k:, :k] = np.swapaxes(F, 1, 2)
         b = np.concatenate([self.cov.between(pts, tgt)[..., 0], self.frame.drift(self.spec, tgt)[:, 0, :]], axis=1)
         solution, ok = _batched_solve(A, b)
+        conditioned = pivot_ratios(K) >= RCOND_MIN if self.model.bounded else np.ones(len(rows), dtype=bool)
         if p > 1:
             # A drift the neighbours cannot separate (e.g. collinear samples for a linear
             # drift) makes the system singular even when LAPACK returns numbers.
@@ -383,10 +402,13 @@ class Kriger:
             est = np.einsum("mk,mk->m", lam, z)
         var = self.cov.target_variance - np.einsum("mk,mk->m", lam, b[:, :k]) - np.einsum("mp,mp->m", nu, b[:, k:])
         positions = start + rows
-        estimate[positions[ok]] = est[ok]
-        variance[positions[ok]] = np.maximum(var[ok], 0.0)
         for r in np.flatnonzero(~ok):
             reasons[int(positions[r])] = SINGULAR + " (samples " + ", ".join(self.samples.ids[i] for i in idx[r]) + ")"
+        for r in np.flatnonzero(ok & ~conditioned):
+            reasons[int(positions[r])] = ILL_CONDITIONED
+        ok &= conditioned
+        estimate[positions[ok]] = est[ok]
+        variance[positions[ok]] = np.maximum(var[ok], 0.0)
         for r, t in enumerate(positions):
             if int(t) in want_weights and ok[r]:
                 weights.append({"target": int(t), "samples": idx[r].tolist(), "weights": lam[r], "lagrange": nu[r]})

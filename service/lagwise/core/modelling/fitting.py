@@ -50,6 +50,13 @@ NESTED_FAMILIES = ("spherical", "exponential", "gaussian")
 AUTO_FAMILIES = tuple(f for f in BOUNDED_FAMILIES if f != "cardinal_sine")
 CRESSIE_ITERATIONS = 10
 EQUIVALENT = 2.0
+# Automatic mode keeps the kriging systems well conditioned and the model within what
+# the classes can see (see :func:`fit_model`).
+SMOOTH_FAMILIES = ("gaussian", "stable", "cardinal_sine")
+SMOOTH_MIN_NUGGET = 0.01
+SMOOTH_MAX_SHAPE_WITHOUT_NUGGET = 1.5
+AUTO_RANGE_REACH = 1.5
+DUPLICATE_RANGE_RATIO = 1.25
 PREFERENCE = (
     "spherical",
     "exponential",
@@ -147,6 +154,7 @@ class _Spec:
     fit_nugget: bool
     fixed_nugget: float
     fit_anisotropy: bool
+    guarded: bool = False
 
     @property
     def label(self) -> str:
@@ -154,21 +162,24 @@ class _Spec:
         return " + ".join(parts) + (" (anisotropic)" if self.fit_anisotropy else "")
 
 
-def _candidate_specs(families, nugget, anisotropy, structures, dimension) -> list[_Spec]:
+def _candidate_specs(families, nugget, anisotropy, structures, dimension, guarded) -> list[_Spec]:
     fit_nugget = nugget == "fit"
     fixed = float(nugget) if isinstance(nugget, int | float) and not isinstance(nugget, bool) else 0.0
-    nugget_options = [True, False] if fit_nugget and families == "auto" else [fit_nugget]
-    names = (
-        [f for f in AUTO_FAMILIES if dimension <= FAMILIES[f].max_dimension] if families == "auto" else list(families)
-    )
+    auto = families == "auto"
+    nugget_options = [True, False] if fit_nugget and auto else [fit_nugget]
+    names = [f for f in AUTO_FAMILIES if dimension <= FAMILIES[f].max_dimension] if auto else list(families)
     specs = []
     for with_nugget in nugget_options:
         for name in names:
-            specs.append(_Spec((name,), with_nugget, fixed, anisotropy == "fit"))
-        nested = NESTED_FAMILIES if families == "auto" else (names if structures == 2 else ())
+            specs.append(_Spec((name,), with_nugget, fixed, anisotropy == "fit", guarded))
+        nested = NESTED_FAMILIES if auto else (names if structures == 2 else ())
         for name in nested:
             if FAMILIES[name].bounded:
-                specs.append(_Spec((name, name), with_nugget, fixed, anisotropy == "fit"))
+                specs.append(_Spec((name, name), with_nugget, fixed, anisotropy == "fit", guarded))
+    if guarded:
+        # A gaussian structure without a nugget makes kriging systems of close samples
+        # numerically singular (its covariance is analytic at the origin).
+        specs = [s for s in specs if s.fit_nugget or fixed > 0 or "gaussian" not in s.families]
     return specs
 
 
@@ -181,6 +192,44 @@ def _fit_rule(parameter: Parameter, which: str) -> Scaled:
     if rule is None:
         raise ValueError(f"{parameter.name} is not a fitted parameter")
     return rule
+
+
+def _guard(problem: _Problem, spec: _Spec) -> None:
+    """Automatic-mode bounds: ranges within what the classes see, smooth families kept stable.
+
+    * Practical ranges at most :data:`AUTO_RANGE_REACH` x the largest class distance: a
+      range the classes cannot see is not estimated by them.
+    * A smooth structure (gaussian, stable, cardinal sine) with a fitted nugget keeps a
+      nugget of at least :data:`SMOOTH_MIN_NUGGET` x the sill reference; a stable
+      structure without a nugget keeps its shape at most
+      :data:`SMOOTH_MAX_SHAPE_WITHOUT_NUGGET`. Both keep the kriging matrix of close
+      samples well conditioned (see :mod:`lagwise.core.kriging.conditioning`).
+    """
+    smooth = any(f in SMOOTH_FAMILIES for f in spec.families)
+    for i, name in enumerate(problem.names):
+        if name[0] == "a" and name[1:].isdigit():
+            problem.high[i] = min(problem.high[i], AUTO_RANGE_REACH * problem.hmax)
+        elif name == "nugget" and smooth:
+            problem.low[i] = min(SMOOTH_MIN_NUGGET * problem.sill0, 0.5 * problem.high[i])
+        elif name[0] == "e" and name[1:].isdigit() and not spec.fit_nugget and spec.fixed_nugget == 0:
+            k = int(name[1:])
+            if spec.families[k] == "stable":
+                problem.high[i] = min(problem.high[i], SMOOTH_MAX_SHAPE_WITHOUT_NUGGET)
+
+
+def _duplicate_structures(model: VariogramModel) -> str | None:
+    """Why a nested model's structures are not distinct, or None."""
+    if len(model.structures) < 2:
+        return None
+    first, second = model.structures[:2]
+    total = first.partial_sill + second.partial_sill
+    if total > 0 and min(first.partial_sill, second.partial_sill) < 0.01 * total:
+        return "one structure carries under 1 % of the structured sill: the nested model reduces to one structure"
+    if first.family == second.family:
+        low, high = sorted((first.range, second.range))
+        if high <= DUPLICATE_RANGE_RATIO * low:
+            return f"both {first.family} structures have nearly the same range ({low:.4g}, {high:.4g}): they are one structure"
+    return None
 
 
 class _Problem:
@@ -326,6 +375,8 @@ def _solve(problem: _Problem, weights: np.ndarray, start: np.ndarray):
 
 def _fit_candidate(spec: _Spec, points: ExperimentalPoints, weighting: str, sample_variance: float | None) -> Candidate:
     problem = _Problem(spec, points, sample_variance)
+    if spec.guarded:
+        _guard(problem, spec)
     n, p = len(problem.h), problem.size
     if n <= p:
         return Candidate(
@@ -384,8 +435,12 @@ def _fit_candidate(spec: _Spec, points: ExperimentalPoints, weighting: str, samp
     criterion = n * math.log(max(sse / n, 1e-300)) + 2 * p
     if n - p - 1 > 0:
         criterion += 2 * p * (p + 1) / (n - p - 1)
+    model = problem.model(theta)
+    duplicate = _duplicate_structures(model) if spec.guarded else None
+    if duplicate is not None:
+        return Candidate(None, spec.label, p, sse, r2, None, False, int(evaluations), duplicate, spec.families)
     return Candidate(
-        problem.model(theta),
+        model,
         spec.label,
         p,
         sse,
@@ -408,25 +463,11 @@ def select(ranked: list[Candidate]) -> Candidate:
     return min(equivalent, key=lambda c: (c.parameters, [PREFERENCE.index(f) for f in c.families], c.criterion))
 
 
-def _validate_options(families, nugget, weighting, anisotropy, structures, points, dimension):
+def validate_fit_options(families, nugget, weighting, anisotropy, structures, dimension) -> None:
+    """Check the fit options that need no data; raises InvalidInput naming ``/<field>``."""
     issues = []
     if weighting not in WEIGHTINGS:
         issues.append(FieldIssue("/weighting", f"must be one of {', '.join(WEIGHTINGS)}"))
-    elif weighting == "inverse_variance":
-        se = points.standard_error
-        lacking = (
-            int(points.usable.sum())
-            if se is None
-            else int(np.count_nonzero(points.usable & ~(np.nan_to_num(se, nan=0.0) > 0)))
-        )
-        if lacking:
-            issues.append(
-                FieldIssue(
-                    "/weighting",
-                    f"inverse_variance needs a positive standard error on every class used; {lacking} lack one "
-                    "(see each class's uncertainty_reason)",
-                )
-            )
     if families != "auto":
         if not families:
             issues.append(FieldIssue("/families", 'give at least one family, or "auto"'))
@@ -446,10 +487,6 @@ def _validate_options(families, nugget, weighting, anisotropy, structures, point
         issues.append(FieldIssue("/nugget", "a fixed nugget must be zero or positive"))
     if anisotropy not in ("none", "fit"):
         issues.append(FieldIssue("/anisotropy", 'must be "none" or "fit"'))
-    elif anisotropy == "fit" and len(np.unique(points.azimuth[points.usable])) < 2:
-        issues.append(
-            FieldIssue("/anisotropy", "fitting anisotropy needs usable classes in at least 2 direction classes")
-        )
     if structures not in (1, 2):
         issues.append(FieldIssue("/structures", "must be 1 or 2"))
     if issues:
@@ -466,6 +503,7 @@ def fit_model(
     anisotropy: str = "none",
     structures: int = 1,
     sample_variance: float | None = None,
+    guarded: bool | None = None,
 ) -> FitResult:
     """Fit and rank candidate models.
 
@@ -487,14 +525,35 @@ def fit_model(
     structures : 1 or 2
         Structures per candidate for an explicit family list.
     sample_variance : float, optional
-        Starting sill.
+        Starting sill (and the reference for the smooth families' minimum nugget).
+    guarded : bool, optional
+        Automatic-mode safeguards (default: on when ``families`` is ``auto``): no
+        gaussian structure without a nugget, bounds of :func:`_guard`, and nested
+        candidates whose structures are not distinct refused.
 
     Raises
     ------
     InvalidInput
         Bad options, or fewer usable classes than any candidate's parameters.
     """
-    _validate_options(families, nugget, weighting, anisotropy, structures, points, dimension)
+    validate_fit_options(families, nugget, weighting, anisotropy, structures, dimension)
+    if weighting == "inverse_variance":
+        se = points.standard_error
+        lacking = (
+            int(points.usable.sum())
+            if se is None
+            else int(np.count_nonzero(points.usable & ~(np.nan_to_num(se, nan=0.0) > 0)))
+        )
+        if lacking:
+            raise InvalidInput(
+                FieldIssue(
+                    "/weighting",
+                    f"inverse_variance needs a positive standard error on every class used; {lacking} lack one "
+                    "(see each class's uncertainty_reason)",
+                )
+            )
+    if anisotropy == "fit" and len(np.unique(points.azimuth[points.usable])) < 2:
+        raise InvalidInput.at("/anisotropy", "fitting anisotropy needs usable classes in at least 2 direction classes")
     notes = []
     used = int(points.usable.sum())
     left_out = int(points.usable.size - used)
@@ -508,7 +567,8 @@ def fit_model(
         zero = Candidate(VariogramModel(0.0, ()), "pure nugget (zero)", 0, 0.0, 1.0, None, True, 0)
         notes.append("every class has zero semivariance (constant values): the model is a zero pure nugget")
         return FitResult(zero, (zero,), points, weighting, nugget, anisotropy, tuple(notes))
-    specs = _candidate_specs(families, nugget, anisotropy, structures, dimension)
+    guarded = families == "auto" if guarded is None else guarded
+    specs = _candidate_specs(families, nugget, anisotropy, structures, dimension, guarded)
     candidates = [_fit_candidate(spec, points, weighting, sample_variance) for spec in specs]
     feasible = [c for c in candidates if c.criterion is not None]
     if not feasible:

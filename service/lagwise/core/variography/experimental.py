@@ -152,7 +152,8 @@ class ExperimentalVariogram:
     warnings: tuple[str, ...] = field(default=())
 
 
-def _validate_options(samples, statistic, min_pairs, directions):
+def validate_options(samples, statistic, min_pairs, directions):
+    """Check the statistic, min_pairs and direction classes; returns (resolved directions, warnings)."""
     if statistic not in STATISTICS:
         raise InvalidInput.at("/statistic", f"must be one of {', '.join(STATISTICS)}")
     if min_pairs < 1:
@@ -265,7 +266,7 @@ def experimental_variogram(
     InvalidInput, LimitExceeded
     """
     limits.check_samples(samples.size)
-    resolved, warnings = _validate_options(samples, statistic, min_pairs, directions)
+    resolved, warnings = validate_options(samples, statistic, min_pairs, directions)
     if declustering is None:
         declustering = decluster(samples.coords, samples.values)
     summary = summarise(samples.coords, samples.values, declustering)
