@@ -41,12 +41,11 @@ def test_mistakes_in_several_stages_are_reported_together(client):
         URL,
         json={
             "samples": _samples(),
-            "variogram": {"lags": {"width": 10, "count": 3, "auto": "equal_width"}},
             "cross_validation": {"kriging": {"type": "simple"}, "scheme": {"type": "k_fold", "folds": 500}},
         },
     )
     pointers = {e["pointer"] for e in r.json["errors"]}
-    assert {"/variogram/lags", "/cross_validation/kriging/mean", "/cross_validation/scheme/folds"} <= pointers
+    assert {"/cross_validation/kriging/mean", "/cross_validation/scheme/folds"} <= pointers
 
 
 def test_pure_noise_has_no_structure(client):
