@@ -114,11 +114,6 @@ class Analysis:
     warnings: tuple[str, ...] = field(default=())
     verdict: Verdict = Verdict(False, "review", "")
 
-    @property
-    def model(self):
-        """The variogram model the cross-validation and the map used (working units)."""
-        return self.fit.best.model
-
 
 def _neighbourhood(options: AnalysisOptions, samples: SampleSet) -> Neighbourhood:
     given = options.cross_validation.neighbourhood
