@@ -23,9 +23,10 @@ from dataclasses import dataclass, field, replace
 
 import numpy as np
 
+from .data.declustering import weighted_start
 from .data.samples import SampleSet
 from .data.summary import Summary, summarise
-from .data.transforms import Transform, fit_transform
+from .data.transforms import Transform
 from .errors import InvalidInput, SingularSystem, pointers_under
 from .kriging.cross_validation import CrossValidation, cross_validate
 from .kriging.neighbourhood import Neighbourhood
@@ -41,6 +42,7 @@ from .stages import CrossValidationOptions, FitOptions, PredictionOptions, Vario
 from .variography.directions import DirectionClass
 from .variography.experimental import ExperimentalVariogram, experimental_variogram
 from .variography.maps import VariogramMap, variogram_map
+from .variography.uncertainty import structure_evidence
 from .verdict import Verdict, judge
 
 AUTO_FAN = tuple(DirectionClass(a, 15.0) for a in (0.0, 30.0, 60.0, 90.0, 120.0, 150.0))
@@ -122,7 +124,9 @@ def _neighbourhood(options: AnalysisOptions, samples: SampleSet) -> Neighbourhoo
     return Neighbourhood() if samples.size <= UNIQUE_UP_TO else Neighbourhood(max_points=24, min_points=4)
 
 
-def _variogram(samples: SampleSet, stage: VariogramOptions, limits: Limits, directions=None) -> ExperimentalVariogram:
+def _variogram(
+    samples: SampleSet, stage: VariogramOptions, limits: Limits, directions=None, declustering=None
+) -> ExperimentalVariogram:
     with pointers_under("/variogram"):
         return experimental_variogram(
             samples,
@@ -131,6 +135,7 @@ def _variogram(samples: SampleSet, stage: VariogramOptions, limits: Limits, dire
             statistic=stage.statistic,
             min_pairs=stage.min_pairs,
             limits=limits,
+            declustering=declustering,
         )
 
 
@@ -297,7 +302,7 @@ def _strategies(working, options, hood, limits, workers, omni):
     fixed = cv_stage.kriging
     base = fixed if fixed is not None and fixed.type != "universal" else ORDINARY
     points = points_from_experimental(omni, options.variogram.min_pairs)
-    variance = omni.summary.variance
+    variance = omni.summary.reference_variance
     strategies: list[Strategy] = []
     if fit_stage.compare:
         null = pure_nugget(working.values)
@@ -422,10 +427,11 @@ def analyse(
             "/prediction": options.prediction,
         },
     )
-    transform = fit_transform(options.transform, samples.values, samples.source_index)
-    working = replace(samples, values=transform.forward(samples.values))
+    start = weighted_start(samples.coords, samples.values, options.transform, samples.source_index)
+    transform = start.transform
+    working = replace(samples, values=start.values)
     envelope = Envelope.of(working.values)
-    omni = _variogram(working, options.variogram, limits)
+    omni = _variogram(working, options.variogram, limits, declustering=start.declustering)
     hood = _neighbourhood(options, samples)
     constant = omni.summary.variance == 0.0
     notes = list(omni.warnings)
@@ -433,7 +439,7 @@ def analyse(
         fit = _fit(points_from_experimental(omni, options.variogram.min_pairs), working, options.fit, 0.0)
         return Analysis(
             transform=transform,
-            summary=summarise(samples.coords, samples.values),
+            summary=summarise(samples.coords, samples.values, start.declustering),
             transformed_summary=omni.summary,
             omnidirectional=omni,
             directional=None,
@@ -473,6 +479,9 @@ def analyse(
             working, statistic=options.variogram.statistic, min_pairs=options.variogram.min_pairs, limits=limits
         )
     notes += list(fit.warnings)
+    if start.declustering.warning:
+        notes.append(start.declustering.warning)
+    evidence = structure_evidence(omni.directions[0].classes, omni.summary.reference_variance)
     notes += _warnings(samples, scored, selection, chosen, trend, withheld)
     ignored_trend = bool(
         trend is not None
@@ -487,12 +496,13 @@ def analyse(
         label=fit.best.label if chosen is not None and chosen.fit is not None else chosen.name if chosen else "",
         statistics=chosen.cross_validation.statistics if chosen is not None and chosen.cross_validation else None,
         ignored_trend=ignored_trend,
+        unresolved_structure=None if evidence.below > 0 else evidence.text,
         refused_structure=selection is not None
         and any(s.refused is not None and s.name != "pure_nugget" for s in selection.strategies),
     )
     return Analysis(
         transform=transform,
-        summary=summarise(samples.coords, samples.values),
+        summary=summarise(samples.coords, samples.values, start.declustering),
         transformed_summary=omni.summary,
         omnidirectional=omni,
         directional=fan,

@@ -17,8 +17,9 @@ strategy's cross-validation, in working units):
     because every structured strategy was refused as numerically unstable.
 ``weak``
     Real but weak structure: goodness of prediction below :data:`WEAK_GOODNESS`,
-    correlation below :data:`WEAK_CORRELATION`, or a nugget above :data:`WEAK_NUGGET_SHARE`
-    of the sill. The map is honest but close to the mean, its intervals wide.
+    correlation below :data:`WEAK_CORRELATION`, a nugget above :data:`WEAK_NUGGET_SHARE`
+    of the sill, or none of the two shortest experimental classes has its 95 % interval
+    below the sill reference (the structure lies within the noise of its classes). The map is honest but close to the mean, its intervals wide.
 ``usable``
     Otherwise.
 
@@ -77,6 +78,7 @@ def judge(
     statistics: dict | None,
     ignored_trend: bool = False,
     refused_structure: bool = False,
+    unresolved_structure: str | None = None,
     notes: tuple[str, ...] = (),
 ) -> Verdict:
     """The verdict (see the module's rules).
@@ -97,6 +99,10 @@ def judge(
         A significant trend exists and the kriging the caller fixed has no drift.
     refused_structure : bool
         A strategy with spatial structure was refused (singular or unstable kriging systems).
+    unresolved_structure : str or None
+        Why the shortest experimental classes do not rise above their own noise (their 95 %
+        intervals reach the sill reference), or None when they do; such a structure is at
+        most ``weak``.
     notes : tuple of str
         Further reasons for review (appended to the text).
     """
@@ -150,12 +156,14 @@ def judge(
     if reasons:
         return Verdict(False, "review", f"{found} {skill} Review before mapping: {'; '.join(reasons)}.")
     share = model.nugget / model.sill if model.sill else 0.0
-    if goodness < WEAK_GOODNESS or correlation < WEAK_CORRELATION or share > WEAK_NUGGET_SHARE:
+    weak = goodness < WEAK_GOODNESS or correlation < WEAK_CORRELATION or share > WEAK_NUGGET_SHARE
+    if weak or unresolved_structure is not None:
+        noise = f" {unresolved_structure}" if unresolved_structure is not None else ""
         return Verdict(
             True,
             "weak",
             f"{found} {skill} The structure is weak: the map is honest but smooth and close to the mean, "
-            "with wide intervals.",
+            f"with wide intervals.{noise}",
         )
     return Verdict(
         True, "usable", f"{found} {skill} The model predicts held-out samples honestly and is fit for mapping."
