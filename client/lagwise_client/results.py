@@ -396,7 +396,11 @@ class Analysis(Response):
         Columnar grid predictions in original units.
     figures : dict
         Figure name -> SVG text or base64 PNG.
-    verdict : str
+    selection : dict or None
+        The strategies compared by cross-validation (``strategies``, each with ``selected``,
+        and the ``reason``).
+    verdict : dict
+        ``usable`` (bool), ``level`` (no_structure, weak, usable, review) and ``text``.
     """
 
     model: VariogramModel
@@ -409,7 +413,8 @@ class Analysis(Response):
     prediction: dict | None = None
     figures: dict = field(default_factory=dict)
     warnings: tuple[str, ...] = ()
-    verdict: str = ""
+    selection: dict | None = None
+    verdict: dict = field(default_factory=dict)
     parameters: dict = field(default_factory=dict)
     provenance: dict = field(default_factory=dict)
     raw: dict = _raw()

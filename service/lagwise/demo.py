@@ -168,7 +168,12 @@ def _summary_text(omni, directional, analysis, seconds) -> str:
         else "  anisotropy: not estimated",
         "  leave-one-out (24 neighbours): " + ", ".join(f"{k} {v:.3f}" for k, v in cv.items() if isinstance(v, float)),
         f"  kriging map: {len(estimate)} nodes of 20 m, estimated lead {min(estimate):.0f}-{max(estimate):.0f} mg/kg (lognormal back-transform)",
-        "  verdict: " + analysis.verdict,
+        "  strategies compared by cross-validation: "
+        + "; ".join(
+            f"{s['name']}{' (selected)' if s['selected'] else ''}"
+            for s in (analysis.selection or {}).get("strategies", [])
+        ),
+        f"  verdict ({analysis.verdict['level']}): " + analysis.verdict["text"],
         "",
         "Warnings: " + ("; ".join(analysis.warnings) if analysis.warnings else "none"),
         "",
@@ -187,6 +192,11 @@ def _html(omni, analysis) -> str:
         if isinstance(v, float)
     )
     warnings = "".join(f"<li>{html.escape(w)}</li>" for w in analysis.warnings) or "<li>none</li>"
+    strategies = "".join(
+        f"<li><strong>{html.escape(s['name'].replace('_', ' '))}</strong>{' (selected)' if s['selected'] else ''}: "
+        f"{html.escape(s['why'])}</li>"
+        for s in (analysis.selection or {}).get("strategies", [])
+    )
     figures = "".join(
         f"<figure><figcaption>{html.escape(name.replace('_', ' '))}</figcaption>{svg[svg.index('<svg') :]}</figure>"
         for name, svg in analysis.figures.items()
@@ -200,7 +210,8 @@ th,td{{text-align:left;padding:.2em .8em;border-bottom:1px solid #e9eef0}}figure
 <body><h1>Elmsworth former rail depot: soil lead</h1>
 <p class="caution"><strong>Invented demo data.</strong> {html.escape(CAUTION)}</p>
 <p>{s["samples"]} samples, mean {s["mean"]:.1f} mg/kg, values {s["minimum"]:.1f} to {s["maximum"]:.1f} mg/kg.</p>
-<h2>Verdict</h2><p>{html.escape(analysis.verdict)}</p>
+<h2>Verdict: {html.escape(analysis.verdict["level"].replace("_", " "))}</h2><p>{html.escape(analysis.verdict["text"])}</p>
+<h2>Strategies compared by cross-validation</h2><ul>{strategies}</ul>
 <h2>Cross-validation (log-lead)</h2><table>{rows}</table>
 <h2>Warnings</h2><ul>{warnings}</ul>
 <h2>Figures</h2>{figures}

@@ -157,7 +157,9 @@ def test_analyze_with_figures(lw, tmp_path):
         figures=["variogram", "cross_validation"],
         figure_format="png",
     )
-    assert result.verdict.startswith("Spatial structure found") and result.model.structures
+    assert result.verdict["text"].startswith("Spatial structure found") and result.model.structures
+    assert result.verdict["level"] in ("weak", "usable", "review")
+    assert sum(s["selected"] for s in result.selection["strategies"]) == 1
     assert result.cross_validation["statistics"]["count"] == 260
     paths = result.save_figures(tmp_path)
     assert sorted(p.name for p in paths) == ["cross_validation.png", "variogram.png"]

@@ -77,6 +77,8 @@ def test_upload_run_and_see_results(browser, url, tmp_path):
     assert any("root mean square standardized error" in r.text for r in rows)
     assert browser.find_element(By.CSS_SELECTOR, "#figure-variogram svg").is_displayed()
     assert "Spatial structure" in browser.find_element(By.ID, "verdict").text
+    rows = browser.find_elements(By.CSS_SELECTOR, "#strategies tbody tr")
+    assert len(rows) >= 2 and sum(r.find_elements(By.TAG_NAME, "td")[4].text == "yes" for r in rows) == 1
     browser.save_screenshot(str(tmp_path / "page.png"))
 
 

@@ -4,8 +4,8 @@ from __future__ import annotations
 
 import numpy as np
 from lagwise.core.analysis import AnalysisOptions, analyse
-from lagwise.core.stages import FitOptions, VariogramOptions
 from lagwise.core.data.samples import build_sample_set
+from lagwise.core.stages import FitOptions, VariogramOptions
 from lagwise.core.variography.lags import LagRequest
 
 from .simulate import anisotropic, simulate
