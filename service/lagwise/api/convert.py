@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 
@@ -200,9 +201,16 @@ def experimental_points(document: dict, min_pairs: int):
     if (summary.get("declustering") or {}).get("weights_used"):
         # Clustered sampling: the declustered variance is the sill reference.
         variance = summary.get("declustered_variance", variance)
-    variance = float(variance) if type(variance) in (int, float) and math.isfinite(variance) else None
+    variance = _finite_number(variance)
     digest = input_hash([points.distance, points.value, points.pairs.astype(np.float64)])
     return points, int(dimension), variance, statistic, digest
+
+
+def _finite_number(value: object) -> float | None:
+    """A finite JSON number (not a boolean) as a float; None for anything else."""
+    if (type(value) is int or type(value) is float) and math.isfinite(value):
+        return float(value)
+    return None
 
 
 @dataclass(frozen=True)
@@ -221,7 +229,7 @@ def _structure(pointer: str, raw: dict) -> Structure:
     missing = [p.name for p in family.parameters if p.slot != "shape" and raw.get(p.name) is None]
     if missing:
         raise InvalidInput([FieldIssue(f"{pointer}/{name}", "is required") for name in missing])
-    slots = {p.slot: raw.get(p.name) for p in family.parameters}
+    slots: dict[str, Any] = {p.slot: raw.get(p.name) for p in family.parameters}
     aniso = raw.get("anisotropy") or {}
     return Structure(
         family.name,
@@ -283,6 +291,13 @@ def grid(document: dict) -> Grid | None:
     return Grid(tuple(raw["origin"]), tuple(raw["spacing"]), tuple(raw["shape"]))
 
 
+def _stage_grid(stage: dict) -> Grid:
+    """The prediction stage's grid (its schema requires one)."""
+    found = grid(stage)
+    assert found is not None  # PredictionStage.grid is required
+    return found
+
+
 def _stage_model(fit: dict) -> VariogramModel | None:
     if "model" not in fit:
         return None
@@ -317,5 +332,5 @@ def analysis_options(document: dict) -> AnalysisOptions:
             neighbourhood=neighbourhood(staged) if cv["neighbourhood"] is not None else None,
             scheme=scheme(staged),
         ),
-        prediction=PredictionOptions(grid(prediction)) if prediction else None,
+        prediction=PredictionOptions(_stage_grid(prediction)) if prediction else None,
     )

@@ -74,5 +74,6 @@ def render(result, samples, document: dict) -> dict:
             )
         else:
             continue
-        out[name] = image if fmt == "svg" else base64.b64encode(image).decode("ascii")
+        # SVG comes as text, PNG as bytes (see figures.style.render).
+        out[name] = image if isinstance(image, str) else base64.b64encode(image).decode("ascii")
     return out

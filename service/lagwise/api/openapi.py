@@ -191,9 +191,11 @@ def build_spec() -> APISpec:
         # A key, or none where the deployment configures no keys; open paths override with [].
         security=[{SECURITY_SCHEME: []}, {}],
     )
-    plugin.converter.add_attribute_function(number_array_properties)
-    plugin.converter.add_attribute_function(choice_properties)
-    plugin.converter.add_attribute_function(variants_properties)
+    converter = plugin.converter
+    assert converter is not None  # set when the spec initialised the plugin
+    converter.add_attribute_function(number_array_properties)
+    converter.add_attribute_function(choice_properties)
+    converter.add_attribute_function(variants_properties)
     spec.components.security_scheme(
         SECURITY_SCHEME,
         {

@@ -95,7 +95,9 @@ def json_response(document: dict, status: int = 200) -> Response:
 
 def with_provenance(document: dict, input_sha256: str, samples: int = 0, pairs: int = 0) -> Response:
     """Add provenance, count the work done, and answer."""
-    count_work(request.url_rule.rule, samples, pairs)
+    rule = request.url_rule
+    assert rule is not None  # called from a routed view
+    count_work(rule.rule, samples, pairs)
     document["provenance"] = {
         "service": "lagwise",
         "version": __version__,

@@ -81,7 +81,7 @@ def uncertainty_parameters(result: ExperimentalVariogram) -> dict:
 
 def lag_parameters(result: ExperimentalVariogram) -> dict:
     """Resolved distance classes of every direction."""
-    out = {
+    out: dict[str, object] = {
         "method": result.lag_method,
         "edges": [[row.lower for row in d.classes] + [d.classes[-1].upper] for d in result.directions],
     }

@@ -33,7 +33,7 @@ from .kriging.neighbourhood import Neighbourhood
 from .kriging.prediction import PredictionResult, predict
 from .kriging.systems import KrigingSpec
 from .limits import Limits
-from .modelling.fitting import FitResult, fit_model, points_from_experimental
+from .modelling.fitting import FitResult, FittedCandidate, fit_model, points_from_experimental
 from .modelling.models import Anisotropy as ModelAnisotropy
 from .modelling.models import VariogramModel
 from .modelling.trend import QUADRATIC_MIN_SAMPLES, ResidualModel, TrendTest, residual_model, test_trend
@@ -247,9 +247,13 @@ def _ranked_models(fit: FitResult, count: int) -> list[tuple[VariogramModel, Fit
     for candidate in fit.candidates:
         if len(chosen) >= count:
             break
-        if candidate.model is not None and candidate.converged and candidate.label not in {c.label for c in chosen}:
+        if (
+            isinstance(candidate, FittedCandidate)
+            and candidate.converged
+            and candidate.label not in {c.label for c in chosen}
+        ):
             chosen.append(candidate)
-    return [(c.model, replace(fit, best=c)) for c in chosen if c.model is not None]
+    return [(c.model, replace(fit, best=c)) for c in chosen]
 
 
 def _directional_ellipse(

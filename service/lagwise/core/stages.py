@@ -11,7 +11,9 @@ run in the stage itself, under the same pointer base.
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass
+from functools import partial
 
 from .data.samples import SampleSet
 from .errors import FieldIssue, InvalidInput, pointers_under
@@ -93,11 +95,13 @@ class CrossValidationOptions:
 
     def validate(self, samples: SampleSet) -> None:
         issues: list[FieldIssue] = []
-        for check in (
-            lambda: self.kriging is None or validate_kriging_options(self.kriging),
-            lambda: self.neighbourhood is None or validate_neighbourhood(self.neighbourhood, samples.dimension),
-            lambda: validate_scheme(self.scheme, samples.size, self.outlier_threshold),
-        ):
+        checks: list[Callable[[], object]] = []
+        if self.kriging is not None:
+            checks.append(partial(validate_kriging_options, self.kriging))
+        if self.neighbourhood is not None:
+            checks.append(partial(validate_neighbourhood, self.neighbourhood, samples.dimension))
+        checks.append(partial(validate_scheme, self.scheme, samples.size, self.outlier_threshold))
+        for check in checks:
             try:
                 check()
             except InvalidInput as exc:

@@ -102,6 +102,7 @@ class Labels:
     def gamma(self, statistic: str) -> str:
         """Variogram axis: the statistic of the working variable and its squared unit."""
         name = STATISTIC_NAMES.get(statistic, statistic)
+        unit: str | None
         if self.transform != "none":
             unit = "dimensionless"
         else:

@@ -13,10 +13,14 @@ import io
 import threading
 from collections.abc import Callable, Iterator
 from contextlib import contextmanager
+from typing import TYPE_CHECKING, Any
 
 import matplotlib
 from matplotlib.colors import LinearSegmentedColormap
 from matplotlib.figure import Figure
+
+if TYPE_CHECKING:
+    from matplotlib.typing import RcKeyType  # the stubs key type, for the checker only
 
 SLATE, TEAL, AMBER, PLUM, MIST, FOG = "#2f3e46", "#1b7f79", "#d68c15", "#8e4a7d", "#e9eef0", "#c9d2d6"
 DIRECTION_COLOURS = (TEAL, "#3d5a80", "#b5651d", PLUM, "#7a8b2f", "#a23b3b")
@@ -27,7 +31,7 @@ DISSIMILARITY_RAMP = LinearSegmentedColormap.from_list(
 )
 ERROR_RAMP = LinearSegmentedColormap.from_list("lagwise-error", ["#1b5e7a", "#7fb3c4", "#f4f2ec", "#e0a66b", "#9c4a16"])
 
-RC = {
+RC: dict[RcKeyType, Any] = {
     "svg.fonttype": "none",  # text stays text: selectable and searchable in the SVG
     "svg.hashsalt": "lagwise",  # stable clip-path and glyph ids
     "font.family": "sans-serif",

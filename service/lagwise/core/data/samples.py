@@ -291,6 +291,7 @@ def build_sample_set(
         )
     projection = None
     if coordinates == "geographic":
+        assert y is not None  # _check_columns requires latitude for geographic coordinates
         lon = _normalise_degrees(x, y)
         projection = centroid(lon, y)
         px, py = projection.forward(lon, y)

@@ -56,12 +56,19 @@ class Transform:
     values: np.ndarray | None = None
     weighted: bool = False
 
+    def _table(self) -> tuple[np.ndarray, np.ndarray]:
+        """The (scores, values) table of a normal-score transform."""
+        if self.scores is None or self.values is None:
+            raise TypeError("a normal-score transform needs its score table")
+        return self.scores, self.values
+
     def forward(self, z: np.ndarray) -> np.ndarray:
         """Transform data values (those the transform was built from, for normal scores)."""
         if self.kind == "log":
             return np.log(z)
         if self.kind == "normal_score":
-            return np.interp(z, self.values, self.scores)
+            scores, values = self._table()
+            return np.interp(z, values, scores)
         return np.asarray(z, dtype=np.float64)
 
     def backward(self, y: np.ndarray) -> np.ndarray:
@@ -69,7 +76,8 @@ class Transform:
         if self.kind == "log":
             return np.exp(y)
         if self.kind == "normal_score":
-            return np.interp(y, self.scores, self.values)
+            scores, values = self._table()
+            return np.interp(y, scores, values)
         return np.asarray(y, dtype=np.float64)
 
     def back_estimate(self, estimate: np.ndarray, variance: np.ndarray) -> tuple[np.ndarray, np.ndarray]:

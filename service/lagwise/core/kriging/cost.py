@@ -60,7 +60,7 @@ def unique_bytes(n: int, p: int, copies: int) -> int:
 
 def prediction_flops(n: int, m: int, neighbourhood: Neighbourhood, p: int) -> float:
     """Operations to krige m targets from n samples (unique: one factorisation and m solves)."""
-    if neighbourhood.unique:
+    if neighbourhood.max_points is None:  # unique neighbourhood
         s = n + p
         return s**3 / 3 + 2.0 * m * s * s
     s = min(neighbourhood.max_points, n) + p

@@ -148,8 +148,10 @@ class NeighbourSearch:
         return idx, valid
 
     def _sector_mask(self, space_targets, idx, valid) -> np.ndarray:
-        sectors = self.n.sectors
-        per_sector = -(-self.n.max_points // sectors)
+        sectors, max_points = self.n.sectors, self.n.max_points
+        if sectors is None or max_points is None:
+            raise TypeError("a sector search needs a sector count and max_points")
+        per_sector = -(-max_points // sectors)
         safe = np.where(valid, idx, 0)
         offset = self.space[safe][..., :2] - space_targets[:, None, :2]
         angle = np.mod(np.arctan2(offset[..., 0], offset[..., 1]), 2 * np.pi)

@@ -129,9 +129,10 @@ def predict(
     """
     if (targets is None) == (grid is None):
         raise InvalidInput.at("/targets", "give either targets or grid")
+    points: np.ndarray | None = None
     if grid is not None:
         validate_grid(grid, samples.dimension)
-        points = None
+        m = grid.size
     else:
         points = np.asarray(targets, dtype=np.float64)
         if points.ndim != 2 or points.shape[1] != samples.dimension:
@@ -140,7 +141,7 @@ def predict(
             )
         if points.shape[0] == 0:
             raise InvalidInput.at("/targets", "give at least one target")
-    m = grid.size if grid is not None else points.shape[0]
+        m = points.shape[0]
     _check_cost(samples, m, neighbourhood, spec, limits)
     if len(weights_for) > MAX_WEIGHT_TARGETS:
         raise InvalidInput.at("/return_weights", f"weights are returned for at most {MAX_WEIGHT_TARGETS} targets")
@@ -149,6 +150,7 @@ def predict(
         raise InvalidInput.at("/return_weights", f"target index {bad[0]} is outside 0..{m - 1}")
     if grid is not None:
         points = grid.points()
+    assert points is not None  # the targets, when no grid is given
     projected = _project(samples, points)
     _check_reach(samples, projected, grid is not None)
     kriger = Kriger(

@@ -129,7 +129,8 @@ class Covariance:
         self.model = model
         self.structural = VariogramModel(0.0, model.structures)
         self.nugget = model.nugget
-        self.c0 = self.structural.sill if self.structural.bounded else 0.0
+        sill = self.structural.sill  # None exactly when a structure is unbounded
+        self.c0 = sill if sill is not None else 0.0
         self.micro = spec.nugget_as == "micro_scale"
 
     def between(self, a: np.ndarray, b: np.ndarray, same: bool = False) -> np.ndarray:

@@ -103,11 +103,12 @@ class ExperimentalPoints:
 
 @dataclass(frozen=True)
 class Candidate:
-    """One fitted candidate model.
+    """One candidate model, fitted or not (a failed fit has no model; see :class:`FittedCandidate`).
 
     Attributes
     ----------
-    model : VariogramModel
+    model : VariogramModel or None
+        None when the fit failed (``note`` says why).
     label : str
         Plain description, e.g. ``nugget + spherical``.
     parameters : int
@@ -136,10 +137,17 @@ class Candidate:
 
 
 @dataclass(frozen=True)
+class FittedCandidate(Candidate):
+    """A candidate whose fit gave a model."""
+
+    model: VariogramModel
+
+
+@dataclass(frozen=True)
 class FitResult:
     """Result of :func:`fit_model`: the best candidate and every candidate, ranked."""
 
-    best: Candidate
+    best: FittedCandidate
     candidates: tuple[Candidate, ...]
     points: ExperimentalPoints
     weighting: str
@@ -346,6 +354,8 @@ def _weights(weighting: str, problem: _Problem, fitted: np.ndarray | None) -> np
         w = problem.pairs / np.maximum(base, 1e-9 * problem.gmax) ** 2
     elif weighting == "inverse_variance":
         se = problem.standard_error
+        if se is None:
+            raise TypeError("inverse_variance weighting needs the classes' standard errors")
         w = 1.0 / np.maximum(se, SE_FLOOR_SHARE * float(np.median(se))) ** 2
     else:
         w = problem.pairs.copy()
@@ -439,7 +449,7 @@ def _fit_candidate(spec: _Spec, points: ExperimentalPoints, weighting: str, samp
     duplicate = _duplicate_structures(model) if spec.guarded else None
     if duplicate is not None:
         return Candidate(None, spec.label, p, sse, r2, None, False, int(evaluations), duplicate, spec.families)
-    return Candidate(
+    return FittedCandidate(
         model,
         spec.label,
         p,
@@ -452,11 +462,13 @@ def _fit_candidate(spec: _Spec, points: ExperimentalPoints, weighting: str, samp
     )
 
 
-def select(ranked: list[Candidate]) -> Candidate:
+def select(ranked: list[FittedCandidate]) -> FittedCandidate:
     """The selected candidate: fewest parameters, then :data:`PREFERENCE`, among the equally supported."""
     top = ranked[0]
     if not top.converged:
         return top
+    if top.criterion is None:
+        raise TypeError("the top-ranked candidate has no criterion")
     equivalent = [
         c for c in ranked if c.converged and c.criterion is not None and c.criterion <= top.criterion + EQUIVALENT
     ]
@@ -564,23 +576,23 @@ def fit_model(
     if used == 0:
         raise InvalidInput.at("/experimental", "no class has a value and enough pairs to fit a model")
     if np.all(points.value[points.usable] == 0.0):
-        zero = Candidate(VariogramModel(0.0, ()), "pure nugget (zero)", 0, 0.0, 1.0, None, True, 0)
+        zero = FittedCandidate(VariogramModel(0.0, ()), "pure nugget (zero)", 0, 0.0, 1.0, None, True, 0)
         notes.append("every class has zero semivariance (constant values): the model is a zero pure nugget")
         return FitResult(zero, (zero,), points, weighting, nugget, anisotropy, tuple(notes))
     guarded = families == "auto" if guarded is None else guarded
     specs = _candidate_specs(families, nugget, anisotropy, structures, dimension, guarded)
     candidates = [_fit_candidate(spec, points, weighting, sample_variance) for spec in specs]
-    feasible = [c for c in candidates if c.criterion is not None]
+    # Exactly the candidates with a criterion: a fitted one always has one here (only the zero nugget lacks it).
+    feasible = [c for c in candidates if isinstance(c, FittedCandidate)]
     if not feasible:
         needed = min(c.parameters for c in candidates) + 1
         raise InvalidInput.at(
             "/experimental",
             f"{used} usable classes cannot support the candidates: at least {needed} are needed (use narrower or more classes, or lower min_pairs)",
         )
-    ranked = sorted(feasible, key=lambda c: (not c.converged, c.criterion)) + [
-        c for c in candidates if c.criterion is None
-    ]
-    best = select(ranked)
+    ordered = sorted(feasible, key=lambda c: (not c.converged, c.criterion))
+    ranked: list[Candidate] = [*ordered, *(c for c in candidates if c.criterion is None)]
+    best = select(ordered)
     longest = max((st.range for st in best.model.structures if FAMILIES[st.family].bounded), default=0.0)
     reach = float(points.distance[points.usable].max())
     if longest > 1.5 * reach:

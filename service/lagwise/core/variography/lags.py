@@ -86,6 +86,7 @@ def validate_lags(request: LagRequest) -> np.ndarray | None:
             issues.append(FieldIssue("/lags/width", "width x count must be a finite distance"))
         if issues:
             raise InvalidInput(issues)
+        assert request.width is not None and request.count is not None  # a missing one is an issue above
         return request.width * np.arange(request.count + 1, dtype=np.float64)
     if request.auto is not None and request.auto not in AUTO_METHODS:
         raise InvalidInput.at("/lags/auto", f"must be one of {', '.join(AUTO_METHODS)}")
@@ -145,19 +146,19 @@ def merge_sparse(edges: np.ndarray, counts: np.ndarray, min_pairs: int) -> np.nd
     ``counts`` are the exact pairs of each class [edges[i], edges[i+1]). Returns the
     kept edges; a single class remains when no merge meets ``min_pairs``.
     """
-    edges = list(np.asarray(edges, dtype=np.float64))
-    counts = list(np.asarray(counts, dtype=np.float64))
+    kept = list(np.asarray(edges, dtype=np.float64))
+    pair_counts = list(np.asarray(counts, dtype=np.float64))
     i = 0
-    while len(counts) > 1 and i < len(counts):
-        if counts[i] >= min_pairs:
+    while len(pair_counts) > 1 and i < len(pair_counts):
+        if pair_counts[i] >= min_pairs:
             i += 1
             continue
-        if i == len(counts) - 1:
+        if i == len(pair_counts) - 1:
             # The last class joins the one before it.
-            counts[i - 1] += counts.pop(i)
-            edges.pop(i)
+            pair_counts[i - 1] += pair_counts.pop(i)
+            kept.pop(i)
             i -= 1
         else:
-            counts[i] += counts.pop(i + 1)
-            edges.pop(i + 1)
-    return np.array(edges)
+            pair_counts[i] += pair_counts.pop(i + 1)
+            kept.pop(i + 1)
+    return np.array(kept)

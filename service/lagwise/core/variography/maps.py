@@ -165,6 +165,7 @@ def variogram_map(
     _validate(
         samples, cell_size if cell_size is not None else 1.0, cells if cells is not None else 1, statistic, limits
     )
+    assert cell_size is not None and cells is not None  # resolved above, or _validate refused 1-D samples
     reach = (cells + 0.5) * cell_size
     prepared = prepare(samples.coords, samples.values)
     visits = sweep_visits(prepared.points[:, 0], reach)

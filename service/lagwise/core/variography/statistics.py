@@ -98,6 +98,8 @@ def class_value(statistic: str, row: np.ndarray, mean: float, scale: float, medi
     if statistic == "semivariance_robust":
         return ClassValue((row[K.ROOT] / n) ** 4 / (2.0 * (0.457 + 0.494 / n)))
     if statistic == "semivariance_median":
+        if median_abs is None:
+            raise TypeError("semivariance_median needs the median of |Delta|")
         return ClassValue(DOWD_FACTOR * median_abs**2 / 2.0)
     if statistic == "madogram":
         return ClassValue(row[K.ABSOLUTE] / (2.0 * n))

@@ -181,9 +181,9 @@ def _one_class(statistic, total, by_block, prepared, factor) -> ClassUncertainty
         replicates.append(value)
     if full is None:
         return ClassUncertainty(None, None, "the statistic is undefined for this class")
-    replicates = np.array(replicates)
-    blocks = replicates.size
-    se = math.sqrt((blocks - 1) / blocks * float(np.sum((replicates - replicates.mean()) ** 2)))
+    spread = np.array(replicates)
+    blocks = spread.size
+    se = math.sqrt((blocks - 1) / blocks * float(np.sum((spread - spread.mean()) ** 2)))
     if statistic in COVARIANCE_TYPE or full <= 0.0:
         return ClassUncertainty(se, (full - factor * se, full + factor * se))
     ratio = factor * se / full
