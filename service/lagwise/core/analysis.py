@@ -347,11 +347,22 @@ def _strategies(working, options, hood, limits, workers, omni):
     trend, residuals = None, None
     drift_allowed = fixed is None or universal_only
     if drift_allowed and working.dimension >= 1 and (fit_stage.compare or universal_only):
-        trend, residuals = _drift_strategies(working, options, hood, limits, workers, strategies, fixed)
+        trend, residuals = _drift_strategies(working, options, hood, limits, workers, strategies, fixed, isotropic)
     return strategies, isotropic, fan, anisotropic, trend, residuals
 
 
-def _drift_strategies(working, options, hood, limits, workers, strategies, fixed):
+def _residual_families(options: AnalysisOptions, isotropic: FitResult | None) -> list[str] | str:
+    """Families tried on the residuals: the caller's list, else the isotropic winner's and the
+    two most used bounded families (a residual variogram is shorter, not of another kind)."""
+    if options.fit.families != "auto":
+        return list(options.fit.families)
+    if isotropic is None:
+        return "auto"
+    winners = [s.family for s in isotropic.best.model.structures]
+    return list(dict.fromkeys([*winners, "spherical", "exponential"]))
+
+
+def _drift_strategies(working, options, hood, limits, workers, strategies, fixed, isotropic=None):
     """Universal kriging on residual models, for the drifts the data support (or the one asked for)."""
     degrees = [1, 2] if fixed is None else [2 if fixed.drift == "quadratic" else 1]
     trend = test_trend(working, 1)
@@ -359,6 +370,8 @@ def _drift_strategies(working, options, hood, limits, workers, strategies, fixed
     for degree in degrees:
         test = test_trend(working, degree)
         if fixed is None and (not test.significant or (degree == 2 and working.size < QUADRATIC_MIN_SAMPLES)):
+            continue
+        if fixed is None and degree == 2 and not trend.significant:
             continue
         stage = options.variogram
         model = residual_model(
@@ -368,7 +381,7 @@ def _drift_strategies(working, options, hood, limits, workers, strategies, fixed
             statistic=stage.statistic,
             min_pairs=stage.min_pairs,
             fit_options={
-                "families": "auto" if options.fit.families == "auto" else list(options.fit.families),
+                "families": _residual_families(options, isotropic),
                 "nugget": options.fit.nugget,
                 "weighting": options.fit.weighting,
             },
@@ -381,7 +394,7 @@ def _drift_strategies(working, options, hood, limits, workers, strategies, fixed
             nugget_as=(fixed or ORDINARY).nugget_as,
         )
         name = "linear_drift" if degree == 1 else "quadratic_drift"
-        strategies.append(_score(name, _ranked_models(model.fit, 2), spec, working, hood, options, limits, workers))
+        strategies.append(_score(name, _ranked_models(model.fit, 1), spec, working, hood, options, limits, workers))
     return trend, residuals
 
 

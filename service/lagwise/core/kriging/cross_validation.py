@@ -21,13 +21,14 @@ from dataclasses import dataclass
 
 import numpy as np
 from scipy.linalg import LinAlgError, cho_factor, cho_solve, inv
-from scipy.linalg.lapack import dtrtri
+from scipy.linalg.lapack import dpocon, dtrtri
 
 from ..data.samples import SampleSet
 from ..deadline import check_deadline
 from ..errors import InvalidInput, SingularSystem
 from ..limits import Limits
 from ..modelling.models import VariogramModel
+from .conditioning import RCOND_MIN
 from .cost import UNIQUE_LOO_COPIES, UNIQUE_PREDICTION_COPIES, check_kriging, cross_validation_flops, drift_terms
 from .neighbourhood import Neighbourhood
 from .systems import Kriger, KrigingSpec
@@ -77,6 +78,13 @@ def _inverse_blocks(kriger: Kriger, rhs: np.ndarray) -> tuple[np.ndarray, np.nda
         if not kriger.model.bounded:
             raise LinAlgError("unbounded model: the covariance block is not positive definite")
         factor = cho_factor(K, lower=False, check_finite=False)
+        rcond, _ = dpocon(factor[0], float(np.abs(K).sum(axis=0).max()))
+        if rcond < RCOND_MIN:
+            raise SingularSystem.at(
+                "/model",
+                f"the samples' covariance matrix is ill-conditioned (reciprocal condition {rcond:.1e} < {RCOND_MIN:g}): "
+                "samples too close together for a model this smooth without a nugget; add a nugget or use another family",
+            )
         # K = U'U, so K^-1 = U^-1 U^-T and diag(K^-1)_i is the squared norm of row i of U^-1.
         u_inv, info = dtrtri(np.triu(factor[0]), lower=0)
         if info != 0:
@@ -92,6 +100,11 @@ def _inverse_blocks(kriger: Kriger, rhs: np.ndarray) -> tuple[np.ndarray, np.nda
         diag = k_inv_diag - np.einsum("ip,pq,iq->i", kf, s_inv, kf)
         return diag, base - kf @ (s_inv @ (F.T @ base))
     except (LinAlgError, np.linalg.LinAlgError):
+        if kriger.model.bounded:
+            raise SingularSystem.at(
+                "/model",
+                "the samples' covariance matrix is not positive definite in floating point (singular or ill-conditioned)",
+            ) from None
         B = inv(A, check_finite=False)
         full = np.concatenate([rhs, np.zeros(F.shape[1])])
         return np.diag(B)[:n].copy(), (B @ full)[:n]
@@ -179,6 +192,7 @@ def cross_validate(
             neighbourhood,
             max_unique=limits.max_unique_samples,
             memory_budget=limits.memory_budget_bytes,
+            factorise=not (neighbourhood.unique and model.bounded),
         )
         if neighbourhood.unique:
             estimate, sd = _leave_one_out_unique(kriger)

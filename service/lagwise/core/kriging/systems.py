@@ -223,7 +223,10 @@ class Kriger:
         *,
         max_unique: int = 10_000,
         memory_budget: int = Limits.memory_budget_bytes,
+        factorise: bool = True,
     ):
+        """``factorise`` False skips the unique neighbourhood's factorisation (its caller
+        factorises the matrix itself, as closed-form leave-one-out does)."""
         validate_neighbourhood(neighbourhood, samples.dimension)
         self.spec = validate_spec(spec, model, samples.dimension)
         self.samples = samples
@@ -244,7 +247,10 @@ class Kriger:
                     'The unique neighbourhood factorises one matrix of all samples; give a moving neighbourhood, e.g. {"max_points": 24}.',
                     "/neighbourhood",
                 )
-            self._factor = self._factor_unique()
+            if factorise:
+                self._factor = self._factor_unique()
+            else:
+                self._check_drift_rank(self.frame.drift(spec, samples.coords))
         else:
             self.search = NeighbourSearch(samples.coords, model, neighbourhood)
 
