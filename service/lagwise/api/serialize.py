@@ -170,11 +170,9 @@ def _candidate(rank: int, c, selected: bool) -> dict:
 
 def model_fit(fit, statistic: str, *, summary: dict | None, sample_params: dict | None, options: dict) -> dict:
     """Response body of ``POST /v1/model-fits`` (without provenance)."""
-    from ..core.modelling.fitting import fitted_values
-
     best = fit.best
     points = fit.points
-    modelled = fitted_values(fit)
+    modelled = fit.fitted_values
     directions: dict[int, dict] = {}
     for i in range(points.distance.size):
         entry = directions.setdefault(int(points.direction[i]), {"azimuth": float(points.azimuth[i]), "classes": []})

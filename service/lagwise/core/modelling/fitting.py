@@ -155,6 +155,16 @@ class FitResult:
     anisotropy: str
     warnings: tuple[str, ...] = field(default=())
 
+    @property
+    def fitted_values(self) -> np.ndarray:
+        """The best model's semivariance at every class (vectors along each class's azimuth)."""
+        az = np.radians(self.points.azimuth)
+        h = self.points.distance
+        vectors = np.column_stack([h * np.sin(az), h * np.cos(az)])
+        model = self.best.model
+        anisotropic = any(not s.anisotropy.isotropic for s in model.structures)
+        return model.semivariance(vectors if anisotropic else h)
+
 
 @dataclass(frozen=True)
 class _Spec:
@@ -639,13 +649,3 @@ def points_from_rows(rows, min_pairs: int) -> ExperimentalPoints:
 
 
 SEMIVARIANCE_STATISTICS = ("semivariance", "semivariance_robust", "semivariance_median")
-
-
-def fitted_values(result: FitResult) -> np.ndarray:
-    """The best model's semivariance at every class (vectors along each class's azimuth)."""
-    az = np.radians(result.points.azimuth)
-    h = result.points.distance
-    vectors = np.column_stack([h * np.sin(az), h * np.cos(az)])
-    model = result.best.model
-    anisotropic = any(not s.anisotropy.isotropic for s in model.structures)
-    return model.semivariance(vectors if anisotropic else h)
