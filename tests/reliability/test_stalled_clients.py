@@ -115,20 +115,18 @@ def test_liveness_answers_within_a_second_while_both_workers_compute(service):
         status, _, _ = _post(service, _heavy_body(15_000, seed))
         results.append((status, time.perf_counter() - start))
 
-    started = time.perf_counter()
     workers = [threading.Thread(target=compute, args=(seed,)) for seed in (1, 2)]
     for t in workers:
         t.start()
-    time.sleep(1.0)
+    time.sleep(0.5)
     health = []
-    while time.perf_counter() - started < 2.5:
+    # Measure only while both computations are still running (however fast the machine is).
+    while all(t.is_alive() for t in workers):
         health.append(_timed_get(service + "/healthz"))
-    measured_until = time.perf_counter() - started
     for t in workers:
         t.join()
     assert [status for status, _ in results] == [200, 200]
-    # The measurements fell while both computations ran.
-    assert min(seconds for _, seconds in results) > measured_until, (results, measured_until)
+    assert len(health) >= 3, f"only {len(health)} liveness probes fell while both computations ran"
     assert all(code == 200 for code, _ in health)
     assert max(seconds for _, seconds in health) < 1.0, max(seconds for _, seconds in health)
 
