@@ -114,7 +114,12 @@ def test_limit_exceeded_problem_is_documented():
 def test_either_or_inputs_are_one_of():
     schemas = SPEC["components"]["schemas"]
     refs = lambda prop: [b["$ref"].rsplit("/", 1)[1] for b in prop["oneOf"]]  # noqa: E731
-    assert refs(schemas["ExperimentalRequest"]["properties"]["samples"]) == ["SampleColumns", "SampleFeatures"]
+    assert refs(schemas["ExperimentalRequest"]["properties"]["samples"]) == [
+        "SampleColumns",
+        "SampleFeatures",
+        "SampleVariableColumns",
+        "SampleFeatureVariables",
+    ]
     assert refs(schemas["ExperimentalRequest"]["properties"]["lags"]) == ["LagWidths", "LagEdges", "LagAuto"]
     body = lambda path: SPEC["paths"][path]["post"]["requestBody"]["content"]["application/json"]["schema"]  # noqa: E731
     assert refs(body("/v1/predictions")) == ["PredictionAtTargets", "PredictionOnGrid"]

@@ -11,6 +11,7 @@ import numpy as np
 from ..core.analysis import AnalysisOptions
 from ..core.data.declustering import decluster
 from ..core.data.samples import SampleSet, build_sample_set, columnar_pointer, input_hash
+from ..core.data.variables import MultiSampleSet, VariableInput, build_multi_sample_set, variables_from_mapping
 from ..core.errors import FieldIssue, InvalidInput, pointers_under
 from ..core.kriging.cross_validation import Scheme
 from ..core.kriging.neighbourhood import Neighbourhood
@@ -22,11 +23,14 @@ from ..core.stages import CrossValidationOptions, FitOptions, PredictionOptions,
 from ..core.variography.directions import DirectionClass
 from ..core.variography.experimental import ScatterRequest
 from ..core.variography.lags import LagRequest
+from .fields import pointer_token
 
 FEATURES = "/samples/geojson/features"
 
 
-def _geojson_pointer(value_property: str, id_property: str | None):
+def _geojson_pointer(value_property: str | None, id_property: str | None):
+    """Pointers into GeoJSON features; a variable's fields (``variables/<name>``) point at its property."""
+
     def pointer_for(name: str, index: int | None) -> str:
         if index is None:
             return FEATURES
@@ -35,6 +39,9 @@ def _geojson_pointer(value_property: str, id_property: str | None):
             return f"{base}/geometry/coordinates/{'xyz'.index(name)}"
         if name == "values":
             return f"{base}/properties/{value_property}"
+        for member in ("variables/", "censored/", "detection_limits/"):
+            if name.startswith(member):
+                return f"{base}/properties/{name[len(member) :]}"
         return f"{base}/properties/{id_property}" if id_property else f"{base}/id"
 
     return pointer_for
@@ -61,12 +68,18 @@ def _below_limit(raw) -> float | None:
     return None
 
 
-def _feature_columns(collection, value_property: str, id_property: str | None):
-    """Read Point features into columns; raises InvalidInput naming each bad feature."""
+def _feature_columns(collection, value_properties: list[str], id_property: str | None, *, optional: bool = False):
+    """Read Point features into columns; raises InvalidInput naming each bad feature.
+
+    Returns (columns, has_z) where columns holds x, y, z, ids and, per property,
+    ``values/<p>``, ``censored/<p>`` and ``limits/<p>``. With ``optional`` a missing or null
+    property is not measured (NaN) instead of an error.
+    """
     if collection.get("type") != "FeatureCollection" or not isinstance(collection.get("features"), list):
         raise InvalidInput.at("/samples/geojson", "must be a GeoJSON FeatureCollection with a features array")
-    pointer_for = _geojson_pointer(value_property, id_property)
-    columns: dict[str, list] = {"x": [], "y": [], "z": [], "values": [], "ids": [], "censored": [], "limits": []}
+    columns: dict[str, list] = {"x": [], "y": [], "z": [], "ids": []}
+    for name in value_properties:
+        columns.update({f"values/{name}": [], f"censored/{name}": [], f"limits/{name}": []})
     issues: list[FieldIssue] = []
     dims = set()
     for i, feature in enumerate(collection["features"]):
@@ -82,50 +95,118 @@ def _feature_columns(collection, value_property: str, id_property: str | None):
             continue
         numbers = [_number(c) for c in coordinates]
         issues.extend(
-            FieldIssue(pointer_for("xyz"[a], i), "not a finite number") for a, c in enumerate(numbers) if c is None
+            FieldIssue(f"{FEATURES}/{i}/geometry/coordinates/{a}", "not a finite number")
+            for a, c in enumerate(numbers)
+            if c is None
         )
         properties = feature.get("properties") or {}
-        raw = properties.get(value_property) if isinstance(properties, dict) else None
-        limit = _below_limit(raw)
-        value = limit if limit is not None else _number(raw)
-        if value is None:
-            issues.append(FieldIssue(pointer_for("values", i), "missing or not a finite number"))
+        if not isinstance(properties, dict):
+            properties = {}
+        for name in value_properties:
+            raw = properties.get(name)
+            limit = _below_limit(raw)
+            value = limit if limit is not None else _number(raw)
+            if value is None and not (optional and raw is None):
+                issues.append(
+                    FieldIssue(f"{FEATURES}/{i}/properties/{pointer_token(name)}", "missing or not a finite number")
+                )
+            columns[f"values/{name}"].append(np.nan if value is None else value)
+            columns[f"censored/{name}"].append(limit is not None)
+            columns[f"limits/{name}"].append(limit if limit is not None else np.nan)
         dims.add(len(coordinates))
         if len(issues) >= 20:
             break
         columns["x"].append(numbers[0])
         columns["y"].append(numbers[1])
         columns["z"].append(numbers[2] if len(numbers) == 3 else None)
-        columns["values"].append(value)
-        columns["censored"].append(limit is not None)
-        columns["limits"].append(limit if limit is not None else np.nan)
         identifier = properties.get(id_property) if id_property else feature.get("id")
         columns["ids"].append(str(identifier) if identifier is not None else str(i))
     if len(dims) > 1:
         issues.append(FieldIssue(FEATURES, "every Point must have the same number of coordinates (2 or 3)"))
     if issues:
         raise InvalidInput(issues[:20])
-    return columns, dims == {3}, pointer_for
+    return columns, dims == {3}
 
 
-def sample_set(document: dict) -> SampleSet:
-    """Build the :class:`SampleSet` of a request (columnar or GeoJSON samples)."""
+def _feature_variables(document: dict) -> MultiSampleSet:
     samples = document["samples"]
-    if "geojson" in samples:
-        columns, has_z, pointer_for = _feature_columns(
-            samples["geojson"], samples["value_property"], samples.get("id_property")
+    names = samples["variable_properties"]
+    repeated = sorted({n for n in names if names.count(n) > 1})
+    if repeated:
+        raise InvalidInput.at("/samples/variable_properties", f"names {repeated[0]!r} more than once")
+    columns, has_z = _feature_columns(samples["geojson"], names, samples.get("id_property"), optional=True)
+    units = samples.get("units") or {}
+    for name in units:
+        if name not in names:
+            raise InvalidInput.at(f"/samples/units/{pointer_token(name)}", "names no variable of variable_properties")
+    variables = [
+        VariableInput(
+            name=name,
+            values=np.array(columns[f"values/{name}"], dtype=np.float64),
+            censored=np.array(columns[f"censored/{name}"]) if any(columns[f"censored/{name}"]) else None,
+            detection_limits=np.array(columns[f"limits/{name}"]) if any(columns[f"censored/{name}"]) else None,
+            unit=units.get(name),
         )
+        for name in names
+    ]
+    return build_multi_sample_set(
+        variables,
+        np.array(columns["x"], dtype=np.float64),
+        np.array(columns["y"], dtype=np.float64),
+        np.array(columns["z"], dtype=np.float64) if has_z else None,
+        ids=columns["ids"],
+        coordinates=document.get("coordinates", "geographic"),
+        duplicates=document["duplicates"],
+        pointer_for=_geojson_pointer(None, samples.get("id_property")),
+        censoring=document.get("censoring", "half_limit"),
+    )
+
+
+def _column_variables(document: dict) -> MultiSampleSet:
+    samples = document["samples"]
+    limits = {
+        name: [np.nan if v is None else v for v in column]
+        for name, column in samples.get("detection_limits", {}).items()
+    }
+    variables = variables_from_mapping(
+        samples["variables"], censored=samples.get("censored"), detection_limits=limits, units=samples.get("units")
+    )
+    return build_multi_sample_set(
+        variables,
+        samples["x"],
+        samples.get("y"),
+        samples.get("z"),
+        ids=samples.get("ids"),
+        coordinates=document.get("coordinates", "planar"),
+        duplicates=document["duplicates"],
+        pointer_for=columnar_pointer,
+        censoring=document.get("censoring", "half_limit"),
+    )
+
+
+def samples_of(document: dict) -> SampleSet | MultiSampleSet:
+    """The request's samples: a :class:`SampleSet` for one variable (``values`` or ``value_property``),
+    a :class:`MultiSampleSet` for several (``variables`` or ``variable_properties``)."""
+    samples = document["samples"]
+    if "variable_properties" in samples:
+        return _feature_variables(document)
+    if "variables" in samples:
+        return _column_variables(document)
+    if "geojson" in samples:
+        value_property, id_property = samples["value_property"], samples.get("id_property")
+        columns, has_z = _feature_columns(samples["geojson"], [value_property], id_property)
+        censored = columns[f"censored/{value_property}"]
         return build_sample_set(
-            np.array(columns["values"], dtype=np.float64),
+            np.array(columns[f"values/{value_property}"], dtype=np.float64),
             np.array(columns["x"], dtype=np.float64),
             np.array(columns["y"], dtype=np.float64),
             np.array(columns["z"], dtype=np.float64) if has_z else None,
             ids=columns["ids"],
             coordinates=document.get("coordinates", "geographic"),
             duplicates=document["duplicates"],
-            pointer_for=pointer_for,
-            censored=np.array(columns["censored"]) if any(columns["censored"]) else None,
-            detection_limits=np.array(columns["limits"]) if any(columns["censored"]) else None,
+            pointer_for=_geojson_pointer(value_property, id_property),
+            censored=np.array(censored) if any(censored) else None,
+            detection_limits=np.array(columns[f"limits/{value_property}"]) if any(censored) else None,
             censoring=document.get("censoring", "half_limit"),
         )
     return build_sample_set(
@@ -143,6 +224,42 @@ def sample_set(document: dict) -> SampleSet:
         else None,
         censoring=document.get("censoring", "half_limit"),
     )
+
+
+def chosen_variable(document: dict, samples: MultiSampleSet, pointer: str = "/variable") -> str:
+    """The variable a single-variable request uses: ``variable`` when given, else the only one.
+
+    Raises
+    ------
+    InvalidInput
+        When ``variable`` names no variable of the samples, or is omitted while there are several.
+    """
+    name = document.get("variable")
+    if isinstance(name, dict):
+        # An analysis names its variable in an object (name and unit, for labels).
+        pointer = f"{pointer}/name"
+        name = name["name"] if name.get("name") in samples.names else None
+    if name is None:
+        if samples.count == 1:
+            return samples.names[0]
+        raise InvalidInput.at(
+            pointer,
+            f"the samples carry {samples.count} variables ({', '.join(samples.names)}); name the one this request uses",
+        )
+    if name not in samples.names:
+        raise InvalidInput.at(pointer, f"names no variable of the samples; they carry {', '.join(samples.names)}")
+    return name
+
+
+def sample_set(document: dict) -> SampleSet:
+    """The :class:`SampleSet` of a single-variable request (columnar or GeoJSON samples).
+
+    With several variables, the one ``variable`` names (or the only one) is used.
+    """
+    samples = samples_of(document)
+    if isinstance(samples, MultiSampleSet):
+        return samples.variable(chosen_variable(document, samples))
+    return samples
 
 
 def lag_request(document: dict) -> LagRequest:

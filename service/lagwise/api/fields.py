@@ -57,6 +57,67 @@ class NumberArray(fields.Field):
         return None if value is None else [float(v) for v in value]
 
 
+class NullableNumberArray(fields.Field):
+    """A JSON array of finite numbers or ``null`` (not measured), deserialised to float64 with NaN for null.
+
+    Numbers obey the rules of :class:`NumberArray`; errors name each offending index (at most 20).
+    """
+
+    def _deserialize(self, value, attr, data, **kwargs):
+        if not isinstance(value, list):
+            raise ValidationError("must be an array of numbers or nulls")
+        errors = {}
+        for index, element in enumerate(value):
+            message = None if element is None else _element_error(element)
+            if message:
+                errors[index] = [message]
+                if len(errors) == MAX_ELEMENT_ERRORS:
+                    break
+        if errors:
+            raise ValidationError(errors)
+        return np.array([np.nan if v is None else v for v in value], dtype=np.float64)
+
+    def _serialize(self, value, attr, obj, **kwargs):
+        return None if value is None else [None if math.isnan(v) else float(v) for v in value]
+
+
+def pointer_token(name: str) -> str:
+    """A JSON Pointer reference token (RFC 6901: ``~`` as ``~0``, ``/`` as ``~1``)."""
+    return name.replace("~", "~0").replace("/", "~1")
+
+
+class NamedColumns(fields.Dict):
+    """An object of named columns (one member per variable), at most ``max_names`` members.
+
+    Names have 1 to 60 printable characters. Errors are keyed by the name as a JSON
+    Pointer token, so they point at ``/samples/variables/<name>/<index>``.
+    """
+
+    def __init__(self, values: fields.Field, *, max_names: int, min_names: int = 0, **kwargs):
+        super().__init__(keys=fields.String(), values=values, **kwargs)
+        self.max_names = max_names
+        self.min_names = min_names
+
+    def _deserialize(self, value, attr, data, **kwargs):
+        if not isinstance(value, dict):
+            raise ValidationError("must be an object with one member per variable")
+        if not self.min_names <= len(value) <= self.max_names:
+            raise ValidationError(f"must name {self.min_names} to {self.max_names} variables, got {len(value)}")
+        out, errors = {}, {}
+        for name, column in value.items():
+            if not 1 <= len(name) <= 60 or any(not c.isprintable() for c in name):
+                errors[pointer_token(name)] = ["variable names have 1 to 60 printable characters"]
+                continue
+            try:
+                assert self.value_field is not None  # always given by __init__
+                out[name] = self.value_field.deserialize(column, **kwargs)
+            except ValidationError as exc:
+                errors[pointer_token(name)] = exc.messages
+        if errors:
+            raise ValidationError(errors)
+        return out
+
+
 class CappedList(fields.List):
     """A list whose element errors stop after :data:`MAX_ELEMENT_ERRORS` entries.
 
@@ -209,6 +270,13 @@ def number_array_properties(self, field, **kwargs) -> dict:
     """Document :class:`NumberArray` as an array of numbers."""
     if isinstance(field, NumberArray):
         return {"type": "array", "items": {"type": "number", "minimum": -MAX_MAGNITUDE, "maximum": MAX_MAGNITUDE}}
+    if isinstance(field, NullableNumberArray):
+        return {
+            "type": "array",
+            "items": {"type": ["number", "null"], "minimum": -MAX_MAGNITUDE, "maximum": MAX_MAGNITUDE},
+        }
+    if isinstance(field, NamedColumns):
+        return {"minProperties": field.min_names, "maxProperties": field.max_names}
     return {}
 
 

@@ -19,6 +19,7 @@ from marshmallow import EXCLUDE, Schema, ValidationError, fields, validate, vali
 from ..core.data.censoring import CENSORING_POLICIES
 from ..core.data.samples import COORDINATE_SYSTEMS, DUPLICATE_POLICIES
 from ..core.data.transforms import TRANSFORMS
+from ..core.data.variables import MAX_VARIABLES
 from ..core.kriging.systems import DRIFTS, KRIGING_TYPES, NUGGET_ROLES
 from ..core.modelling.families import ANISOTROPY, FAMILIES, NUGGET, UNIT_KINDS, Family, Parameter
 from ..core.modelling.fitting import SEMIVARIANCE_STATISTICS, WEIGHTINGS
@@ -34,7 +35,9 @@ from .fields import (
     AutoOrNested,
     CappedList,
     DirectionsOption,
+    NamedColumns,
     NuggetOption,
+    NullableNumberArray,
     NumberArray,
     Variants,
     by_discriminator,
@@ -114,13 +117,110 @@ class SampleFeatures(Schema):
     )
 
 
+def _units_field() -> NamedColumns:
+    return NamedColumns(
+        fields.String(validate=validate.Length(min=1, max=30)),
+        max_names=MAX_VARIABLES,
+        metadata={"description": "Unit of each variable (by name), for labels and the echo."},
+    )
+
+
+class SampleVariableColumns(Schema):
+    """Samples as columns carrying several named variables (null where a variable was not measured)."""
+
+    x = NumberArray(
+        required=True, metadata={"description": "Easting, or longitude in degrees for geographic coordinates."}
+    )
+    y = NumberArray(metadata={"description": "Northing, or latitude in degrees; makes the set 2-D."})
+    z = NumberArray(
+        metadata={
+            "description": "Elevation, positive up, same unit as x and y (metres for geographic); makes the set 3-D."
+        }
+    )
+    variables = NamedColumns(
+        NullableNumberArray(),
+        required=True,
+        min_names=1,
+        max_names=MAX_VARIABLES,
+        metadata={
+            "description": "One column per variable, as long as x; null where the variable was not measured "
+            "(heterotopic samples). Each variable needs at least two measured values.",
+            "example": {"lead": [120.0, None, 95.5], "zinc": [310.0, 280.0, None]},
+        },
+    )
+    ids = CappedList(fields.String(), metadata={"description": "Sample identifiers echoed in per-sample outputs."})
+    censored = NamedColumns(
+        CappedList(fields.Boolean()),
+        max_names=MAX_VARIABLES,
+        metadata={"description": "Per variable: true where the result is below its detection limit."},
+    )
+    detection_limits = NamedColumns(
+        CappedList(fields.Float(allow_none=True, allow_nan=False)),
+        max_names=MAX_VARIABLES,
+        metadata={"description": "Per variable: detection limits (its unit), needed where censored is true."},
+    )
+    units = _units_field()
+
+
+class SampleFeatureVariables(Schema):
+    """Samples as GeoJSON Point features (RFC 7946) carrying several variables as properties."""
+
+    geojson = fields.Dict(
+        required=True, metadata={"description": "A GeoJSON FeatureCollection (RFC 7946) of Point features."}
+    )
+    variable_properties = fields.List(
+        fields.String(validate=validate.Length(min=1, max=60)),
+        required=True,
+        validate=validate.Length(min=1, max=MAX_VARIABLES),
+        metadata={
+            "description": "Feature properties holding the variables; a missing or null property means not measured, "
+            'a value written like "<0.5" is censored.'
+        },
+    )
+    id_property = fields.String(
+        metadata={"description": "Feature property holding the identifier (default the feature id)."}
+    )
+    units = _units_field()
+
+
 def _sample_form(value: dict) -> str:
-    return "features" if "geojson" in value else "columns"
+    if "geojson" in value:
+        if "variable_properties" in value and "value_property" in value:
+            raise ValidationError(
+                {"value_property": ["give value_property (one variable) or variable_properties (several), not both"]}
+            )
+        return "feature_variables" if "variable_properties" in value else "features"
+    if "variables" in value:
+        if "values" in value:
+            raise ValidationError({"values": ["give values (one variable) or variables (several), not both"]})
+        return "variables"
+    return "columns"
 
 
 def samples_field(**kwargs) -> Variants:
-    """Samples as columns or as GeoJSON features."""
-    return Variants({"columns": SampleColumns, "features": SampleFeatures}, _sample_form, **kwargs)
+    """Samples as columns or as GeoJSON features, with one variable or several."""
+    return Variants(
+        {
+            "columns": SampleColumns,
+            "features": SampleFeatures,
+            "variables": SampleVariableColumns,
+            "feature_variables": SampleFeatureVariables,
+        },
+        _sample_form,
+        **kwargs,
+    )
+
+
+def variable_choice(**kwargs) -> fields.String:
+    """The variable to use when samples carry several (``samples.variables``)."""
+    return fields.String(
+        validate=validate.Length(min=1, max=60),
+        metadata={
+            "description": "With samples.variables: the name of the variable this request uses "
+            "(may be omitted when there is only one)."
+        },
+        **kwargs,
+    )
 
 
 class SampleOptions(Schema):
@@ -217,11 +317,13 @@ class ExperimentalRequest(SampleOptions):
     statistic = one_of(STATISTICS, load_default="semivariance")
     min_pairs = fields.Integer(strict=True, load_default=30, validate=validate.Range(min=1))
     pairs_for_class = fields.Nested(ScatterRequestSchema)
+    variable = variable_choice()
 
 
 class MapRequest(SampleOptions):
     """POST /v1/variogram-maps."""
 
+    variable = variable_choice()
     cell_size = finite(
         validate=validate.Range(min=0, min_inclusive=False),
         metadata={
@@ -366,13 +468,14 @@ class ModelFitRequest(SampleOptions):
     weighting = one_of(WEIGHTINGS, load_default="pairs")
     anisotropy = one_of(("none", "fit"), load_default="none")
     structures = fields.Integer(strict=True, load_default=1, validate=validate.OneOf((1, 2)))
+    variable = variable_choice()
 
     @validates_schema
     def _one_source(self, data, **kwargs):
         if ("samples" in data) == ("experimental" in data):
             raise ValidationError("give either samples or experimental (a previous experimental response), not both")
         if "experimental" in data:
-            clash = [k for k in ("lags", "directions", "coordinates") if k in data]
+            clash = [k for k in ("lags", "directions", "coordinates", "variable") if k in data]
             if clash:
                 raise ValidationError(f"{', '.join(clash)} apply to samples, not to a given experimental variogram")
 
@@ -392,7 +495,7 @@ class ModelFitFromExperimental(ModelFitRequest):
     experimental = fields.Nested(ExperimentalInput, required=True)
 
     class Meta:
-        exclude = ("samples", "lags", "directions", "coordinates")
+        exclude = ("samples", "lags", "directions", "coordinates", "variable")
 
 
 # ---- kriging -----------------------------------------------------------------------
@@ -427,6 +530,7 @@ class SchemeInput(Schema):
 
 class KrigingOptions(SampleOptions):
     model = fields.Nested(Model, required=True)
+    variable = variable_choice()
     kriging = fields.Nested(KrigingInput, load_default=lambda: {"type": "ordinary", "nugget_as": "micro_scale"})
     neighbourhood = fields.Nested(NeighbourhoodInput, allow_none=True, load_default=None)
 

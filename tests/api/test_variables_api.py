@@ -1,0 +1,131 @@
+"""samples.variables on the HTTP endpoints: parsing, selection of one variable, refusals naming field and index."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+PROBLEM = "application/problem+json"
+RNG = np.random.default_rng(12)
+N = 40
+X = RNG.uniform(0, 100, N).round(3).tolist()
+Y = RNG.uniform(0, 100, N).round(3).tolist()
+LEAD = RNG.lognormal(3, 0.5, N).round(3).tolist()
+ZINC = [None if i % 3 == 0 else v for i, v in enumerate(RNG.lognormal(4, 0.3, N).round(3).tolist())]
+
+
+def multi(**samples):
+    return {"x": X, "y": Y, "variables": {"lead": LEAD, "zinc": ZINC}, **samples}
+
+
+def problem(r, pointers):
+    assert r.status_code == 422, r.data[:500]
+    assert r.mimetype == PROBLEM
+    assert [e["pointer"] for e in r.json["errors"]] == pointers, r.json
+    return r.json
+
+
+def measured(column):
+    keep = [i for i, v in enumerate(column) if v is not None]
+    return [X[i] for i in keep], [Y[i] for i in keep], [column[i] for i in keep]
+
+
+@pytest.mark.parametrize("name, column", [("lead", LEAD), ("zinc", ZINC)])
+def test_a_selected_variable_equals_the_single_variable_request(client, name, column):
+    x, y, values = measured(column)
+    lags = {"width": 10, "count": 6}
+    one = client.post("/v1/experimental-variograms", json={"samples": multi(), "variable": name, "lags": lags})
+    alone = client.post(
+        "/v1/experimental-variograms", json={"samples": {"x": x, "y": y, "values": values}, "lags": lags}
+    )
+    assert one.status_code == alone.status_code == 200, one.json
+    assert one.json["directions"] == alone.json["directions"]
+    assert one.json["summary"]["samples"] == len(values)
+
+
+def test_model_fit_and_cross_validation_take_a_variable(client):
+    fit = client.post("/v1/model-fits", json={"samples": multi(), "variable": "zinc", "families": ["spherical"]})
+    assert fit.status_code == 200, fit.json
+    model = fit.json["model"]
+    cv = client.post("/v1/cross-validations", json={"samples": multi(), "variable": "lead", "model": model})
+    assert cv.status_code == 200, cv.json
+    assert cv.json["statistics"]["count"] == N
+
+
+def test_several_variables_without_a_choice_are_refused_clearly(client):
+    doc = problem(client.post("/v1/model-fits", json={"samples": multi()}), ["/variable"])
+    assert "lead, zinc" in doc["detail"]
+    problem(client.post("/v1/model-fits", json={"samples": multi(), "variable": "tin"}), ["/variable"])
+
+
+def test_one_variable_needs_no_choice(client):
+    r = client.post("/v1/variogram-maps", json={"samples": {"x": X, "y": Y, "variables": {"zinc": ZINC}}})
+    assert r.status_code == 200, r.json
+
+
+@pytest.mark.parametrize(
+    "samples, pointers",
+    [
+        (multi(values=LEAD), ["/samples/values"]),
+        ({"x": X, "y": Y, "variables": {"lead": LEAD, "zinc": ZINC[:-1]}}, ["/samples/variables/zinc"]),
+        ({"x": X, "y": Y, "variables": {"lead": LEAD, "zinc": [None] * N}}, ["/samples/variables/zinc"]),
+        ({"x": X, "y": Y, "variables": {"lead": LEAD, "zinc": [1.0] + [None] * (N - 1)}}, ["/samples/variables/zinc"]),
+        ({"x": X, "y": Y, "variables": {"lead": LEAD[:5] + ["a"] + LEAD[6:]}}, ["/samples/variables/lead/5"]),
+        ({"x": X, "y": Y, "variables": {"lead": LEAD, "zinc": ZINC}, "censored": {"tin": [False] * N}}, None),
+        ({"x": X, "y": Y, "variables": {}}, ["/samples/variables"]),
+    ],
+)
+def test_bad_variables_name_field_and_index(client, samples, pointers):
+    r = client.post("/v1/model-fits", json={"samples": samples, "variable": "lead"})
+    problem(r, pointers or ["/samples/censored/tin"])
+
+
+def test_non_finite_value_names_variable_and_index(client):
+    body = (
+        b'{"variable": "lead", "samples": {"x": [0, 1, 2, 3], "y": [0, 1, 0, 1], '
+        b'"variables": {"lead": [1, 2, 3, 1e400], "zinc": [1, null, 2, 3]}}}'
+    )
+    r = client.post("/v1/model-fits", data=body, content_type="application/json")
+    problem(r, ["/samples/variables/lead/3"])
+
+
+def test_censored_entries_per_variable(client):
+    zinc = [None, 2.0, 3.0, 4.0, 5.0, 1.0]
+    samples = {
+        "x": [0, 1, 2, 3, 4, 5],
+        "y": [0, 1, 0, 1, 0, 1],
+        "variables": {"zinc": zinc},
+        "censored": {"zinc": [True, False, False, False, False, False]},
+        "detection_limits": {"zinc": [0.5, None, None, None, None, None]},
+        "units": {"zinc": "mg/kg"},
+    }
+    r = client.post("/v1/experimental-variograms", json={"samples": samples, "lags": {"width": 2, "count": 3}})
+    assert r.status_code == 200, r.json
+    assert r.json["summary"]["samples"] == 6
+    assert any("detection limit" in w for w in r.json["warnings"])
+
+
+def feature(x, y, **properties):
+    return {"type": "Feature", "geometry": {"type": "Point", "coordinates": [x, y]}, "properties": properties}
+
+
+def test_geojson_variable_properties(client):
+    features = [feature(X[i], Y[i], lead=LEAD[i], **({} if ZINC[i] is None else {"zinc": ZINC[i]})) for i in range(N)]
+    features[1]["properties"]["zinc"] = "<0.5"
+    samples = {"geojson": {"type": "FeatureCollection", "features": features}, "variable_properties": ["lead", "zinc"]}
+    r = client.post(
+        "/v1/experimental-variograms",
+        json={"samples": samples, "coordinates": "planar", "variable": "zinc", "lags": {"width": 10, "count": 4}},
+    )
+    assert r.status_code == 200, r.json
+    assert r.json["summary"]["samples"] == sum(v is not None for v in ZINC) + (ZINC[1] is None)
+
+
+def test_geojson_bad_property_names_the_feature(client):
+    features = [feature(X[i], Y[i], lead=LEAD[i], zinc=1.0 + i) for i in range(N)]
+    features[7]["properties"]["zinc"] = "high"
+    samples = {"geojson": {"type": "FeatureCollection", "features": features}, "variable_properties": ["lead", "zinc"]}
+    r = client.post("/v1/model-fits", json={"samples": samples, "coordinates": "planar", "variable": "zinc"})
+    problem(r, ["/samples/geojson/features/7/properties/zinc"])
+    both = {**samples, "value_property": "lead"}
+    problem(client.post("/v1/model-fits", json={"samples": both, "variable": "zinc"}), ["/samples/value_property"])
