@@ -30,7 +30,9 @@ def test_analysis_equals_the_separate_endpoints(client, demo, transform):
         doc["experimental"]["omnidirectional"]["directions"][0]["classes"] == experimental["directions"][0]["classes"]
     )
     fit = client.post("/v1/model-fits", json={"experimental": experimental}).json
-    assert doc["fit"]["model"] == fit["model"] and doc["fit"]["candidates"] == fit["candidates"]
+    echoed = dict(doc["fit"]["model"])
+    assert echoed.pop("transform") == transform
+    assert echoed == fit["model"] and doc["fit"]["candidates"] == fit["candidates"]
     cv = client.post("/v1/cross-validations", json={"samples": samples, "model": fit["model"]}).json
     assert doc["cross_validation"]["statistics"] == cv["statistics"]
     assert doc["parameters"]["transform"]["kind"] == transform
@@ -190,4 +192,4 @@ def test_constant_values_get_a_plain_verdict(client):
         "level": "no_structure",
         "text": "All values are equal: there is no variation to model or map.",
     }
-    assert doc["fit"]["model"] == {"nugget": 0.0, "structures": []}
+    assert doc["fit"]["model"] == {"nugget": 0.0, "structures": [], "transform": "none"}

@@ -106,7 +106,7 @@ def test_too_few_classes(client, field_samples):
 def test_constant_data_gives_zero_nugget(client):
     cols = {"x": list(range(40)), "y": [i % 5 for i in range(40)], "values": [3.0] * 40}
     doc = client.post(URL, json={"samples": cols, "lags": {"width": 2, "count": 6}, "min_pairs": 1}).json
-    assert doc["model"] == {"nugget": 0.0, "structures": []}
+    assert doc["model"] == {"nugget": 0.0, "structures": [], "transform": "none"}
     assert any("zero pure nugget" in w for w in doc["warnings"])
 
 

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import math
+from collections.abc import Callable
 from dataclasses import dataclass
 from typing import Any
 
@@ -364,13 +365,30 @@ def variogram_model(document: dict) -> VariogramModel:
     return VariogramModel(float(raw["nugget"]), structures)
 
 
-def kriging_spec(document: dict, samples: SampleSet | None = None) -> KrigingSpec:
-    """The kriging options; simple kriging without a mean takes the samples' declustered mean (when given samples)."""
+def kriging_spec(
+    document: dict, samples: SampleSet | None = None, default_mean: Callable[[], float] | None = None
+) -> KrigingSpec:
+    """The kriging options; simple kriging without a mean takes ``default_mean()`` or else the
+    samples' declustered mean (when given samples)."""
     k = document["kriging"]
     mean = k.get("mean")
+    if mean is None and k["type"] == "simple" and default_mean is not None:
+        mean = default_mean()
     if mean is None and k["type"] == "simple" and samples is not None:
         mean = decluster(samples.coords, samples.values).mean_of(samples.values)
     return KrigingSpec(type=k["type"], mean=mean, drift=k.get("drift"), nugget_as=k["nugget_as"])
+
+
+def transform_kind(document: dict) -> str:
+    """The request's transform: as given, else the model's (the one it was fitted in), else none."""
+    given, fitted = document.get("transform"), document["model"].get("transform")
+    if given is not None and fitted is not None and given != fitted:
+        raise InvalidInput.at(
+            "/transform",
+            f"the model was fitted to {fitted} values (model.transform) but transform is {given}: "
+            "give the transform the model was fitted in, or refit",
+        )
+    return given or fitted or "none"
 
 
 def neighbourhood(document: dict) -> Neighbourhood:

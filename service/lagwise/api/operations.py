@@ -14,8 +14,7 @@ from flask import Blueprint, Response, current_app, g, request
 from .. import __version__
 from ..core.analysis import analyse
 from ..core.deadline import deadline
-from ..core.kriging.cross_validation import cross_validate
-from ..core.kriging.prediction import predict
+from ..core.kriging.transformed import cross_validate_transformed, predict_transformed, working_samples
 from ..core.modelling.families import FIT_SCALES, family_catalogue, model_parameter_catalogue
 from ..core.modelling.fitting import fit_model
 from ..core.modelling.from_samples import fit_samples
@@ -164,8 +163,9 @@ def model_fits():
     options = {k: document[k] for k in ("families", "nugget", "weighting", "anisotropy", "structures")}
     if "samples" in document:
         samples = convert.sample_set(document)
+        working = working_samples(samples, document["transform"])
         result = fit_samples(
-            samples,
+            working.samples,
             lags=convert.lag_request(document),
             directions=convert.direction_classes(document),
             statistic=document["statistic"],
@@ -185,6 +185,9 @@ def model_fits():
             options={"families": options["families"], "structures": options["structures"]},
         )
         body["warnings"] = list(result.experimental.warnings) + body["warnings"]
+        for model in [body["model"]] + [c["model"] for c in body["candidates"] if c["model"] is not None]:
+            model["transform"] = document["transform"]
+        body["parameters"]["transform"] = document["transform"]
         pairs = sum(row.pairs for d in result.experimental.directions for row in d.classes)
         return with_provenance(body, samples.input_hash, samples.size, pairs)
     points, dimension, variance, statistic, digest = convert.experimental_points(document, document["min_pairs"])
@@ -209,10 +212,15 @@ def model_fits():
 def cross_validations():
     document = load_json(CrossValidationRequest())
     samples = convert.sample_set(document)
-    model, spec = convert.variogram_model(document), convert.kriging_spec(document, samples)
+    working = working_samples(samples, convert.transform_kind(document))
+    model, spec = (
+        convert.variogram_model(document),
+        convert.kriging_spec(document, default_mean=lambda: working.simple_kriging_mean),
+    )
     hood, scheme = convert.neighbourhood(document), convert.scheme(document)
-    result = cross_validate(
-        samples,
+    result = cross_validate_transformed(
+        working,
+        samples.values,
         model,
         spec,
         hood,
@@ -222,6 +230,7 @@ def cross_validations():
         workers=numba.get_num_threads(),
     )
     body = serialize.cross_validation(result, samples, model, spec, hood, scheme, document["outlier_threshold"])
+    serialize.add_transform(body, working, model)
     return with_provenance(body, samples.input_hash, samples.size)
 
 
@@ -235,18 +244,20 @@ def cross_validations():
 def predictions():
     document = load_json(PredictionRequest())
     samples = convert.sample_set(document)
+    working = working_samples(samples, convert.transform_kind(document))
     model, spec, hood = (
         convert.variogram_model(document),
-        convert.kriging_spec(document, samples),
+        convert.kriging_spec(document, default_mean=lambda: working.simple_kriging_mean),
         convert.neighbourhood(document),
     )
-    result = predict(
-        samples,
+    result = predict_transformed(
+        working,
         model,
         spec=spec,
         neighbourhood=hood,
         targets=convert.targets(document, samples.dimension),
         grid=convert.grid(document),
+        thresholds=tuple(document["thresholds"]),
         weights_for=tuple(document.get("return_weights", ())),
         limits=settings().limits,
         workers=numba.get_num_threads(),

@@ -402,6 +402,13 @@ class Model(Schema):
         load_default=list,
         validate=validate.Length(max=5),
     )
+    transform = one_of(
+        TRANSFORMS,
+        metadata={
+            "description": "The transform the model was fitted in (echoed by fits): kriging with this model runs "
+            "on the transformed values and back-transforms, unless the request says otherwise."
+        },
+    )
 
 
 # ---- fitting -----------------------------------------------------------------------
@@ -469,6 +476,11 @@ class ModelFitRequest(SampleOptions):
     anisotropy = one_of(("none", "fit"), load_default="none")
     structures = fields.Integer(strict=True, load_default=1, validate=validate.OneOf((1, 2)))
     variable = variable_choice()
+    transform = one_of(
+        TRANSFORMS,
+        load_default="none",
+        metadata={"description": "Fit to the transformed values (samples only); the model echoes it."},
+    )
 
     @validates_schema
     def _one_source(self, data, **kwargs):
@@ -495,7 +507,7 @@ class ModelFitFromExperimental(ModelFitRequest):
     experimental = fields.Nested(ExperimentalInput, required=True)
 
     class Meta:
-        exclude = ("samples", "lags", "directions", "coordinates", "variable")
+        exclude = ("samples", "lags", "directions", "coordinates", "variable", "transform")
 
 
 # ---- kriging -----------------------------------------------------------------------
@@ -531,6 +543,13 @@ class SchemeInput(Schema):
 class KrigingOptions(SampleOptions):
     model = fields.Nested(Model, required=True)
     variable = variable_choice()
+    transform = one_of(
+        TRANSFORMS,
+        metadata={
+            "description": "Krige the transformed values and back-transform (parameters.transform states how). "
+            "Default: the model's transform, else none."
+        },
+    )
     kriging = fields.Nested(KrigingInput, load_default=lambda: {"type": "ordinary", "nugget_as": "micro_scale"})
     neighbourhood = fields.Nested(NeighbourhoodInput, allow_none=True, load_default=None)
 
@@ -571,6 +590,12 @@ class PredictionRequest(KrigingOptions):
         fields.Integer(strict=True, validate=validate.Range(min=0)),
         validate=validate.Length(max=20),
         metadata={"description": "Target indexes whose kriging weights are returned (at most 20)."},
+    )
+    thresholds = fields.List(
+        finite(),
+        validate=validate.Length(max=MAX_THRESHOLDS),
+        load_default=list,
+        metadata={"description": "Values in original units: P(value > threshold) per target (exceedance)."},
     )
 
     @validates_schema
@@ -1025,7 +1050,16 @@ class GridSchema(Schema):
     order = fields.String()
 
 
-@always_present("y", "z", "grid", "weights")
+@always_present()
+class ExceedanceSchema(Schema):
+    threshold = fields.Float(metadata={"description": "Original units."})
+    probability = fields.List(
+        fields.Float(allow_none=True),
+        metadata={"description": "P(value > threshold), aligned with estimate (null where no estimate)."},
+    )
+
+
+@always_present("y", "z", "grid", "weights", "exceedance")
 class PredictionResponse(ResultEnvelope):
     x = fields.List(fields.Float())
     y = fields.List(fields.Float(), metadata={"description": "2-D and 3-D samples."})
@@ -1035,6 +1069,10 @@ class PredictionResponse(ResultEnvelope):
     grid = fields.Nested(GridSchema, metadata={"description": "Predictions on a grid."})
     unestimated = fields.List(fields.Nested(UnestimatedSchema))
     weights = fields.List(fields.Nested(WeightsSchema), metadata={"description": "When return_weights was given."})
+    exceedance = fields.List(
+        fields.Nested(ExceedanceSchema), metadata={"description": "When thresholds were given (parameters.exceedance)."}
+    )
+    support = one_of(("point", "block"), metadata={"description": "What estimate and variance refer to."})
 
 
 @always_present()

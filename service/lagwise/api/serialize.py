@@ -2,8 +2,12 @@
 
 from __future__ import annotations
 
+import math
+
 from ..core.analysis import FAN_DESCRIPTION
 from ..core.data.samples import SampleSet
+from ..core.kriging.exceedance import reading
+from ..core.kriging.transformed import units_warning
 from ..core.selection import RULE as SELECTION_RULE
 from ..core.variography.experimental import ExperimentalVariogram
 from ..core.variography.maps import VariogramMap
@@ -254,14 +258,49 @@ def cross_validation(result, samples: SampleSet, model, spec, neighbourhood, sch
     }
 
 
-def prediction(result, samples: SampleSet, model, spec, neighbourhood) -> dict:
-    """Response body of ``POST /v1/predictions`` (without provenance)."""
+CROSS_VALIDATION_UNITS = (
+    "observed, estimate, standard_deviation and error in original units (back-transformed mean and standard "
+    "deviation of each held-out estimate); standardized_error, outlier, the standardized statistics and "
+    "interval_coverage_95 in the transformed space, where the kriging error is read as Gaussian"
+)
+
+
+def add_transform(document: dict, working, model) -> None:
+    """State the transform (and its back-transform) in a cross-validation's ``parameters``; warn when the
+    model looks untransformed."""
+    document["parameters"]["transform"] = working.transform.as_dict()
+    if working.transform.kind != "none":
+        document["parameters"]["units"] = CROSS_VALIDATION_UNITS
+    note = units_warning(model, working)
+    if note:
+        document["warnings"].append(note)
+
+
+def exceedance_parameters(found, spec) -> dict:
+    """How exceedance probabilities were read (thresholds in original and transformed units)."""
+    return {
+        **reading(spec.type, spec.nugget_as),
+        "thresholds": list(found.thresholds),
+        "transformed_thresholds": [t if math.isfinite(t) else None for t in found.transformed],
+    }
+
+
+def exceedance(found) -> list[dict]:
+    return [{"threshold": t, "probability": row} for t, row in zip(found.thresholds, found.probability, strict=True)]
+
+
+def prediction(answer, samples: SampleSet, model, spec, neighbourhood) -> dict:
+    """Response body of ``POST /v1/predictions`` (without provenance); ``answer`` a TransformedPrediction."""
+    result = answer.result
     points = result.targets
     p = result.prediction
     document = {name: points[:, a] for a, name in enumerate(("x", "y", "z")[: points.shape[1]])}
-    document.update(estimate=p.estimate, variance=p.variance, unestimated=_unestimated(p.reasons))
+    document.update(estimate=answer.estimate, variance=answer.variance, unestimated=_unestimated(p.reasons))
     if result.grid is not None:
         document["grid"] = result.grid.as_dict()
+    if answer.exceedance is not None:
+        document["exceedance"] = exceedance(answer.exceedance)
+    document["support"] = "point"
     if p.weights:
         document["weights"] = [
             {
@@ -275,8 +314,16 @@ def prediction(result, samples: SampleSet, model, spec, neighbourhood) -> dict:
     document["parameters"] = {
         **kriging_parameters(samples, model, spec, neighbourhood),
         "variance": "kriging variance (includes the nugget unless nugget_as is measurement_error)",
+        "transform": answer.transform.as_dict(),
     }
-    document["warnings"] = list(samples.warnings)
+    if answer.transform.kind != "none":
+        document["parameters"]["variance"] += (
+            "; estimate and variance are the back-transformed mean and variance (transform.method), "
+            "model and weights in transformed units"
+        )
+    if answer.exceedance is not None:
+        document["parameters"]["exceedance"] = exceedance_parameters(answer.exceedance, spec)
+    document["warnings"] = list(samples.warnings) + list(answer.warnings)
     return document
 
 
@@ -329,7 +376,10 @@ def analysis(result, samples: SampleSet, figures: dict, options, figure_options:
             "residual": _experimental_body(result.residual) if result.residual is not None else None,
             "anisotropy": _anisotropy(result.anisotropy),
         },
-        "fit": {**{k: fit_body[k] for k in ("diagnostics", "candidates")}, "model": result.model.as_dict()},
+        "fit": {
+            **{k: fit_body[k] for k in ("diagnostics", "candidates")},
+            "model": {**result.model.as_dict(), "transform": result.transform.kind},
+        },
         "selection": _selection(result.selection),
         "cross_validation": None,
         "prediction": None,
