@@ -119,6 +119,7 @@ def test_either_or_inputs_are_one_of():
         "SampleFeatures",
         "SampleVariableColumns",
         "SampleFeatureVariables",
+        "SampleRaster",
     ]
     assert refs(schemas["ExperimentalRequest"]["properties"]["lags"]) == ["LagWidths", "LagEdges", "LagAuto"]
     body = lambda path: SPEC["paths"][path]["post"]["requestBody"]["content"]["application/json"]["schema"]  # noqa: E731

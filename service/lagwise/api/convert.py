@@ -11,6 +11,7 @@ import numpy as np
 
 from ..core.analysis import AnalysisOptions
 from ..core.data.declustering import decluster
+from ..core.data.raster import Raster, build_raster, raster_points
 from ..core.data.samples import SampleSet, build_sample_set, columnar_pointer, input_hash
 from ..core.data.variables import MultiSampleSet, VariableInput, build_multi_sample_set, variables_from_mapping
 from ..core.errors import FieldIssue, InvalidInput, pointers_under
@@ -18,6 +19,7 @@ from ..core.kriging.cross_validation import Scheme
 from ..core.kriging.neighbourhood import Neighbourhood
 from ..core.kriging.prediction import Grid
 from ..core.kriging.systems import KrigingSpec
+from ..core.limits import Limits
 from ..core.modelling.fitting import SEMIVARIANCE_STATISTICS, points_from_rows
 from ..core.modelling.models import FAMILIES, Anisotropy, Structure, VariogramModel
 from ..core.stages import CrossValidationOptions, FitOptions, PredictionOptions, VariogramOptions
@@ -185,10 +187,24 @@ def _column_variables(document: dict) -> MultiSampleSet:
     )
 
 
-def samples_of(document: dict) -> SampleSet | MultiSampleSet:
-    """The request's samples: a :class:`SampleSet` for one variable (``values`` or ``value_property``),
-    a :class:`MultiSampleSet` for several (``variables`` or ``variable_properties``)."""
+def raster(document: dict) -> Raster | None:
+    """The request's raster, or None for other forms of samples."""
+    given = document["samples"].get("raster")
+    if given is None:
+        return None
+    if document.get("coordinates", "planar") != "planar":
+        raise InvalidInput.at("/coordinates", "a raster has planar coordinates")
+    return build_raster(given["origin"], given["spacing"], given["shape"], given["values"])
+
+
+def samples_of(document: dict, limits: Limits | None = None) -> SampleSet | MultiSampleSet:
+    """The request's samples: a :class:`SampleSet` for one variable (``values`` or ``value_property``,
+    or a raster's present cells as points within ``limits.max_samples``), a :class:`MultiSampleSet`
+    for several (``variables`` or ``variable_properties``)."""
     samples = document["samples"]
+    grid = raster(document)
+    if grid is not None:
+        return raster_points(grid, limits or Limits())
     if "variable_properties" in samples:
         return _feature_variables(document)
     if "variables" in samples:
@@ -252,12 +268,12 @@ def chosen_variable(document: dict, samples: MultiSampleSet, pointer: str = "/va
     return name
 
 
-def sample_set(document: dict) -> SampleSet:
-    """The :class:`SampleSet` of a single-variable request (columnar or GeoJSON samples).
+def sample_set(document: dict, limits: Limits | None = None) -> SampleSet:
+    """The :class:`SampleSet` of a single-variable request (columnar or GeoJSON samples, or a raster's cells).
 
     With several variables, the one ``variable`` names (or the only one) is used.
     """
-    samples = samples_of(document)
+    samples = samples_of(document, limits)
     if isinstance(samples, MultiSampleSet):
         return samples.variable(chosen_variable(document, samples))
     return samples

@@ -14,12 +14,14 @@ from flask import Blueprint, Response, current_app, g, request
 from .. import __version__
 from ..core.analysis import analyse
 from ..core.deadline import deadline
+from ..core.errors import InvalidInput
 from ..core.kriging.transformed import cross_validate_transformed, predict_transformed, working_samples
 from ..core.modelling.families import FIT_SCALES, family_catalogue, model_parameter_catalogue
 from ..core.modelling.fitting import fit_model
 from ..core.modelling.from_samples import fit_samples
-from ..core.variography.experimental import experimental_variogram
-from ..core.variography.maps import variogram_map
+from ..core.variography.experimental import experimental_variogram, raster_variogram
+from ..core.variography.fft import FFT_STATISTICS
+from ..core.variography.maps import raster_map, variogram_map
 from . import convert, serialize
 from .body import load_json
 from .figure_set import render
@@ -118,7 +120,25 @@ def with_provenance(document: dict, input_sha256: str, samples: int = 0, pairs: 
 )
 def experimental_variograms():
     document = load_json(ExperimentalRequest())
-    samples = convert.sample_set(document)
+    grid = convert.raster(document)
+    method = document.get("method") or ("exact" if grid is None else "auto")
+    on_grid = grid is not None and (method == "grid" or (method == "auto" and document["statistic"] in FFT_STATISTICS))
+    if grid is not None and on_grid:
+        if "pairs_for_class" in document:
+            raise InvalidInput.at(
+                "/pairs_for_class", "h-scattergrams need method 'exact' (the raster's cells as points)"
+            )
+        result = raster_variogram(
+            grid,
+            lags=convert.lag_request(document),
+            directions=convert.direction_classes(document),
+            statistic=document["statistic"],
+            min_pairs=document["min_pairs"],
+            limits=settings().limits,
+        )
+        pairs = sum(row.pairs for d in result.directions for row in d.classes)
+        return with_provenance(serialize.experimental(result, grid), grid.input_hash, grid.size, pairs)
+    samples = convert.sample_set(document, settings().limits)
     result = experimental_variogram(
         samples,
         lags=convert.lag_request(document),
@@ -127,7 +147,15 @@ def experimental_variograms():
         min_pairs=document["min_pairs"],
         pairs_for_class=convert.scatter_request(document),
         limits=settings().limits,
+        method="exact" if grid is not None else method,
+        tolerance=document["tolerance"],
     )
+    if grid is not None:
+        result = replace(
+            result,
+            warnings=result.warnings
+            + (f"{document['statistic']!r} is not an FFT statistic: the raster's cells were taken as points",),
+        )
     pairs = sum(row.pairs for d in result.directions for row in d.classes)
     return with_provenance(serialize.experimental(result, samples), samples.input_hash, samples.size, pairs)
 
@@ -137,7 +165,20 @@ def experimental_variograms():
 )
 def variogram_maps():
     document = load_json(MapRequest())
-    samples = convert.sample_set(document)
+    grid = convert.raster(document)
+    if grid is not None and document["statistic"] in FFT_STATISTICS:
+        found = raster_map(
+            grid,
+            cell_size=document.get("cell_size"),
+            cells=document.get("cells"),
+            statistic=document["statistic"],
+            min_pairs=document["min_pairs"],
+            limits=settings().limits,
+        )
+        return with_provenance(
+            serialize.variogram_map(found, grid), grid.input_hash, grid.size, int(found.pairs.sum()) // 2
+        )
+    samples = convert.sample_set(document, settings().limits)
     result = variogram_map(
         samples,
         cell_size=document.get("cell_size"),
@@ -162,7 +203,7 @@ def model_fits():
     document = load_json(ModelFitRequest())
     options = {k: document[k] for k in ("families", "nugget", "weighting", "anisotropy", "structures")}
     if "samples" in document:
-        samples = convert.sample_set(document)
+        samples = convert.sample_set(document, settings().limits)
         working = working_samples(samples, document["transform"])
         result = fit_samples(
             working.samples,
@@ -211,7 +252,7 @@ def model_fits():
 )
 def cross_validations():
     document = load_json(CrossValidationRequest())
-    samples = convert.sample_set(document)
+    samples = convert.sample_set(document, settings().limits)
     working = working_samples(samples, convert.transform_kind(document))
     model, spec = (
         convert.variogram_model(document),
@@ -243,7 +284,7 @@ def cross_validations():
 )
 def predictions():
     document = load_json(PredictionRequest())
-    samples = convert.sample_set(document)
+    samples = convert.sample_set(document, settings().limits)
     working = working_samples(samples, convert.transform_kind(document))
     model, spec, hood = (
         convert.variogram_model(document),
@@ -274,7 +315,7 @@ def predictions():
 )
 def analyses():
     document = load_json(AnalysisRequest())
-    samples = convert.sample_set(document)
+    samples = convert.sample_set(document, settings().limits)
     options = replace(convert.analysis_options(document), with_map="variogram_map" in document["figures"])
     result = analyse(samples, options, limits=settings().limits, workers=numba.get_num_threads())
     figures = render(result, samples, document)

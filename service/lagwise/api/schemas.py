@@ -26,6 +26,7 @@ from ..core.modelling.fitting import SEMIVARIANCE_STATISTICS, WEIGHTINGS
 from ..core.modelling.models import Anisotropy
 from ..core.selection import STRATEGY_NAMES
 from ..core.stages import ANISOTROPY_CHOICES
+from ..core.variography.gridded import DEFAULT_TOLERANCE, METHODS
 from ..core.variography.lags import AUTO_METHODS, MAX_CLASSES
 from ..core.variography.statistics import CLASS_REASONS, STATISTICS
 from ..core.verdict import LEVELS as VERDICT_LEVELS
@@ -183,7 +184,38 @@ class SampleFeatureVariables(Schema):
     units = _units_field()
 
 
+class RasterGrid(Schema):
+    """A regular 2-D grid of values (planar coordinates); a cell's value sits at its node, origin + i spacing."""
+
+    origin = fields.List(
+        finite(), required=True, validate=validate.Length(equal=2), metadata={"description": "[x0, y0] of node (0, 0)."}
+    )
+    spacing = fields.List(
+        finite(validate=validate.Range(min=0, min_inclusive=False)),
+        required=True,
+        validate=validate.Length(equal=2),
+        metadata={"description": "[dx, dy] between neighbouring nodes, coordinate units."},
+    )
+    shape = fields.List(
+        fields.Integer(strict=True, validate=validate.Range(min=1)),
+        required=True,
+        validate=validate.Length(equal=2),
+        metadata={"description": "[nx, ny] nodes along x and y."},
+    )
+    values = NullableNumberArray(
+        required=True, metadata={"description": "nx * ny values, x fastest (i + nx j); null for a missing cell."}
+    )
+
+
+class SampleRaster(Schema):
+    """Samples on a raster: experimental variograms and maps by FFT; points elsewhere (within the sample limit)."""
+
+    raster = fields.Nested(RasterGrid, required=True)
+
+
 def _sample_form(value: dict) -> str:
+    if "raster" in value:
+        return "raster"
     if "geojson" in value:
         if "variable_properties" in value and "value_property" in value:
             raise ValidationError(
@@ -205,6 +237,7 @@ def samples_field(**kwargs) -> Variants:
             "features": SampleFeatures,
             "variables": SampleVariableColumns,
             "feature_variables": SampleFeatureVariables,
+            "raster": SampleRaster,
         },
         _sample_form,
         **kwargs,
@@ -318,6 +351,19 @@ class ExperimentalRequest(SampleOptions):
     min_pairs = fields.Integer(strict=True, load_default=30, validate=validate.Range(min=1))
     pairs_for_class = fields.Nested(ScatterRequestSchema)
     variable = variable_choice()
+    method = one_of(
+        METHODS,
+        metadata={
+            "description": "exact (pair engine), grid (FFT on a fine grid of binned samples, with an error bound per "
+            "class; a raster is its own grid, exact), or auto (rasters: their grid; scattered samples: exact unless "
+            "over LAGWISE_MAX_PAIRS). Default: exact for scattered samples, auto for rasters."
+        },
+    )
+    tolerance = finite(
+        load_default=DEFAULT_TOLERANCE,
+        validate=validate.Range(min=0, max=1, min_inclusive=False, max_inclusive=False),
+        metadata={"description": "Grid method: relative error bound above which a class is flagged."},
+    )
 
 
 class MapRequest(SampleOptions):
@@ -812,7 +858,17 @@ class SummarySchema(Schema):
     declustering = fields.Nested(DeclusteringSchema, allow_none=True)
 
 
-@always_present("reason", "tail_mean", "head_mean", "tail_sd", "head_sd", "uncertainty_reason")
+@always_present(
+    "reason",
+    "tail_mean",
+    "head_mean",
+    "tail_sd",
+    "head_sd",
+    "uncertainty_reason",
+    "error_bound",
+    "pair_bound",
+    "bound_exceeded",
+)
 class ClassSchema(Schema):
     lower = fields.Float()
     upper = fields.Float()
@@ -839,6 +895,18 @@ class ClassSchema(Schema):
         metadata={"description": "[lower, upper] 95 % interval of the class's expected value."},
     )
     uncertainty_reason = fields.String(metadata={"description": "Why standard_error is null."})
+    error_bound = fields.Float(
+        allow_none=True,
+        metadata={
+            "description": "Grid method: bound on |value - exact value| / |value| (0 for rasters; null when undefined)."
+        },
+    )
+    pair_bound = fields.Integer(
+        metadata={"description": "Grid method: largest difference of pairs from the exact path's count."}
+    )
+    bound_exceeded = fields.Boolean(
+        metadata={"description": "Grid method: error_bound is above parameters.grid.tolerance (or undefined)."}
+    )
 
 
 @always_present("dip", "dip_tolerance", "vertical_bandwidth")

@@ -5,6 +5,7 @@ from __future__ import annotations
 import math
 
 from ..core.analysis import FAN_DESCRIPTION
+from ..core.data.raster import Raster
 from ..core.data.samples import SampleSet
 from ..core.kriging.exceedance import reading
 from ..core.kriging.transformed import units_warning
@@ -20,8 +21,22 @@ def _as_float(value):
     return None if value is None else float(value)
 
 
-def sample_parameters(samples: SampleSet) -> dict:
+def raster_parameters(raster: Raster) -> dict:
+    """Resolved raster for the audit trail."""
+    return {
+        "coordinates": "planar",
+        "dimension": 2,
+        "samples_received": int(raster.grid.size),
+        "samples_used": raster.size,
+        "distance_unit": "coordinate units",
+        "raster": {"origin": list(raster.origin), "spacing": list(raster.spacing), "shape": list(raster.shape)},
+    }
+
+
+def sample_parameters(samples: SampleSet | Raster) -> dict:
     """Resolved sample handling for the audit trail."""
+    if isinstance(samples, Raster):
+        return raster_parameters(samples)
     out = {
         "coordinates": samples.coordinates,
         "duplicates": samples.duplicates.policy,
@@ -39,7 +54,7 @@ def sample_parameters(samples: SampleSet) -> dict:
     return out
 
 
-def experimental(result: ExperimentalVariogram, samples: SampleSet) -> dict:
+def experimental(result: ExperimentalVariogram, samples: SampleSet | Raster) -> dict:
     """Response body of ``POST /v1/experimental-variograms`` (without provenance)."""
     dimension = samples.dimension
     directions = []
@@ -60,6 +75,8 @@ def experimental(result: ExperimentalVariogram, samples: SampleSet) -> dict:
             "angle_convention": ANGLES,
             "class_convention": CLASSES,
             "class_uncertainty": uncertainty_parameters(result),
+            "method": result.method,
+            **({} if result.grid is None else {"grid": result.grid.as_dict()}),
         },
         "warnings": list(result.warnings),
     }
@@ -113,6 +130,8 @@ def _class_row(row) -> dict:
         out["reason"] = row.reason
     if row.standard_error is None and row.uncertainty_reason is not None:
         out["uncertainty_reason"] = row.uncertainty_reason
+    if row.bound_exceeded is not None:
+        out.update(error_bound=_as_float(row.error_bound), pair_bound=row.pair_bound, bound_exceeded=row.bound_exceeded)
     if row.tail_mean is not None:
         out.update(
             tail_mean=_as_float(row.tail_mean),
@@ -123,7 +142,7 @@ def _class_row(row) -> dict:
     return out
 
 
-def variogram_map(result: VariogramMap, samples: SampleSet) -> dict:
+def variogram_map(result: VariogramMap, samples: SampleSet | Raster) -> dict:
     """Response body of ``POST /v1/variogram-maps`` (without provenance)."""
     return {
         "hx": result.hx,

@@ -2,19 +2,38 @@
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+import types
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 
 from ..data.declustering import Declustering, decluster
+from ..data.raster import Raster, raster_outline, raster_summary
 from ..data.samples import SampleSet
 from ..data.spacing import typical_spacing
-from ..data.summary import Summary, summarise
+from ..data.summary import Summary, largest_separation, summarise
 from ..deadline import check_deadline
-from ..errors import FieldIssue, InvalidInput
+from ..errors import FieldIssue, InvalidInput, LimitExceeded
 from ..limits import Limits
 from . import kernels as K
 from .directions import OMNIDIRECTIONAL, DirectionClass, validate_direction
+from .fft import check_statistic
+from .gridded import (
+    BOUND_STATISTICS,
+    DEFAULT_TOLERANCE,
+    METHODS,
+    NOT_COMPUTED,
+    GridReport,
+    GridVariogram,
+    binned_nodes,
+    grid_cell,
+    grid_classes,
+    grid_summary,
+    lags_needed,
+    raster_nodes,
+    raster_spacing,
+    refuse_unbounded,
+)
 from .lags import (
     AUTO_FINE_BINS,
     LagRequest,
@@ -95,6 +114,9 @@ class ClassRow:
     standard_error: float | None = None
     interval_95: tuple[float, float] | None = None
     uncertainty_reason: str | None = None
+    error_bound: float | None = None
+    pair_bound: int | None = None
+    bound_exceeded: bool | None = None
 
 
 @dataclass(frozen=True)
@@ -133,6 +155,10 @@ class ExperimentalVariogram:
         Zero-distance pairs, which belong to no class.
     uncertainty : UncertaintyPlan or None
         Blocks and method of the class uncertainties (None when no pass ran).
+    method : str
+        ``exact`` (pair engine) or ``grid`` (FFT on a grid, :mod:`lagwise.core.variography.gridded`).
+    grid : GridReport or None
+        The grid, for the ``grid`` method.
     spacing : float or None
         Typical sample spacing (median nearest-neighbour distance, coordinate units)
         the ``equal_width`` classes were built from; None for other class requests.
@@ -150,6 +176,8 @@ class ExperimentalVariogram:
     spacing: float | None = None
     uncertainty: UncertaintyPlan | None = None
     warnings: tuple[str, ...] = field(default=())
+    method: str = "exact"
+    grid: GridReport | None = None
 
 
 def validate_options(samples, statistic, min_pairs, directions):
@@ -167,9 +195,14 @@ def validate_options(samples, statistic, min_pairs, directions):
                     for i in bad[:20]
                 ]
             )
+    return resolve_directions(directions, samples.dimension)
+
+
+def resolve_directions(directions, dimension: int) -> tuple[list[DirectionClass], list[str]]:
+    """Validate direction classes (default one omnidirectional class); returns (resolved, warnings)."""
     resolved, warnings = [], []
     for index, d in enumerate(directions or [OMNIDIRECTIONAL]):
-        direction, notes = validate_direction(d, index, samples.dimension)
+        direction, notes = validate_direction(d, index, dimension)
         resolved.append(direction)
         warnings.extend(notes)
     return resolved, warnings
@@ -238,6 +271,8 @@ def experimental_variogram(
     pairs_for_class: ScatterRequest | None = None,
     limits: Limits = Limits(),
     declustering: Declustering | None = None,
+    method: str = "exact",
+    tolerance: float = DEFAULT_TOLERANCE,
 ) -> ExperimentalVariogram:
     """Compute an experimental variogram (or covariance-type statistic) per direction class.
 
@@ -261,12 +296,26 @@ def experimental_variogram(
         Declustering weights found earlier (e.g. from the original values when the
         samples carry transformed ones); default: found from the samples' values.
 
+    method : {"exact", "grid", "auto"}
+        Pair engine, FFT on binned samples, or chosen from the cost
+        (:mod:`lagwise.core.variography.gridded`).
+    tolerance : float
+        Relative error bound above which a class of the ``grid`` method is flagged.
+
     Raises
     ------
     InvalidInput, LimitExceeded
     """
+    if method not in METHODS:
+        raise InvalidInput.at("/method", f"must be one of {', '.join(METHODS)}")
     limits.check_samples(samples.size)
     resolved, warnings = validate_options(samples, statistic, min_pairs, directions)
+    if method == "auto":
+        method = choose_method(samples, lags, resolved, statistic, limits, pairs_for_class is not None)
+    if method == "grid":
+        if pairs_for_class is not None:
+            raise InvalidInput.at("/pairs_for_class", "h-scattergrams need method 'exact'")
+        return _binned_variogram(samples, lags, resolved, statistic, min_pairs, limits, tolerance, warnings)
     if declustering is None:
         declustering = decluster(samples.coords, samples.values)
     summary = summarise(samples.coords, samples.values, declustering)
@@ -355,3 +404,137 @@ def _class_warnings(results, min_pairs, summary) -> list[str]:
     if summary.variance == 0.0:
         warnings.append("all values are equal: semivariances are 0 and correlations are undefined")
     return warnings
+
+
+def choose_method(
+    samples: SampleSet, lags: LagRequest, directions, statistic: str, limits: Limits, scatter: bool
+) -> str:
+    """``auto``: ``exact`` unless its pair work would exceed ``LAGWISE_MAX_PAIRS`` and the grid method applies
+    (2-D samples, a statistic the grid method bounds, no h-scattergram)."""
+    if samples.dimension != 2 or statistic not in BOUND_STATISTICS or scatter:
+        return "exact"
+    explicit = validate_lags(lags)
+    radius = float(explicit[-1]) if explicit is not None else 0.5 * largest_separation(samples.coords)
+    prepared = prepare(samples.coords, samples.values)
+    try:
+        _check_pairs(samples, prepared, radius, len(directions), pair_passes(lags, statistic, False), limits)
+    except LimitExceeded:
+        return "grid"
+    return "exact"
+
+
+def _binned_variogram(samples, lags, resolved, statistic, min_pairs, limits, tolerance, warnings):
+    if samples.dimension != 2:
+        raise InvalidInput.at("/method", "the grid method needs 2-D samples")
+    check_statistic(statistic)
+    refuse_unbounded(statistic)
+    if not 0.0 < tolerance < 1.0:
+        raise InvalidInput.at("/tolerance", "must lie in (0, 1) (a relative error)")
+    summary = grid_summary(samples)
+    explicit, largest = lags_needed(lags, samples.coords, summary, resolved)
+    spacing = None if explicit is not None or lags.method == "equal_pairs" else typical_spacing(samples.coords)
+    cell = grid_cell(samples, explicit, largest, lags, spacing or 0.0, limits)
+    check_deadline()
+    grid = binned_nodes(samples.coords, samples.values, cell)
+    computed = grid_classes(
+        grid,
+        lags=lags,
+        directions=resolved,
+        statistic=statistic,
+        min_pairs=min_pairs,
+        limits=limits,
+        spacing=spacing,
+        tolerance=tolerance,
+        explicit=explicit,
+        largest=largest,
+    )
+    notes = list(samples.warnings) + warnings
+    if computed.report.flagged:
+        notes.append(
+            f"{computed.report.flagged} classes have a grid error bound above {tolerance:g} (relative); "
+            "see error_bound per class, or use method 'exact'"
+        )
+    return _from_grid(computed, summary, resolved, statistic, min_pairs, lags, spacing, notes)
+
+
+def raster_variogram(
+    raster: Raster,
+    *,
+    lags: LagRequest = LagRequest(),
+    directions: list[DirectionClass] | None = None,
+    statistic: str = "semivariance",
+    min_pairs: int = DEFAULT_MIN_PAIRS,
+    limits: Limits = Limits(),
+) -> ExperimentalVariogram:
+    """Experimental variogram of a raster by FFT, exact for the raster's own pairs
+    (:mod:`lagwise.core.variography.gridded`).
+
+    Raises
+    ------
+    InvalidInput
+        For a statistic the FFT sums cannot give (:data:`lagwise.core.variography.fft.FFT_STATISTICS`).
+    LimitExceeded
+        When the transforms would exceed ``LAGWISE_MEMORY_BUDGET_BYTES``.
+    """
+    check_statistic(statistic)
+    if min_pairs < 1:
+        raise InvalidInput.at("/min_pairs", "must be at least 1")
+    resolved, warnings = resolve_directions(directions, 2)
+    summary = raster_summary(raster)
+    explicit, largest = lags_needed(lags, raster_outline(raster), summary, resolved)
+    spacing = None if explicit is not None or lags.method == "equal_pairs" else raster_spacing(raster)
+    computed = grid_classes(
+        raster_nodes(raster),
+        lags=lags,
+        directions=resolved,
+        statistic=statistic,
+        min_pairs=min_pairs,
+        limits=limits,
+        spacing=spacing,
+        tolerance=None,
+        explicit=explicit,
+        largest=largest,
+    )
+    notes = list(raster.warnings) + warnings
+    return _from_grid(computed, summary, resolved, statistic, min_pairs, lags, spacing, notes)
+
+
+def _from_grid(computed: GridVariogram, summary, resolved, statistic, min_pairs, lags, spacing, notes):
+    moments = types.SimpleNamespace(mean=computed.mean, scale=computed.scale)
+    results = []
+    for k, d in enumerate(resolved):
+        e = computed.edges[k]
+        blank = [ClassUncertainty(None, None, NOT_COMPUTED)] * (len(e) - 1)
+        rows = _rows(statistic, computed.table[k], e, np.full(len(e) - 1, np.nan), min_pairs, moments, blank)
+        rows = tuple(_with_bound(row, computed, k, c) for c, row in enumerate(rows))
+        results.append(DirectionResult(d, rows))
+    notes.extend(_class_warnings(results, min_pairs, summary))
+    return ExperimentalVariogram(
+        directions=tuple(results),
+        summary=summary,
+        statistic=statistic,
+        min_pairs=min_pairs,
+        lag_method=lags.method,
+        colocated_pairs=computed.report.within_cell_pairs,
+        spacing=spacing,
+        uncertainty=None,
+        scattergram=None,
+        warnings=tuple(notes),
+        method="grid",
+        grid=computed.report,
+    )
+
+
+def _with_bound(row: ClassRow, computed: GridVariogram, k: int, c: int) -> ClassRow:
+    row = replace(row, uncertainty_reason=NOT_COMPUTED if row.value is not None else row.uncertainty_reason)
+    if computed.bounds is None or computed.pair_bounds is None:
+        return replace(row, error_bound=0.0 if row.value is not None else None, pair_bound=0, bound_exceeded=False)
+    bound = float(computed.bounds[k, c])
+    tolerance = computed.report.tolerance or 0.0
+    finite = bool(np.isfinite(bound))
+    return replace(
+        row,
+        error_bound=bound if finite else None,
+        pair_bound=int(computed.pair_bounds[k, c]),
+        bound_exceeded=not (finite and bound <= tolerance),
+    )

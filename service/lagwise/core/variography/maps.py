@@ -25,12 +25,15 @@ import numpy as np
 from scipy.spatial import ConvexHull, QhullError
 
 from ..data.declustering import Declustering, decluster
+from ..data.raster import Raster, raster_summary
 from ..data.samples import MAX_SPREAD, SampleSet
 from ..data.spacing import typical_spacing
 from ..data.summary import Summary, summarise
 from ..errors import FieldIssue, InvalidInput
 from ..limits import Limits
 from . import kernels as K
+from .fft import check_budget, check_statistic, lag_sums, map_table
+from .gridded import raster_nodes
 from .pairs import estimate_pairs_within, in_chunks, prepare, sweep_visits
 from .statistics import ACCUMULATION_MODE, STATISTICS, class_value
 
@@ -238,3 +241,65 @@ def _cell_medians(statistic, prepared, cell_size, cells, counts, visits, limits)
         if c:
             medians[b] = float(np.median(out[s : s + c]))
     return medians
+
+
+def raster_map(
+    raster: Raster,
+    *,
+    cell_size: float | None = None,
+    cells: int | None = None,
+    statistic: str = "semivariance",
+    min_pairs: int = DEFAULT_MAP_MIN_PAIRS,
+    limits: Limits = Limits(),
+) -> VariogramMap:
+    """Variogram map of a raster by FFT (:mod:`lagwise.core.variography.fft`), exact for its own pairs.
+
+    Same conventions as :func:`variogram_map`; omitted, the cell side is the raster's
+    smaller node spacing (enlarged to at most ``AUTO_MAX_MAP_CELLS`` cells a side) and
+    the map reaches half the largest separation.
+    """
+    check_statistic(statistic)
+    if min_pairs < 1:
+        raise InvalidInput.at("/min_pairs", "must be at least 1")
+    summary = raster_summary(raster)
+    top = (limits.max_map_cells - 1) // 2
+    reach = 0.5 * summary.max_distance
+    if cell_size is None and cells is not None:
+        cell_size = reach / (cells + 0.5)
+    if cell_size is None:
+        cell_size = max(min(raster.spacing), reach / (min(AUTO_MAX_MAP_CELLS, top) + 0.5))
+    if cells is None:
+        cells = int(min(top, max(1, round(reach / cell_size - 0.5))))
+    issues = []
+    if not (cell_size > 0 and math.isfinite(cell_size)) or cell_size * (cells + 0.5) > MAX_SPREAD:
+        issues.append(FieldIssue("/cell_size", f"must be a positive distance; the map must reach below {MAX_SPREAD:g}"))
+    if not 1 <= cells <= top:
+        issues.append(FieldIssue("/cells", f"must be a whole number from 1 to {top} (LAGWISE_MAX_MAP_CELLS)"))
+    if issues:
+        raise InvalidInput(issues)
+    grid = raster_nodes(raster)
+    ny, nx = raster.grid.shape
+    extent = (cells + 0.5) * cell_size
+    lag_reach = (
+        min(int(math.ceil(extent / raster.spacing[0])), nx - 1),
+        min(int(math.ceil(extent / raster.spacing[1])), ny - 1),
+    )
+    check_budget((ny, nx), lag_reach, limits, "/cells")
+    table = map_table(lag_sums(grid.nodes, lag_reach), cell_size, cells)
+    width = 2 * cells + 1
+    flat = [
+        class_value(statistic, table[b], grid.nodes.mean, grid.nodes.scale, None).value for b in range(width * width)
+    ]
+    centres = cell_size * np.arange(-cells, cells + 1, dtype=np.float64)
+    return VariogramMap(
+        hx=centres,
+        hy=centres.copy(),
+        values=[flat[r * width : (r + 1) * width] for r in range(width)],
+        pairs=table[:, K.COUNT].astype(np.int64).reshape(width, width),
+        statistic=statistic,
+        cell_size=float(cell_size),
+        cells=int(cells),
+        summary=summary,
+        warnings=raster.warnings,
+        min_pairs=int(min_pairs),
+    )

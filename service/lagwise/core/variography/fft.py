@@ -1,0 +1,301 @@
+"""Pair sums of gridded data for every lag vector at once, by FFT (Marcotte 1996,
+Computers & Geosciences 22(10)).
+
+A grid holds at each node k a weight c_k (1 or 0 for a raster's present and missing
+cells; the number of samples for scattered data binned on a grid), the sum S_k of
+its values and the sum Q_k of their squares (values centred on the data mean, so
+products keep their precision). For a lag vector s = (i, j) (nodes), the ordered
+pairs (tail at node k, head at node k + s) have the sums
+
+    count   = sum_k c_k c_(k+s)            tail  = sum_k S_k c_(k+s)
+    head    = sum_k c_k S_(k+s)            tail2 = sum_k Q_k c_(k+s)
+    head2   = sum_k c_k Q_(k+s)            product = sum_k S_k S_(k+s)
+
+and the squared differences sum to tail2 + head2 - 2 product. These are exact
+sums over every pair of samples in the two nodes. Each sum is a cross-correlation
+corr(a, b)(s) = sum_k a_k b_(k+s), computed as irfft2(conj(rfft2 a) rfft2 b) on a
+grid padded to at least n + reach along each axis (next_fast_len), so no lag wraps
+around; corr(b, a)(s) = corr(a, b)(-s) gives the head sums from the tail sums. Three
+forward and four inverse real transforms serve every class, direction and map cell.
+
+Lag vectors are then classified with the pair engine's own rules
+(:mod:`lagwise.core.variography.kernels`): separation h = (i dx, j dy), distance
+sqrt(hx^2 + hy^2), class ``searchsorted(edges, d, "right") - 1`` within the
+edges, direction membership proj^2 >= |h|^2 cos^2(tolerance) and perp^2 <=
+bandwidth^2, tail and head oriented so that h . u >= 0 (ties toward azimuth + 90).
+Each unordered pair is one lag vector of the half-plane j > 0 or (j = 0, i > 0).
+
+Statistics available from these sums: pair counts, mean distance, semivariance,
+covariance (centred and not) and the correlogram (:data:`FFT_STATISTICS`). The
+madogram, the robust and median estimators and the pairwise relative semivariance
+need each pair's own difference and are not sums of node products.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+import scipy.fft
+
+from ..deadline import check_deadline
+from ..errors import FieldIssue, InvalidInput, LimitExceeded
+from ..limits import Limits
+from . import kernels as K
+from .directions import BAND2, COS2_TOL, UX, UY, DirectionClass, direction_table
+
+FFT_STATISTICS = ("semivariance", "covariance", "covariance_noncentered", "correlogram")
+WORKERS = 2
+# Arrays alive at the peak of lag_sums: three spectra, one product, one inverse transform
+# (each about the padded grid's size in float64 pairs), the six cropped sums and the inputs.
+SPECTRA_ALIVE = 5
+
+
+@dataclass(frozen=True)
+class NodeSums:
+    """Data on a regular grid of nodes (rows by y, columns by x).
+
+    Attributes
+    ----------
+    count, total, squares : ndarray, shape (ny, nx)
+        Weight c, sum S of centred values and sum Q of their squares at each node.
+    spacing : tuple of float
+        Node spacing (dx, dy), coordinate units.
+    mean : float
+        The value every sum was centred on.
+    scale : float
+        Largest absolute value (for rounding-noise thresholds).
+    """
+
+    count: np.ndarray
+    total: np.ndarray
+    squares: np.ndarray
+    spacing: tuple[float, float]
+    mean: float
+    scale: float
+
+
+@dataclass(frozen=True)
+class LagSums:
+    """Sums over ordered pairs (tail at node k, head at node k + s) for every lag vector
+    s = (i, j), |i| <= reach[0], |j| <= reach[1]; arrays of shape (2 ry + 1, 2 rx + 1)
+    indexed [j + ry, i + rx]. s = 0 includes each sample with itself: it is no pair."""
+
+    count: np.ndarray
+    tail: np.ndarray
+    head: np.ndarray
+    tail2: np.ndarray
+    head2: np.ndarray
+    product: np.ndarray
+    reach: tuple[int, int]
+    spacing: tuple[float, float]
+
+    def separations(self) -> tuple[np.ndarray, np.ndarray]:
+        """hx, hy (coordinate units) of every lag vector, arrays of the sums' shape."""
+        rx, ry = self.reach
+        hx = np.arange(-rx, rx + 1, dtype=np.float64) * self.spacing[0]
+        hy = np.arange(-ry, ry + 1, dtype=np.float64) * self.spacing[1]
+        return np.broadcast_to(hx[None, :], self.count.shape), np.broadcast_to(hy[:, None], self.count.shape)
+
+
+def padded_shape(shape: tuple[int, int], reach: tuple[int, int]) -> tuple[int, int]:
+    """(rows, columns) of the transforms: at least n + reach along each axis, of fast length."""
+    ny, nx = shape
+    return scipy.fft.next_fast_len(ny + reach[1], real=True), scipy.fft.next_fast_len(nx + reach[0], real=True)
+
+
+def fft_bytes(shape: tuple[int, int], reach: tuple[int, int]) -> int:
+    """Working memory of :func:`lag_sums` in bytes (see :data:`SPECTRA_ALIVE`)."""
+    py, px = padded_shape(shape, reach)
+    spectrum = py * (px // 2 + 1) * 16
+    window = (2 * reach[0] + 1) * (2 * reach[1] + 1) * 8
+    return SPECTRA_ALIVE * spectrum + 6 * window + 3 * shape[0] * shape[1] * 8
+
+
+def check_budget(shape: tuple[int, int], reach: tuple[int, int], limits: Limits, pointer: str) -> int:
+    """Refuse FFT work whose memory estimate exceeds ``LAGWISE_MEMORY_BUDGET_BYTES``; returns the estimate."""
+    need = fft_bytes(shape, reach)
+    if need > limits.memory_budget_bytes:
+        py, px = padded_shape(shape, reach)
+        raise LimitExceeded(
+            "LAGWISE_MEMORY_BUDGET_BYTES",
+            limits.memory_budget_bytes,
+            need,
+            f"The FFT of a {shape[1]} x {shape[0]} grid (padded to {px} x {py} for lags up to {reach[0]} x "
+            f"{reach[1]} nodes) needs about {need / 2**20:.0f} MiB. Shorten the largest distance class, "
+            "use a coarser grid, or send a smaller raster.",
+            pointer,
+        )
+    return need
+
+
+def _window(full: np.ndarray, reach: tuple[int, int]) -> np.ndarray:
+    """Lags -r..r of a circular correlation (index s mod P) as a (2 ry + 1, 2 rx + 1) array."""
+    rx, ry = reach
+    rows = np.r_[full.shape[0] - ry : full.shape[0], 0 : ry + 1]
+    columns = np.r_[full.shape[1] - rx : full.shape[1], 0 : rx + 1]
+    return full[np.ix_(rows, columns)]
+
+
+def lag_sums(nodes: NodeSums, reach: tuple[int, int]) -> LagSums:
+    """All six pair sums for lag vectors up to ``reach`` = (rx, ry) nodes (see the module docstring)."""
+    shape = padded_shape(nodes.count.shape, reach)
+
+    def forward(a: np.ndarray) -> np.ndarray:
+        return scipy.fft.rfft2(a, s=shape, workers=WORKERS)
+
+    def correlate(a_hat: np.ndarray, b_hat: np.ndarray) -> np.ndarray:
+        check_deadline()
+        full = scipy.fft.irfft2(np.conj(a_hat) * b_hat, s=shape, workers=WORKERS)
+        return _window(full, reach)
+
+    c_hat = forward(nodes.count)
+    count = np.rint(correlate(c_hat, c_hat))  # products of whole numbers
+    s_hat = forward(nodes.total)
+    tail = correlate(s_hat, c_hat)
+    product = correlate(s_hat, s_hat)
+    del s_hat
+    q_hat = forward(nodes.squares)
+    tail2 = correlate(q_hat, c_hat)
+    del q_hat, c_hat
+    check_deadline()
+    # corr(c, S)(s) = corr(S, c)(-s): reverse both axes of the symmetric window.
+    head, head2 = tail[::-1, ::-1].copy(), tail2[::-1, ::-1].copy()
+    empty = count <= 0.0
+    for a in (tail, head, tail2, head2, product):
+        a[empty] = 0.0
+    count[empty] = 0.0
+    return LagSums(count, tail, head, tail2, head2, product, reach, nodes.spacing)
+
+
+def check_statistic(statistic: str, pointer: str = "/statistic") -> None:
+    """Refuse a statistic the FFT sums cannot give (see :data:`FFT_STATISTICS`)."""
+    if statistic not in FFT_STATISTICS:
+        raise InvalidInput(
+            [
+                FieldIssue(
+                    pointer,
+                    f"{statistic!r} needs each pair's own difference, which the FFT path does not form; "
+                    f"it gives {', '.join(FFT_STATISTICS)} (use method 'exact' on points for the others)",
+                )
+            ]
+        )
+
+
+def half_plane(sums: LagSums) -> np.ndarray:
+    """Boolean mask of the lag vectors j > 0 or (j = 0, i > 0): one per unordered pair."""
+    rx, ry = sums.reach
+    i = np.arange(-rx, rx + 1)[None, :]
+    j = np.arange(-ry, ry + 1)[:, None]
+    return (j > 0) | ((j == 0) & (i > 0))
+
+
+@dataclass(frozen=True)
+class LagClasses:
+    """Class of every half-plane lag vector in each direction.
+
+    Attributes
+    ----------
+    index : ndarray of int64, shape (ndir, m)
+        Distance class (-1: in no class of the direction) of the m half-plane lag vectors.
+    forward : ndarray of bool, shape (ndir, m)
+        Tail at node k (h = s points along the azimuth); else tail and head swap.
+    distance : ndarray, shape (m,)
+        |h|, coordinate units.
+    hx, hy : ndarray, shape (m,)
+        Separations, coordinate units.
+    """
+
+    index: np.ndarray
+    forward: np.ndarray
+    distance: np.ndarray
+    hx: np.ndarray
+    hy: np.ndarray
+
+
+def classify_lags(
+    hx: np.ndarray, hy: np.ndarray, directions: list[DirectionClass], edges: list[np.ndarray]
+) -> LagClasses:
+    """Classify separations (hx, hy) with the pair kernels' rules (module docstring)."""
+    table = direction_table(directions)
+    hh2 = hx * hx + hy * hy
+    d = np.sqrt(hh2)
+    index = np.full((len(directions), hx.size), -1, dtype=np.int64)
+    forward = np.ones((len(directions), hx.size), dtype=bool)
+    for k, e in enumerate(edges):
+        ux, uy = table[k, UX], table[k, UY]
+        proj = hx * ux + hy * uy
+        perp = hx * uy - hy * ux
+        inside = (proj * proj >= hh2 * table[k, COS2_TOL]) & (perp * perp <= table[k, BAND2]) & (hh2 > 0.0)
+        c = np.searchsorted(e, d, side="right") - 1
+        inside &= (c >= 0) & (c < len(e) - 1)
+        index[k] = np.where(inside, c, -1)
+        forward[k] = (proj > 0.0) | ((proj == 0.0) & (perp > 0.0))
+    return LagClasses(index, forward, d, hx, hy)
+
+
+def class_table(sums: LagSums, classes: LagClasses, mask: np.ndarray, kmax: int) -> np.ndarray:
+    """Accumulator table (ndir, kmax, ACCUMULATORS) of the pair engine, from the lag vectors under ``mask``.
+
+    ``classes`` classifies the lag vectors ``mask`` selects (in C order).
+    """
+    count = sums.count[mask]
+    tail, head = sums.tail[mask], sums.head[mask]
+    tail2, head2 = sums.tail2[mask], sums.head2[mask]
+    product = sums.product[mask]
+    square = tail2 + head2 - 2.0 * product
+    out = np.zeros((classes.index.shape[0], kmax, K.ACCUMULATORS))
+    for k in range(classes.index.shape[0]):
+        member = classes.index[k] >= 0
+        c = classes.index[k][member]
+        fwd = classes.forward[k][member]
+
+        n = count[member]
+        t, h = tail[member], head[member]
+        t2, h2 = tail2[member], head2[member]
+        columns = {
+            K.COUNT: n,
+            K.DISTANCE: n * classes.distance[member],
+            K.SQUARE: square[member],
+            K.TAIL: np.where(fwd, t, h),
+            K.HEAD: np.where(fwd, h, t),
+            K.TAIL2: np.where(fwd, t2, h2),
+            K.HEAD2: np.where(fwd, h2, t2),
+            K.PRODUCT: product[member],
+        }
+        for column, weights in columns.items():
+            out[k, :, column] = np.bincount(c, weights=weights, minlength=kmax)[:kmax]
+    out[:, :, K.COUNT] = np.rint(out[:, :, K.COUNT])
+    return out
+
+
+def map_table(sums: LagSums, cell_size: float, cells: int) -> np.ndarray:
+    """Accumulator table ((2 cells + 1)^2, ACCUMULATORS) of a variogram map from ordered lag vectors.
+
+    Cell (i, j) holds hx in [(i - 1/2) s, (i + 1/2) s) and hy likewise (index
+    floor(h / s + 1/2), as the map kernel); every ordered lag vector but 0 is a pair
+    counted once as h (its reverse is the lag vector -h).
+    """
+    hx, hy = sums.separations()
+    ix = np.floor(hx / cell_size + 0.5).astype(np.int64)
+    iy = np.floor(hy / cell_size + 0.5).astype(np.int64)
+    width = 2 * cells + 1
+    keep = (np.abs(ix) <= cells) & (np.abs(iy) <= cells) & ((hx != 0.0) | (hy != 0.0)) & (sums.count > 0)
+    b = ((iy + cells) * width + (ix + cells))[keep]
+    out = np.zeros((width * width, K.ACCUMULATORS))
+    d = np.sqrt(hx * hx + hy * hy)[keep]
+    n = sums.count[keep]
+    columns = {
+        K.COUNT: n,
+        K.DISTANCE: n * d,
+        K.SQUARE: (sums.tail2 + sums.head2 - 2.0 * sums.product)[keep],
+        K.TAIL: sums.tail[keep],
+        K.HEAD: sums.head[keep],
+        K.TAIL2: sums.tail2[keep],
+        K.HEAD2: sums.head2[keep],
+        K.PRODUCT: sums.product[keep],
+    }
+    for column, weights in columns.items():
+        out[:, column] = np.bincount(b, weights=weights, minlength=width * width)
+    out[:, K.COUNT] = np.rint(out[:, K.COUNT])
+    return out

@@ -1,0 +1,359 @@
+"""Experimental variograms and variogram maps on grids, by FFT: rasters (exact for their
+own pairs) and scattered samples binned on a fine grid (the ``grid`` method).
+
+Methods (``method``)
+--------------------
+* ``exact``: the pair engine (:mod:`lagwise.core.variography.pairs`) on points.
+* ``grid``: scattered samples are binned on square cells (each cell keeps its
+  sample count, value sum and sum of squares, so the FFT sums over two cells are
+  the exact sums over their pairs of samples) and every lag vector of cells is
+  classified by the cells' offset (:mod:`lagwise.core.variography.fft`). The cell
+  side is the narrowest class width over :data:`CELLS_PER_CLASS`, enlarged until
+  the grid has at most :data:`MAX_GRID_SIDE` cells a side and the transforms fit
+  ``LAGWISE_MEMORY_BUDGET_BYTES``. Each class states an error bound
+  (:mod:`lagwise.core.variography.bounds`); classes whose bound exceeds the
+  tolerance are flagged. For a raster the grid is the raster itself and the
+  result is exact (bound 0).
+* ``auto``: rasters use their own grid; scattered samples use ``exact`` unless its
+  pair work would exceed ``LAGWISE_MAX_PAIRS`` and the statistic is one the grid
+  method bounds, then ``grid``.
+
+Automatic distance classes follow :mod:`lagwise.core.variography.lags`, counting
+pairs from the FFT sums; a raster's typical spacing is its smaller node spacing.
+The class standard errors of the exact path (jackknife over blocks of samples) are
+not computed here.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from ..data.raster import Raster
+from ..data.samples import SampleSet
+from ..data.spacing import typical_spacing
+from ..data.summary import Summary, largest_separation
+from ..deadline import check_deadline
+from ..errors import InvalidInput
+from ..limits import Limits
+from . import kernels as K
+from .bounds import BOUND_STATISTICS, relative_bounds
+from .directions import DirectionClass
+from .fft import (
+    LagSums,
+    NodeSums,
+    check_budget,
+    class_table,
+    classify_lags,
+    fft_bytes,
+    half_plane,
+    lag_sums,
+    padded_shape,
+)
+from .lags import (
+    AUTO_FINE_BINS,
+    AUTO_MAX_CLASSES,
+    LagRequest,
+    merge_sparse,
+    quantile_edges,
+    spacing_edges,
+    spacing_width,
+    validate_lags,
+)
+from .statistics import class_value
+
+METHODS = ("exact", "grid", "auto")
+CELLS_PER_CLASS = 32
+MAX_GRID_SIDE = 4096
+DEFAULT_TOLERANCE = 0.01
+NOT_COMPUTED = "class standard errors are not computed on grids (FFT path)"
+
+
+@dataclass(frozen=True)
+class GridReport:
+    """How a variogram was computed on a grid (for the audit trail).
+
+    Attributes
+    ----------
+    source : str
+        ``raster`` (the raster's own nodes) or ``binned`` (scattered samples binned on cells).
+    origin, spacing : tuple of float
+        Node (0, 0) and node spacing (dx, dy), coordinate units.
+    shape, padded : tuple of int
+        Nodes (nx, ny) and the transforms' size (columns, rows).
+    reach : tuple of int
+        Largest lag vector (nodes along x, y).
+    memory_bytes : int
+        Estimated working memory of the transforms.
+    tolerance : float or None
+        Relative error above which a class is flagged (binned grids).
+    within_cell_pairs : int
+        Pairs of samples in one cell, left out by the grid method.
+    flagged : int
+        Classes whose bound exceeds ``tolerance``.
+    """
+
+    source: str
+    origin: tuple[float, float]
+    spacing: tuple[float, float]
+    shape: tuple[int, int]
+    padded: tuple[int, int]
+    reach: tuple[int, int]
+    memory_bytes: int
+    tolerance: float | None = None
+    within_cell_pairs: int = 0
+    flagged: int = 0
+
+    def as_dict(self) -> dict:
+        """Plain dictionary for serialisation."""
+        out = {
+            "source": self.source,
+            "origin": list(self.origin),
+            "spacing": list(self.spacing),
+            "shape": list(self.shape),
+            "transform_shape": list(self.padded),
+            "reach_nodes": list(self.reach),
+            "memory_bytes": self.memory_bytes,
+            "algorithm": "masked FFT cross-correlations of counts, value sums and squares (Marcotte 1996)",
+        }
+        if self.source == "binned":
+            out.update(
+                tolerance=self.tolerance,
+                within_cell_pairs=self.within_cell_pairs,
+                flagged_classes=self.flagged,
+                bound_rule="pairs misclassified by the grid lie in lag vectors whose disk of radius one cell "
+                "diagonal crosses a class edge; the bound is the widest value over every share of those pairs",
+            )
+        return out
+
+
+@dataclass(frozen=True)
+class _Grid:
+    """Node sums plus where the grid lies."""
+
+    nodes: NodeSums
+    origin: tuple[float, float]
+    source: str
+    within: tuple[float, float, float]  # within-cell pairs, their sum of Delta^2 / 2, their sum of z_a z_b
+
+
+def raster_nodes(raster: Raster) -> _Grid:
+    """Counts 1/0, centred values and squares of a raster's cells."""
+    present = raster.present
+    mean = float(raster.grid[present].mean())
+    centred = np.where(present, raster.grid - mean, 0.0)
+    nodes = NodeSums(
+        present.astype(np.float64),
+        centred,
+        centred * centred,
+        raster.spacing,
+        mean,
+        float(np.abs(raster.grid[present]).max()),
+    )
+    return _Grid(nodes, raster.origin, "raster", (0.0, 0.0, 0.0))
+
+
+def binned_nodes(coords: np.ndarray, values: np.ndarray, cell: float) -> _Grid:
+    """Bin 2-D samples on square cells of side ``cell`` from the lower-left sample."""
+    low = coords.min(axis=0)
+    index = np.floor((coords - low) / cell).astype(np.int64)
+    nx, ny = int(index[:, 0].max()) + 1, int(index[:, 1].max()) + 1
+    flat = index[:, 1] * nx + index[:, 0]
+    mean = float(values.mean())
+    centred = values - mean
+    count = np.bincount(flat, minlength=nx * ny).astype(np.float64)
+    total = np.bincount(flat, weights=centred, minlength=nx * ny)
+    squares = np.bincount(flat, weights=centred * centred, minlength=nx * ny)
+    pairs = float(np.sum(count * (count - 1.0)) / 2.0)
+    half_square = float(np.sum(count * squares - total * total)) / 2.0
+    # sum over a < b in a cell of z_a z_b, z = centred + mean.
+    raw = float(np.sum((total * total - squares) / 2.0 + mean * (count - 1.0) * total) + mean * mean * pairs)
+    nodes = NodeSums(
+        count.reshape(ny, nx),
+        total.reshape(ny, nx),
+        squares.reshape(ny, nx),
+        (cell, cell),
+        mean,
+        float(np.abs(values).max()),
+    )
+    return _Grid(nodes, (float(low[0]), float(low[1])), "binned", (pairs, half_square, raw))
+
+
+def _reach(grid: _Grid, radius: float) -> tuple[int, int]:
+    ny, nx = grid.nodes.count.shape
+    dx, dy = grid.nodes.spacing
+    return min(int(math.ceil(radius / dx)), nx - 1), min(int(math.ceil(radius / dy)), ny - 1)
+
+
+def _half_extent(points: np.ndarray, summary: Summary, direction: DirectionClass) -> float:
+    if direction.tolerance >= 90.0:
+        return 0.5 * summary.max_distance
+    az = math.radians(direction.azimuth)
+    return 0.5 * float(np.ptp(points @ np.array([math.sin(az), math.cos(az)])))
+
+
+def lags_needed(lags: LagRequest, points, summary, directions) -> tuple[np.ndarray | None, list[float]]:
+    explicit = validate_lags(lags)
+    if explicit is not None:
+        return explicit, [float(explicit[-1])] * len(directions)
+    largest = [_half_extent(points, summary, d) for d in directions]
+    if min(largest) <= 0:
+        raise InvalidInput.at("/directions", "the samples have no extent along a requested direction")
+    return None, largest
+
+
+def _classify(sums: LagSums, directions, edges):
+    mask = half_plane(sums) & (sums.count > 0)
+    hx, hy = sums.separations()
+    return mask, classify_lags(hx[mask], hy[mask], directions, edges)
+
+
+def _resolve_edges(sums, explicit, largest, lags, directions, min_pairs, spacing) -> list[np.ndarray]:
+    if explicit is not None:
+        return [explicit] * len(directions)
+    if lags.method == "equal_pairs":
+        fine = [np.linspace(0.0, top, AUTO_FINE_BINS + 1) for top in largest]
+        mask, classes = _classify(sums, directions, fine)
+        table = class_table(sums, classes, mask, AUTO_FINE_BINS)
+        return [quantile_edges(top, table[k, :, K.COUNT], min_pairs) for k, top in enumerate(largest)]
+    candidates = [spacing_edges(top, spacing_width(top, spacing)) for top in largest]
+    kmax = max(len(e) - 1 for e in candidates)
+    mask, classes = _classify(sums, directions, candidates)
+    table = class_table(sums, classes, mask, kmax)
+    return [merge_sparse(e, table[k, : len(e) - 1, K.COUNT], min_pairs) for k, e in enumerate(candidates)]
+
+
+@dataclass(frozen=True)
+class GridVariogram:
+    """Class tables of a grid computation, before they become an experimental variogram."""
+
+    table: np.ndarray
+    edges: list[np.ndarray]
+    report: GridReport
+    bounds: np.ndarray | None
+    pair_bounds: np.ndarray | None
+    mean: float
+    scale: float
+
+
+def grid_classes(
+    grid: _Grid,
+    *,
+    lags: LagRequest,
+    directions: list[DirectionClass],
+    statistic: str,
+    min_pairs: int,
+    limits: Limits,
+    spacing: float | None,
+    tolerance: float | None,
+    explicit: np.ndarray | None,
+    largest: list[float],
+) -> GridVariogram:
+    """FFT sums, class tables and (for binned grids) error bounds of every class."""
+    reach = _reach(grid, max(largest))
+    memory = check_budget(grid.nodes.count.shape, reach, limits, "/lags")
+    check_deadline()
+    sums = lag_sums(grid.nodes, reach)
+    edges = _resolve_edges(sums, explicit, largest, lags, directions, min_pairs, spacing or 0.0)
+    kmax = max(len(e) - 1 for e in edges)
+    if max(e[-1] for e in edges) > max(largest) * (1 + 1e-12):
+        raise AssertionError("automatic classes reach beyond the transforms' lags")
+    mask, classes = _classify(sums, directions, edges)
+    table = class_table(sums, classes, mask, kmax)
+    check_deadline()
+    bounds = pair_bounds = None
+    flagged = 0
+    if grid.source == "binned":
+        values = np.full((len(directions), kmax), np.nan)
+        for k in range(len(directions)):
+            for c in range(len(edges[k]) - 1):
+                v = class_value(statistic, table[k, c], grid.nodes.mean, grid.nodes.scale, None).value
+                values[k, c] = np.nan if v is None else v
+        counts = sums.count[mask]
+        if statistic == "semivariance":
+            numerator = (sums.tail2[mask] + sums.head2[mask] - 2.0 * sums.product[mask]) / 2.0
+            within = (grid.within[0], grid.within[1])
+        else:
+            m = grid.nodes.mean
+            numerator = sums.product[mask] + m * (sums.tail[mask] + sums.head[mask]) + m * m * counts
+            within = (grid.within[0], grid.within[2])
+        cell = grid.nodes.spacing[0]
+        bounds, pair_bounds = relative_bounds(
+            classes.hx, classes.hy, counts, numerator, within, directions, edges, cell * math.sqrt(2.0), values
+        )
+        for k, e in enumerate(edges):
+            flagged += int(np.sum(~(bounds[k, : len(e) - 1] <= tolerance)))
+    ny, nx = grid.nodes.count.shape
+    py, px = padded_shape((ny, nx), reach)
+    report = GridReport(
+        source=grid.source,
+        origin=grid.origin,
+        spacing=grid.nodes.spacing,
+        shape=(nx, ny),
+        padded=(px, py),
+        reach=reach,
+        memory_bytes=memory,
+        tolerance=tolerance if grid.source == "binned" else None,
+        within_cell_pairs=int(grid.within[0]),
+        flagged=flagged,
+    )
+    return GridVariogram(table, edges, report, bounds, pair_bounds, grid.nodes.mean, grid.nodes.scale)
+
+
+def grid_cell(samples: SampleSet, explicit, largest, lags: LagRequest, spacing, limits: Limits) -> float:
+    """Cell side of the grid method (module docstring)."""
+    if explicit is not None:
+        narrowest = float(np.diff(explicit).min())
+    elif lags.method == "equal_pairs":
+        narrowest = min(largest) / AUTO_MAX_CLASSES
+    else:
+        narrowest = min(spacing_width(top, spacing) for top in largest)
+    span = float(np.ptp(samples.coords, axis=0).max())
+    cell = max(narrowest / CELLS_PER_CLASS, span / (MAX_GRID_SIDE - 1))
+    radius = max(largest)
+    extent = np.ptp(samples.coords, axis=0)
+    while True:
+        shape = (int(extent[1] // cell) + 1, int(extent[0] // cell) + 1)
+        reach = (min(int(math.ceil(radius / cell)), shape[1] - 1), min(int(math.ceil(radius / cell)), shape[0] - 1))
+        if fft_bytes(shape, reach) <= limits.memory_budget_bytes:
+            return cell
+        cell *= 1.25
+
+
+def refuse_unbounded(statistic: str) -> None:
+    """The grid method on scattered samples states bounds for ratio statistics only."""
+    if statistic not in BOUND_STATISTICS:
+        raise InvalidInput.at(
+            "/statistic",
+            f"the grid method bounds its error for {', '.join(BOUND_STATISTICS)} only; "
+            f"use method 'exact' for {statistic!r}",
+        )
+
+
+def grid_summary(samples: SampleSet) -> Summary:
+    """Summary without declustering (the grid method serves large sets; cell declustering is not run)."""
+    values, coords = samples.values, samples.coords
+    mean = float(values.mean())
+    return Summary(
+        samples=samples.size,
+        dimension=samples.dimension,
+        mean=mean,
+        variance=float(np.mean((values - mean) ** 2)),
+        minimum=float(values.min()),
+        maximum=float(values.max()),
+        extent={"xyz"[a]: [float(coords[:, a].min()), float(coords[:, a].max())] for a in range(coords.shape[1])},
+        max_distance=largest_separation(coords),
+        declustering=None,
+    )
+
+
+def raster_spacing(raster: Raster) -> float:
+    """A raster's typical spacing: its smaller node spacing."""
+    return float(min(raster.spacing))
+
+
+def binned_spacing(samples: SampleSet) -> float:
+    """Typical spacing of scattered samples (median nearest-neighbour distance)."""
+    return typical_spacing(samples.coords)
