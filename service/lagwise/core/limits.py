@@ -42,6 +42,12 @@ class Limits:
         Working memory of one request's largest arrays (``LAGWISE_MEMORY_BUDGET_BYTES``,
         256 MiB): batched kriging solves and neighbour searches are cut to fit it, and
         dense matrices that cannot be cut (the unique neighbourhood) must fit it.
+    max_simulation_values : int
+        Values one conditional simulation may draw (``LAGWISE_MAX_SIMULATION_VALUES``):
+        realisations x (grid nodes + embedding nodes x passes); about 1e7 a second.
+    max_embedding_nodes : int
+        Nodes of the torus of a simulation's circulant embedding (``LAGWISE_MAX_EMBEDDING_NODES``;
+        48 bytes each while a field is drawn).
     """
 
     max_samples: int = 200_000
@@ -53,6 +59,8 @@ class Limits:
     max_targets: int = 2_000_000
     max_kriging_flops: int = 20_000_000_000_000
     memory_budget_bytes: int = 256 * 1024 * 1024
+    max_simulation_values: int = 100_000_000
+    max_embedding_nodes: int = 4_194_304
 
     def check_samples(self, n: int) -> None:
         """Refuse more than ``max_samples`` samples."""

@@ -306,6 +306,14 @@ class Kriger:
             )
         return factor
 
+    def solve_unique(self, rhs: np.ndarray) -> np.ndarray:
+        """Solve the unique neighbourhood's bordered system [[K, F], [F', 0]] x = rhs, rhs (n + p, r).
+
+        The factorisation is the one made at construction; conditional simulation applies it
+        to the residuals of every realisation.
+        """
+        return lu_solve(self._factor, rhs)
+
     def _predict_unique(self, targets: np.ndarray, want_weights: set) -> Prediction:
         m = targets.shape[0]
         n = self.samples.size
