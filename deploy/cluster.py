@@ -99,7 +99,12 @@ class Cluster:
         upstreams = "\n".join(
             f"        server 127.0.0.1:{port} max_fails=2 fail_timeout=5s;" for port, _ in self.instances
         )
-        body = os.environ.get("LAGWISE_MAX_BODY_BYTES", str(64 * 1024 * 1024))
+        body = str(
+            max(
+                int(float(os.environ.get("LAGWISE_MAX_BODY_BYTES", str(64 * 1024 * 1024)))),
+                int(float(os.environ.get("LAGWISE_MAX_ARROW_BYTES", str(512 * 1024 * 1024)))),
+            )
+        )
         config = (
             TEMPLATE.read_text()
             .replace("{{LISTEN}}", f"127.0.0.1:{self.port}")

@@ -14,6 +14,7 @@ import functools
 import json
 from pathlib import Path
 
+import pyarrow as pa
 import yaml
 from flask.testing import FlaskClient
 from openapi_core import Config, OpenAPI
@@ -30,8 +31,17 @@ class ContractMismatch(AssertionError):
     """A response that the committed contract does not allow."""
 
 
-# openapi-core reads application/json itself; the problem and YAML media types are added here.
-MEDIA_TYPES = {"application/problem+json": json.loads, "application/yaml": yaml.safe_load}
+def _arrow_stream(body: bytes) -> str:
+    """An Arrow answer must be a readable Arrow IPC stream (pyarrow); its JSON metadata stands for the string."""
+    return pa.ipc.open_stream(body).read_all().schema.metadata[b"response"].decode()
+
+
+# openapi-core reads application/json itself; the problem, YAML and Arrow media types are added here.
+MEDIA_TYPES = {
+    "application/problem+json": json.loads,
+    "application/yaml": yaml.safe_load,
+    "application/vnd.apache.arrow.stream": _arrow_stream,
+}
 
 
 @functools.cache

@@ -105,6 +105,18 @@ SERVING = (
 
 SERVICE = (
     Variable("LAGWISE_MAX_BODY_BYTES", str(64 * 1024 * 1024), "largest request body, after decoding (413 above)"),
+    Variable(
+        "LAGWISE_MAX_ARROW_BYTES",
+        str(512 * 1024 * 1024),
+        "largest multipart body with the samples as an Arrow stream, after decoding (413 above); "
+        "the front receives bodies up to this size when they are multipart",
+    ),
+    Variable(
+        "LAGWISE_MAX_ARROW_ROWS",
+        "10000000",
+        "samples per Arrow stream, counted from its batch headers before the columns are read "
+        "(422 `limit-exceeded` above); it replaces `LAGWISE_MAX_SAMPLES` for such requests",
+    ),
     *(Variable(f"LAGWISE_{f.name.upper()}", _limit_default(f), _limit_meaning(f.name)) for f in fields(Limits)),
     Variable(
         "LAGWISE_API_KEYS",

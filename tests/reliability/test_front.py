@@ -19,6 +19,7 @@ from lagwise.serving.front import Front, FrontSettings
 
 RECEIVE_SECONDS = 1.0
 MAX_BODY = 10_000
+MAX_ARROW_BODY = 30_000
 
 
 async def _upstream(reader: asyncio.StreamReader, writer: asyncio.StreamWriter) -> None:
@@ -53,7 +54,13 @@ async def _exchange(raw: bytes, *, pause_after: float = 0.0, rest: bytes = b"") 
     path = os.path.join(folder, "up.sock")
     upstream = await asyncio.start_unix_server(_upstream, path)
     front = Front(
-        FrontSettings(upstream=path, max_body_bytes=MAX_BODY, receive_seconds=RECEIVE_SECONDS, max_connections=4)
+        FrontSettings(
+            upstream=path,
+            max_body_bytes=MAX_BODY,
+            receive_seconds=RECEIVE_SECONDS,
+            max_connections=4,
+            max_arrow_bytes=MAX_ARROW_BODY,
+        )
     )
     server = await asyncio.start_server(front.handle, "127.0.0.1", 0)
     port = server.sockets[0].getsockname()[1]
@@ -151,6 +158,24 @@ def test_chunked_body_over_the_limit_is_refused():
     raw = b"POST /v1/x HTTP/1.1\r\nHost: h\r\nTransfer-Encoding: chunked\r\n\r\n" + chunked
     status, document, _, _ = exchange(raw)
     _problem(document, "body-too-large", 413)
+
+
+def test_a_multipart_body_has_the_arrow_limit():
+    body = b"x" * 20_000  # over LAGWISE_MAX_BODY_BYTES, under LAGWISE_MAX_ARROW_BYTES
+    head = (
+        b"POST /v1/x HTTP/1.1\r\nHost: h\r\nContent-Type: multipart/form-data; boundary=b\r\nContent-Length: %d\r\n\r\n"
+    )
+    status, document, _, _ = exchange(head % len(body) + body)
+    assert status == 200 and len(document["body"]) == len(body)
+    status, document, _, _ = exchange(
+        b"POST /v1/x HTTP/1.1\r\nHost: h\r\nContent-Type: application/json\r\n"
+        b"Content-Length: %d\r\n\r\n" % len(body) + body
+    )
+    _problem(document, "body-too-large", 413)
+    assert "LAGWISE_MAX_BODY_BYTES" in document["detail"]
+    status, document, _, _ = exchange(head % 40_000 + b"x" * 100)
+    _problem(document, "body-too-large", 413)
+    assert "LAGWISE_MAX_ARROW_BYTES" in document["detail"]
 
 
 def test_a_stalled_body_gets_a_408_problem_at_the_receive_deadline():

@@ -4,9 +4,10 @@ from __future__ import annotations
 
 import zlib
 
-from flask import current_app, request
+from flask import current_app, g, request
 from marshmallow import Schema, ValidationError
 
+from .columnar import MULTIPART_MEDIA_TYPE, read_samples, split_form
 from .jsonio import MalformedJSON, parse
 from .problems import Problem
 
@@ -37,11 +38,11 @@ READ_BLOCK = 1 << 16
 ACCEPTED_ENCODINGS = "gzip"
 
 
-def _too_large(limit: int) -> Problem:
-    return Problem("body-too-large", f"The body exceeds the limit of {limit} bytes (LAGWISE_MAX_BODY_BYTES).")
+def _too_large(limit: int, name: str = "LAGWISE_MAX_BODY_BYTES") -> Problem:
+    return Problem("body-too-large", f"The body exceeds the limit of {limit} bytes ({name}).")
 
 
-def _raw_body(limit: int) -> bytes:
+def _raw_body(limit: int, name: str) -> bytes:
     """The body as sent, refusing more than ``limit`` bytes.
 
     With a Content-Length, Flask refuses an oversized body before reading it. A
@@ -64,11 +65,11 @@ def _raw_body(limit: int) -> bytes:
             return b"".join(blocks)
         total += len(block)
         if total > limit:
-            raise _too_large(limit)
+            raise _too_large(limit, name)
         blocks.append(block)
 
 
-def _gunzip(data: bytes, limit: int) -> bytes:
+def _gunzip(data: bytes, limit: int, name: str) -> bytes:
     """Decode a gzip body (RFC 9112 §7.2), refusing more than ``limit`` decoded bytes before holding them."""
     decoder = zlib.decompressobj(16 + zlib.MAX_WBITS)
     blocks: list[bytes] = []
@@ -82,7 +83,7 @@ def _gunzip(data: bytes, limit: int) -> bytes:
                 break
             total += len(block)
             if total > limit:
-                raise _too_large(limit)
+                raise _too_large(limit, name)
             blocks.append(block)
     except zlib.error as exc:
         raise Problem("malformed-request", f"The gzip body is corrupt: {exc}.") from None
@@ -91,13 +92,18 @@ def _gunzip(data: bytes, limit: int) -> bytes:
     return b"".join(blocks)
 
 
-def read_body() -> bytes:
-    """The request body, decoded, refusing more than ``MAX_CONTENT_LENGTH`` bytes sent or decoded.
+def read_body(limit: int | None = None, name: str = "LAGWISE_MAX_BODY_BYTES") -> bytes:
+    """The request body, decoded, refusing more than ``limit`` bytes sent or decoded.
 
+    ``limit`` defaults to ``MAX_CONTENT_LENGTH``; ``name`` is the variable that sets it.
     ``Content-Encoding: gzip`` is decoded within the same limit (a small compressed body
     cannot expand past it); any other coding is refused with 415 and ``Accept-Encoding``.
     """
-    limit = current_app.config["MAX_CONTENT_LENGTH"]
+    if limit is None:
+        limit = current_app.config["MAX_CONTENT_LENGTH"]
+    elif request.content_length is not None and request.content_length > limit:
+        raise _too_large(limit, name)
+    request.max_content_length = limit
     codings = [c.strip().lower() for c in request.headers.get("Content-Encoding", "").split(",") if c.strip()]
     codings = [c for c in codings if c != "identity"]
     if codings and codings != ["gzip"] and codings != ["x-gzip"]:
@@ -106,30 +112,69 @@ def read_body() -> bytes:
             f"Content-Encoding {', '.join(codings)} is not supported; send the body as is or gzip-compressed.",
             headers={"Accept-Encoding": ACCEPTED_ENCODINGS},
         )
-    body = _raw_body(limit)
-    return _gunzip(body, limit) if codings else body
+    body = _raw_body(limit, name)
+    return _gunzip(body, limit, name) if codings else body
 
 
-def load_json(schema: Schema) -> dict:
-    """Parse and validate the current request's JSON body with ``schema``.
-
-    Raises
-    ------
-    Problem
-        415 for another media type, 400 for malformed JSON, 422 for invalid fields;
-        413 comes from Flask's ``MAX_CONTENT_LENGTH`` before the body is read.
-    """
-    mimetype = request.mimetype or ""
-    if mimetype != "application/json" and not mimetype.endswith("+json"):
-        raise Problem("unsupported-media-type", f"expected Content-Type application/json, got {mimetype or 'none'}")
+def _json_object(body: bytes, what: str) -> dict:
     try:
-        document = parse(read_body())
+        document = parse(body)
     except MalformedJSON as exc:
         raise Problem("malformed-json", str(exc)) from None
     if not isinstance(document, dict):
         raise Problem(
-            "invalid-input", "the body must be a JSON object", [{"pointer": "", "detail": "must be a JSON object"}]
+            "invalid-input", f"{what} must be a JSON object", [{"pointer": "", "detail": "must be a JSON object"}]
         )
+    return document
+
+
+def _multipart_document() -> dict:
+    """The options of the ``request`` part with the ``samples`` part's Arrow columns as ``samples``.
+
+    The body is limited by ``LAGWISE_MAX_ARROW_BYTES`` and the stream's rows by
+    ``LAGWISE_MAX_ARROW_ROWS`` (see :mod:`lagwise.api.columnar`); ``g.arrow_samples`` then
+    tells the views to use that row limit in place of ``LAGWISE_MAX_SAMPLES``.
+    """
+    settings = current_app.extensions["lagwise"]
+    body = read_body(max(settings.max_arrow_bytes, current_app.config["MAX_CONTENT_LENGTH"]), "LAGWISE_MAX_ARROW_BYTES")
+    options, stream = split_form(body, request.headers.get("Content-Type", ""))
+    document = _json_object(options, "the request part")
+    if "samples" in document:
+        raise Problem(
+            "invalid-input",
+            "/samples: send the samples in the samples part (Arrow), not in the request part",
+            [
+                {
+                    "pointer": "/samples",
+                    "detail": "send the samples in the samples part (Arrow), not in the request part",
+                }
+            ],
+        )
+    document["samples"] = read_samples(stream, settings.max_arrow_rows)
+    g.arrow_samples = True
+    return document
+
+
+def load_json(schema: Schema) -> dict:
+    """Parse and validate the current request with ``schema``: a JSON body, or a multipart form
+    whose ``request`` part holds the options and whose ``samples`` part is an Arrow stream.
+
+    Raises
+    ------
+    Problem
+        415 for another media type, 400 for malformed JSON or multipart, 422 for invalid
+        fields; 413 before a body over its limit is read.
+    """
+    mimetype = request.mimetype or ""
+    if mimetype == MULTIPART_MEDIA_TYPE:
+        document = _multipart_document()
+    elif mimetype != "application/json" and not mimetype.endswith("+json"):
+        raise Problem(
+            "unsupported-media-type",
+            f"expected Content-Type application/json (or multipart/form-data with Arrow samples), got {mimetype or 'none'}",
+        )
+    else:
+        document = _json_object(read_body(), "the body")
     try:
         return schema.load(document)
     except ValidationError as exc:

@@ -28,13 +28,30 @@ def _element_error(value) -> str | None:
     return None
 
 
+def _array_errors(array: np.ndarray) -> dict:
+    """Per-index messages for a float64 array's elements that are not finite or too large (at most 20)."""
+    with np.errstate(invalid="ignore"):
+        bad = np.flatnonzero(~(np.abs(array) <= MAX_MAGNITUDE))
+    return {
+        int(i): ["not a finite number" if not math.isfinite(array[i]) else f"magnitude above {MAX_MAGNITUDE:g}"]
+        for i in bad[:MAX_ELEMENT_ERRORS]
+    }
+
+
 class NumberArray(fields.Field):
     """A JSON array of finite numbers (magnitude at most :data:`MAX_MAGNITUDE`), deserialised to float64.
 
-    Errors name each offending index (at most 20), e.g. ``{17: ["not a number"]}``.
+    A float64 numpy array (a column of an Arrow stream, see :mod:`lagwise.api.columnar`)
+    is checked by the same rules. Errors name each offending index (at most 20), e.g.
+    ``{17: ["not a number"]}``.
     """
 
     def _deserialize(self, value, attr, data, **kwargs):
+        if isinstance(value, np.ndarray):
+            errors = _array_errors(value)
+            if errors:
+                raise ValidationError(errors)
+            return value
         if not isinstance(value, list):
             raise ValidationError("must be an array of numbers")
         if {type(v) for v in value} <= set(NUMBER_TYPES):
@@ -132,10 +149,14 @@ class CappedList(fields.List):
 
     marshmallow's list keeps one message per bad element, so a body of a million bad
     entries would build a million messages; this one stops early and reports how many
-    elements it did not check under the key ``"_unchecked"``.
+    elements it did not check under the key ``"_unchecked"``. A numpy array (an Arrow
+    column, typed by :mod:`lagwise.api.columnar`) is taken as it is.
     """
 
     def _deserialize(self, value, attr, data, **kwargs):
+        if isinstance(value, np.ndarray):
+            # A column of an Arrow stream, whose element type the reader has checked.
+            return value
         if not isinstance(value, list):
             raise ValidationError("must be an array")
         out, errors = [], {}

@@ -14,13 +14,15 @@ from dataclasses import dataclass
 import yaml
 from apispec import APISpec
 from apispec.ext.marshmallow import MarshmallowPlugin
+from marshmallow import Schema
 
 from .. import __version__
 from . import examples
+from .columnar import ARROW_MEDIA_TYPE, COLUMNS, METADATA_KEY, MULTIPART_MEDIA_TYPE
 from .fields import choice_properties, number_array_properties, variants_properties
-from .operations import OPERATIONS
+from .operations import ARROW_ANSWERS, OPERATIONS
 from .problems import KINDS, PROBLEM_MEDIA_TYPE
-from .schemas import ProblemKindSchema, ProblemSchema
+from .schemas import ProblemKindSchema, ProblemSchema, SampleOptions
 from .security import is_open
 
 OPENAPI_VERSION = "3.1.0"
@@ -173,6 +175,71 @@ def _request_schema(request) -> object:
     return request
 
 
+SAMPLES_PART = (
+    "The samples as an Apache Arrow IPC stream, sent as a file part: float columns x (required), y, z, "
+    f"values (required), detection_limits (null: none) and optional ids (text) and censored (boolean); "
+    f"the columns are {', '.join(COLUMNS)}. Limits of their own: LAGWISE_MAX_ARROW_BYTES for the body and "
+    "LAGWISE_MAX_ARROW_ROWS for the rows (it replaces LAGWISE_MAX_SAMPLES), checked before the columns are read. "
+    "The same samples give the same results and provenance.input_sha256 as JSON columns."
+)
+
+
+def _options_schema(spec: APISpec, schema: type[Schema]) -> dict:
+    """A reference to ``schema`` without ``samples`` (registered once as ``<name>Options``)."""
+    name = f"{schema.__name__}Options"
+    if name not in spec.components.schemas:
+        meta = getattr(schema, "Meta", object)
+        exclude = (*getattr(meta, "exclude", ()), "samples")
+        options = type(
+            name,
+            (schema,),
+            {
+                "Meta": type("Meta", (meta,), {"exclude": exclude}),
+                "__doc__": f"{(schema.__doc__ or '').strip()} The options, without samples (multipart form).",
+            },
+        )
+        spec.components.schema(name, schema=options)
+    return {"$ref": f"#/components/schemas/{name}"}
+
+
+def _multipart_content(spec: APISpec, request) -> dict | None:
+    """The multipart/form-data form of a request that carries samples (None for one that does not)."""
+    forms = [r for r in (request if isinstance(request, tuple) else (request,)) if issubclass(r, SampleOptions)]
+    forms = [r for r in forms if "samples" in r().fields]
+    if not forms:
+        return None
+    refs = [_options_schema(spec, form) for form in forms]
+    return {
+        "schema": {
+            "type": "object",
+            "required": ["request", "samples"],
+            "properties": {
+                "request": refs[0] if len(refs) == 1 else {"oneOf": refs},
+                "samples": {
+                    "type": "string",
+                    "format": "binary",
+                    "contentMediaType": ARROW_MEDIA_TYPE,
+                    "description": SAMPLES_PART,
+                },
+            },
+        },
+        "encoding": {"request": {"contentType": "application/json"}, "samples": {"contentType": ARROW_MEDIA_TYPE}},
+    }
+
+
+def _arrow_answer(columns: tuple[str, ...]) -> dict:
+    return {
+        "schema": {
+            "type": "string",
+            "format": "binary",
+            "contentMediaType": ARROW_MEDIA_TYPE,
+            "description": f"With Accept: {ARROW_MEDIA_TYPE}, an Arrow IPC stream: float64 columns "
+            f"{', '.join(columns)} (those present; null where the JSON answer has null) and the other members "
+            f"of the JSON answer as JSON text in the schema metadata key {METADATA_KEY.decode()!r}.",
+        }
+    }
+
+
 def build_spec() -> APISpec:
     """Build the :class:`apispec.APISpec` of the service."""
     plugin = MarshmallowPlugin()
@@ -224,7 +291,7 @@ def build_spec() -> APISpec:
     entries: list[tuple[str, str, dict]] = []
     for op in OPERATIONS:
         name = op.operation_id
-        body = {}
+        body: dict = {}
         if op.request is not None:
             body = {
                 "requestBody": {
@@ -237,7 +304,12 @@ def build_spec() -> APISpec:
                     },
                 }
             }
+            multipart = _multipart_content(spec, op.request)
+            if multipart is not None:
+                body["requestBody"]["content"][MULTIPART_MEDIA_TYPE] = multipart
         success = _success("application/json", op.response, examples.RESPONSES.get(name))
+        if name in ARROW_ANSWERS:
+            success["content"][ARROW_MEDIA_TYPE] = _arrow_answer(ARROW_ANSWERS[name])
         entries.append(
             (
                 op.path,

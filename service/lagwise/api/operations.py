@@ -24,6 +24,7 @@ from ..core.variography.fft import FFT_STATISTICS
 from ..core.variography.maps import raster_map, variogram_map
 from . import convert, serialize
 from .body import load_json
+from .columnar import ARROW_MEDIA_TYPE, arrow_answer, wants_arrow
 from .figure_set import render
 from .jsonio import dumps
 from .observability import count_work
@@ -67,6 +68,10 @@ class Operation:
 
 OPERATIONS: list[Operation] = []
 COMPUTE_ERRORS = (400, 413, 415, 422, 503)
+# Per-target arrays a prediction answers as Arrow columns when asked (Accept).
+PREDICTION_COLUMNS = ("x", "y", "z", "estimate", "variance")
+# Operation id -> the columns it answers in Arrow (documented in the contract).
+ARROW_ANSWERS = {"predictions": PREDICTION_COLUMNS}
 
 
 def operation(path, method, summary, request=None, response=HealthSchema, errors=COMPUTE_ERRORS):
@@ -87,15 +92,20 @@ def operation(path, method, summary, request=None, response=HealthSchema, errors
 
 
 def settings():
-    return current_app.extensions["lagwise"]
+    """The service settings; for samples sent as an Arrow stream, with that form's own sample limit."""
+    base = current_app.extensions["lagwise"]
+    return base.for_arrow_samples() if g.get("arrow_samples") else base
 
 
 def json_response(document: dict, status: int = 200) -> Response:
     return Response(dumps(document), status=status, mimetype="application/json")
 
 
-def with_provenance(document: dict, input_sha256: str, samples: int = 0, pairs: int = 0) -> Response:
-    """Add provenance, count the work done, and answer."""
+def with_provenance(
+    document: dict, input_sha256: str, samples: int = 0, pairs: int = 0, *, columns: tuple[str, ...] = ()
+) -> Response:
+    """Add provenance, count the work done, and answer: JSON, or an Arrow stream of ``columns``
+    (per-target arrays) when the client asks for one (``Accept``)."""
     rule = request.url_rule
     assert rule is not None  # called from a routed view
     count_work(rule.rule, samples, pairs)
@@ -108,6 +118,8 @@ def with_provenance(document: dict, input_sha256: str, samples: int = 0, pairs: 
         "input_sha256": input_sha256,
         "elapsed_ms": round((time.perf_counter() - g.started) * 1000.0, 3),
     }
+    if columns and wants_arrow():
+        return Response(arrow_answer(document, [c for c in columns if c in document]), mimetype=ARROW_MEDIA_TYPE)
     return json_response(document)
 
 
@@ -303,7 +315,12 @@ def predictions():
         limits=settings().limits,
         workers=numba.get_num_threads(),
     )
-    return with_provenance(serialize.prediction(result, samples, model, spec, hood), samples.input_hash, samples.size)
+    return with_provenance(
+        serialize.prediction(result, samples, model, spec, hood),
+        samples.input_hash,
+        samples.size,
+        columns=PREDICTION_COLUMNS,
+    )
 
 
 @operation(

@@ -9,7 +9,7 @@ from __future__ import annotations
 
 import os
 from collections.abc import Mapping
-from dataclasses import dataclass, field, fields
+from dataclasses import dataclass, field, fields, replace
 
 from ..configuration import value, whole_number
 from ..core.limits import Limits
@@ -35,6 +35,8 @@ class Settings:
     """Resolved service settings (see :mod:`lagwise.configuration` for the variables)."""
 
     max_body_bytes: int = DEFAULT_MAX_BODY_BYTES
+    max_arrow_bytes: int = int(value("LAGWISE_MAX_ARROW_BYTES", {}))
+    max_arrow_rows: int = int(value("LAGWISE_MAX_ARROW_ROWS", {}))
     limits: Limits = field(default_factory=Limits)
     deadline_seconds: float = 60.0
     api_key_digests: frozenset[str] = frozenset()
@@ -48,9 +50,16 @@ class Settings:
         limit_values = {f.name: whole_number(f"LAGWISE_{f.name.upper()}", env) for f in fields(Limits)}
         return cls(
             max_body_bytes=whole_number("LAGWISE_MAX_BODY_BYTES", env),
+            max_arrow_bytes=whole_number("LAGWISE_MAX_ARROW_BYTES", env),
+            max_arrow_rows=whole_number("LAGWISE_MAX_ARROW_ROWS", env),
             limits=Limits(**limit_values),
             deadline_seconds=float(whole_number("LAGWISE_DEADLINE_SECONDS", env)),
             api_key_digests=_digests(env),
             cors_origins=frozenset(o.strip() for o in value("LAGWISE_CORS_ORIGINS", env).split(",") if o.strip()),
             metrics_on_main_listener=not value("LAGWISE_METRICS_BIND", env),
         )
+
+    def for_arrow_samples(self) -> Settings:
+        """The settings of a request whose samples came as an Arrow stream: its row limit replaces
+        ``LAGWISE_MAX_SAMPLES`` (the stream was already refused above it, before its columns were read)."""
+        return replace(self, limits=replace(self.limits, max_samples=max(self.limits.max_samples, self.max_arrow_rows)))

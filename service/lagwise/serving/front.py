@@ -6,8 +6,9 @@ instance). The front is one asyncio process in front of gunicorn (``lagwise serv
 starts both). It
 
 * reads each request line, header block and body under a deadline
-  (``LAGWISE_RECEIVE_SECONDS``) and a size limit (``LAGWISE_MAX_BODY_BYTES``), holding
-  no worker meanwhile; bodies above 256 KiB are spooled to a temporary file;
+  (``LAGWISE_RECEIVE_SECONDS``) and a size limit (``LAGWISE_MAX_BODY_BYTES``, or
+  ``LAGWISE_MAX_ARROW_BYTES`` for a multipart body, whose samples are an Arrow stream),
+  holding no worker meanwhile; bodies above 256 KiB are spooled to a temporary file;
 * answers ``GET /healthz`` itself, so liveness answers in milliseconds however busy the
   workers are;
 * forwards only complete requests, with a ``Content-Length`` and an ``X-Request-ID``,
@@ -73,12 +74,23 @@ class FrontSettings:
         Time a client has to send one whole request, seconds.
     max_connections : int
         Client connections held at once.
+    max_arrow_bytes : int
+        Largest multipart/form-data body (samples as an Arrow stream), bytes; the larger
+        of it and ``max_body_bytes`` applies to such bodies.
     """
 
     upstream: str
     max_body_bytes: int
     receive_seconds: float
     max_connections: int
+    max_arrow_bytes: int = 0
+
+    def body_limit(self, content_type: str | None) -> tuple[int, str]:
+        """The body limit for a request of ``content_type`` and the variable that sets it."""
+        multipart = (content_type or "").split(";")[0].strip().lower() == "multipart/form-data"
+        if multipart and self.max_arrow_bytes > self.max_body_bytes:
+            return self.max_arrow_bytes, "LAGWISE_MAX_ARROW_BYTES"
+        return self.max_body_bytes, "LAGWISE_MAX_BODY_BYTES"
 
 
 class Refusal(Exception):
@@ -295,14 +307,14 @@ class Front:
         if sum(len(n) + len(v) + 4 for n, v in event.headers) > MAX_HEAD_BYTES:
             raise Refusal("headers-too-large", f"The header fields take more than {MAX_HEAD_BYTES} bytes.")
         declared = _header(event.headers, b"content-length")
-        limit = self.settings.max_body_bytes
+        limit, name = self.settings.body_limit(_header(event.headers, b"content-type"))
         if declared is not None and int(declared) > limit:
-            raise Refusal("body-too-large", f"The body exceeds the limit of {limit} bytes (LAGWISE_MAX_BODY_BYTES).")
+            raise Refusal("body-too-large", f"The body exceeds the limit of {limit} bytes ({name}).")
         if client.h11.they_are_waiting_for_100_continue:
             await client.send(h11.InformationalResponse(status_code=100, headers=[], reason=b"Continue"))
         body: IO[bytes] = tempfile.SpooledTemporaryFile(max_size=SPOOL_BYTES)
         try:
-            size = await self._receive_body(client, deadline, body)
+            size = await self._receive_body(client, deadline, body, limit, name)
         except BaseException:
             body.close()
             raise
@@ -310,18 +322,17 @@ class Front:
         headers = [(n, v) for n, v in event.headers if n not in HOP_BY_HOP and n != b"x-request-id"]
         return ReceivedRequest(event.method, event.target, headers, body, size, request_id)
 
-    async def _receive_body(self, client: ClientConnection, deadline: float, body: IO[bytes]) -> int:
-        """Write the body into ``body``; returns its size in bytes."""
-        limit = self.settings.max_body_bytes
+    async def _receive_body(
+        self, client: ClientConnection, deadline: float, body: IO[bytes], limit: int, name: str
+    ) -> int:
+        """Write the body into ``body``, refusing more than ``limit`` bytes (set by ``name``); returns its size."""
         size = 0
         while True:
             part = await client.next_event(deadline)
             if isinstance(part, h11.Data):
                 size += len(part.data)
                 if size > limit:
-                    raise Refusal(
-                        "body-too-large", f"The body exceeds the limit of {limit} bytes (LAGWISE_MAX_BODY_BYTES)."
-                    )
+                    raise Refusal("body-too-large", f"The body exceeds the limit of {limit} bytes ({name}).")
                 body.write(part.data)
             elif isinstance(part, h11.EndOfMessage):
                 return size

@@ -57,6 +57,7 @@ async def _run(bind: str, config: str, runtime: str) -> int:
             max_body_bytes=whole_number("LAGWISE_MAX_BODY_BYTES"),
             receive_seconds=float(whole_number("LAGWISE_RECEIVE_SECONDS")),
             max_connections=whole_number("LAGWISE_MAX_CONNECTIONS"),
+            max_arrow_bytes=whole_number("LAGWISE_MAX_ARROW_BYTES"),
         )
     )
     server = await asyncio.start_server(front.handle, host, port, limit=1 << 16, backlog=2048)

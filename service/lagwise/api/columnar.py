@@ -1,0 +1,222 @@
+"""Samples as an Apache Arrow IPC stream in, per-target columns as an Arrow stream out.
+
+Requests
+--------
+A ``multipart/form-data`` body with two parts: ``request`` (``application/json``: the
+options, without ``samples``) and ``samples`` (``application/vnd.apache.arrow.stream``,
+sent as a file: columns ``x``, ``y``, ``z``, ``values`` and optionally ``ids``,
+``censored``, ``detection_limits``). The stream is checked in three steps before any
+column is converted: its schema (names and types), then the rows of each record batch,
+counted from the batch header (batches are views of the received buffer, nothing is
+copied before the count passes), then nulls. The columns then take the same path as
+JSON columns (schema validation, :func:`lagwise.api.convert.sample_set`), so the same
+samples give the same numbers and the same ``provenance.input_sha256`` either way.
+
+Answers
+-------
+With ``Accept: application/vnd.apache.arrow.stream``, an endpoint that answers per-target
+columns (predictions) sends an Arrow stream: one float64 column per array (null where
+the JSON answer has ``null``) and the rest of the JSON answer, as JSON text, in the
+schema metadata under the key ``response``.
+"""
+
+from __future__ import annotations
+
+import io
+from collections.abc import Sequence
+
+import numpy as np
+import pyarrow as pa
+from flask import request
+from werkzeug.exceptions import RequestEntityTooLarge
+from werkzeug.formparser import MultiPartParser
+from werkzeug.http import parse_options_header
+
+from ..core.errors import FieldIssue, InvalidInput, LimitExceeded
+from .jsonio import dumps
+from .problems import Problem
+
+ARROW_MEDIA_TYPE = "application/vnd.apache.arrow.stream"
+MULTIPART_MEDIA_TYPE = "multipart/form-data"
+JSON_MEDIA_TYPE = "application/json"
+METADATA_KEY = b"response"
+# The options part is small JSON; a larger one is a mistake (or samples sent as a text field).
+MAX_OPTIONS_BYTES = 1 << 20
+MAX_PARTS = 8
+NUMBER_COLUMNS = ("x", "y", "z", "values")
+COLUMNS = (*NUMBER_COLUMNS, "ids", "censored", "detection_limits")
+MAX_LISTED = 20
+
+
+def _memory_file(*args, **kwargs) -> io.BytesIO:
+    return io.BytesIO()
+
+
+def split_form(body: bytes, content_type: str) -> tuple[bytes, bytes]:
+    """The ``request`` (JSON bytes) and ``samples`` (Arrow stream bytes) parts of a multipart body.
+
+    Raises
+    ------
+    Problem
+        400 ``malformed-request`` when the body is not multipart/form-data with a boundary,
+        422 ``invalid-input`` naming a missing part, 415 for a samples part of another type.
+    """
+    _, options = parse_options_header(content_type)
+    boundary = options.get("boundary")
+    if not boundary:
+        raise Problem("malformed-request", "The multipart/form-data Content-Type has no boundary parameter.")
+    parser = MultiPartParser(_memory_file, max_form_memory_size=MAX_OPTIONS_BYTES, max_form_parts=MAX_PARTS)
+    try:
+        form, files = parser.parse(io.BytesIO(body), boundary.encode("latin-1"), len(body))
+    except RequestEntityTooLarge:
+        raise Problem(
+            "malformed-request",
+            f"A text part is over {MAX_OPTIONS_BYTES} bytes or the form has more than {MAX_PARTS} parts; "
+            "send the options as the request part and the samples as a file part (with a filename).",
+        ) from None
+    except ValueError as exc:
+        raise Problem("malformed-request", f"The multipart body cannot be read: {exc}.") from None
+    if "request" in form:
+        options_part = form["request"].encode("utf-8")
+    elif "request" in files:
+        options_part = files["request"].stream.read()
+    else:
+        raise InvalidInput.at("", "the multipart form needs a request part (application/json: the options)")
+    if "samples" not in files:
+        detail = (
+            "the samples part must be sent as a file (Content-Disposition with a filename)"
+            if "samples" in form
+            else "the multipart form needs a samples part (application/vnd.apache.arrow.stream)"
+        )
+        raise InvalidInput.at("/samples", detail)
+    part = files["samples"]
+    if part.mimetype != ARROW_MEDIA_TYPE:
+        raise Problem(
+            "unsupported-media-type",
+            f"the samples part must be {ARROW_MEDIA_TYPE}, got {part.mimetype or 'none'}",
+        )
+    return options_part, part.stream.read()
+
+
+def _kind_error(name: str, kind: pa.DataType) -> str | None:
+    if name in NUMBER_COLUMNS or name == "detection_limits":
+        ok = pa.types.is_floating(kind) or pa.types.is_integer(kind)
+        return None if ok else f"column {name} must hold numbers (floating-point or integer), got {kind}"
+    if name == "censored":
+        return None if pa.types.is_boolean(kind) else f"column censored must be boolean, got {kind}"
+    text = pa.types.is_string(kind) or pa.types.is_large_string(kind) or pa.types.is_string_view(kind)
+    return None if text or pa.types.is_integer(kind) else f"column ids must hold text or integers, got {kind}"
+
+
+def _check_schema(schema: pa.Schema) -> None:
+    issues = []
+    for name in ("x", "values"):
+        if name not in schema.names:
+            issues.append(FieldIssue(f"/samples/{name}", f"the Arrow stream has no column {name}"))
+    seen: set[str] = set()
+    for column in schema:
+        if column.name in seen:
+            issues.append(FieldIssue(f"/samples/{column.name}", f"column {column.name} appears twice"))
+            continue
+        seen.add(column.name)
+        if column.name not in COLUMNS:
+            issues.append(
+                FieldIssue(
+                    f"/samples/{column.name}", f"unknown column {column.name!r}; the columns are {', '.join(COLUMNS)}"
+                )
+            )
+            continue
+        message = _kind_error(column.name, column.type)
+        if message:
+            issues.append(FieldIssue(f"/samples/{column.name}", message))
+    if issues:
+        raise InvalidInput(issues)
+
+
+def _batches(reader: pa.ipc.RecordBatchStreamReader, max_rows: int) -> list[pa.RecordBatch]:
+    batches: list[pa.RecordBatch] = []
+    rows = 0
+    while True:
+        try:
+            batch = reader.read_next_batch()
+        except StopIteration:
+            return batches
+        except (pa.ArrowException, OSError) as exc:
+            raise InvalidInput.at("/samples", f"the Arrow stream is truncated or corrupt: {exc}") from None
+        rows += batch.num_rows
+        if rows > max_rows:
+            raise LimitExceeded(
+                "LAGWISE_MAX_ARROW_ROWS",
+                max_rows,
+                rows,
+                "Send fewer samples per request (thin or split the data set).",
+                "/samples",
+            )
+        try:
+            batch.validate(full=True)
+        except pa.ArrowException as exc:
+            raise InvalidInput.at("/samples", f"the Arrow stream holds an invalid record batch: {exc}") from None
+        batches.append(batch)
+
+
+def _column(name: str, column: pa.ChunkedArray):
+    """A numpy array (numbers, flags) or a list of text (ids) from one Arrow column."""
+    if name == "detection_limits":
+        return column.cast(pa.float64(), safe=False).fill_null(np.nan).to_numpy()
+    if column.null_count:
+        missing = np.flatnonzero(~column.is_valid().to_numpy(zero_copy_only=False))
+        raise InvalidInput([FieldIssue(f"/samples/{name}/{int(i)}", "missing (null)") for i in missing[:MAX_LISTED]])
+    if name in NUMBER_COLUMNS:
+        return column.cast(pa.float64(), safe=False).to_numpy()
+    if name == "censored":
+        return column.to_numpy(zero_copy_only=False)
+    return [str(v) for v in column.to_pylist()]
+
+
+def read_samples(data: bytes, max_rows: int) -> dict:
+    """The sample columns of an Arrow IPC stream, checked in the order the module states.
+
+    Parameters
+    ----------
+    data : bytes
+        The stream (the ``samples`` part).
+    max_rows : int
+        ``LAGWISE_MAX_ARROW_ROWS``: more rows are refused before any column is converted.
+
+    Returns
+    -------
+    dict
+        Column name to float64 array (numbers; NaN for a null detection limit), boolean
+        array (``censored``) or list of str (``ids``).
+
+    Raises
+    ------
+    InvalidInput
+        Naming the column (``/samples/<column>``) or the row (``/samples/<column>/<row>``).
+    LimitExceeded
+        ``LAGWISE_MAX_ARROW_ROWS``.
+    """
+    try:
+        reader = pa.ipc.open_stream(pa.py_buffer(data))
+    except (pa.ArrowException, OSError) as exc:
+        raise InvalidInput.at("/samples", f"the samples part is not an Arrow IPC stream: {exc}") from None
+    _check_schema(reader.schema)
+    table = pa.Table.from_batches(_batches(reader, max_rows), schema=reader.schema)
+    return {name: _column(name, table.column(name)) for name in table.column_names}
+
+
+def wants_arrow() -> bool:
+    """True when the request's ``Accept`` prefers an Arrow stream to JSON."""
+    return request.accept_mimetypes.best_match([JSON_MEDIA_TYPE, ARROW_MEDIA_TYPE]) == ARROW_MEDIA_TYPE
+
+
+def arrow_answer(document: dict, columns: Sequence[str]) -> bytes:
+    """An Arrow IPC stream of ``document``'s members named in ``columns`` (float64, NaN as null),
+    with the other members as JSON text in the schema metadata (key ``response``)."""
+    arrays = {name: pa.array(np.asarray(document[name], dtype=np.float64), from_pandas=True) for name in columns}
+    rest = {name: value for name, value in document.items() if name not in arrays}
+    table = pa.table(arrays).replace_schema_metadata({METADATA_KEY: dumps(rest)})
+    sink = pa.BufferOutputStream()
+    with pa.ipc.new_stream(sink, table.schema) as writer:
+        writer.write_table(table)
+    return sink.getvalue().to_pybytes()
