@@ -19,6 +19,7 @@ from .errors import (
     ValidationError,
 )
 from .families import FAMILIES, Family, Parameter
+from .joint import Cokriging, CokrigingCrossValidation, JointModel, variables_samples
 from .models import ModelStructure, VariogramModel
 from .results import (
     Analysis,
@@ -41,12 +42,15 @@ __all__ = [
     "Analysis",
     "AuthError",
     "Candidate",
+    "Cokriging",
+    "CokrigingCrossValidation",
     "ColumnsError",
     "CrossValidation",
     "DeadlineError",
     "DirectionVariogram",
     "ExperimentalVariogram",
     "Family",
+    "JointModel",
     "Lagwise",
     "LagwiseError",
     "LimitError",
@@ -64,4 +68,5 @@ __all__ = [
     "VariogramMap",
     "VariogramModel",
     "samples_document",
+    "variables_samples",
 ]

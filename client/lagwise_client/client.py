@@ -12,6 +12,7 @@ from urllib3.exceptions import ReadTimeoutError  # urllib3 is requests' own tran
 
 from . import columnar
 from .errors import LagwiseError, ResponseError, TransportError, ValidationError, error_for
+from .joint import Cokriging, CokrigingCrossValidation, JointModel, variables_samples
 from .models import VariogramModel
 from .results import Analysis, CrossValidation, ExperimentalVariogram, ModelFit, Predictions, VariogramMap
 from .retry import RetryPolicy
@@ -392,6 +393,82 @@ class Lagwise:
         ``arrow_answer=True`` (needs pyarrow) has the service answer the per-target columns as an
         Arrow stream, which is quicker for many targets; the result is the same."""
         return self._compute("/v1/predictions", Predictions, locals())
+
+    def _joint_body(self, samples, variables, coordinate_columns, model, options: Mapping[str, Any]) -> dict:
+        if variables is not None:
+            samples = variables_samples(samples, variables, **coordinate_columns)
+        body: dict[str, Any] = {
+            "samples": samples,
+            "model": model.to_dict() if isinstance(model, JointModel) else dict(model),
+        }
+        for name, value in options.items():
+            if value is not None:
+                body[name] = _targets(value) if name == "targets" else value
+        return body
+
+    def cokrige(
+        self,
+        samples,
+        *,
+        model: JointModel | Mapping[str, Any],
+        primary: str | None = None,
+        variables: list[str] | None = None,
+        columns: Mapping[str, str | None] | None = None,
+        targets: Mapping[str, Any] | None = None,
+        grid: Mapping[str, Any] | None = None,
+        kriging: Mapping[str, Any] | None = None,
+        neighbourhood: Mapping[str, Any] | None = None,
+        coordinates: str | None = None,
+        duplicates: str | None = None,
+    ) -> Cokriging:
+        """Cokriging of ``primary`` from every variable of the joint ``model`` (``POST /v1/predictions``).
+
+        ``samples`` is a table (mapping of columns or DataFrame) whose ``variables`` columns are
+        sent (NaN or None where not measured; ``columns`` names the x, y, z and ids columns, default
+        ``x`` and ``y``), or an already built samples document when ``variables`` is None.
+        ``kriging`` ``{"type": "ordinary"}`` (default) or ``{"type": "simple", "means": {...}}``.
+        The result's ``cokriging`` shows the variance with and without the secondaries.
+        """
+        options = {
+            "primary": primary,
+            "targets": targets,
+            "grid": grid,
+            "kriging": kriging,
+            "neighbourhood": neighbourhood,
+            "coordinates": coordinates,
+            "duplicates": duplicates,
+        }
+        body = self._joint_body(samples, variables, dict(columns or {}), model, options)
+        return Cokriging.from_response(self.request("POST", "/v1/predictions", body))
+
+    def cross_validate_cokriging(
+        self,
+        samples,
+        *,
+        model: JointModel | Mapping[str, Any],
+        primary: str | None = None,
+        variables: list[str] | None = None,
+        columns: Mapping[str, str | None] | None = None,
+        kriging: Mapping[str, Any] | None = None,
+        neighbourhood: Mapping[str, Any] | None = None,
+        scheme: Mapping[str, Any] | None = None,
+        outlier_threshold: float | None = None,
+        coordinates: str | None = None,
+        duplicates: str | None = None,
+    ) -> CokrigingCrossValidation:
+        """Cross-validation of ``primary`` by cokriging (``POST /v1/cross-validations``); samples as
+        for :meth:`cokrige`. Only primary values are left out."""
+        options = {
+            "primary": primary,
+            "kriging": kriging,
+            "neighbourhood": neighbourhood,
+            "scheme": scheme,
+            "outlier_threshold": outlier_threshold,
+            "coordinates": coordinates,
+            "duplicates": duplicates,
+        }
+        body = self._joint_body(samples, variables, dict(columns or {}), model, options)
+        return CokrigingCrossValidation.from_response(self.request("POST", "/v1/cross-validations", body))
 
     def analyze(
         self,

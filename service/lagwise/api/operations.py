@@ -22,7 +22,7 @@ from ..core.modelling.from_samples import fit_samples
 from ..core.variography.experimental import experimental_variogram, raster_variogram
 from ..core.variography.fft import FFT_STATISTICS
 from ..core.variography.maps import raster_map, variogram_map
-from . import convert, serialize
+from . import convert, joint, serialize
 from .body import load_json
 from .columnar import ARROW_MEDIA_TYPE, arrow_answer, wants_arrow
 from .figure_set import render
@@ -264,6 +264,8 @@ def model_fits():
 )
 def cross_validations():
     document = load_json(CrossValidationRequest())
+    if joint.is_joint(document):
+        return with_provenance(*joint.cross_validation(document, settings().limits, numba.get_num_threads()))
     samples = convert.sample_set(document, settings().limits)
     working = working_samples(samples, convert.transform_kind(document))
     model, spec = (
@@ -296,6 +298,8 @@ def cross_validations():
 )
 def predictions():
     document = load_json(PredictionRequest())
+    if joint.is_joint(document):
+        return with_provenance(*joint.prediction(document, settings().limits, numba.get_num_threads()))
     samples = convert.sample_set(document, settings().limits)
     working = working_samples(samples, convert.transform_kind(document))
     model, spec, hood = (

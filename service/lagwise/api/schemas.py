@@ -457,6 +457,63 @@ class Model(Schema):
     )
 
 
+def _matrix(**kwargs) -> fields.List:
+    return fields.List(
+        fields.List(finite(), validate=validate.Length(min=1, max=MAX_VARIABLES)),
+        validate=validate.Length(min=1, max=MAX_VARIABLES),
+        **kwargs,
+    )
+
+
+class JointStructureInput(Schema):
+    """A structure shared by every variable of a joint model, with its matrix of sills."""
+
+    family = one_of(
+        tuple(name for name, f in FAMILIES.items() if f.bounded),
+        required=True,
+        metadata={"description": "A bounded family (GET /v1/model-families)."},
+    )
+    range = finite(
+        required=True,
+        validate=validate.Range(min=0, min_inclusive=False),
+        metadata={"description": "Practical range, coordinate units (shared by every variable)."},
+    )
+    smoothness = finite(metadata={"description": "Matern smoothness."})
+    shape = finite(metadata={"description": "Stable shape."})
+    anisotropy = fields.Nested(AnisotropyInput)
+    sills = _matrix(
+        required=True,
+        metadata={
+            "description": "Coregionalisation matrix (rows and columns in the order of variables): partial sills on "
+            "the diagonal, cross partial sills off it; symmetric positive semi-definite.",
+            "example": [[0.8, 0.5], [0.5, 0.6]],
+        },
+    )
+
+
+class JointModel(Schema):
+    """A joint model of several variables (linear model of coregionalisation): a nugget matrix and
+    shared structures, every matrix symmetric positive semi-definite."""
+
+    variables = fields.List(
+        fields.String(validate=validate.Length(min=1, max=60)),
+        required=True,
+        validate=validate.Length(min=1, max=MAX_VARIABLES),
+        metadata={"description": "Variable names: the rows and columns of every matrix, in order."},
+    )
+    nugget = _matrix(metadata={"description": "Nugget matrix; omitted: zero."})
+    structures = fields.List(fields.Nested(JointStructureInput), load_default=list, validate=validate.Length(max=5))
+
+
+def _model_form(value: dict) -> str:
+    return "joint" if "variables" in value else "single"
+
+
+def model_field(**kwargs) -> Variants:
+    """A variogram model of one variable, or a joint model of several (with ``variables``)."""
+    return Variants({"single": Model, "joint": JointModel}, _model_form, **kwargs)
+
+
 # ---- fitting -----------------------------------------------------------------------
 
 
@@ -567,6 +624,14 @@ class KrigingInput(Schema):
             "when sampling is clustered."
         }
     )
+    means = NamedColumns(
+        finite(),
+        max_names=MAX_VARIABLES,
+        metadata={
+            "description": "Simple cokriging: the known mean of each variable of the joint model. Default: each "
+            "variable's mean, declustered when sampling is clustered."
+        },
+    )
     drift = one_of(DRIFTS, metadata={"description": "Drift (universal kriging)."})
     nugget_as = one_of(NUGGET_ROLES, load_default="micro_scale")
 
@@ -587,7 +652,26 @@ class SchemeInput(Schema):
 
 
 class KrigingOptions(SampleOptions):
-    model = fields.Nested(Model, required=True)
+    model = model_field(
+        required=True,
+        metadata={"description": "A variogram model, or a joint model of several variables (cokriging the primary)."},
+    )
+    primary = fields.String(
+        validate=validate.Length(min=1, max=60),
+        metadata={
+            "description": "Cokriging: the variable estimated (default the joint model's first); the others are "
+            "secondaries."
+        },
+    )
+
+    @validates_schema
+    def _joint_members(self, data, **kwargs):
+        joint = "variables" in (data.get("model") or {})
+        if "primary" in data and not joint:
+            raise ValidationError({"primary": ["applies to a joint model (model.variables)"]})
+        if (data.get("kriging") or {}).get("means") is not None and not joint:
+            raise ValidationError({"kriging": {"means": ["apply to a joint model; one variable takes mean"]}})
+
     variable = variable_choice()
     transform = one_of(
         TRANSFORMS,
@@ -1094,12 +1178,34 @@ class UnestimatedSchema(Schema):
     reason = fields.String()
 
 
-@always_present()
+class CokrigingGainSchema(Schema):
+    """Cokriging: what the secondary variables bought against kriging the primary alone (its direct model,
+    the same kriging type and neighbourhood)."""
+
+    primary = fields.String()
+    secondaries = fields.List(fields.String())
+    mean_variance = fields.Float(
+        allow_none=True, metadata={"description": "Mean cokriging variance over the targets both estimated."}
+    )
+    mean_variance_primary_only = fields.Float(allow_none=True)
+    variance_reduction = fields.Float(
+        allow_none=True, metadata={"description": "1 - mean_variance / mean_variance_primary_only."}
+    )
+    variance_primary_only = fields.List(
+        fields.Float(allow_none=True), metadata={"description": "Per target (or sample): kriging the primary alone."}
+    )
+    statistics_primary_only = fields.Nested(
+        CrossValidationStatisticsSchema, metadata={"description": "Cross-validation of the primary kriged alone."}
+    )
+
+
+@always_present("cokriging")
 class CrossValidationResponse(ResultEnvelope):
     statistics = fields.Nested(CrossValidationStatisticsSchema)
     samples = fields.Nested(CrossValidationSamplesSchema)
     assessment = fields.String()
     unestimated = fields.List(fields.Nested(UnestimatedSchema))
+    cokriging = fields.Nested(CokrigingGainSchema, metadata={"description": "With a joint model."})
 
 
 @always_present()
@@ -1127,7 +1233,7 @@ class ExceedanceSchema(Schema):
     )
 
 
-@always_present("y", "z", "grid", "weights", "exceedance")
+@always_present("y", "z", "grid", "weights", "exceedance", "cokriging")
 class PredictionResponse(ResultEnvelope):
     x = fields.List(fields.Float())
     y = fields.List(fields.Float(), metadata={"description": "2-D and 3-D samples."})
@@ -1141,6 +1247,7 @@ class PredictionResponse(ResultEnvelope):
         fields.Nested(ExceedanceSchema), metadata={"description": "When thresholds were given (parameters.exceedance)."}
     )
     support = one_of(("point", "block"), metadata={"description": "What estimate and variance refer to."})
+    cokriging = fields.Nested(CokrigingGainSchema, metadata={"description": "With a joint model."})
 
 
 @always_present()

@@ -16,14 +16,17 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 
+from ..data.declustering import decluster
 from ..data.samples import DuplicateReport, SampleSet
 from ..deadline import check_deadline
+from ..errors import InvalidInput, LimitExceeded
 from ..limits import Limits
 from ..modelling.coregionalisation import JointModel
 from .cokriging import Cokriger, CokrigingPrediction, CokrigingSpec, VariableColumns, validate_cokriging
 from .cost import UNIQUE_LOO_COPIES, UNIQUE_PREDICTION_COPIES, check_kriging, prediction_flops
 from .cross_validation import CrossValidation, Scheme, cross_validate, summarise, validate_scheme
 from .neighbourhood import Neighbourhood
+from .prediction import Grid, _check_reach, _project, validate_grid
 from .systems import Kriger, KrigingSpec
 
 
@@ -120,6 +123,17 @@ def _check_cost(
     )
 
 
+def default_means(columns: VariableColumns, names: tuple[str, ...]) -> dict:
+    """Each variable's mean over its measured values, declustered when sampling is clustered
+    (cell declustering, :mod:`lagwise.core.data.declustering`), as for one variable."""
+    out = {}
+    for name in names:
+        rows = np.flatnonzero(np.isfinite(columns.column(name)))
+        values = columns.column(name)[rows]
+        out[name] = float(decluster(columns.coords[rows], values).mean_of(values))
+    return out
+
+
 @dataclass(frozen=True)
 class CokrigingResult:
     """Cokriging of the primary at targets and the comparison with kriging it alone."""
@@ -127,6 +141,8 @@ class CokrigingResult:
     prediction: CokrigingPrediction
     comparison: VarianceComparison
     secondaries: tuple[str, ...]
+    targets: np.ndarray | None = None
+    grid: Grid | None = None
 
 
 def cokrige(
@@ -240,3 +256,43 @@ def cross_validate_cokriging(
     )
     comparison = compare(sd**2 - noise, alone.standard_deviation**2 - noise)
     return CokrigingCrossValidation(result, alone, comparison, ordered.variables[1:])
+
+
+def cokrige_points(
+    samples,
+    model: JointModel,
+    spec: CokrigingSpec,
+    neighbourhood: Neighbourhood,
+    *,
+    targets: np.ndarray | None = None,
+    grid: Grid | None = None,
+    limits: Limits = Limits(),
+    workers: int = 1,
+) -> CokrigingResult:
+    """Cokriging at ``targets`` (m, d) or on ``grid``, in the samples' input coordinates (degrees
+    for geographic samples). ``samples`` is a multi-variable sample set (coords, names, values,
+    ids, projection)."""
+    if (targets is None) == (grid is None):
+        raise InvalidInput.at("/targets", "give either targets or grid")
+    if grid is not None:
+        validate_grid(grid, samples.dimension)
+        m = grid.size
+    else:
+        given = np.asarray(targets, dtype=np.float64)
+        if given.ndim != 2 or given.shape[1] != samples.dimension or given.shape[0] == 0:
+            raise InvalidInput.at("/targets", f"give at least one target with {samples.dimension} coordinates")
+        m = given.shape[0]
+    if m > limits.max_targets:
+        raise LimitExceeded(
+            "LAGWISE_MAX_TARGETS",
+            limits.max_targets,
+            m,
+            "Predict on a coarser grid or in several requests.",
+            "/grid" if grid is not None else "/targets",
+        )
+    points = grid.points() if grid is not None else given
+    projected = _project(samples, points)
+    _check_reach(samples, projected, grid is not None)
+    columns = VariableColumns(samples.coords, tuple(samples.names), samples.values, tuple(samples.ids))
+    result = cokrige(columns, model, spec, neighbourhood, projected, limits=limits, workers=workers)
+    return replace(result, targets=points, grid=grid)

@@ -1,0 +1,145 @@
+"""Cokriging on /v1/predictions and /v1/cross-validations: results equal the core's, refusals name the field."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+from lagwise.core.kriging.cokriging import CokrigingSpec, VariableColumns
+from lagwise.core.kriging.cokriging_runs import cokrige, cross_validate_cokriging
+from lagwise.core.kriging.neighbourhood import Neighbourhood
+from lagwise.core.modelling.coregionalisation import JointModel, JointStructure
+
+PROBLEM = "application/problem+json"
+RNG = np.random.default_rng(21)
+N = 50
+X = RNG.uniform(0, 100, N).round(3).tolist()
+Y = RNG.uniform(0, 100, N).round(3).tolist()
+LEAD = [None if i % 4 == 0 else v for i, v in enumerate(RNG.normal(50, 5, N).round(3).tolist())]
+ZINC = RNG.normal(200, 20, N).round(3).tolist()
+MODEL = {
+    "variables": ["lead", "zinc"],
+    "nugget": [[2.0, 1.0], [1.0, 40.0]],
+    "structures": [{"family": "spherical", "range": 40.0, "sills": [[20.0, 60.0], [60.0, 360.0]]}],
+}
+
+
+def samples():
+    return {"x": X, "y": Y, "variables": {"lead": LEAD, "zinc": ZINC}}
+
+
+def core_inputs():
+    values = np.array([[np.nan if a is None else a, b] for a, b in zip(LEAD, ZINC, strict=True)])
+    columns = VariableColumns(np.column_stack([X, Y]), ("lead", "zinc"), values, tuple(str(i) for i in range(N)))
+    model = JointModel(
+        ("lead", "zinc"),
+        np.array(MODEL["nugget"]),
+        (JointStructure("spherical", 40.0, np.array(MODEL["structures"][0]["sills"])),),
+    )
+    return columns, model
+
+
+def problem(r, pointers):
+    assert r.status_code == 422, r.data[:500]
+    assert r.mimetype == PROBLEM
+    assert [e["pointer"] for e in r.json["errors"]] == pointers, r.json
+    return r.json
+
+
+@pytest.mark.parametrize("hood", [None, {"max_points": 8}])
+def test_prediction_equals_core(client, hood):
+    targets = {"x": [10.0, 55.5, 90.0], "y": [20.0, 50.0, 80.0]}
+    body = {"samples": samples(), "model": MODEL, "primary": "lead", "targets": targets}
+    if hood:
+        body["neighbourhood"] = hood
+    r = client.post("/v1/predictions", json=body)
+    assert r.status_code == 200, r.json
+    columns, model = core_inputs()
+    neighbourhood = Neighbourhood() if hood is None else Neighbourhood(max_points=8, min_points=4)
+    expected = cokrige(
+        columns, model, CokrigingSpec("ordinary", "lead"), neighbourhood, np.column_stack([targets["x"], targets["y"]])
+    )
+    np.testing.assert_allclose(r.json["estimate"], expected.prediction.estimate, rtol=1e-12)
+    np.testing.assert_allclose(r.json["variance"], expected.prediction.variance, rtol=1e-12)
+    gain = r.json["cokriging"]
+    assert gain["primary"] == "lead" and gain["secondaries"] == ["zinc"]
+    assert gain["mean_variance"] < gain["mean_variance_primary_only"]
+    assert 0 < gain["variance_reduction"] < 1
+    assert len(gain["variance_primary_only"]) == 3
+
+
+def test_prediction_on_grid_and_simple_cokriging(client):
+    grid = {"origin": [0.0, 0.0], "spacing": [25.0, 25.0], "shape": [5, 3]}
+    r = client.post(
+        "/v1/predictions",
+        json={
+            "samples": samples(),
+            "model": MODEL,
+            "kriging": {"type": "simple", "means": {"lead": 50.0, "zinc": 200.0}},
+            "grid": grid,
+        },
+    )
+    assert r.status_code == 200, r.json
+    assert len(r.json["estimate"]) == 15 and r.json["grid"]["shape"] == [5, 3]
+    assert r.json["parameters"]["kriging"]["means"] == {"lead": 50.0, "zinc": 200.0}
+
+
+@pytest.mark.parametrize("scheme", [{"type": "leave_one_out"}, {"type": "k_fold", "folds": 5, "seed": 2}])
+def test_cross_validation_equals_core(client, scheme):
+    r = client.post(
+        "/v1/cross-validations",
+        json={
+            "samples": samples(),
+            "model": MODEL,
+            "primary": "lead",
+            "neighbourhood": {"max_points": 10},
+            "scheme": scheme,
+        },
+    )
+    assert r.status_code == 200, r.json
+    columns, model = core_inputs()
+    from lagwise.core.kriging.cross_validation import Scheme
+
+    expected = cross_validate_cokriging(
+        columns,
+        model,
+        CokrigingSpec("ordinary", "lead"),
+        Neighbourhood(max_points=10, min_points=4),
+        Scheme(scheme["type"], scheme.get("folds", 10), scheme.get("seed", 1)),
+    )
+    np.testing.assert_allclose(r.json["samples"]["estimate"], expected.result.estimate, rtol=1e-12)
+    assert r.json["statistics"]["count"] == sum(v is not None for v in LEAD)
+    assert r.json["samples"]["id"][0] == "1"  # sample 0 has no lead
+    gain = r.json["cokriging"]
+    assert gain["statistics_primary_only"]["count"] == r.json["statistics"]["count"]
+    assert gain["variance_reduction"] > 0
+
+
+def test_bad_joint_models_are_refused(client):
+    def post(model, **extra):
+        return client.post(
+            "/v1/predictions", json={"samples": samples(), "model": model, "targets": {"x": [1.0], "y": [1.0]}, **extra}
+        )
+
+    not_psd = {**MODEL, "structures": [{**MODEL["structures"][0], "sills": [[20.0, 90.0], [90.0, 360.0]]}]}
+    doc = problem(post(not_psd), ["/model/structures/0/sills"])
+    assert "smallest eigenvalue" in doc["errors"][0]["detail"]
+    problem(post({**MODEL, "variables": ["lead", "tin"]}), ["/model/variables/1"])
+    problem(post(MODEL, primary="tin"), ["/primary"])
+    problem(post(MODEL, transform="log"), ["/transform"])
+    problem(post({**MODEL, "nugget": [[1.0, 0.0]]}), ["/model/nugget"])
+
+
+def test_joint_model_needs_several_variables_and_single_models_refuse_primary(client):
+    one = {"x": X, "y": Y, "values": ZINC}
+    target = {"x": [1.0], "y": [1.0]}
+    problem(client.post("/v1/predictions", json={"samples": one, "model": MODEL, "targets": target}), ["/samples"])
+    single = {"nugget": 1.0, "structures": [{"family": "spherical", "partial_sill": 1.0, "range": 30.0}]}
+    r = client.post("/v1/predictions", json={"samples": one, "model": single, "primary": "zinc", "targets": target})
+    assert r.status_code == 422 and r.json["errors"][0]["pointer"] == "/primary"
+
+
+def test_variable_with_too_few_values(client):
+    sparse = [None] * (N - 1) + [3.0]
+    body = {"samples": {"x": X, "y": Y, "variables": {"lead": sparse, "zinc": ZINC}}, "model": MODEL}
+    r = client.post("/v1/cross-validations", json=body)
+    assert r.status_code == 422
