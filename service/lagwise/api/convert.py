@@ -395,8 +395,8 @@ def kriging_spec(
     return KrigingSpec(type=k["type"], mean=mean, drift=k.get("drift"), nugget_as=k["nugget_as"])
 
 
-def transform_kind(document: dict) -> str:
-    """The request's transform: as given, else the model's (the one it was fitted in), else none."""
+def transform_kind(document: dict, default: str = "none") -> str:
+    """The request's transform: as given, else the model's (the one it was fitted in), else ``default``."""
     given, fitted = document.get("transform"), document["model"].get("transform")
     if given is not None and fitted is not None and given != fitted:
         raise InvalidInput.at(
@@ -404,7 +404,7 @@ def transform_kind(document: dict) -> str:
             f"the model was fitted to {fitted} values (model.transform) but transform is {given}: "
             "give the transform the model was fitted in, or refit",
         )
-    return given or fitted or "none"
+    return given or fitted or default
 
 
 def neighbourhood(document: dict) -> Neighbourhood:
@@ -439,6 +439,12 @@ def grid(document: dict) -> Grid | None:
     raw = document.get("grid")
     if raw is None:
         return None
+    return Grid(tuple(raw["origin"]), tuple(raw["spacing"]), tuple(raw["shape"]))
+
+
+def simulation_grid(document: dict) -> Grid:
+    """The simulation grid (required, 2-D)."""
+    raw = document["grid"]
     return Grid(tuple(raw["origin"]), tuple(raw["spacing"]), tuple(raw["shape"]))
 
 

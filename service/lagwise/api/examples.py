@@ -36,6 +36,15 @@ REQUESTS: dict[str, dict] = {
         "model": MODEL,
         "grid": {"origin": [0, 0], "spacing": [20, 15], "shape": [3, 3]},
     },
+    "simulations": {
+        "samples": SAMPLES,
+        "model": {"nugget": 0.1, "structures": [{"family": "spherical", "partial_sill": 0.9, "range": 35.0}]},
+        "grid": {"origin": [0, 0], "spacing": [5, 5], "shape": [8, 6]},
+        "realisations": 20,
+        "seed": 1,
+        "thresholds": [3.5],
+        "blocks": {"size": [20, 15]},
+    },
     "analyses": {
         "samples": SAMPLES,
         "variogram": {"lags": {"width": 8, "count": 6}, "min_pairs": 5},

@@ -15,10 +15,12 @@ from .. import __version__
 from ..core.analysis import analyse
 from ..core.deadline import deadline
 from ..core.errors import InvalidInput
+from ..core.kriging.systems import KrigingSpec
 from ..core.kriging.transformed import cross_validate_transformed, predict_transformed, working_samples
 from ..core.modelling.families import FIT_SCALES, family_catalogue, model_parameter_catalogue
 from ..core.modelling.fitting import fit_model
 from ..core.modelling.from_samples import fit_samples
+from ..core.simulation import simulate
 from ..core.variography.experimental import experimental_variogram, raster_variogram
 from ..core.variography.fft import FFT_STATISTICS
 from ..core.variography.maps import raster_map, variogram_map
@@ -48,6 +50,8 @@ from .schemas import (
     PredictionOnGrid,
     PredictionRequest,
     PredictionResponse,
+    SimulationRequest,
+    SimulationResponse,
 )
 
 blueprint = Blueprint("lagwise", __name__)
@@ -325,6 +329,37 @@ def predictions():
         samples.size,
         columns=PREDICTION_COLUMNS,
     )
+
+
+@operation(
+    "/v1/simulations",
+    "POST",
+    "Gaussian conditional simulation on a grid: per-node and block summaries, exceedance, share of the grid above",
+    SimulationRequest,
+    SimulationResponse,
+)
+def simulations():
+    document = load_json(SimulationRequest())
+    samples = convert.sample_set(document, settings().limits)
+    model, hood = convert.variogram_model(document), convert.neighbourhood(document)
+    kriging = document["kriging"]
+    result = simulate(
+        samples,
+        model,
+        grid=convert.simulation_grid(document),
+        transform=convert.transform_kind(document, default="normal_score"),
+        spec=KrigingSpec(type=kriging["type"], mean=kriging.get("mean")),
+        neighbourhood=hood,
+        realisations=document["realisations"],
+        seed=document["seed"],
+        thresholds=tuple(document["thresholds"]),
+        block_size=tuple(document["blocks"]["size"]) if "blocks" in document else None,
+        return_realisations=document["return_realisations"],
+        limits=settings().limits,
+        workers=numba.get_num_threads(),
+    )
+    body = serialize.simulation(result, samples, model, hood, document)
+    return with_provenance(body, samples.input_hash, samples.size)
 
 
 @operation(

@@ -25,6 +25,7 @@ from ..core.modelling.families import ANISOTROPY, FAMILIES, NUGGET, UNIT_KINDS, 
 from ..core.modelling.fitting import SEMIVARIANCE_STATISTICS, WEIGHTINGS
 from ..core.modelling.models import Anisotropy
 from ..core.selection import STRATEGY_NAMES
+from ..core.simulation.simulate import MAX_REALISATIONS, SIMULATION_KRIGING
 from ..core.stages import ANISOTROPY_CHOICES
 from ..core.variography.gridded import DEFAULT_TOLERANCE, METHODS
 from ..core.variography.lags import AUTO_METHODS, MAX_CLASSES
@@ -1338,6 +1339,130 @@ class AnalysisResponse(ResultEnvelope):
     figures = fields.Dict(keys=fields.String(), values=fields.String())
     selection = fields.Nested(SelectionSchema, allow_none=True)
     verdict = fields.Nested(VerdictSchema)
+
+
+# ---- conditional simulations ---------------------------------------------------------
+
+
+class StrictBoolean(fields.Boolean):
+    """JSON true or false only (not 0, 1 or strings)."""
+
+    def _deserialize(self, value, attr, data, **kwargs):
+        if type(value) is not bool:
+            raise self.make_error("invalid")
+        return value
+
+
+class SimulationKrigingInput(Schema):
+    type = one_of(SIMULATION_KRIGING, load_default="simple")
+    mean = finite(
+        metadata={
+            "description": "Known mean in transformed units (simple kriging). Default: the mean of the transformed "
+            "values, declustered (cell declustering) when sampling is clustered."
+        }
+    )
+
+
+class SimulationGridInput(Schema):
+    """A regular 2-D grid: nodes at origin + (i, j) * spacing, x fastest."""
+
+    origin = fields.List(finite(), required=True, validate=validate.Length(equal=2))
+    spacing = fields.List(
+        finite(validate=validate.Range(min=0, min_inclusive=False)), required=True, validate=validate.Length(equal=2)
+    )
+    shape = fields.List(
+        fields.Integer(strict=True, validate=validate.Range(min=1)), required=True, validate=validate.Length(equal=2)
+    )
+
+
+class SimulationBlocksInput(Schema):
+    size = fields.List(
+        finite(validate=validate.Range(min=0, min_inclusive=False)),
+        required=True,
+        validate=validate.Length(equal=2),
+        metadata={
+            "description": "Block size along x and y (coordinate units): whole numbers of grid spacings that tile "
+            "the grid exactly; a block is the set of grid nodes it covers."
+        },
+    )
+
+
+class SimulationRequest(SampleOptions):
+    """POST /v1/simulations."""
+
+    model = fields.Nested(Model, required=True, metadata={"description": "In transformed units."})
+    variable = variable_choice()
+    transform = one_of(
+        TRANSFORMS,
+        metadata={
+            "description": "Simulate the transformed values and back-transform each realisation. Default: the "
+            "model's transform, else normal_score."
+        },
+    )
+    kriging = fields.Nested(SimulationKrigingInput, load_default=lambda: {"type": "simple"})
+    neighbourhood = fields.Nested(NeighbourhoodInput, allow_none=True, load_default=None)
+    grid = fields.Nested(SimulationGridInput, required=True)
+    realisations = fields.Integer(strict=True, load_default=100, validate=validate.Range(min=1, max=MAX_REALISATIONS))
+    seed = fields.Integer(strict=True, load_default=1, validate=validate.Range(min=0, max=2**63 - 1))
+    thresholds = fields.List(
+        finite(),
+        validate=validate.Length(max=MAX_THRESHOLDS),
+        load_default=list,
+        metadata={"description": "Values in original units: exceedance per node and block, share of the grid above."},
+    )
+    blocks = fields.Nested(SimulationBlocksInput)
+    return_realisations = StrictBoolean(load_default=False)
+
+
+@always_present()
+class NodeQuantilesSchema(Schema):
+    p10 = fields.List(fields.Float())
+    p50 = fields.List(fields.Float())
+    p90 = fields.List(fields.Float())
+
+
+@always_present()
+class SimulatedExceedanceSchema(Schema):
+    threshold = fields.Float(metadata={"description": "Original units."})
+    probability = fields.List(
+        fields.Float(), metadata={"description": "Share of the realisations above the threshold, x fastest."}
+    )
+
+
+@always_present()
+class SimulatedBlocksSchema(Schema):
+    grid = fields.Nested(GridSchema, metadata={"description": "Block centres; spacing is the block size."})
+    mean = fields.List(fields.Float(), metadata={"description": "Mean over realisations of each block average."})
+    exceedance = fields.List(fields.Nested(SimulatedExceedanceSchema))
+
+
+@always_present()
+class FractionSchema(Schema):
+    mean = fields.Float()
+    p10 = fields.Float()
+    p50 = fields.Float()
+    p90 = fields.Float()
+
+
+@always_present()
+class AboveSchema(Schema):
+    threshold = fields.Float()
+    fraction = fields.Nested(FractionSchema, metadata={"description": "Share of the grid above, over realisations."})
+
+
+@always_present("blocks", "realisations")
+class SimulationResponse(ResultEnvelope):
+    grid = fields.Nested(GridSchema)
+    mean = fields.List(fields.Float(), metadata={"description": "E-type mean per node (original units)."})
+    variance = fields.List(fields.Float(), metadata={"description": "Variance over realisations (divisor R)."})
+    quantiles = fields.Nested(NodeQuantilesSchema)
+    exceedance = fields.List(fields.Nested(SimulatedExceedanceSchema))
+    blocks = fields.Nested(SimulatedBlocksSchema, metadata={"description": "When blocks were given."})
+    above = fields.List(fields.Nested(AboveSchema))
+    realisations = fields.List(
+        fields.List(fields.Float()), metadata={"description": "When return_realisations: one list per realisation."}
+    )
+    method = fields.Dict()
 
 
 # ---- problems and small documents ---------------------------------------------------

@@ -460,3 +460,44 @@ def analysis(result, samples: SampleSet, figures: dict, options, figure_options:
         "thresholds": figure_options.get("thresholds"),
     }
     return document
+
+
+def simulation(result, samples: SampleSet, model, neighbourhood, request: dict) -> dict:
+    """Response body of ``POST /v1/simulations`` (without provenance); ``result`` a SimulationResult."""
+    document: dict = {
+        "grid": result.grid.as_dict(),
+        "mean": result.mean,
+        "variance": result.variance,
+        "quantiles": result.quantiles,
+        "exceedance": [{"threshold": t, "probability": p} for t, p in result.exceedance],
+        "above": [
+            {"threshold": t, "fraction": {"mean": f.mean, "p10": f.p10, "p50": f.p50, "p90": f.p90}}
+            for t, f in result.above
+        ],
+        "method": result.method(),
+    }
+    if result.blocks is not None:
+        document["blocks"] = {
+            "grid": result.blocks.grid.as_dict(),
+            "mean": result.blocks.mean,
+            "exceedance": [{"threshold": t, "probability": p} for t, p in result.blocks.exceedance],
+        }
+    if result.realisations is not None:
+        document["realisations"] = result.realisations
+    document["parameters"] = {
+        **sample_parameters(samples),
+        "model": model.as_dict(),
+        "model_units": "transformed",
+        "kriging": {"type": result.spec.type, **({"mean": result.spec.mean} if result.spec.type == "simple" else {})},
+        "neighbourhood": neighbourhood.as_dict(),
+        "transform": result.transform.as_dict(),
+        "realisations": request["realisations"],
+        "seed": request["seed"],
+        "thresholds": request["thresholds"],
+        "blocks": request.get("blocks"),
+        "return_realisations": request["return_realisations"],
+        "support": "point values including the nugget; blocks average the grid nodes they cover",
+        "exceedance": "share of the realisations strictly above the threshold",
+    }
+    document["warnings"] = list(result.warnings)
+    return document

@@ -169,7 +169,8 @@ def embed(
             break
         eigen = fft.fft2(torus_covariance(structural, spacing, torus), workers=workers).real
         negative = float(np.abs(eigen[eigen < 0]).sum())
-        share = negative / float(np.abs(eigen).sum())
+        total = float(np.abs(eigen).sum())
+        share = negative / total if total > 0 else 0.0  # a pure-nugget model has no continuous part
         if share <= NEGATIVE_SHARE:
             roots = np.sqrt(np.maximum(eigen, 0.0) / nodes)
             return Embedding(spacing, physical, torus, roots, share, enlargement)

@@ -126,6 +126,8 @@ def prepare(
     rows: list[np.ndarray] = [np.zeros(0, np.int64)]
     cols: list[np.ndarray] = [np.zeros(0, np.int64)]
     vals: list[np.ndarray] = [np.zeros(0)]
+    if cov.c0 <= 0:  # no continuous part (a pure-nugget model): nothing to draw
+        return PointDraw(flat, np.zeros((n, w2)), sparse.csr_matrix((n, n)), np.zeros(n))
     for count in np.unique(counts):
         members = np.flatnonzero(counts == count)
         for first in range(0, members.size, PREPARE_CHUNK):

@@ -36,6 +36,7 @@ request give the same bytes.
 from __future__ import annotations
 
 import math
+import sys
 from dataclasses import dataclass, replace
 
 import numpy as np
@@ -217,9 +218,23 @@ class _Lattice:
     on_node: np.ndarray  # grid node index of each sample sitting on one, else -1
 
 
-def _lattice(samples: SampleSet, grid: Grid) -> _Lattice:
+def _lattice(samples: SampleSet, grid: Grid, max_nodes: int) -> _Lattice:
     origin, spacing = np.asarray(grid.origin), np.asarray(grid.spacing)
-    u = (samples.coords - origin) / spacing  # fractional grid indexes
+    with np.errstate(over="ignore", invalid="ignore"):
+        u = (samples.coords - origin) / spacing  # fractional grid indexes
+        span = np.maximum(np.asarray(grid.shape, dtype=float), u.max(axis=0) + WINDOW) - np.minimum(
+            0.0, u.min(axis=0) - WINDOW
+        )
+    # The torus has at least 2 P nodes per axis: refuse before building anything larger.
+    if not np.all(np.isfinite(span)) or 4.0 * float(np.prod(span)) > max_nodes:
+        raise LimitExceeded(
+            "LAGWISE_MAX_EMBEDDING_NODES",
+            max_nodes,
+            min(4.0 * float(np.prod(span)), sys.float_info.max) if np.all(np.isfinite(span)) else sys.float_info.max,
+            "The simulation lattice has the grid's spacing and covers the grid and every sample; keep the samples "
+            "near the grid or use a coarser spacing.",
+            "/grid",
+        )
     low = np.minimum(0, window_origin(u).min(axis=0))
     high = np.maximum(np.asarray(grid.shape) - 1, (window_origin(u) + WINDOW - 1).max(axis=0))
     shape = (int(high[0] - low[0] + 1), int(high[1] - low[1] + 1))
@@ -348,7 +363,15 @@ def simulate(
     thresholds = tuple(float(t) for t in thresholds)
     _validate(samples, model, grid, transform, spec, neighbourhood, realisations, seed, thresholds)
     blocks = _block_layout(grid, block_size)
-    lattice = _lattice(samples, grid)
+    if realisations * grid.size > limits.max_simulation_values:
+        raise LimitExceeded(
+            "LAGWISE_MAX_SIMULATION_VALUES",
+            limits.max_simulation_values,
+            realisations * grid.size,
+            f"{realisations} realisations x {grid.size} grid nodes; ask for fewer realisations or a coarser grid.",
+            "/realisations",
+        )
+    lattice = _lattice(samples, grid, limits.max_embedding_nodes)
     torus = smallest_torus(lattice.shape)
     if torus[0] * torus[1] > limits.max_embedding_nodes:
         raise LimitExceeded(
