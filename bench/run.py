@@ -1,4 +1,4 @@
-"""Run the benchmarks: ``python3 manage.py bench [variogram] [fitting] [kriging] [unattended]``."""
+"""Run the benchmarks: ``python3 manage.py bench [variogram] [fitting] [kriging] [unattended] [variables]``."""
 
 from __future__ import annotations
 
@@ -10,9 +10,16 @@ sys.path.insert(0, str(Path(__file__).resolve().parent))
 import fitting  # noqa: E402
 import kriging  # noqa: E402
 import unattended  # noqa: E402
+import variables  # noqa: E402
 import variogram  # noqa: E402
 
-SUITES = {"variogram": variogram.main, "fitting": fitting.main, "kriging": kriging.main, "unattended": unattended.main}
+SUITES = {
+    "variogram": variogram.main,
+    "fitting": fitting.main,
+    "kriging": kriging.main,
+    "unattended": unattended.main,
+    "variables": variables.main,
+}
 
 
 def main(argv):

@@ -41,6 +41,7 @@ from ..deadline import check_deadline
 from ..errors import FieldIssue, InvalidInput, LimitExceeded, SingularSystem
 from ..limits import Limits
 from ..modelling.coregionalisation import JointModel, require_variables, validate_joint_model
+from ..modelling.models import unit_semivariance
 from .conditioning import RCOND_MIN, covariance_rcond, pivot_ratios
 from .cost import batch_rows, query_rows
 from .neighbourhood import NO_NEIGHBOURS, Neighbourhood, NeighbourSearch, to_search_space, validate_neighbourhood
@@ -220,22 +221,30 @@ class Cokriger:
 
     # ---- covariances ---------------------------------------------------------
 
-    def _unit_covariances(self, h: np.ndarray) -> list[np.ndarray]:
-        """1 - g_s at separation vectors h (..., d), one array per structure."""
-        flat = h.reshape(-1, h.shape[-1])
+    def _unit_covariances(self, h: np.ndarray) -> tuple[list[np.ndarray], np.ndarray]:
+        """1 - g_s at separation vectors h (..., d), one array per structure, and the lengths |h|.
+
+        Isotropic structures use the Euclidean length directly (computed once).
+        """
+        length = np.sqrt(np.einsum("...d,...d->...", h, h))
         out = []
         with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
             for s in self.model.structures:
-                out.append((1.0 - s.shape(flat)).reshape(h.shape[:-1]))
-        return out
+                if s.anisotropy.isotropic:
+                    distances = length
+                else:
+                    distances = s.anisotropy.distances(h.reshape(-1, h.shape[-1])).reshape(length.shape)
+                out.append(1.0 - unit_semivariance(s.family, distances, s.range, s.extra))
+        return out, length
 
     def _block(self, h: np.ndarray, left: np.ndarray, right: np.ndarray, nugget: bool) -> np.ndarray:
         """C_{left, right}(h) for separations h (..., a, b, d) and variable labels left (a,), right (b,)."""
+        units, length = self._unit_covariances(h)
         cov = np.zeros(h.shape[:-1])
-        for s, unit in zip(self.model.structures, self._unit_covariances(h), strict=True):
+        for s, unit in zip(self.model.structures, units, strict=True):
             cov += s.sills[np.ix_(left, right)] * unit
         if nugget:
-            cov += self.model.nugget[np.ix_(left, right)] * (np.abs(h).sum(axis=-1) == 0)
+            cov += self.model.nugget[np.ix_(left, right)] * (length == 0)
         if not np.isfinite(cov).all():
             raise InvalidInput.at(
                 "/model", "the joint model gives non-finite covariances at these separations; check its ranges"
@@ -281,11 +290,12 @@ class Cokriger:
     def _rhs(self, coords: np.ndarray, labels: np.ndarray, targets: np.ndarray) -> np.ndarray:
         """[k; f] for targets (m, d): shape (n + c, m)."""
         h = coords[:, None, :] - targets[None, :, :]
+        units, length = self._unit_covariances(h)
         cov = np.zeros(h.shape[:-1])
-        for s, unit in zip(self.model.structures, self._unit_covariances(h), strict=True):
+        for s, unit in zip(self.model.structures, units, strict=True):
             cov += s.sills[labels, 0][:, None] * unit
         if self.micro:
-            cov += self.model.nugget[labels, 0][:, None] * (np.abs(h).sum(axis=-1) == 0)
+            cov += self.model.nugget[labels, 0][:, None] * (length == 0)
         f = np.zeros((self.constraints, targets.shape[0]))
         if self.constraints:
             f[0] = 1.0
@@ -415,11 +425,12 @@ class Cokriger:
         A[:, :k, :k] = K
         rhs = np.zeros((b, k + c))
         t = points - targets[:, None, :]
+        units, length = self._unit_covariances(t)
         cov = np.zeros((b, k))
-        for s, unit in zip(self.model.structures, self._unit_covariances(t), strict=True):
+        for s, unit in zip(self.model.structures, units, strict=True):
             cov += s.sills[labels, 0][None, :] * unit
         if self.micro:
-            cov += self.model.nugget[labels, 0][None, :] * (np.abs(t).sum(axis=-1) == 0)
+            cov += self.model.nugget[labels, 0][None, :] * (length == 0)
         rhs[:, :k] = np.where(valid, cov, 0.0)
         if c:
             F = (labels[None, :, None] == np.arange(c)[None, None, :]) & valid[:, :, None]
