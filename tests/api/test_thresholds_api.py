@@ -4,6 +4,9 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
+from lagwise.api import create_app
+from lagwise.api.settings import Settings
+from lagwise.core.limits import Limits
 from scipy.stats import norm
 
 MODEL = {"nugget": 0.05, "structures": [{"family": "spherical", "partial_sill": 0.5, "range": 40.0}]}
@@ -141,3 +144,61 @@ def test_analysis_model_echoes_its_transform_and_replays(client, cols):
     assert model["transform"] == "log"
     doc = _post(client, "/v1/predictions", {"samples": cols, "model": model, "grid": GRID, "thresholds": [3.0]})
     assert doc["parameters"]["transform"]["kind"] == "log" and len(doc["exceedance"][0]["probability"]) == 30
+
+
+# ---- blocks --------------------------------------------------------------------------
+
+BLOCKS = {"size": [20.0, 25.0], "discretisation": [4, 5]}
+
+
+def test_block_predictions_and_their_exceedance(client, cols):
+    logs = {**cols, "values": np.log(cols["values"]).tolist()}
+    body = {"samples": logs, "model": MODEL, "grid": GRID, "blocks": BLOCKS, "thresholds": [0.5]}
+    doc = _post(client, "/v1/predictions", body)
+    points = _post(client, "/v1/predictions", {"samples": logs, "model": MODEL, "grid": GRID})
+    assert doc["support"] == "block" and doc["parameters"]["blocks"]["points"] == 20
+    est, var = np.array(doc["estimate"]), np.array(doc["variance"])
+    # The block average varies less than the point value (the nugget averages out and the structure partly).
+    assert np.all(var < np.array(points["variance"]))
+    # scipy.stats.norm.sf of the block estimate and block variance
+    np.testing.assert_allclose(doc["exceedance"][0]["probability"], norm.sf((0.5 - est) / np.sqrt(var)), rtol=1e-10)
+    assert "block average" in doc["parameters"]["exceedance"]["variance"]
+    default = _post(client, "/v1/predictions", {**body, "blocks": {"size": [20.0, 25.0]}})
+    assert default["parameters"]["blocks"]["discretisation"] == [4, 4]
+
+
+def test_blocks_with_a_transform_point_to_simulations(client, cols):
+    body = {"samples": cols, "model": MODEL, "grid": GRID, "blocks": BLOCKS, "transform": "log"}
+    problem = _post(client, "/v1/predictions", body, 422)
+    assert problem["errors"][0]["pointer"] == "/blocks" and "/v1/simulations" in problem["errors"][0]["detail"]
+    fitted = {**MODEL, "transform": "normal_score"}
+    body.pop("transform")
+    problem = _post(client, "/v1/predictions", {**body, "model": fitted}, 422)
+    assert problem["errors"][0]["pointer"] == "/blocks"
+
+
+@pytest.mark.parametrize(
+    ("blocks", "pointer"),
+    [
+        ({"size": [20.0, 25.0], "discretisation": [0, 4]}, "/blocks/discretisation/0"),
+        ({"size": [20.0, 25.0], "discretisation": [4, 2.5]}, "/blocks/discretisation/1"),
+        ({"size": [20.0, 0.0], "discretisation": [4, 4]}, "/blocks/size/1"),
+        ({"size": [20.0], "discretisation": [4]}, "/blocks/size"),
+        ({"size": [20.0, 25.0], "discretisation": [4, 4, 4]}, "/blocks/discretisation"),
+        ({"discretisation": [4, 4]}, "/blocks/size"),
+    ],
+)
+def test_bad_blocks_name_the_field(client, cols, blocks, pointer):
+    problem = _post(client, "/v1/predictions", {"samples": cols, "model": MODEL, "grid": GRID, "blocks": blocks}, 422)
+    assert pointer in [e["pointer"] for e in problem["errors"]], problem
+
+
+def test_discretisation_counts_in_the_cost_limit(cols):
+    limits = Limits(max_kriging_flops=1_000_000_000)
+    client = create_app({"TESTING": True}, settings=Settings(limits=limits)).test_client()
+    grid = {"origin": [0, 0], "spacing": [1, 1], "shape": [100, 100]}
+    body = {"samples": cols, "model": MODEL, "grid": grid}
+    assert _post(client, "/v1/predictions", body)["support"] == "point"
+    blocks = {"size": [1.0, 1.0], "discretisation": [32, 32]}
+    problem = _post(client, "/v1/predictions", {**body, "blocks": blocks}, 422)
+    assert problem["limit"] == "LAGWISE_MAX_KRIGING_FLOPS" and problem["requested"] > 1e10

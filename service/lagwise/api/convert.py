@@ -15,6 +15,7 @@ from ..core.data.raster import Raster, build_raster, raster_points
 from ..core.data.samples import SampleSet, build_sample_set, columnar_pointer, input_hash
 from ..core.data.variables import MultiSampleSet, VariableInput, build_multi_sample_set, variables_from_mapping
 from ..core.errors import FieldIssue, InvalidInput, pointers_under
+from ..core.kriging.blocks import DEFAULT_POINTS_PER_AXIS, Blocks
 from ..core.kriging.cross_validation import Scheme
 from ..core.kriging.neighbourhood import Neighbourhood
 from ..core.kriging.prediction import Grid
@@ -393,6 +394,16 @@ def kriging_spec(
     if mean is None and k["type"] == "simple" and samples is not None:
         mean = decluster(samples.coords, samples.values).mean_of(samples.values)
     return KrigingSpec(type=k["type"], mean=mean, drift=k.get("drift"), nugget_as=k["nugget_as"])
+
+
+def blocks(document: dict) -> Blocks | None:
+    """The request's blocks (discretisation default: DEFAULT_POINTS_PER_AXIS per axis)."""
+    raw = document.get("blocks")
+    if raw is None:
+        return None
+    size = tuple(raw["size"])
+    counts = raw.get("discretisation", [DEFAULT_POINTS_PER_AXIS] * len(size))
+    return Blocks(size, tuple(counts))
 
 
 def transform_kind(document: dict, default: str = "none") -> str:

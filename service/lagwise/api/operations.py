@@ -320,6 +320,7 @@ def predictions():
         grid=convert.grid(document),
         thresholds=tuple(document["thresholds"]),
         weights_for=tuple(document.get("return_weights", ())),
+        blocks=convert.blocks(document),
         limits=settings().limits,
         workers=numba.get_num_threads(),
     )

@@ -20,6 +20,7 @@ from ..core.data.censoring import CENSORING_POLICIES
 from ..core.data.samples import COORDINATE_SYSTEMS, DUPLICATE_POLICIES
 from ..core.data.transforms import TRANSFORMS
 from ..core.data.variables import MAX_VARIABLES
+from ..core.kriging.blocks import DEFAULT_POINTS_PER_AXIS, MAX_POINTS, MAX_POINTS_PER_AXIS
 from ..core.kriging.systems import DRIFTS, KRIGING_TYPES, NUGGET_ROLES
 from ..core.modelling.families import ANISOTROPY, FAMILIES, NUGGET, UNIT_KINDS, Family, Parameter
 from ..core.modelling.fitting import SEMIVARIANCE_STATISTICS, WEIGHTINGS
@@ -712,6 +713,25 @@ class GridInput(Schema):
     )
 
 
+class BlocksInput(Schema):
+    """Block kriging: each target or grid node is the centre of a block."""
+
+    size = fields.List(
+        finite(validate=validate.Range(min=0, min_inclusive=False)),
+        required=True,
+        validate=validate.Length(min=1, max=3),
+        metadata={"description": "Block side per axis (coordinate units)."},
+    )
+    discretisation = fields.List(
+        fields.Integer(strict=True, validate=validate.Range(min=1, max=MAX_POINTS_PER_AXIS)),
+        validate=validate.Length(min=1, max=3),
+        metadata={
+            "description": f"Sub-cells per axis whose centres discretise the block (default {DEFAULT_POINTS_PER_AXIS} "
+            f"per axis; at most {MAX_POINTS} points per block)."
+        },
+    )
+
+
 class PredictionRequest(KrigingOptions):
     """POST /v1/predictions: targets or a grid."""
 
@@ -727,6 +747,13 @@ class PredictionRequest(KrigingOptions):
         validate=validate.Length(max=MAX_THRESHOLDS),
         load_default=list,
         metadata={"description": "Values in original units: P(value > threshold) per target (exceedance)."},
+    )
+    blocks = fields.Nested(
+        BlocksInput,
+        metadata={
+            "description": "Estimate block averages (support block) instead of point values; without a transform "
+            "(block averages of transformed values need POST /v1/simulations)."
+        },
     )
 
     @validates_schema

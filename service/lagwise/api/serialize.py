@@ -295,10 +295,10 @@ def add_transform(document: dict, working, model) -> None:
         document["warnings"].append(note)
 
 
-def exceedance_parameters(found, spec) -> dict:
+def exceedance_parameters(found, spec, support: str = "point") -> dict:
     """How exceedance probabilities were read (thresholds in original and transformed units)."""
     return {
-        **reading(spec.type, spec.nugget_as),
+        **reading(spec.type, spec.nugget_as, support),
         "thresholds": list(found.thresholds),
         "transformed_thresholds": [t if math.isfinite(t) else None for t in found.transformed],
     }
@@ -319,7 +319,7 @@ def prediction(answer, samples: SampleSet, model, spec, neighbourhood) -> dict:
         document["grid"] = result.grid.as_dict()
     if answer.exceedance is not None:
         document["exceedance"] = exceedance(answer.exceedance)
-    document["support"] = "point"
+    document["support"] = result.support
     if p.weights:
         document["weights"] = [
             {
@@ -340,8 +340,13 @@ def prediction(answer, samples: SampleSet, model, spec, neighbourhood) -> dict:
             "; estimate and variance are the back-transformed mean and variance (transform.method), "
             "model and weights in transformed units"
         )
+    if result.blocks is not None:
+        document["parameters"]["blocks"] = result.blocks.as_dict()
+        document["parameters"]["variance"] = (
+            "block-kriging variance of the block average (the nugget averages out over a block)"
+        )
     if answer.exceedance is not None:
-        document["parameters"]["exceedance"] = exceedance_parameters(answer.exceedance, spec)
+        document["parameters"]["exceedance"] = exceedance_parameters(answer.exceedance, spec, result.support)
     document["warnings"] = list(samples.warnings) + list(answer.warnings)
     return document
 

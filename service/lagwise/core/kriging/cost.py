@@ -37,15 +37,17 @@ def drift_terms(kriging_type: str, drift: str | None, dimension: int) -> int:
     return 1 + dimension + (dimension * (dimension + 1) // 2 if drift == "quadratic" else 0)
 
 
-def system_bytes(k: int, p: int, dimension: int) -> int:
-    """Working memory of one moving-neighbourhood system with k neighbours (bytes)."""
+def system_bytes(k: int, p: int, dimension: int, points: int = 1) -> int:
+    """Working memory of one moving-neighbourhood system with k neighbours (bytes); ``points``
+    discretisation points per block add their (k, points, d) separations and covariances."""
     s = k + p
-    return FLOAT * (k * k * (dimension + SYSTEM_WORK_ARRAYS) + 3 * s * s + 4 * s)
+    block = k * points * (dimension + 2) + points * (dimension + p) if points > 1 else 0
+    return FLOAT * (k * k * (dimension + SYSTEM_WORK_ARRAYS) + 3 * s * s + 4 * s + block)
 
 
-def batch_rows(k: int, p: int, dimension: int, memory_budget: int) -> int:
+def batch_rows(k: int, p: int, dimension: int, memory_budget: int, points: int = 1) -> int:
     """How many systems with k neighbours one batched solve may hold within ``memory_budget`` bytes (>= 1)."""
-    return max(1, memory_budget // system_bytes(k, p, dimension))
+    return max(1, memory_budget // system_bytes(k, p, dimension, points))
 
 
 def query_rows(candidates: int, memory_budget: int) -> int:

@@ -13,7 +13,7 @@ The transform is monotone increasing, so P(Z > t) = P(Z' > t'). The reading is e
 for simple kriging of a multi-Gaussian field (the conditional distribution is then
 normal with exactly these moments); for ordinary and universal kriging, whose
 variance also carries the uncertainty of the unknown mean or drift, it is an
-approximation (common practice; e.g. Chilès & Delfiner 2012, section 6.2). With a
+approximation (common practice of the trade). With a
 normal-score transform, the back-transform holds values at the data's extremes, so a
 threshold at or above the largest datum has probability 0 and one below the smallest
 has probability 1. Where the variance is zero (at a sample, micro-scale nugget) the
@@ -128,12 +128,12 @@ def exceedance(
     return Exceedance(tuple(thresholds), primes, rows)
 
 
-def reading(kriging_type: str, nugget_as: str) -> dict:
+def reading(kriging_type: str, nugget_as: str, support: str = "point") -> dict:
     """How the probabilities were found, for a response's ``parameters``."""
-    return {
-        "reading": READING,
-        "assumption": ASSUMPTION[kriging_type],
-        "variance": "the kriging variance of the value itself (nugget included)"
-        if nugget_as == "micro_scale"
-        else "the kriging variance of the signal without the measurement error (nugget filtered)",
-    }
+    if support == "block":
+        variance = "the block-kriging variance: probabilities are those of the block average exceeding the threshold"
+    elif nugget_as == "micro_scale":
+        variance = "the kriging variance of the value itself (nugget included)"
+    else:
+        variance = "the kriging variance of the signal without the measurement error (nugget filtered)"
+    return {"reading": READING, "assumption": ASSUMPTION[kriging_type], "variance": variance}

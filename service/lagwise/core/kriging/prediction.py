@@ -11,7 +11,8 @@ from ..data.samples import MAX_SPREAD, SampleSet
 from ..errors import FieldIssue, InvalidInput, LimitExceeded
 from ..limits import Limits
 from ..modelling.models import VariogramModel
-from .cost import check_kriging, drift_terms
+from .blocks import COVARIANCE_FLOPS, Blocks, BlockSupport, validate_blocks
+from .cost import check_kriging, drift_terms, prediction_flops
 from .neighbourhood import Neighbourhood
 from .systems import Kriger, KrigingSpec, Prediction
 
@@ -48,11 +49,20 @@ class Grid:
 
 @dataclass(frozen=True)
 class PredictionResult:
-    """Targets (as given), estimates, variances, reasons for missing values and audit weights."""
+    """Targets (as given), estimates, variances, reasons for missing values and audit weights.
+
+    ``blocks``: when given, targets are block centres and estimates and variances those of
+    the block averages (``support`` "block").
+    """
 
     targets: np.ndarray
     prediction: Prediction
     grid: Grid | None
+    blocks: Blocks | None = None
+
+    @property
+    def support(self) -> str:
+        return "point" if self.blocks is None else "block"
 
 
 def validate_grid(grid: Grid, dimension: int) -> None:
@@ -100,14 +110,21 @@ def _check_reach(samples: SampleSet, points: np.ndarray, on_grid: bool) -> None:
         )
 
 
-def _check_cost(samples: SampleSet, m: int, neighbourhood: Neighbourhood, spec: KrigingSpec, limits: Limits) -> None:
+def _check_cost(
+    samples: SampleSet, m: int, neighbourhood: Neighbourhood, spec: KrigingSpec, limits: Limits, points: int = 1
+) -> None:
+    """Refuse over-limit work; blocks add q covariance evaluations per sample and target (q points per block)."""
     limits.check_samples(samples.size)
     if m > limits.max_targets:
         raise LimitExceeded(
             "LAGWISE_MAX_TARGETS", limits.max_targets, m, "Predict on a coarser grid or in several requests.", "/grid"
         )
     p = drift_terms(spec.type, spec.drift, samples.dimension)
-    check_kriging(limits, samples.size, m, neighbourhood, p, what="prediction")
+    flops = None
+    if points > 1:
+        k = samples.size if neighbourhood.unique else min(neighbourhood.max_points or samples.size, samples.size)
+        flops = prediction_flops(samples.size, m, neighbourhood, p) + COVARIANCE_FLOPS * (m * k * points + points**2)
+    check_kriging(limits, samples.size, m, neighbourhood, p, flops=flops, what="prediction")
 
 
 def predict(
@@ -119,6 +136,7 @@ def predict(
     targets: np.ndarray | None = None,
     grid: Grid | None = None,
     weights_for: tuple[int, ...] = (),
+    blocks: Blocks | None = None,
     limits: Limits = Limits(),
     workers: int = 1,
 ) -> PredictionResult:
@@ -126,7 +144,15 @@ def predict(
 
     Targets are in the samples' input coordinates (degrees for geographic samples).
     ``weights_for`` lists up to 20 target indexes whose kriging weights are returned.
+    ``blocks``: block kriging of blocks centred at the targets (:mod:`.blocks`); planar
+    coordinates only (block sizes are lengths).
     """
+    if blocks is not None:
+        validate_blocks(blocks, samples.dimension)
+        if samples.projection is not None:
+            raise InvalidInput.at(
+                "/blocks", "blocks need planar coordinates (their size is a length); project the samples first"
+            )
     if (targets is None) == (grid is None):
         raise InvalidInput.at("/targets", "give either targets or grid")
     points: np.ndarray | None = None
@@ -142,7 +168,7 @@ def predict(
         if points.shape[0] == 0:
             raise InvalidInput.at("/targets", "give at least one target")
         m = points.shape[0]
-    _check_cost(samples, m, neighbourhood, spec, limits)
+    _check_cost(samples, m, neighbourhood, spec, limits, 1 if blocks is None else blocks.points)
     if len(weights_for) > MAX_WEIGHT_TARGETS:
         raise InvalidInput.at("/return_weights", f"weights are returned for at most {MAX_WEIGHT_TARGETS} targets")
     bad = [t for t in weights_for if not 0 <= t < m]
@@ -161,5 +187,6 @@ def predict(
         max_unique=limits.max_unique_samples,
         memory_budget=limits.memory_budget_bytes,
     )
-    prediction = kriger.predict(projected, weights_for=tuple(weights_for), workers=workers)
-    return PredictionResult(points, prediction, grid)
+    support = None if blocks is None else BlockSupport(blocks, kriger.cov, kriger.frame, kriger.spec)
+    prediction = kriger.predict(projected, weights_for=tuple(weights_for), workers=workers, support=support)
+    return PredictionResult(points, prediction, grid, blocks)

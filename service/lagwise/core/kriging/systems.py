@@ -133,11 +133,12 @@ class Covariance:
         self.c0 = sill if sill is not None else 0.0
         self.micro = spec.nugget_as == "micro_scale"
 
-    def between(self, a: np.ndarray, b: np.ndarray, same: bool = False) -> np.ndarray:
+    def between(self, a: np.ndarray, b: np.ndarray, same: bool = False, nugget: bool = True) -> np.ndarray:
         """Covariance matrix between point sets a (..., m, d) and b (..., q, d).
 
         ``same``: a and b are the same samples (the nugget sits on the diagonal).
         Otherwise, with a micro-scale nugget, coincident points get the nugget too.
+        ``nugget`` False: the continuous part C_s alone (block averages).
         """
         h = a[..., :, None, :] - b[..., None, :, :]
         shape = h.shape[:-1]
@@ -148,7 +149,7 @@ class Covariance:
         if same:
             m = shape[-1]
             cov = cov + self.nugget * np.eye(m)
-        elif self.micro and self.nugget:
+        elif self.micro and self.nugget and nugget:
             cov = cov + self.nugget * (np.abs(h).sum(axis=-1) == 0)
         return cov
 
@@ -189,6 +190,31 @@ def _require_finite(cov: np.ndarray) -> None:
             "the model gives non-finite covariances at these separations; check that every range is a "
             "sensible distance in the samples' unit",
         )
+
+
+class PointSupport:
+    """Right-hand sides and target variance of point kriging (see the module notation).
+
+    :class:`lagwise.core.kriging.blocks.BlockSupport` has the same members for blocks.
+    """
+
+    points = 1
+
+    def __init__(self, cov: Covariance, frame: Frame, spec: KrigingSpec):
+        self.cov, self.frame, self.spec = cov, frame, spec
+
+    def covariance(self, pts: np.ndarray, targets: np.ndarray) -> np.ndarray:
+        """k: covariances of samples (..., k, d) with targets (..., m, d), shape (..., k, m)."""
+        return self.cov.between(pts, targets)
+
+    def drift(self, targets: np.ndarray) -> np.ndarray:
+        """f: drift functions at targets (..., m, d), shape (..., m, p)."""
+        return self.frame.drift(self.spec, targets)
+
+    @property
+    def variance(self) -> float:
+        """k_00."""
+        return self.cov.target_variance
 
 
 @dataclass(frozen=True)
@@ -314,21 +340,21 @@ class Kriger:
         """
         return lu_solve(self._factor, rhs)
 
-    def _predict_unique(self, targets: np.ndarray, want_weights: set) -> Prediction:
+    def _predict_unique(self, targets: np.ndarray, want_weights: set, support: PointSupport) -> Prediction:
         m = targets.shape[0]
         n = self.samples.size
         estimate, variance = np.empty(m), np.empty(m)
         weights = []
         z = self.values
-        # Right-hand sides take n x chunk x d separations: keep them near 16 MB.
-        step = max(1, min(TARGET_CHUNK, 2_000_000 // max(n, 1)))
+        # Right-hand sides take n x chunk x q x d separations: keep them near 16 MB.
+        step = max(1, min(TARGET_CHUNK, 2_000_000 // max(n * support.points, 1)))
         for start in range(0, m, step):
             check_deadline()
             chunk = targets[start : start + step]
-            rhs = np.concatenate([self.cov.between(self.coords, chunk), self.frame.drift(self.spec, chunk).T], axis=0)
+            rhs = np.concatenate([support.covariance(self.coords, chunk), support.drift(chunk).T], axis=0)
             solution = lu_solve(self._factor, rhs)
             lam = solution[:n]
-            est, var = self._finish(lam, solution[n:], rhs[:n], rhs[n:], z)
+            est, var = self._finish(lam, solution[n:], rhs[:n], rhs[n:], z, support.variance)
             estimate[start : start + len(chunk)] = est
             variance[start : start + len(chunk)] = var
             for t in sorted(i for i in want_weights if start <= i < start + len(chunk)):
@@ -342,19 +368,24 @@ class Kriger:
                 )
         return Prediction(estimate, variance, {}, weights)
 
-    def _finish(self, lam, nu, k, f, z):
+    def _finish(self, lam, nu, k, f, z, k00):
         """Estimates and variances from weights (n, m) or (m, k) layouts, with the same rules."""
         if self.spec.type == "simple":
             est = self.spec.mean + np.einsum("nm,n->m", lam, z - self.spec.mean)
         else:
             est = np.einsum("nm,n->m", lam, z)
-        var = self.cov.target_variance - np.einsum("nm,nm->m", lam, k) - np.einsum("pm,pm->m", nu, f)
+        var = k00 - np.einsum("nm,nm->m", lam, k) - np.einsum("pm,pm->m", nu, f)
         return est, np.maximum(var, 0.0)
 
     # ---- moving neighbourhood ---------------------------------------------
 
     def _predict_moving(
-        self, targets: np.ndarray, want_weights: set, exclude: np.ndarray | None = None, workers: int = 1
+        self,
+        targets: np.ndarray,
+        want_weights: set,
+        support: PointSupport,
+        exclude: np.ndarray | None = None,
+        workers: int = 1,
     ) -> Prediction:
         m = targets.shape[0]
         estimate = np.full(m, np.nan)
@@ -372,7 +403,7 @@ class Kriger:
                 reasons[start + int(t)] = NO_NEIGHBOURS
             for k in np.unique(counts[counts > 0]):
                 group = np.flatnonzero(counts == k)
-                batch = batch_rows(int(k), self.drift_terms, self.samples.dimension, self.memory_budget)
+                batch = batch_rows(int(k), self.drift_terms, self.samples.dimension, self.memory_budget, support.points)
                 for first in range(0, len(group), batch):
                     check_deadline()
                     rows = group[first : first + batch]
@@ -386,10 +417,11 @@ class Kriger:
                         reasons,
                         weights,
                         want_weights,
+                        support,
                     )
         return Prediction(estimate, variance, reasons, weights)
 
-    def _solve_group(self, targets, idx, rows, start, estimate, variance, reasons, weights, want_weights):
+    def _solve_group(self, targets, idx, rows, start, estimate, variance, reasons, weights, want_weights, support):
         """Solve the systems of targets that have the same number of neighbours, as one batch."""
         pts = self.coords[idx]
         tgt = targets[rows][:, None, :]
@@ -401,7 +433,7 @@ class Kriger:
         A[:, :k, :k] = K
         A[:, :k, k:] = F
         A[:, k:, :k] = np.swapaxes(F, 1, 2)
-        b = np.concatenate([self.cov.between(pts, tgt)[..., 0], self.frame.drift(self.spec, tgt)[:, 0, :]], axis=1)
+        b = np.concatenate([support.covariance(pts, tgt)[..., 0], support.drift(tgt)[:, 0, :]], axis=1)
         solution, ok = _batched_solve(A, b)
         conditioned = pivot_ratios(K) >= RCOND_MIN if self.model.bounded else np.ones(len(rows), dtype=bool)
         if p > 1:
@@ -415,7 +447,7 @@ class Kriger:
             est = self.spec.mean + np.einsum("mk,mk->m", lam, z - self.spec.mean)
         else:
             est = np.einsum("mk,mk->m", lam, z)
-        var = self.cov.target_variance - np.einsum("mk,mk->m", lam, b[:, :k]) - np.einsum("mp,mp->m", nu, b[:, k:])
+        var = support.variance - np.einsum("mk,mk->m", lam, b[:, :k]) - np.einsum("mp,mp->m", nu, b[:, k:])
         positions = start + rows
         for r in np.flatnonzero(~ok):
             reasons[int(positions[r])] = SINGULAR + " (samples " + ", ".join(self.samples.ids[i] for i in idx[r]) + ")"
@@ -437,21 +469,25 @@ class Kriger:
         weights_for: tuple[int, ...] = (),
         exclude: np.ndarray | None = None,
         workers: int = 1,
+        support: PointSupport | None = None,
     ) -> Prediction:
         """Estimates and kriging variances at targets (m, d) in the samples' working coordinates.
 
         ``exclude`` (moving neighbourhoods only) names, per target, one sample to leave out
-        of its neighbourhood (leave-one-out at the samples themselves).
+        of its neighbourhood (leave-one-out at the samples themselves). ``support``: point
+        kriging by default, or a :class:`lagwise.core.kriging.blocks.BlockSupport` for
+        blocks centred at the targets (neighbours are chosen around the centre).
         """
         targets = np.asarray(targets, dtype=np.float64)
         want = set(weights_for)
+        support = PointSupport(self.cov, self.frame, self.spec) if support is None else support
         if self.neighbourhood.unique:
             if exclude is not None:
                 raise ValueError(
                     "leaving samples out of the unique neighbourhood uses the closed form (lagwise.core.kriging.cross_validation)"
                 )
-            return self._predict_unique(targets, want)
-        return self._predict_moving(targets, want, exclude, workers)
+            return self._predict_unique(targets, want, support)
+        return self._predict_moving(targets, want, support, exclude, workers)
 
 
 def _batched_solve(A: np.ndarray, b: np.ndarray) -> tuple[np.ndarray, np.ndarray]:

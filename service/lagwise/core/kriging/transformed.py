@@ -21,6 +21,7 @@ from ..data.transforms import Transform, fit_transform
 from ..errors import InvalidInput
 from ..limits import Limits
 from ..modelling.models import VariogramModel
+from .blocks import Blocks
 from .cross_validation import DEFAULT_OUTLIER_THRESHOLD, CrossValidation, Scheme, assess, cross_validate, statistics
 from .exceedance import Exceedance, exceedance, validate_thresholds
 from .neighbourhood import Neighbourhood
@@ -28,6 +29,11 @@ from .prediction import Grid, PredictionResult, predict
 from .systems import KrigingSpec
 
 SILL_FACTOR = 5.0
+BLOCKS_NEED_SIMULATION = (
+    "block averages of transformed values cannot be back-transformed from block kriging (the back-transform of "
+    "an average is not the average of back-transformed values); use POST /v1/simulations with blocks, or "
+    "krige blocks without a transform"
+)
 STANDARDIZED = ("mean_standardized_error", "root_mean_square_standardized_error", "interval_coverage_95", "outliers")
 
 
@@ -127,18 +133,25 @@ def predict_transformed(
     grid: Grid | None = None,
     thresholds: tuple[float, ...] = (),
     weights_for: tuple[int, ...] = (),
+    blocks: Blocks | None = None,
     limits: Limits = Limits(),
     workers: int = 1,
 ) -> TransformedPrediction:
     """Krige the working samples and back-transform; P(Z > t) for each threshold (original units).
 
+    ``blocks``: block kriging (:mod:`.blocks`), without a transform only: the average of
+    back-transformed values over a block is not the back-transform of a block estimate.
+
     Raises
     ------
     InvalidInput
-        Bad thresholds (``/thresholds/<i>``) and everything :func:`.prediction.predict` refuses.
+        Bad thresholds (``/thresholds/<i>``), blocks with a transform (``/blocks``) and
+        everything :func:`.prediction.predict` refuses.
     """
     transform = working.transform
     thresholds = validate_thresholds(thresholds, transform.kind)
+    if blocks is not None and transform.kind != "none":
+        raise InvalidInput.at("/blocks", BLOCKS_NEED_SIMULATION)
     result = predict(
         working.samples,
         model,
@@ -147,6 +160,7 @@ def predict_transformed(
         targets=targets,
         grid=grid,
         weights_for=weights_for,
+        blocks=blocks,
         limits=limits,
         workers=workers,
     )
