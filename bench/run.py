@@ -1,4 +1,4 @@
-"""Run the benchmarks: ``python3 manage.py bench [variogram] [fitting] [kriging] [unattended] [variables]``."""
+"""Run the benchmarks: ``python3 manage.py bench [variogram] [fitting] [kriging] [unattended] [variables] [large]``."""
 
 from __future__ import annotations
 
@@ -9,6 +9,7 @@ sys.path.insert(0, str(Path(__file__).resolve().parent))
 
 import fitting  # noqa: E402
 import kriging  # noqa: E402
+import large  # noqa: E402
 import unattended  # noqa: E402
 import variables  # noqa: E402
 import variogram  # noqa: E402
@@ -19,6 +20,7 @@ SUITES = {
     "kriging": kriging.main,
     "unattended": unattended.main,
     "variables": variables.main,
+    "large": large.main,
 }
 
 

@@ -33,7 +33,7 @@ from .results import (
     VariogramMap,
 )
 from .retry import RetryPolicy
-from .samples import samples_document
+from .samples import raster_samples, samples_document
 
 __version__ = "0.1.0"
 
@@ -67,6 +67,7 @@ __all__ = [
     "VariogramClass",
     "VariogramMap",
     "VariogramModel",
+    "raster_samples",
     "samples_document",
     "variables_samples",
 ]

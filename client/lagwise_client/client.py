@@ -267,12 +267,15 @@ class Lagwise:
         coordinates: str | None = None,
         duplicates: str | None = None,
         pairs_for_class: Mapping[str, int] | None = None,
+        method: str | None = None,
+        tolerance: float | None = None,
     ) -> ExperimentalVariogram:
         """Experimental variogram per direction class (``POST /v1/experimental-variograms``).
 
-        Samples come as a table (``samples``, see :func:`samples_document`) or as columns
-        (``x``, ``y``, ``z``, ``values``, ``ids``, ``censored``, ``detection_limits``); options
-        are those of the API and default on the service.
+        Samples come as a table (``samples``, see :func:`samples_document`), as a raster
+        (``samples=raster_samples(grid, origin, spacing)``) or as columns (``x``, ``y``, ``z``,
+        ``values``, ``ids``, ``censored``, ``detection_limits``); options are those of the API
+        (``method``: ``exact``, ``grid`` or ``auto``) and default on the service.
         """
         return self._compute("/v1/experimental-variograms", ExperimentalVariogram, locals())
 

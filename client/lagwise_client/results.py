@@ -124,6 +124,9 @@ class VariogramClass:
     head_mean: float | None = None
     tail_sd: float | None = None
     head_sd: float | None = None
+    error_bound: float | None = None
+    pair_bound: int | None = None
+    bound_exceeded: bool | None = None
     raw: dict = _raw()
 
 

@@ -140,6 +140,10 @@ def samples_document(
         raise TypeError(
             f"give the samples as a table or as separate columns, not both (also given: {', '.join(separate)})"
         )
+    if isinstance(samples, Mapping) and "raster" in samples:
+        if columns:
+            raise TypeError("columns applies to tables, not to a raster")
+        return dict(samples)
     if isinstance(samples, Mapping) and "geojson" in samples:
         if columns:
             raise TypeError("columns applies to tables, not to GeoJSON samples (use value_property, id_property)")
@@ -162,3 +166,33 @@ def _fill_censored_values(document: dict) -> None:
     for i, (flag, value, limit) in enumerate(zip(flags, values, limits, strict=True)):
         if flag is True and isinstance(value, float) and math.isnan(value) and limit is not None:
             values[i] = limit
+
+
+def raster_samples(grid: Any, origin: Any = (0.0, 0.0), spacing: Any = (1.0, 1.0)) -> dict:
+    """The ``samples`` member of a raster, from rows of values (row j at y0 + j dy, column i at x0 + i dx).
+
+    Parameters
+    ----------
+    grid : 2-D sequence or numpy array, shape (ny, nx)
+        Values by row; NaN or None marks a missing cell.
+    origin, spacing : pair of float
+        Node (0, 0) and the node spacing (dx, dy), coordinate units.
+
+    Returns
+    -------
+    dict
+        ``{"raster": {"origin", "spacing", "shape": [nx, ny], "values"}}``, values x fastest,
+        missing cells as None (JSON null).
+    """
+    rows = [column(row) for row in column(grid)]
+    if not rows or any(len(row) != len(rows[0]) for row in rows):
+        raise TypeError("grid must be a non-empty rectangle of rows of equal length")
+    values = [None if v is None or (isinstance(v, float) and math.isnan(v)) else v for row in rows for v in row]
+    return {
+        "raster": {
+            "origin": [float(v) for v in origin],
+            "spacing": [float(v) for v in spacing],
+            "shape": [len(rows[0]), len(rows)],
+            "values": values,
+        }
+    }

@@ -7,7 +7,7 @@ import math
 import numpy as np
 import pandas as pd
 import pytest
-from lagwise_client import ColumnsError, Lagwise, LagwiseError, ValidationError, samples_document
+from lagwise_client import ColumnsError, Lagwise, LagwiseError, ValidationError, raster_samples, samples_document
 from lagwise_client.client import request_body
 
 
@@ -139,3 +139,21 @@ def test_censored_values_reach_the_service(service_url):
     assert result.samples["observed"] == pytest.approx(substituted.tolist(), rel=1e-12)
     assert result.samples["id"] == [str(i) for i in range(1000, 1000 + n)]
     assert math.isclose(result.statistics["count"], n)
+
+
+def test_raster_samples_from_rows_with_missing_cells():
+    grid = np.array([[1.0, np.nan, 3.0], [4.0, 5.0, np.nan]])
+    document = request_body({"samples": raster_samples(grid, origin=(10, 20), spacing=(2, 0.5)), "method": "auto"})
+    assert document == {
+        "samples": {
+            "raster": {
+                "origin": [10.0, 20.0],
+                "spacing": [2.0, 0.5],
+                "shape": [3, 2],
+                "values": [1.0, None, 3.0, 4.0, 5.0, None],
+            }
+        },
+        "method": "auto",
+    }
+    with pytest.raises(TypeError, match="rectangle"):
+        raster_samples([[1.0, 2.0], [3.0]])

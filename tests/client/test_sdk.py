@@ -164,3 +164,16 @@ def test_analyze_with_figures(lw, tmp_path):
     paths = result.save_figures(tmp_path)
     assert sorted(p.name for p in paths) == ["cross_validation.png", "variogram.png"]
     assert paths[0].read_bytes()[:4] == b"\x89PNG"
+
+
+def test_raster_variogram_through_the_sdk(lw):
+    from lagwise_client import raster_samples
+
+    rng = np.random.default_rng(3)
+    grid = rng.normal(size=(12, 16))
+    grid[rng.random(grid.shape) < 0.2] = np.nan
+    result = lw.experimental_variogram(
+        raster_samples(grid, origin=(0, 0), spacing=(5, 5)), lags={"width": 10, "count": 4}
+    )
+    assert isinstance(result, ExperimentalVariogram)
+    assert result.parameters["method"] == "grid" and result.parameters["grid"]["source"] == "raster"

@@ -43,6 +43,10 @@ class Raster:
         Values by row (y) and column (x); NaN for missing cells.
     input_hash : str
         See the module conventions.
+    present : ndarray of bool, shape (ny, nx)
+        The cells that hold a value.
+    moments : tuple of float
+        Mean, variance (divisor N), minimum and maximum of the present cells' values.
     """
 
     origin: tuple[float, float]
@@ -50,12 +54,9 @@ class Raster:
     shape: tuple[int, int]
     grid: np.ndarray
     input_hash: str
+    present: np.ndarray
+    moments: tuple[float, float, float, float]
     warnings: tuple[str, ...] = field(default=())
-
-    @property
-    def present(self) -> np.ndarray:
-        """Boolean mask (ny, nx) of the cells that hold a value."""
-        return ~np.isnan(self.grid)
 
     @property
     def dimension(self) -> int:
@@ -116,7 +117,18 @@ def build_raster(origin, spacing, shape, values) -> Raster:
         raise InvalidInput.at(f"{BASE}/values/{where}", f"values span {spread:.3g}; rescale the values (another unit)")
     digest = input_hash([np.asarray(origin), np.asarray(spacing), np.asarray(shape, dtype=np.float64), values])
     warnings = () if count == values.size else (f"{values.size - count} of {values.size} raster cells are missing",)
-    return Raster(origin, spacing, shape, values.reshape(ny, nx), digest, warnings)  # type: ignore[arg-type]
+    mean = float(kept.mean())
+    moments = (mean, float(np.mean((kept - mean) ** 2)), float(kept.min()), float(kept.max()))
+    return Raster(
+        origin,  # type: ignore[arg-type]
+        spacing,  # type: ignore[arg-type]
+        shape,  # type: ignore[arg-type]
+        values.reshape(ny, nx),
+        digest,
+        present.reshape(ny, nx),
+        moments,
+        warnings,
+    )
 
 
 def raster_points(raster: Raster, limits: Limits = Limits()) -> SampleSet:
@@ -145,18 +157,15 @@ def raster_summary(raster: Raster) -> Summary:
     The largest separation is exact: the convex hull of the present cells is the hull
     of each row's first and last present cell.
     """
-    present = raster.present
-    values = raster.grid[present]
-    mean = float(values.mean())
-    variance = float(np.mean((values - mean) ** 2))
+    mean, variance, minimum, maximum = raster.moments
     hull = raster_outline(raster)
     return Summary(
-        samples=int(values.size),
+        samples=raster.size,
         dimension=2,
         mean=mean,
         variance=variance,
-        minimum=float(values.min()),
-        maximum=float(values.max()),
+        minimum=minimum,
+        maximum=maximum,
         extent={
             "x": [float(hull[:, 0].min()), float(hull[:, 0].max())],
             "y": [float(hull[:, 1].min()), float(hull[:, 1].max())],

@@ -82,12 +82,32 @@ def largest_separation(coords: np.ndarray) -> float:
         if coords.shape[1] == 1:
             return float(np.ptp(coords[:, 0]))
         return float(pdist(coords).max())
+    if coords.shape[1] == 2:
+        coords = coords[hull_candidates(coords)]
     try:
         hull = ConvexHull(coords)
     except QhullError:
         # Flat (collinear or coplanar) sets: joggled input keeps the extreme points.
         hull = ConvexHull(coords, qhull_options="QJ")
     return float(pdist(coords[hull.vertices]).max())
+
+
+def hull_candidates(points: np.ndarray) -> np.ndarray:
+    """Boolean mask of the 2-D points that may be convex-hull vertices (Akl & Toussaint 1978 throw-away).
+
+    The points extreme along eight directions (every 45 degrees) span a convex polygon;
+    a point strictly inside it is no hull vertex, so the hull of the others is the hull of all.
+    """
+    angles = np.arange(8) * (np.pi / 4.0)
+    extreme = [int(np.argmax(points @ np.array([np.cos(a), np.sin(a)]))) for a in angles]
+    corners = points[list(dict.fromkeys(extreme))]
+    keep = np.zeros(points.shape[0], dtype=bool)
+    if corners.shape[0] < 3:
+        return ~keep
+    for a, b in zip(corners, np.roll(corners, -1, axis=0), strict=True):
+        # Counter-clockwise polygon: inside points are strictly left of every edge.
+        keep |= (b[0] - a[0]) * (points[:, 1] - a[1]) - (b[1] - a[1]) * (points[:, 0] - a[0]) <= 0.0
+    return keep
 
 
 def summarise(coords: np.ndarray, values: np.ndarray, declustering: Declustering | None = None) -> Summary:

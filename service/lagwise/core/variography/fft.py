@@ -137,8 +137,12 @@ def _window(full: np.ndarray, reach: tuple[int, int]) -> np.ndarray:
     return full[np.ix_(rows, columns)]
 
 
-def lag_sums(nodes: NodeSums, reach: tuple[int, int]) -> LagSums:
-    """All six pair sums for lag vectors up to ``reach`` = (rx, ry) nodes (see the module docstring)."""
+def lag_sums(nodes: NodeSums, reach: tuple[int, int], first_moments: bool = True) -> LagSums:
+    """All six pair sums for lag vectors up to ``reach`` = (rx, ry) nodes (see the module docstring).
+
+    ``first_moments=False`` skips the tail and head sums (left zero; the semivariance
+    does not use them), saving one of the seven transforms.
+    """
     shape = padded_shape(nodes.count.shape, reach)
 
     def forward(a: np.ndarray) -> np.ndarray:
@@ -152,7 +156,7 @@ def lag_sums(nodes: NodeSums, reach: tuple[int, int]) -> LagSums:
     c_hat = forward(nodes.count)
     count = np.rint(correlate(c_hat, c_hat))  # products of whole numbers
     s_hat = forward(nodes.total)
-    tail = correlate(s_hat, c_hat)
+    tail = correlate(s_hat, c_hat) if first_moments else np.zeros_like(count)
     product = correlate(s_hat, s_hat)
     del s_hat
     q_hat = forward(nodes.squares)

@@ -141,16 +141,15 @@ class _Grid:
 
 def raster_nodes(raster: Raster) -> _Grid:
     """Counts 1/0, centred values and squares of a raster's cells."""
-    present = raster.present
-    mean = float(raster.grid[present].mean())
-    centred = np.where(present, raster.grid - mean, 0.0)
+    mean, _, minimum, maximum = raster.moments
+    centred = np.nan_to_num(raster.grid - mean, nan=0.0, copy=False)
     nodes = NodeSums(
-        present.astype(np.float64),
+        raster.present.astype(np.float64),
         centred,
         centred * centred,
         raster.spacing,
         mean,
-        float(np.abs(raster.grid[present]).max()),
+        max(abs(minimum), abs(maximum)),
     )
     return _Grid(nodes, raster.origin, "raster", (0.0, 0.0, 0.0))
 
@@ -255,7 +254,7 @@ def grid_classes(
     reach = _reach(grid, max(largest))
     memory = check_budget(grid.nodes.count.shape, reach, limits, "/lags")
     check_deadline()
-    sums = lag_sums(grid.nodes, reach)
+    sums = lag_sums(grid.nodes, reach, first_moments=statistic != "semivariance")
     edges = _resolve_edges(sums, explicit, largest, lags, directions, min_pairs, spacing or 0.0)
     kmax = max(len(e) - 1 for e in edges)
     if max(e[-1] for e in edges) > max(largest) * (1 + 1e-12):

@@ -285,7 +285,7 @@ def raster_map(
         min(int(math.ceil(extent / raster.spacing[1])), ny - 1),
     )
     check_budget((ny, nx), lag_reach, limits, "/cells")
-    table = map_table(lag_sums(grid.nodes, lag_reach), cell_size, cells)
+    table = map_table(lag_sums(grid.nodes, lag_reach, first_moments=statistic != "semivariance"), cell_size, cells)
     width = 2 * cells + 1
     flat = [
         class_value(statistic, table[b], grid.nodes.mean, grid.nodes.scale, None).value for b in range(width * width)
