@@ -68,7 +68,7 @@ def _limit_meaning(name: str) -> str:
 
 def _limit_default(f) -> str:
     value = f.default if f.default is not MISSING else f.default_factory()
-    return f"{value:.0e}".replace("e+", "e") if isinstance(value, int) and value >= 10**12 else str(value)
+    return f"{value:.0e}".replace("e+", "e") if isinstance(value, int) and value >= 10**10 else str(value)
 
 
 SERVING = (

@@ -8,7 +8,14 @@ import numpy as np
 import pytest
 from lagwise.core.data.samples import build_sample_set
 from lagwise.core.errors import LimitExceeded
-from lagwise.core.kriging.cost import batch_rows, cross_validation_flops, prediction_flops, system_bytes
+from lagwise.core.kriging.cost import (
+    ENTRY_OPERATIONS,
+    TARGET_OPERATIONS,
+    batch_rows,
+    cross_validation_flops,
+    prediction_flops,
+    system_bytes,
+)
 from lagwise.core.kriging.cross_validation import Scheme, cross_validate
 from lagwise.core.kriging.neighbourhood import Neighbourhood
 from lagwise.core.kriging.prediction import predict
@@ -33,10 +40,13 @@ def test_batches_fit_the_budget():
 
 
 def test_flops_follow_the_lu_count():
-    # LU of an s x s matrix: s^3 / 3 multiply-adds, each solve 2 s^2 (Golub & Van Loan 2013, section 3.2).
+    # LU of an s x s matrix: s^3 / 3 multiply-adds, each solve 2 s^2 (Golub & Van Loan 2013, section 3.2);
+    # plus the covariance entries built (k^2 + k per moving system) and a fixed cost per target.
     hood = Neighbourhood(max_points=20)
-    assert prediction_flops(100, 7, hood, 1) == pytest.approx(7 * (21**3 / 3 + 2 * 21**2))
-    assert prediction_flops(100, 7, Neighbourhood(), 1) == pytest.approx(101**3 / 3 + 2 * 7 * 101**2)
+    e, t = ENTRY_OPERATIONS, TARGET_OPERATIONS
+    assert prediction_flops(100, 7, hood, 1) == pytest.approx(7 * (t + e * (400 + 20) + 21**3 / 3 + 2 * 21**2))
+    unique = e * 100**2 + 101**3 / 3 + 7 * (t + e * 100 + 2 * 101**2)
+    assert prediction_flops(100, 7, Neighbourhood(), 1) == pytest.approx(unique)
     assert cross_validation_flops(100, None, hood, 1) == prediction_flops(100, 100, hood, 1)
     assert cross_validation_flops(100, 10, hood, 1) == pytest.approx(10 * prediction_flops(90, 10, hood, 1))
 

@@ -44,7 +44,7 @@ def test_every_variable_the_code_names_is_in_the_table():
 def test_values_fall_back_to_documented_defaults_and_are_checked():
     assert value("LAGWISE_BIND", {}) == "127.0.0.1:8750"
     assert value("LAGWISE_BIND", {"LAGWISE_BIND": "  "}) == "127.0.0.1:8750"
-    assert whole_number("LAGWISE_MAX_KRIGING_FLOPS", {}) == 20_000_000_000_000
+    assert whole_number("LAGWISE_MAX_KRIGING_FLOPS", {}) == 100_000_000_000
     assert whole_number("LAGWISE_WORKERS", {}, fallback=3) == 3
     for bad in ("0", "-2", "many"):
         try:

@@ -7,6 +7,7 @@ import zlib
 from flask import current_app, g, request
 from marshmallow import Schema, ValidationError
 
+from . import prescan
 from .columnar import MULTIPART_MEDIA_TYPE, read_samples, split_form
 from .jsonio import MalformedJSON, parse
 from .problems import Problem
@@ -117,10 +118,13 @@ def read_body(limit: int | None = None, name: str = "LAGWISE_MAX_BODY_BYTES") ->
 
 
 def _json_object(body: bytes, what: str) -> dict:
+    """Parse a JSON object, refusing first a body with more values than the limits allow (:mod:`.prescan`)."""
+    prescan.check_body(body, current_app.extensions["lagwise"].limits)
     try:
         document = parse(body)
     except MalformedJSON as exc:
         raise Problem("malformed-json", str(exc)) from None
+    del body
     if not isinstance(document, dict):
         raise Problem(
             "invalid-input", f"{what} must be a JSON object", [{"pointer": "", "detail": "must be a JSON object"}]
@@ -164,6 +168,9 @@ def load_json(schema: Schema) -> dict:
     Problem
         415 for another media type, 400 for malformed JSON or multipart, 422 for invalid
         fields; 413 before a body over its limit is read.
+    LimitExceeded
+        For more values or samples than the limits allow, counted before the body is
+        parsed or validated (:mod:`lagwise.api.prescan`).
     """
     mimetype = request.mimetype or ""
     if mimetype == MULTIPART_MEDIA_TYPE:
@@ -175,6 +182,7 @@ def load_json(schema: Schema) -> dict:
         )
     else:
         document = _json_object(read_body(), "the body")
+        prescan.check_parsed(document, current_app.extensions["lagwise"].limits)
     try:
         return schema.load(document)
     except ValidationError as exc:

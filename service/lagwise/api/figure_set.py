@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import base64
+import math
 
 import numpy as np
 
@@ -27,6 +28,23 @@ def _map_coordinates(samples) -> np.ndarray:
         return samples.coords[:, : min(samples.dimension, 2)]
     lon, lat = samples.projection.inverse(samples.coords[:, 0], samples.coords[:, 1])
     return np.column_stack([lon, lat])
+
+
+def check_cost(document: dict, samples: int, limits) -> None:
+    """Refuse, before any work, a requested figure that would draw more marks than the limits allow.
+
+    A map draws one mark per grid node and one per sample; the cross-validation figure two
+    per sample (locations and errors). The variogram figure draws a few marks per class and
+    the variogram map one raster image (its cells bounded by ``LAGWISE_MAX_MAP_CELLS``).
+    """
+    names = document["figures"]
+    if "prediction" in document:
+        nodes = math.prod(document["prediction"]["grid"]["shape"])
+        for name in ("prediction_map", "standard_deviation_map"):
+            if name in names:
+                limits.check_figure(name, nodes + samples, document["figure_format"])
+    if "cross_validation" in names:
+        limits.check_figure("cross_validation", 2 * samples, document["figure_format"])
 
 
 def render(result, samples, document: dict) -> dict:

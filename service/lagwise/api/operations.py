@@ -27,6 +27,7 @@ from ..core.variography.maps import raster_map, variogram_map
 from . import convert, joint, serialize
 from .body import load_json
 from .columnar import ARROW_MEDIA_TYPE, arrow_answer, wants_arrow
+from .figure_set import check_cost as check_figures
 from .figure_set import render
 from .jsonio import dumps
 from .observability import count_work
@@ -374,6 +375,7 @@ def analyses():
     document = load_json(AnalysisRequest())
     samples = convert.sample_set(document, settings().limits)
     options = replace(convert.analysis_options(document), with_map="variogram_map" in document["figures"])
+    check_figures(document, samples.size, settings().limits)
     result = analyse(samples, options, limits=settings().limits, workers=numba.get_num_threads())
     figures = render(result, samples, document)
     body = serialize.analysis(

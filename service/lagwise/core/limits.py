@@ -10,6 +10,8 @@ from dataclasses import dataclass
 
 from .errors import LimitExceeded
 
+PNG_ELEMENT_FACTOR = 40  # a PNG figure draws its marks into pixels: 1e6 cells render in about 15 s
+
 
 @dataclass(frozen=True)
 class Limits:
@@ -36,8 +38,14 @@ class Limits:
     max_targets : int
         Prediction targets per request (``LAGWISE_MAX_TARGETS``).
     max_kriging_flops : int
-        Estimated floating-point operations of the kriging systems of one request
-        (``LAGWISE_MAX_KRIGING_FLOPS``).
+        Estimated operations (multiply-add equivalents, building and solving) of the
+        kriging systems of one request (``LAGWISE_MAX_KRIGING_FLOPS``); one worker core
+        does about 3e9 per second on a loaded machine, so 1e11 fits the default deadline.
+    max_figure_elements : int
+        Marks one SVG figure of an analysis may draw: the grid cells of a prediction or
+        standard-deviation map plus its sample markers, or two markers per sample for the
+        cross-validation figure; a PNG figure may draw 40 times as many
+        (``LAGWISE_MAX_FIGURE_ELEMENTS``). SVG costs about 0.5 ms per map cell.
     memory_budget_bytes : int
         Working memory of one request's largest arrays (``LAGWISE_MEMORY_BUDGET_BYTES``,
         256 MiB): batched kriging solves and neighbour searches are cut to fit it, and
@@ -57,7 +65,8 @@ class Limits:
     max_map_cells: int = 201
     max_unique_samples: int = 10_000
     max_targets: int = 2_000_000
-    max_kriging_flops: int = 20_000_000_000_000
+    max_kriging_flops: int = 100_000_000_000
+    max_figure_elements: int = 25_000
     memory_budget_bytes: int = 256 * 1024 * 1024
     max_simulation_values: int = 100_000_000
     max_embedding_nodes: int = 4_194_304
@@ -88,6 +97,20 @@ class Limits:
                 "class, use fewer direction classes, fewer samples, or a statistic other than the median and "
                 "no h-scattergram.",
                 pointer,
+            )
+
+    def check_figure(self, name: str, elements: int, fmt: str) -> None:
+        """Refuse a figure that would draw more marks than ``max_figure_elements`` allows for ``fmt``."""
+        allowed = self.max_figure_elements * (PNG_ELEMENT_FACTOR if fmt == "png" else 1)
+        if elements > allowed:
+            raise LimitExceeded(
+                "LAGWISE_MAX_FIGURE_ELEMENTS",
+                allowed,
+                elements,
+                f"The {name} figure would draw {elements:,} marks in {fmt.upper()}. Ask for it as PNG "
+                f"(figure_format, {PNG_ELEMENT_FACTOR} times as many marks), use a coarser prediction grid, "
+                "or leave the figure out.",
+                "/figures",
             )
 
     def check_median_pairs(self, pairs: int) -> None:

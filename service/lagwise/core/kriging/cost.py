@@ -6,7 +6,14 @@ time. Units: operations (flops) and bytes of float64 arrays.
 
 Moving neighbourhoods solve one small system of size s = k + p per target (k
 neighbours, p drift terms); LU factorisation of an s x s matrix costs s^3 / 3
-multiply-adds and a solve 2 s^2 (Golub & Van Loan 2013, section 3.2). The batched
+multiply-adds and a solve 2 s^2 (Golub & Van Loan 2013, section 3.2). Building the
+system costs more than solving it for every size the service allows: each of the k^2
+covariance entries takes separation vectors, a norm and the model's formula through
+numpy temporaries, measured at about 120 ns per entry against 0.1 ns per multiply-add
+of LAPACK's factorisation on one core
+(``tests/reliability/test_kriging_rate.py`` prints the rate), so an entry counts as
+:data:`ENTRY_OPERATIONS` operations and each target :data:`TARGET_OPERATIONS` more for
+its neighbour search. "Operations" below are these multiply-add equivalents. The batched
 solver holds, per system, the separation vectors (k, k, d), a few k x k temporaries
 of the covariance evaluation, the bordered matrix and LAPACK's copy of it
 (:data:`SYSTEM_WORK_ARRAYS`), so its memory grows as k^2 per target: the batch is
@@ -26,6 +33,8 @@ SYSTEM_WORK_ARRAYS = 8  # k x k float64 temporaries per system besides the d sep
 QUERY_WORK_ARRAYS = 6  # (targets, candidates) arrays of the neighbour search: distances, indexes, masks, sectors
 UNIQUE_PREDICTION_COPIES = 2  # the bordered matrix and its LU factor
 UNIQUE_LOO_COPIES = 5  # the kriger's LU factor, the matrix, its Cholesky factor, triangular copy and inverse
+ENTRY_OPERATIONS = 1000  # one covariance entry (separations, norm, model formula), in multiply-add equivalents
+TARGET_OPERATIONS = 20_000  # per target: neighbour search, sectors, bookkeeping (about 10 us measured)
 
 
 def drift_terms(kriging_type: str, drift: str | None, dimension: int) -> int:
@@ -61,23 +70,30 @@ def unique_bytes(n: int, p: int, copies: int) -> int:
 
 
 def prediction_flops(n: int, m: int, neighbourhood: Neighbourhood, p: int) -> float:
-    """Operations to krige m targets from n samples (unique: one factorisation and m solves)."""
+    """Operations to krige m targets from n samples.
+
+    Unique neighbourhood: the n x n covariance matrix, one factorisation, and per
+    target n covariances and a solve. Moving: per target a k x k matrix and k
+    covariances, a factorisation and a solve.
+    """
     if neighbourhood.max_points is None:  # unique neighbourhood
         s = n + p
-        return s**3 / 3 + 2.0 * m * s * s
-    s = min(neighbourhood.max_points, n) + p
-    return m * (s**3 / 3 + 2.0 * s * s)
+        return ENTRY_OPERATIONS * n * n + s**3 / 3 + m * (TARGET_OPERATIONS + ENTRY_OPERATIONS * n + 2.0 * s * s)
+    k = min(neighbourhood.max_points, n)
+    s = k + p
+    return m * (TARGET_OPERATIONS + ENTRY_OPERATIONS * (k * k + k) + s**3 / 3 + 2.0 * s * s)
 
 
 def cross_validation_flops(n: int, folds: int | None, neighbourhood: Neighbourhood, p: int) -> float:
     """Operations of leave-one-out (``folds`` None) or k-fold cross-validation of n samples.
 
-    Leave-one-out with the unique neighbourhood is the closed form: one factorisation
-    and one triangular inverse, about (n + p)^3 operations (Golub & Van Loan 2013).
+    Leave-one-out with the unique neighbourhood is the closed form: the n x n matrix,
+    one factorisation and one triangular inverse, about (n + p)^3 operations (Golub &
+    Van Loan 2013).
     """
     if folds is None:
         if neighbourhood.unique:
-            return float((n + p) ** 3)
+            return float(ENTRY_OPERATIONS * n * n + (n + p) ** 3)
         return prediction_flops(n, n, neighbourhood, p)
     held = -(-n // folds)
     return folds * prediction_flops(n - n // folds, held, neighbourhood, p)
