@@ -19,7 +19,7 @@ from .errors import (
     ValidationError,
 )
 from .families import FAMILIES, Family, Parameter
-from .joint import Cokriging, CokrigingCrossValidation, JointModel, variables_samples
+from .joint import Cokriging, CokrigingCrossValidation, JointFit, JointModel, variables_samples
 from .models import ModelStructure, VariogramModel
 from .results import (
     Analysis,
@@ -50,6 +50,7 @@ __all__ = [
     "DirectionVariogram",
     "ExperimentalVariogram",
     "Family",
+    "JointFit",
     "JointModel",
     "Lagwise",
     "LagwiseError",

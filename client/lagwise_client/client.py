@@ -12,7 +12,7 @@ from urllib3.exceptions import ReadTimeoutError  # urllib3 is requests' own tran
 
 from . import columnar
 from .errors import LagwiseError, ResponseError, TransportError, ValidationError, error_for
-from .joint import Cokriging, CokrigingCrossValidation, JointModel, variables_samples
+from .joint import Cokriging, CokrigingCrossValidation, JointFit, JointModel, variables_samples
 from .models import VariogramModel
 from .results import Analysis, CrossValidation, ExperimentalVariogram, ModelFit, Predictions, VariogramMap
 from .retry import RetryPolicy
@@ -408,6 +408,35 @@ class Lagwise:
             if value is not None:
                 body[name] = _targets(value) if name == "targets" else value
         return body
+
+    def fit_joint_model(
+        self,
+        experimental: Mapping[str, Any],
+        *,
+        families: str | list[str] | None = None,
+        nugget: str | None = None,
+        weighting: str | None = None,
+        anisotropy: str | None = None,
+        structures: int | None = None,
+        min_pairs: int | None = None,
+    ) -> JointFit:
+        """Fit a joint model of several variables (``POST /v1/model-fits``) to a several-variable
+        experimental response (its ``variables`` and ``cross``, as returned by the service).
+
+        ``nugget`` is ``"fit"`` (default) or ``"none"``; ``weighting`` ``pairs``,
+        ``pairs_over_distance`` or ``uniform``.
+        """
+        body: dict[str, Any] = {"experimental": dict(experimental)}
+        options = {
+            "families": families,
+            "nugget": nugget,
+            "weighting": weighting,
+            "anisotropy": anisotropy,
+            "structures": structures,
+            "min_pairs": min_pairs,
+        }
+        body.update({k: v for k, v in options.items() if v is not None})
+        return JointFit.from_response(self.request("POST", "/v1/model-fits", body))
 
     def cokrige(
         self,

@@ -15,7 +15,7 @@ from dataclasses import dataclass, field
 from typing import Any
 
 from .errors import ColumnsError
-from .results import CrossValidation, Predictions, _dataframe, _raw
+from .results import CrossValidation, Predictions, Response, _dataframe, _object, _raw, _read
 from .samples import column
 
 
@@ -152,4 +152,50 @@ class CokrigingCrossValidation(CrossValidation):
         alone = self.cokriging.get("variance_primary_only") or [None] * len(rows)
         for row, value in zip(rows, alone, strict=True):
             row["variance_primary_only"] = value
+        return _dataframe(rows)
+
+
+@dataclass(frozen=True, kw_only=True)
+class JointFit(Response):
+    """Result of :meth:`Lagwise.fit_joint_model`.
+
+    Attributes
+    ----------
+    model : JointModel
+        The selected joint model (send it back as ``model`` to :meth:`Lagwise.cokrige`).
+    candidates : tuple of dict
+        Every joint model tried, ranked (rank, label, model, selected, parameters, weighted_sse,
+        r_squared, criterion, converged, iterations).
+    experimental : dict
+        ``variables`` and ``cross``: the classes used, with the model's value at each.
+    """
+
+    model: JointModel
+    diagnostics: dict = field(default_factory=dict)
+    candidates: tuple[dict, ...] = ()
+    experimental: dict = field(default_factory=dict)
+    parameters: dict = field(default_factory=dict)
+    warnings: tuple[str, ...] = ()
+    provenance: dict = field(default_factory=dict)
+    raw: dict = _raw()
+
+    @classmethod
+    def from_response(cls, document: Any) -> JointFit:
+        document = _object(document, "")
+        return _read(cls, document, "", model=JointModel.from_dict(_object(document.get("model"), "/model")))
+
+    def to_dataframe(self):
+        """One row per candidate, without its model (needs pandas)."""
+        return _dataframe([{k: v for k, v in c.items() if k != "model"} for c in self.candidates])
+
+    def classes(self):
+        """One row per class of every direct and cross variogram: variables, azimuth, mean_distance,
+        value, pairs, used, model_value (needs pandas)."""
+        rows = []
+        parts = [((v["name"], v["name"]), v["directions"]) for v in self.experimental.get("variables", [])]
+        parts += [(tuple(c["variables"]), c["directions"]) for c in self.experimental.get("cross", [])]
+        for (a, b), directions in parts:
+            for d in directions:
+                for row in d["classes"]:
+                    rows.append({"variable": a, "with": b, "azimuth": d["azimuth"], **row})
         return _dataframe(rows)

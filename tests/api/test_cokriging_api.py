@@ -143,3 +143,86 @@ def test_variable_with_too_few_values(client):
     body = {"samples": {"x": X, "y": Y, "variables": {"lead": sparse, "zinc": ZINC}}, "model": MODEL}
     r = client.post("/v1/cross-validations", json=body)
     assert r.status_code == 422
+
+
+def _several_experimental():
+    """A several-variable experimental response built by brute force (scipy pdist) in the
+    response's shape: variables with direct classes, cross with cross-semivariances."""
+    from scipy.spatial.distance import pdist
+
+    rng = np.random.default_rng(9)
+    n = 300
+    coords = rng.uniform(0, 100, (n, 2))
+    common = np.sin(coords[:, 0] / 15.0) + np.cos(coords[:, 1] / 12.0)
+    a = common + rng.normal(0, 0.3, n)
+    b = 2.0 * common + rng.normal(0, 0.5, n)
+    h = pdist(coords)
+    i, j = np.triu_indices(n, 1)
+    edges = np.arange(0.0, 55.0, 5.0)
+    k = np.digitize(h, edges) - 1
+    inside = (k >= 0) & (k < len(edges) - 1)
+
+    def classes(u, v):
+        product = (u[j] - u[i]) * (v[j] - v[i])
+        rows = []
+        for c in range(len(edges) - 1):
+            m = inside & (k == c)
+            rows.append(
+                {
+                    "mean_distance": float(h[m].mean()),
+                    "value": float(product[m].sum() / (2 * m.sum())),
+                    "pairs": int(m.sum()),
+                }
+            )
+        return [{"azimuth": 0.0, "classes": rows}]
+
+    return {
+        "variables": [
+            {"name": "lead", "directions": classes(a, a), "summary": {"variance": float(a.var()), "dimension": 2}},
+            {"name": "zinc", "directions": classes(b, b), "summary": {"variance": float(b.var()), "dimension": 2}},
+        ],
+        "cross": [{"variables": ["lead", "zinc"], "directions": classes(a, b)}],
+        "parameters": {"statistic": "semivariance"},
+    }
+
+
+def test_joint_fit_from_a_several_variable_experimental(client):
+    """Every matrix of the selected model and of each candidate is PSD (numpy.linalg.eigvalsh >= -1e-12);
+    exactly one candidate is selected; the fitted model goes back into a cokriging request as it is."""
+    r = client.post(
+        "/v1/model-fits", json={"experimental": _several_experimental(), "families": ["spherical", "exponential"]}
+    )
+    assert r.status_code == 200, r.json
+    model = r.json["model"]
+    assert model["variables"] == ["lead", "zinc"]
+    for candidate in r.json["candidates"]:
+        matrices = [candidate["model"]["nugget"]] + [s["sills"] for s in candidate["model"]["structures"]]
+        for matrix in matrices:
+            assert np.linalg.eigvalsh(np.array(matrix)).min() >= -1e-12
+    assert sum(c["selected"] for c in r.json["candidates"]) == 1
+    assert [c["rank"] for c in r.json["candidates"]] == list(range(1, len(r.json["candidates"]) + 1))
+    cross = r.json["experimental"]["cross"][0]
+    assert cross["variables"] == ["lead", "zinc"] and all(
+        c["model_value"] is not None for c in cross["directions"][0]["classes"]
+    )
+    structured = model["structures"][0]["sills"]
+    assert structured[0][1] / np.sqrt(structured[0][0] * structured[1][1]) > 0.8  # both follow one pattern
+    again = client.post(
+        "/v1/predictions",
+        json={
+            "samples": samples(),
+            "model": {**model, "variables": ["lead", "zinc"]},
+            "targets": {"x": [5.0], "y": [5.0]},
+        },
+    )
+    assert again.status_code == 200, again.json
+
+
+def test_joint_fit_bad_experimental(client):
+    given = _several_experimental()
+    given["cross"][0]["variables"] = ["lead", "tin"]
+    problem(client.post("/v1/model-fits", json={"experimental": given}), ["/experimental/cross/0/variables"])
+    problem(
+        client.post("/v1/model-fits", json={"experimental": _several_experimental(), "weighting": "cressie"}),
+        ["/weighting"],
+    )

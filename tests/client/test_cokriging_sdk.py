@@ -110,3 +110,28 @@ def test_refusals(lw, table):
             targets={"x": [1.0], "y": [1.0]},
         )
     assert "smallest eigenvalue" in str(caught.value.errors)
+
+
+def test_fit_joint_model_then_cokrige(lw, table):
+    """The joint fit's model (PSD matrices, numpy.linalg.eigvalsh >= -1e-12) goes straight into cokrige."""
+    from tests.api.test_cokriging_api import _several_experimental
+
+    fit = lw.fit_joint_model(_several_experimental(), families=["spherical"])
+    assert isinstance(fit.model, JointModel) and fit.model.variables == ("lead", "zinc")
+    for structure in fit.model.structures:
+        assert np.linalg.eigvalsh(np.array(structure["sills"])).min() >= -1e-12
+    assert fit.to_dataframe()["selected"].sum() == 1
+    classes = fit.classes()
+    assert set(zip(classes["variable"], classes["with"], strict=True)) == {
+        ("lead", "lead"),
+        ("zinc", "zinc"),
+        ("lead", "zinc"),
+    }
+    result = lw.cokrige(
+        table,
+        variables=["lead", "zinc"],
+        columns={"x": "east", "y": "north"},
+        model=fit.model,
+        targets={"x": [5.0], "y": [5.0]},
+    )
+    assert result.estimate[0] is not None

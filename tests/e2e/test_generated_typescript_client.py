@@ -39,7 +39,9 @@ const fit = await client.POST("/v1/model-fits", { body: examples.model_fits });
 if (fit.data === undefined) throw new Error("no fit");
 const selected = fit.data.candidates.filter((c) => c.selected);
 check(selected.length === 1, "exactly one selected candidate");
-const model: Model = fit.data.model;
+const fitted = fit.data.model;
+if ("variables" in fitted) throw new Error("one variable gave a joint model");
+const model: Model = fitted;
 const first = model.structures?.[0];
 check(first !== undefined && first.family !== "linear" && first.family !== "power" && first.range > 0, "a fitted range");
 

@@ -1,7 +1,7 @@
-"""Requests with a joint model of several variables: cokriging predictions and cross-validation.
+"""Requests about several variables at once: joint fits, cokriging predictions and cross-validation.
 
 The views of :mod:`.operations` hand a request here when its ``model`` names
-``variables``; this module turns the document into the core's inputs, calls one core
+``variables`` (cokriging) or when a model fit is given several variables; this module turns the document into the core's inputs, calls one core
 function and serialises the result (no numerics here).
 """
 
@@ -9,12 +9,15 @@ from __future__ import annotations
 
 import numpy as np
 
+from ..core.data.samples import input_hash
 from ..core.data.variables import MultiSampleSet
 from ..core.errors import FieldIssue, InvalidInput
 from ..core.kriging.cokriging import CokrigingSpec, VariableColumns
 from ..core.kriging.cokriging_runs import cokrige_points, cross_validate_cokriging, default_means
 from ..core.limits import Limits
 from ..core.modelling.coregionalisation import JointModel, JointStructure
+from ..core.modelling.fitting import SEMIVARIANCE_STATISTICS
+from ..core.modelling.joint_fitting import JointFitResult, fit_joint_model, joint_points
 from ..core.modelling.models import Anisotropy
 from . import convert
 
@@ -193,3 +196,146 @@ def cross_validation(document: dict, limits: Limits, workers: int) -> tuple[dict
         "warnings": list(samples.warnings),
     }
     return body, samples.input_hash, samples.size
+
+
+def is_joint_fit(document: dict) -> bool:
+    """Whether a model-fit request fits several variables jointly (a several-variable experimental)."""
+    return "variables" in (document.get("experimental") or {})
+
+
+def _rows(directions: list) -> list:
+    return [
+        (
+            d["azimuth"],
+            k,
+            c,
+            convert._ClassRow(row.get("mean_distance"), row.get("value"), row["pairs"]),
+        )
+        for k, d in enumerate(directions)
+        for c, row in enumerate(d["classes"])
+    ]
+
+
+def _given_experimental(document: dict, min_pairs: int):
+    given = document["experimental"]
+    statistic = (given.get("parameters") or {}).get("statistic", "semivariance")
+    if statistic not in SEMIVARIANCE_STATISTICS:
+        raise InvalidInput.at(
+            "/experimental/parameters/statistic", f"models are fitted to semivariances, not to {statistic!r}"
+        )
+    names = tuple(v["name"] for v in given["variables"])
+    repeated = sorted({n for n in names if names.count(n) > 1})
+    if repeated:
+        raise InvalidInput.at("/experimental/variables", f"names {repeated[0]!r} more than once")
+    cross = {}
+    for k, pair in enumerate(given["cross"]):
+        a, b = pair["variables"]
+        for name in (a, b):
+            if name not in names:
+                raise InvalidInput.at(f"/experimental/cross/{k}/variables", f"names no variable of variables: {name!r}")
+        if a == b:
+            raise InvalidInput.at(f"/experimental/cross/{k}/variables", "a cross pair needs two different variables")
+        cross[(a, b)] = _rows(pair["directions"])
+    summaries = [v.get("summary") or {} for v in given["variables"]]
+    variances = tuple(convert._finite_number(s.get("variance")) for s in summaries)
+    dimension = int((given.get("summary") or summaries[0]).get("dimension", 2))
+    if dimension not in (1, 2, 3):
+        raise InvalidInput.at("/experimental/summary/dimension", "must be 1, 2 or 3")
+    experimental = joint_points(
+        names,
+        {v["name"]: _rows(v["directions"]) for v in given["variables"]},
+        cross,
+        dimension=dimension,
+        min_pairs=min_pairs,
+        variances=variances,
+    )
+    columns = [
+        column
+        for points in experimental.points.values()
+        for column in (points.distance, points.value, points.pairs.astype(np.float64))
+    ]
+    return experimental, statistic, input_hash(columns)
+
+
+def _fit_directions(points, fitted) -> list[dict]:
+    directions: dict[int, dict] = {}
+    for i in range(points.distance.size):
+        entry = directions.setdefault(int(points.direction[i]), {"azimuth": float(points.azimuth[i]), "classes": []})
+        entry["classes"].append(
+            {
+                "mean_distance": float(points.distance[i]) if points.pairs[i] > 0 else None,
+                "value": float(points.value[i]) if points.pairs[i] > 0 else None,
+                "pairs": int(points.pairs[i]),
+                "used": bool(points.usable[i]),
+                "model_value": float(fitted[i]) if points.distance[i] > 0 else None,
+            }
+        )
+    return [directions[k] for k in sorted(directions)]
+
+
+def fit_body(result: JointFitResult, statistic: str, parameters: dict) -> dict:
+    """Response body of a joint ``POST /v1/model-fits`` (without provenance)."""
+    best = result.best
+    names = result.experimental.variables
+    p = len(names)
+    points = result.experimental.points
+    return {
+        "model": best.model.as_dict(),
+        "diagnostics": {
+            "weighted_sse": best.weighted_sse,
+            "r_squared": best.r_squared,
+            "criterion": best.criterion,
+            "criterion_name": "AICc over every direct and cross class (lower is better)",
+            "converged": best.converged,
+            "iterations": best.sweeps,
+        },
+        "candidates": [
+            {
+                "rank": rank + 1,
+                "label": c.label,
+                "model": c.model.as_dict(),
+                "selected": c is best,
+                "parameters": c.parameters,
+                "weighted_sse": c.weighted_sse,
+                "r_squared": c.r_squared,
+                "criterion": c.criterion,
+                "converged": c.converged,
+                "iterations": c.sweeps,
+            }
+            for rank, c in enumerate(result.candidates)
+        ],
+        "experimental": {
+            "statistic": statistic,
+            "directions": [],
+            "variables": [
+                {"name": names[i], "directions": _fit_directions(points[(i, i)], result.fitted_values(i, i))}
+                for i in range(p)
+            ],
+            "cross": [
+                {
+                    "variables": [names[i], names[j]],
+                    "directions": _fit_directions(points[(i, j)], result.fitted_values(i, j)),
+                }
+                for i in range(p)
+                for j in range(i + 1, p)
+                if (i, j) in points
+            ],
+        },
+        "parameters": {
+            **parameters,
+            "statistic": statistic,
+            "weighting": result.weighting,
+            "method": "linear model of coregionalisation: shared structures from each variable's direct fit, "
+            "ranges refined by a bounded search, matrices by the Goulard-Voltz (1992) iteration (PSD by construction)",
+        },
+        "warnings": list(result.warnings),
+    }
+
+
+def model_fit(document: dict) -> tuple[dict, str]:
+    """Body and input hash of a joint ``POST /v1/model-fits`` from a several-variable experimental response."""
+    experimental, statistic, digest = _given_experimental(document, document["min_pairs"])
+    options = {k: document[k] for k in ("families", "nugget", "weighting", "anisotropy", "structures")}
+    result = fit_joint_model(experimental, min_pairs=document["min_pairs"], **options)
+    parameters = {"dimension": experimental.dimension, "min_pairs": document["min_pairs"], **options}
+    return fit_body(result, statistic, parameters), digest

@@ -549,17 +549,64 @@ class ExperimentalDirectionInput(Schema):
     classes = fields.List(fields.Nested(ExperimentalClassInput), required=True, validate=validate.Length(min=1))
 
 
+class CrossClassInput(ExperimentalClassInput):
+    """A class of a cross variogram: the cross-semivariance may be negative."""
+
+    value = finite(allow_none=True, required=True, validate=validate.Range(min=-PLAUSIBLE, max=PLAUSIBLE))
+
+
+class CrossDirectionInput(ExperimentalDirectionInput):
+    classes = fields.List(fields.Nested(CrossClassInput), required=True, validate=validate.Length(min=1))
+
+
+class ExperimentalVariableInput(Schema):
+    """One variable's direct variogram in a several-variable experimental response."""
+
+    class Meta:
+        unknown = EXCLUDE
+
+    name = fields.String(required=True, validate=validate.Length(min=1, max=60))
+    directions = fields.List(
+        fields.Nested(ExperimentalDirectionInput), required=True, validate=validate.Length(min=1, max=MAX_DIRECTIONS)
+    )
+    summary = fields.Dict()
+
+
+class ExperimentalCrossInput(Schema):
+    """One pair's cross variogram in a several-variable experimental response."""
+
+    class Meta:
+        unknown = EXCLUDE
+
+    variables = fields.List(
+        fields.String(validate=validate.Length(min=1, max=60)), required=True, validate=validate.Length(equal=2)
+    )
+    directions = fields.List(
+        fields.Nested(CrossDirectionInput), required=True, validate=validate.Length(min=1, max=MAX_DIRECTIONS)
+    )
+
+
 class ExperimentalInput(Schema):
-    """A previous response of POST /v1/experimental-variograms (as returned)."""
+    """A previous response of POST /v1/experimental-variograms (as returned): one variable's
+    ``directions``, or several variables' ``variables`` and ``cross`` (a joint fit)."""
 
     class Meta:
         unknown = EXCLUDE
 
     directions = fields.List(
-        fields.Nested(ExperimentalDirectionInput), required=True, validate=validate.Length(min=1, max=MAX_DIRECTIONS)
+        fields.Nested(ExperimentalDirectionInput), validate=validate.Length(min=1, max=MAX_DIRECTIONS)
     )
+    variables = fields.List(
+        fields.Nested(ExperimentalVariableInput), validate=validate.Length(min=2, max=MAX_VARIABLES)
+    )
+    cross = fields.List(fields.Nested(ExperimentalCrossInput), load_default=list)
     summary = fields.Dict()
     parameters = fields.Dict()
+
+    @validates_schema
+    def _one_form(self, data, **kwargs):
+        if ("directions" in data) == ("variables" in data):
+            raise ValidationError("give directions (one variable) or variables and cross (several), not both")
 
 
 class ModelFitRequest(SampleOptions):
@@ -1097,6 +1144,26 @@ class CandidateSchema(Schema):
 
 
 @always_present()
+class JointCandidateSchema(Schema):
+    """A candidate joint model (linear model of coregionalisation)."""
+
+    rank = fields.Integer()
+    label = fields.String()
+    model = fields.Nested(JointModel)
+    selected = fields.Boolean(metadata={"description": "True for the one candidate returned as the model."})
+    parameters = fields.Integer()
+    weighted_sse = fields.Float()
+    r_squared = fields.Float(allow_none=True)
+    criterion = fields.Float()
+    converged = fields.Boolean()
+    iterations = fields.Integer(metadata={"description": "Goulard-Voltz sweeps of the final fit."})
+
+
+def _candidate_form(value: dict) -> str:
+    return "joint" if "variables" in (value.get("model") or {}) else "single"
+
+
+@always_present()
 class FitClassSchema(Schema):
     mean_distance = fields.Float(allow_none=True)
     value = fields.Float(allow_none=True)
@@ -1112,16 +1179,36 @@ class FitDirectionSchema(Schema):
 
 
 @always_present()
+class FitVariableSchema(Schema):
+    name = fields.String()
+    directions = fields.List(fields.Nested(FitDirectionSchema))
+
+
+@always_present()
+class FitCrossSchema(Schema):
+    variables = fields.List(fields.String())
+    directions = fields.List(fields.Nested(FitDirectionSchema))
+
+
+@always_present("variables", "cross")
 class FitExperimentalSchema(Schema):
     statistic = one_of(STATISTICS)
-    directions = fields.List(fields.Nested(FitDirectionSchema))
+    directions = fields.List(
+        fields.Nested(FitDirectionSchema), metadata={"description": "One variable's classes; empty for a joint fit."}
+    )
+    variables = fields.List(
+        fields.Nested(FitVariableSchema), metadata={"description": "A joint fit: each variable's direct classes."}
+    )
+    cross = fields.List(fields.Nested(FitCrossSchema), metadata={"description": "A joint fit: each pair's classes."})
 
 
 @always_present("summary")
 class ModelFitResponse(ResultEnvelope):
-    model = fields.Nested(Model)
+    model = model_field(
+        metadata={"description": "The selected model: a joint model when several variables were fitted."}
+    )
     diagnostics = fields.Nested(DiagnosticsSchema)
-    candidates = fields.List(fields.Nested(CandidateSchema))
+    candidates = fields.List(Variants({"single": CandidateSchema, "joint": JointCandidateSchema}, _candidate_form))
     experimental = fields.Nested(FitExperimentalSchema)
     summary = fields.Nested(SummarySchema, metadata={"description": "Absent when fitted to a given experimental."})
 

@@ -37,7 +37,7 @@ from scipy.optimize import minimize_scalar
 from ..deadline import check_deadline
 from ..errors import FieldIssue, InvalidInput
 from .coregionalisation import JointModel, JointStructure, project_psd
-from .fitting import AUTO_RANGE_REACH, EQUIVALENT, ExperimentalPoints, FitResult, fit_model
+from .fitting import AUTO_RANGE_REACH, EQUIVALENT, ExperimentalPoints, FitResult, fit_model, points_from_rows
 from .models import FAMILIES, Anisotropy
 
 JOINT_WEIGHTINGS = ("pairs", "pairs_over_distance", "uniform")
@@ -90,6 +90,8 @@ class JointCandidate:
         S over every direct and cross class used (weights normalised to mean 1).
     criterion : float
         AICc (lower is better).
+    r_squared : float or None
+        1 - S / T, T the weighted spread of every entry's classes about that entry's weighted mean.
     sweeps : int
         Goulard-Voltz sweeps of the final fit.
     converged : bool
@@ -103,6 +105,7 @@ class JointCandidate:
     criterion: float
     sweeps: int
     converged: bool
+    r_squared: float | None = None
 
 
 @dataclass(frozen=True)
@@ -344,6 +347,7 @@ def fit_joint_model(
                 )
     entries = _entries(experimental, weighting)
     n = sum(len(e.gamma) for e in entries)
+    spread = sum(float(np.sum(e.weights * (e.gamma - np.average(e.gamma, weights=e.weights)) ** 2)) for e in entries)
     distances = np.concatenate([np.linalg.norm(e.vectors, axis=1) for e in entries])
     low, high = 0.1 * float(distances.min()), AUTO_RANGE_REACH * float(distances.max())
     tried: list[tuple] = []
@@ -369,7 +373,8 @@ def fit_joint_model(
         )
         k = (len(shapes) + int(with_nugget)) * p * (p + 1) // 2 + len(shapes)
         label = _label(shapes, with_nugget, experimental.variables[i])
-        candidates.append(JointCandidate(model, label, k, sse, _criterion(sse, n, k), sweeps, converged))
+        r_squared = 1.0 - sse / spread if spread > 0 else None
+        candidates.append(JointCandidate(model, label, k, sse, _criterion(sse, n, k), sweeps, converged, r_squared))
     if not candidates:
         raise InvalidInput.at(
             "/variables",
@@ -380,3 +385,24 @@ def fit_joint_model(
     equivalent = [c for c in ranked if c.converged == top.converged and c.criterion <= top.criterion + EQUIVALENT]
     best = min(equivalent, key=lambda c: (c.parameters, c.criterion))
     return JointFitResult(best, tuple(ranked), experimental, tuple(direct), weighting, tuple(notes))
+
+
+def joint_points(
+    variables: tuple[str, ...],
+    direct: dict[str, list],
+    cross: dict[tuple[str, str], list],
+    *,
+    dimension: int,
+    min_pairs: int,
+    variances: tuple[float | None, ...] = (),
+) -> JointExperimental:
+    """Joint fit points from class rows (see :func:`~lagwise.core.modelling.fitting.points_from_rows`).
+
+    ``direct`` maps each variable to its rows, ``cross`` each pair (in either order) to its
+    cross-semivariance rows; a pair without rows gets none (zero cross sills).
+    """
+    points = {(i, i): points_from_rows(direct[name], min_pairs) for i, name in enumerate(variables)}
+    for (a, b), rows in cross.items():
+        i, j = sorted((variables.index(a), variables.index(b)))
+        points[(i, j)] = points_from_rows(rows, min_pairs)
+    return JointExperimental(variables, points, dimension, variances)
