@@ -46,7 +46,7 @@ from ..data.samples import SampleSet
 from ..data.transforms import TRANSFORMS, Transform
 from ..deadline import check_deadline
 from ..errors import FieldIssue, InvalidInput, LimitExceeded
-from ..kriging.cost import check_kriging, drift_terms
+from ..kriging.cost import ENTRY_OPERATIONS, check_kriging, drift_terms, prediction_flops
 from ..kriging.neighbourhood import Neighbourhood, validate_neighbourhood
 from ..kriging.prediction import Grid, validate_grid
 from ..kriging.systems import KrigingSpec
@@ -270,10 +270,14 @@ def _check_cost(samples, grid, spec, neighbourhood, realisations, torus, passes,
         )
     n, m, p = samples.size, grid.size, drift_terms(spec.type, None, 2)
     if neighbourhood.unique:
-        flops = (n + p) ** 3 / 3 + 2.0 * realisations * (m * n + passes * (n + p) ** 2)
+        # the samples' matrix and its factorisation, each node's n covariances, then per
+        # realisation and pass one solve and per node n multiply-adds (no per-node solve)
+        s = n + p
+        flops = ENTRY_OPERATIONS * (n * n + m * n) + s**3 / 3 + 2.0 * realisations * (m * n + passes * s * s)
     else:
-        s = min(neighbourhood.max_points or n, n) + p
-        flops = m * (s**3 / 3 + 2.0 * s * s + 2.0 * s * realisations)
+        # the systems of a prediction at the nodes, then k multiply-adds per node and realisation
+        k = min(neighbourhood.max_points or n, n)
+        flops = prediction_flops(n, m, neighbourhood, p) + 2.0 * realisations * m * k
     check_kriging(limits, n, m, neighbourhood, p, flops=flops, what="conditioning")
 
 
