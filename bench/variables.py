@@ -59,14 +59,15 @@ def case_cokriging() -> dict:
     }
     app = create_app()
     client = app.test_client()
-    start = time.perf_counter()
+    start, cpu = time.perf_counter(), time.process_time()
     response = client.post("/v1/cross-validations", json=body)
-    elapsed = time.perf_counter() - start
+    elapsed, cpu = time.perf_counter() - start, time.process_time() - cpu
     if response.status_code != 200:
         raise SystemExit(f"cokriging request failed: {response.status_code} {response.get_data(as_text=True)[:500]}")
     document = response.get_json()
     return {
         "seconds": elapsed,
+        "cpu_seconds": cpu,
         "count": document["statistics"]["count"],
         "rmse": document["statistics"]["root_mean_square_error"],
         "rmse_primary_only": document["cokriging"]["statistics_primary_only"]["root_mean_square_error"],
@@ -90,13 +91,14 @@ def cokriging_section() -> None:
     verdict = "meets" if figures["seconds"] < COKRIGING_TARGET_S else "misses"
     print(
         f"cokriging LOO, {COKRIGING_SAMPLES} samples x 3 variables, 24 neighbours each: "
-        f"{figures['seconds']:.1f} s (target < {COKRIGING_TARGET_S:.0f} s: {verdict}; "
-        f"load average {load:.1f} on a shared machine)"
+        f"{figures['seconds']:.1f} s wall, {figures['cpu_seconds']:.1f} s CPU of this process "
+        f"(target < {COKRIGING_TARGET_S:.0f} s: {verdict}; load average {load:.1f} on a shared machine, "
+        "so the wall time includes waiting for a core)"
     )
     print(
         f"  {figures['count']} primary values estimated; RMSE {figures['rmse']:.4f} with the secondaries, "
-        f"{figures['rmse_primary_only']:.4f} primary alone; mean variance reduced by "
-        f"{100 * figures['variance_reduction']:.1f} %"
+        f"{figures['rmse_primary_only']:.4f} primary alone (a given model, not fitted to this field); "
+        f"mean variance reduced by {100 * figures['variance_reduction']:.1f} %"
     )
 
 
