@@ -237,7 +237,13 @@ def _given_experimental(document: dict, min_pairs: int):
             raise InvalidInput.at(f"/experimental/cross/{k}/variables", "a cross pair needs two different variables")
         cross[(a, b)] = _rows(pair["directions"])
     summaries = [v.get("summary") or {} for v in given["variables"]]
-    variances = tuple(convert._finite_number(s.get("variance")) for s in summaries)
+    # Clustered sampling: the declustered variance is the sill reference (as for one variable).
+    variances = tuple(
+        convert._finite_number(
+            s.get("declustered_variance") if (s.get("declustering") or {}).get("weights_used") else s.get("variance")
+        )
+        for s in summaries
+    )
     dimension = int((given.get("summary") or summaries[0]).get("dimension", 2))
     if dimension not in (1, 2, 3):
         raise InvalidInput.at("/experimental/summary/dimension", "must be 1, 2 or 3")
