@@ -127,6 +127,9 @@ def test_bad_joint_models_are_refused(client):
     problem(post(MODEL, primary="tin"), ["/primary"])
     problem(post(MODEL, transform="log"), ["/transform"])
     problem(post({**MODEL, "nugget": [[1.0, 0.0]]}), ["/model/nugget"])
+    problem(post(MODEL, kriging={"type": "simple", "mean": 3.0}), ["/kriging/mean"])
+    problem(post(MODEL, kriging={"type": "universal", "drift": "linear"}), ["/kriging/drift"])
+    problem(post(MODEL, kriging={"type": "universal"}), ["/kriging/type"])
 
 
 def test_joint_model_needs_several_variables_and_single_models_refuse_primary(client):

@@ -71,6 +71,11 @@ def _refuse_single_variable_options(document: dict) -> None:
         issues.append(FieldIssue("/blocks", "block cokriging is not offered; predict at points"))
     if "variable" in document:
         issues.append(FieldIssue("/variable", "with a joint model, name the estimated variable in primary"))
+    kriging = document.get("kriging") or {}
+    if kriging.get("mean") is not None:
+        issues.append(FieldIssue("/kriging/mean", "simple cokriging takes means: one per variable, by name"))
+    if kriging.get("drift") is not None:
+        issues.append(FieldIssue("/kriging/drift", "cokriging is ordinary or simple; no drift"))
     if issues:
         raise InvalidInput(issues)
 
