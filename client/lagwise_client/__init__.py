@@ -34,6 +34,7 @@ from .results import (
 )
 from .retry import RetryPolicy
 from .samples import raster_samples, samples_document
+from .simulation import Simulation
 
 __version__ = "0.1.0"
 
@@ -62,6 +63,7 @@ __all__ = [
     "Predictions",
     "ResponseError",
     "RetryPolicy",
+    "Simulation",
     "TransportError",
     "UnavailableError",
     "ValidationError",

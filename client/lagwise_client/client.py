@@ -17,6 +17,7 @@ from .models import VariogramModel
 from .results import Analysis, CrossValidation, ExperimentalVariogram, ModelFit, Predictions, VariogramMap
 from .retry import RetryPolicy
 from .samples import SAMPLE_MEMBERS, column, samples_document
+from .simulation import Simulation
 
 DEFAULT_TIMEOUT = 120.0
 
@@ -396,6 +397,40 @@ class Lagwise:
         ``arrow_answer=True`` (needs pyarrow) has the service answer the per-target columns as an
         Arrow stream, which is quicker for many targets; the result is the same."""
         return self._compute("/v1/predictions", Predictions, locals())
+
+    def simulate(
+        self,
+        samples=None,
+        *,
+        model: VariogramModel | Mapping[str, Any],
+        grid: Mapping[str, Any],
+        x=None,
+        y=None,
+        values=None,
+        ids=None,
+        censored=None,
+        detection_limits=None,
+        columns: Mapping[str, str] | None = None,
+        transform: str | None = None,
+        kriging: Mapping[str, Any] | None = None,
+        neighbourhood: Mapping[str, Any] | None = None,
+        realisations: int | None = None,
+        seed: int | None = None,
+        thresholds: list[float] | None = None,
+        blocks: Mapping[str, Any] | None = None,
+        return_realisations: bool | None = None,
+        censoring: str | None = None,
+        coordinates: str | None = None,
+        duplicates: str | None = None,
+    ) -> Simulation:
+        """Gaussian conditional simulation on a 2-D ``grid`` (``POST /v1/simulations``).
+
+        ``model`` is in transformed units (normal scores by default); ``kriging`` is
+        ``{"type": "simple", "mean": m}`` (default, mean: the declustered mean of the
+        transformed values) or ``{"type": "ordinary"}``; ``blocks={"size": [bx, by]}`` in
+        coordinate units tiling the grid. The service's defaults: 100 realisations, seed 1.
+        The result converts to 2-D numpy arrays per node statistic, threshold and realisation."""
+        return self._compute("/v1/simulations", Simulation, locals())
 
     def _joint_body(self, samples, variables, coordinate_columns, model, options: Mapping[str, Any]) -> dict:
         if variables is not None:
