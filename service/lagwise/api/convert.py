@@ -23,7 +23,7 @@ from ..core.kriging.systems import KrigingSpec
 from ..core.limits import Limits
 from ..core.modelling.fitting import SEMIVARIANCE_STATISTICS, points_from_rows
 from ..core.modelling.models import FAMILIES, Anisotropy, Structure, VariogramModel
-from ..core.stages import CrossValidationOptions, FitOptions, PredictionOptions, VariogramOptions
+from ..core.stages import AreaSimulation, CrossValidationOptions, FitOptions, PredictionOptions, VariogramOptions
 from ..core.variography.directions import DirectionClass
 from ..core.variography.experimental import ScatterRequest
 from ..core.variography.lags import LagRequest
@@ -473,6 +473,18 @@ def _stage_model(fit: dict) -> VariogramModel | None:
         return variogram_model(fit)
 
 
+def _prediction_stage(stage: dict) -> PredictionOptions:
+    """The analysis's prediction stage: grid, thresholds, kriged blocks and the optional simulation."""
+    raw = stage.get("simulation")
+    simulation = None
+    if raw is not None:
+        size = raw.get("blocks", {}).get("size")
+        simulation = AreaSimulation(raw["realisations"], raw["seed"], None if size is None else tuple(size))
+    return PredictionOptions(
+        _stage_grid(stage), thresholds=tuple(stage["thresholds"]), blocks=blocks(stage), simulation=simulation
+    )
+
+
 def analysis_options(document: dict) -> AnalysisOptions:
     """The analysis stages' options (defaults filled in by the schema)."""
     stage = document["variogram"]
@@ -500,5 +512,5 @@ def analysis_options(document: dict) -> AnalysisOptions:
             neighbourhood=neighbourhood(staged) if cv["neighbourhood"] is not None else None,
             scheme=scheme(staged),
         ),
-        prediction=PredictionOptions(_stage_grid(prediction)) if prediction else None,
+        prediction=_prediction_stage(prediction) if prediction else None,
     )

@@ -90,6 +90,21 @@ def render(result, samples, document: dict) -> dict:
             image = figures.standard_deviation_map(
                 prediction.grid, np.sqrt(result.back_transformed[1]), labels, sample_xy=where, size=size, fmt=fmt
             )
+        elif name == "probability_map" and prediction is not None and result.decisions is not None:
+            found = result.decisions.exceedance
+            if found is None:
+                continue
+            image = figures.probability_map(
+                prediction.grid,
+                found.probability[0],
+                result.back_transformed[0],
+                found.thresholds[0],
+                labels,
+                sample_xy=where,
+                support=prediction.support,
+                size=size,
+                fmt=fmt,
+            )
         else:
             continue
         # SVG comes as text, PNG as bytes (see figures.style.render).

@@ -883,13 +883,43 @@ class CrossValidationStage(Schema):
     scheme = fields.Nested(SchemeInput, load_default=lambda: {"type": "leave_one_out", "folds": 10, "seed": 1})
 
 
+class AnalysisSimulationBlocks(Schema):
+    size = fields.List(
+        finite(validate=validate.Range(min=0, min_inclusive=False)),
+        required=True,
+        validate=validate.Length(equal=2),
+        metadata={"description": "Block size along x and y: whole numbers of grid spacings that tile the grid."},
+    )
+
+
+class AnalysisSimulationInput(Schema):
+    """Conditional simulation with the selected model (as POST /v1/simulations)."""
+
+    realisations = fields.Integer(strict=True, load_default=100, validate=validate.Range(min=1, max=10_000))
+    seed = fields.Integer(strict=True, load_default=1, validate=validate.Range(min=0, max=2**63 - 1))
+    blocks = fields.Nested(
+        AnalysisSimulationBlocks,
+        metadata={"description": "Block averages of the simulated values (also with a transform)."},
+    )
+
+
 class PredictionStage(Schema):
     grid = fields.Nested(GridInput, required=True)
     thresholds = fields.List(
         finite(),
         validate=validate.Length(max=MAX_THRESHOLDS),
         load_default=list,
-        metadata={"description": "Values in original units; the prediction map draws their contours."},
+        metadata={
+            "description": "Values in original units: exceedance probabilities, their classes and the "
+            "probability map; the prediction map draws their contours."
+        },
+    )
+    blocks = fields.Nested(
+        BlocksInput, metadata={"description": "Block kriging of blocks centred at the grid nodes (no transform)."}
+    )
+    simulation = fields.Nested(
+        AnalysisSimulationInput,
+        metadata={"description": "Simulate for the share of the grid above each threshold (P10-P90) and blocks."},
     )
 
 
@@ -1431,6 +1461,33 @@ class AnalysisCrossValidationSchema(Schema):
 
 
 @always_present()
+class ProbabilityClassSchema(Schema):
+    name = fields.String(data_key="class", validate=validate.OneOf(("below", "uncertain", "above")))
+    meaning = fields.String()
+    count = fields.Integer()
+    share = fields.Float(allow_none=True)
+
+
+@always_present()
+class ProbabilityClassesSchema(Schema):
+    threshold = fields.Float()
+    confidence = fields.Float()
+    classes = fields.List(fields.Nested(ProbabilityClassSchema))
+    unestimated = fields.Integer()
+    support = one_of(("point", "block"))
+    method = one_of(("kriging", "simulation"))
+
+
+@always_present("blocks")
+class AnalysisSimulationSchema(Schema):
+    realisations = fields.Integer()
+    seed = fields.Integer()
+    above = fields.List(fields.Nested("AboveSchema"))
+    blocks = fields.Nested("SimulatedBlocksSchema")
+    method = fields.Dict()
+
+
+@always_present()
 class AnalysisPredictionSchema(Schema):
     x = fields.List(fields.Float())
     y = fields.List(fields.Float())
@@ -1440,6 +1497,13 @@ class AnalysisPredictionSchema(Schema):
     variance = fields.List(fields.Float(allow_none=True))
     grid = fields.Nested(GridSchema)
     unestimated = fields.List(fields.Nested(UnestimatedSchema))
+    support = one_of(("point", "block"))
+    exceedance = fields.List(fields.Nested(ExceedanceSchema))
+    classes = fields.List(
+        fields.Nested(ProbabilityClassesSchema),
+        metadata={"description": "Targets by probability class, per threshold."},
+    )
+    simulation = fields.Nested(AnalysisSimulationSchema, allow_none=True)
 
 
 @always_present()

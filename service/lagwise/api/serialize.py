@@ -387,6 +387,64 @@ def _anisotropy(estimate) -> dict | None:
     return {**estimate.__dict__, "method": FAN_DESCRIPTION}
 
 
+def _decisions(decisions, stage) -> dict:
+    """The prediction stage's exceedance, probability classes and simulation."""
+    if decisions is None or decisions.exceedance is None:
+        return {"exceedance": [], "classes": [], "simulation": None}
+    simulated = decisions.simulation
+    out: dict = {
+        "exceedance": exceedance(decisions.exceedance),
+        "classes": [
+            {**c.as_dict(), "support": decisions.classes_support, "method": decisions.classes_method}
+            for c in decisions.classes
+        ],
+        "simulation": None,
+    }
+    if simulated is not None:
+        out["simulation"] = {
+            "realisations": stage.simulation.realisations,
+            "seed": stage.simulation.seed,
+            "above": [
+                {"threshold": t, "fraction": {"mean": f.mean, "p10": f.p10, "p50": f.p50, "p90": f.p90}}
+                for t, f in simulated.above
+            ],
+            "method": simulated.method(),
+        }
+        if simulated.blocks is not None:
+            out["simulation"]["blocks"] = {
+                "grid": simulated.blocks.grid.as_dict(),
+                "mean": simulated.blocks.mean,
+                "exceedance": [{"threshold": t, "probability": p} for t, p in simulated.blocks.exceedance],
+            }
+    return out
+
+
+def _prediction_parameters(result, stage) -> dict | None:
+    """How the prediction stage's numbers were found."""
+    if stage is None:
+        return None
+    out: dict = {
+        "thresholds": list(stage.thresholds),
+        "blocks": None if stage.blocks is None else stage.blocks.as_dict(),
+        "simulation": None if stage.simulation is None else stage.simulation.as_dict(),
+    }
+    decisions = result.decisions
+    if decisions is not None and decisions.exceedance is not None:
+        out["exceedance"] = exceedance_parameters(decisions.exceedance, result.kriging, result.prediction.support)
+        out["classes"] = (
+            "targets by probability of exceeding each threshold: below (at most 1 - confidence), above (at least "
+            "confidence), uncertain between; "
+            + (
+                "simulated block averages (share of realisations above)"
+                if decisions.classes_method == "simulation"
+                else "kriged blocks"
+                if decisions.classes_support == "block"
+                else "grid nodes"
+            )
+        )
+    return out
+
+
 def analysis(result, samples: SampleSet, figures: dict, options, figure_options: dict) -> dict:
     """Response body of ``POST /v1/analyses`` (without provenance); ``options`` is the AnalysisOptions."""
     fit_body = model_fit(result.fit, result.omnidirectional.statistic, summary=None, sample_params={}, options={})
@@ -427,6 +485,8 @@ def analysis(result, samples: SampleSet, figures: dict, options, figure_options:
             "variance": variance,
             "grid": result.prediction.grid.as_dict(),
             "unestimated": _unestimated(result.prediction.prediction.reasons),
+            "support": result.prediction.support,
+            **_decisions(result.decisions, options.prediction),
         }
     document["parameters"] = {
         **sample_parameters(samples),
@@ -456,6 +516,7 @@ def analysis(result, samples: SampleSet, figures: dict, options, figure_options:
         },
         "envelope": result.envelope.as_dict(),
         "prediction_units": "original units (back-transformed)" if result.transform.kind != "none" else "values",
+        "prediction": _prediction_parameters(result, options.prediction),
         "figures": list(figures),
         "figure_format": figure_options.get("figure_format"),
         "figure_size": figure_options.get("figure_size"),

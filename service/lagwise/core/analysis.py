@@ -27,6 +27,7 @@ from .data.declustering import weighted_start
 from .data.samples import SampleSet
 from .data.summary import Summary, summarise
 from .data.transforms import Transform
+from .decisions import Decisions, decide, validate_decisions
 from .errors import InvalidInput, SingularSystem, pointers_under
 from .kriging.cross_validation import CrossValidation, cross_validate
 from .kriging.neighbourhood import Neighbourhood
@@ -112,6 +113,7 @@ class Analysis:
     prediction: PredictionResult | None
     back_transformed: tuple[np.ndarray, np.ndarray] | None
     envelope: Envelope
+    decisions: Decisions | None = None
     variogram_map: VariogramMap | None = None
     warnings: tuple[str, ...] = field(default=())
     verdict: Verdict = Verdict(False, "review", "")
@@ -408,6 +410,7 @@ def _predict(working, transform, strategy: Strategy, hood, options, envelope, li
             spec=strategy.kriging,
             neighbourhood=hood,
             grid=options.prediction.grid,
+            blocks=options.prediction.blocks,
             limits=limits,
             workers=workers,
         )
@@ -444,6 +447,8 @@ def analyse(
             "/prediction": options.prediction,
         },
     )
+    if options.prediction is not None:
+        validate_decisions(samples, options.transform, options.prediction)
     start = weighted_start(samples.coords, samples.values, options.transform, samples.source_index)
     transform = start.transform
     working = replace(samples, values=start.values)
@@ -486,8 +491,13 @@ def analyse(
     model = chosen.model if chosen is not None else isotropic.best.model
     spec = chosen.kriging if chosen is not None else ORDINARY
     prediction, back, withheld = None, None, 0
+    decisions = None
     if chosen is not None and options.prediction is not None:
         prediction, back, withheld = _predict(working, transform, chosen, hood, options, envelope, limits, workers)
+        decisions = decide(
+            samples, transform, chosen.model, chosen.kriging, hood, prediction, options.prediction, limits, workers
+        )
+        notes += list(decisions.warnings)
     anisotropy = _anisotropy(anisotropic, selection)
     vmap = None
     if options.with_map and samples.dimension >= 2:
@@ -535,6 +545,7 @@ def analyse(
         prediction=prediction,
         back_transformed=back,
         envelope=envelope,
+        decisions=decisions,
         variogram_map=vmap,
         warnings=tuple(dict.fromkeys(notes)),
         verdict=verdict,

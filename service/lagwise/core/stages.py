@@ -17,6 +17,7 @@ from functools import partial
 
 from .data.samples import SampleSet
 from .errors import FieldIssue, InvalidInput, pointers_under
+from .kriging.blocks import Blocks, validate_blocks
 from .kriging.cross_validation import DEFAULT_OUTLIER_THRESHOLD, Scheme, validate_scheme
 from .kriging.neighbourhood import Neighbourhood, validate_neighbourhood
 from .kriging.prediction import Grid, validate_grid
@@ -111,10 +112,35 @@ class CrossValidationOptions:
 
 
 @dataclass(frozen=True)
+class AreaSimulation:
+    """Conditional simulation within an analysis (see :mod:`lagwise.core.simulation`): the share of
+    the grid above each threshold with its spread, and block averages when ``block_size`` is given."""
+
+    realisations: int = 100
+    seed: int = 1
+    block_size: tuple[float, ...] | None = None
+
+    def as_dict(self) -> dict:
+        return {
+            "realisations": self.realisations,
+            "seed": self.seed,
+            "block_size": None if self.block_size is None else list(self.block_size),
+        }
+
+
+@dataclass(frozen=True)
 class PredictionOptions:
-    """Prediction stage: a grid (analyses) in the samples' input coordinates."""
+    """Prediction stage: a grid (analyses) in the samples' input coordinates.
+
+    ``thresholds`` (original units): exceedance probabilities and their classes;
+    ``blocks``: block kriging (no transform); ``simulation``: conditional simulation
+    for the share of the grid above each threshold (and simulated block averages).
+    """
 
     grid: Grid
+    thresholds: tuple[float, ...] = ()
+    blocks: Blocks | None = None
+    simulation: AreaSimulation | None = None
 
     def validate(self, samples: SampleSet) -> None:
         if samples.dimension != 2:
@@ -122,6 +148,10 @@ class PredictionOptions:
                 "/grid", f"analysis prediction grids need 2-D samples (these are {samples.dimension}-D)"
             )
         validate_grid(self.grid, samples.dimension)
+        if self.blocks is not None:
+            validate_blocks(self.blocks, samples.dimension)
+        if self.simulation is not None and not 1 <= self.simulation.realisations <= 10_000:
+            raise InvalidInput.at("/simulation/realisations", "must be from 1 to 10000")
 
 
 def validate_stages(samples: SampleSet, stages: dict[str, object]) -> None:

@@ -6,18 +6,25 @@ request gives the same bytes. Artists carry SVG ids (``experimental-points-0``,
 ``sample-locations``...) so that tests and clients can find them.
 
 Modules: :mod:`.variogram` (experimental variogram with directional model curves,
-variogram map), :mod:`.maps` (estimates and standard deviations on a grid),
+variogram map), :mod:`.maps` (estimates, standard deviations and exceedance probabilities on a grid),
 :mod:`.validation` (cross-validation errors and interval calibration).
 """
 
 from __future__ import annotations
 
 from .labels import Labels
-from .maps import COLOUR_SCALES, prediction_map, standard_deviation_map
+from .maps import COLOUR_SCALES, prediction_map, probability_map, standard_deviation_map
 from .validation import cross_validation, interval_coverage
 from .variogram import variogram, variogram_map
 
-FIGURES = ("variogram", "variogram_map", "cross_validation", "prediction_map", "standard_deviation_map")
+FIGURES = (
+    "variogram",
+    "variogram_map",
+    "cross_validation",
+    "prediction_map",
+    "standard_deviation_map",
+    "probability_map",
+)
 FORMATS = ("svg", "png")
 
 __all__ = [
@@ -28,6 +35,7 @@ __all__ = [
     "cross_validation",
     "interval_coverage",
     "prediction_map",
+    "probability_map",
     "standard_deviation_map",
     "variogram",
     "variogram_map",

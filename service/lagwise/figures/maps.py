@@ -1,4 +1,5 @@
-"""Maps of kriging results on a grid: estimates (with threshold contours) and standard deviations.
+"""Maps of kriging results on a grid: estimates (with threshold contours), standard deviations and
+probabilities of exceeding a threshold.
 
 Everything on a map is drawn in the grid's own coordinates: planar units, or degrees
 of longitude and latitude for geographic samples (then one degree of longitude is
@@ -16,7 +17,7 @@ from matplotlib.patches import Patch
 from matplotlib.ticker import FuncFormatter, LogLocator
 
 from .labels import Labels
-from .style import ESTIMATE_RAMP, FOG, SLATE, SPREAD_RAMP, render, style_axes
+from .style import ESTIMATE_RAMP, FOG, PROBABILITY_RAMP, SLATE, SPREAD_RAMP, render, style_axes
 
 COLOUR_SCALES = ("auto", "linear", "log", "quantile")
 QUANTILE_CLASSES = 10
@@ -186,6 +187,89 @@ def standard_deviation_map(
         if labels.transform != "none":
             subtitle += "; back-transformed to original units"
         style_axes(ax, f"Kriging standard deviation of {labels.value}", subtitle)
+        ax.grid(False)
+
+    return render(draw, size, fmt)
+
+
+def probability_map(
+    grid,
+    probability: np.ndarray,
+    estimate: np.ndarray,
+    threshold: float,
+    labels: Labels,
+    *,
+    sample_xy: np.ndarray,
+    confidence: float = 0.9,
+    support: str = "point",
+    size: tuple[int, int] = (800, 500),
+    fmt: str = "svg",
+) -> str | bytes:
+    """P(value > threshold) on the grid, with the threshold contour of the estimate and the class limits.
+
+    Parameters
+    ----------
+    grid : Grid
+    probability : ndarray, shape (grid.size,)
+        Probabilities in [0, 1]; NaN where a node has no estimate.
+    estimate : ndarray, shape (grid.size,)
+        Estimates in original units; their contour at ``threshold`` is drawn solid.
+    threshold : float
+        Original units.
+    confidence : float
+        The probability contours 1 - confidence and confidence (dashed) bound the classes
+        "below with at least ... %" and "above with at least ... %".
+    support : {"point", "block"}
+        Whether the probabilities are of point values or of block averages (labels only).
+
+    Returns
+    -------
+    str or bytes
+        SVG text or PNG bytes; ids ``probability-surface``, ``threshold-contour``,
+        ``class-limits``, ``sample-locations``.
+    """
+    x, y, surface = _surface(grid, probability)
+    _, _, level = _surface(grid, estimate)
+    masked = np.ma.masked_invalid(surface)
+    what = labels.value if support == "point" else f"the block average of {labels.value}"
+    low, high = 1.0 - confidence, confidence
+
+    def draw(fig):
+        ax = _axes_for(fig, labels, grid)
+        mesh = ax.pcolormesh(x, y, masked, cmap=PROBABILITY_RAMP.with_extremes(bad=FOG), norm=Normalize(0.0, 1.0),
+                             shading="nearest", gid="probability-surface")  # fmt: skip
+        bar = fig.colorbar(mesh, ax=ax, shrink=0.9)
+        bar.set_label(f"probability of exceeding {threshold:g}")
+        bar.ax.yaxis.set_major_formatter(FuncFormatter(lambda v, _: f"{v * 100:.0f} %"))
+        handles = [_samples(ax, sample_xy)]
+        finite = level[np.isfinite(level)]
+        notes = []
+        if finite.size and finite.min() < threshold < finite.max():
+            lines = ax.contour(x, y, np.ma.masked_invalid(level), levels=[threshold], colors=[SLATE], linewidths=1.3)
+            lines.set_gid("threshold-contour")
+            handles.append(Line2D([], [], color=SLATE, linewidth=1.3, label=f"estimate = {threshold:g}"))
+        else:
+            notes.append(f"the estimate does not cross {threshold:g}")
+        known = surface[np.isfinite(surface)]
+        crossed = [v for v in (low, high) if known.size and known.min() < v < known.max()]
+        if crossed:
+            limits = ax.contour(x, y, masked, levels=crossed, colors=[SLATE], linewidths=0.8, linestyles="dashed")
+            limits.set_gid("class-limits")
+            handles.append(
+                Line2D(
+                    [],
+                    [],
+                    color=SLATE,
+                    linewidth=0.8,
+                    linestyle="dashed",
+                    label=f"{low * 100:.0f} % and {high * 100:.0f} % probability",
+                )  # fmt: skip
+            )
+        if np.ma.count_masked(masked):
+            handles.append(Patch(facecolor=FOG, label="not estimated"))
+        _legend(ax, handles)
+        subtitle = ["multi-Gaussian reading of kriging" if support == "point" else "block averages"] + notes
+        style_axes(ax, f"Probability that {what} exceeds {threshold:g}", "; ".join(subtitle))
         ax.grid(False)
 
     return render(draw, size, fmt)

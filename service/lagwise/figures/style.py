@@ -29,6 +29,10 @@ SPREAD_RAMP = LinearSegmentedColormap.from_list("lagwise-spread", ["#f6f1f4", "#
 DISSIMILARITY_RAMP = LinearSegmentedColormap.from_list(
     "lagwise-dissimilarity", ["#f5efe0", "#e0b25a", "#b5651d", "#4a2a1a"]
 )
+# Probability of exceeding a limit: pale (unlikely) to dark plum (likely), lightness falling throughout.
+PROBABILITY_RAMP = LinearSegmentedColormap.from_list(
+    "lagwise-probability", ["#eef4f3", "#9cc9c1", "#d68c15", PLUM, "#3b1f36"]
+)
 ERROR_RAMP = LinearSegmentedColormap.from_list("lagwise-error", ["#1b5e7a", "#7fb3c4", "#f4f2ec", "#e0a66b", "#9c4a16"])
 
 RC: dict[RcKeyType, Any] = {

@@ -137,3 +137,59 @@ def reading(kriging_type: str, nugget_as: str, support: str = "point") -> dict:
     else:
         variance = "the kriging variance of the signal without the measurement error (nugget filtered)"
     return {"reading": READING, "assumption": ASSUMPTION[kriging_type], "variance": variance}
+
+
+CONFIDENCE = 0.9
+CLASS_MEANINGS = {
+    "below": "below the limit with at least {c} % probability",
+    "uncertain": "uncertain: the probability of exceeding the limit lies between {lo} % and {c} %",
+    "above": "above the limit with at least {c} % probability",
+}
+
+
+@dataclass(frozen=True)
+class ProbabilityClasses:
+    """Targets (points or blocks) of one threshold sorted into three probability classes.
+
+    ``below``: P(exceed) <= 1 - confidence; ``above``: P(exceed) >= confidence; ``uncertain``:
+    between. Targets without an estimate are counted in ``unestimated``.
+    """
+
+    threshold: float
+    confidence: float
+    below: int
+    uncertain: int
+    above: int
+    unestimated: int
+
+    def as_dict(self) -> dict:
+        c, lo = round(self.confidence * 100), round((1 - self.confidence) * 100)
+        total = self.below + self.uncertain + self.above
+        rows = []
+        for name in ("below", "uncertain", "above"):
+            count = getattr(self, name)
+            rows.append(
+                {
+                    "class": name,
+                    "meaning": CLASS_MEANINGS[name].format(c=c, lo=lo),
+                    "count": count,
+                    "share": count / total if total else None,
+                }
+            )
+        return {
+            "threshold": self.threshold,
+            "confidence": self.confidence,
+            "classes": rows,
+            "unestimated": self.unestimated,
+        }
+
+
+def classify(threshold: float, probability: np.ndarray, confidence: float = CONFIDENCE) -> ProbabilityClasses:
+    """Count targets below / uncertain / above a threshold at the given confidence (probabilities in [0, 1])."""
+    p = np.asarray(probability, dtype=np.float64)
+    known = np.isfinite(p)
+    below = int(np.sum(known & (p <= 1 - confidence)))
+    above = int(np.sum(known & (p >= confidence)))
+    return ProbabilityClasses(
+        threshold, confidence, below, int(known.sum()) - below - above, above, int((~known).sum())
+    )
