@@ -52,7 +52,7 @@ def samples():
 
 def test_discretisation_multiplies_the_estimated_cost(samples):
     targets = np.full((2000, 2), 50.0)
-    limits = Limits(max_kriging_flops=500_000_000)
+    limits = Limits(max_kriging_flops=5_000_000_000)
     predict(samples, MODEL, targets=targets, limits=limits)
     with pytest.raises(LimitExceeded):
         predict(samples, MODEL, targets=targets, blocks=Blocks((5.0, 5.0), (16, 16)), limits=limits)

@@ -35,7 +35,6 @@ from .systems import Covariance, Frame, KrigingSpec, PointSupport
 MAX_POINTS_PER_AXIS = 32
 MAX_POINTS = 1024
 DEFAULT_POINTS_PER_AXIS = 4
-COVARIANCE_FLOPS = 30  # operations per covariance evaluation (distance, family formula, sum), for the cost estimate
 
 
 @dataclass(frozen=True)

@@ -11,8 +11,8 @@ from ..data.samples import MAX_SPREAD, SampleSet
 from ..errors import FieldIssue, InvalidInput, LimitExceeded
 from ..limits import Limits
 from ..modelling.models import VariogramModel
-from .blocks import COVARIANCE_FLOPS, Blocks, BlockSupport, validate_blocks
-from .cost import check_kriging, drift_terms, prediction_flops
+from .blocks import Blocks, BlockSupport, validate_blocks
+from .cost import ENTRY_OPERATIONS, check_kriging, drift_terms, prediction_flops
 from .neighbourhood import Neighbourhood
 from .systems import Kriger, KrigingSpec, Prediction
 
@@ -123,7 +123,8 @@ def _check_cost(
     flops = None
     if points > 1:
         k = samples.size if neighbourhood.unique else min(neighbourhood.max_points or samples.size, samples.size)
-        flops = prediction_flops(samples.size, m, neighbourhood, p) + COVARIANCE_FLOPS * (m * k * points + points**2)
+        extra = ENTRY_OPERATIONS * (m * k * (points - 1) + points**2)  # point-to-block and within-block averages
+        flops = prediction_flops(samples.size, m, neighbourhood, p) + extra
     check_kriging(limits, samples.size, m, neighbourhood, p, flops=flops, what="prediction")
 
 
