@@ -134,6 +134,11 @@ def main():
             f"{TARGET_MB:>7.0f} "
             f"{baseline:>11.0f} {baseline / ours['seconds']:>8.0f}x"
         )
+        met = ours["seconds"] < TARGET_SECONDS and ours["peak_mb"] < TARGET_MB
+        print(
+            f"  {label}: time {'MET' if ours['seconds'] < TARGET_SECONDS else 'MISSED'}, "
+            f"memory {'MET' if ours['peak_mb'] < TARGET_MB else 'MISSED'}" + ("" if met else " (see the load below)")
+        )
     print(
         f"load average (1, 5, 15 min) at the end: {', '.join(f'{v:.1f}' for v in os.getloadavg())} on {os.cpu_count()} cores"
     )

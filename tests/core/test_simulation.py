@@ -7,6 +7,7 @@ from dataclasses import replace
 import numpy as np
 import pytest
 from lagwise.core.data.samples import build_sample_set
+from lagwise.core.deadline import DeadlineExceeded, deadline
 from lagwise.core.errors import InvalidInput, LimitExceeded
 from lagwise.core.kriging.neighbourhood import Neighbourhood
 from lagwise.core.kriging.prediction import Grid
@@ -172,3 +173,8 @@ def test_samples_outside_the_grid_extend_the_lattice(samples):
     result = run(far)
     assert result.embedding.physical[1] > GRID.shape[1] + 20
     assert np.all(np.isfinite(result.mean))
+
+
+def test_the_deadline_stops_a_simulation(samples):
+    with deadline(1e-9), pytest.raises(DeadlineExceeded):
+        run(samples, realisations=50)
