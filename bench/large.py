@@ -20,6 +20,7 @@ Sections
 from __future__ import annotations
 
 import json
+import os
 import resource
 import subprocess
 import sys
@@ -207,14 +208,16 @@ SECTIONS = [("grid_scattered", grid_scattered), ("grid_error", grid_error), ("ra
 
 
 def _run_section(name: str) -> None:
+    start = time.perf_counter()
     rows = dict(SECTIONS)[name]()
-    peak = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024
-    print(json.dumps({"rows": rows, "peak_bytes": peak}))
+    usage = resource.getrusage(resource.RUSAGE_SELF)
+    share = (usage.ru_utime + usage.ru_stime) / (time.perf_counter() - start)
+    print(json.dumps({"rows": rows, "peak_bytes": usage.ru_maxrss * 1024, "cpu_share": share}))
 
 
 def main(names: list[str] | None = None) -> None:
     """Run each section in its own process and print its rows with the process's peak memory."""
-    print(f"note: {NOTE}")
+    print(f"note: {NOTE}; load average at start {os.getloadavg()[0]:.1f}")
     for name, _ in SECTIONS:
         if names and name not in names:
             continue
@@ -231,7 +234,11 @@ def main(names: list[str] | None = None) -> None:
             print(f"{name:15s} {row['figure']}: {row['value']} (target {row['target']}){met}", flush=True)
             print(f"{'':15s}   {row['detail']}", flush=True)
         target = "  (target < 4 GB)" if name == "grid_scattered" else ""
-        print(f"{'':15s}   peak memory of the section's process {peak:.2f} GiB{target}", flush=True)
+        print(
+            f"{'':15s}   peak memory of the section's process {peak:.2f} GiB{target}; CPU seconds per wall "
+            f"second {report['cpu_share']:.2f} (2 cores: 2.0 when alone); load average {os.getloadavg()[0]:.1f}",
+            flush=True,
+        )
 
 
 if __name__ == "__main__":

@@ -141,3 +141,9 @@ def test_masked_sums_against_fftconvolve_and_shifts(rng):
     assert abs(sums.product[at] - np.sum(tail_z * head_z)) < 1e-9
     square = sums.tail2[at] + sums.head2[at] - 2 * sums.product[at]
     assert abs(square - np.sum(both * (head_z - tail_z) ** 2)) < 1e-9
+    assert abs(sums.square[at] - square) < 1e-9
+    # The semivariance-only transforms give the same counts and squared differences at every lag.
+    short = lag_sums(nodes, reach, first_moments=False)
+    np.testing.assert_array_equal(short.count, sums.count)
+    square_all = corr(z * z, mask) + corr(mask, z * z) - 2 * corr(z, z)
+    np.testing.assert_allclose(short.square, np.where(sums.count > 0, square_all, 0.0), atol=1e-9)

@@ -37,6 +37,9 @@ def warm_kernels() -> None:
     experimental_variogram(
         samples, lags=LagRequest(edges=(0.0, 1.0, 3.0, 6.0)), pairs_for_class=ScatterRequest(0, 1, 5)
     )
+    # The grid method's compiled passes (binning, hull throw-away on 3,001 points).
+    many = build_sample_set(np.ones(3001), np.arange(3001.0) % 61, np.arange(3001.0) // 61)
+    experimental_variogram(many, lags=LagRequest(width=5.0, count=3), method="grid")
     _warm = True
 
 

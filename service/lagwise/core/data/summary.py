@@ -2,9 +2,11 @@
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 
 import numpy as np
+from numba import njit
 from scipy.spatial import ConvexHull, QhullError
 from scipy.spatial.distance import pdist
 
@@ -98,15 +100,41 @@ def hull_candidates(points: np.ndarray) -> np.ndarray:
     The points extreme along eight directions (every 45 degrees) span a convex polygon;
     a point strictly inside it is no hull vertex, so the hull of the others is the hull of all.
     """
-    angles = np.arange(8) * (np.pi / 4.0)
-    extreme = [int(np.argmax(points @ np.array([np.cos(a), np.sin(a)]))) for a in angles]
-    corners = points[list(dict.fromkeys(extreme))]
-    keep = np.zeros(points.shape[0], dtype=bool)
+    extreme = _extremes(points)
+    corners = points[list(dict.fromkeys(int(e) for e in extreme))]
     if corners.shape[0] < 3:
-        return ~keep
-    for a, b in zip(corners, np.roll(corners, -1, axis=0), strict=True):
-        # Counter-clockwise polygon: inside points are strictly left of every edge.
-        keep |= (b[0] - a[0]) * (points[:, 1] - a[1]) - (b[1] - a[1]) * (points[:, 0] - a[0]) <= 0.0
+        return np.ones(points.shape[0], dtype=bool)
+    return _outside(points, np.ascontiguousarray(corners))
+
+
+@njit(cache=True)
+def _extremes(points):
+    """Index of the point farthest along each of eight directions (every 45 degrees, counter-clockwise)."""
+    angles = np.arange(8) * (math.pi / 4.0)
+    ux, uy = np.cos(angles), np.sin(angles)
+    best = np.full(8, -np.inf)
+    index = np.zeros(8, dtype=np.int64)
+    for k in range(points.shape[0]):
+        for d in range(8):
+            p = points[k, 0] * ux[d] + points[k, 1] * uy[d]
+            if p > best[d]:
+                best[d] = p
+                index[d] = k
+    return index
+
+
+@njit(cache=True)
+def _outside(points, corners):
+    """True for points not strictly inside the counter-clockwise polygon ``corners``."""
+    m = corners.shape[0]
+    keep = np.zeros(points.shape[0], dtype=np.bool_)
+    for k in range(points.shape[0]):
+        for e in range(m):
+            ax, ay = corners[e, 0], corners[e, 1]
+            bx, by = corners[(e + 1) % m, 0], corners[(e + 1) % m, 1]
+            if (bx - ax) * (points[k, 1] - ay) - (by - ay) * (points[k, 0] - ax) <= 0.0:
+                keep[k] = True
+                break
     return keep
 
 

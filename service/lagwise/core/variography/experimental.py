@@ -433,9 +433,9 @@ def _binned_variogram(samples, lags, resolved, statistic, min_pairs, limits, tol
     summary = grid_summary(samples)
     explicit, largest = lags_needed(lags, samples.coords, summary, resolved)
     spacing = None if explicit is not None or lags.method == "equal_pairs" else typical_spacing(samples.coords)
-    cell = grid_cell(samples, explicit, largest, lags, spacing or 0.0, limits)
+    cell = grid_cell(summary, explicit, largest, lags, spacing or 0.0, limits)
     check_deadline()
-    grid = binned_nodes(samples.coords, samples.values, cell)
+    grid = binned_nodes(samples.coords, samples.values, cell, summary)
     computed = grid_classes(
         grid,
         lags=lags,

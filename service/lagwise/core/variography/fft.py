@@ -11,12 +11,15 @@ pairs (tail at node k, head at node k + s) have the sums
     head    = sum_k c_k S_(k+s)            tail2 = sum_k Q_k c_(k+s)
     head2   = sum_k c_k Q_(k+s)            product = sum_k S_k S_(k+s)
 
-and the squared differences sum to tail2 + head2 - 2 product. These are exact
+and the squared differences sum to square = tail2 + head2 - 2 product. These are exact
 sums over every pair of samples in the two nodes. Each sum is a cross-correlation
 corr(a, b)(s) = sum_k a_k b_(k+s), computed as irfft2(conj(rfft2 a) rfft2 b) on a
 grid padded to at least n + reach along each axis (next_fast_len), so no lag wraps
 around; corr(b, a)(s) = corr(a, b)(-s) gives the head sums from the tail sums. Three
 forward and four inverse real transforms serve every class, direction and map cell.
+The semivariance needs only count and square; square's spectrum is
+conj(Q) C + conj(C) Q - 2 |S|^2 (hats omitted), so it takes three forward and two
+inverse transforms.
 
 Lag vectors are then classified with the pair engine's own rules
 (:mod:`lagwise.core.variography.kernels`): separation h = (i dx, j dy), distance
@@ -82,6 +85,7 @@ class LagSums:
     indexed [j + ry, i + rx]. s = 0 includes each sample with itself: it is no pair."""
 
     count: np.ndarray
+    square: np.ndarray
     tail: np.ndarray
     head: np.ndarray
     tail2: np.ndarray
@@ -138,38 +142,53 @@ def _window(full: np.ndarray, reach: tuple[int, int]) -> np.ndarray:
 
 
 def lag_sums(nodes: NodeSums, reach: tuple[int, int], first_moments: bool = True) -> LagSums:
-    """All six pair sums for lag vectors up to ``reach`` = (rx, ry) nodes (see the module docstring).
+    """The pair sums for lag vectors up to ``reach`` = (rx, ry) nodes (see the module docstring).
 
-    ``first_moments=False`` skips the tail and head sums (left zero; the semivariance
-    does not use them), saving one of the seven transforms.
+    ``first_moments=False`` computes count and square only (the semivariance's sums;
+    the others are left zero), with two inverse transforms instead of four.
     """
     shape = padded_shape(nodes.count.shape, reach)
 
     def forward(a: np.ndarray) -> np.ndarray:
         return scipy.fft.rfft2(a, s=shape, workers=WORKERS)
 
-    def correlate(a_hat: np.ndarray, b_hat: np.ndarray) -> np.ndarray:
+    def inverse(spectrum: np.ndarray) -> np.ndarray:
         check_deadline()
-        full = scipy.fft.irfft2(np.conj(a_hat) * b_hat, s=shape, workers=WORKERS)
-        return _window(full, reach)
+        return _window(scipy.fft.irfft2(spectrum, s=shape, workers=WORKERS), reach)
+
+    def cross(a_hat: np.ndarray, b_hat: np.ndarray) -> np.ndarray:
+        out = np.conj(a_hat)
+        out *= b_hat
+        return out
 
     c_hat = forward(nodes.count)
-    count = np.rint(correlate(c_hat, c_hat))  # products of whole numbers
+    count = np.rint(inverse(cross(c_hat, c_hat)))  # products of whole numbers
     s_hat = forward(nodes.total)
-    tail = correlate(s_hat, c_hat) if first_moments else np.zeros_like(count)
-    product = correlate(s_hat, s_hat)
-    del s_hat
     q_hat = forward(nodes.squares)
-    tail2 = correlate(q_hat, c_hat)
-    del q_hat, c_hat
+    if first_moments:
+        tail = inverse(cross(s_hat, c_hat))
+        product = inverse(cross(s_hat, s_hat))
+        del s_hat
+        tail2 = inverse(cross(q_hat, c_hat))
+        del q_hat, c_hat
+        # corr(c, S)(s) = corr(S, c)(-s): reverse both axes of the symmetric window.
+        head, head2 = tail[::-1, ::-1].copy(), tail2[::-1, ::-1].copy()
+        square = tail2 + head2 - 2.0 * product
+    else:
+        spectrum = cross(q_hat, c_hat)
+        del q_hat, c_hat
+        spectrum += np.conj(spectrum)  # conj(Q) C + conj(C) Q
+        spectrum -= 2.0 * (s_hat.real**2 + s_hat.imag**2)
+        del s_hat
+        square = inverse(spectrum)
+        del spectrum
+        tail = head = tail2 = head2 = product = np.zeros_like(count)
     check_deadline()
-    # corr(c, S)(s) = corr(S, c)(-s): reverse both axes of the symmetric window.
-    head, head2 = tail[::-1, ::-1].copy(), tail2[::-1, ::-1].copy()
     empty = count <= 0.0
-    for a in (tail, head, tail2, head2, product):
+    for a in {id(a): a for a in (square, tail, head, tail2, head2, product)}.values():
         a[empty] = 0.0
     count[empty] = 0.0
-    return LagSums(count, tail, head, tail2, head2, product, reach, nodes.spacing)
+    return LagSums(count, square, tail, head, tail2, head2, product, reach, nodes.spacing)
 
 
 def check_statistic(statistic: str, pointer: str = "/statistic") -> None:
@@ -247,7 +266,7 @@ def class_table(sums: LagSums, classes: LagClasses, mask: np.ndarray, kmax: int)
     tail, head = sums.tail[mask], sums.head[mask]
     tail2, head2 = sums.tail2[mask], sums.head2[mask]
     product = sums.product[mask]
-    square = tail2 + head2 - 2.0 * product
+    square = sums.square[mask]
     out = np.zeros((classes.index.shape[0], kmax, K.ACCUMULATORS))
     for k in range(classes.index.shape[0]):
         member = classes.index[k] >= 0
@@ -292,7 +311,7 @@ def map_table(sums: LagSums, cell_size: float, cells: int) -> np.ndarray:
     columns = {
         K.COUNT: n,
         K.DISTANCE: n * d,
-        K.SQUARE: (sums.tail2 + sums.head2 - 2.0 * sums.product)[keep],
+        K.SQUARE: sums.square[keep],
         K.TAIL: sums.tail[keep],
         K.HEAD: sums.head[keep],
         K.TAIL2: sums.tail2[keep],

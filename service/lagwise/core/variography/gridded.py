@@ -39,6 +39,7 @@ from ..deadline import check_deadline
 from ..errors import InvalidInput
 from ..limits import Limits
 from . import kernels as K
+from .binning import bin_on_cells, extent_and_mean
 from .bounds import BOUND_STATISTICS, relative_bounds
 from .directions import DirectionClass
 from .fft import (
@@ -142,7 +143,8 @@ class _Grid:
 def raster_nodes(raster: Raster) -> _Grid:
     """Counts 1/0, centred values and squares of a raster's cells."""
     mean, _, minimum, maximum = raster.moments
-    centred = np.nan_to_num(raster.grid - mean, nan=0.0, copy=False)
+    centred = raster.grid - mean
+    np.copyto(centred, 0.0, where=~raster.present)
     nodes = NodeSums(
         raster.present.astype(np.float64),
         centred,
@@ -154,17 +156,15 @@ def raster_nodes(raster: Raster) -> _Grid:
     return _Grid(nodes, raster.origin, "raster", (0.0, 0.0, 0.0))
 
 
-def binned_nodes(coords: np.ndarray, values: np.ndarray, cell: float) -> _Grid:
-    """Bin 2-D samples on square cells of side ``cell`` from the lower-left sample."""
-    low = coords.min(axis=0)
-    index = np.floor((coords - low) / cell).astype(np.int64)
-    nx, ny = int(index[:, 0].max()) + 1, int(index[:, 1].max()) + 1
-    flat = index[:, 1] * nx + index[:, 0]
-    mean = float(values.mean())
-    centred = values - mean
-    count = np.bincount(flat, minlength=nx * ny).astype(np.float64)
-    total = np.bincount(flat, weights=centred, minlength=nx * ny)
-    squares = np.bincount(flat, weights=centred * centred, minlength=nx * ny)
+def binned_nodes(coords: np.ndarray, values: np.ndarray, cell: float, summary: Summary) -> _Grid:
+    """Bin 2-D samples on square cells of side ``cell`` from the lower-left corner of ``summary.extent``."""
+    (x_lo, x_hi), (y_lo, y_hi) = summary.extent["x"], summary.extent["y"]
+    low, mean = (x_lo, y_lo), summary.mean
+    nx = int((x_hi - x_lo) // cell) + 1
+    ny = int((y_hi - y_lo) // cell) + 1
+    count, total, squares = bin_on_cells(
+        np.ascontiguousarray(coords), np.ascontiguousarray(values), low[0], low[1], cell, nx, ny, mean
+    )
     pairs = float(np.sum(count * (count - 1.0)) / 2.0)
     half_square = float(np.sum(count * squares - total * total)) / 2.0
     # sum over a < b in a cell of z_a z_b, z = centred + mean.
@@ -175,7 +175,7 @@ def binned_nodes(coords: np.ndarray, values: np.ndarray, cell: float) -> _Grid:
         squares.reshape(ny, nx),
         (cell, cell),
         mean,
-        float(np.abs(values).max()),
+        max(abs(summary.minimum), abs(summary.maximum)),
     )
     return _Grid(nodes, (float(low[0]), float(low[1])), "binned", (pairs, half_square, raw))
 
@@ -272,7 +272,7 @@ def grid_classes(
                 values[k, c] = np.nan if v is None else v
         counts = sums.count[mask]
         if statistic == "semivariance":
-            numerator = (sums.tail2[mask] + sums.head2[mask] - 2.0 * sums.product[mask]) / 2.0
+            numerator = sums.square[mask] / 2.0
             within = (grid.within[0], grid.within[1])
         else:
             m = grid.nodes.mean
@@ -301,7 +301,7 @@ def grid_classes(
     return GridVariogram(table, edges, report, bounds, pair_bounds, grid.nodes.mean, grid.nodes.scale)
 
 
-def grid_cell(samples: SampleSet, explicit, largest, lags: LagRequest, spacing, limits: Limits) -> float:
+def grid_cell(summary: Summary, explicit, largest, lags: LagRequest, spacing, limits: Limits) -> float:
     """Cell side of the grid method (module docstring)."""
     if explicit is not None:
         narrowest = float(np.diff(explicit).min())
@@ -309,10 +309,9 @@ def grid_cell(samples: SampleSet, explicit, largest, lags: LagRequest, spacing, 
         narrowest = min(largest) / AUTO_MAX_CLASSES
     else:
         narrowest = min(spacing_width(top, spacing) for top in largest)
-    span = float(np.ptp(samples.coords, axis=0).max())
-    cell = max(narrowest / CELLS_PER_CLASS, span / (MAX_GRID_SIDE - 1))
+    extent = [hi - lo for lo, hi in summary.extent.values()]
+    cell = max(narrowest / CELLS_PER_CLASS, max(extent) / (MAX_GRID_SIDE - 1))
     radius = max(largest)
-    extent = np.ptp(samples.coords, axis=0)
     while True:
         shape = (int(extent[1] // cell) + 1, int(extent[0] // cell) + 1)
         reach = (min(int(math.ceil(radius / cell)), shape[1] - 1), min(int(math.ceil(radius / cell)), shape[0] - 1))
@@ -333,17 +332,17 @@ def refuse_unbounded(statistic: str) -> None:
 
 def grid_summary(samples: SampleSet) -> Summary:
     """Summary without declustering (the grid method serves large sets; cell declustering is not run)."""
-    values, coords = samples.values, samples.coords
-    mean = float(values.mean())
+    coords, values = np.ascontiguousarray(samples.coords), np.ascontiguousarray(samples.values)
+    x_lo, x_hi, y_lo, y_hi, v_lo, v_hi, mean = extent_and_mean(coords, values)
     return Summary(
         samples=samples.size,
         dimension=samples.dimension,
-        mean=mean,
+        mean=float(mean),
         variance=float(np.mean((values - mean) ** 2)),
-        minimum=float(values.min()),
-        maximum=float(values.max()),
-        extent={"xyz"[a]: [float(coords[:, a].min()), float(coords[:, a].max())] for a in range(coords.shape[1])},
-        max_distance=largest_separation(coords),
+        minimum=float(v_lo),
+        maximum=float(v_hi),
+        extent={"x": [float(x_lo), float(x_hi)], "y": [float(y_lo), float(y_hi)]},
+        max_distance=largest_separation(samples.coords),
         declustering=None,
     )
 
