@@ -101,7 +101,7 @@ def test_censored_entries_per_variable(client):
     }
     r = client.post("/v1/experimental-variograms", json={"samples": samples, "lags": {"width": 2, "count": 3}})
     assert r.status_code == 200, r.json
-    assert r.json["summary"]["samples"] == 6
+    assert r.json["variables"][0]["summary"]["samples"] == 6 and r.json["variables"][0]["unit"] == "mg/kg"
     assert any("detection limit" in w for w in r.json["warnings"])
 
 
@@ -129,3 +129,40 @@ def test_geojson_bad_property_names_the_feature(client):
     problem(r, ["/samples/geojson/features/7/properties/zinc"])
     both = {**samples, "value_property": "lead"}
     problem(client.post("/v1/model-fits", json={"samples": both, "variable": "zinc"}), ["/samples/value_property"])
+
+
+def test_several_variables_give_direct_and_cross_variograms(client):
+    lags = {"width": 10, "count": 6}
+    directions = [{"azimuth": 0, "tolerance": 90}, {"azimuth": 45, "tolerance": 22.5}]
+    r = client.post(
+        "/v1/experimental-variograms",
+        json={"samples": multi(units={"lead": "mg/kg"}), "lags": lags, "directions": directions},
+    )
+    assert r.status_code == 200, r.json
+    doc = r.json
+    assert [v["name"] for v in doc["variables"]] == ["lead", "zinc"]
+    assert doc["variables"][0]["unit"] == "mg/kg" and doc["variables"][1]["unit"] is None
+    assert [c["variables"] for c in doc["cross"]] == [["lead", "zinc"]]
+    assert len(doc["cross"][0]["directions"]) == 2
+    assert doc["parameters"]["variables"] == ["lead", "zinc"] and "both ends" in doc["parameters"]["cross_statistic"]
+    x, y, values = measured(ZINC)
+    alone = client.post(
+        "/v1/experimental-variograms",
+        json={"samples": {"x": x, "y": y, "values": values}, "lags": lags, "directions": directions},
+    ).json
+    for ours, theirs in zip(doc["variables"][1]["directions"], alone["directions"], strict=True):
+        for row, single in zip(ours["classes"], theirs["classes"], strict=True):
+            assert row["pairs"] == single["pairs"]
+            assert row["value"] == pytest.approx(single["value"], rel=1e-9)
+    assert doc["variables"][1]["summary"]["samples"] == len(values)
+
+
+def test_statistic_without_a_cross_form_says_so(client):
+    r = client.post("/v1/experimental-variograms", json={"samples": multi(), "statistic": "madogram"})
+    assert r.status_code == 200, r.json
+    assert r.json["cross"] == [] and any("no cross form" in w for w in r.json["warnings"])
+
+
+def test_scattergram_needs_one_variable(client):
+    r = client.post("/v1/experimental-variograms", json={"samples": multi(), "pairs_for_class": {"class": 0}})
+    problem(r, ["/pairs_for_class"])

@@ -33,7 +33,7 @@ function check(condition: boolean, what: string): void {
 }
 
 const exp = await client.POST("/v1/experimental-variograms", { body: examples.experimental_variograms });
-check(exp.data !== undefined && exp.data.directions[0].classes.length === 4, "experimental classes");
+check(exp.data !== undefined && "directions" in exp.data && exp.data.directions[0].classes.length === 4, "experimental classes");
 
 const fit = await client.POST("/v1/model-fits", { body: examples.model_fits });
 if (fit.data === undefined) throw new Error("no fit");

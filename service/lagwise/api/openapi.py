@@ -307,7 +307,7 @@ def build_spec() -> APISpec:
             multipart = _multipart_content(spec, op.request)
             if multipart is not None:
                 body["requestBody"]["content"][MULTIPART_MEDIA_TYPE] = multipart
-        success = _success("application/json", op.response, examples.RESPONSES.get(name))
+        success = _success("application/json", _request_schema(op.response), examples.RESPONSES.get(name))
         if name in ARROW_ANSWERS:
             success["content"][ARROW_MEDIA_TYPE] = _arrow_answer(ARROW_ANSWERS[name])
         entries.append(

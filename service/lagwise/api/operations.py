@@ -13,6 +13,7 @@ from flask import Blueprint, Response, current_app, g, request
 
 from .. import __version__
 from ..core.analysis import analyse
+from ..core.data.variables import MultiSampleSet
 from ..core.deadline import deadline
 from ..core.errors import InvalidInput
 from ..core.kriging.systems import KrigingSpec
@@ -24,6 +25,7 @@ from ..core.simulation import simulate
 from ..core.variography.experimental import experimental_variogram, raster_variogram
 from ..core.variography.fft import FFT_STATISTICS
 from ..core.variography.maps import raster_map, variogram_map
+from ..core.variography.several import several_variograms
 from . import convert, joint, serialize
 from .body import load_json
 from .columnar import ARROW_MEDIA_TYPE, arrow_answer, wants_arrow
@@ -51,6 +53,7 @@ from .schemas import (
     PredictionOnGrid,
     PredictionRequest,
     PredictionResponse,
+    SeveralExperimentalResponse,
     SimulationRequest,
     SimulationResponse,
 )
@@ -67,7 +70,7 @@ class Operation:
     operation_id: str
     summary: str
     request: type | tuple[type, ...] | None
-    response: type
+    response: type | tuple[type, ...]
     errors: tuple[int, ...]
 
 
@@ -131,9 +134,10 @@ def with_provenance(
 @operation(
     "/v1/experimental-variograms",
     "POST",
-    "Experimental variogram (or another class statistic) per direction class",
+    "Experimental variogram (or another class statistic) per direction class; with several variables, "
+    "every direct and cross variogram",
     ExperimentalRequest,
-    ExperimentalResponse,
+    (ExperimentalResponse, SeveralExperimentalResponse),
 )
 def experimental_variograms():
     document = load_json(ExperimentalRequest())
@@ -155,7 +159,10 @@ def experimental_variograms():
         )
         pairs = sum(row.pairs for d in result.directions for row in d.classes)
         return with_provenance(serialize.experimental(result, grid), grid.input_hash, grid.size, pairs)
-    samples = convert.sample_set(document, settings().limits)
+    given = convert.samples_of(document, settings().limits)
+    if isinstance(given, MultiSampleSet) and "variable" not in document:
+        return _several_variograms(document, given)
+    samples = given.variable(convert.chosen_variable(document, given)) if isinstance(given, MultiSampleSet) else given
     result = experimental_variogram(
         samples,
         lags=convert.lag_request(document),
@@ -175,6 +182,22 @@ def experimental_variograms():
         )
     pairs = sum(row.pairs for d in result.directions for row in d.classes)
     return with_provenance(serialize.experimental(result, samples), samples.input_hash, samples.size, pairs)
+
+
+def _several_variograms(document: dict, samples: MultiSampleSet) -> Response:
+    """Direct and cross experimental variograms of every variable of the samples."""
+    if "pairs_for_class" in document:
+        raise InvalidInput.at("/pairs_for_class", "h-scattergrams are of one variable: name it with variable")
+    result = several_variograms(
+        samples,
+        lags=convert.lag_request(document),
+        directions=convert.direction_classes(document),
+        statistic=document["statistic"],
+        min_pairs=document["min_pairs"],
+        limits=settings().limits,
+    )
+    body = serialize.several_experimental(result, samples)
+    return with_provenance(body, samples.input_hash, samples.size, result.pairs)
 
 
 @operation(

@@ -1137,6 +1137,41 @@ class ExperimentalResponse(ResultEnvelope):
 
 
 @always_present()
+class VariableVariogramSchema(Schema):
+    """The direct experimental variogram of one variable."""
+
+    name = fields.String()
+    unit = fields.String(allow_none=True)
+    directions = fields.List(fields.Nested(DirectionResultSchema))
+    summary = fields.Nested(SummarySchema, metadata={"description": "The samples where the variable was measured."})
+
+
+@always_present()
+class CrossVariogramSchema(Schema):
+    """The cross statistic of a pair of variables (parameters.cross_statistic says which)."""
+
+    variables = fields.List(
+        fields.String(),
+        metadata={"description": "[a, b]: a is the tail variable of covariance-type statistics."},
+    )
+    directions = fields.List(fields.Nested(DirectionResultSchema))
+
+
+@always_present()
+class SeveralExperimentalResponse(ResultEnvelope):
+    """Experimental variograms of several variables (samples.variables) and of every pair of them."""
+
+    variables = fields.List(fields.Nested(VariableVariogramSchema))
+    cross = fields.List(
+        fields.Nested(CrossVariogramSchema),
+        metadata={
+            "description": "Every pair of variables in the given order; empty for statistics without a cross form."
+        },
+    )
+    colocated_pairs = fields.Integer()
+
+
+@always_present()
 class MapResponse(ResultEnvelope):
     hx = fields.List(fields.Float())
     hy = fields.List(fields.Float())

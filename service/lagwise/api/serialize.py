@@ -7,11 +7,13 @@ import math
 from ..core.analysis import FAN_DESCRIPTION
 from ..core.data.raster import Raster
 from ..core.data.samples import SampleSet
+from ..core.data.variables import MultiSampleSet
 from ..core.kriging.exceedance import reading
 from ..core.kriging.transformed import units_warning
 from ..core.selection import RULE as SELECTION_RULE
 from ..core.variography.experimental import ExperimentalVariogram
 from ..core.variography.maps import VariogramMap
+from ..core.variography.several import CROSS_MEANING, SeveralVariograms
 
 ANGLES = "degrees; azimuth clockwise from north (+y), folded into [0, 180); dip below horizontal"
 CLASSES = "half-open [lower, upper); divisors N"
@@ -33,7 +35,7 @@ def raster_parameters(raster: Raster) -> dict:
     }
 
 
-def sample_parameters(samples: SampleSet | Raster) -> dict:
+def sample_parameters(samples: SampleSet | MultiSampleSet | Raster) -> dict:
     """Resolved sample handling for the audit trail."""
     if isinstance(samples, Raster):
         return raster_parameters(samples)
@@ -91,6 +93,42 @@ def experimental(result: ExperimentalVariogram, samples: SampleSet | Raster) -> 
             "head": s.head,
         }
     return document
+
+
+def several_experimental(result: SeveralVariograms, samples: MultiSampleSet) -> dict:
+    """Response body of ``POST /v1/experimental-variograms`` for several variables (without provenance)."""
+    dimension = samples.dimension
+
+    def directions(results) -> list[dict]:
+        return [{**d.direction.as_dict(dimension), "classes": [_class_row(row) for row in d.classes]} for d in results]
+
+    first = result.variables[0].result
+    return {
+        "variables": [
+            {
+                "name": v.name,
+                "unit": v.unit,
+                "directions": directions(v.result.directions),
+                "summary": v.result.summary.as_dict(),
+            }
+            for v in result.variables
+        ],
+        "cross": [{"variables": list(c.names), "directions": directions(c.directions)} for c in result.cross],
+        "colocated_pairs": result.colocated_pairs,
+        "parameters": {
+            **sample_parameters(samples),
+            "variables": list(samples.names),
+            "statistic": result.statistic,
+            "cross_statistic": CROSS_MEANING.get(result.statistic),
+            "min_pairs": result.min_pairs,
+            "lags": lag_parameters(first),
+            "directions": [d.direction.as_dict(dimension) for d in first.directions],
+            "angle_convention": ANGLES,
+            "class_convention": CLASSES,
+            "class_uncertainty": {"method": None, "blocks": None},
+        },
+        "warnings": list(result.warnings),
+    }
 
 
 def uncertainty_parameters(result: ExperimentalVariogram) -> dict:

@@ -10,10 +10,13 @@ from __future__ import annotations
 import numpy as np
 
 from .data.samples import build_sample_set
+from .data.variables import VariableInput, build_multi_sample_set
+from .limits import Limits
 from .variography.directions import DirectionClass
 from .variography.experimental import ScatterRequest, experimental_variogram
 from .variography.lags import LagRequest
 from .variography.maps import variogram_map
+from .variography.several import several_variograms
 from .variography.statistics import STATISTICS
 
 _warm = False
@@ -40,7 +43,18 @@ def warm_kernels() -> None:
     # The grid method's compiled passes (binning, hull throw-away on 3,001 points).
     many = build_sample_set(np.ones(3001), np.arange(3001.0) % 61, np.arange(3001.0) // 61)
     experimental_variogram(many, lags=LagRequest(width=5.0, count=3), method="grid")
+    several = _tiny_variables(samples)
+    for statistic in ("semivariance", "covariance", "madogram"):
+        several_variograms(several, statistic=statistic)
+    several_variograms(several, limits=Limits(memory_budget_bytes=1))
     _warm = True
+
+
+def _tiny_variables(samples):
+    """Two variables on the tiny set, the second measured at every other sample."""
+    x, y = samples.coords[:, 0], samples.coords[:, 1]
+    other = np.where(np.arange(samples.size) % 2 == 0, samples.values, np.nan)
+    return build_multi_sample_set([VariableInput("a", samples.values), VariableInput("b", other)], x, y)
 
 
 def compile_kernels() -> None:

@@ -488,3 +488,331 @@ def accumulate_blocks(
                         if bj != bi:
                             add_pair(table[bj], b, d, tail, head, mode, mean)
     return totals.sum(axis=0), tables.sum(axis=0)
+
+
+# ---- several variables in one pass ---------------------------------------------------
+#
+# Values arrive as an (n, p) table centred per variable, 0 where not measured, with an
+# (n, p) 0/1 table of what was measured. Sums are kept per bin in "slots":
+#   MODE_SQUARE with cross sums: slot s of the upper triangle a <= b (row-major), columns
+#     MULTI_COUNT, MULTI_DISTANCE, MULTI_SQUARE over pairs where a and b are both measured
+#     at both ends; the square column sums (a_h - a_t)(b_h - b_t) (a == b: the direct sums);
+#   MODE_COVARIANCE with cross sums: slot a * p + b of the full matrix, over pairs with a
+#     measured at the tail and b at the head, columns MULTI_COUNT, MULTI_DISTANCE, and
+#     (tail a, head b, tail a^2, head b^2, tail a x head b) in MULTI_TAIL .. MULTI_PRODUCT;
+#   without cross sums (and for MODE_ABSOLUTE, MODE_RELATIVE): slot a, the direct sums in
+#     the columns of the single-variable layout (COUNT .. RELATIVE).
+
+MULTI_COUNT, MULTI_DISTANCE, MULTI_SQUARE = 0, 1, 2
+MULTI_TAIL, MULTI_HEAD, MULTI_TAIL2, MULTI_HEAD2, MULTI_PRODUCT = 2, 3, 4, 5, 6
+
+
+@njit(cache=True, inline="always")
+def _add_square_cross(table, b, d, diff, both, p):
+    """Add one pair's masked differences to the triangular slots of bin b."""
+    s = 0
+    for a in range(p):
+        wa = both[a]
+        if wa == 0.0:
+            s += p - a
+            continue
+        da = diff[a]
+        for c in range(a, p):
+            w = wa * both[c]
+            table[b, MULTI_COUNT, s] += w
+            table[b, MULTI_DISTANCE, s] += d * w
+            table[b, MULTI_SQUARE, s] += da * diff[c]
+            s += 1
+
+
+@njit(cache=True, inline="always")
+def _add_covariance_cross(table, b, d, vt, vh, mt, mh, p):
+    """Add one oriented pair (tail row vt, head row vh, their masks) to the full slots of bin b."""
+    for a in range(p):
+        if mt[a] == 0.0:
+            continue
+        ta = vt[a]
+        base = a * p
+        for c in range(p):
+            w = mh[c]
+            hc = vh[c]
+            table[b, MULTI_COUNT, base + c] += w
+            table[b, MULTI_DISTANCE, base + c] += d * w
+            table[b, MULTI_TAIL, base + c] += ta * w
+            table[b, MULTI_HEAD, base + c] += hc
+            table[b, MULTI_TAIL2, base + c] += ta * ta * w
+            table[b, MULTI_HEAD2, base + c] += hc * hc
+            table[b, MULTI_PRODUCT, base + c] += ta * hc
+
+
+@njit(cache=True, inline="always")
+def _add_direct(table, b, d, vt, vh, mt, mh, p, mode, means):
+    """Add one oriented pair to the per-variable slots of bin b (single-variable columns)."""
+    for a in range(p):
+        if mt[a] * mh[a] == 0.0:
+            continue
+        tail = vt[a]
+        head = vh[a]
+        table[b, COUNT, a] += 1.0
+        table[b, DISTANCE, a] += d
+        diff = head - tail
+        table[b, SQUARE, a] += diff * diff
+        if mode == MODE_ABSOLUTE:
+            m = abs(diff)
+            table[b, ROOT, a] += math.sqrt(m)
+            table[b, ABSOLUTE, a] += m
+        elif mode == MODE_COVARIANCE:
+            table[b, TAIL, a] += tail
+            table[b, HEAD, a] += head
+            table[b, TAIL2, a] += tail * tail
+            table[b, HEAD2, a] += head * head
+            table[b, PRODUCT, a] += tail * head
+        elif mode == MODE_RELATIVE:
+            r = diff / (0.5 * (tail + head) + means[a])
+            table[b, RELATIVE, a] += r * r
+
+
+@njit(parallel=True, cache=True)
+def accumulate_variables(
+    pts, vals, measured, means, max_d2, dirs, edges, nk, inv_width, mode, cross, nthreads, first, last
+):
+    """Accumulate every pair within sqrt(max_d2) whose first sample is in rows [first, last)
+    into (direction, class) bins for all variables (and, with ``cross``, all pairs of variables) at once.
+
+    ``vals`` (n, p) holds values centred per variable and 0 where not measured; ``measured``
+    (n, p) is 1.0 where measured, else 0.0; ``means`` (p,) the centring means. The slot
+    layout and columns per ``mode`` and ``cross`` are described above. Returns the table of
+    shape (ndir * kmax, columns, slots) and the number of co-located (zero-distance) pairs.
+    """
+    n = pts.shape[0]
+    p = vals.shape[1]
+    ndir = dirs.shape[0]
+    kmax = edges.shape[1] - 1
+    if cross and mode == MODE_SQUARE:
+        columns, slots = 3, p * (p + 1) // 2
+    elif cross and mode == MODE_COVARIANCE:
+        columns, slots = 7, p * p
+    else:
+        columns, slots = ACCUMULATORS, p
+    tables = np.zeros((nthreads, ndir * kmax, columns, slots))
+    colocated = np.zeros(nthreads, dtype=np.int64)
+    nblocks = (last - first + ROW_BLOCK - 1) // ROW_BLOCK
+    for t in prange(nthreads):
+        table = tables[t]
+        zero_pairs = 0
+        diff = np.empty(p)
+        both = np.empty(p)
+        for blk in range(t, nblocks, nthreads):
+            for i in range(first + blk * ROW_BLOCK, min(last, first + (blk + 1) * ROW_BLOCK)):
+                xi = pts[i, 0]
+                yi = pts[i, 1]
+                zi = pts[i, 2]
+                vi = vals[i]
+                mi = measured[i]
+                for j in range(i + 1, n):
+                    dx = pts[j, 0] - xi
+                    if dx * dx > max_d2:
+                        break
+                    dy = pts[j, 1] - yi
+                    dz = pts[j, 2] - zi
+                    d2 = dx * dx + dy * dy + dz * dz
+                    if d2 > max_d2:
+                        continue
+                    if d2 == 0.0:
+                        zero_pairs += 1
+                        continue
+                    d = math.sqrt(d2)
+                    vj = vals[j]
+                    mj = measured[j]
+                    prepared = False
+                    for k in range(ndir):
+                        c, sign = classify(dx, dy, dz, d, dirs, k, edges, nk, inv_width)
+                        if c < 0:
+                            continue
+                        b = k * kmax + c
+                        if cross and mode == MODE_SQUARE:
+                            # Orientation does not matter: (-da)(-db) = da db.
+                            if not prepared:
+                                for a in range(p):
+                                    both[a] = mi[a] * mj[a]
+                                    diff[a] = (vj[a] - vi[a]) * both[a]
+                                prepared = True
+                            _add_square_cross(table, b, d, diff, both, p)
+                        elif cross and mode == MODE_COVARIANCE:
+                            if sign > 0:
+                                _add_covariance_cross(table, b, d, vi, vj, mi, mj, p)
+                            else:
+                                _add_covariance_cross(table, b, d, vj, vi, mj, mi, p)
+                        elif sign > 0:
+                            _add_direct(table, b, d, vi, vj, mi, mj, p, mode, means)
+                        else:
+                            _add_direct(table, b, d, vj, vi, mj, mi, p, mode, means)
+        colocated[t] = zero_pairs
+    return tables.sum(axis=0), colocated.sum()
+
+
+@njit(parallel=True, cache=True)
+def accumulate_square_patterns(
+    pts,
+    vals,
+    pattern,
+    patterns,
+    max_d2,
+    dirs,
+    edges,
+    nk,
+    inv_width,
+    padded,
+    lut,
+    inv_cell,
+    shared,
+    horizontal,
+    nthreads,
+    first,
+    last,
+    head,
+):
+    """Cross sums of squared-difference type for all pairs of variables, with O(p) work per pair.
+
+    For the pairs of a bin whose ends have measurement patterns g (tail row i) and h,
+    sum (v_j - v_i)(v_j - v_i)^T = n v_i v_i^T - v_i R^T - R v_i^T + sum_j v_j v_j^T with
+    R = sum_j v_j; a row keeps R, the count and the distance sum per (bin, partner
+    pattern) and folds them into the (p, p) sums when it is done, masked by the variables
+    both patterns measure. The last term is added later from ``head[bin * G + g, j]``,
+    the number of pairs in which sample j is the later end and the earlier end has
+    pattern g (:func:`add_head_squares`).
+
+    ``vals`` (n, p) is centred per variable and 0 where not measured; ``pattern`` (n,) the
+    index of each sample's row in ``patterns`` (G, p), the distinct 0/1 measurement rows;
+    ``head`` (nthreads, bins * G, n) is filled in place. With ``horizontal`` (no dip or
+    vertical band) classes are looked up as in :func:`accumulate_horizontal`. Returns the (bins, p, p) sums,
+    and the (bins, G, G) pair counts and distance sums per pattern pair, and the
+    co-located pairs.
+    """
+    n = pts.shape[0]
+    p = vals.shape[1]
+    ndir = dirs.shape[0]
+    kmax = edges.shape[1] - 1
+    bins = ndir * kmax
+    g_count = patterns.shape[0]
+    last_cell = lut.shape[1] - 1
+    squares = np.zeros((nthreads, bins, p, p))
+    counts = np.zeros((nthreads, bins, g_count, g_count))
+    distances = np.zeros((nthreads, bins, g_count, g_count))
+    colocated = np.zeros(nthreads, dtype=np.int64)
+    nblocks = (last - first + ROW_BLOCK - 1) // ROW_BLOCK
+    for t in prange(nthreads):
+        sq = squares[t]
+        own_head = head[t]
+        sums = np.zeros((bins * g_count, p))
+        row_count = np.zeros(bins * g_count)
+        row_distance = np.zeros(bins * g_count)
+        touched = np.empty(bins * g_count, dtype=np.int64)
+        mask = np.empty(p)
+        zero_pairs = 0
+        for blk in range(t, nblocks, nthreads):
+            for i in range(first + blk * ROW_BLOCK, min(last, first + (blk + 1) * ROW_BLOCK)):
+                xi = pts[i, 0]
+                yi = pts[i, 1]
+                zi = pts[i, 2]
+                gi = pattern[i]
+                used = 0
+                for j in range(i + 1, n):
+                    dx = pts[j, 0] - xi
+                    if dx * dx > max_d2:
+                        break
+                    dy = pts[j, 1] - yi
+                    dz = pts[j, 2] - zi
+                    d2 = dx * dx + dy * dy + dz * dz
+                    if d2 > max_d2:
+                        continue
+                    if d2 == 0.0:
+                        zero_pairs += 1
+                        continue
+                    d = math.sqrt(d2)
+                    h = pattern[j]
+                    hh2 = dx * dx + dy * dy
+                    m_cell = min(int(d * inv_cell), last_cell)
+                    shared_c = lut[0, m_cell]
+                    shared_c += np.int64(padded[0, shared_c + 2] <= d)
+                    shared_c -= np.int64(padded[0, shared_c + 1] > d)
+                    if not ((shared_c >= 0) & (padded[0, shared_c + 2] < np.inf)):
+                        shared_c = kmax
+                    for k in range(ndir):
+                        if horizontal:
+                            proj = dx * dirs[k, 0] + dy * dirs[k, 1]
+                            perp = dx * dirs[k, 1] - dy * dirs[k, 0]
+                            if (proj * proj < hh2 * dirs[k, 11]) or (perp * perp > dirs[k, 3]):
+                                continue
+                            c = class_in(shared_c, k, shared, lut, padded, m_cell, d, d2, max_d2, kmax)
+                            if c >= nk[k]:
+                                continue
+                        else:
+                            c, _ = classify(dx, dy, dz, d, dirs, k, edges, nk, inv_width)
+                            if c < 0:
+                                continue
+                        b = k * kmax + c
+                        key = b * g_count + h
+                        if row_count[key] == 0.0:
+                            touched[used] = key
+                            used += 1
+                        row_count[key] += 1.0
+                        row_distance[key] += d
+                        for a in range(p):
+                            sums[key, a] += vals[j, a]
+                        own_head[b * g_count + gi, j] += np.float32(1.0)
+                for u in range(used):
+                    key = touched[u]
+                    b = key // g_count
+                    h = key - b * g_count
+                    m = row_count[key]
+                    for a in range(p):
+                        mask[a] = patterns[gi, a] * patterns[h, a]
+                    for a in range(p):
+                        if mask[a] == 0.0:
+                            continue
+                        va = vals[i, a]
+                        ra = sums[key, a]
+                        for c2 in range(p):
+                            if mask[c2] == 0.0:
+                                continue
+                            vc = vals[i, c2]
+                            sq[b, a, c2] += m * va * vc - va * sums[key, c2] - ra * vc
+                    counts[t, b, gi, h] += m
+                    distances[t, b, gi, h] += row_distance[key]
+                    row_count[key] = 0.0
+                    row_distance[key] = 0.0
+                    for a in range(p):
+                        sums[key, a] = 0.0
+        colocated[t] = zero_pairs
+    return squares.sum(axis=0), counts.sum(axis=0), distances.sum(axis=0), colocated.sum()
+
+
+@njit(parallel=True, cache=True)
+def add_head_squares(squares, vals, pattern, patterns, head):
+    """Add sum_j v_j v_j^T over the pairs in which sample j is the later end (see
+    :func:`accumulate_square_patterns`), masked by the variables both ends measure.
+
+    ``head`` (bins * G, n) holds, per bin and sample, the pairs by the earlier end's pattern.
+    """
+    n = vals.shape[0]
+    p = vals.shape[1]
+    bins = squares.shape[0]
+    g_count = patterns.shape[0]
+    for b in prange(bins):
+        mask = np.empty(p)
+        for j in range(n):
+            gj = pattern[j]
+            for g in range(g_count):
+                m = head[b * g_count + g, j]
+                if m == 0.0:
+                    continue
+                for a in range(p):
+                    mask[a] = patterns[g, a] * patterns[gj, a]
+                for a in range(p):
+                    if mask[a] == 0.0:
+                        continue
+                    wa = m * vals[j, a]
+                    for c in range(p):
+                        if mask[c] != 0.0:
+                            squares[b, a, c] += wa * vals[j, c]

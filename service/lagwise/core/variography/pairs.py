@@ -330,3 +330,152 @@ def estimate_pairs_within(coords: np.ndarray, radius: float, seed: int = 0) -> i
     subset = np.random.default_rng(seed).choice(n, ESTIMATE_SUBSET, replace=False)
     share = float(np.mean(pdist(coords[subset]) < radius))
     return int(round(share * n * (n - 1) / 2))
+
+
+@dataclass(frozen=True)
+class PreparedVariables:
+    """Several variables laid out for :func:`lagwise.core.variography.kernels.accumulate_variables`.
+
+    Attributes
+    ----------
+    points : ndarray, shape (n, 3)
+        Coordinates sorted by x, zero-padded to three axes.
+    values : ndarray, shape (n, p)
+        Values in the same order, centred per variable on ``means``, 0 where not measured.
+    measured : ndarray, shape (n, p)
+        1.0 where the variable was measured, else 0.0.
+    means : ndarray, shape (p,)
+        Mean of each variable over its measured samples (subtracted).
+    scales : ndarray, shape (p,)
+        Largest absolute measured value of each variable (for rounding-noise thresholds).
+    order : ndarray, shape (n,)
+        Input index of each sorted sample.
+    """
+
+    points: np.ndarray
+    values: np.ndarray
+    measured: np.ndarray
+    means: np.ndarray
+    scales: np.ndarray
+    order: np.ndarray
+
+
+def prepare_variables(coords: np.ndarray, table: np.ndarray) -> PreparedVariables:
+    """Sort by x, pad to 3-D, centre each column on its measured mean and zero the missing entries.
+
+    ``table`` is (n, p) with NaN where a variable was not measured.
+    """
+    order = np.argsort(coords[:, 0], kind="stable")
+    points = np.zeros((coords.shape[0], 3))
+    points[:, : coords.shape[1]] = coords[order]
+    sorted_table = table[order]
+    measured = ~np.isnan(sorted_table)
+    means = np.array([float(np.mean(col[m])) for col, m in zip(sorted_table.T, measured.T, strict=True)])
+    scales = np.array([float(np.max(np.abs(col[m]))) for col, m in zip(sorted_table.T, measured.T, strict=True)])
+    return PreparedVariables(
+        points=np.ascontiguousarray(points),
+        values=np.ascontiguousarray(np.where(measured, sorted_table - means, 0.0)),
+        measured=np.ascontiguousarray(measured.astype(np.float64)),
+        means=means,
+        scales=scales,
+        order=order,
+    )
+
+
+def accumulate_variables(
+    prepared: PreparedVariables, classes: ClassLayout, mode: int, cross: bool
+) -> tuple[np.ndarray, int]:
+    """Run the several-variable pair kernel over ranges of rows (deadline checked between them).
+
+    Returns the table of shape (ndir, kmax, columns, slots) (see
+    :func:`lagwise.core.variography.kernels.accumulate_variables`) and the co-located pairs.
+    """
+    radius = classes.search_radius
+    parts: list[np.ndarray] = []
+    colocated = [0]
+
+    def run(first: int, last: int) -> None:
+        table, zero = K.accumulate_variables(
+            prepared.points,
+            prepared.values,
+            prepared.measured,
+            prepared.means,
+            radius * radius,
+            classes.table,
+            classes.edges,
+            classes.counts,
+            classes.inv_width,
+            mode,
+            cross,
+            numba.get_num_threads(),
+            first,
+            last,
+        )
+        parts.append(table)
+        colocated[0] += int(zero)
+
+    in_chunks(sweep_visits(prepared.points[:, 0], radius), run)
+    total = np.sum(parts, axis=0)
+    ndir = classes.table.shape[0]
+    return total.reshape(ndir, classes.kmax, total.shape[1], total.shape[2]), colocated[0]
+
+
+def measurement_patterns(measured: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """The distinct 0/1 measurement rows (G, p) and each sample's row index (n,)."""
+    patterns, index = np.unique(measured, axis=0, return_inverse=True)
+    return np.ascontiguousarray(patterns), np.ascontiguousarray(index.reshape(-1).astype(np.int64))
+
+
+def accumulate_squares(
+    prepared: PreparedVariables, classes: ClassLayout
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, int]:
+    """Squared-difference sums of every pair of variables in one pass over the pairs.
+
+    Returns (squares (ndir, kmax, p, p), counts (ndir, kmax, p, p), distances (ndir, kmax, p, p),
+    co-located pairs): entry (a, b) sums (a_j - a_i)(b_j - b_i), the pairs and their
+    distances over the pairs where a and b are both measured at both ends.
+    """
+    patterns, index = measurement_patterns(prepared.measured)
+    radius = classes.search_radius
+    ndir, kmax = classes.table.shape[0], classes.kmax
+    bins, g_count, p = ndir * kmax, patterns.shape[0], prepared.values.shape[1]
+    threads = numba.get_num_threads()
+    head = np.zeros((threads, bins * g_count, prepared.points.shape[0]), dtype=np.float32)
+    squares = np.zeros((bins, p, p))
+    by_pattern = np.zeros((2, bins, g_count, g_count))
+    colocated = [0]
+
+    def run(first: int, last: int) -> None:
+        sq, counts, distances, zero = K.accumulate_square_patterns(
+            prepared.points,
+            prepared.values,
+            index,
+            patterns,
+            radius * radius,
+            classes.table,
+            classes.edges,
+            classes.counts,
+            classes.inv_width,
+            classes.padded,
+            classes.lookup,
+            classes.inv_cell,
+            classes.shared,
+            classes.horizontal,
+            threads,
+            first,
+            last,
+            head,
+        )
+        squares[:] += sq
+        by_pattern[0] += counts
+        by_pattern[1] += distances
+        colocated[0] += int(zero)
+
+    in_chunks(sweep_visits(prepared.points[:, 0], radius), run)
+    K.add_head_squares(squares, prepared.values, index, patterns, head.sum(axis=0))
+    # Pairs of variables (a, b) count the pattern pairs that measure both at both ends.
+    both = patterns[:, :, None] * patterns[:, None, :]  # (G, p, p)
+    counts = np.einsum("kgh,gab,hab->kab", by_pattern[0], both, both)
+    distances = np.einsum("kgh,gab,hab->kab", by_pattern[1], both, both)
+    shape = (ndir, kmax, p, p)
+    return squares.reshape(shape), counts.reshape(shape), distances.reshape(shape), colocated[0]

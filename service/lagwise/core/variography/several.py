@@ -1,0 +1,433 @@
+"""Experimental variograms of several variables and of every pair of them, in one pass over the pairs.
+
+Conventions
+-----------
+* Direct statistics of each variable are those of one variable
+  (:mod:`lagwise.core.variography.statistics`), over the pairs where the variable is
+  measured at both ends; they equal a single-variable request on the samples where it
+  was measured (same classes; class standard errors are not computed here).
+* Cross statistics of the pair of variables (a, b), over the pairs where what they need
+  is measured (N such pairs in the class; tail and head as for one variable):
+
+  ``semivariance``            (1/2N) sum (a_head - a_tail)(b_head - b_tail), a and b
+                              measured at both ends (the cross-semivariance; Matheron 1965,
+                              Journel & Huijbregts 1978, Mining Geostatistics, ch. II)
+  ``covariance``              (1/N) sum a_tail b_head - m_a,tail m_b,head, a measured at
+                              the tail and b at the head (the cross-covariance C_ab(h))
+  ``covariance_noncentered``  (1/N) sum a_tail b_head
+  ``correlogram``             the cross-covariance / (s_a,tail s_b,head)
+
+  The cross-semivariance is symmetric in a and b; the cross-covariance is not
+  (C_ab(h) = C_ba(-h)). The other statistics have no cross form: with them only the
+  direct variograms are returned (a warning says so).
+* Distance classes are resolved on all sample locations (for ``auto``, the extent,
+  spacing and pair counts of every location), so every variable and pair shares them.
+* One pass: semivariances of every variable and pair come from one sweep whose work
+  per pair grows with the number of variables p, not p squared (see
+  :func:`lagwise.core.variography.kernels.accumulate_square_patterns`); the
+  covariance-type statistics add their p x p sums per pair in one sweep; the median
+  estimator keeps each variable's differences and runs one pass per variable.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+import numba
+import numpy as np
+
+from ..data.declustering import decluster
+from ..data.samples import DuplicateReport, SampleSet
+from ..data.summary import summarise
+from ..data.variables import MultiSampleSet, escape_token
+from ..deadline import check_deadline
+from ..errors import FieldIssue, InvalidInput
+from ..limits import Limits
+from . import kernels as K
+from .directions import DirectionClass
+from .experimental import (
+    DEFAULT_MIN_PAIRS,
+    ClassRow,
+    DirectionResult,
+    ExperimentalVariogram,
+    _class_medians,
+    _class_warnings,
+    _resolve_edges,
+    _rows,
+    pair_passes,
+    validate_options,
+)
+from .lags import LagRequest
+from .pairs import (
+    PreparedSamples,
+    accumulate_squares,
+    accumulate_variables,
+    estimate_pairs_within,
+    layout,
+    measurement_patterns,
+    prepare,
+    prepare_variables,
+    sweep_visits,
+)
+from .statistics import ACCUMULATION_MODE, CONSTANT_ENDS, COVARIANCE_TYPE, NO_PAIRS
+from .uncertainty import ClassUncertainty
+
+CROSS_MEANING = {
+    "semivariance": "(1/2N) sum (a_head - a_tail)(b_head - b_tail), pairs with a and b measured at both ends",
+    "covariance": "(1/N) sum a_tail b_head - m_a,tail m_b,head, pairs with a at the tail and b at the head",
+    "covariance_noncentered": "(1/N) sum a_tail b_head, pairs with a at the tail and b at the head",
+    "correlogram": "cross-covariance / (s_a,tail s_b,head), pairs with a at the tail and b at the head",
+}
+CROSS_STATISTICS = tuple(CROSS_MEANING)
+NOT_COMPUTED = "class standard errors are computed for one variable per request; send one variable for them"
+# Work per pair of the several-variable kernels relative to the single-variable kernel,
+# measured on the variables benchmark (bench/variables.py): each variable adds about a
+# twelfth with the semivariance, each p x p entry about a twelfth with covariances.
+WORK_PER_ADDED_SUM = 1.0 / 12.0
+HEAD_BUDGET_SHARE = 0.5
+
+
+@dataclass(frozen=True)
+class VariableVariogram:
+    """The direct experimental variogram of one variable.
+
+    Attributes
+    ----------
+    name, unit : str, str or None
+    result : ExperimentalVariogram
+        Its classes per direction and its summary (the samples where it was measured).
+    """
+
+    name: str
+    unit: str | None
+    result: ExperimentalVariogram
+
+
+@dataclass(frozen=True)
+class CrossVariogram:
+    """The cross statistic of a pair of variables per direction.
+
+    Attributes
+    ----------
+    names : tuple of str
+        (a, b): a is the tail variable of covariance-type statistics.
+    directions : tuple of DirectionResult
+    """
+
+    names: tuple[str, str]
+    directions: tuple[DirectionResult, ...]
+
+
+@dataclass(frozen=True)
+class SeveralVariograms:
+    """Result of :func:`several_variograms`.
+
+    Attributes
+    ----------
+    variables : tuple of VariableVariogram
+        In the samples' order.
+    cross : tuple of CrossVariogram
+        Every pair (a, b) with a before b in the samples' order; empty for statistics
+        without a cross form.
+    statistic : str
+    min_pairs : int
+    lag_method : str
+    colocated_pairs : int
+        Zero-distance pairs of locations.
+    spacing : float or None
+        Typical spacing of all locations (``equal_width`` classes), else None.
+    warnings : tuple of str
+    """
+
+    variables: tuple[VariableVariogram, ...]
+    cross: tuple[CrossVariogram, ...]
+    statistic: str
+    min_pairs: int
+    lag_method: str
+    colocated_pairs: int
+    spacing: float | None = None
+    warnings: tuple[str, ...] = field(default=())
+
+    @property
+    def pairs(self) -> int:
+        """Pairs counted over every direct class (for the work metrics)."""
+        return sum(row.pairs for v in self.variables for d in v.result.directions for row in d.classes)
+
+
+def _locations(samples: MultiSampleSet) -> SampleSet:
+    """Every location with a placeholder value 1 (for class resolution, which reads coordinates only)."""
+    return SampleSet(
+        coords=samples.coords,
+        values=np.ones(samples.size),
+        ids=samples.ids,
+        source_index=samples.source_index,
+        coordinates=samples.coordinates,
+        input_hash=samples.input_hash,
+        duplicates=DuplicateReport(samples.duplicates.policy, 0, 0),
+        projection=samples.projection,
+    )
+
+
+def _check_positive(samples: MultiSampleSet) -> None:
+    issues = []
+    for k, name in enumerate(samples.names):
+        column = samples.values[:, k]
+        for i in np.flatnonzero(column <= 0)[:20]:
+            pointer = f"/samples/variables/{escape_token(name)}/{samples.source_index[i]}"
+            issues.append(FieldIssue(pointer, "pairwise_relative needs positive values"))
+    if issues:
+        raise InvalidInput(issues[:20])
+
+
+def work_per_pair(statistic: str, variables: int) -> float:
+    """Cost of one pair relative to one variable's kernel (the pair limit's weight)."""
+    if statistic in COVARIANCE_TYPE:
+        return 1.0 + 7.0 * variables * variables * WORK_PER_ADDED_SUM
+    if statistic == "semivariance_median":
+        return float(variables)
+    return 1.0 + variables * WORK_PER_ADDED_SUM
+
+
+def _uncertain(count: int) -> list[ClassUncertainty]:
+    return [ClassUncertainty(None, None, NOT_COMPUTED)] * count
+
+
+def _direct(statistic, table, edges, min_pairs, means, scales, names, medians):
+    """Direct rows per variable: ``table`` (ndir, kmax, ACCUMULATORS, p) in single-variable columns."""
+    out = []
+    for a in range(len(names)):
+        prepared = PreparedSamples(np.empty((0, 3)), np.empty(0), float(means[a]), float(scales[a]), np.empty(0))
+        out.append(
+            tuple(
+                _rows(statistic, table[k, :, :, a], e, medians[a][k], min_pairs, prepared, _uncertain(len(e) - 1))
+                for k, e in enumerate(edges)
+            )
+        )
+    return out
+
+
+def _square_tables(prepared, classes) -> tuple[np.ndarray, np.ndarray, int]:
+    """Single-variable columns (ndir, kmax, ACCUMULATORS, p, p) of the semivariance sums of every pair."""
+    squares, counts, distances, colocated = accumulate_squares(prepared, classes)
+    ndir, kmax, p, _ = squares.shape
+    table = np.zeros((ndir, kmax, K.ACCUMULATORS, p, p))
+    table[:, :, K.COUNT] = counts
+    table[:, :, K.DISTANCE] = distances
+    table[:, :, K.SQUARE] = squares
+    return table, counts, colocated
+
+
+def _covariance_tables(prepared, classes) -> tuple[np.ndarray, int]:
+    """Single-variable columns (ndir, kmax, ACCUMULATORS, p, p) of the covariance sums (a tail, b head)."""
+    raw, colocated = accumulate_variables(prepared, classes, K.MODE_COVARIANCE, True)
+    ndir, kmax, _, slots = raw.shape
+    p = prepared.values.shape[1]
+    table = np.zeros((ndir, kmax, K.ACCUMULATORS, p, p))
+    for column, source in (
+        (K.COUNT, K.MULTI_COUNT),
+        (K.DISTANCE, K.MULTI_DISTANCE),
+        (K.TAIL, K.MULTI_TAIL),
+        (K.HEAD, K.MULTI_HEAD),
+        (K.TAIL2, K.MULTI_TAIL2),
+        (K.HEAD2, K.MULTI_HEAD2),
+        (K.PRODUCT, K.MULTI_PRODUCT),
+    ):
+        table[:, :, column] = raw[:, :, source].reshape(ndir, kmax, p, p)
+    return table, colocated
+
+
+def _cross_value(statistic, row, mean_a, mean_b, scale):
+    """(value, reason, moments) of a cross statistic from one accumulator row (see the module conventions)."""
+    n = row[K.COUNT]
+    if n == 0:
+        return None, NO_PAIRS, {}
+    if statistic == "semivariance":
+        return row[K.SQUARE] / (2.0 * n), None, {}
+    tail_c, head_c = row[K.TAIL] / n, row[K.HEAD] / n
+    tail_sd = math.sqrt(max(row[K.TAIL2] / n - tail_c**2, 0.0))
+    head_sd = math.sqrt(max(row[K.HEAD2] / n - head_c**2, 0.0))
+    moments = dict(tail_mean=tail_c + mean_a, head_mean=head_c + mean_b, tail_sd=tail_sd, head_sd=head_sd)
+    centred = row[K.PRODUCT] / n - tail_c * head_c
+    if statistic == "covariance":
+        return centred, None, moments
+    if statistic == "covariance_noncentered":
+        # sum (t + m_a)(h + m_b) / N with t, h centred on their variables' means.
+        return (row[K.PRODUCT] + mean_b * row[K.TAIL] + mean_a * row[K.HEAD]) / n + mean_a * mean_b, None, moments
+    noise = 1e-10 * max(scale, 1e-300)
+    if tail_sd <= noise or head_sd <= noise:
+        return None, CONSTANT_ENDS, moments
+    return centred / (tail_sd * head_sd), None, moments
+
+
+def _cross_rows(statistic, table, edges, min_pairs, mean_a, mean_b, scale) -> tuple[ClassRow, ...]:
+    rows = []
+    for c in range(len(edges) - 1):
+        row = table[c]
+        n = int(row[K.COUNT])
+        value, reason, moments = _cross_value(statistic, row, mean_a, mean_b, scale)
+        rows.append(
+            ClassRow(
+                lower=float(edges[c]),
+                upper=float(edges[c + 1]),
+                mean_distance=float(row[K.DISTANCE] / n) if n else None,
+                pairs=n,
+                value=value,
+                reason=reason,
+                sparse=n < min_pairs,
+                uncertainty_reason=NOT_COMPUTED if value is not None else reason,
+                **moments,
+            )
+        )
+    return tuple(rows)
+
+
+def _triangle_table(raw: np.ndarray, p: int) -> np.ndarray:
+    """Single-variable columns (ndir, kmax, ACCUMULATORS, p, p) from the triangular slots of the direct kernel."""
+    ndir, kmax = raw.shape[:2]
+    table = np.zeros((ndir, kmax, K.ACCUMULATORS, p, p))
+    s = 0
+    for a in range(p):
+        for b in range(a, p):
+            for column, source in (
+                (K.COUNT, K.MULTI_COUNT),
+                (K.DISTANCE, K.MULTI_DISTANCE),
+                (K.SQUARE, K.MULTI_SQUARE),
+            ):
+                table[:, :, column, a, b] = raw[:, :, source, s]
+                table[:, :, column, b, a] = raw[:, :, source, s]
+            s += 1
+    return table
+
+
+def _semivariance_table(prepared, classes, limits: Limits) -> tuple[np.ndarray, int]:
+    """Semivariance sums of every pair of variables: the O(p)-per-pair kernel when its per-sample
+    counts fit half the memory budget, else the kernel that adds the p x p sums per pair."""
+    patterns, _ = measurement_patterns(prepared.measured)
+    bins = classes.table.shape[0] * classes.kmax
+    head_bytes = 4 * patterns.shape[0] * bins * prepared.points.shape[0] * numba.get_num_threads()
+    if head_bytes > HEAD_BUDGET_SHARE * limits.memory_budget_bytes:
+        raw, colocated = accumulate_variables(prepared, classes, K.MODE_SQUARE, True)
+        return _triangle_table(raw, prepared.values.shape[1]), colocated
+    table, _, colocated = _square_tables(prepared, classes)
+    return table, colocated
+
+
+def several_variograms(
+    samples: MultiSampleSet,
+    *,
+    lags: LagRequest = LagRequest(),
+    directions: list[DirectionClass] | None = None,
+    statistic: str = "semivariance",
+    min_pairs: int = DEFAULT_MIN_PAIRS,
+    limits: Limits = Limits(),
+) -> SeveralVariograms:
+    """Direct experimental variograms of every variable and cross statistics of every pair of them.
+
+    Parameters
+    ----------
+    samples : MultiSampleSet
+        Validated samples carrying several variables.
+    lags, directions, statistic, min_pairs, limits
+        As for :func:`lagwise.core.variography.experimental.experimental_variogram`; the
+        pair limit weighs each pair by :func:`work_per_pair`.
+
+    Raises
+    ------
+    InvalidInput, LimitExceeded
+    """
+    limits.check_samples(samples.size)
+    if statistic == "pairwise_relative":
+        _check_positive(samples)
+    locations = _locations(samples)
+    resolved, warnings = validate_options(locations, statistic, min_pairs, directions)
+    placement = summarise(locations.coords, locations.values, decluster(locations.coords, np.zeros(samples.size)))
+    located = prepare(locations.coords, np.zeros(samples.size))
+    passes = pair_passes(lags, statistic, False)
+    edges, spacing = _resolve_edges(locations, placement, located, lags, resolved, min_pairs, limits, passes)
+    classes = layout(resolved, edges)
+    radius = classes.search_radius
+    visited = int(sweep_visits(located.points[:, 0], radius).sum())
+    pairs = estimate_pairs_within(locations.coords, radius)
+    limits.check_pairs(
+        int(math.ceil(pairs * work_per_pair(statistic, samples.count))), len(resolved), visited=visited, passes=passes
+    )
+    prepared = prepare_variables(samples.coords, samples.values)
+    if statistic == "semivariance":
+        table, colocated = _semivariance_table(prepared, classes, limits)
+    elif statistic in COVARIANCE_TYPE:
+        table, colocated = _covariance_tables(prepared, classes)
+    else:
+        raw, colocated = accumulate_variables(prepared, classes, ACCUMULATION_MODE[statistic], False)
+        table = np.zeros(raw.shape + (samples.count,))
+        for a in range(samples.count):
+            table[..., a, a] = raw[..., a]
+    check_deadline()
+    p = samples.count
+    diagonal = np.stack([table[..., a, a] for a in range(p)], axis=-1)  # (ndir, kmax, ACCUMULATORS, p)
+    medians = [np.full((len(resolved), classes.kmax), np.nan)] * p
+    if statistic == "semivariance_median":
+        medians = []
+        for name in samples.names:
+            single = samples.variable(name)
+            one = prepare(single.coords, single.values)
+            counts = diagonal[:, :, K.COUNT, len(medians)]
+            medians.append(_class_medians(statistic, one, classes, counts, limits))
+    direct = _direct(statistic, diagonal, edges, min_pairs, prepared.means, prepared.scales, samples.names, medians)
+    variables = []
+    for a, name in enumerate(samples.names):
+        single = samples.variable(name)
+        summary = summarise(single.coords, single.values, decluster(single.coords, single.values))
+        results = tuple(DirectionResult(d, direct[a][k]) for k, d in enumerate(resolved))
+        notes = [f"variable {name!r}: {w}" for w in _class_warnings(results, min_pairs, summary)]
+        warnings.extend(notes)
+        variables.append(
+            VariableVariogram(
+                name,
+                samples.units[a],
+                ExperimentalVariogram(
+                    directions=results,
+                    summary=summary,
+                    statistic=statistic,
+                    min_pairs=min_pairs,
+                    lag_method=lags.method,
+                    colocated_pairs=colocated,
+                    scattergram=None,
+                    spacing=spacing,
+                    warnings=tuple(notes),
+                ),
+            )
+        )
+    cross = []
+    if statistic in CROSS_STATISTICS:
+        for a in range(p):
+            for b in range(a + 1, p):
+                scale = float(max(prepared.scales[a], prepared.scales[b]))
+                rows = tuple(
+                    DirectionResult(
+                        d,
+                        _cross_rows(
+                            statistic,
+                            table[k, :, :, a, b],
+                            edges[k],
+                            min_pairs,
+                            prepared.means[a],
+                            prepared.means[b],
+                            scale,
+                        ),
+                    )
+                    for k, d in enumerate(resolved)
+                )
+                cross.append(CrossVariogram((samples.names[a], samples.names[b]), rows))
+    elif p > 1:
+        warnings.append(f"{statistic} has no cross form; only the direct variograms are returned")
+    return SeveralVariograms(
+        variables=tuple(variables),
+        cross=tuple(cross),
+        statistic=statistic,
+        min_pairs=min_pairs,
+        lag_method=lags.method,
+        colocated_pairs=colocated,
+        spacing=spacing,
+        warnings=tuple(list(samples.warnings) + warnings),
+    )
