@@ -2,13 +2,16 @@
 
 from __future__ import annotations
 
+import time
 import tracemalloc
 
 import numpy as np
 import pytest
 from lagwise.core.data.samples import build_sample_set
+from lagwise.core.deadline import DeadlineExceeded, deadline
 from lagwise.core.errors import LimitExceeded
 from lagwise.core.kriging.cost import (
+    BATCH_ENTRIES,
     ENTRY_OPERATIONS,
     TARGET_OPERATIONS,
     batch_rows,
@@ -92,3 +95,17 @@ def test_unique_matrices_beyond_the_budget_are_refused_up_front():
     assert info.value.limit == "LAGWISE_MEMORY_BUDGET_BYTES" and info.value.pointer == "/neighbourhood"
     with pytest.raises(LimitExceeded):
         predict(_samples(300), MODEL, targets=np.zeros((1, 2)), limits=limits)
+
+
+@pytest.mark.parametrize("hood", [Neighbourhood(max_points=64), Neighbourhood()])
+def test_a_costly_model_stops_soon_after_its_deadline(hood):
+    # Matern (Bessel function per entry) with many samples: the batches between deadline checks hold at
+    # most BATCH_ENTRIES covariance entries, so the work stops within about a second of the deadline.
+    samples = _samples(4000 if hood.unique else 3000)
+    matern = VariogramModel(0.1, (Structure("matern", 1.0, 30.0, 1.5),))
+    limits = Limits(max_kriging_flops=10**14, memory_budget_bytes=2**30, max_unique_samples=5000)
+    start = time.perf_counter()
+    with pytest.raises(DeadlineExceeded), deadline(0.5):
+        cross_validate(samples, matern, neighbourhood=hood, limits=limits)
+    assert time.perf_counter() - start < 0.5 + 2.0
+    assert batch_rows(64, 1, 2, 2**30) * 64 * 64 <= BATCH_ENTRIES

@@ -68,8 +68,10 @@ LIVE_ENV = {
 CHECK_NAMES = "not_a_server_error,status_code_conformance,content_type_conformance,response_schema_conformance,negative_data_rejection"
 
 
-def _run_live(examples: int) -> None:
-    """schemathesis' own runner against real gunicorn on 127.0.0.1 (every operation, all modes)."""
+def _run_live(examples: int, timeout: float = 1800) -> None:
+    """schemathesis' own runner against real gunicorn on 127.0.0.1: every operation, positive and
+    negative data, all four phases (examples, coverage, fuzzing, stateful, whose links schemathesis
+    infers); prints its summary (operations tested, test cases generated, failures)."""
     cli = Path(sys.executable).with_name("schemathesis")
     with running_service(LIVE_ENV) as url:
         out = subprocess.run(
@@ -81,6 +83,8 @@ def _run_live(examples: int) -> None:
                 CHECK_NAMES,
                 "--mode",
                 "all",
+                "--phases",
+                "examples,coverage,fuzzing,stateful",
                 "--max-examples",
                 str(examples),
                 "--seed",
@@ -90,8 +94,10 @@ def _run_live(examples: int) -> None:
             ],
             capture_output=True,
             text=True,
-            timeout=1800,
+            timeout=timeout,
         )
+    summary = out.stdout.find("SUMMARY")
+    print("\n" + out.stdout[max(summary - 40, 0) :] if summary >= 0 else out.stdout[-3000:])
     assert out.returncode == 0, out.stdout[-4000:] + out.stderr[-2000:]
 
 
@@ -101,4 +107,4 @@ def test_live():
 
 @pytest.mark.slow
 def test_live_long():
-    _run_live(300)
+    _run_live(300, timeout=5400)

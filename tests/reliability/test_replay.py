@@ -122,6 +122,18 @@ def test_f2_analysis_with_a_2_million_node_svg_map(watch):
     assert answer.status == 422, answer.document
 
 
+@pytest.mark.parametrize("n", [5_000, 20_000])
+def test_f3_a_whole_analysis_with_figures_stays_within_its_deadline(watch, n):
+    # Strategies compared by cross-validation, a prediction grid and three figures (PNG).
+    document = {
+        "samples": _samples(n, 9),
+        "prediction": {"grid": {"origin": [0, 0], "spacing": [1, 1], "shape": [100, 100]}},
+        "figures": ["variogram", "cross_validation", "prediction_map"],
+        "figure_format": "png",
+    }
+    _checked(watch, f"f3 analysis {n} samples", post_bytes("/v1/analyses", _json(document)), {200, 422, 503})
+
+
 # ---- 3. the sample limit checked after the costly part --------------------------------------------
 
 

@@ -34,6 +34,9 @@ QUERY_WORK_ARRAYS = 6  # (targets, candidates) arrays of the neighbour search: d
 UNIQUE_PREDICTION_COPIES = 2  # the bordered matrix and its LU factor
 UNIQUE_LOO_COPIES = 5  # the kriger's LU factor, the matrix, its Cholesky factor, triangular copy and inverse
 ENTRY_OPERATIONS = 1000  # one covariance entry (separations, norm, model formula), in multiply-add equivalents
+# Covariance entries built between two deadline checks: about 0.5 s with the costliest families (Matern's
+# Bessel function takes about 1 us per entry), so a request past its deadline stops soon after it.
+BATCH_ENTRIES = 500_000
 TARGET_OPERATIONS = 20_000  # per target: neighbour search, sectors, bookkeeping (about 10 us measured)
 
 
@@ -55,8 +58,9 @@ def system_bytes(k: int, p: int, dimension: int, points: int = 1) -> int:
 
 
 def batch_rows(k: int, p: int, dimension: int, memory_budget: int, points: int = 1) -> int:
-    """How many systems with k neighbours one batched solve may hold within ``memory_budget`` bytes (>= 1)."""
-    return max(1, memory_budget // system_bytes(k, p, dimension, points))
+    """How many systems with k neighbours one batched solve may hold within ``memory_budget`` bytes and
+    :data:`BATCH_ENTRIES` covariance entries (>= 1)."""
+    return max(1, min(memory_budget // system_bytes(k, p, dimension, points), BATCH_ENTRIES // (k * k + k * points)))
 
 
 def query_rows(candidates: int, memory_budget: int) -> int:

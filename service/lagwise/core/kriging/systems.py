@@ -36,7 +36,7 @@ from ..errors import FieldIssue, InvalidInput, LimitExceeded, SingularSystem
 from ..limits import Limits
 from ..modelling.models import VariogramModel, unit_semivariance, validate_model
 from .conditioning import RCOND_MIN, covariance_rcond, pivot_ratios
-from .cost import batch_rows, query_rows
+from .cost import BATCH_ENTRIES, batch_rows, query_rows
 from .neighbourhood import NO_NEIGHBOURS, Neighbourhood, NeighbourSearch, to_search_space, validate_neighbourhood
 
 KRIGING_TYPES = ("ordinary", "simple", "universal")
@@ -158,11 +158,14 @@ class Covariance:
 
         Distances come from ``scipy.spatial.distance.cdist`` in each structure's isotropic
         space, so memory stays near one n x n array however many structures there are.
+        Blocks hold at most :data:`BATCH_ENTRIES` entries; the deadline is checked between them.
         """
         n = coords.shape[0]
         K = np.empty((n, n))
         spaces = [to_search_space(coords, s.anisotropy) for s in self.structural.structures]
+        block = max(1, min(block, BATCH_ENTRIES // max(n, 1)))
         for start in range(0, n, block):
+            check_deadline()
             rows = slice(start, min(n, start + block))
             part = np.full((rows.stop - start, n), self.c0)
             for structure, space in zip(self.structural.structures, spaces, strict=True):
