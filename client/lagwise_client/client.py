@@ -323,6 +323,7 @@ class Lagwise:
         weighting: str | None = None,
         anisotropy: str | None = None,
         structures: int | None = None,
+        transform: str | None = None,
         lags: Mapping[str, Any] | None = None,
         directions: list[Mapping[str, Any]] | None = None,
         statistic: str | None = None,
@@ -335,7 +336,8 @@ class Lagwise:
 
         ``families`` is ``"auto"`` (default on the service) or a list of names; ``nugget`` is
         ``"fit"``, ``"none"`` or a fixed value; ``anisotropy="fit"`` fits azimuth and ratio
-        jointly over the direction classes.
+        jointly over the direction classes. ``transform`` (samples only) fits to the transformed
+        values; the model echoes it, so predictions with it back-transform.
         """
         return self._compute("/v1/model-fits", ModelFit, locals())
 
@@ -356,6 +358,7 @@ class Lagwise:
         neighbourhood: Mapping[str, Any] | None = None,
         scheme: Mapping[str, Any] | None = None,
         outlier_threshold: float | None = None,
+        transform: str | None = None,
         censoring: str | None = None,
         coordinates: str | None = None,
         duplicates: str | None = None,
@@ -364,7 +367,9 @@ class Lagwise:
 
         ``kriging`` e.g. ``{"type": "ordinary"}``; ``neighbourhood`` e.g. ``{"max_points": 24}``
         (omit it for all samples); ``scheme`` ``{"type": "leave_one_out"}`` (default) or
-        ``{"type": "k_fold", "folds": 10, "seed": 1}``.
+        ``{"type": "k_fold", "folds": 10, "seed": 1}``. ``transform`` (``log``,
+        ``normal_score``; default: the model's) krige the transformed values; errors come
+        back in original units, standardized errors in the transformed space.
         """
         return self._compute("/v1/cross-validations", CrossValidation, locals())
 
@@ -386,6 +391,9 @@ class Lagwise:
         kriging: Mapping[str, Any] | None = None,
         neighbourhood: Mapping[str, Any] | None = None,
         return_weights: list[int] | None = None,
+        transform: str | None = None,
+        thresholds: list[float] | None = None,
+        blocks: Mapping[str, Any] | None = None,
         censoring: str | None = None,
         coordinates: str | None = None,
         duplicates: str | None = None,
@@ -393,6 +401,11 @@ class Lagwise:
     ) -> Predictions:
         """Kriging estimates and variances (``POST /v1/predictions``) at ``targets``
         (``{"x": [...], "y": [...]}``) or on ``grid`` (``{"origin", "spacing", "shape"}``).
+
+        ``transform`` (default: the model's) krige transformed values and back-transform;
+        ``thresholds`` (original units) add P(value > t) per target (``exceedance_grid``);
+        ``blocks={"size": [bx, by], "discretisation": [nx, ny]}`` estimate block averages
+        (no transform).
 
         ``arrow_answer=True`` (needs pyarrow) has the service answer the per-target columns as an
         Arrow stream, which is quicker for many targets; the result is the same."""
@@ -563,16 +576,26 @@ class Lagwise:
         censoring: str | None = None,
         coordinates: str | None = None,
         duplicates: str | None = None,
+        thresholds: list[float] | None = None,
+        blocks: Mapping[str, Any] | None = None,
     ) -> Analysis:
         """The whole chain in one call (``POST /v1/analyses``).
 
         ``variogram`` e.g. ``{"directions": "auto"}``; ``prediction`` ``{"grid": {...},
-        "thresholds": [...]}``; ``figures`` any of variogram, variogram_map, cross_validation,
-        prediction_map, standard_deviation_map; ``variable`` ``{"name": "lead", "unit":
+        "thresholds": [...], "blocks": {...}, "simulation": {"realisations": 100, "blocks":
+        {"size": [bx, by]}}}``; ``thresholds`` and ``blocks`` given here go into ``prediction``;
+        ``figures`` any of variogram, variogram_map, cross_validation, prediction_map,
+        standard_deviation_map, probability_map; ``variable`` ``{"name": "lead", "unit":
         "mg/kg"}`` and ``coordinate_unit`` (e.g. ``"m"``) label the figures;
         ``figure_colour_scale`` auto, linear, log or quantile.
         """
-        return self._compute("/v1/analyses", Analysis, locals())
+        arguments = dict(locals())
+        staged = {k: v for k in ("thresholds", "blocks") if (v := arguments.pop(k)) is not None}
+        if staged:
+            if prediction is None:
+                raise ValueError("thresholds and blocks belong to the prediction stage: give prediction={'grid': ...}")
+            arguments["prediction"] = {**prediction, **staged}
+        return self._compute("/v1/analyses", Analysis, arguments)
 
     def model_families(self) -> list[dict]:
         """The model families with their parameters, units, bounds and validity (``GET /v1/model-families``)."""

@@ -200,20 +200,27 @@ class VariogramModel:
     """A fitted or given model: nugget plus structures, evaluated without numpy.
 
     ``h`` is a distance (isotropic use) or a separation vector (x, y[, z]) in the
-    samples' coordinate units.
+    samples' coordinate units. ``transform`` is the one the model was fitted in (``none``,
+    ``log``, ``normal_score``; None when not known): sent back with the model, kriging then
+    runs in that space and back-transforms.
     """
 
     nugget: float
     structures: tuple[ModelStructure, ...] = field(default_factory=tuple)
+    transform: str | None = None
 
     @classmethod
     def from_dict(cls, d: Mapping[str, Any]) -> VariogramModel:
         """Read a model (unknown members are ignored)."""
-        return cls(float(d.get("nugget", 0.0)), tuple(ModelStructure.from_dict(s) for s in d.get("structures", [])))
+        structures = tuple(ModelStructure.from_dict(s) for s in d.get("structures", []))
+        return cls(float(d.get("nugget", 0.0)), structures, d.get("transform"))
 
     def to_dict(self) -> dict:
         """The model as the service reads it (a request's ``model``)."""
-        return {"nugget": self.nugget, "structures": [s.to_dict() for s in self.structures]}
+        out: dict[str, Any] = {"nugget": self.nugget, "structures": [s.to_dict() for s in self.structures]}
+        if self.transform is not None:
+            out["transform"] = self.transform
+        return out
 
     def check(self, dimension: int | None = None) -> VariogramModel:
         """Raise ValueError for a negative nugget or a structure parameter out of bounds; returns self."""

@@ -343,7 +343,10 @@ class CrossValidation(Response):
 @dataclass(frozen=True, kw_only=True)
 class Predictions(Response):
     """Result of :meth:`Lagwise.predict`: columnar targets, estimates and kriging variances
-    (None where a target could not be estimated; ``unestimated`` says why)."""
+    (None where a target could not be estimated; ``unestimated`` says why).
+
+    ``exceedance``: ``{"threshold", "probability"}`` per threshold asked for; ``support``:
+    ``point`` or ``block`` (estimates of block averages)."""
 
     x: tuple[float, ...]
     estimate: tuple[float | None, ...]
@@ -353,10 +356,16 @@ class Predictions(Response):
     grid: dict | None = None
     unestimated: tuple[dict, ...] = ()
     weights: tuple[dict, ...] = ()
+    exceedance: tuple[dict, ...] = ()
+    support: str = "point"
     parameters: dict = field(default_factory=dict)
     warnings: tuple[str, ...] = ()
     provenance: dict = field(default_factory=dict)
     raw: dict = _raw()
+
+    def exceedance_grid(self, threshold: float):
+        """P(value > ``threshold``) per grid node as a 2-D numpy array (rows by y; NaN where unestimated)."""
+        return _exceedance_grid(self.grid, self.exceedance, threshold)
 
     def to_grid(self, which: str = "estimate"):
         """A 2-D numpy array (rows by y, columns by x; NaN where unestimated) for a grid request.
@@ -378,6 +387,20 @@ class Predictions(Response):
         return _dataframe([dict(zip(present, row, strict=True)) for row in zip(*present.values(), strict=True)])
 
 
+def _exceedance_grid(grid: dict | None, entries, threshold: float):
+    import numpy as np
+
+    if grid is None or len(grid["shape"]) != 2:
+        raise ValueError("exceedance_grid() needs a 2-D grid prediction")
+    for entry in entries:
+        if entry["threshold"] == threshold:
+            nx, ny = grid["shape"]
+            values = [np.nan if v is None else v for v in entry["probability"]]
+            return np.array(values, dtype=float).reshape(ny, nx)
+    known = ", ".join(str(e["threshold"]) for e in entries) or "none"
+    raise KeyError(f"no exceedance for threshold {threshold!r} (thresholds: {known})")
+
+
 @dataclass(frozen=True, kw_only=True)
 class Analysis(Response):
     """Result of :meth:`Lagwise.analyze`: the stages as attributes.
@@ -396,7 +419,9 @@ class Analysis(Response):
     cross_validation : dict or None
         statistics, samples, assessment.
     prediction : dict or None
-        Columnar grid predictions in original units.
+        Columnar grid predictions in original units; with thresholds also ``exceedance``,
+        ``classes`` (targets by probability class) and ``simulation`` (share of the grid
+        above each threshold, simulated blocks).
     figures : dict
         Figure name -> SVG text or base64 PNG.
     selection : dict or None
@@ -426,6 +451,19 @@ class Analysis(Response):
     def from_response(cls, document: Any) -> Analysis:
         document = _object(document, "")
         return _read(cls, document, "", **_fitted(_object(document.get("fit"), "/fit"), "/fit"))
+
+    def exceedance_grid(self, threshold: float):
+        """P(value > ``threshold``) per prediction node as a 2-D numpy array (rows by y)."""
+        if self.prediction is None:
+            raise ValueError("the analysis has no prediction stage")
+        return _exceedance_grid(self.prediction["grid"], self.prediction.get("exceedance") or (), threshold)
+
+    def probability_classes(self, threshold: float) -> list[dict]:
+        """Rows ``{"class", "meaning", "count", "share"}`` of the targets by probability class."""
+        for table in (self.prediction or {}).get("classes") or ():
+            if table["threshold"] == threshold:
+                return list(table["classes"])
+        raise KeyError(f"no probability classes for threshold {threshold!r}")
 
     def save_figures(self, folder) -> list:
         """Write each figure to ``folder`` (``<name>.svg`` or ``<name>.png``); returns the paths."""
