@@ -229,3 +229,29 @@ def test_joint_fit_bad_experimental(client):
         client.post("/v1/model-fits", json={"experimental": _several_experimental(), "weighting": "cressie"}),
         ["/weighting"],
     )
+
+
+def test_joint_fit_from_samples_equals_fit_from_their_experimental(client):
+    """Samples with several variables and no variable chosen are fitted jointly; the fit equals the
+    one made from the several-variable experimental response of the same samples."""
+    lags = {"width": 10.0, "count": 6}
+    options = {"families": ["spherical"], "min_pairs": 10}
+    direct = client.post("/v1/model-fits", json={"samples": samples(), "lags": lags, **options})
+    assert direct.status_code == 200, direct.json
+    experimental = client.post(
+        "/v1/experimental-variograms", json={"samples": samples(), "lags": lags, "min_pairs": 10}
+    )
+    assert experimental.status_code == 200, experimental.json
+    given = client.post("/v1/model-fits", json={"experimental": experimental.json, **options})
+    assert given.status_code == 200, given.json
+    assert direct.json["model"]["variables"] == ["lead", "zinc"]
+    for a, b in zip(
+        [direct.json["model"]["nugget"]] + [s["sills"] for s in direct.json["model"]["structures"]],
+        [given.json["model"]["nugget"]] + [s["sills"] for s in given.json["model"]["structures"]],
+        strict=True,
+    ):
+        np.testing.assert_allclose(a, b, rtol=1e-9, atol=1e-12)
+    problem(client.post("/v1/model-fits", json={"samples": samples(), "transform": "log"}), ["/transform"])
+    problem(
+        client.post("/v1/model-fits", json={"samples": samples(), "statistic": "semivariance_median"}), ["/statistic"]
+    )

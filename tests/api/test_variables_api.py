@@ -53,7 +53,9 @@ def test_model_fit_and_cross_validation_take_a_variable(client):
 
 
 def test_several_variables_without_a_choice_are_refused_clearly(client):
-    doc = problem(client.post("/v1/model-fits", json={"samples": multi()}), ["/variable"])
+    # Model fits of several variables without a choice fit them jointly (tests/api/test_cokriging_api.py).
+    model = {"nugget": 0.1, "structures": [{"family": "spherical", "partial_sill": 1.0, "range": 30.0}]}
+    doc = problem(client.post("/v1/cross-validations", json={"samples": multi(), "model": model}), ["/variable"])
     assert "lead, zinc" in doc["detail"]
     problem(client.post("/v1/model-fits", json={"samples": multi(), "variable": "tin"}), ["/variable"])
 

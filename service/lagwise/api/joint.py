@@ -17,9 +17,10 @@ from ..core.kriging.cokriging_runs import cokrige_points, cross_validate_cokrigi
 from ..core.limits import Limits
 from ..core.modelling.coregionalisation import JointModel, JointStructure
 from ..core.modelling.fitting import SEMIVARIANCE_STATISTICS
-from ..core.modelling.joint_fitting import JointFitResult, fit_joint_model, joint_points
+from ..core.modelling.joint_fitting import JointFitResult, fit_joint_model, joint_points, joint_points_from_variograms
 from ..core.modelling.models import Anisotropy
-from . import convert
+from ..core.variography.several import several_variograms
+from . import convert, serialize
 
 SHAPE_MEMBERS = ("smoothness", "shape")
 
@@ -204,8 +205,13 @@ def cross_validation(document: dict, limits: Limits, workers: int) -> tuple[dict
 
 
 def is_joint_fit(document: dict) -> bool:
-    """Whether a model-fit request fits several variables jointly (a several-variable experimental)."""
-    return "variables" in (document.get("experimental") or {})
+    """Whether a model-fit request fits several variables jointly: a several-variable experimental,
+    or samples with two or more variables and no ``variable`` chosen."""
+    if "variables" in (document.get("experimental") or {}):
+        return True
+    samples = document.get("samples") or {}
+    named = samples.get("variables") or samples.get("variable_properties") or ()
+    return len(named) >= 2 and "variable" not in document
 
 
 def _rows(directions: list) -> list:
@@ -343,10 +349,36 @@ def fit_body(result: JointFitResult, statistic: str, parameters: dict) -> dict:
     }
 
 
-def model_fit(document: dict) -> tuple[dict, str]:
-    """Body and input hash of a joint ``POST /v1/model-fits`` from a several-variable experimental response."""
-    experimental, statistic, digest = _given_experimental(document, document["min_pairs"])
+def model_fit(document: dict, limits: Limits) -> tuple[dict, str, int, int]:
+    """Body, input hash, sample and pair counts of a joint ``POST /v1/model-fits``: from samples
+    (direct and cross variograms in one pass first) or from a several-variable experimental response."""
     options = {k: document[k] for k in ("families", "nugget", "weighting", "anisotropy", "structures")}
-    result = fit_joint_model(experimental, min_pairs=document["min_pairs"], **options)
-    parameters = {"dimension": experimental.dimension, "min_pairs": document["min_pairs"], **options}
-    return fit_body(result, statistic, parameters), digest
+    min_pairs = document["min_pairs"]
+    if "experimental" in document:
+        experimental, statistic, digest = _given_experimental(document, min_pairs)
+        result = fit_joint_model(experimental, min_pairs=min_pairs, **options)
+        parameters = {"dimension": experimental.dimension, "min_pairs": min_pairs, **options}
+        return fit_body(result, statistic, parameters), digest, 0, 0
+    if document.get("transform") not in (None, "none"):
+        raise InvalidInput.at("/transform", "a joint fit works in the variables' own units: give no transform")
+    if document["statistic"] != "semivariance":
+        raise InvalidInput.at(
+            "/statistic", "a joint fit needs cross-semivariances, which only the semivariance statistic has"
+        )
+    samples = convert.samples_of(document, limits)
+    assert isinstance(samples, MultiSampleSet)  # is_joint_fit saw two or more variables
+    several = several_variograms(
+        samples,
+        lags=convert.lag_request(document),
+        directions=convert.direction_classes(document),
+        statistic="semivariance",
+        min_pairs=min_pairs,
+        limits=limits,
+    )
+    experimental = joint_points_from_variograms(several, dimension=samples.dimension, min_pairs=min_pairs)
+    result = fit_joint_model(experimental, min_pairs=min_pairs, **options)
+    parameters = {**serialize.sample_parameters(samples), "min_pairs": min_pairs, **options}
+    body = fit_body(result, "semivariance", parameters)
+    body["warnings"] = list(several.warnings) + body["warnings"]
+    pairs = sum(row.pairs for v in several.variables for d in v.result.directions for row in d.classes)
+    return body, samples.input_hash, samples.size, pairs

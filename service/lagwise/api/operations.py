@@ -242,7 +242,7 @@ def variogram_maps():
 def model_fits():
     document = load_json(ModelFitRequest())
     if joint.is_joint_fit(document):
-        return with_provenance(*joint.model_fit(document))
+        return with_provenance(*joint.model_fit(document, settings().limits))
     options = {k: document[k] for k in ("families", "nugget", "weighting", "anisotropy", "structures")}
     if "samples" in document:
         samples = convert.sample_set(document, settings().limits)

@@ -406,3 +406,29 @@ def joint_points(
         i, j = sorted((variables.index(a), variables.index(b)))
         points[(i, j)] = points_from_rows(rows, min_pairs)
     return JointExperimental(variables, points, dimension, variances)
+
+
+def joint_points_from_variograms(several, *, dimension: int, min_pairs: int) -> JointExperimental:
+    """Joint fit points from experimental variograms of several variables computed in one pass.
+
+    ``several`` has ``variables`` (each with ``name`` and ``result``, an
+    :class:`~lagwise.core.variography.experimental.ExperimentalVariogram`) and ``cross`` (each
+    with ``names`` and ``directions``, direction results whose classes hold cross-semivariances).
+    """
+    names = tuple(v.name for v in several.variables)
+    direct = {
+        v.name: [
+            (d.direction.azimuth, k, c, row)
+            for k, d in enumerate(v.result.directions)
+            for c, row in enumerate(d.classes)
+        ]
+        for v in several.variables
+    }
+    cross = {
+        tuple(pair.names): [
+            (d.direction.azimuth, k, c, row) for k, d in enumerate(pair.directions) for c, row in enumerate(d.classes)
+        ]
+        for pair in several.cross
+    }
+    variances = tuple(float(v.result.summary.reference_variance) for v in several.variables)
+    return joint_points(names, direct, cross, dimension=dimension, min_pairs=min_pairs, variances=variances)
