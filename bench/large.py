@@ -15,6 +15,16 @@ Sections
 * ``raster``: a 4096 x 4096 raster with 20 % of its cells missing at random; 4
   direction classes (16 classes of 8 nodes) and a variogram map (32 cells of 8
   nodes a side of the origin); the exact path is timed on a 256 x 256 part.
+* ``exact_kernel``: the exact pair kernel at 50,000 samples uniform in the same square, 15
+  classes up to 500, omnidirectional and 4 direction classes (tolerance 22.5 degrees), both
+  cores; beside it ``scipy.spatial.distance.pdist`` + ``numpy.histogram`` at 20,000 samples
+  (its pairs fit in memory there; rates compared) and the kernel of :data:`OLD_KERNEL_COMMIT`
+  run in the same invocation from that commit's sources (``git archive``).
+* ``parsing``: a 1,000,000-sample request (x, y, values) read by the web layer's one parsing
+  path (body, schema validation) and hashed (``provenance.input_sha256``), as an Arrow
+  multipart body and as JSON.
+* ``kriging``: ordinary kriging of 1,000,000 targets from 1,000,000 samples with 16
+  neighbours (k-d tree once, targets in chunks sized by ``LAGWISE_MEMORY_BUDGET_BYTES``).
 """
 
 from __future__ import annotations
@@ -24,6 +34,7 @@ import os
 import resource
 import subprocess
 import sys
+import tempfile
 import time
 from pathlib import Path
 
@@ -34,6 +45,13 @@ ERROR_SAMPLES = 200_000
 RASTER_SIDE = 4096
 MISSING = 0.2
 GiB = 1024**3
+KERNEL_SAMPLES = 50_000
+PDIST_SAMPLES = 20_000
+# The kernel before the large-data rework; its figure is measured in the same run, from that commit's sources.
+OLD_KERNEL_COMMIT = "426d2fa"
+PARSE_SAMPLES = 1_000_000
+KRIGING_SAMPLES = 1_000_000
+KRIGING_TARGETS = 1_000_000
 NOTE = "shared machine (up to 8 agents on 2 cores): figures vary with load"
 
 
@@ -204,7 +222,241 @@ def raster() -> list[dict]:
     ]
 
 
-SECTIONS = [("grid_scattered", grid_scattered), ("grid_error", grid_error), ("raster", raster)]
+def _kernel_case(n: int, kind: str) -> dict:
+    import numpy as np
+    from lagwise.core.data.samples import build_sample_set
+    from lagwise.core.limits import Limits
+    from lagwise.core.variography.directions import DirectionClass
+    from lagwise.core.variography.experimental import experimental_variogram
+    from lagwise.core.variography.lags import LagRequest
+    from lagwise.core.warmup import warm_kernels
+
+    warm_kernels()
+    rng = np.random.default_rng(n)
+    coords, values = rng.uniform(0, SIDE, (n, 2)), rng.normal(size=n)
+    samples = build_sample_set(values, coords[:, 0], coords[:, 1])
+    directions = [DirectionClass(a, 22.5) for a in (0.0, 45.0, 90.0, 135.0)] if kind == "fan" else None
+    lags = LagRequest(width=SIDE / 2 / CLASSES, count=CLASSES)
+    times = []
+    for _ in range(2):
+        start = time.perf_counter()
+        result = experimental_variogram(samples, lags=lags, directions=directions, limits=Limits(max_pairs=10**13))
+        times.append(time.perf_counter() - start)
+    pairs = sum(row.pairs for d in result.directions for row in d.classes)
+    return {"seconds": min(times), "pairs": pairs}
+
+
+def _pdist_case(n: int, kind: str) -> dict:
+    import numpy as np
+    from scipy.spatial.distance import pdist
+
+    rng = np.random.default_rng(n)
+    coords, values = rng.uniform(0, SIDE, (n, 2)), rng.normal(size=n)
+    edges = np.linspace(0, SIDE / 2, CLASSES + 1)
+    start = time.perf_counter()
+    d = pdist(coords)
+    sq = pdist(values[:, None], "sqeuclidean")
+    if kind == "omni":
+        counts, _ = np.histogram(d, bins=edges)
+        np.histogram(d, bins=edges, weights=sq)
+        pairs = int(counts.sum())
+    else:
+        i, j = np.triu_indices(n, k=1)
+        h = coords[j] - coords[i]
+        del i, j
+        azimuth = np.degrees(np.arctan2(h[:, 0], h[:, 1])) % 180.0
+        pairs = 0
+        for a in (0.0, 45.0, 90.0, 135.0):
+            off = np.abs(azimuth - a)
+            keep = np.minimum(off, 180.0 - off) <= 22.5
+            counts, _ = np.histogram(d[keep], bins=edges)
+            np.histogram(d[keep], bins=edges, weights=sq[keep])
+            pairs += int(counts.sum())
+    return {"seconds": time.perf_counter() - start, "pairs": pairs}
+
+
+def _parsing_case(form: str) -> dict:
+    import io
+
+    import numpy as np
+    import orjson
+    import pyarrow as pa
+    from lagwise.api import create_app
+    from lagwise.api.body import load_json
+    from lagwise.api.convert import sample_set
+    from lagwise.api.schemas import ExperimentalRequest
+    from lagwise.api.settings import Settings
+    from lagwise.core.data.samples import input_hash
+    from urllib3.filepost import encode_multipart_formdata
+
+    rng = np.random.default_rng(5)
+    n = PARSE_SAMPLES
+    x, y, v = rng.uniform(0, 1e5, n), rng.uniform(0, 1e5, n), rng.normal(size=n)
+    options = {"lags": {"width": 10.0, "count": 10}}
+    if form == "arrow":
+        table = pa.table({"x": x, "y": y, "values": v})
+        sink = pa.BufferOutputStream()
+        with pa.ipc.new_stream(sink, table.schema) as writer:
+            writer.write_table(table)
+        body, content_type = encode_multipart_formdata(
+            {
+                "request": ("request.json", orjson.dumps(options), "application/json"),
+                "samples": ("samples.arrows", sink.getvalue().to_pybytes(), "application/vnd.apache.arrow.stream"),
+            }
+        )
+    else:
+        body = orjson.dumps({**options, "samples": {"x": x.tolist(), "y": y.tolist(), "values": v.tolist()}})
+        content_type = "application/json"
+    settings = Settings(max_body_bytes=1 << 30, max_arrow_bytes=1 << 30)
+    app = create_app({"TESTING": True}, settings=settings, warm=False)
+    times, built = [], []
+    for _ in range(3):
+        with app.test_request_context(
+            "/v1/experimental-variograms",
+            method="POST",
+            input_stream=io.BytesIO(body),
+            content_type=content_type,
+            content_length=len(body),
+        ):
+            start = time.perf_counter()
+            document = load_json(ExperimentalRequest())
+            samples = document["samples"]
+            digest = input_hash([samples["x"], samples["y"], samples["values"]])
+            times.append(time.perf_counter() - start)
+            start = time.perf_counter()
+            full = sample_set(document)
+            built.append(time.perf_counter() - start)
+            assert full.input_hash == digest
+    return {"seconds": min(times), "sample_set_seconds": min(built), "bytes": len(body), "hash": digest}
+
+
+def _kriging_case() -> dict:
+    import numba
+    import numpy as np
+    from lagwise.core.data.samples import build_sample_set
+    from lagwise.core.kriging.neighbourhood import Neighbourhood
+    from lagwise.core.kriging.prediction import predict
+    from lagwise.core.limits import Limits
+    from lagwise.core.modelling.models import Structure, VariogramModel
+
+    rng = np.random.default_rng(11)
+    n, m = KRIGING_SAMPLES, KRIGING_TARGETS
+    x, y = rng.uniform(0, 1e5, n), rng.uniform(0, 1e5, n)
+    values = np.sin(x / 5e3) + np.cos(y / 7e3) + rng.normal(0, 0.1, n)
+    targets = np.column_stack([rng.uniform(0, 1e5, m), rng.uniform(0, 1e5, m)])
+    model = VariogramModel(0.05, (Structure("spherical", 1.0, 4000.0),))
+    start = time.perf_counter()
+    samples = build_sample_set(values, x, y)
+    result = predict(
+        samples,
+        model,
+        neighbourhood=Neighbourhood(max_points=16),
+        targets=targets,
+        limits=Limits(max_samples=n, max_targets=m),
+        workers=numba.get_num_threads(),
+    )
+    seconds = time.perf_counter() - start
+    return {"seconds": seconds, "estimated": int(np.isfinite(result.prediction.estimate).sum())}
+
+
+def _case(case: str, *args: str, pythonpath: str | None = None) -> dict:
+    """Run one measured case of the sections below in a fresh process (its own peak memory)."""
+    env = dict(os.environ)
+    if pythonpath:
+        env["PYTHONPATH"] = pythonpath
+    done = subprocess.run(
+        [sys.executable, str(Path(__file__).resolve()), "--case", case, *args],
+        capture_output=True,
+        text=True,
+        check=True,
+        env=env,
+    )
+    return json.loads(done.stdout.strip().splitlines()[-1])
+
+
+def _measure_case(case: str, *args: str) -> None:
+    if case == "kernel":
+        out = _kernel_case(int(args[0]), args[1])
+    elif case == "pdist":
+        out = _pdist_case(int(args[0]), args[1])
+    elif case == "parsing":
+        out = _parsing_case(args[0])
+    else:
+        out = _kriging_case()
+    print(json.dumps({**out, "peak_bytes": resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024}))
+
+
+def _old_sources(folder: str) -> str:
+    """Extract the service at :data:`OLD_KERNEL_COMMIT` into ``folder`` (``git archive``); returns its PYTHONPATH."""
+    root = Path(__file__).resolve().parents[1]
+    archive = subprocess.run(
+        ["git", "-C", str(root), "archive", OLD_KERNEL_COMMIT, "service/lagwise"], capture_output=True, check=True
+    ).stdout
+    subprocess.run(["tar", "-x", "-C", folder], input=archive, check=True)
+    return os.path.join(folder, "service")
+
+
+def exact_kernel() -> list[dict]:
+    rows = []
+    with tempfile.TemporaryDirectory(prefix="lagwise-old-kernel-") as folder:
+        old_path = _old_sources(folder)
+        for kind, label in (("omni", "omnidirectional"), ("fan", "4 direction classes")):
+            ours = _case("kernel", str(KERNEL_SAMPLES), kind)
+            old = _case("kernel", str(KERNEL_SAMPLES), kind, pythonpath=old_path)
+            base = _case("pdist", str(PDIST_SAMPLES), kind)
+            rate, old_rate, base_rate = (r["pairs"] / r["seconds"] for r in (ours, old, base))
+            rows.append(
+                {
+                    "figure": f"exact kernel, {KERNEL_SAMPLES:,} samples, {label}, both cores",
+                    "value": f"{rate:.3g} pairs/s ({ours['seconds']:.2f} s, {ours['pairs']:,} pairs)",
+                    "target": ">= 3e8 pairs/s",
+                    "met": rate >= 3e8,
+                    "detail": f"kernel of {OLD_KERNEL_COMMIT} in this run {old_rate:.3g} pairs/s (x{rate / old_rate:.2f}); "
+                    f"pdist + histogram at {PDIST_SAMPLES:,} samples {base_rate:.3g} pairs/s (x{rate / base_rate:.1f})",
+                }
+            )
+    return rows
+
+
+def parsing() -> list[dict]:
+    arrow, plain = _case("parsing", "arrow"), _case("parsing", "json")
+    assert arrow["hash"] == plain["hash"], "the two forms must hash alike"
+    return [
+        {
+            "figure": f"{PARSE_SAMPLES:,}-sample Arrow request accepted and hashed",
+            "value": f"{arrow['seconds']:.3f} s ({arrow['bytes'] / 1e6:.1f} MB body)",
+            "target": "< 0.3 s",
+            "met": arrow["seconds"] < 0.3,
+            "detail": f"JSON form {plain['seconds']:.3f} s ({plain['bytes'] / 1e6:.1f} MB), JSON / Arrow = "
+            f"x{plain['seconds'] / arrow['seconds']:.1f}; same input_sha256 {arrow['hash'][:12]}...; then the "
+            f"sample set (duplicates check) {arrow['sample_set_seconds']:.2f} s",
+        }
+    ]
+
+
+def kriging_scale() -> list[dict]:
+    r = _case("kriging")
+    peak = r["peak_bytes"] / GiB
+    return [
+        {
+            "figure": f"{KRIGING_TARGETS:,} targets from {KRIGING_SAMPLES:,} samples, 16 neighbours",
+            "value": f"{r['seconds']:.1f} s, peak {peak:.2f} GiB",
+            "target": "< 60 s, < 2 GiB",
+            "met": r["seconds"] < 60 and peak < 2,
+            "detail": f"{r['estimated']:,} estimates; ordinary kriging, spherical model; the sample set's "
+            "validation and duplicates check included",
+        }
+    ]
+
+
+SECTIONS = [
+    ("grid_scattered", grid_scattered),
+    ("grid_error", grid_error),
+    ("raster", raster),
+    ("exact_kernel", exact_kernel),
+    ("parsing", parsing),
+    ("kriging", kriging_scale),
+]
 
 
 def _run_section(name: str) -> None:
@@ -244,5 +496,7 @@ def main(names: list[str] | None = None) -> None:
 if __name__ == "__main__":
     if len(sys.argv) == 3 and sys.argv[1] == "--section":
         _run_section(sys.argv[2])
+    elif sys.argv[1:2] == ["--case"]:
+        _measure_case(*sys.argv[2:])
     else:
         main(sys.argv[1:])

@@ -237,3 +237,27 @@ def test_form_mistakes(client, columns):
     assert r.status_code == 400 and r.json["type"] == "/problems/malformed-request"
     r = multipart(client, "/v1/experimental-variograms", {"lags": {"width": -1, "count": 3}}, data)
     assert r.status_code == 422 and pointers(r)[0].startswith("/lags")
+
+
+def test_parts_without_filenames_and_an_unclosed_part(client, columns):
+    """Form parts as RFC 7578 writes them by hand: no filename, CRLF line ends, a closing delimiter."""
+    data = stream(columns)
+    options = json.dumps(ENDPOINTS["/v1/experimental-variograms"]).encode()
+    body = (
+        b'--xyz\r\nContent-Disposition: form-data; name="request"\r\nContent-Type: application/json\r\n\r\n'
+        + options
+        + b'\r\n--xyz\r\nContent-Disposition: form-data; name="samples"\r\nContent-Type: '
+        + ARROW.encode()
+        + b"\r\n\r\n"
+        + data
+        + b"\r\n--xyz--\r\n"
+    )
+    headers = {"Content-Type": "multipart/form-data; boundary=xyz"}
+    r = client.post("/v1/experimental-variograms", data=body, headers=headers)
+    assert r.status_code == 200, r.json
+    by_json = client.post(
+        "/v1/experimental-variograms", json={**ENDPOINTS["/v1/experimental-variograms"], "samples": as_json(columns)}
+    )
+    assert r.json["provenance"]["input_sha256"] == by_json.json["provenance"]["input_sha256"]
+    r = client.post("/v1/experimental-variograms", data=body[: len(body) - 12], headers=headers)
+    assert r.status_code == 400 and r.json["type"] == "/problems/malformed-request"

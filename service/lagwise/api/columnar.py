@@ -3,8 +3,8 @@
 Requests
 --------
 A ``multipart/form-data`` body with two parts: ``request`` (``application/json``: the
-options, without ``samples``) and ``samples`` (``application/vnd.apache.arrow.stream``,
-sent as a file: columns ``x``, ``y``, ``z``, ``values`` and optionally ``ids``,
+options, without ``samples``) and ``samples`` (``application/vnd.apache.arrow.stream``:
+columns ``x``, ``y``, ``z``, ``values`` and optionally ``ids``,
 ``censored``, ``detection_limits``). The stream is checked in three steps before any
 column is converted: its schema (names and types), then the rows of each record batch,
 counted from the batch header (batches are views of the received buffer, nothing is
@@ -22,14 +22,11 @@ schema metadata under the key ``response``.
 
 from __future__ import annotations
 
-import io
 from collections.abc import Sequence
 
 import numpy as np
 import pyarrow as pa
 from flask import request
-from werkzeug.exceptions import RequestEntityTooLarge
-from werkzeug.formparser import MultiPartParser
 from werkzeug.http import parse_options_header
 
 from ..core.errors import FieldIssue, InvalidInput, LimitExceeded
@@ -48,12 +45,38 @@ COLUMNS = (*NUMBER_COLUMNS, "ids", "censored", "detection_limits")
 MAX_LISTED = 20
 
 
-def _memory_file(*args, **kwargs) -> io.BytesIO:
-    return io.BytesIO()
+def _parts(body: bytes, boundary: bytes) -> dict[str, tuple[str, memoryview]]:
+    """Name -> (media type, content) of each part of a multipart/form-data body (RFC 7578).
+
+    Contents are views of ``body``: a part of hundreds of megabytes is not copied.
+    """
+    delimiter = b"--" + boundary
+    view = memoryview(body)
+    position = body.find(delimiter)
+    if position < 0:
+        raise Problem("malformed-request", "The multipart body holds no boundary delimiter.")
+    parts: dict[str, tuple[str, memoryview]] = {}
+    position += len(delimiter)
+    while body[position : position + 2] != b"--":
+        if body[position : position + 2] != b"\r\n" or len(parts) == MAX_PARTS:
+            raise Problem("malformed-request", f"The multipart body is malformed or has more than {MAX_PARTS} parts.")
+        head_end = body.find(b"\r\n\r\n", position + 2)
+        close = body.find(b"\r\n" + delimiter, head_end + 4) if head_end >= 0 else -1
+        if close < 0:
+            raise Problem("malformed-request", "A part of the multipart body is not closed by the boundary.")
+        headers = {}
+        for line in body[position + 2 : head_end].decode("latin-1").split("\r\n"):
+            name, _, value = line.partition(":")
+            headers[name.strip().lower()] = value.strip()
+        _, disposition = parse_options_header(headers.get("content-disposition", ""))
+        media_type, _ = parse_options_header(headers.get("content-type", "text/plain"))
+        parts[disposition.get("name", "")] = (media_type, view[head_end + 4 : close])
+        position = close + 2 + len(delimiter)
+    return parts
 
 
-def split_form(body: bytes, content_type: str) -> tuple[bytes, bytes]:
-    """The ``request`` (JSON bytes) and ``samples`` (Arrow stream bytes) parts of a multipart body.
+def split_form(body: bytes, content_type: str) -> tuple[memoryview, memoryview]:
+    """The ``request`` (JSON) and ``samples`` (Arrow stream) parts of a multipart body.
 
     Raises
     ------
@@ -65,37 +88,21 @@ def split_form(body: bytes, content_type: str) -> tuple[bytes, bytes]:
     boundary = options.get("boundary")
     if not boundary:
         raise Problem("malformed-request", "The multipart/form-data Content-Type has no boundary parameter.")
-    parser = MultiPartParser(_memory_file, max_form_memory_size=MAX_OPTIONS_BYTES, max_form_parts=MAX_PARTS)
-    try:
-        form, files = parser.parse(io.BytesIO(body), boundary.encode("latin-1"), len(body))
-    except RequestEntityTooLarge:
-        raise Problem(
-            "malformed-request",
-            f"A text part is over {MAX_OPTIONS_BYTES} bytes or the form has more than {MAX_PARTS} parts; "
-            "send the options as the request part and the samples as a file part (with a filename).",
-        ) from None
-    except ValueError as exc:
-        raise Problem("malformed-request", f"The multipart body cannot be read: {exc}.") from None
-    if "request" in form:
-        options_part = form["request"].encode("utf-8")
-    elif "request" in files:
-        options_part = files["request"].stream.read()
-    else:
+    parts = _parts(body, boundary.encode("latin-1"))
+    if "request" not in parts:
         raise InvalidInput.at("", "the multipart form needs a request part (application/json: the options)")
-    if "samples" not in files:
-        detail = (
-            "the samples part must be sent as a file (Content-Disposition with a filename)"
-            if "samples" in form
-            else "the multipart form needs a samples part (application/vnd.apache.arrow.stream)"
+    if len(parts["request"][1]) > MAX_OPTIONS_BYTES:
+        raise InvalidInput.at(
+            "", f"the request part is over {MAX_OPTIONS_BYTES} bytes; the samples go in the samples part"
         )
-        raise InvalidInput.at("/samples", detail)
-    part = files["samples"]
-    if part.mimetype != ARROW_MEDIA_TYPE:
-        raise Problem(
-            "unsupported-media-type",
-            f"the samples part must be {ARROW_MEDIA_TYPE}, got {part.mimetype or 'none'}",
+    if "samples" not in parts:
+        raise InvalidInput.at(
+            "/samples", "the multipart form needs a samples part (application/vnd.apache.arrow.stream)"
         )
-    return options_part, part.stream.read()
+    media_type, samples = parts["samples"]
+    if media_type != ARROW_MEDIA_TYPE:
+        raise Problem("unsupported-media-type", f"the samples part must be {ARROW_MEDIA_TYPE}, got {media_type}")
+    return parts["request"][1], samples
 
 
 def _kind_error(name: str, kind: pa.DataType) -> str | None:
@@ -173,12 +180,12 @@ def _column(name: str, column: pa.ChunkedArray):
     return [str(v) for v in column.to_pylist()]
 
 
-def read_samples(data: bytes, max_rows: int) -> dict:
+def read_samples(data: bytes | memoryview, max_rows: int) -> dict:
     """The sample columns of an Arrow IPC stream, checked in the order the module states.
 
     Parameters
     ----------
-    data : bytes
+    data : bytes or memoryview
         The stream (the ``samples`` part).
     max_rows : int
         ``LAGWISE_MAX_ARROW_ROWS``: more rows are refused before any column is converted.

@@ -48,6 +48,8 @@ class NumberArray(fields.Field):
 
     def _deserialize(self, value, attr, data, **kwargs):
         if isinstance(value, np.ndarray):
+            if value.size == 0 or np.abs(value).max() <= MAX_MAGNITUDE:  # NaN fails the comparison
+                return value
             errors = _array_errors(value)
             if errors:
                 raise ValidationError(errors)

@@ -124,7 +124,7 @@ def input_hash(columns: Sequence[np.ndarray]) -> str:
     """SHA-256 over the little-endian float64 bytes of the given columns in order."""
     digest = hashlib.sha256()
     for column in columns:
-        digest.update(np.ascontiguousarray(column, dtype="<f8").tobytes())
+        digest.update(np.ascontiguousarray(column, dtype="<f8").data)
     return digest.hexdigest()
 
 
