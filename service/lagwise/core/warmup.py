@@ -1,4 +1,4 @@
-"""Compile (or load from numba's cache) and run every pair kernel once.
+"""Compile (or load from numba's cache) and run every compiled kernel once (pair kernels, kriging covariances).
 
 Call :func:`compile_kernels` before forking worker processes (it starts no
 threads) and :func:`warm_kernels` in each worker after the fork (it starts the
@@ -11,7 +11,10 @@ import numpy as np
 
 from .data.samples import build_sample_set
 from .data.variables import VariableInput, build_multi_sample_set
+from .kriging.neighbourhood import Neighbourhood
+from .kriging.prediction import predict
 from .limits import Limits
+from .modelling.models import Structure, VariogramModel
 from .variography.directions import DirectionClass
 from .variography.experimental import ScatterRequest, experimental_variogram
 from .variography.lags import LagRequest
@@ -47,6 +50,8 @@ def warm_kernels() -> None:
     for statistic in ("semivariance", "covariance", "madogram"):
         several_variograms(several, statistic=statistic)
     several_variograms(several, limits=Limits(memory_budget_bytes=1))
+    model = VariogramModel(0.1, (Structure("spherical", 1.0, 5.0),))
+    predict(samples, model, neighbourhood=Neighbourhood(max_points=8), targets=samples.coords[:3] + 0.5)
     _warm = True
 
 
@@ -59,6 +64,7 @@ def _tiny_variables(samples):
 
 def compile_kernels() -> None:
     """Compile every kernel for the argument types the engine uses, without running it."""
+    from .kriging import compiled
     from .variography import kernels as K
 
     f8, i8 = "float64", "int64"
@@ -76,3 +82,5 @@ def compile_kernels() -> None:
         f"({a2}, {a1}, {f8}, {f8}, {a2}, {a2}, {i8}[::1], {a1}, {i8}, {i8}[::1], {i8}, {i8}, {rows})"
     )
     K.collect_map_differences.compile(f"({a2}, {a1}, {f8}, {i8}, {i8}[::1], {i8}[::1], {a1}, {rows})")
+    a3 = f"{f8}[:, :, ::1]"
+    compiled.add_structure.compile(f"({a3}, {a3}, {a3}, {i8}, {f8}, {f8}, {f8}, boolean)")

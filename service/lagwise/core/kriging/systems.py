@@ -35,6 +35,7 @@ from ..deadline import check_deadline
 from ..errors import FieldIssue, InvalidInput, LimitExceeded, SingularSystem
 from ..limits import Limits
 from ..modelling.models import VariogramModel, unit_semivariance, validate_model
+from .compiled import compiled_covariances
 from .conditioning import RCOND_MIN, covariance_rcond, pivot_ratios
 from .cost import BATCH_ENTRIES, batch_rows, query_rows
 from .neighbourhood import NO_NEIGHBOURS, Neighbourhood, NeighbourSearch, to_search_space, validate_neighbourhood
@@ -140,16 +141,24 @@ class Covariance:
         Otherwise, with a micro-scale nugget, coincident points get the nugget too.
         ``nugget`` False: the continuous part C_s alone (block averages).
         """
-        h = a[..., :, None, :] - b[..., None, :, :]
-        shape = h.shape[:-1]
-        flat = h.reshape(-1, h.shape[-1])
-        with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
-            cov = (self.c0 - self.structural.semivariance(flat)).reshape(shape)
+        shape = np.broadcast_shapes(a.shape[:-2], b.shape[:-2]) + (a.shape[-2], b.shape[-2])
+        compiled = compiled_covariances(a, b, self.structural.structures, self.c0)
+        cov = np.full(shape, self.c0) if compiled is None else compiled
+        for structure in self.structural.structures if compiled is None else ():
+            # Rotate and stretch the points once, then take plain Euclidean distances.
+            ta, tb = _search_space(a, structure), _search_space(b, structure)
+            h = ta[..., :, None, :] - tb[..., None, :, :]
+            distances = np.sqrt(np.einsum("...i,...i->...", h, h))
+            with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
+                cov -= structure.partial_sill * unit_semivariance(
+                    structure.family, distances, structure.range, structure.extra
+                )
         _require_finite(cov)
         if same:
             m = shape[-1]
             cov = cov + self.nugget * np.eye(m)
         elif self.micro and self.nugget and nugget:
+            h = a[..., :, None, :] - b[..., None, :, :]
             cov = cov + self.nugget * (np.abs(h).sum(axis=-1) == 0)
         return cov
 
@@ -183,6 +192,14 @@ class Covariance:
     def target_variance(self) -> float:
         """k_00: covariance of the target with itself."""
         return self.c0 + (self.nugget if self.micro else 0.0)
+
+
+def _search_space(points: np.ndarray, structure) -> np.ndarray:
+    """Points (..., m, d) in a structure's isotropic space (its anisotropy undone)."""
+    if structure.anisotropy.isotropic:
+        return points
+    flat = to_search_space(points.reshape(-1, points.shape[-1]), structure.anisotropy)
+    return flat.reshape(points.shape)
 
 
 def _require_finite(cov: np.ndarray) -> None:
