@@ -200,11 +200,26 @@ def _normalise_degrees(lon: np.ndarray, lat: np.ndarray) -> np.ndarray:
     return np.where(np.abs(lat) == 90.0, 0.0, lon)
 
 
+def locations(coords: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """The distinct locations of ``coords`` (n, d), as ``numpy.unique(coords, axis=0, return_index=True,
+    return_inverse=True, return_counts=True)`` numbers them (rows in lexicographic order, x first).
+
+    Returns the input index of each location's first sample, each sample's location and each
+    location's sample count. One stable ``lexsort`` of the columns: several times quicker than
+    ``numpy.unique`` on rows for a million samples.
+    """
+    order = np.lexsort(coords.T[::-1])
+    ordered = coords[order]
+    starts = np.ones(len(order), dtype=bool)
+    np.any(ordered[1:] != ordered[:-1], axis=1, out=starts[1:])
+    inverse = np.empty(len(order), dtype=np.intp)
+    inverse[order] = np.cumsum(starts) - 1
+    first = np.flatnonzero(starts)
+    return order[first], inverse, np.diff(np.append(first, len(order)))
+
+
 def _resolve_duplicates(coords, values, ids, policy, pointer_for):
-    _, first_index, inverse, counts = np.unique(
-        coords, axis=0, return_index=True, return_inverse=True, return_counts=True
-    )
-    inverse = inverse.reshape(-1)
+    first_index, inverse, counts = locations(coords)
     repeated = np.flatnonzero(counts > 1)
     if repeated.size == 0:
         return coords, values, ids, np.arange(values.size), DuplicateReport(policy, 0, 0)
