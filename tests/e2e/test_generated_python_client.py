@@ -138,6 +138,10 @@ def test_every_operation_through_the_generated_client(generated, url, request):
     points = call("predictions", body=at_targets).parsed
     assert isinstance(points, m.PredictionResponse) and len(points.estimate) == 2
 
+    simulation = call("simulations", body=m.SimulationRequest.from_dict(REQUESTS["simulations"])).parsed
+    assert isinstance(simulation, m.SimulationResponse) and len(simulation.mean) == 48
+    assert simulation.grid.shape == [8, 6] and 0 <= simulation.above[0].fraction.p10 <= 1
+
     analysis = call("analyses", body=m.AnalysisRequest.from_dict(REQUESTS["analyses"])).parsed
     assert isinstance(analysis, m.AnalysisResponse)
     assert isinstance(analysis.cross_validation, m.AnalysisCrossValidation)
