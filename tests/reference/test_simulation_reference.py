@@ -10,6 +10,8 @@
   chi-squared with R - 1 degrees of freedom (scipy.stats.chi2), exceedance counts are
   binomial with the Gaussian probability (scipy.stats.binom, scipy.stats.norm) and
   block averages are Gaussian with the block simple-kriging estimate and variance.
+  Conditioned by ordinary kriging, the ensemble converges to the ordinary-kriging estimate
+  and variance (dense solve with the Lagrange multiplier, same chapter).
 * Without nugget, kriging -- hence every conditional realisation -- equals the data
   at the samples (exact interpolation, Chilès & Delfiner 2012, section 3.3).
 * The variogram of weakly conditioned realisations, computed here by brute force on
@@ -279,3 +281,32 @@ def test_values_at_off_lattice_samples_have_the_model_covariance():
     h = positions[:, None, :] - positions[None, :, :]
     expected = structural.covariance(h.reshape(-1, 2)).reshape(4, 4)
     assert np.abs(empirical - expected).max() < tolerance
+
+
+def ordinary_kriging(coords, values, targets, nugget):
+    """Ordinary kriging, Journel & Huijbregts (1978) ch. V: [[K, 1], [1', 0]] [lambda; mu] = [k; 1]."""
+    n = len(values)
+    A = np.ones((n + 1, n + 1))
+    A[:n, :n] = covariance(coords, coords, nugget)
+    A[n, n] = 0.0
+    k = covariance(coords, targets, nugget)
+    solution = np.linalg.solve(A, np.vstack([k, np.ones(targets.shape[0])]))
+    lam, mu = solution[:n], solution[n]
+    return lam.T @ values, SILL + nugget - np.einsum("nm,nm->m", lam, k) - mu
+
+
+def test_ordinary_kriging_conditioning_converges_to_ordinary_kriging(scene):
+    """Mean and variance over 1500 realisations against the dense ordinary-kriging solve (5 standard errors)."""
+    samples, coords, values, grid = scene
+    result = simulate(
+        samples,
+        model(0.1),
+        grid=grid,
+        transform="none",
+        spec=KrigingSpec(type="ordinary"),
+        realisations=1500,
+        seed=12,
+    )
+    estimate, variance = ordinary_kriging(coords, values, grid.points(), 0.1)
+    assert np.all(np.abs(result.mean - estimate) < 5 * np.sqrt(variance / 1500))
+    assert np.all(np.abs(result.variance / variance - 1) < 5 * np.sqrt(2 / 1500))
