@@ -6,7 +6,10 @@
    geometric-anisotropic fit over a fan of direction classes when the fan shows a
    difference in continuity, and universal kriging on the residual variogram of a
    linear (and, with enough samples, quadratic) drift when a trend is significant
-   (:mod:`.modelling.trend`). Each is cross-validated; the selection rule picks one.
+   (:mod:`.modelling.trend`). The isotropic and anisotropic strategies each also have
+   the best one-structure model refined by restricted likelihood on the samples
+   (:mod:`.modelling.likelihood`); the two refinements give the likelihood-ratio test of
+   the anisotropy. Each candidate is cross-validated; the selection rule picks one.
 4. Predictions with the selected strategy; estimates outside the plausible envelope
    of the data are withheld (null with a reason), never returned silently.
 5. Warnings and a verdict (:mod:`.verdict`).
@@ -19,6 +22,7 @@ those units); predictions are back-transformed to the original units (see
 from __future__ import annotations
 
 import math
+from collections.abc import Sequence
 from dataclasses import dataclass, field, replace
 
 import numpy as np
@@ -35,9 +39,10 @@ from .kriging.prediction import PredictionResult, predict
 from .kriging.systems import KrigingSpec
 from .limits import Limits
 from .modelling.fitting import FitResult, FittedCandidate, fit_model, points_from_experimental
+from .modelling.likelihood import Refinement, refine
 from .modelling.models import Anisotropy as ModelAnisotropy
 from .modelling.models import VariogramModel
-from .modelling.trend import QUADRATIC_MIN_SAMPLES, ResidualModel, TrendTest, residual_model, test_trend
+from .modelling.trend import QUADRATIC_MIN_SAMPLES, ResidualModel, TrendTest, design, residual_model, test_trend
 from .selection import Envelope, Selection, Strategy, null_cross_validation, pure_nugget, screen, select
 from .stages import CrossValidationOptions, FitOptions, PredictionOptions, VariogramOptions, validate_stages
 from .variography.directions import DirectionClass
@@ -47,13 +52,20 @@ from .variography.uncertainty import structure_evidence
 from .verdict import Verdict, judge
 
 AUTO_FAN = tuple(DirectionClass(a, 15.0) for a in (0.0, 30.0, 60.0, 90.0, 120.0, 150.0))
-FAN_DESCRIPTION = "joint fit over 6 direction classes of tolerance 15 degrees (azimuths 0, 30, ..., 150)"
+FAN_DESCRIPTION = (
+    "joint fit over 6 direction classes of tolerance 15 degrees (azimuths 0, 30, ..., 150), ranges fitted "
+    "direction by direction, and a restricted-likelihood refinement on the samples; the candidate with the "
+    "lowest cross-validation error is kept"
+)
 ANISOTROPY_WORTH_TESTING = 0.85
 FEW_SAMPLES = 50
 UNIQUE_UP_TO = 1500
 ORDINARY = KrigingSpec()
 CALIBRATED = (0.67, 1.5)
 CANDIDATES_SCORED = 3
+FAN_FAMILIES = 2
+REFINE_MIN_SAMPLES = 30
+RATIO_STARTS = (0.3, 0.6)
 
 
 @dataclass(frozen=True)
@@ -153,31 +165,95 @@ def _fit(points, samples: SampleSet, stage: FitOptions, variance: float, **overr
         return fit_model(points, dimension=samples.dimension, sample_variance=variance, **arguments)
 
 
+def _single_families(isotropic: FitResult, count: int) -> list[str]:
+    """The families of the best-ranked converged one-structure isotropic candidates (at most ``count``)."""
+    families: list[str] = []
+    for candidate in (isotropic.best, *isotropic.candidates):
+        if (
+            isinstance(candidate, FittedCandidate)
+            and candidate.converged
+            and len(candidate.model.structures) == 1
+            and candidate.model.bounded
+            and candidate.model.structures[0].family not in families
+        ):
+            families.append(candidate.model.structures[0].family)
+    return families[:count]
+
+
 def _anisotropic_fit(
-    working: SampleSet, options: AnalysisOptions, isotropic: FitResult, variance: float, limits: Limits
+    working: SampleSet, options: AnalysisOptions, isotropic: FitResult, variance: float, limits: Limits, declustering
 ):
-    """The fan (or the given direction classes) and a joint anisotropic fit of the isotropic winner's form."""
+    """The fan (or the given direction classes) and a joint one-structure anisotropic fit.
+
+    The families are those of the :data:`FAN_FAMILIES` best one-structure isotropic
+    candidates (a nested anisotropic model is poorly identified by a fan of classes).
+    """
     stage = options.variogram
     directions = stage.directions if isinstance(stage.directions, tuple) else AUTO_FAN
-    fan = _variogram(working, stage, limits, directions)
+    fan = _variogram(working, stage, limits, directions, declustering=declustering)
     points = points_from_experimental(fan, stage.min_pairs)
     best = isotropic.best.model
+    families = _single_families(isotropic, FAN_FAMILIES) or [s.family for s in best.structures][:1]
     if len(np.unique(points.azimuth[points.usable])) < 2 or not best.structures:
         return fan, None
     nugget = "fit" if best.nugget > 0 and options.fit.nugget == "fit" else options.fit.nugget
-    families = [s.family for s in best.structures]
-    fit = _fit(
-        points,
-        working,
-        options.fit,
-        variance,
-        families=families[:1],
-        nugget=nugget,
-        anisotropy="fit",
-        structures=len(families),
-        guarded=True,
-    )
+    try:
+        fit = _fit(
+            points,
+            working,
+            options.fit,
+            variance,
+            families=families,
+            nugget=nugget,
+            anisotropy="fit",
+            structures=1,
+            guarded=True,
+        )
+    except InvalidInput:
+        return fan, None
     return fan, fit
+
+
+def _reach(omni: ExperimentalVariogram) -> float:
+    """The largest mean class distance of the omnidirectional variogram (coordinate units)."""
+    distances = [r.mean_distance for r in omni.directions[0].classes if r.mean_distance]
+    return float(max(distances)) if distances else 1.0
+
+
+def _refined_isotropic(working: SampleSet, isotropic: FitResult, reach: float) -> Refinement | None:
+    """The best one-structure isotropic candidate refined by restricted likelihood (:mod:`.modelling.likelihood`)."""
+    start = _single_model(isotropic)
+    if start is None or working.size < REFINE_MIN_SAMPLES:
+        return None
+    return refine([start], working.coords, working.values, design(working.coords, 0), anisotropic=False, reach=reach)
+
+
+def _refined_anisotropic(
+    working: SampleSet, isotropic: Refinement, candidates: list[VariogramModel], reach: float
+) -> Refinement | None:
+    """The refined isotropic model given an anisotropy, refined by restricted likelihood.
+
+    Starts: the refined isotropic model with the azimuth and ratio of each anisotropic
+    candidate (the joint fan fits and the directional-range ellipse), each with its own
+    ratio and with :data:`RATIO_STARTS`; the search starts from the most likely.
+    """
+    base = isotropic.model.structures[0]
+    starts = []
+    for model in candidates:
+        anisotropy = model.structures[0].anisotropy
+        for ratio in (anisotropy.ratio, *RATIO_STARTS):
+            starts.append(
+                VariogramModel(isotropic.model.nugget, (replace(base, anisotropy=replace(anisotropy, ratio=ratio)),))
+            )
+    return refine(starts, working.coords, working.values, design(working.coords, 0), anisotropic=True, reach=reach)
+
+
+def _as_candidate(fit: FitResult, model: VariogramModel) -> tuple[VariogramModel, FitResult]:
+    """A refined model as a candidate of ``fit`` (its label says how it was refined)."""
+    parts = (["nugget"] if model.nugget > 0 else []) + [st.family for st in model.structures]
+    shape = " (anisotropic)" if any(not st.anisotropy.isotropic for st in model.structures) else ""
+    label = f"{' + '.join(parts)}{shape} (refined by restricted likelihood)"
+    return model, replace(fit, best=replace(fit.best, model=model, label=label))
 
 
 def _cross_validate(model, spec, working, hood, options, limits, workers) -> CrossValidation:
@@ -202,7 +278,7 @@ def _calibrated(cv: CrossValidation) -> bool:
 
 def _score(
     name: str,
-    candidates: list[tuple[VariogramModel, FitResult | None]],
+    candidates: Sequence[tuple[VariogramModel, FitResult | None]],
     spec: KrigingSpec,
     working: SampleSet,
     hood: Neighbourhood,
@@ -259,16 +335,15 @@ def _ranked_models(fit: FitResult, count: int) -> list[tuple[VariogramModel, Fit
 
 
 def _directional_ellipse(
-    fan: ExperimentalVariogram, isotropic: FitResult, working: SampleSet, options
+    fan: ExperimentalVariogram, best: VariogramModel, working: SampleSet, options
 ) -> VariogramModel | None:
     """Geometric anisotropy from ranges fitted direction by direction (common practice).
 
     Each direction class of the fan is fitted alone with the isotropic winner's family,
     nugget and partial sill fixed to the isotropic values' family and nugget; the major
     axis is the direction of the longest range and the ratio is the range perpendicular
-    to it over that longest range.
+    to it over that longest range. ``best`` is the one-structure isotropic model.
     """
-    best = isotropic.best.model
     if len(best.structures) != 1 or not best.structures[0].bounded:
         return None
     structure = best.structures[0]
@@ -302,7 +377,52 @@ def _directional_ellipse(
     )
 
 
-def _strategies(working, options, hood, limits, workers, omni):
+def _anisotropic_strategy(
+    working, options, isotropic, anisotropic, fan, refined, base, hood, limits, workers, reach
+) -> Strategy | None:
+    """The anisotropic strategy: joint fan fits, the directional-range ellipse and their likelihood refinement.
+
+    Scored when the caller asks for it (``fit.anisotropy: "fit"``) or when a candidate's
+    ratio is below :data:`ANISOTROPY_WORTH_TESTING`. With a refined isotropic model, the
+    refined anisotropic model's restricted likelihood-ratio statistic against it is kept
+    for the selection rule (:mod:`.selection`).
+    """
+    compare = options.fit.compare
+    candidates = _ranked_models(anisotropic, FAN_FAMILIES if compare else 1)
+    single = _single_model(isotropic)
+    ellipse = _directional_ellipse(fan, single, working, options) if compare and single is not None else None
+    if ellipse is not None:
+        candidates.append((ellipse, anisotropic))
+    ratio = min(m.structures[0].anisotropy.ratio for m, _ in candidates)
+    if options.fit.anisotropy != "fit" and ratio >= ANISOTROPY_WORTH_TESTING:
+        return None
+    ratio_statistic = None
+    if refined is not None:
+        found = _refined_anisotropic(working, refined, [m for m, _ in candidates], reach)
+        if found is not None:
+            candidates.append(_as_candidate(anisotropic, found.model))
+            ratio_statistic = max(0.0, 2.0 * (found.log_likelihood - refined.log_likelihood))
+    strategy = _score("anisotropic", candidates, base, working, hood, options, limits, workers)
+    return replace(strategy, likelihood_ratio=ratio_statistic)
+
+
+def _single_model(isotropic: FitResult) -> VariogramModel | None:
+    """The best-ranked one-structure bounded isotropic model."""
+    families = _single_families(isotropic, 1)
+    return next(
+        (
+            c.model
+            for c in (isotropic.best, *isotropic.candidates)
+            if isinstance(c, FittedCandidate)
+            and families
+            and len(c.model.structures) == 1
+            and c.model.structures[0].family == families[0]
+        ),
+        None,
+    )
+
+
+def _strategies(working, options, hood, limits, workers, omni, declustering=None):
     """Build and score the strategies; returns (strategies, isotropic fit, fan, anisotropic fit, trend, residuals)."""
     fit_stage, cv_stage = options.fit, options.cross_validation
     fixed = cv_stage.kriging
@@ -328,24 +448,24 @@ def _strategies(working, options, hood, limits, workers, omni):
     isotropic = _fit(points, working, fit_stage, variance)
     universal_only = fixed is not None and fixed.type == "universal"
     scored_candidates = CANDIDATES_SCORED if fit_stage.compare else 1
+    iso_candidates = _ranked_models(isotropic, scored_candidates)
+    # The refinement fits a nugget: only when the caller lets the fit choose it.
+    refinable = fit_stage.compare and fit_stage.nugget == "fit"
+    refined = _refined_isotropic(working, isotropic, _reach(omni)) if refinable else None
+    if refined is not None:
+        iso_candidates.append(_as_candidate(isotropic, refined.model))
     if not universal_only:
-        strategies.append(
-            _score(
-                "isotropic", _ranked_models(isotropic, scored_candidates), base, working, hood, options, limits, workers
-            )
-        )
+        strategies.append(_score("isotropic", iso_candidates, base, working, hood, options, limits, workers))
     fan, anisotropic = None, None
     wants_fan = options.variogram.directions is not None or fit_stage.anisotropy != "none"
     if working.dimension >= 2 and wants_fan and isotropic.best.model.structures:
-        fan, anisotropic = _anisotropic_fit(working, options, isotropic, variance, limits)
+        fan, anisotropic = _anisotropic_fit(working, options, isotropic, variance, limits, declustering)
     if anisotropic is not None and fan is not None and fit_stage.anisotropy != "none" and not universal_only:
-        candidates = _ranked_models(anisotropic, 2 if fit_stage.compare else 1)
-        ellipse = _directional_ellipse(fan, isotropic, working, options) if fit_stage.compare else None
-        if ellipse is not None:
-            candidates.append((ellipse, anisotropic))
-        ratio = min(m.structures[0].anisotropy.ratio for m, _ in candidates)
-        if fit_stage.anisotropy == "fit" or ratio < ANISOTROPY_WORTH_TESTING:
-            strategies.append(_score("anisotropic", candidates, base, working, hood, options, limits, workers))
+        strategy = _anisotropic_strategy(
+            working, options, isotropic, anisotropic, fan, refined, base, hood, limits, workers, _reach(omni)
+        )
+        if strategy is not None:
+            strategies.append(strategy)
     trend, residuals = None, None
     drift_allowed = fixed is None or universal_only
     if drift_allowed and working.dimension >= 1 and (fit_stage.compare or universal_only):
@@ -480,7 +600,9 @@ def analyse(
             warnings=tuple(dict.fromkeys(notes + list(fit.warnings))),
             verdict=judge(constant=True, strategy=None, model=None, label="", statistics=None),
         )
-    scored, isotropic, fan, anisotropic, trend, residuals = _strategies(working, options, hood, limits, workers, omni)
+    scored, isotropic, fan, anisotropic, trend, residuals = _strategies(
+        working, options, hood, limits, workers, omni, start.declustering
+    )
     estimated_by_null = (
         scored[0].cross_validation.statistics["count"] if scored and scored[0].name == "pure_nugget" else 0
     )

@@ -57,6 +57,14 @@ SMOOTH_MIN_NUGGET = 0.01
 SMOOTH_MAX_SHAPE_WITHOUT_NUGGET = 1.5
 AUTO_RANGE_REACH = 1.5
 DUPLICATE_RANGE_RATIO = 1.25
+# Automatic-mode fits stop earlier: on a flat (noise-like) variogram the optimiser otherwise
+# wanders to its evaluation limit at tolerances far below what the classes can resolve.
+GUARDED_TOLERANCE = 1e-9
+GUARDED_EVALUATIONS = 100
+# Starts beyond this many (anisotropic fits: ranges x class azimuths x ratios) are ranked by
+# their weighted sum of squares and only the best are solved.
+SOLVED_STARTS = 4
+STRONG_RATIO_START = 0.3
 PREFERENCE = (
     "spherical",
     "exponential",
@@ -351,7 +359,20 @@ class _Problem:
                     _fit_rule(p, "start").value(scales if k is None else per_structure[k]) for _, p, k in self.layout
                 ]
                 out.append(np.clip(np.array(theta, dtype=float), self.low + 1e-12 * np.abs(self.low), self.high))
+        if self.spec.fit_anisotropy:
+            # A second ratio start for each: strong anisotropy is a different basin than mild.
+            k = self.names.index("ratio")
+            for theta in list(out):
+                extra = theta.copy()
+                extra[k] = float(np.clip(STRONG_RATIO_START, self.low[k], self.high[k]))
+                out.append(extra)
         return out
+
+    def cost(self, theta: np.ndarray, weights: np.ndarray) -> float:
+        """The weighted sum of squares at ``theta`` (inf when the model overflows)."""
+        with np.errstate(over="ignore", invalid="ignore"):
+            value = float(np.sum(weights * (self.predict(theta) - self.gamma) ** 2))
+        return value if math.isfinite(value) else math.inf
 
 
 def _weights(weighting: str, problem: _Problem, fitted: np.ndarray | None) -> np.ndarray:
@@ -378,6 +399,8 @@ def _solve(problem: _Problem, weights: np.ndarray, start: np.ndarray):
     def residuals(theta):
         return root * (problem.predict(theta) - problem.gamma)
 
+    guarded = problem.spec.guarded
+    tolerance = GUARDED_TOLERANCE if guarded else 1e-12
     with python_warnings.catch_warnings():
         python_warnings.simplefilter("ignore", RuntimeWarning)
         return least_squares(
@@ -386,10 +409,10 @@ def _solve(problem: _Problem, weights: np.ndarray, start: np.ndarray):
             bounds=(problem.low, problem.high),
             method="trf",
             x_scale="jac",
-            max_nfev=400 * problem.size,
-            ftol=1e-12,
-            xtol=1e-12,
-            gtol=1e-12,
+            max_nfev=(GUARDED_EVALUATIONS if guarded else 400) * problem.size,
+            ftol=tolerance,
+            xtol=tolerance,
+            gtol=tolerance,
         )
 
 
@@ -413,7 +436,11 @@ def _fit_candidate(spec: _Spec, points: ExperimentalPoints, weighting: str, samp
         )
     first_weights = _weights("pairs" if weighting == "cressie" else weighting, problem, None)
     best, evaluations = None, 0
-    for start in problem.starts():
+    starts = problem.starts()
+    if len(starts) > SOLVED_STARTS:
+        # Pre-screening: solve only from the starts that already fit best.
+        starts = sorted(starts, key=lambda t: problem.cost(t, first_weights))[:SOLVED_STARTS]
+    for start in starts:
         check_deadline()
         try:
             result = _solve(problem, first_weights, start)
