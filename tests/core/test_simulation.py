@@ -147,6 +147,9 @@ def test_over_limit_work_is_refused_before_starting(samples):
         run(samples, limits=Limits(max_embedding_nodes=1000))
     assert exc.value.limit == "LAGWISE_MAX_EMBEDDING_NODES"
     with pytest.raises(LimitExceeded) as exc:
+        run(samples, return_realisations=True, limits=Limits(max_returned_values=10_000))
+    assert exc.value.limit == "LAGWISE_MAX_RETURNED_VALUES"
+    with pytest.raises(LimitExceeded) as exc:
         run(samples, return_realisations=True, limits=Limits(memory_budget_bytes=1_000_000))
     assert exc.value.limit == "LAGWISE_MEMORY_BUDGET_BYTES"
 

@@ -56,6 +56,9 @@ class Limits:
     max_embedding_nodes : int
         Nodes of the torus of a simulation's circulant embedding (``LAGWISE_MAX_EMBEDDING_NODES``;
         48 bytes each while a field is drawn).
+    max_returned_values : int
+        Realisation values a simulation may return (``LAGWISE_MAX_RETURNED_VALUES``):
+        realisations x grid nodes with ``return_realisations``; about 20 bytes of JSON each.
     """
 
     max_samples: int = 200_000
@@ -70,6 +73,7 @@ class Limits:
     memory_budget_bytes: int = 256 * 1024 * 1024
     max_simulation_values: int = 100_000_000
     max_embedding_nodes: int = 4_194_304
+    max_returned_values: int = 2_000_000
 
     def check_samples(self, n: int) -> None:
         """Refuse more than ``max_samples`` samples."""

@@ -375,6 +375,15 @@ def simulate(
             f"{realisations} realisations x {grid.size} grid nodes; ask for fewer realisations or a coarser grid.",
             "/realisations",
         )
+    if return_realisations and realisations * grid.size > limits.max_returned_values:
+        raise LimitExceeded(
+            "LAGWISE_MAX_RETURNED_VALUES",
+            limits.max_returned_values,
+            realisations * grid.size,
+            "Returned realisations are about 20 bytes of JSON per value; ask for fewer realisations or nodes, "
+            "or use the summaries (mean, quantiles, exceedance) without return_realisations.",
+            "/return_realisations",
+        )
     lattice = _lattice(samples, grid, limits.max_embedding_nodes)
     torus = smallest_torus(lattice.shape)
     if torus[0] * torus[1] > limits.max_embedding_nodes:
