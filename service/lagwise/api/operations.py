@@ -13,6 +13,7 @@ from flask import Blueprint, Response, current_app, g, request
 
 from .. import __version__
 from ..core.analysis import analyse
+from ..core.data.samples import SampleSet
 from ..core.data.variables import MultiSampleSet
 from ..core.deadline import deadline
 from ..core.errors import InvalidInput
@@ -29,6 +30,7 @@ from ..core.variography.several import several_variograms
 from . import convert, joint, serialize
 from .body import load_json
 from .columnar import ARROW_MEDIA_TYPE, arrow_answer, wants_arrow
+from .fields import pointer_token
 from .figure_set import check_cost as check_figures
 from .figure_set import render
 from .jsonio import dumps
@@ -37,6 +39,7 @@ from .problems import KINDS, Problem
 from .schemas import (
     AnalysisRequest,
     AnalysisResponse,
+    BatchAnalysisResponse,
     CrossValidationRequest,
     CrossValidationResponse,
     ExperimentalRequest,
@@ -392,13 +395,57 @@ def simulations():
 @operation(
     "/v1/analyses",
     "POST",
-    "The whole chain in one call: checks, experimental variograms, fit, cross-validation, predictions, figures, verdict",
+    "The whole chain in one call: checks, experimental variograms, fit, cross-validation, predictions, figures, verdict; "
+    "with several variables, the chain for each",
     AnalysisRequest,
-    AnalysisResponse,
+    (AnalysisResponse, BatchAnalysisResponse),
 )
 def analyses():
     document = load_json(AnalysisRequest())
-    samples = convert.sample_set(document, settings().limits)
+    given = convert.samples_of(document, settings().limits)
+    if isinstance(given, MultiSampleSet) and document["variable"]["name"] not in given.names:
+        return _batch_analyses(document, given)
+    samples = given.variable(convert.chosen_variable(document, given)) if isinstance(given, MultiSampleSet) else given
+    body, pairs = _analysis_body(document, samples)
+    return with_provenance(body, samples.input_hash, samples.size, pairs)
+
+
+def _batch_analyses(document: dict, samples: MultiSampleSet) -> Response:
+    """The whole chain for each variable of the samples, in their order, in one response."""
+    analyses, pairs = [], 0
+    for k, name in enumerate(samples.names):
+        unit = samples.units[k] if samples.units[k] is not None else document["variable"]["unit"]
+        try:
+            body, counted = _analysis_body(
+                {**document, "variable": {"name": name, "unit": unit}}, samples.variable(name)
+            )
+        except InvalidInput as exc:
+            raise _of_variable(exc, name) from None
+        body.pop("parameters", None)
+        analyses.append({"name": name, "unit": unit, **body})
+        pairs += counted
+    body = {
+        "variables": analyses,
+        "parameters": {**serialize.sample_parameters(samples), "variables": list(samples.names)},
+        "warnings": list(samples.warnings),
+    }
+    return with_provenance(body, samples.input_hash, samples.size, pairs)
+
+
+def _of_variable(exc: InvalidInput, name: str) -> InvalidInput:
+    """The error with pointers into one variable's values moved to ``/samples/variables/<name>``."""
+    column = f"/samples/variables/{pointer_token(name)}"
+    issues = [
+        replace(i, pointer=column + i.pointer[len("/samples/values") :])
+        if i.pointer.startswith("/samples/values")
+        else i
+        for i in exc.issues
+    ]
+    return InvalidInput(issues, f"variable {name!r}: {exc.summary}")
+
+
+def _analysis_body(document: dict, samples: SampleSet) -> tuple[dict, int]:
+    """The analysis of one variable: its response body (without provenance) and the pairs counted."""
     options = replace(convert.analysis_options(document), with_map="variogram_map" in document["figures"])
     check_figures(document, samples.size, settings().limits)
     result = analyse(samples, options, limits=settings().limits, workers=numba.get_num_threads())
@@ -417,8 +464,7 @@ def analyses():
             "thresholds": document["prediction"]["thresholds"] if "prediction" in document else [],
         },
     )
-    pairs = sum(row.pairs for d in result.omnidirectional.directions for row in d.classes)
-    return with_provenance(body, samples.input_hash, samples.size, pairs)
+    return body, sum(row.pairs for d in result.omnidirectional.directions for row in d.classes)
 
 
 @operation(

@@ -1554,6 +1554,24 @@ class AnalysisResponse(ResultEnvelope):
     verdict = fields.Nested(VerdictSchema)
 
 
+@always_present()
+class VariableAnalysisSchema(AnalysisResponse):
+    """The analysis of one variable of a batch (its own transform, fit, cross-validation and verdict)."""
+
+    name = fields.String()
+    unit = fields.String(allow_none=True)
+
+    class Meta:
+        exclude = ("parameters", "provenance")
+
+
+@always_present()
+class BatchAnalysisResponse(ResultEnvelope):
+    """POST /v1/analyses with several variables (samples.variables): one analysis per variable, in their order."""
+
+    variables = fields.List(fields.Nested(VariableAnalysisSchema))
+
+
 # ---- conditional simulations ---------------------------------------------------------
 
 
