@@ -124,8 +124,10 @@ class GridReport:
                 tolerance=self.tolerance,
                 within_cell_pairs=self.within_cell_pairs,
                 flagged_classes=self.flagged,
-                bound_rule="pairs misclassified by the grid lie in lag vectors whose disk of radius one cell "
-                "diagonal crosses a class edge; the bound is the widest value over every share of those pairs",
+                bound_rule="pairs the grid classifies otherwise than the exact path lie in lag vectors whose disk "
+                "of radius one cell diagonal crosses a class edge; error_bound is the widest change of the class "
+                "value over every share of those lag vectors' pairs, each share at its lag vector's mean; "
+                "pair_bound is the number of those pairs (a strict bound on the count)",
             )
         return out
 
