@@ -23,12 +23,14 @@ from .joint import Cokriging, CokrigingCrossValidation, JointFit, JointModel, va
 from .models import ModelStructure, VariogramModel
 from .results import (
     Analysis,
+    BatchAnalysis,
     Candidate,
     CrossValidation,
     DirectionVariogram,
     ExperimentalVariogram,
     ModelFit,
     Predictions,
+    SeveralVariograms,
     VariogramClass,
     VariogramMap,
 )
@@ -42,6 +44,7 @@ __all__ = [
     "FAMILIES",
     "Analysis",
     "AuthError",
+    "BatchAnalysis",
     "Candidate",
     "Cokriging",
     "CokrigingCrossValidation",
@@ -62,6 +65,7 @@ __all__ = [
     "Parameter",
     "Predictions",
     "ResponseError",
+    "SeveralVariograms",
     "RetryPolicy",
     "Simulation",
     "TransportError",

@@ -14,7 +14,15 @@ from . import columnar
 from .errors import LagwiseError, ResponseError, TransportError, ValidationError, error_for
 from .joint import Cokriging, CokrigingCrossValidation, JointFit, JointModel, variables_samples
 from .models import VariogramModel
-from .results import Analysis, CrossValidation, ExperimentalVariogram, ModelFit, Predictions, VariogramMap
+from .results import (
+    Analysis,
+    CrossValidation,
+    ExperimentalVariogram,
+    ModelFit,
+    Predictions,
+    SeveralVariograms,
+    VariogramMap,
+)
 from .retry import RetryPolicy
 from .samples import SAMPLE_MEMBERS, column, samples_document
 from .simulation import Simulation
@@ -259,7 +267,7 @@ class Lagwise:
         ids=None,
         censored=None,
         detection_limits=None,
-        columns: Mapping[str, str] | None = None,
+        columns: Mapping[str, Any] | None = None,
         lags: Mapping[str, Any] | None = None,
         directions: list[Mapping[str, Any]] | None = None,
         statistic: str | None = None,
@@ -270,8 +278,14 @@ class Lagwise:
         pairs_for_class: Mapping[str, int] | None = None,
         method: str | None = None,
         tolerance: float | None = None,
-    ) -> ExperimentalVariogram:
+        variable: str | None = None,
+    ) -> ExperimentalVariogram | SeveralVariograms:
         """Experimental variogram per direction class (``POST /v1/experimental-variograms``).
+
+        With several value columns (``columns={"values": ["lead", "zinc"]}``) or a samples
+        document with ``variables``, the result is a :class:`SeveralVariograms` (every direct
+        and cross variogram, tidy DataFrames per variable and pair), unless ``variable`` names
+        the one to use.
 
         Samples come as a table (``samples``, see :func:`samples_document`), as a raster
         (``samples=raster_samples(grid, origin, spacing)``) or as columns (``x``, ``y``, ``z``,
@@ -293,11 +307,12 @@ class Lagwise:
         ids=None,
         censored=None,
         detection_limits=None,
-        columns: Mapping[str, str] | None = None,
+        columns: Mapping[str, Any] | None = None,
         statistic: str | None = None,
         censoring: str | None = None,
         coordinates: str | None = None,
         duplicates: str | None = None,
+        variable: str | None = None,
     ) -> VariogramMap:
         """Variogram map on (2 cells + 1)^2 square cells of side ``cell_size`` (``POST /v1/variogram-maps``).
 
@@ -317,7 +332,7 @@ class Lagwise:
         ids=None,
         censored=None,
         detection_limits=None,
-        columns: Mapping[str, str] | None = None,
+        columns: Mapping[str, Any] | None = None,
         families: str | list[str] | None = None,
         nugget: str | float | None = None,
         weighting: str | None = None,
@@ -331,6 +346,7 @@ class Lagwise:
         censoring: str | None = None,
         coordinates: str | None = None,
         duplicates: str | None = None,
+        variable: str | None = None,
     ) -> ModelFit:
         """Fit variogram models (``POST /v1/model-fits``) to samples or to a previous experimental result.
 
@@ -353,7 +369,7 @@ class Lagwise:
         ids=None,
         censored=None,
         detection_limits=None,
-        columns: Mapping[str, str] | None = None,
+        columns: Mapping[str, Any] | None = None,
         kriging: Mapping[str, Any] | None = None,
         neighbourhood: Mapping[str, Any] | None = None,
         scheme: Mapping[str, Any] | None = None,
@@ -362,6 +378,7 @@ class Lagwise:
         censoring: str | None = None,
         coordinates: str | None = None,
         duplicates: str | None = None,
+        variable: str | None = None,
     ) -> CrossValidation:
         """Cross-validate kriging with ``model`` (``POST /v1/cross-validations``).
 
@@ -387,7 +404,7 @@ class Lagwise:
         ids=None,
         censored=None,
         detection_limits=None,
-        columns: Mapping[str, str] | None = None,
+        columns: Mapping[str, Any] | None = None,
         kriging: Mapping[str, Any] | None = None,
         neighbourhood: Mapping[str, Any] | None = None,
         return_weights: list[int] | None = None,
@@ -398,6 +415,7 @@ class Lagwise:
         coordinates: str | None = None,
         duplicates: str | None = None,
         arrow_answer: bool = False,
+        variable: str | None = None,
     ) -> Predictions:
         """Kriging estimates and variances (``POST /v1/predictions``) at ``targets``
         (``{"x": [...], "y": [...]}``) or on ``grid`` (``{"origin", "spacing", "shape"}``).
@@ -423,7 +441,7 @@ class Lagwise:
         ids=None,
         censored=None,
         detection_limits=None,
-        columns: Mapping[str, str] | None = None,
+        columns: Mapping[str, Any] | None = None,
         transform: str | None = None,
         kriging: Mapping[str, Any] | None = None,
         neighbourhood: Mapping[str, Any] | None = None,
@@ -561,7 +579,7 @@ class Lagwise:
         ids=None,
         censored=None,
         detection_limits=None,
-        columns: Mapping[str, str] | None = None,
+        columns: Mapping[str, Any] | None = None,
         transform: str | None = None,
         variogram: Mapping[str, Any] | None = None,
         fit: Mapping[str, Any] | None = None,

@@ -184,8 +184,12 @@ class ExperimentalVariogram(Response):
     raw: dict = _raw()
 
     @classmethod
-    def from_response(cls, document: Any) -> ExperimentalVariogram:
+    def from_response(cls, document: Any) -> Any:
+        """The response as an :class:`ExperimentalVariogram`, or as :class:`SeveralVariograms`
+        when the samples carried several variables."""
         document = _object(document, "")
+        if "variables" in document and "directions" not in document:
+            return SeveralVariograms.from_response(document)
         return _read(cls, document, "", directions=_directions(document, ""))
 
     def to_dataframe(self):
@@ -448,8 +452,11 @@ class Analysis(Response):
     raw: dict = _raw()
 
     @classmethod
-    def from_response(cls, document: Any) -> Analysis:
+    def from_response(cls, document: Any) -> Any:
+        """The response as an :class:`Analysis`, or as :class:`BatchAnalysis` for several variables."""
         document = _object(document, "")
+        if "variables" in document and "fit" not in document:
+            return BatchAnalysis.from_response(document)
         return _read(cls, document, "", **_fitted(_object(document.get("fit"), "/fit"), "/fit"))
 
     def exceedance_grid(self, threshold: float):
@@ -482,3 +489,152 @@ class Analysis(Response):
                 path.write_text(content, encoding="utf-8")
             paths.append(path)
         return paths
+
+
+@dataclass(frozen=True, kw_only=True)
+class VariableVariogram:
+    """The direct experimental variogram of one variable of a several-variable response."""
+
+    name: str
+    directions: tuple[DirectionVariogram, ...]
+    unit: str | None = None
+    summary: dict = field(default_factory=dict)
+    raw: dict = _raw()
+
+
+@dataclass(frozen=True, kw_only=True)
+class CrossVariogram:
+    """The cross statistic of a pair of variables; ``variables`` (a, b), a the tail variable of covariances."""
+
+    variables: tuple[str, ...]
+    directions: tuple[DirectionVariogram, ...]
+    raw: dict = _raw()
+
+
+def _variogram_rows(directions: tuple[DirectionVariogram, ...], **labels: Any) -> list[dict]:
+    return [
+        {**labels, "direction": index, "azimuth": d.azimuth, "tolerance": d.tolerance, **_row(c)}
+        for index, d in enumerate(directions)
+        for c in d.classes
+    ]
+
+
+@dataclass(frozen=True, kw_only=True)
+class SeveralVariograms(Response):
+    """Result of :meth:`Lagwise.experimental_variogram` for samples with several variables.
+
+    Attributes
+    ----------
+    variables : tuple of VariableVariogram
+        Each variable's direct variogram, in the samples' order.
+    cross : tuple of CrossVariogram
+        Every pair of variables (``parameters["cross_statistic"]`` says what the values are).
+    parameters, provenance : dict
+    warnings : tuple of str
+    """
+
+    variables: tuple[VariableVariogram, ...]
+    cross: tuple[CrossVariogram, ...] = ()
+    colocated_pairs: int = 0
+    parameters: dict = field(default_factory=dict)
+    warnings: tuple[str, ...] = ()
+    provenance: dict = field(default_factory=dict)
+    raw: dict = _raw()
+
+    @classmethod
+    def from_response(cls, document: Any) -> SeveralVariograms:
+        document = _object(document, "")
+        variables = tuple(
+            _read(VariableVariogram, v, f"/variables/{i}", directions=_directions(v, f"/variables/{i}"))
+            for i, v in enumerate(_items(document, "variables", ""))
+        )
+        cross = tuple(
+            _read(CrossVariogram, c, f"/cross/{i}", directions=_directions(c, f"/cross/{i}"))
+            for i, c in enumerate(_items(document, "cross", "", required=False))
+        )
+        return _read(cls, document, "", variables=variables, cross=cross)
+
+    def variable(self, name: str) -> VariableVariogram:
+        """The direct variogram of ``name`` (KeyError when the response has no such variable)."""
+        for v in self.variables:
+            if v.name == name:
+                return v
+        raise KeyError(name)
+
+    def to_dataframe(self):
+        """Tidy rows, one per (variogram, direction, class): ``first`` and ``second`` name the
+        variables (the same for a direct variogram), ``kind`` is ``direct`` or ``cross`` (needs pandas)."""
+        rows = []
+        for v in self.variables:
+            rows.extend(_variogram_rows(v.directions, kind="direct", first=v.name, second=v.name))
+        for c in self.cross:
+            rows.extend(_variogram_rows(c.directions, kind="cross", first=c.variables[0], second=c.variables[1]))
+        return _dataframe(rows)
+
+    def frames(self) -> dict:
+        """One DataFrame per variogram: keyed by the variable's name (direct) or the (a, b) pair (cross)."""
+        out: dict = {v.name: _dataframe(_variogram_rows(v.directions)) for v in self.variables}
+        out.update({tuple(c.variables): _dataframe(_variogram_rows(c.directions)) for c in self.cross})
+        return out
+
+
+@dataclass(frozen=True, kw_only=True)
+class BatchAnalysis(Response):
+    """Result of :meth:`Lagwise.analyze` for samples with several variables: one
+    :class:`Analysis` per variable (``name`` and ``unit`` in each one's ``raw``).
+
+    Attributes
+    ----------
+    variables : tuple of Analysis
+        In the samples' order.
+    names : tuple of str
+    parameters, provenance : dict
+    warnings : tuple of str
+    """
+
+    variables: tuple[Analysis, ...]
+    names: tuple[str, ...] = ()
+    parameters: dict = field(default_factory=dict)
+    warnings: tuple[str, ...] = ()
+    provenance: dict = field(default_factory=dict)
+    raw: dict = _raw()
+
+    @classmethod
+    def from_response(cls, document: Any) -> BatchAnalysis:
+        document = _object(document, "")
+        sections = _items(document, "variables", "")
+        analyses = []
+        for i, section in enumerate(sections):
+            where = f"/variables/{i}"
+            section = _object(section, where)
+            analyses.append(
+                _read(Analysis, section, where, **_fitted(_object(section.get("fit"), f"{where}/fit"), f"{where}/fit"))
+            )
+        names = tuple(str(_object(s, "").get("name")) for s in sections)
+        return _read(cls, document, "", variables=tuple(analyses), names=names)
+
+    def __getitem__(self, name: str) -> Analysis:
+        """The analysis of the variable ``name`` (KeyError when there is none)."""
+        if name not in self.names:
+            raise KeyError(name)
+        return self.variables[self.names.index(name)]
+
+    def to_dataframe(self):
+        """One row per variable: name, unit, samples, verdict level, usable, the selected model's
+        families, and the cross-validation's RMSE and standardized RMSE (needs pandas)."""
+        rows = []
+        for name, analysis in zip(self.names, self.variables, strict=True):
+            statistics = (analysis.cross_validation or {}).get("statistics") or {}
+            rows.append(
+                {
+                    "name": name,
+                    "unit": analysis.raw.get("unit"),
+                    "samples": analysis.summary.get("samples"),
+                    "verdict": analysis.verdict.get("level"),
+                    "usable": analysis.verdict.get("usable"),
+                    "families": "+".join(s.family for s in analysis.model.structures),
+                    "rmse": statistics.get("root_mean_square_error"),
+                    "rmse_standardized": statistics.get("root_mean_square_standardized_error"),
+                }
+            )
+        return _dataframe(rows)

@@ -101,7 +101,9 @@ def samples_document(
     samples : pandas.DataFrame or mapping, optional
         A table whose columns x, y, z, values (or value), ids, censored and detection_limits
         are sent when present; rename with ``columns``, e.g. ``{"values": "lead_mg_kg",
-        "ids": "sample"}``. A mapping that holds ``geojson`` is sent as it is.
+        "ids": "sample"}``. ``{"values": ["lead", "zinc"]}`` sends several value columns as
+        ``variables`` (named by their columns; missing values, None or NaN, as null: not
+        measured). A mapping that holds ``geojson`` is sent as it is.
     x, y, z, values, ids, censored, detection_limits : sequence, optional
         Columns given one by one (lists, tuples, numpy arrays, pandas Series), instead of
         ``samples``.
@@ -149,9 +151,47 @@ def samples_document(
             raise TypeError("columns applies to tables, not to GeoJSON samples (use value_property, id_property)")
         return dict(samples)
     available = _table_columns(samples)
+    several = (columns or {}).get("values")
+    if isinstance(several, (list, tuple)):
+        return _several_variables(samples, available, dict(columns or {}), list(several))
     names = _source_names(available, columns)
     document = {name: _member(name, samples[source]) for name, source in names.items() if source in available}
     _fill_censored_values(document)
+    return document
+
+
+def _not_measured(value: Any) -> Any:
+    # A table's missing value (None, or NaN in pandas) is a variable not measured at the sample.
+    if value is None or (isinstance(value, float) and math.isnan(value)):
+        return None
+    return value
+
+
+def _several_variables(table: Any, available: list, columns: dict, value_columns: list) -> dict:
+    """``samples.variables`` from a table whose ``columns["values"]`` names several value columns."""
+    if not value_columns:
+        raise ColumnsError("columns: values names no column", key="values", column="", available=available)
+    del columns["values"]
+    lacking = [c for c in value_columns if c not in available]
+    if lacking:
+        raise ColumnsError(
+            f"columns: values names {lacking[0]!r}, which the table lacks; its columns are {', '.join(map(str, available))}",
+            key="values",
+            column=str(lacking[0]),
+            available=[str(c) for c in available],
+        )
+    for member in ("censored", "detection_limits"):
+        if member in columns:
+            raise TypeError(
+                f"columns: {member} applies to one value column; send several variables' {member} as a dict"
+            )
+    names = _source_names(available, columns)
+    document: dict[str, Any] = {
+        name: _member(name, table[source])
+        for name, source in names.items()
+        if source in available and name in ("x", "y", "z", "ids")
+    }
+    document["variables"] = {str(c): [_not_measured(v) for v in column(table[c])] for c in value_columns}
     return document
 
 
