@@ -46,6 +46,13 @@ def test_raster_map(client, rng):
     assert len(r.json["values"]) == 7 and r.json["parameters"]["raster"]["spacing"] == [2.0, 1.0]
 
 
+def test_raster_map_median_falls_back_to_points(client, rng):
+    body = {"samples": {"raster": _raster(rng)}, "cell_size": 2.0, "cells": 3, "statistic": "madogram"}
+    r = client.post("/v1/variogram-maps", json=body)
+    assert r.status_code == 200, r.json
+    assert any("not an FFT statistic" in w for w in r.json["warnings"])
+
+
 def test_raster_median_falls_back_to_points(client, rng):
     body = {"samples": {"raster": _raster(rng)}, "statistic": "semivariance_median", "lags": {"width": 3, "count": 3}}
     r = client.post(URL, json=body)

@@ -230,6 +230,9 @@ def variogram_maps():
         min_pairs=document["min_pairs"],
         limits=settings().limits,
     )
+    if grid is not None:
+        note = f"{document['statistic']!r} is not an FFT statistic: the raster's cells were taken as points"
+        result = replace(result, warnings=result.warnings + (note,))
     return with_provenance(
         serialize.variogram_map(result, samples), samples.input_hash, samples.size, int(result.pairs.sum()) // 2
     )
