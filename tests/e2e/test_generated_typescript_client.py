@@ -54,6 +54,8 @@ check(rmse !== null && rmse > 0 && cv.data.samples.estimate.length === 20, "cros
 
 const prediction = await client.POST("/v1/predictions", { body: { ...examples.predictions, model } });
 if (prediction.data === undefined) throw new Error("no prediction");
+// The answer may also be an Arrow stream (Accept), typed as a string: this one is JSON.
+if (typeof prediction.data === "string") throw new Error("expected the JSON answer");
 const estimates: (number | null)[] = prediction.data.estimate;
 check(estimates.length === 9 && prediction.data.variance.length === 9, "prediction arrays");
 
