@@ -14,6 +14,7 @@ from pathlib import Path
 from lagwise.configuration import BY_NAME, markdown_table, value, whole_number
 
 from tests.live import ROOT, free_port, running_service, wait_ready
+from tests.reliability.replay import instance_pid
 
 VARIABLE = re.compile(rb"LAGWISE_[A-Z][A-Z0-9_]*[A-Z0-9]")
 SOURCES = ["service", "deploy", "client", "manage.py", ".ci"]
@@ -84,30 +85,26 @@ def test_bind_option_wins_over_the_environment(tmp_path):
         _stop(process)
 
 
-def _control_sockets() -> dict[int, str]:
-    """Control socket of every running gunicorn master started by lagwise serve, by pid."""
-    found = {}
-    for cmdline in Path("/proc").glob("[0-9]*/cmdline"):
-        try:
-            args = cmdline.read_bytes().decode(errors="replace").split("\0")
-        except OSError:
-            continue
+def _control_socket(url: str) -> str:
+    """Control socket of the gunicorn master of the ``lagwise serve`` instance at ``url``
+    (other instances may run on the same machine at the same time)."""
+    serve = instance_pid(int(url.rsplit(":", 1)[1]))
+    for master in Path(f"/proc/{serve}/task/{serve}/children").read_text().split():
+        args = Path(f"/proc/{master}/cmdline").read_bytes().decode(errors="replace").split("\0")
         if "gunicorn" in args and "--control-socket" in args:
-            found[int(cmdline.parent.name)] = args[args.index("--control-socket") + 1]
-    return found
+            return args[args.index("--control-socket") + 1]
+    raise LookupError(url)
 
 
 def test_instances_do_not_share_a_control_socket():
-    before = set(_control_sockets().values())
-    with running_service(workers=1):
-        with running_service(workers=1):
-            ours = set(_control_sockets().values()) - before
+    with running_service(workers=1) as outer:
+        with running_service(workers=1) as inner:
+            ours = {_control_socket(outer), _control_socket(inner)}
             assert len(ours) == 2
             deadline = time.monotonic() + 30
             while not all(os.path.exists(p) for p in ours) and time.monotonic() < deadline:
                 time.sleep(0.2)
             assert all(os.path.exists(p) for p in ours)
-            first_started = ours
+            kept = _control_socket(outer)
         # The inner instance stopped; the outer one's socket is still there.
-        left = set(_control_sockets().values()) - before
-        assert len(left) == 1 and left <= first_started and os.path.exists(next(iter(left)))
+        assert _control_socket(outer) == kept and os.path.exists(kept)
