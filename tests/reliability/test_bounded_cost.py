@@ -46,7 +46,7 @@ def _columns(n, seed, along_y):
     n=st.integers(20, 3000),
     seed=st.integers(0, 10),
     along_y=st.booleans(),
-    operation=st.sampled_from(["variogram", "median", "loo", "predict"]),
+    operation=st.sampled_from(["variogram", "median", "map", "loo", "predict", "analysis"]),
     max_points=st.integers(1, 500),
 )
 def test_within_the_limits_a_request_finishes_or_is_refused_in_time(
@@ -57,6 +57,12 @@ def test_within_the_limits_a_request_finishes_or_is_refused_in_time(
         url, body = "/v1/experimental-variograms", {"samples": samples}
         if operation == "median":
             body.update(statistic="semivariance_median", pairs_for_class={"direction": 0, "class": 0, "limit": 10})
+    elif operation == "map":
+        url, body = "/v1/variogram-maps", {"samples": samples}
+    elif operation == "analysis":
+        grid = {"origin": [0, 0], "spacing": [2, 2], "shape": [50, 50]}
+        url = "/v1/analyses"
+        body = {"samples": samples, "prediction": {"grid": grid}, "figures": ["variogram", "prediction_map"]}
     elif operation == "loo":
         url = "/v1/cross-validations"
         body = {"samples": samples, "model": MODEL, "neighbourhood": {"max_points": max_points}}
