@@ -466,10 +466,9 @@ class Lagwise:
     def _joint_body(self, samples, variables, coordinate_columns, model, options: Mapping[str, Any]) -> dict:
         if variables is not None:
             samples = variables_samples(samples, variables, **coordinate_columns)
-        body: dict[str, Any] = {
-            "samples": samples,
-            "model": model.to_dict() if isinstance(model, JointModel) else dict(model),
-        }
+        body: dict[str, Any] = {"samples": samples}
+        if model is not None:
+            body["model"] = model.to_dict() if isinstance(model, JointModel) else dict(model)
         for name, value in options.items():
             if value is not None:
                 body[name] = _targets(value) if name == "targets" else value
@@ -477,29 +476,47 @@ class Lagwise:
 
     def fit_joint_model(
         self,
-        experimental: Mapping[str, Any],
+        samples=None,
         *,
+        experimental: Mapping[str, Any] | None = None,
+        variables: list[str] | None = None,
+        columns: Mapping[str, str | None] | None = None,
+        lags: Mapping[str, Any] | None = None,
+        directions: list[Mapping[str, Any]] | None = None,
         families: str | list[str] | None = None,
         nugget: str | None = None,
         weighting: str | None = None,
         anisotropy: str | None = None,
         structures: int | None = None,
         min_pairs: int | None = None,
+        coordinates: str | None = None,
+        duplicates: str | None = None,
     ) -> JointFit:
-        """Fit a joint model of several variables (``POST /v1/model-fits``) to a several-variable
-        experimental response (its ``variables`` and ``cross``, as returned by the service).
+        """Fit a joint model of several variables (``POST /v1/model-fits``).
 
-        ``nugget`` is ``"fit"`` (default) or ``"none"``; ``weighting`` ``pairs``,
-        ``pairs_over_distance`` or ``uniform``.
+        Give ``samples`` (a table whose ``variables`` columns are sent, as for :meth:`cokrige`, or a
+        samples document with several variables; ``lags`` and ``directions`` shape the direct and
+        cross variograms computed first) or ``experimental``, a several-variable experimental
+        response (its ``variables`` and ``cross``). ``nugget`` is ``"fit"`` (default) or ``"none"``;
+        ``weighting`` ``pairs``, ``pairs_over_distance`` or ``uniform``.
         """
-        body: dict[str, Any] = {"experimental": dict(experimental)}
+        if (samples is None) == (experimental is None):
+            raise TypeError("give samples or experimental, not both")
+        if samples is not None:
+            body = self._joint_body(samples, variables, dict(columns or {}), None, {})
+        else:
+            body = {"experimental": dict(experimental or {})}
         options = {
+            "lags": lags,
+            "directions": directions,
             "families": families,
             "nugget": nugget,
             "weighting": weighting,
             "anisotropy": anisotropy,
             "structures": structures,
             "min_pairs": min_pairs,
+            "coordinates": coordinates,
+            "duplicates": duplicates,
         }
         body.update({k: v for k, v in options.items() if v is not None})
         return JointFit.from_response(self.request("POST", "/v1/model-fits", body))

@@ -116,7 +116,7 @@ def test_fit_joint_model_then_cokrige(lw, table):
     """The joint fit's model (PSD matrices, numpy.linalg.eigvalsh >= -1e-12) goes straight into cokrige."""
     from tests.api.test_cokriging_api import _several_experimental
 
-    fit = lw.fit_joint_model(_several_experimental(), families=["spherical"])
+    fit = lw.fit_joint_model(experimental=_several_experimental(), families=["spherical"])
     assert isinstance(fit.model, JointModel) and fit.model.variables == ("lead", "zinc")
     for structure in fit.model.structures:
         assert np.linalg.eigvalsh(np.array(structure["sills"])).min() >= -1e-12
@@ -135,3 +135,18 @@ def test_fit_joint_model_then_cokrige(lw, table):
         targets={"x": [5.0], "y": [5.0]},
     )
     assert result.estimate[0] is not None
+
+
+def test_fit_joint_model_from_a_dataframe(lw, table):
+    fit = lw.fit_joint_model(
+        table,
+        variables=["lead", "zinc"],
+        columns={"x": "east", "y": "north"},
+        lags={"width": 10.0, "count": 6},
+        families=["spherical"],
+        min_pairs=10,
+    )
+    assert fit.model.variables == ("lead", "zinc")
+    assert sum(c["selected"] for c in fit.candidates) == 1
+    with pytest.raises(TypeError):
+        lw.fit_joint_model(table, experimental={"variables": []})
