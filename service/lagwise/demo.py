@@ -25,6 +25,13 @@ CAUTION = (
     "Estimates are statistical. Decisions about contaminated land follow local regulations "
     "and the judgement of a qualified professional."
 )
+ACTION_LEVEL = 300.0  # mg/kg, an INVENTED action level for the demo
+UNIT_SIZE_M = 100.0  # side of the invented remediation units (5 x 5 nodes of the 20 m grid)
+LIMIT_CAUTION = (
+    f"The action level of {ACTION_LEVEL:g} mg/kg and the 90 % decision rule are invented for this demo. "
+    "A real limit and the rule for acting on these probabilities come from local regulation and a "
+    "qualified professional, not from this report."
+)
 
 
 def _anisotropic_distance(a: np.ndarray, b: np.ndarray, azimuth: float, ratio: float) -> np.ndarray:
@@ -87,8 +94,19 @@ def run_demo(base_url: str, out_dir: Path) -> Path:
             transform="log",
             variogram={"directions": "auto"},
             cross_validation={"neighbourhood": {"max_points": 24, "min_points": 4}},
-            prediction={"grid": {"origin": [10.0, 10.0], "spacing": [20.0, 20.0], "shape": [40, 25]}},
-            figures=["variogram", "variogram_map", "cross_validation", "prediction_map", "standard_deviation_map"],
+            prediction={
+                "grid": {"origin": [10.0, 10.0], "spacing": [20.0, 20.0], "shape": [40, 25]},
+                "thresholds": [ACTION_LEVEL],
+                "simulation": {"realisations": 100, "seed": 1, "blocks": {"size": [UNIT_SIZE_M, UNIT_SIZE_M]}},
+            },
+            figures=[
+                "variogram",
+                "variogram_map",
+                "cross_validation",
+                "prediction_map",
+                "standard_deviation_map",
+                "probability_map",
+            ],
             variable={"name": "lead", "unit": "mg/kg"},
             coordinate_unit="m",
         )
@@ -96,6 +114,7 @@ def run_demo(base_url: str, out_dir: Path) -> Path:
     report = {
         "scenario": "Elmsworth former rail depot, soil lead (mg/kg) - invented data",
         "caution": CAUTION,
+        "limit_caution": LIMIT_CAUTION,
         "omnidirectional_lead": omni.to_dict(),
         "directional_log_lead": directional.to_dict(),
         "analysis": analysis.to_dict(),
@@ -130,6 +149,47 @@ def _ratio_along_across(directional) -> str:
         if short_along < short_across
         else f"at 80-120 m along {short_along:.3f} vs across {short_across:.3f}: no clear elongation"
     )
+
+
+def _class_rows(analysis) -> list[tuple[str, int, float | None]]:
+    """(meaning, count, share) of the remediation units by probability class, or [] when not computed."""
+    if not (analysis.prediction or {}).get("classes"):
+        return []
+    return [(r["meaning"], r["count"], r["share"]) for r in analysis.probability_classes(ACTION_LEVEL)]
+
+
+def _units_text(analysis) -> str:
+    table = (analysis.prediction or {}).get("classes") or [{}]
+    kind = (
+        f"{UNIT_SIZE_M:.0f} m x {UNIT_SIZE_M:.0f} m remediation units (simulated block averages)"
+        if table[0].get("method") == "simulation"
+        else "grid nodes (kriging)"
+    )
+    return kind
+
+
+def _share_above(analysis) -> str | None:
+    simulated = (analysis.prediction or {}).get("simulation")
+    if not simulated or not simulated["above"]:
+        return None
+    f = simulated["above"][0]["fraction"]
+    return (
+        f"share of the site above {ACTION_LEVEL:g} mg/kg: {f['mean'] * 100:.0f} % on average over "
+        f"{simulated['realisations']} conditional simulations (P10 {f['p10'] * 100:.0f} %, "
+        f"P90 {f['p90'] * 100:.0f} %)"
+    )
+
+
+def _decision_lines(analysis) -> list[str]:
+    rows = _class_rows(analysis)
+    if not rows:
+        return ["Threshold decision: not computed (no prediction)"]
+    lines = [f"Threshold decision at an INVENTED action level of {ACTION_LEVEL:g} mg/kg, {_units_text(analysis)}:"]
+    lines += [f"  {count:4d} ({(share or 0) * 100:3.0f} %)  {meaning}" for meaning, count, share in rows]
+    share = _share_above(analysis)
+    lines.append("  " + (share or "share of the site above the level: not simulated (see warnings)"))
+    lines.append("  " + LIMIT_CAUTION)
+    return lines
 
 
 def _model_text(model) -> str:
@@ -175,6 +235,8 @@ def _summary_text(omni, directional, analysis, seconds) -> str:
         ),
         f"  verdict ({analysis.verdict['level']}): " + analysis.verdict["text"],
         "",
+        *_decision_lines(analysis),
+        "",
         "Warnings: " + ("; ".join(analysis.warnings) if analysis.warnings else "none"),
         "",
         "CAUTION: " + CAUTION,
@@ -197,6 +259,20 @@ def _html(omni, analysis) -> str:
         f"{html.escape(s['why'])}</li>"
         for s in (analysis.selection or {}).get("strategies", [])
     )
+    units = "".join(
+        f"<tr><td>{html.escape(meaning)}</td><td>{count}</td><td>{(share or 0) * 100:.0f} %</td></tr>"
+        for meaning, count, share in _class_rows(analysis)
+    )
+    share = _share_above(analysis)
+    decision = (
+        f"<h2>Threshold decision (invented action level {ACTION_LEVEL:g} mg/kg)</h2>"
+        f'<p class="caution">{html.escape(LIMIT_CAUTION)}</p>'
+        f"<p>{html.escape(_units_text(analysis))}:</p>"
+        f"<table><tr><th>class</th><th>units</th><th>share</th></tr>{units}</table>"
+        f"<p>{html.escape(share or 'share of the site above the level: not simulated')}</p>"
+        if units
+        else ""
+    )
     figures = "".join(
         f"<figure><figcaption>{html.escape(name.replace('_', ' '))}</figcaption>{svg[svg.index('<svg') :]}</figure>"
         for name, svg in analysis.figures.items()
@@ -213,6 +289,7 @@ th,td{{text-align:left;padding:.2em .8em;border-bottom:1px solid #e9eef0}}figure
 <h2>Verdict: {html.escape(analysis.verdict["level"].replace("_", " "))}</h2><p>{html.escape(analysis.verdict["text"])}</p>
 <h2>Strategies compared by cross-validation</h2><ul>{strategies}</ul>
 <h2>Cross-validation (log-lead)</h2><table>{rows}</table>
+{decision}
 <h2>Warnings</h2><ul>{warnings}</ul>
 <h2>Figures</h2>{figures}
 </body></html>

@@ -74,11 +74,18 @@ def test_demo_through_the_sdk(url, tmp_path: Path):
     assert sorted(p.name for p in (tmp_path / "figures").iterdir()) == [
         "cross_validation.svg",
         "prediction_map.svg",
+        "probability_map.svg",
         "standard_deviation_map.svg",
         "variogram.svg",
         "variogram_map.svg",
     ]
     assert report["analysis"]["verdict"]
+    # The threshold decision: units by probability class, the simulated share above, the caution.
+    (table,) = report["analysis"]["prediction"]["classes"]
+    assert table["method"] == "simulation" and sum(r["count"] for r in table["classes"]) == 40
+    assert report["analysis"]["prediction"]["simulation"]["above"][0]["threshold"] == 300.0
+    assert "below the limit with at least 90 % probability" in out.stdout and "P10" in out.stdout
+    assert "local regulation and a qualified professional" in (tmp_path / "index.html").read_text()
     classes = report["omnidirectional_lead"]["directions"][0]["classes"]
     assert len(classes) >= 5 and all(c["pairs"] >= 30 for c in classes)
     along, across = (d["classes"] for d in report["directional_log_lead"]["directions"])
