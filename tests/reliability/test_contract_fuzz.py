@@ -91,6 +91,8 @@ def _run_live(examples: int, timeout: float = 1800) -> None:
                 "7",
                 "--workers",
                 "2",
+                "--request-timeout",
+                "90",
             ],
             capture_output=True,
             text=True,
