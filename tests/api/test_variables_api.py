@@ -168,3 +168,15 @@ def test_statistic_without_a_cross_form_says_so(client):
 def test_scattergram_needs_one_variable(client):
     r = client.post("/v1/experimental-variograms", json={"samples": multi(), "pairs_for_class": {"class": 0}})
     problem(r, ["/pairs_for_class"])
+
+
+def test_the_pair_limit_weighs_the_variables(small_limits_client):
+    """Covariances of p variables add p x p sums per pair: a request one variable may make is refused for three."""
+    x = [float(i) for i in range(30)]
+    body = {"lags": {"width": 1, "count": 5}, "statistic": "covariance"}
+    one = small_limits_client.post("/v1/experimental-variograms", json={"samples": {"x": x, "values": x}, **body})
+    assert one.status_code == 200, one.json
+    three = {"x": x, "variables": {"a": x, "b": [v * v for v in x], "c": [-v for v in x]}}
+    refused = small_limits_client.post("/v1/experimental-variograms", json={"samples": three, **body})
+    assert refused.status_code == 422 and refused.json["type"] == "/problems/limit-exceeded", refused.json
+    assert refused.json["limit"] == "LAGWISE_MAX_PAIRS"
