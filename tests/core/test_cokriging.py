@@ -114,3 +114,19 @@ def test_collocated_perfect_correlation_without_nugget_is_singular(columns):
     model = JointModel(("lead", "zinc"), np.zeros((2, 2)), (JointStructure("spherical", 4.0, np.ones((2, 2))),))
     with pytest.raises(SingularSystem):
         Cokriger(columns, model, CokrigingSpec("ordinary", "lead"), Neighbourhood()).predict(np.zeros((1, 2)))
+
+
+def test_distinct_locations_index_every_entry_at_its_own_coordinates():
+    """Entries of one sample share a location; inert entries share one of their own."""
+    from lagwise.core.kriging.cokriging import distinct_locations
+
+    rng = np.random.default_rng(4)
+    coords = rng.uniform(0, 10, (30, 2))
+    rows = rng.integers(0, 30, (5, 12))
+    valid = rng.random((5, 12)) < 0.8
+    local, places = distinct_locations(rows, coords[rows], valid)
+    for r in range(5):
+        picked = places[r, local[r]]
+        assert np.array_equal(picked[valid[r]], coords[rows[r, valid[r]]])
+        distinct = np.unique(rows[r, valid[r]]).size + int((~valid[r]).any())
+        assert np.unique(local[r]).size == distinct

@@ -147,6 +147,39 @@ class CokrigingPrediction:
     reasons: dict
 
 
+def distinct_locations(rows: np.ndarray, points: np.ndarray, valid: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """The distinct locations of each system's entries.
+
+    Parameters
+    ----------
+    rows : ndarray of int, shape (b, k)
+        Sample row of each entry (entries of one row share its coordinates).
+    points : ndarray, shape (b, k, d)
+        Coordinates of each entry.
+    valid : ndarray of bool, shape (b, k)
+        Entries taking part; the inert ones share one location of their own.
+
+    Returns
+    -------
+    local : ndarray of int, shape (b, k)
+        Each entry's location among its system's.
+    places : ndarray, shape (b, u, d)
+        Coordinates of the locations (u the most any system has; unused slots repeat a used one).
+    """
+    keyed = np.where(valid, rows, -1)
+    order = np.argsort(keyed, axis=1, kind="stable")
+    ordered = np.take_along_axis(keyed, order, axis=1)
+    first = np.ones(keyed.shape, dtype=bool)
+    first[:, 1:] = ordered[:, 1:] != ordered[:, :-1]
+    rank = np.cumsum(first, axis=1) - 1
+    local = np.empty_like(rank)
+    np.put_along_axis(local, order, rank, axis=1)
+    places = np.repeat(points[:, :1, :], int(rank[:, -1].max()) + 1, axis=1)
+    system, slot = np.nonzero(first)
+    places[system, rank[system, slot]] = points[system, order[system, slot]]
+    return local, places
+
+
 class _Entries:
     """Measured values of every variable of the (reordered) joint model."""
 
@@ -237,19 +270,25 @@ class Cokriger:
                 out.append(1.0 - unit_semivariance(s.family, distances, s.range, s.extra))
         return out, length
 
-    def _block(self, h: np.ndarray, left: np.ndarray, right: np.ndarray, nugget: bool) -> np.ndarray:
-        """C_{left, right}(h) for separations h (..., a, b, d) and variable labels left (a,), right (b,)."""
+    def _block(self, h: np.ndarray, at: np.ndarray, labels: np.ndarray, cov: np.ndarray) -> None:
+        """C between entries, with the nugget where they share a location, written into ``cov``.
+
+        ``h`` holds the separations of distinct locations (..., d), ``at`` (..., k, k) the flat
+        position in ``h[..., 0]`` of each entry pair's separation, ``labels`` (k,) the entries'
+        variables; ``cov`` (..., k, k) receives the covariances.
+        """
         units, length = self._unit_covariances(h)
-        cov = np.zeros(h.shape[:-1])
+        picked = np.empty(at.shape)
+        cov[...] = 0.0
         for s, unit in zip(self.model.structures, units, strict=True):
-            cov += s.sills[np.ix_(left, right)] * unit
-        if nugget:
-            cov += self.model.nugget[np.ix_(left, right)] * (length == 0)
+            np.multiply(s.sills[np.ix_(labels, labels)], unit.take(at, out=picked), out=picked)
+            cov += picked
+        np.multiply(self.model.nugget[np.ix_(labels, labels)], (length == 0).take(at), out=picked)
+        cov += picked
         if not np.isfinite(cov).all():
             raise InvalidInput.at(
                 "/model", "the joint model gives non-finite covariances at these separations; check its ranges"
             )
-        return cov
 
     # ---- unique neighbourhood ------------------------------------------------
 
@@ -389,6 +428,7 @@ class Cokriger:
             idx = np.concatenate([i for i, _ in found], axis=1)
             valid = np.concatenate([ok for _, ok in found], axis=1)
             points = np.concatenate([self.entries.coords[v][i] for v, (i, _) in enumerate(found)], axis=1)
+            rows_of = np.concatenate([self.entries.rows[v][i] for v, (i, _) in enumerate(found)], axis=1)
             values = np.concatenate([self.entries.values[v][i] for v, (i, _) in enumerate(found)], axis=1)
             primary = valid[:, : widths[0]].any(axis=1)
             for t in np.flatnonzero(~primary):
@@ -401,6 +441,7 @@ class Cokriger:
                 self._solve_group(
                     targets[start:stop][group],
                     points[group],
+                    rows_of[group],
                     values[group],
                     valid[group],
                     labels,
@@ -411,26 +452,34 @@ class Cokriger:
                 )
         return CokrigingPrediction(estimate, variance, reasons)
 
-    def _solve_group(self, targets, points, values, valid, labels, positions, estimate, variance, reasons) -> None:
-        """Solve the padded systems of a batch of targets at once."""
+    def _solve_group(
+        self, targets, points, rows, values, valid, labels, positions, estimate, variance, reasons
+    ) -> None:
+        """Solve the padded systems of a batch of targets at once.
+
+        Covariances are evaluated once per pair of distinct locations of a system (variables
+        measured at one sample share its location) and picked per pair of entries.
+        """
         b, k = valid.shape
         c = self.constraints
-        h = points[:, :, None, :] - points[:, None, :, :]
-        K = self._block(h, labels, labels, True)
-        both = valid[:, :, None] & valid[:, None, :]
-        K = np.where(both, K, 0.0)
-        K[:, np.arange(k), np.arange(k)] = np.where(valid, K[:, np.arange(k), np.arange(k)], self.pad)
-        del h, both
+        local, places = distinct_locations(rows, points, valid)
+        u = places.shape[1]
+        start = np.arange(b)[:, None] * u
+        h = places[:, :, None, :] - places[:, None, :, :]
         A = np.zeros((b, k + c, k + c))
-        A[:, :k, :k] = K
+        K = A[:, :k, :k]
+        self._block(h, (start[:, :, None] + local[:, :, None]) * u + local[:, None, :], labels, K)
+        np.copyto(K, 0.0, where=~(valid[:, :, None] & valid[:, None, :]))
+        K[:, np.arange(k), np.arange(k)] = np.where(valid, K[:, np.arange(k), np.arange(k)], self.pad)
+        del h
         rhs = np.zeros((b, k + c))
-        t = points - targets[:, None, :]
-        units, length = self._unit_covariances(t)
+        units, length = self._unit_covariances(places - targets[:, None, :])
+        at = start + local
         cov = np.zeros((b, k))
         for s, unit in zip(self.model.structures, units, strict=True):
-            cov += s.sills[labels, 0][None, :] * unit
+            cov += s.sills[labels, 0][None, :] * unit.take(at)
         if self.micro:
-            cov += self.model.nugget[labels, 0][None, :] * (length == 0)
+            cov += self.model.nugget[labels, 0][None, :] * (length == 0).take(at)
         rhs[:, :k] = np.where(valid, cov, 0.0)
         if c:
             F = (labels[None, :, None] == np.arange(c)[None, None, :]) & valid[:, :, None]
