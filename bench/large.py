@@ -47,8 +47,8 @@ MISSING = 0.2
 GiB = 1024**3
 KERNEL_SAMPLES = 50_000
 PDIST_SAMPLES = 20_000
-# The kernel before the large-data rework; its figure is measured in the same run, from that commit's sources.
-OLD_KERNEL_COMMIT = "426d2fa"
+# The kernel before the spans and interleaved tables; its figure is measured in the same run, from that commit's sources.
+OLD_KERNEL_COMMIT = "cc625da"
 PARSE_SAMPLES = 1_000_000
 KRIGING_SAMPLES = 1_000_000
 KRIGING_TARGETS = 1_000_000
@@ -225,27 +225,25 @@ def raster() -> list[dict]:
 
 
 def _kernel_case(n: int, kind: str) -> dict:
+    """The pair kernel alone (``pairs.accumulate``, the semivariance's sums), best of two, wall and CPU."""
     import numpy as np
-    from lagwise.core.data.samples import build_sample_set
-    from lagwise.core.limits import Limits
+    from lagwise.core.variography import kernels as K
     from lagwise.core.variography.directions import DirectionClass
-    from lagwise.core.variography.experimental import experimental_variogram
-    from lagwise.core.variography.lags import LagRequest
-    from lagwise.core.warmup import warm_kernels
+    from lagwise.core.variography.pairs import accumulate, layout, prepare
 
-    warm_kernels()
     rng = np.random.default_rng(n)
     coords, values = rng.uniform(0, SIDE, (n, 2)), rng.normal(size=n)
-    samples = build_sample_set(values, coords[:, 0], coords[:, 1])
-    directions = [DirectionClass(a, 22.5) for a in (0.0, 45.0, 90.0, 135.0)] if kind == "fan" else None
-    lags = LagRequest(width=SIDE / 2 / CLASSES, count=CLASSES)
-    times = []
+    directions = [DirectionClass(a, 22.5) for a in (0.0, 45.0, 90.0, 135.0)] if kind == "fan" else [DirectionClass()]
+    classes = layout(directions, [np.linspace(0.0, SIDE / 2, CLASSES + 1)] * len(directions))
+    accumulate(prepare(coords[:500], values[:500]), classes, K.MODE_SQUARE)  # compiled (or loaded) outside the timing
+    prepared = prepare(coords, values)
+    best = None
     for _ in range(2):
-        start = time.perf_counter()
-        result = experimental_variogram(samples, lags=lags, directions=directions, limits=Limits(max_pairs=10**13))
-        times.append(time.perf_counter() - start)
-    pairs = sum(row.pairs for d in result.directions for row in d.classes)
-    return {"seconds": min(times), "pairs": pairs}
+        wall, cpu = time.perf_counter(), time.process_time()
+        table, _ = accumulate(prepared, classes, K.MODE_SQUARE)
+        wall, cpu = time.perf_counter() - wall, time.process_time() - cpu
+        best = (wall, cpu) if best is None or wall < best[0] else best
+    return {"seconds": best[0], "cpu_seconds": best[1], "pairs": int(table[:, :, K.COUNT].sum())}
 
 
 def _pdist_case(n: int, kind: str) -> dict:
@@ -422,13 +420,18 @@ def exact_kernel() -> list[dict]:
             old = min((r[1] for r in runs), key=lambda r: r["seconds"])
             base = _case("pdist", str(PDIST_SAMPLES), kind)
             rate, old_rate, base_rate = (r["pairs"] / r["seconds"] for r in (ours, old, base))
+            cpu_rate, old_cpu_rate = (r["pairs"] / r["cpu_seconds"] for r in (ours, old))
+            assert ours["pairs"] == old["pairs"], "the two kernels must find the same pairs"
             rows.append(
                 {
                     "figure": f"exact kernel, {KERNEL_SAMPLES:,} samples, {label}, both cores",
-                    "value": f"{rate:.3g} pairs/s ({ours['seconds']:.2f} s, {ours['pairs']:,} pairs)",
+                    "value": f"{rate:.3g} pairs/s ({ours['seconds']:.2f} s wall, {ours['cpu_seconds']:.2f} s CPU, "
+                    f"{ours['pairs']:,} pairs)",
                     "target": ">= 3e8 pairs/s",
                     "met": rate >= 3e8,
-                    "detail": f"kernel of {OLD_KERNEL_COMMIT} in this run {old_rate:.3g} pairs/s (x{rate / old_rate:.2f}); "
+                    "detail": f"{cpu_rate:.3g} pairs per CPU second (two quiet cores: {2 * cpu_rate:.3g} pairs/s); "
+                    f"kernel of {OLD_KERNEL_COMMIT} in this run {old_rate:.3g} pairs/s wall (x{rate / old_rate:.2f}), "
+                    f"{old_cpu_rate:.3g} per CPU second (x{cpu_rate / old_cpu_rate:.2f}); "
                     f"pdist + histogram at {PDIST_SAMPLES:,} samples {base_rate:.3g} pairs/s (x{rate / base_rate:.1f})",
                 }
             )

@@ -36,6 +36,8 @@ ACCUMULATORS = 11
 MODE_COUNT, MODE_SQUARE, MODE_ABSOLUTE, MODE_COVARIANCE, MODE_RELATIVE = range(5)
 
 ROW_BLOCK = 64
+SPAN = 256  # candidate pairs binned at a time (the scratch columns stay in the L1 cache)
+COPIES = 4  # interleaved copies of a thread's table (a power of two)
 
 
 @njit(cache=True)
@@ -177,22 +179,11 @@ def accumulate_classes(pts, vals, mean, max_d2, dirs, edges, nk, inv_width, mode
 
 
 @njit(cache=True, inline="always")
-def class_in(c, k, shared, lut, padded, m, d, d2, max_d2, kmax):
-    """Class of a pair in direction k: the shared class c, or looked up in k's own edges."""
-    if shared:
-        return c
-    b = lut[k, m]
-    b += np.int64(padded[k, b + 2] <= d)
-    b -= np.int64(padded[k, b + 1] > d)
-    return b if (b >= 0) & (padded[k, b + 2] < np.inf) & (d2 > 0.0) & (d2 <= max_d2) else kmax
-
-
-@njit(cache=True, inline="always")
-def add_oriented(table, b, d, vi, vj, dx, dy, dz, dirs, k, mode, mean):
-    """Add a pair to bin b, oriented along direction k when the statistic needs tail and head."""
+def add_oriented(table, b, d, vi, vj, dx, dy, dz, ux, uy, mode, mean):
+    """Add a pair to bin b, oriented along the direction (ux, uy) when the statistic needs tail and head."""
     if mode == MODE_COVARIANCE:
-        proj = dx * dirs[k, 0] + dy * dirs[k, 1]
-        perp = dx * dirs[k, 1] - dy * dirs[k, 0]
+        proj = dx * ux + dy * uy
+        perp = dx * uy - dy * ux
         forward = (proj > 0.0) | ((proj == 0.0) & ((perp > 0.0) | ((perp == 0.0) & (dz >= 0.0))))
         if forward:
             add_pair(table, b, d, vi, vj, mode, mean)
@@ -200,6 +191,161 @@ def add_oriented(table, b, d, vi, vj, dx, dy, dz, dirs, k, mode, mean):
             add_pair(table, b, d, vj, vi, mode, mean)
     else:
         add_pair(table, b, d, vi, vj, mode, mean)
+
+
+@njit(cache=True, inline="always")
+def class_of(padded, lut, k, m, d, kmax):
+    """Class of distance d in direction k from its fine cell m, or ``kmax`` outside the classes.
+
+    ``lut[k, m]`` is ``searchsorted(edges_k, m * cell, "right") - 1`` for fine cells narrower
+    than the narrowest class, so one step up and one step down (against ``padded[k] =
+    [-inf, edges_k..., +inf...]``) give exactly ``searchsorted(edges_k, d, "right") - 1``.
+    """
+    c = lut[k, m]
+    c += np.int32(padded[k, c + 2] <= d)
+    c -= np.int32(padded[k, c + 1] > d)
+    return c if (c >= 0) & (padded[k, c + 2] < np.inf) else kmax
+
+
+@njit(cache=True)
+def bin_span(
+    xs,
+    ys,
+    zs,
+    i,
+    start,
+    stop,
+    max_d2,
+    ux,
+    uy,
+    cos2,
+    band2,
+    padded,
+    lut,
+    inv_cell,
+    shared,
+    kmax,
+    scratch,
+    cell,
+    bins,
+    passes,
+    best,
+):
+    """Bins of the candidate pairs (i, j), j in [start, stop), in loops without branches.
+
+    Fills, for q = j - start: ``scratch[0, q]`` dx, ``scratch[1, q]`` dy, ``scratch[2, q]`` the
+    distance, ``cell[q]`` its fine cell, ``passes[q]`` the directions that admit the pair and
+    ``best[q]`` the last of them, and ``bins[q] = best * (kmax + 1) + class``, the class being
+    ``kmax`` (a dropped bin) when the pair lies outside the radius or the classes, is co-located,
+    or is admitted by no direction or by several (those take :func:`add_shared_pair`). Returns the
+    co-located pairs of the span.
+    """
+    xi = xs[i]
+    yi = ys[i]
+    zi = zs[i]
+    span = stop - start
+    last = np.float64(lut.shape[1] - 1)
+    ndir = ux.shape[0]
+    stride = kmax + 1
+    zero = 0
+    for q in range(span):
+        j = start + q
+        dx = xs[j] - xi
+        dy = ys[j] - yi
+        dz = zs[j] - zi
+        d2 = dx * dx + dy * dy + dz * dz
+        d = math.sqrt(d2)
+        scratch[0, q] = dx
+        scratch[1, q] = dy
+        scratch[2, q] = d
+        scratch[3, q] = d2
+        scratch[4, q] = min(d * inv_cell, last)
+        zero += np.int64(d2 == 0.0)
+    for q in range(span):
+        m = np.int32(scratch[4, q])
+        d2 = scratch[3, q]
+        c = class_of(padded, lut, 0, m, scratch[2, q], kmax)
+        cell[q] = m
+        bins[q] = c if (d2 > 0.0) & (d2 <= max_d2) else kmax
+    if ndir == 1 and cos2[0] <= 0.0 and band2[0] == np.inf:
+        # The omnidirectional class admits every pair.
+        for q in range(span):
+            passes[q] = 1
+            best[q] = 0
+        return zero
+    for q in range(span):
+        passes[q] = 0
+        best[q] = 0
+    for k in range(ndir):
+        uxk = ux[k]
+        uyk = uy[k]
+        c2 = cos2[k]
+        b2 = band2[k]
+        for q in range(span):
+            dx = scratch[0, q]
+            dy = scratch[1, q]
+            proj = dx * uxk + dy * uyk
+            perp = dx * uyk - dy * uxk
+            admitted = (proj * proj - (dx * dx + dy * dy) * c2 >= 0.0) & (perp * perp <= b2)
+            passes[q] += np.int64(admitted)
+            best[q] = k if admitted else best[q]
+    if shared:
+        for q in range(span):
+            c = bins[q] if passes[q] == 1 else kmax
+            bins[q] = best[q] * stride + c
+    else:
+        for q in range(span):
+            k = best[q]
+            d = scratch[2, q]
+            c = class_of(padded, lut, k, cell[q], d, kmax)
+            bins[q] = k * stride + (c if (bins[q] < kmax) & (passes[q] == 1) else kmax)
+    return zero
+
+
+@njit(cache=True)
+def add_shared_pair(table, xs, ys, zs, vals, i, j, d, m, max_d2, dirs, padded, lut, shared, kmax, mode, mean):
+    """Add a pair admitted by several directions (overlapping or touching sectors) to each of them."""
+    dx = xs[j] - xs[i]
+    dy = ys[j] - ys[i]
+    dz = zs[j] - zs[i]
+    d2 = dx * dx + dy * dy + dz * dz
+    if d2 == 0.0 or d2 > max_d2:
+        return
+    hh2 = dx * dx + dy * dy
+    for k in range(dirs.shape[0]):
+        proj = dx * dirs[k, 0] + dy * dirs[k, 1]
+        perp = dx * dirs[k, 1] - dy * dirs[k, 0]
+        if (proj * proj - hh2 * dirs[k, 11] >= 0.0) & (perp * perp <= dirs[k, 3]):
+            c = class_of(padded, lut, 0 if shared else k, m, d, kmax)
+            if c < kmax:
+                add_oriented(
+                    table, k * (kmax + 1) + c, d, vals[i], vals[j], dx, dy, dz, dirs[k, 0], dirs[k, 1], mode, mean
+                )
+
+
+@njit(cache=True)
+def scatter_span(table, copy_rows, xs, ys, zs, vals, i, start, stop, dirs, mode, mean, scratch, bins, best):
+    """Add the pairs (i, j), j in [start, stop), to their bins (:func:`bin_span`); pair q goes to
+    copy ``q % COPIES`` of the table so that consecutive pairs of one bin do not wait on each other."""
+    vi = vals[i]
+    span = stop - start
+    if mode == MODE_COUNT or mode == MODE_SQUARE:
+        for q in range(span):
+            b = bins[q] + (q & (COPIES - 1)) * copy_rows
+            table[b, COUNT] += 1.0
+            table[b, DISTANCE] += scratch[2, q]
+            diff = vals[start + q] - vi
+            if mode == MODE_SQUARE:
+                table[b, SQUARE] += diff * diff
+        return
+    for q in range(span):
+        j = start + q
+        b = bins[q] + (q & (COPIES - 1)) * copy_rows
+        k = best[q]
+        dz = zs[j] - zs[i]
+        add_oriented(
+            table, b, scratch[2, q], vi, vals[j], scratch[0, q], scratch[1, q], dz, dirs[k, 0], dirs[k, 1], mode, mean
+        )
 
 
 @njit(parallel=True, cache=True)
@@ -210,22 +356,22 @@ def accumulate_horizontal(pts, vals, mean, max_d2, dirs, padded, lut, inv_cell, 
     fine cells narrower than the narrowest class, so one step up and one step down
     (against ``padded[k] = [-inf, edges_k..., +inf...]``) give exactly
     ``searchsorted(edges_k, d, "right") - 1``. ``shared`` means every direction has
-    the same edges, so the class is looked up once per pair. Coordinates and direction
-    parameters are copied into contiguous columns first, and each sample gathers the
-    indexes of its neighbours within the radius in a branch-free pass before binning.
+    the same edges, so the class is looked up once per pair.
 
-    Distances inside the search radius but outside the classes go to a dropped bin
-    ``kmax``; for direction membership every direction's margin is computed and the
-    pair is added once to the best, which is exact whenever at most one direction
-    admits the pair (disjoint or touching sectors), and the rare pairs admitted by
-    several directions take a slower loop. Returns the table (ndir * kmax, ACCUMULATORS) and co-located pairs.
+    Each sample i takes its candidates j (later in x, within the radius along x) in spans
+    of :data:`SPAN`: :func:`bin_span` finds every pair's bin in loops without branches
+    over contiguous columns (compiled to SIMD instructions), pairs outside the radius,
+    the classes or every direction going to a dropped bin ``kmax`` of their direction;
+    :func:`scatter_span` then adds them to the thread's table, in :data:`COPIES`
+    interleaved copies. Pairs admitted by several directions (only where sectors overlap
+    or touch) are added to each by :func:`add_shared_pair`. Returns the table
+    (ndir * kmax, ACCUMULATORS) and co-located pairs.
     """
-    n = pts.shape[0]
     ndir = dirs.shape[0]
     kmax = padded.shape[1] - 3
     stride = kmax + 1
-    last_cell = lut.shape[1] - 1
-    tables = np.zeros((nthreads, ndir * stride, ACCUMULATORS))
+    copy_rows = ndir * stride
+    tables = np.zeros((nthreads, COPIES * copy_rows, ACCUMULATORS))
     colocated = np.zeros(nthreads, dtype=np.int64)
     nblocks = (last - first + ROW_BLOCK - 1) // ROW_BLOCK
     xs = np.ascontiguousarray(pts[:, 0])
@@ -239,65 +385,69 @@ def accumulate_horizontal(pts, vals, mean, max_d2, dirs, padded, lut, inv_cell, 
     for t in prange(nthreads):
         table = tables[t]
         zero_pairs = 0
-        near = np.empty(n, dtype=np.int64)
+        scratch = np.empty((5, SPAN))
+        cell = np.empty(SPAN, dtype=np.int32)
+        bins = np.empty(SPAN, dtype=np.int64)
+        passes = np.empty(SPAN, dtype=np.int64)
+        best = np.empty(SPAN, dtype=np.int64)
         for blk in range(t, nblocks, nthreads):
             for i in range(first + blk * ROW_BLOCK, min(last, first + (blk + 1) * ROW_BLOCK)):
-                xi = xs[i]
-                yi = ys[i]
-                zi = zs[i]
-                vi = vals[i]
-                # First pass: indexes of the samples within the radius, gathered without
-                # branches; second pass: bin those pairs.
-                end = np.searchsorted(xs, xi + radius, side="right")
-                count = 0
-                for j in range(i + 1, end):
-                    dx = xs[j] - xi
-                    dy = ys[j] - yi
-                    dz = zs[j] - zi
-                    near[count] = j
-                    count += np.int64(dx * dx + dy * dy + dz * dz <= max_d2)
-                for q in range(count):
-                    j = near[q]
-                    dx = xs[j] - xi
-                    dy = ys[j] - yi
-                    dz = zs[j] - zi
-                    d2 = dx * dx + dy * dy + dz * dz
-                    zero_pairs += np.int64(d2 == 0.0)
-                    d = math.sqrt(d2)
-                    vj = vals[j]
-                    hh2 = dx * dx + dy * dy
-                    m = min(int(d * inv_cell), last_cell)
-                    c = lut[0, m]
-                    c += np.int64(padded[0, c + 2] <= d)
-                    c -= np.int64(padded[0, c + 1] > d)
-                    # Out-of-class and co-located pairs go to the dropped bin kmax.
-                    c = c if (c >= 0) & (padded[0, c + 2] < np.inf) & (d2 > 0.0) & (d2 <= max_d2) else kmax
-                    # Usually exactly one direction admits the pair, so it is added once
-                    # without a branch; several admit it only where sectors overlap.
-                    passes = 0
-                    best = 0
-                    for k in range(ndir):
-                        proj = dx * ux[k] + dy * uy[k]
-                        perp = dx * uy[k] - dy * ux[k]
-                        inside = (proj * proj >= hh2 * cos2[k]) & (perp * perp <= band2[k])
-                        passes += np.int64(inside)
-                        best = k if inside else best
-                    if passes <= 1:
-                        b = class_in(c, best, shared, lut, padded, m, d, d2, max_d2, kmax)
-                        b = b if passes == 1 else kmax
-                        add_oriented(table, best * stride + b, d, vi, vj, dx, dy, dz, dirs, best, mode, mean)
-                    else:
-                        for k in range(ndir):
-                            proj = dx * dirs[k, 0] + dy * dirs[k, 1]
-                            perp = dx * dirs[k, 1] - dy * dirs[k, 0]
-                            if (proj * proj - hh2 * dirs[k, 11] >= 0.0) & (perp * perp <= dirs[k, 3]):
-                                b = class_in(c, k, shared, lut, padded, m, d, d2, max_d2, kmax)
-                                add_oriented(table, k * stride + b, d, vi, vj, dx, dy, dz, dirs, k, mode, mean)
+                end = np.searchsorted(xs, xs[i] + radius, side="right")
+                for start in range(i + 1, end, SPAN):
+                    stop = min(end, start + SPAN)
+                    zero_pairs += bin_span(
+                        xs,
+                        ys,
+                        zs,
+                        i,
+                        start,
+                        stop,
+                        max_d2,
+                        ux,
+                        uy,
+                        cos2,
+                        band2,
+                        padded,
+                        lut,
+                        inv_cell,
+                        shared,
+                        kmax,
+                        scratch,
+                        cell,
+                        bins,
+                        passes,
+                        best,
+                    )
+                    scatter_span(
+                        table, copy_rows, xs, ys, zs, vals, i, start, stop, dirs, mode, mean, scratch, bins, best
+                    )
+                    for q in range(stop - start):
+                        if passes[q] > 1:
+                            add_shared_pair(
+                                table,
+                                xs,
+                                ys,
+                                zs,
+                                vals,
+                                i,
+                                start + q,
+                                scratch[2, q],
+                                cell[q],
+                                max_d2,
+                                dirs,
+                                padded,
+                                lut,
+                                shared,
+                                kmax,
+                                mode,
+                                mean,
+                            )
         colocated[t] = zero_pairs
     out = tables.sum(axis=0)
     result = np.zeros((ndir * kmax, ACCUMULATORS))
     for k in range(ndir):
-        result[k * kmax : (k + 1) * kmax] = out[k * stride : k * stride + kmax]
+        for r in range(COPIES):
+            result[k * kmax : (k + 1) * kmax] += out[r * copy_rows + k * stride : r * copy_rows + k * stride + kmax]
     return result, colocated.sum()
 
 
@@ -733,18 +883,14 @@ def accumulate_square_patterns(
                     h = pattern[j]
                     hh2 = dx * dx + dy * dy
                     m_cell = min(int(d * inv_cell), last_cell)
-                    shared_c = lut[0, m_cell]
-                    shared_c += np.int64(padded[0, shared_c + 2] <= d)
-                    shared_c -= np.int64(padded[0, shared_c + 1] > d)
-                    if not ((shared_c >= 0) & (padded[0, shared_c + 2] < np.inf)):
-                        shared_c = kmax
+                    shared_c = class_of(padded, lut, 0, m_cell, d, kmax)
                     for k in range(ndir):
                         if horizontal:
                             proj = dx * dirs[k, 0] + dy * dirs[k, 1]
                             perp = dx * dirs[k, 1] - dy * dirs[k, 0]
                             if (proj * proj < hh2 * dirs[k, 11]) or (perp * perp > dirs[k, 3]):
                                 continue
-                            c = class_in(shared_c, k, shared, lut, padded, m_cell, d, d2, max_d2, kmax)
+                            c = shared_c if shared else class_of(padded, lut, k, m_cell, d, kmax)
                             if c >= nk[k]:
                                 continue
                         else:
