@@ -109,6 +109,19 @@ class NullableNumberArray(fields.Field):
         return None if value is None else [None if math.isnan(v) else float(v) for v in value]
 
 
+class Column(fields.List):
+    """A per-target or per-sample array in a response, documented as a list of its ``inner`` field.
+
+    Dumping passes the value through as it is (a numpy array, a tuple or a list), with no
+    per-element processing: orjson writes numpy arrays natively and NaN as ``null``
+    (:mod:`lagwise.api.jsonio`), and Arrow answers take the arrays as they are
+    (:mod:`lagwise.api.columnar`), so a million-target answer costs nothing here.
+    """
+
+    def _serialize(self, value, attr, obj, **kwargs):
+        return value
+
+
 def pointer_token(name: str) -> str:
     """A JSON Pointer reference token (RFC 6901: ``~`` as ``~0``, ``/`` as ``~1``)."""
     return name.replace("~", "~0").replace("/", "~1")
@@ -244,6 +257,9 @@ class Variants(fields.Field):
         form fits.
     discriminator : str, optional
         The member whose value is the form's name (documented with a mapping).
+    dumped_as : callable, optional
+        Given an object to dump, the name of its form, whose schema then dumps it; without
+        it a value is dumped as it is (an object already in its JSON form).
     """
 
     def __init__(
@@ -252,12 +268,15 @@ class Variants(fields.Field):
         pick: Callable[[dict], str],
         *,
         discriminator: str | None = None,
+        dumped_as: Callable[[object], str] | None = None,
         **kwargs,
     ):
         super().__init__(**kwargs)
         self.forms = dict(forms)
         self.pick = pick
         self.discriminator = discriminator
+        self.dumped_as = dumped_as
+        self._dumpers: dict[str, Schema] = {}
 
     def _deserialize(self, value, attr, data, **kwargs):
         if not isinstance(value, dict):
@@ -265,7 +284,12 @@ class Variants(fields.Field):
         return self.forms[self.pick(value)]().load(value)
 
     def _serialize(self, value, attr, obj, **kwargs):
-        return value
+        if value is None or self.dumped_as is None:
+            return value
+        name = self.dumped_as(value)
+        if name not in self._dumpers:
+            self._dumpers[name] = self.forms[name]()
+        return self._dumpers[name].dump(value)
 
 
 def by_discriminator(member: str, names: tuple[str, ...]) -> Callable[[dict], str]:
