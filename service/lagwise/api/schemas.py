@@ -44,6 +44,7 @@ from .fields import (
     NuggetOption,
     NullableNumberArray,
     NumberArray,
+    Rows,
     Variants,
     by_discriminator,
 )
@@ -1114,7 +1115,11 @@ class ClassSchema(Schema):
     )
 
     @post_dump
-    def _grid_members_together(self, data, **kwargs):
+    def _finish(self, data, **kwargs):
+        return self.finish_row(data)
+
+    @staticmethod
+    def finish_row(data: dict) -> dict:
         """The grid method's bounds come together (error_bound may be null); a reason only for a null error."""
         if "bound_exceeded" not in data:
             data.pop("error_bound", None)
@@ -1133,7 +1138,7 @@ class DirectionResultSchema(Schema):
     dip = fields.Float()
     dip_tolerance = fields.Float()
     vertical_bandwidth = fields.Float(allow_none=True)
-    classes = fields.List(fields.Nested(ClassSchema))
+    classes = Rows(ClassSchema)
 
 
 @always_present()
@@ -1270,7 +1275,7 @@ class FitClassSchema(Schema):
 @always_present()
 class FitDirectionSchema(Schema):
     azimuth = fields.Float()
-    classes = fields.List(fields.Nested(FitClassSchema))
+    classes = Rows(FitClassSchema)
 
 
 @always_present()
