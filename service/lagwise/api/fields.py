@@ -166,7 +166,7 @@ class Rows(fields.List):
 
     def _make_plan(self) -> list:
         schema = self.schema_class()
-        absent = getattr(schema, "absent_when_none", frozenset())
+        absent: frozenset[str] = getattr(schema, "absent_when_none", frozenset())
         plan = []
         for name, field in schema.dump_fields.items():
             attribute = field.attribute or name

@@ -99,20 +99,16 @@ class View:
         return getattr(self._source, name)
 
 
-def _dumper(schema: type) -> Any:
-    """One instance per response schema (dumping keeps no state)."""
-    return schema()
-
-
-EXPERIMENTAL = _dumper(schemas.ExperimentalResponse)
-SEVERAL_EXPERIMENTAL = _dumper(schemas.SeveralExperimentalResponse)
-MAP = _dumper(schemas.MapResponse)
-MODEL_FIT = _dumper(schemas.ModelFitResponse)
-CROSS_VALIDATION = _dumper(schemas.CrossValidationResponse)
-PREDICTION = _dumper(schemas.PredictionResponse)
-SIMULATION = _dumper(schemas.SimulationResponse)
-ANALYSIS = _dumper(schemas.AnalysisResponse)
-BATCH_ANALYSIS = _dumper(schemas.BatchAnalysisResponse)
+# One instance per response schema (dumping keeps no state).
+EXPERIMENTAL = schemas.ExperimentalResponse()
+SEVERAL_EXPERIMENTAL = schemas.SeveralExperimentalResponse()
+MAP = schemas.MapResponse()
+MODEL_FIT = schemas.ModelFitResponse()
+CROSS_VALIDATION = schemas.CrossValidationResponse()
+PREDICTION = schemas.PredictionResponse()
+SIMULATION = schemas.SimulationResponse()
+ANALYSIS = schemas.AnalysisResponse()
+BATCH_ANALYSIS = schemas.BatchAnalysisResponse()
 
 
 # ---- samples and classes --------------------------------------------------------------
@@ -406,11 +402,6 @@ def kriging_parameters(samples: SampleSet, model, spec, neighbourhood) -> dict:
     }
 
 
-def _validated_samples(result, ids) -> View:
-    """Per-sample columns of a cross-validation (``ids`` of the samples validated, in order)."""
-    return View(result, id=ids)
-
-
 def cross_validation(result, samples: SampleSet, model, spec, neighbourhood, scheme, threshold, transform) -> dict:
     """Response body of ``POST /v1/cross-validations`` (without provenance); ``transform`` the one kriged in."""
     parameters = {
@@ -425,7 +416,7 @@ def cross_validation(result, samples: SampleSet, model, spec, neighbourhood, sch
         parameters["units"] = CROSS_VALIDATION_UNITS
     view = View(
         result,
-        samples=_validated_samples(result, samples.ids),
+        samples=View(result, id=samples.ids),
         unestimated=_unestimated(result.reasons),
         parameters=parameters,
         warnings=(*samples.warnings, *result.warnings),
@@ -533,7 +524,7 @@ def cokriging_cross_validation(
     result = found.result
     view = View(
         result,
-        samples=_validated_samples(result, ids),
+        samples=View(result, id=ids),
         unestimated=_unestimated(result.reasons),
         cokriging={**_gain(found, spec.primary), "statistics_primary_only": found.primary_only.statistics},
         parameters={
@@ -698,7 +689,7 @@ def analysis_view(result, samples: SampleSet, figures: dict, options, figure_opt
         selection=_selection(result.selection),
         cross_validation=None
         if cv is None
-        else View(cv, samples=_validated_samples(cv, samples.ids), unestimated=_unestimated(cv.reasons)),
+        else View(cv, samples=View(cv, id=samples.ids), unestimated=_unestimated(cv.reasons)),
         prediction=_analysis_prediction(result, options.prediction),
         figures=figures,
         parameters={
