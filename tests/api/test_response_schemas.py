@@ -95,3 +95,16 @@ def test_serialize_imports_no_computing_function_of_the_core():
         for alias in node.names
     }
     assert imported and imported <= allowed, imported - allowed
+
+
+def test_a_three_dimensional_analysis_keeps_the_dip_members(client):
+    rng = np.random.default_rng(5)
+    n = 60
+    samples = {k: rng.uniform(0, side, n).tolist() for k, side in (("x", 100), ("y", 100), ("z", 10))}
+    samples["values"] = rng.normal(5, 1, n).tolist()
+    body = {"samples": samples, "fit": {"compare": False, "anisotropy": "none"}}
+    doc = client.post("/v1/analyses", json={**body, "cross_validation": {"kriging": {"type": "ordinary"}}}).json
+    (direction,) = doc["experimental"]["omnidirectional"]["directions"]
+    alone = client.post("/v1/experimental-variograms", json={"samples": samples}).json["directions"][0]
+    assert {"dip", "dip_tolerance", "vertical_bandwidth"} <= set(direction)
+    assert {k: v for k, v in direction.items() if k != "classes"} == {k: v for k, v in alone.items() if k != "classes"}

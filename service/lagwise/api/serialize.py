@@ -586,10 +586,10 @@ def simulation(result, samples: SampleSet, model, neighbourhood, request: dict) 
 
 
 def _variogram_body(result) -> View | None:
-    """An analysis's experimental variogram: its directions (2-D members) and co-located pairs."""
+    """An analysis's experimental variogram: its directions (dip members for 3-D samples) and co-located pairs."""
     if result is None:
         return None
-    return View(result, directions=_directions(result.directions, 2))
+    return View(result, directions=_directions(result.directions, result.summary.dimension))
 
 
 def _selection(selection) -> View | None:
