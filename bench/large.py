@@ -10,6 +10,13 @@ Sections
 * ``grid_scattered``: 10,000,000 uniform samples in a 1000 x 1000 square, values a
   smooth field plus noise; 15 classes of width 500/15; the omnidirectional class
   and 4 direction classes (tolerance 22.5 degrees) in one call, grid method.
+* ``service_scattered``: the same 10,000,000 samples as one request through the service path:
+  an Arrow multipart body (x, y, values) posted to ``/v1/experimental-variograms`` through the
+  WSGI application (Flask's test client: body reading, multipart parts, Arrow stream, schema
+  validation, sample validation with the duplicate search and the input hash, the grid variogram
+  of omni + 4 direction classes, the JSON answer) with the service's default limits, after one
+  small request of the same form (a running worker's kernels loaded); wall and CPU
+  time, the peak memory of the measuring process and how much of it the body held before the call.
 * ``grid_error``: the same layout at 200,000 samples, grid method against the exact
   pair engine: largest relative error over every class, time ratio.
 * ``raster``: a 4096 x 4096 raster with 20 % of its cells missing at random; 4
@@ -23,6 +30,11 @@ Sections
 * ``parsing``: a 1,000,000-sample request (x, y, values) read by the web layer's one parsing
   path (body, schema validation) and hashed (``provenance.input_sha256``), as an Arrow
   multipart body and as JSON.
+* ``sdk_sending``: the SDK's own time to send 1,000,000 samples given as numpy arrays
+  (``Lagwise.experimental_variogram(x=..., y=..., values=...)`` up to the hand-over of the Arrow
+  multipart body to ``requests``, network excluded), against the SDK of :data:`OLD_SDK_COMMIT`
+  (which made Python lists first) run in the same invocation from that commit's sources, and the
+  JSON form of the same call.
 * ``kriging``: ordinary kriging of 1,000,000 targets from 1,000,000 samples with 16
   neighbours (k-d tree once, targets in chunks sized by ``LAGWISE_MEMORY_BUDGET_BYTES``).
 """
@@ -50,6 +62,9 @@ PDIST_SAMPLES = 20_000
 # The kernel before the spans and interleaved tables; its figure is measured in the same run, from that commit's sources.
 OLD_KERNEL_COMMIT = "cc625da"
 PARSE_SAMPLES = 1_000_000
+SDK_SAMPLES = 1_000_000
+# The SDK before it sent numpy columns to Arrow as they are (it built Python lists first).
+OLD_SDK_COMMIT = "cc625da"
 KRIGING_SAMPLES = 1_000_000
 KRIGING_TARGETS = 1_000_000
 NOTE = "shared machine (up to 8 agents on 2 cores): figures vary with load"
@@ -104,6 +119,85 @@ def grid_scattered() -> list[dict]:
             "met": bool(seconds < 10),
             "detail": f"grid {grid.shape[0]} x {grid.shape[1]} cells of {grid.spacing[0]:.3g}; "
             f"sample validation (not in the figure) {build:.1f} s",
+        }
+    ]
+
+
+def _service_body(n: int, path: str) -> int:
+    """Write the multipart Arrow request of ``n`` scattered samples to ``path``; returns its size."""
+    import numpy as np
+    import orjson
+    import pyarrow as pa
+    from urllib3.filepost import encode_multipart_formdata
+
+    rng = np.random.default_rng(1)
+    x, y = rng.uniform(0, SIDE, n), rng.uniform(0, SIDE, n)
+    table = pa.table({"x": x, "y": y, "values": _field(x, y, rng)})
+    sink = pa.BufferOutputStream()
+    with pa.ipc.new_stream(sink, table.schema) as writer:
+        writer.write_table(table)
+    options = {
+        "method": "grid",
+        "lags": {"width": SIDE / 2 / CLASSES, "count": CLASSES},
+        "directions": [{"tolerance": 90.0}] + [{"azimuth": a, "tolerance": 22.5} for a in (0.0, 45.0, 90.0, 135.0)],
+    }
+    body, content_type = encode_multipart_formdata(
+        {
+            "request": ("request.json", orjson.dumps(options), "application/json"),
+            "samples": ("samples.arrows", sink.getvalue().to_pybytes(), "application/vnd.apache.arrow.stream"),
+        }
+    )
+    Path(path).write_bytes(body)
+    Path(path + ".type").write_text(content_type)
+    return len(body)
+
+
+def _service_case(path: str) -> dict:
+    import orjson
+    from lagwise.api import create_app
+
+    app = create_app({"TESTING": True})
+    client = app.test_client()
+    # A small request of the same form first: a running worker has loaded the grid path's kernels.
+    _service_body(1000, path + ".small")
+    warm = client.post(
+        "/v1/experimental-variograms",
+        data=Path(path + ".small").read_bytes(),
+        content_type=Path(path + ".small.type").read_text(),
+    )
+    assert warm.status_code == 200, warm.get_data()[:500]
+    body, content_type = Path(path).read_bytes(), Path(path + ".type").read_text()
+    held = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024
+    wall, cpu = time.perf_counter(), time.process_time()
+    answer = client.post("/v1/experimental-variograms", data=body, content_type=content_type)
+    wall, cpu = time.perf_counter() - wall, time.process_time() - cpu
+    assert answer.status_code == 200, answer.get_data()[:500]
+    document = orjson.loads(answer.get_data())
+    return {
+        "seconds": wall,
+        "cpu_seconds": cpu,
+        "held_bytes": held,
+        "method": document["parameters"]["method"],
+        "directions": len(document["directions"]),
+        "samples": document["summary"]["samples"],
+    }
+
+
+def service_scattered() -> list[dict]:
+    with tempfile.TemporaryDirectory(prefix="lagwise-bench-") as folder:
+        path = os.path.join(folder, "request.multipart")
+        size = _service_body(SCATTERED, path)
+        r = _case("service", path)
+    peak = r["peak_bytes"] / GiB
+    return [
+        {
+            "figure": f"{SCATTERED:,} samples as one Arrow request, omni + 4 directions, grid method, whole request",
+            "value": f"{r['seconds']:.2f} s wall, {r['cpu_seconds']:.2f} s CPU, peak {peak:.2f} GiB",
+            "target": "< 10 s, < 4 GB",
+            "met": bool(r["seconds"] < 10 and r["peak_bytes"] < 4e9),
+            "detail": f"{size / 1e6:.0f} MB body; {r['directions']} direction classes by {r['method']!r} for "
+            f"{r['samples']:,} samples; the measuring process held {r['held_bytes'] / GiB:.2f} GiB (the body, "
+            "the loaded service) before the call; CPU time counts both cores' threads",
         }
     ]
 
@@ -335,6 +429,38 @@ def _parsing_case(form: str) -> dict:
     return {"seconds": min(times), "sample_set_seconds": min(built), "bytes": len(body), "hash": digest}
 
 
+class _HandedOver(Exception):
+    """Raised by the benchmark's session where ``requests`` would send the body."""
+
+
+def _sdk_case(form: str) -> dict:
+    import numpy as np
+    from lagwise_client import Lagwise
+
+    class Session:
+        headers: dict = {}
+
+        def request(self, method, url, data=None, headers=None, timeout=None):
+            raise _HandedOver(len(data), headers.get("Content-Type", ""))
+
+        def close(self):
+            pass
+
+    rng = np.random.default_rng(9)
+    x, y, v = rng.uniform(0, SIDE, SDK_SAMPLES), rng.uniform(0, SIDE, SDK_SAMPLES), rng.normal(size=SDK_SAMPLES)
+    client = Lagwise("http://127.0.0.1:9", session=Session(), arrow_above=None if form == "json" else 20_000)
+    times, cpu = [], []
+    for _ in range(3):
+        start, start_cpu = time.perf_counter(), time.process_time()
+        try:
+            client.experimental_variogram(x=x, y=y, values=v, lags={"width": 10.0, "count": 10})
+        except _HandedOver as handed:
+            size, content_type = handed.args
+        times.append(time.perf_counter() - start)
+        cpu.append(time.process_time() - start_cpu)
+    return {"seconds": min(times), "cpu_seconds": min(cpu), "bytes": size, "content_type": content_type.split(";")[0]}
+
+
 def _kriging_case() -> dict:
     import numba
     import numpy as np
@@ -387,19 +513,24 @@ def _measure_case(case: str, *args: str) -> None:
         out = _pdist_case(int(args[0]), args[1])
     elif case == "parsing":
         out = _parsing_case(args[0])
+    elif case == "service":
+        out = _service_case(args[0])
+    elif case == "sdk":
+        out = _sdk_case(args[0])
     else:
         out = _kriging_case()
     print(json.dumps({**out, "peak_bytes": resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024}))
 
 
-def _old_sources(folder: str) -> str:
-    """Extract the service at :data:`OLD_KERNEL_COMMIT` into ``folder`` (``git archive``); returns its PYTHONPATH."""
+def _old_sources(folder: str, commit: str = OLD_KERNEL_COMMIT, tree: str = "service") -> str:
+    """Extract ``tree`` at ``commit`` into ``folder`` (``git archive``); returns its PYTHONPATH entry."""
     root = Path(__file__).resolve().parents[1]
+    package = "service/lagwise" if tree == "service" else "client/lagwise_client"
     archive = subprocess.run(
-        ["git", "-C", str(root), "archive", OLD_KERNEL_COMMIT, "service/lagwise"], capture_output=True, check=True
+        ["git", "-C", str(root), "archive", commit, package], capture_output=True, check=True
     ).stdout
     subprocess.run(["tar", "-x", "-C", folder], input=archive, check=True)
-    return os.path.join(folder, "service")
+    return os.path.join(folder, tree)
 
 
 def exact_kernel() -> list[dict]:
@@ -455,6 +586,27 @@ def parsing() -> list[dict]:
     ]
 
 
+def sdk_sending() -> list[dict]:
+    service = str(Path(__file__).resolve().parents[1] / "service")
+    with tempfile.TemporaryDirectory(prefix="lagwise-old-sdk-") as folder:
+        old_path = _old_sources(folder, OLD_SDK_COMMIT, "client")
+        new, old = _case("sdk", "arrow"), _case("sdk", "arrow", pythonpath=f"{old_path}:{service}")
+    plain = _case("sdk", "json")
+    assert new["content_type"] == old["content_type"] == "multipart/form-data"
+    return [
+        {
+            "figure": f"SDK sends {SDK_SAMPLES:,} samples given as numpy arrays (Arrow form, up to the hand-over)",
+            "value": f"{new['seconds']:.3f} s wall, {new['cpu_seconds']:.3f} s CPU ({new['bytes'] / 1e6:.1f} MB body)",
+            "target": "ratio",
+            "met": None,
+            "detail": f"SDK of {OLD_SDK_COMMIT} (lists first) in this run {old['seconds']:.3f} s wall, "
+            f"{old['cpu_seconds']:.3f} s CPU: x{old['cpu_seconds'] / new['cpu_seconds']:.1f} in CPU time; "
+            f"the JSON form {plain['seconds']:.3f} s wall, {plain['cpu_seconds']:.3f} s CPU "
+            f"({plain['bytes'] / 1e6:.1f} MB)",
+        }
+    ]
+
+
 def kriging_scale() -> list[dict]:
     r = _case("kriging")
     peak = r["peak_bytes"] / GiB
@@ -472,10 +624,12 @@ def kriging_scale() -> list[dict]:
 
 SECTIONS = [
     ("grid_scattered", grid_scattered),
+    ("service_scattered", service_scattered),
     ("grid_error", grid_error),
     ("raster", raster),
     ("exact_kernel", exact_kernel),
     ("parsing", parsing),
+    ("sdk_sending", sdk_sending),
     ("kriging", kriging_scale),
 ]
 
@@ -506,7 +660,7 @@ def main(names: list[str] | None = None) -> None:
             met = "" if row["met"] is None else ("  met" if row["met"] else "  MISSED")
             print(f"{name:15s} {row['figure']}: {row['value']} (target {row['target']}){met}", flush=True)
             print(f"{'':15s}   {row['detail']}", flush=True)
-        target = "  (target < 4 GB)" if name == "grid_scattered" else ""
+        target = "  (target < 4 GB)" if name in ("grid_scattered", "service_scattered") else ""
         print(
             f"{'':15s}   peak memory of the section's process {peak:.2f} GiB{target}; CPU seconds per wall "
             f"second {report['cpu_share']:.2f} (2 cores: 2.0 when alone); load average {os.getloadavg()[0]:.1f}",

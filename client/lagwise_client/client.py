@@ -45,7 +45,10 @@ def _is_read_timeout(exc: Exception) -> bool:
 
 
 def _plain(value: Any) -> Any:
-    """JSON form of numpy scalars that slipped into a list (``np.int64`` is not an ``int``)."""
+    """JSON form of numpy arrays (sample columns) and of numpy scalars that slipped into a list
+    (``np.int64`` is not an ``int``)."""
+    if hasattr(value, "tolist"):
+        return value.tolist()
     if hasattr(value, "item"):
         return value.item()
     raise TypeError(f"a {type(value).__name__} value cannot be sent as JSON")
@@ -92,7 +95,7 @@ def request_body(arguments: Mapping[str, Any]) -> dict:
     is sent under its own name (None means: the service's default).
     """
     members = {name: arguments.get(name) for name in SAMPLE_MEMBERS}
-    sample_set = samples_document(arguments.get("samples"), columns=arguments.get("columns"), **members)
+    sample_set = samples_document(arguments.get("samples"), columns=arguments.get("columns"), arrays=True, **members)
     body: dict[str, Any] = {"samples": sample_set} if sample_set else {}
     for name, value in arguments.items():
         if name in SAMPLE_ARGUMENTS or name in CLIENT_ARGUMENTS or value is None:
@@ -453,6 +456,7 @@ class Lagwise:
         censoring: str | None = None,
         coordinates: str | None = None,
         duplicates: str | None = None,
+        arrow_answer: bool = False,
     ) -> Simulation:
         """Gaussian conditional simulation on a 2-D ``grid`` (``POST /v1/simulations``).
 
@@ -460,7 +464,10 @@ class Lagwise:
         ``{"type": "simple", "mean": m}`` (default, mean: the declustered mean of the
         transformed values) or ``{"type": "ordinary"}``; ``blocks={"size": [bx, by]}`` in
         coordinate units tiling the grid. The service's defaults: 100 realisations, seed 1.
-        The result converts to 2-D numpy arrays per node statistic, threshold and realisation."""
+        The result converts to 2-D numpy arrays per node statistic, threshold and realisation.
+
+        ``arrow_answer=True`` (needs pyarrow) has the service answer the per-node columns (and the
+        realisations) as an Arrow stream; the result is the same."""
         return self._compute("/v1/simulations", Simulation, locals())
 
     def _joint_body(self, samples, variables, coordinate_columns, model, options: Mapping[str, Any]) -> dict:

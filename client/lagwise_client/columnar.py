@@ -59,12 +59,23 @@ def multipart_body(options: bytes, stream: bytes) -> tuple[bytes, str]:
     )
 
 
+def _key(node: Any, token: str) -> str | int:
+    """A JSON Pointer reference token (RFC 6901) as an array index or a member name of ``node``."""
+    return int(token) if isinstance(node, list) else token.replace("~1", "/").replace("~0", "~")
+
+
 def answer_document(data: bytes) -> dict:
-    """The JSON document of an Arrow answer: its columns as lists (None for null) and the members
-    kept as JSON text in the schema metadata (``response``)."""
+    """The JSON document of an Arrow answer: each column (a list, None for null) put back at its
+    JSON Pointer (the column name without the leading slash, e.g. ``quantiles/p10`` or
+    ``exceedance/0/probability``) into the members kept as JSON text in the schema metadata."""
     import pyarrow as pa
 
     table = pa.ipc.open_stream(data).read_all()
     document = json.loads(table.schema.metadata[b"response"])
-    document.update({name: table.column(name).to_pylist() for name in table.column_names})
+    for name in table.column_names:
+        *parents, last = name.split("/")
+        node: Any = document
+        for token in parents:
+            node = node[_key(node, token)]
+        node[_key(node, last)] = table.column(name).to_pylist()
     return document

@@ -40,7 +40,24 @@ def _limit(value: Any) -> Any:
     return value
 
 
-def _member(name: str, values: Any) -> list:
+NUMBER_MEMBERS = ("x", "y", "z", "values")
+
+
+def _numbers(values: Any) -> Any:
+    """A numpy array of numbers (or a pandas Series' array) as it is, else a list.
+
+    Kept as an array, a column goes into an Arrow stream without a Python object per number;
+    the JSON form turns it into a list when the body is encoded.
+    """
+    array = values.to_numpy() if hasattr(values, "to_numpy") else values
+    if getattr(array, "ndim", None) == 1 and getattr(getattr(array, "dtype", None), "kind", "") in "fiu":
+        return array
+    return column(values)
+
+
+def _member(name: str, values: Any, arrays: bool = False) -> Any:
+    if arrays and name in NUMBER_MEMBERS:
+        return _numbers(values)
     items = column(values)
     if name == "ids":
         return [_identifier(v) for v in items]
@@ -93,6 +110,7 @@ def samples_document(
     censored: Any = None,
     detection_limits: Any = None,
     columns: Mapping[str, Any] | None = None,
+    arrays: bool = False,
 ) -> dict:
     """Build the ``samples`` member from a table or from columns.
 
@@ -109,11 +127,14 @@ def samples_document(
         ``samples``.
     columns : mapping, optional
         Sample member -> the table's column name.
+    arrays : bool
+        Keep numpy arrays (and pandas Series) of numbers given for x, y, z and values as numpy
+        arrays: the client sends them into an Arrow stream as they are, or encodes them as JSON lists.
 
     Returns
     -------
     dict
-        Columns as lists; integer ids as text; missing detection limits (NaN) as None; a
+        Columns as lists (but see ``arrays``); integer ids as text; missing detection limits (NaN) as None; a
         table's missing value (NaN) at a censored sample as its detection limit (the service
         ignores the value of a censored sample).
 
@@ -137,7 +158,7 @@ def samples_document(
     if samples is None:
         if columns:
             raise TypeError("columns renames the columns of a table given as samples; no table was given")
-        return {name: _member(name, given[name]) for name in separate}
+        return {name: _member(name, given[name], arrays) for name in separate}
     if separate:
         raise TypeError(
             f"give the samples as a table or as separate columns, not both (also given: {', '.join(separate)})"
@@ -155,7 +176,7 @@ def samples_document(
     if isinstance(several, (list, tuple)):
         return _several_variables(samples, available, dict(columns or {}), list(several))
     names = _source_names(available, columns)
-    document = {name: _member(name, samples[source]) for name, source in names.items() if source in available}
+    document = {name: _member(name, samples[source], arrays) for name, source in names.items() if source in available}
     _fill_censored_values(document)
     return document
 
@@ -201,11 +222,13 @@ def _fill_censored_values(document: dict) -> None:
     The service ignores the value of a censored sample, but JSON cannot carry NaN.
     """
     flags, values, limits = (document.get(k) for k in ("censored", "values", "detection_limits"))
-    if not (flags and values and limits) or not len(flags) == len(values) == len(limits):
+    if flags is None or values is None or limits is None or not len(flags) == len(values) == len(limits):
         return
+    values = column(values)
     for i, (flag, value, limit) in enumerate(zip(flags, values, limits, strict=True)):
         if flag is True and isinstance(value, float) and math.isnan(value) and limit is not None:
             values[i] = limit
+    document["values"] = values
 
 
 def raster_samples(grid: Any, origin: Any = (0.0, 0.0), spacing: Any = (1.0, 1.0)) -> dict:

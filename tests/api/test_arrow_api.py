@@ -261,3 +261,162 @@ def test_parts_without_filenames_and_an_unclosed_part(client, columns):
     assert r.json["provenance"]["input_sha256"] == by_json.json["provenance"]["input_sha256"]
     r = client.post("/v1/experimental-variograms", data=body[: len(body) - 12], headers=headers)
     assert r.status_code == 400 and r.json["type"] == "/problems/malformed-request"
+
+
+# ---- several variables in, simulations and cokriging out ---------------------------------------
+
+SIM_MODEL = {"nugget": 0.1, "structures": [{"family": "spherical", "partial_sill": 0.9, "range": 30.0}]}
+JOINT_MODEL = {
+    "variables": ["lead", "zinc"],
+    "nugget": [[0.02, 0.01], [0.01, 0.05]],
+    "structures": [{"family": "spherical", "range": 40.0, "sills": [[0.5, 0.3], [0.3, 0.6]]}],
+}
+
+
+def put_back(data: bytes) -> dict:
+    """Reference reading of an Arrow answer: each column's list placed at its JSON Pointer (RFC 6901)
+    into the metadata's document (a moved member is absent from its object, null in its array)."""
+    table = pa.ipc.open_stream(data).read_all()
+    document = json.loads(table.schema.metadata[b"response"])
+    for name in table.column_names:
+        *parents, last = name.split("/")
+        node = document
+        for token in parents:
+            node = node[int(token)] if isinstance(node, list) else node[token.replace("~1", "/").replace("~0", "~")]
+        node[int(last) if isinstance(node, list) else last] = table.column(name).to_pylist()
+    return document
+
+
+def arrow_and_json(client, url: str, options: dict, samples: dict):
+    by_json = client.post(url, json={**options, "samples": samples})
+    answer = client.post(url, json={**options, "samples": samples}, headers={"Accept": ARROW})
+    assert by_json.status_code == answer.status_code == 200, answer.data[:500]
+    assert answer.mimetype == ARROW
+    return by_json.json, answer.get_data()
+
+
+def test_simulations_answer_in_arrow_when_asked(client, columns):
+    options = {
+        "model": SIM_MODEL,
+        "grid": {"origin": [0, 0], "spacing": [10, 10], "shape": [8, 6]},
+        "realisations": 6,
+        "thresholds": [0.0, 1.0],
+        "blocks": {"size": [20, 20]},
+        "return_realisations": True,
+    }
+    by_json, data = arrow_and_json(client, "/v1/simulations", options, as_json(columns))
+    table = pa.ipc.open_stream(data).read_all()
+    assert table.num_rows == 48
+    assert table.column_names == [
+        "mean",
+        "variance",
+        "quantiles/p10",
+        "quantiles/p50",
+        "quantiles/p90",
+        "exceedance/0/probability",
+        "exceedance/1/probability",
+        *[f"realisations/{r}" for r in range(6)],
+    ]
+    assert without_timing(put_back(data)) == without_timing(by_json)
+    rest = json.loads(table.schema.metadata[b"response"])
+    assert "mean" not in rest and rest["realisations"] == [None] * 6 and rest["exceedance"][0] == {"threshold": 0.0}
+    assert rest["blocks"] == by_json["blocks"]  # block summaries have their own length: they stay JSON
+
+
+def test_predictions_with_thresholds_answer_exceedance_columns(client, columns):
+    options = {"model": MODEL, "grid": {"origin": [0, 0], "spacing": [25, 25], "shape": [5, 5]}, "thresholds": [0.5]}
+    by_json, data = arrow_and_json(client, "/v1/predictions", options, as_json(columns))
+    assert "exceedance/0/probability" in pa.ipc.open_stream(data).read_all().column_names
+    assert without_timing(put_back(data)) == without_timing(by_json)
+
+
+@pytest.fixture()
+def several(rng):
+    n = 90
+    x, y = rng.uniform(0, 100, n), rng.uniform(0, 100, n)
+    lead = np.sin(x / 15) + rng.normal(0, 0.2, n)
+    zinc = 0.6 * lead + rng.normal(0, 0.3, n)
+    lead[::5] = np.nan  # not measured
+    censored = np.zeros(n, dtype=bool)
+    censored[[2, 9]] = True
+    limits = np.where(censored, 0.05, np.nan)
+    json_form = {
+        "x": x.tolist(),
+        "y": y.tolist(),
+        "variables": {"lead": [None if np.isnan(v) else v for v in lead], "zinc": zinc.tolist()},
+        "censored": {"zinc": censored.tolist()},
+        "detection_limits": {"zinc": [None if np.isnan(v) else v for v in limits]},
+        "units": {"lead": "mg/kg"},
+    }
+    lead_field = pa.field("variables/lead", pa.float64(), metadata={"unit": "mg/kg"})
+    table = pa.table(
+        [x, y, pa.array(lead, from_pandas=True), zinc, censored, pa.array(limits, from_pandas=True)],
+        schema=pa.schema(
+            [
+                pa.field("x", pa.float64()),
+                pa.field("y", pa.float64()),
+                lead_field,
+                pa.field("variables/zinc", pa.float64()),
+                pa.field("censored/zinc", pa.bool_()),
+                pa.field("detection_limits/zinc", pa.float64()),
+            ]
+        ),
+    )
+    return json_form, table
+
+
+SEVERAL_ENDPOINTS = {
+    "/v1/experimental-variograms": {"lags": {"width": 10, "count": 6}},
+    "/v1/predictions": {"model": JOINT_MODEL, "primary": "lead", "targets": {"x": [10.0, 50.0], "y": [20.0, 70.0]}},
+    "/v1/cross-validations": {"model": JOINT_MODEL, "primary": "lead", "neighbourhood": {"max_points": 12}},
+}
+
+
+@pytest.mark.parametrize("url", list(SEVERAL_ENDPOINTS))
+def test_several_variables_in_arrow_give_the_json_answer(client, several, url):
+    json_form, table = several
+    options = SEVERAL_ENDPOINTS[url]
+    by_json = client.post(url, json={**options, "samples": json_form})
+    by_arrow = multipart(client, url, options, stream(table))
+    assert by_json.status_code == by_arrow.status_code == 200, by_arrow.json
+    assert without_timing(by_arrow.json) == without_timing(by_json.json)
+    assert by_arrow.json["provenance"]["input_sha256"] == by_json.json["provenance"]["input_sha256"]
+
+
+def test_cokriging_predictions_answer_in_arrow_when_asked(client, several):
+    json_form, table = several
+    options = SEVERAL_ENDPOINTS["/v1/predictions"]
+    by_json, data = arrow_and_json(client, "/v1/predictions", options, json_form)
+    assert pa.ipc.open_stream(data).read_all().column_names == ["x", "y", "estimate", "variance"]
+    assert without_timing(put_back(data)) == without_timing(by_json)
+    arrow_both = multipart(client, "/v1/predictions", options, stream(table), headers={"Accept": ARROW})
+    assert put_back(arrow_both.get_data())["provenance"]["input_sha256"] == by_json["provenance"]["input_sha256"]
+
+
+@pytest.mark.parametrize(
+    ("columns", "pointer", "words"),
+    [
+        (
+            {"x": [1.0, 2.0, 3.0], "values": [1.0, 2.0, 3.0], "variables/lead": [1.0, 2.0, 3.0]},
+            "/samples/values",
+            "not both",
+        ),
+        (
+            {"x": [1.0, 2.0, 3.0], "variables/lead": [1.0, 2.0, 3.0], "censored/zinc": [True, False, False]},
+            "/samples/censored/zinc",
+            "names no",
+        ),
+        ({"x": [1.0, 2.0, 3.0], "variables/lead": [1.0, float("nan"), 3.0]}, "/samples/variables/lead/1", "null marks"),
+        (
+            {"x": [1.0, 2.0, 3.0], "variables/a/b": [1.0, 2.0, float("inf")]},
+            "/samples/variables/a~1b/2",
+            "not a finite",
+        ),
+        ({"x": [1.0, 2.0, 3.0], "variables/lead": ["a", "b", "c"]}, "/samples/variables/lead", "must hold numbers"),
+    ],
+)
+def test_bad_variable_columns_are_named(client, columns, pointer, words):
+    r = multipart(client, "/v1/experimental-variograms", {}, stream(pa.table(columns)))
+    assert r.status_code == 422, r.json
+    assert pointer in pointers(r), r.json
+    assert any(words in e["detail"] for e in r.json["errors"])

@@ -67,21 +67,3 @@ def test_input_hash_is_sha256_of_float64_columns():
 def test_geographic_wide_span_warns():
     samples = build_sample_set([1.0, 2.0, 3.0], [0.0, 5.0, 10.0], [0.0, 0.0, 1.0], coordinates="geographic")
     assert any("loses accuracy" in w for w in samples.warnings)
-
-
-def test_locations_number_like_numpy_unique():
-    """Reference: numpy.unique(axis=0, return_index, return_inverse, return_counts)."""
-    from lagwise.core.data.samples import locations
-
-    rng = np.random.default_rng(17)
-    for d in (1, 2, 3):
-        coords = rng.integers(0, 6, (3000, d)).astype(float)
-        coords[::7, 0] = -0.0  # equal to 0.0 as a number
-        coords[1::7, 0] = 0.0
-        _, first, inverse, counts = np.unique(
-            coords, axis=0, return_index=True, return_inverse=True, return_counts=True
-        )
-        got_first, got_inverse, got_counts = locations(coords)
-        np.testing.assert_array_equal(got_first, first)
-        np.testing.assert_array_equal(got_inverse, inverse.reshape(-1))
-        np.testing.assert_array_equal(got_counts, counts)

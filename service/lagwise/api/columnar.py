@@ -30,6 +30,7 @@ from flask import request
 from werkzeug.http import parse_options_header
 
 from ..core.errors import FieldIssue, InvalidInput, LimitExceeded
+from .fields import pointer_token
 from .jsonio import dumps
 from .problems import Problem
 
@@ -37,6 +38,8 @@ ARROW_MEDIA_TYPE = "application/vnd.apache.arrow.stream"
 MULTIPART_MEDIA_TYPE = "multipart/form-data"
 JSON_MEDIA_TYPE = "application/json"
 METADATA_KEY = b"response"
+# Field metadata key of a variable column holding the variable's unit.
+UNIT_KEY = b"unit"
 # The options part is small JSON; a larger one is a mistake (or samples sent as a text field).
 MAX_OPTIONS_BYTES = 1 << 20
 MAX_PARTS = 8
@@ -105,39 +108,85 @@ def split_form(body: bytes, content_type: str) -> tuple[memoryview, memoryview]:
     return parts["request"][1], samples
 
 
+VARIABLE_PREFIXES = ("variables", "censored", "detection_limits")
+
+
+def _split(name: str) -> tuple[str, str | None]:
+    """``("variables", "lead")`` for the column ``variables/lead``; ``(name, None)`` for a plain column."""
+    prefix, slash, variable = name.partition("/")
+    return (prefix, variable) if slash and prefix in VARIABLE_PREFIXES else (name, None)
+
+
 def _kind_error(name: str, kind: pa.DataType) -> str | None:
-    if name in NUMBER_COLUMNS or name == "detection_limits":
+    prefix, _ = _split(name)
+    if prefix in NUMBER_COLUMNS or prefix in ("variables", "detection_limits"):
         ok = pa.types.is_floating(kind) or pa.types.is_integer(kind)
         return None if ok else f"column {name} must hold numbers (floating-point or integer), got {kind}"
-    if name == "censored":
-        return None if pa.types.is_boolean(kind) else f"column censored must be boolean, got {kind}"
+    if prefix == "censored":
+        return None if pa.types.is_boolean(kind) else f"column {name} must be boolean, got {kind}"
     text = pa.types.is_string(kind) or pa.types.is_large_string(kind) or pa.types.is_string_view(kind)
     return None if text or pa.types.is_integer(kind) else f"column ids must hold text or integers, got {kind}"
 
 
-def _check_schema(schema: pa.Schema) -> None:
+def _form_issues(names: list[str]) -> list[FieldIssue]:
+    """One variable (``values``) or several (``variables/<name>`` columns), not both; per-variable
+    censoring columns name a variable of the stream."""
+    variables = {v for prefix, v in map(_split, names) if prefix == "variables"}
+    several = [n for n in names if _split(n)[1] is not None]
     issues = []
-    for name in ("x", "values"):
-        if name not in schema.names:
-            issues.append(FieldIssue(f"/samples/{name}", f"the Arrow stream has no column {name}"))
+    if "x" not in names:
+        issues.append(FieldIssue("/samples/x", "the Arrow stream has no column x"))
+    if not variables and "values" not in names:
+        issues.append(FieldIssue("/samples/values", "the Arrow stream has no column values (nor variables/<name>)"))
+    if variables and any(n in names for n in ("values", "censored", "detection_limits")):
+        issues.append(
+            FieldIssue(
+                "/samples/values",
+                "give values, censored and detection_limits (one variable) or variables/<name> columns "
+                "(several), not both",
+            )
+        )
+    for name in several:
+        prefix, variable = _split(name)
+        if prefix != "variables" and variable not in variables:
+            issues.append(
+                FieldIssue(
+                    f"/samples/{prefix}/{pointer_token(variable or '')}",
+                    f"column {name} names no variables/{variable} column",
+                )
+            )
+    return issues
+
+
+def _check_schema(schema: pa.Schema) -> None:
+    issues = _form_issues(schema.names)
     seen: set[str] = set()
     for column in schema:
         if column.name in seen:
-            issues.append(FieldIssue(f"/samples/{column.name}", f"column {column.name} appears twice"))
+            issues.append(FieldIssue(_pointer(column.name), f"column {column.name} appears twice"))
             continue
         seen.add(column.name)
-        if column.name not in COLUMNS:
+        if column.name not in COLUMNS and _split(column.name)[1] is None:
             issues.append(
                 FieldIssue(
-                    f"/samples/{column.name}", f"unknown column {column.name!r}; the columns are {', '.join(COLUMNS)}"
+                    f"/samples/{column.name}",
+                    f"unknown column {column.name!r}; the columns are {', '.join(COLUMNS)}, or x, y, z, ids and "
+                    "variables/<name> (with censored/<name>, detection_limits/<name>) for several variables",
                 )
             )
             continue
         message = _kind_error(column.name, column.type)
         if message:
-            issues.append(FieldIssue(f"/samples/{column.name}", message))
+            issues.append(FieldIssue(_pointer(column.name), message))
     if issues:
         raise InvalidInput(issues)
+
+
+def _pointer(name: str, row: int | None = None) -> str:
+    """JSON Pointer of a column (``/samples/variables/lead``) or of one of its rows."""
+    prefix, variable = _split(name)
+    base = f"/samples/{prefix}" if variable is None else f"/samples/{prefix}/{pointer_token(variable)}"
+    return base if row is None else f"{base}/{row}"
 
 
 def _batches(reader: pa.ipc.RecordBatchStreamReader, max_rows: int) -> list[pa.RecordBatch]:
@@ -167,17 +216,53 @@ def _batches(reader: pa.ipc.RecordBatchStreamReader, max_rows: int) -> list[pa.R
 
 
 def _column(name: str, column: pa.ChunkedArray):
-    """A numpy array (numbers, flags) or a list of text (ids) from one Arrow column."""
-    if name == "detection_limits":
-        return column.cast(pa.float64(), safe=False).fill_null(np.nan).to_numpy()
+    """A numpy array (numbers, flags) or a list of text (ids) from one Arrow column.
+
+    Nulls: a detection limit's is none, a variable's is not measured (NaN, as JSON's null);
+    elsewhere they are refused, as is a NaN number where null marks not measured.
+    """
+    prefix, _ = _split(name)
+    if prefix in ("detection_limits", "variables"):
+        numbers = column.cast(pa.float64(), safe=False)
+        if prefix == "variables":
+            given = numbers.fill_null(0.0).to_numpy()
+            nan = np.flatnonzero(np.isnan(given))
+            if nan.size:
+                raise InvalidInput(
+                    [
+                        FieldIssue(_pointer(name, int(i)), "not a finite number (null marks not measured)")
+                        for i in nan[:MAX_LISTED]
+                    ]
+                )
+        return numbers.fill_null(np.nan).to_numpy()
     if column.null_count:
         missing = np.flatnonzero(~column.is_valid().to_numpy(zero_copy_only=False))
-        raise InvalidInput([FieldIssue(f"/samples/{name}/{int(i)}", "missing (null)") for i in missing[:MAX_LISTED]])
+        raise InvalidInput([FieldIssue(_pointer(name, int(i)), "missing (null)") for i in missing[:MAX_LISTED]])
     if name in NUMBER_COLUMNS:
         return column.cast(pa.float64(), safe=False).to_numpy()
-    if name == "censored":
+    if prefix == "censored":
         return column.to_numpy(zero_copy_only=False)
     return [str(v) for v in column.to_pylist()]
+
+
+def _samples_member(table: pa.Table) -> dict:
+    """The ``samples`` member of the JSON form: plain columns, and ``variables``, ``censored``,
+    ``detection_limits`` and ``units`` (from a variable column's field metadata ``unit``) by name."""
+    samples: dict = {}
+    units = {}
+    for field in table.schema:
+        prefix, variable = _split(field.name)
+        value = _column(field.name, table.column(field.name))
+        if variable is None:
+            samples[prefix] = value
+            continue
+        samples.setdefault(prefix, {})[variable] = value
+        unit = (field.metadata or {}).get(UNIT_KEY)
+        if prefix == "variables" and unit is not None:
+            units[variable] = unit.decode("utf-8", errors="replace")
+    if units:
+        samples["units"] = units
+    return samples
 
 
 def read_samples(data: bytes | memoryview, max_rows: int) -> dict:
@@ -193,8 +278,10 @@ def read_samples(data: bytes | memoryview, max_rows: int) -> dict:
     Returns
     -------
     dict
-        Column name to float64 array (numbers; NaN for a null detection limit), boolean
-        array (``censored``) or list of str (``ids``).
+        The ``samples`` member of the JSON form: column name to float64 array (numbers; NaN
+        for a null detection limit or an unmeasured variable), boolean array (``censored``)
+        or list of str (``ids``); for several variables, ``variables``, ``censored`` and
+        ``detection_limits`` map each variable's name to its column and ``units`` to its unit.
 
     Raises
     ------
@@ -208,8 +295,7 @@ def read_samples(data: bytes | memoryview, max_rows: int) -> dict:
     except (pa.ArrowException, OSError) as exc:
         raise InvalidInput.at("/samples", f"the samples part is not an Arrow IPC stream: {exc}") from None
     _check_schema(reader.schema)
-    table = pa.Table.from_batches(_batches(reader, max_rows), schema=reader.schema)
-    return {name: _column(name, table.column(name)) for name in table.column_names}
+    return _samples_member(pa.Table.from_batches(_batches(reader, max_rows), schema=reader.schema))
 
 
 def wants_arrow() -> bool:
@@ -217,12 +303,62 @@ def wants_arrow() -> bool:
     return request.accept_mimetypes.best_match([JSON_MEDIA_TYPE, ARROW_MEDIA_TYPE]) == ARROW_MEDIA_TYPE
 
 
+Path = tuple[str | int, ...]
+
+
+def _at(document, path: Path):
+    for key in path:
+        document = document[key]
+    return document
+
+
+def _expand(document: dict, pattern: str) -> list[Path]:
+    """The paths of ``document`` that ``pattern`` names (``/``-separated; ``*`` is any member or element)."""
+    paths: list[Path] = [()]
+    for token in pattern.split("/"):
+        found: list[Path] = []
+        for path in paths:
+            node = _at(document, path)
+            if isinstance(node, dict):
+                found += [(*path, k) for k in (node if token == "*" else [token] if token in node else [])]
+            elif token == "*" and isinstance(node, (list, tuple, np.ndarray)):
+                found += [(*path, i) for i in range(len(node))]
+        paths = found
+    return [p for p in paths if isinstance(_at(document, p), (list, tuple, np.ndarray))]
+
+
+def _without(node, paths: list[Path]):
+    """A copy of ``node`` without the arrays at ``paths``: object members dropped, array elements null."""
+    heads: dict = {}
+    for path in paths:
+        heads.setdefault(path[0], []).append(path[1:])
+    if isinstance(node, dict):
+        return {
+            k: v if k not in heads else _without(v, heads[k]) for k, v in node.items() if () not in heads.get(k, [])
+        }
+    items = list(node)
+    for i, rest in heads.items():
+        items[i] = None if () in rest else _without(items[i], rest)
+    return items
+
+
+def column_name(path: Path) -> str:
+    """The Arrow column of the array at ``path``: its JSON Pointer without the leading ``/``."""
+    return "/".join(pointer_token(str(key)) for key in path)
+
+
 def arrow_answer(document: dict, columns: Sequence[str]) -> bytes:
-    """An Arrow IPC stream of ``document``'s members named in ``columns`` (float64, NaN as null),
-    with the other members as JSON text in the schema metadata (key ``response``)."""
-    arrays = {name: pa.array(np.asarray(document[name], dtype=np.float64), from_pandas=True) for name in columns}
-    rest = {name: value for name, value in document.items() if name not in arrays}
-    table = pa.table(arrays).replace_schema_metadata({METADATA_KEY: dumps(rest)})
+    """An Arrow IPC stream of ``document``'s per-node arrays named by the patterns ``columns``.
+
+    Each array becomes a float64 column (NaN and null as null) named by its JSON Pointer without
+    the leading slash (``mean``, ``quantiles/p10``, ``exceedance/0/probability``; ``*`` in a
+    pattern is any member or element). The rest of the document, as JSON text, is the schema
+    metadata (key ``response``): a moved array's member is left out of its object, or is
+    ``null`` in its array, so that putting each column back at its pointer gives the JSON answer.
+    """
+    paths = [path for pattern in columns for path in _expand(document, pattern)]
+    arrays = {column_name(p): pa.array(np.asarray(_at(document, p), dtype=np.float64), from_pandas=True) for p in paths}
+    table = pa.table(arrays).replace_schema_metadata({METADATA_KEY: dumps(_without(document, paths))})
     sink = pa.BufferOutputStream()
     with pa.ipc.new_stream(sink, table.schema) as writer:
         writer.write_table(table)

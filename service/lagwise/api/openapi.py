@@ -178,7 +178,10 @@ def _request_schema(request) -> object:
 SAMPLES_PART = (
     "The samples as an Apache Arrow IPC stream, sent as a file part: float columns x (required), y, z, "
     f"values (required), detection_limits (null: none) and optional ids (text) and censored (boolean); "
-    f"the columns are {', '.join(COLUMNS)}. Limits of their own: LAGWISE_MAX_ARROW_BYTES for the body and "
+    f"the columns are {', '.join(COLUMNS)}. Several variables: in place of values, censored and "
+    "detection_limits, one float column variables/<name> per variable (null: not measured) with optional "
+    "censored/<name> (boolean) and detection_limits/<name>; a variable's unit in its field metadata key unit. "
+    "Limits of their own: LAGWISE_MAX_ARROW_BYTES for the body and "
     "LAGWISE_MAX_ARROW_ROWS for the rows (it replaces LAGWISE_MAX_SAMPLES), checked before the columns are read. "
     "The same samples give the same results and provenance.input_sha256 as JSON columns."
 )
@@ -233,9 +236,12 @@ def _arrow_answer(columns: tuple[str, ...]) -> dict:
             "type": "string",
             "format": "binary",
             "contentMediaType": ARROW_MEDIA_TYPE,
-            "description": f"With Accept: {ARROW_MEDIA_TYPE}, an Arrow IPC stream: float64 columns "
-            f"{', '.join(columns)} (those present; null where the JSON answer has null) and the other members "
-            f"of the JSON answer as JSON text in the schema metadata key {METADATA_KEY.decode()!r}.",
+            "description": f"With Accept: {ARROW_MEDIA_TYPE}, an Arrow IPC stream with one float64 column per "
+            "per-node array of the JSON answer (null where the JSON answer has null), named by its JSON Pointer "
+            f"without the leading slash: {', '.join(columns)} (* is any member or element; those present, e.g. "
+            "exceedance/0/probability). The rest of the JSON answer is JSON text in the schema metadata key "
+            f"{METADATA_KEY.decode()!r}, where a moved array is left out of its object or is null in its array: "
+            "putting each column back at its pointer gives the JSON answer.",
         }
     }
 

@@ -79,10 +79,12 @@ class Operation:
 
 OPERATIONS: list[Operation] = []
 COMPUTE_ERRORS = (400, 413, 415, 422, 503)
-# Per-target arrays a prediction answers as Arrow columns when asked (Accept).
-PREDICTION_COLUMNS = ("x", "y", "z", "estimate", "variance")
+# Per-target (per-node) arrays answered as Arrow columns when asked (Accept), as patterns of
+# JSON Pointers (``*``: any member or element; see lagwise.api.columnar.arrow_answer).
+PREDICTION_COLUMNS = ("x", "y", "z", "estimate", "variance", "exceedance/*/probability")
+SIMULATION_COLUMNS = ("mean", "variance", "quantiles/*", "exceedance/*/probability", "realisations/*")
 # Operation id -> the columns it answers in Arrow (documented in the contract).
-ARROW_ANSWERS = {"predictions": PREDICTION_COLUMNS}
+ARROW_ANSWERS = {"predictions": PREDICTION_COLUMNS, "simulations": SIMULATION_COLUMNS}
 
 
 def operation(path, method, summary, request=None, response=HealthSchema, errors=COMPUTE_ERRORS):
@@ -130,7 +132,7 @@ def with_provenance(
         "elapsed_ms": round((time.perf_counter() - g.started) * 1000.0, 3),
     }
     if columns and wants_arrow():
-        return Response(arrow_answer(document, [c for c in columns if c in document]), mimetype=ARROW_MEDIA_TYPE)
+        return Response(arrow_answer(document, columns), mimetype=ARROW_MEDIA_TYPE)
     return json_response(document)
 
 
@@ -265,16 +267,29 @@ def model_fits():
         body = serialize.model_fit(
             result.fit,
             document["statistic"],
-            samples=samples,
-            experimental=result.experimental,
-            min_pairs=document["min_pairs"],
-            transform=document["transform"],
+            summary=result.experimental.summary.as_dict(),
+            sample_params={
+                **serialize.sample_parameters(samples),
+                "min_pairs": document["min_pairs"],
+                "lags": serialize.lag_parameters(result.experimental),
+            },
+            options={"families": options["families"], "structures": options["structures"]},
         )
+        body["warnings"] = list(result.experimental.warnings) + body["warnings"]
+        for model in [body["model"]] + [c["model"] for c in body["candidates"] if c["model"] is not None]:
+            model["transform"] = document["transform"]
+        body["parameters"]["transform"] = document["transform"]
         pairs = sum(row.pairs for d in result.experimental.directions for row in d.classes)
         return with_provenance(body, samples.input_hash, samples.size, pairs)
     points, dimension, variance, statistic, digest = convert.experimental_points(document, document["min_pairs"])
     fit = fit_model(points, dimension=dimension, sample_variance=variance, **options)
-    body = serialize.model_fit(fit, statistic, dimension=dimension, min_pairs=document["min_pairs"])
+    body = serialize.model_fit(
+        fit,
+        statistic,
+        summary=None,
+        sample_params={"dimension": dimension, "min_pairs": document["min_pairs"]},
+        options={"families": options["families"], "structures": options["structures"]},
+    )
     return with_provenance(body, digest)
 
 
@@ -307,9 +322,8 @@ def cross_validations():
         limits=settings().limits,
         workers=numba.get_num_threads(),
     )
-    body = serialize.cross_validation(
-        result, samples, model, spec, hood, scheme, document["outlier_threshold"], working.transform
-    )
+    body = serialize.cross_validation(result, samples, model, spec, hood, scheme, document["outlier_threshold"])
+    serialize.add_transform(body, working, model)
     return with_provenance(body, samples.input_hash, samples.size)
 
 
@@ -323,7 +337,8 @@ def cross_validations():
 def predictions():
     document = load_json(PredictionRequest())
     if joint.is_joint(document):
-        return with_provenance(*joint.prediction(document, settings().limits, numba.get_num_threads()))
+        body, digest, size = joint.prediction(document, settings().limits, numba.get_num_threads())
+        return with_provenance(body, digest, size, columns=PREDICTION_COLUMNS)
     samples = convert.sample_set(document, settings().limits)
     working = working_samples(samples, convert.transform_kind(document))
     model, spec, hood = (
@@ -380,7 +395,7 @@ def simulations():
         workers=numba.get_num_threads(),
     )
     body = serialize.simulation(result, samples, model, hood, document)
-    return with_provenance(body, samples.input_hash, samples.size)
+    return with_provenance(body, samples.input_hash, samples.size, columns=SIMULATION_COLUMNS)
 
 
 @operation(
@@ -412,9 +427,15 @@ def _batch_analyses(document: dict, samples: MultiSampleSet) -> Response:
             )
         except InvalidInput as exc:
             raise _of_variable(exc, name) from None
-        analyses.append((name, unit, body))
+        body.pop("parameters", None)
+        analyses.append({"name": name, "unit": unit, **body})
         pairs += counted
-    return with_provenance(serialize.batch_analysis(samples, analyses), samples.input_hash, samples.size, pairs)
+    body = {
+        "variables": analyses,
+        "parameters": {**serialize.sample_parameters(samples), "variables": list(samples.names)},
+        "warnings": list(samples.warnings),
+    }
+    return with_provenance(body, samples.input_hash, samples.size, pairs)
 
 
 def _of_variable(exc: InvalidInput, name: str) -> InvalidInput:

@@ -22,6 +22,8 @@ import numpy as np
 from ..errors import FieldIssue, InvalidInput
 from .censoring import substitute
 from .geographic import ACCURATE_SPAN_M, LocalProjection, centroid
+from .identifiers import IndexIds, pick_ids
+from .locations import kept_rows, repeated_locations
 
 COORDINATE_SYSTEMS = ("planar", "geographic")
 DUPLICATE_POLICIES = ("average", "first", "reject")
@@ -66,8 +68,8 @@ class SampleSet:
         projection centre for geographic sets. d is 1, 2 or 3.
     values : ndarray, shape (n,)
         Measured values, finite.
-    ids : tuple of str
-        Sample identifiers (given, or the 0-based input index as text).
+    ids : sequence of str
+        Sample identifiers (given, or the 0-based input index as text: :class:`IndexIds`).
     source_index : ndarray of int, shape (n,)
         Input index of each kept sample (the first of a duplicate group).
     coordinates : str
@@ -89,7 +91,7 @@ class SampleSet:
 
     coords: np.ndarray
     values: np.ndarray
-    ids: tuple[str, ...]
+    ids: Sequence[str]
     source_index: np.ndarray
     coordinates: str
     input_hash: str
@@ -115,7 +117,7 @@ class SampleSet:
             self,
             coords=self.coords[keep],
             values=self.values[keep],
-            ids=tuple(self.ids[i] for i in np.flatnonzero(keep)),
+            ids=pick_ids(self.ids, keep),
             source_index=self.source_index[keep],
         )
 
@@ -200,50 +202,32 @@ def _normalise_degrees(lon: np.ndarray, lat: np.ndarray) -> np.ndarray:
     return np.where(np.abs(lat) == 90.0, 0.0, lon)
 
 
-def locations(coords: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """The distinct locations of ``coords`` (n, d), as ``numpy.unique(coords, axis=0, return_index=True,
-    return_inverse=True, return_counts=True)`` numbers them (rows in lexicographic order, x first).
-
-    Returns the input index of each location's first sample, each sample's location and each
-    location's sample count. One stable ``lexsort`` of the columns: several times quicker than
-    ``numpy.unique`` on rows for a million samples.
-    """
-    order = np.lexsort(coords.T[::-1])
-    ordered = coords[order]
-    starts = np.ones(len(order), dtype=bool)
-    np.any(ordered[1:] != ordered[:-1], axis=1, out=starts[1:])
-    inverse = np.empty(len(order), dtype=np.intp)
-    inverse[order] = np.cumsum(starts) - 1
-    first = np.flatnonzero(starts)
-    return order[first], inverse, np.diff(np.append(first, len(order)))
-
-
 def _resolve_duplicates(coords, values, ids, policy, pointer_for):
-    first_index, inverse, counts = locations(coords)
-    repeated = np.flatnonzero(counts > 1)
-    if repeated.size == 0:
-        return coords, values, ids, np.arange(values.size), DuplicateReport(policy, 0, 0)
+    group, counts = repeated_locations(coords)
+    n = values.size
+    if counts.size == 0:
+        return coords, values, ids, np.arange(n), DuplicateReport(policy, 0, 0)
     if policy == "reject":
         issues = []
-        for group in repeated[:20]:
-            members = np.flatnonzero(inverse == group)
+        members = np.flatnonzero(group >= 0)
+        for number in range(min(counts.size, 20)):
+            first, second = members[group[members] == number][:2]
             issues.append(
                 FieldIssue(
-                    pointer_for("x", int(members[1])),
-                    f"sample {members[1]} is at the same location as sample {members[0]} "
-                    "(duplicates policy is 'reject')",
+                    pointer_for("x", int(second)),
+                    f"sample {second} is at the same location as sample {first} (duplicates policy is 'reject')",
                 )
             )
         raise InvalidInput(issues)
-    order = np.sort(first_index)
-    group_of_kept = inverse[order]
+    order = kept_rows(group)
+    kept_values = values[order]
     if policy == "average":
-        sums = np.bincount(inverse, weights=values)
-        kept_values = (sums / counts)[group_of_kept]
-    else:
-        kept_values = values[order]
-    report = DuplicateReport(policy, int(repeated.size), int(values.size - order.size))
-    return coords[order], kept_values, tuple(ids[i] for i in order), order, report
+        members = np.flatnonzero(group >= 0)
+        means = np.bincount(group[members], weights=values[members], minlength=counts.size) / counts
+        merged = group[order] >= 0
+        kept_values[merged] = means[group[order][merged]]
+    report = DuplicateReport(policy, int(counts.size), int(n - order.size))
+    return coords[order], kept_values, pick_ids(ids, order), order, report
 
 
 def build_sample_set(
@@ -314,7 +298,7 @@ def build_sample_set(
     else:
         columns = [c for c in (x, y, z) if c is not None]
     coords = np.column_stack(columns)
-    given_ids = tuple(str(i) for i in ids) if ids is not None else tuple(str(i) for i in range(len(values)))
+    given_ids = tuple(str(i) for i in ids) if ids is not None else IndexIds(np.arange(values.size))
 
     coords, values, kept_ids, source_index, report = _resolve_duplicates(
         coords, values, given_ids, duplicates, pointer_for

@@ -30,6 +30,8 @@ import numpy as np
 from ..errors import FieldIssue, InvalidInput
 from .censoring import substitute
 from .geographic import ACCURATE_SPAN_M, LocalProjection, centroid
+from .identifiers import IndexIds, pick_ids
+from .locations import kept_rows, repeated_locations
 from .samples import (
     MAX_SPREAD,
     MIN_SPREAD,
@@ -88,8 +90,8 @@ class MultiSampleSet:
         Column k holds variable ``names[k]``; NaN where it was not measured.
     units : tuple of (str or None), length p
         Each variable's unit, when given.
-    ids : tuple of str
-        Sample identifiers (given, or the 0-based input index as text).
+    ids : sequence of str
+        Sample identifiers (given, or the 0-based input index as text: ``IndexIds``).
     source_index : ndarray of int, shape (n,)
         Input index of each kept sample (the first of a duplicate group).
     coordinates : str
@@ -112,7 +114,7 @@ class MultiSampleSet:
     names: tuple[str, ...]
     values: np.ndarray
     units: tuple[str | None, ...]
-    ids: tuple[str, ...]
+    ids: Sequence[str]
     source_index: np.ndarray
     coordinates: str
     input_hash: str
@@ -161,7 +163,7 @@ class MultiSampleSet:
         return SampleSet(
             coords=self.coords[keep],
             values=self.values[keep, k],
-            ids=tuple(self.ids[i] for i in np.flatnonzero(keep)),
+            ids=pick_ids(self.ids, keep),
             source_index=self.source_index[keep],
             coordinates=self.coordinates,
             input_hash=self.input_hash,
@@ -178,7 +180,7 @@ class MultiSampleSet:
             self,
             coords=self.coords[keep],
             values=self.values[keep],
-            ids=tuple(self.ids[i] for i in np.flatnonzero(keep)),
+            ids=pick_ids(self.ids, keep),
             source_index=self.source_index[keep],
         )
 
@@ -290,32 +292,28 @@ def _check_names(variables: Sequence[VariableInput], pointer_for: PointerFor) ->
 
 def _merge_duplicates(coords, table, ids, policy, pointer_for):
     """Duplicate locations resolved per variable (see the module conventions)."""
-    _, first_index, inverse, counts = np.unique(
-        coords, axis=0, return_index=True, return_inverse=True, return_counts=True
-    )
-    inverse = inverse.reshape(-1)
-    repeated = np.flatnonzero(counts > 1)
+    group, counts = repeated_locations(coords)
     n = coords.shape[0]
-    if repeated.size == 0:
+    if counts.size == 0:
         return coords, table, ids, np.arange(n), DuplicateReport(policy, 0, 0)
+    members = np.flatnonzero(group >= 0)
     if policy == "reject":
         issues = []
-        for group in repeated[:20]:
-            members = np.flatnonzero(inverse == group)
+        for number in range(min(counts.size, 20)):
+            first, second = members[group[members] == number][:2]
             issues.append(
                 FieldIssue(
-                    pointer_for("x", int(members[1])),
-                    f"sample {members[1]} is at the same location as sample {members[0]} "
-                    "(duplicates policy is 'reject')",
+                    pointer_for("x", int(second)),
+                    f"sample {second} is at the same location as sample {first} (duplicates policy is 'reject')",
                 )
             )
         raise InvalidInput(issues)
-    order = np.sort(first_index)
-    group_of_kept = inverse[order]
-    groups = first_index.size
+    order = kept_rows(group)
+    groups = counts.size
     merged = np.full((groups, table.shape[1]), np.nan)
+    inverse = group[members]
     for k in range(table.shape[1]):
-        column = table[:, k]
+        column = table[members, k]
         measured = ~np.isnan(column)
         if policy == "average":
             sums = np.bincount(inverse[measured], weights=column[measured], minlength=groups)
@@ -326,8 +324,11 @@ def _merge_duplicates(coords, table, ids, policy, pointer_for):
             rows = np.flatnonzero(measured)
             found, first = np.unique(inverse[rows], return_index=True)
             merged[found, k] = column[rows[first]]
-    report = DuplicateReport(policy, int(repeated.size), int(n - order.size))
-    return coords[order], merged[group_of_kept], tuple(ids[i] for i in order), order, report
+    kept = table[order]
+    repeated = group[order] >= 0
+    kept[repeated] = merged[group[order][repeated]]
+    report = DuplicateReport(policy, int(groups), int(n - order.size))
+    return coords[order], kept, pick_ids(ids, order), order, report
 
 
 def build_multi_sample_set(
@@ -400,7 +401,7 @@ def build_multi_sample_set(
     else:
         axes = [c for c in (x, y, z) if c is not None]
     coords = np.column_stack(axes)
-    given_ids = tuple(str(i) for i in ids) if ids is not None else tuple(str(i) for i in range(n))
+    given_ids = tuple(str(i) for i in ids) if ids is not None else IndexIds(np.arange(n))
     coords, table, kept_ids, source_index, report = _merge_duplicates(coords, table, given_ids, duplicates, pointer_for)
     if report.locations:
         action = "averaged" if duplicates == "average" else "kept the first measured value of"

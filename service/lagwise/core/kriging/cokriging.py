@@ -31,6 +31,7 @@ from __future__ import annotations
 
 import math
 import warnings
+from collections.abc import Sequence
 from dataclasses import dataclass
 
 import numpy as np
@@ -62,14 +63,14 @@ class VariableColumns:
         Variable names, one per column of ``values``.
     values : ndarray, shape (n, p)
         Measured values; NaN where a variable was not measured at a sample.
-    ids : tuple of str
+    ids : sequence of str
         Sample identifiers.
     """
 
     coords: np.ndarray
     names: tuple[str, ...]
     values: np.ndarray
-    ids: tuple[str, ...]
+    ids: Sequence[str]
 
     def column(self, name: str) -> np.ndarray:
         return self.values[:, self.names.index(name)]

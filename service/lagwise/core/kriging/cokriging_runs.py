@@ -17,6 +17,7 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from ..data.declustering import decluster
+from ..data.identifiers import pick_ids
 from ..data.samples import DuplicateReport, SampleSet
 from ..deadline import check_deadline
 from ..errors import InvalidInput, LimitExceeded
@@ -74,7 +75,7 @@ def primary_samples(columns: VariableColumns, primary: str) -> SampleSet:
     return SampleSet(
         coords=columns.coords[rows],
         values=columns.column(primary)[rows],
-        ids=tuple(columns.ids[i] for i in rows),
+        ids=pick_ids(columns.ids, rows),
         source_index=rows,
         coordinates="planar",
         input_hash="",
@@ -293,6 +294,6 @@ def cokrige_points(
     points = grid.points() if grid is not None else given
     projected = _project(samples, points)
     _check_reach(samples, projected, grid is not None)
-    columns = VariableColumns(samples.coords, tuple(samples.names), samples.values, tuple(samples.ids))
+    columns = VariableColumns(samples.coords, tuple(samples.names), samples.values, samples.ids)
     result = cokrige(columns, model, spec, neighbourhood, projected, limits=limits, workers=workers)
     return replace(result, targets=points, grid=grid)
