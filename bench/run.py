@@ -1,4 +1,4 @@
-"""Run the benchmarks: ``python3 manage.py bench [variogram] [fitting] [kriging] [unattended] [variables] [large] [simulation]``."""
+"""Run the benchmarks: ``python3 manage.py bench [variogram] [fitting] [kriging] [unattended] [variables] [large] [simulation] [responses]``."""
 
 from __future__ import annotations
 
@@ -10,6 +10,7 @@ sys.path.insert(0, str(Path(__file__).resolve().parent))
 import fitting  # noqa: E402
 import kriging  # noqa: E402
 import large  # noqa: E402
+import responses  # noqa: E402
 import simulation  # noqa: E402
 import unattended  # noqa: E402
 import variables  # noqa: E402
@@ -23,6 +24,7 @@ SUITES = {
     "variables": variables.main,
     "large": large.main,
     "simulation": simulation.main,
+    "responses": responses.main,
 }
 
 

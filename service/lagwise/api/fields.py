@@ -4,9 +4,10 @@ from __future__ import annotations
 
 import math
 from collections.abc import Callable, Mapping
+from typing import Any
 
 import numpy as np
-from marshmallow import Schema, ValidationError, fields
+from marshmallow import Schema, ValidationError, fields, missing
 
 NUMBER_TYPES = (int, float)
 MAX_ELEMENT_ERRORS = 20
@@ -114,6 +115,88 @@ class NullableNumberArray(fields.Field):
 
     def _serialize(self, value, attr, obj, **kwargs):
         return None if value is None else [None if math.isnan(v) else float(v) for v in value]
+
+
+class Column(fields.List):
+    """A per-target or per-sample array in a response, documented as a list of its ``inner`` field.
+
+    Dumping passes the value through as it is (a numpy array, a tuple or a list), with no
+    per-element processing: orjson writes numpy arrays natively and NaN as ``null``
+    (:mod:`lagwise.api.jsonio`), and Arrow answers take the arrays as they are
+    (:mod:`lagwise.api.columnar`), so a million-target answer costs nothing here.
+    """
+
+    def _serialize(self, value, attr, obj, **kwargs):
+        return value
+
+
+def _optional(convert: Callable[[Any], Any]) -> Callable[[Any], Any]:
+    return lambda value: None if value is None else convert(value)
+
+
+def _number_list(value: Any) -> Any:
+    return None if value is None else [float(v) for v in value]
+
+
+# How marshmallow dumps each scalar field type (Number, Boolean and String ``_serialize``), without its call chain.
+_SCALAR_DUMPS: tuple[tuple[type[fields.Field], Callable[[Any], Any]], ...] = (
+    (fields.Float, _optional(float)),
+    (fields.Integer, _optional(int)),
+    (fields.Boolean, _optional(bool)),
+    (fields.String, _optional(str)),
+)
+
+
+def _scalar_dump(field: fields.Field) -> Callable[[Any], Any] | None:
+    """The plain conversion that dumps ``field`` (a scalar, or a list of floats), or None for other fields."""
+    if type(field) is fields.List and type(field.inner) is fields.Float:
+        return _number_list
+    return next((dump for kind, dump in _SCALAR_DUMPS if type(field) is kind), None)
+
+
+class Rows(fields.List):
+    """A list of rows of one flat schema (e.g. the distance classes of a direction), documented as
+    ``fields.List(fields.Nested(schema))``.
+
+    A response may hold thousands of rows; each is dumped by a plan made once from the
+    schema's fields (the conversions marshmallow applies to scalars and lists of floats;
+    any other field dumps itself) instead of marshmallow's per-field call chain. A member
+    is left out as the schema's dump leaves it out (missing, or None for a member in the
+    schema's ``absent_when_none``), and the schema's ``finish_row(data)``, when it has one,
+    completes each row as its ``post_dump`` does.
+    """
+
+    def __init__(self, schema: type[Schema], **kwargs):
+        super().__init__(fields.Nested(schema), **kwargs)
+        self.schema_class = schema
+        self._plan: list | None = None
+
+    def _make_plan(self) -> list:
+        schema = self.schema_class()
+        absent: frozenset[str] = getattr(schema, "absent_when_none", frozenset())
+        plan = []
+        for name, field in schema.dump_fields.items():
+            attribute = field.attribute or name
+            plan.append((field.data_key or name, attribute, _scalar_dump(field), field, attribute in absent))
+        self._finish = getattr(schema, "finish_row", None)
+        return plan
+
+    def _serialize(self, value, attr, obj, **kwargs):
+        if value is None:
+            return None
+        if self._plan is None:
+            self._plan = self._make_plan()
+        plan, finish, rows = self._plan, self._finish, []
+        for row in value:
+            is_dict = isinstance(row, dict)
+            out = {}
+            for key, attribute, dump, field, absent_when_none in plan:
+                item = row.get(attribute, missing) if is_dict else getattr(row, attribute, missing)
+                if item is missing or (item is None and absent_when_none):
+                    continue
+                out[key] = dump(item) if dump is not None else field._serialize(item, attribute, row)
+            rows.append(finish(out) if finish is not None else out)
+        return rows
 
 
 def pointer_token(name: str) -> str:
@@ -251,6 +334,9 @@ class Variants(fields.Field):
         form fits.
     discriminator : str, optional
         The member whose value is the form's name (documented with a mapping).
+    dumped_as : callable, optional
+        Given an object to dump, the name of its form, whose schema then dumps it; without
+        it a value is dumped as it is (an object already in its JSON form).
     """
 
     def __init__(
@@ -259,12 +345,15 @@ class Variants(fields.Field):
         pick: Callable[[dict], str],
         *,
         discriminator: str | None = None,
+        dumped_as: Callable[[object], str] | None = None,
         **kwargs,
     ):
         super().__init__(**kwargs)
         self.forms = dict(forms)
         self.pick = pick
         self.discriminator = discriminator
+        self.dumped_as = dumped_as
+        self._dumpers: dict[str, Schema] = {}
 
     def _deserialize(self, value, attr, data, **kwargs):
         if not isinstance(value, dict):
@@ -272,7 +361,12 @@ class Variants(fields.Field):
         return self.forms[self.pick(value)]().load(value)
 
     def _serialize(self, value, attr, obj, **kwargs):
-        return value
+        if value is None or self.dumped_as is None:
+            return value
+        name = self.dumped_as(value)
+        if name not in self._dumpers:
+            self._dumpers[name] = self.forms[name]()
+        return self._dumpers[name].dump(value)
 
 
 def by_discriminator(member: str, names: tuple[str, ...]) -> Callable[[dict], str]:

@@ -17,7 +17,7 @@ from ..core.kriging.cokriging_runs import cokrige_points, cross_validate_cokrigi
 from ..core.limits import Limits
 from ..core.modelling.coregionalisation import JointModel, JointStructure
 from ..core.modelling.fitting import SEMIVARIANCE_STATISTICS
-from ..core.modelling.joint_fitting import JointFitResult, fit_joint_model, joint_points, joint_points_from_variograms
+from ..core.modelling.joint_fitting import fit_joint_model, joint_points, joint_points_from_variograms
 from ..core.modelling.models import Anisotropy
 from ..core.variography.several import several_variograms
 from . import convert, serialize
@@ -98,34 +98,6 @@ def _inputs(document: dict, limits: Limits):
     return samples, model, spec, convert.neighbourhood(document)
 
 
-def _unestimated(reasons: dict) -> list[dict]:
-    return [{"index": int(i), "reason": why} for i, why in sorted(reasons.items())]
-
-
-def _gain(result, primary: str) -> dict:
-    return {
-        "primary": primary,
-        "secondaries": list(result.secondaries),
-        **result.comparison.as_dict(),
-        "variance_primary_only": result.comparison.primary_only,
-    }
-
-
-def _parameters(samples: MultiSampleSet, model: JointModel, spec: CokrigingSpec, hood) -> dict:
-    return {
-        "samples": samples.size,
-        "dimension": samples.dimension,
-        "coordinates": samples.coordinates,
-        "variables": list(samples.names),
-        "model": model.as_dict(),
-        "kriging": spec.as_dict(),
-        "neighbourhood": hood.as_dict(),
-        "constraints": "ordinary cokriging: the primary's weights sum to 1, each secondary's to 0"
-        if spec.type == "ordinary"
-        else "simple cokriging: known means, no constraint",
-    }
-
-
 def prediction(document: dict, limits: Limits, workers: int) -> tuple[dict, str, int]:
     """Body, input hash and sample count of a cokriging ``POST /v1/predictions``."""
     samples, model, spec, hood = _inputs(document, limits)
@@ -139,20 +111,7 @@ def prediction(document: dict, limits: Limits, workers: int) -> tuple[dict, str,
         limits=limits,
         workers=workers,
     )
-    points = result.targets
-    assert points is not None  # cokrige_points always echoes its points
-    p = result.prediction
-    body: dict = {name: points[:, a] for a, name in enumerate(("x", "y", "z")[: points.shape[1]])}
-    body.update(estimate=p.estimate, variance=p.variance, unestimated=_unestimated(p.reasons))
-    if result.grid is not None:
-        body["grid"] = result.grid.as_dict()
-    body["support"] = "point"
-    body["cokriging"] = _gain(result, spec.primary)
-    body["parameters"] = {
-        **_parameters(samples, model, spec, hood),
-        "variance": "cokriging variance of the primary (includes its nugget unless nugget_as is measurement_error)",
-    }
-    body["warnings"] = list(samples.warnings)
+    body = serialize.cokriging_prediction(result, samples, model, spec, hood)
     return body, samples.input_hash, samples.size
 
 
@@ -171,36 +130,11 @@ def cross_validation(document: dict, limits: Limits, workers: int) -> tuple[dict
         limits=limits,
         workers=workers,
     )
-    result = found.result
-    rows = np.flatnonzero(np.isfinite(columns.column(spec.primary)))
-    body = {
-        "statistics": result.statistics,
-        "samples": {
-            "id": [samples.ids[i] for i in rows],
-            "observed": result.observed,
-            "estimate": result.estimate,
-            "standard_deviation": result.standard_deviation,
-            "error": result.error,
-            "standardized_error": result.standardized_error,
-            "outlier": result.outlier,
-        },
-        "assessment": result.assessment,
-        "unestimated": _unestimated(result.reasons),
-        "cokriging": {
-            **_gain(found, spec.primary),
-            "variance_primary_only": found.comparison.primary_only,
-            "statistics_primary_only": found.primary_only.statistics,
-        },
-        "parameters": {
-            **_parameters(samples, model, spec, hood),
-            "scheme": scheme.as_dict(),
-            "method": result.method,
-            "outlier_threshold": document["outlier_threshold"],
-            "left_out": "the primary value only; secondary values measured at a left-out sample stay",
-            "error_convention": "error = estimate - observed; standard_deviation is that of the error (nugget included)",
-        },
-        "warnings": list(samples.warnings),
-    }
+    measured = np.flatnonzero(np.isfinite(columns.column(spec.primary)))
+    ids = [samples.ids[i] for i in measured]
+    body = serialize.cokriging_cross_validation(
+        found, samples, model, spec, hood, scheme, document["outlier_threshold"], ids
+    )
     return body, samples.input_hash, samples.size
 
 
@@ -274,81 +208,6 @@ def _given_experimental(document: dict, min_pairs: int):
     return experimental, statistic, input_hash(columns)
 
 
-def _fit_directions(points, fitted) -> list[dict]:
-    directions: dict[int, dict] = {}
-    for i in range(points.distance.size):
-        entry = directions.setdefault(int(points.direction[i]), {"azimuth": float(points.azimuth[i]), "classes": []})
-        entry["classes"].append(
-            {
-                "mean_distance": float(points.distance[i]) if points.pairs[i] > 0 else None,
-                "value": float(points.value[i]) if points.pairs[i] > 0 else None,
-                "pairs": int(points.pairs[i]),
-                "used": bool(points.usable[i]),
-                "model_value": float(fitted[i]) if points.distance[i] > 0 else None,
-            }
-        )
-    return [directions[k] for k in sorted(directions)]
-
-
-def fit_body(result: JointFitResult, statistic: str, parameters: dict) -> dict:
-    """Response body of a joint ``POST /v1/model-fits`` (without provenance)."""
-    best = result.best
-    names = result.experimental.variables
-    p = len(names)
-    points = result.experimental.points
-    return {
-        "model": best.model.as_dict(),
-        "diagnostics": {
-            "weighted_sse": best.weighted_sse,
-            "r_squared": best.r_squared,
-            "criterion": best.criterion,
-            "criterion_name": "AICc over every direct and cross class (lower is better)",
-            "converged": best.converged,
-            "iterations": best.sweeps,
-        },
-        "candidates": [
-            {
-                "rank": rank + 1,
-                "label": c.label,
-                "model": c.model.as_dict(),
-                "selected": c is best,
-                "parameters": c.parameters,
-                "weighted_sse": c.weighted_sse,
-                "r_squared": c.r_squared,
-                "criterion": c.criterion,
-                "converged": c.converged,
-                "iterations": c.sweeps,
-            }
-            for rank, c in enumerate(result.candidates)
-        ],
-        "experimental": {
-            "statistic": statistic,
-            "directions": [],
-            "variables": [
-                {"name": names[i], "directions": _fit_directions(points[(i, i)], result.fitted_values(i, i))}
-                for i in range(p)
-            ],
-            "cross": [
-                {
-                    "variables": [names[i], names[j]],
-                    "directions": _fit_directions(points[(i, j)], result.fitted_values(i, j)),
-                }
-                for i in range(p)
-                for j in range(i + 1, p)
-                if (i, j) in points
-            ],
-        },
-        "parameters": {
-            **parameters,
-            "statistic": statistic,
-            "weighting": result.weighting,
-            "method": "linear model of coregionalisation: shared structures from each variable's direct fit, "
-            "ranges refined by a bounded search, matrices by the Goulard-Voltz (1992) iteration (PSD by construction)",
-        },
-        "warnings": list(result.warnings),
-    }
-
-
 def model_fit(document: dict, limits: Limits) -> tuple[dict, str, int, int]:
     """Body, input hash, sample and pair counts of a joint ``POST /v1/model-fits``: from samples
     (direct and cross variograms in one pass first) or from a several-variable experimental response."""
@@ -358,7 +217,7 @@ def model_fit(document: dict, limits: Limits) -> tuple[dict, str, int, int]:
         experimental, statistic, digest = _given_experimental(document, min_pairs)
         result = fit_joint_model(experimental, min_pairs=min_pairs, **options)
         parameters = {"dimension": experimental.dimension, "min_pairs": min_pairs, **options}
-        return fit_body(result, statistic, parameters), digest, 0, 0
+        return serialize.joint_model_fit(result, statistic, parameters), digest, 0, 0
     if document.get("transform") not in (None, "none"):
         raise InvalidInput.at("/transform", "a joint fit works in the variables' own units: give no transform")
     if document["statistic"] != "semivariance":
@@ -378,7 +237,6 @@ def model_fit(document: dict, limits: Limits) -> tuple[dict, str, int, int]:
     experimental = joint_points_from_variograms(several, dimension=samples.dimension, min_pairs=min_pairs)
     result = fit_joint_model(experimental, min_pairs=min_pairs, **options)
     parameters = {**serialize.sample_parameters(samples), "min_pairs": min_pairs, **options}
-    body = fit_body(result, "semivariance", parameters)
-    body["warnings"] = list(several.warnings) + body["warnings"]
+    body = serialize.joint_model_fit(result, "semivariance", parameters, several.warnings)
     pairs = sum(row.pairs for v in several.variables for d in v.result.directions for row in d.classes)
     return body, samples.input_hash, samples.size, pairs

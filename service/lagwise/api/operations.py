@@ -267,29 +267,16 @@ def model_fits():
         body = serialize.model_fit(
             result.fit,
             document["statistic"],
-            summary=result.experimental.summary.as_dict(),
-            sample_params={
-                **serialize.sample_parameters(samples),
-                "min_pairs": document["min_pairs"],
-                "lags": serialize.lag_parameters(result.experimental),
-            },
-            options={"families": options["families"], "structures": options["structures"]},
+            samples=samples,
+            experimental=result.experimental,
+            min_pairs=document["min_pairs"],
+            transform=document["transform"],
         )
-        body["warnings"] = list(result.experimental.warnings) + body["warnings"]
-        for model in [body["model"]] + [c["model"] for c in body["candidates"] if c["model"] is not None]:
-            model["transform"] = document["transform"]
-        body["parameters"]["transform"] = document["transform"]
         pairs = sum(row.pairs for d in result.experimental.directions for row in d.classes)
         return with_provenance(body, samples.input_hash, samples.size, pairs)
     points, dimension, variance, statistic, digest = convert.experimental_points(document, document["min_pairs"])
     fit = fit_model(points, dimension=dimension, sample_variance=variance, **options)
-    body = serialize.model_fit(
-        fit,
-        statistic,
-        summary=None,
-        sample_params={"dimension": dimension, "min_pairs": document["min_pairs"]},
-        options={"families": options["families"], "structures": options["structures"]},
-    )
+    body = serialize.model_fit(fit, statistic, dimension=dimension, min_pairs=document["min_pairs"])
     return with_provenance(body, digest)
 
 
@@ -322,8 +309,9 @@ def cross_validations():
         limits=settings().limits,
         workers=numba.get_num_threads(),
     )
-    body = serialize.cross_validation(result, samples, model, spec, hood, scheme, document["outlier_threshold"])
-    serialize.add_transform(body, working, model)
+    body = serialize.cross_validation(
+        result, samples, model, spec, hood, scheme, document["outlier_threshold"], working.transform
+    )
     return with_provenance(body, samples.input_hash, samples.size)
 
 
@@ -427,15 +415,9 @@ def _batch_analyses(document: dict, samples: MultiSampleSet) -> Response:
             )
         except InvalidInput as exc:
             raise _of_variable(exc, name) from None
-        body.pop("parameters", None)
-        analyses.append({"name": name, "unit": unit, **body})
+        analyses.append((name, unit, body))
         pairs += counted
-    body = {
-        "variables": analyses,
-        "parameters": {**serialize.sample_parameters(samples), "variables": list(samples.names)},
-        "warnings": list(samples.warnings),
-    }
-    return with_provenance(body, samples.input_hash, samples.size, pairs)
+    return with_provenance(serialize.batch_analysis(samples, analyses), samples.input_hash, samples.size, pairs)
 
 
 def _of_variable(exc: InvalidInput, name: str) -> InvalidInput:

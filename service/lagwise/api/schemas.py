@@ -13,8 +13,9 @@ from __future__ import annotations
 
 import copy
 import unicodedata
+from typing import Any
 
-from marshmallow import EXCLUDE, Schema, ValidationError, fields, validate, validates_schema
+from marshmallow import EXCLUDE, Schema, ValidationError, fields, missing, post_dump, validate, validates_schema
 
 from ..core.data.censoring import CENSORING_POLICIES
 from ..core.data.samples import COORDINATE_SYSTEMS, DUPLICATE_POLICIES
@@ -37,11 +38,13 @@ from .fields import (
     AutoOrList,
     AutoOrNested,
     CappedList,
+    Column,
     DirectionsOption,
     NamedColumns,
     NuggetOption,
     NullableNumberArray,
     NumberArray,
+    Rows,
     Variants,
     by_discriminator,
 )
@@ -63,10 +66,18 @@ def one_of(choices, **kwargs) -> fields.String:
     return fields.String(validate=validate.OneOf(choices), **kwargs)
 
 
+def _absent_when_none(self, obj, attr, default):
+    """A dumped schema's accessor: an optional, non-nullable member whose value is None is left out."""
+    value = Schema.get_attribute(self, obj, attr, default)
+    return missing if value is None and attr in self.absent_when_none else value
+
+
 def always_present(*optional: str):
     """Class decorator for response schemas: every member is required except ``optional``.
 
-    The fields are copied first, so a parent schema's own fields keep their setting.
+    The fields are copied first, so a parent schema's own fields keep their setting. When
+    the schema dumps a result, an optional member is left out when its value is missing or
+    None, unless its field allows null (then it is written as null).
     """
 
     def mark(cls: type[Schema]) -> type[Schema]:
@@ -74,6 +85,12 @@ def always_present(*optional: str):
             field = copy.copy(field)
             field.required = name not in optional
             cls._declared_fields[name] = field
+        cls.absent_when_none = frozenset(  # type: ignore[attr-defined]
+            field.attribute or name
+            for name, field in cls._declared_fields.items()
+            if name in optional and not field.allow_none
+        )
+        cls.get_attribute = _absent_when_none  # type: ignore[method-assign]
         return cls
 
     return mark
@@ -1097,6 +1114,19 @@ class ClassSchema(Schema):
         metadata={"description": "Grid method: error_bound is above parameters.grid.tolerance (or undefined)."}
     )
 
+    @post_dump
+    def _finish(self, data, **kwargs):
+        return self.finish_row(data)
+
+    @staticmethod
+    def finish_row(data: dict) -> dict:
+        """The grid method's bounds come together (error_bound may be null); a reason only for a null error."""
+        if "bound_exceeded" not in data:
+            data.pop("error_bound", None)
+        if data.get("standard_error") is not None:
+            data.pop("uncertainty_reason", None)
+        return data
+
 
 @always_present("dip", "dip_tolerance", "vertical_bandwidth")
 class DirectionResultSchema(Schema):
@@ -1108,7 +1138,7 @@ class DirectionResultSchema(Schema):
     dip = fields.Float()
     dip_tolerance = fields.Float()
     vertical_bandwidth = fields.Float(allow_none=True)
-    classes = fields.List(fields.Nested(ClassSchema))
+    classes = Rows(ClassSchema)
 
 
 @always_present()
@@ -1117,8 +1147,8 @@ class ScattergramSchema(Schema):
     klass = fields.Integer(data_key="class")
     pairs_in_class = fields.Integer()
     stride = fields.Integer(metadata={"description": "Every stride-th pair of the class is returned."})
-    tail = fields.List(fields.Float())
-    head = fields.List(fields.Float())
+    tail = Column(fields.Float())
+    head = Column(fields.Float())
 
 
 @always_present()
@@ -1173,13 +1203,13 @@ class SeveralExperimentalResponse(ResultEnvelope):
 
 @always_present()
 class MapResponse(ResultEnvelope):
-    hx = fields.List(fields.Float())
-    hy = fields.List(fields.Float())
-    values = fields.List(
+    hx = Column(fields.Float())
+    hy = Column(fields.Float())
+    values = Column(
         fields.List(fields.Float(allow_none=True)),
         metadata={"description": "Rows by hy, columns by hx; null for empty cells."},
     )
-    pairs = fields.List(fields.List(fields.Integer()))
+    pairs = Column(fields.List(fields.Integer()))
     summary = fields.Nested(SummarySchema)
 
 
@@ -1228,6 +1258,11 @@ def _candidate_form(value: dict) -> str:
     return "joint" if "variables" in (value.get("model") or {}) else "single"
 
 
+def _dumped_candidate_form(candidate: Any) -> str:
+    """The form of a candidate being dumped, from its model (a dict, or None for a failed fit)."""
+    return _candidate_form({"model": candidate.model})
+
+
 @always_present()
 class FitClassSchema(Schema):
     mean_distance = fields.Float(allow_none=True)
@@ -1240,7 +1275,7 @@ class FitClassSchema(Schema):
 @always_present()
 class FitDirectionSchema(Schema):
     azimuth = fields.Float()
-    classes = fields.List(fields.Nested(FitClassSchema))
+    classes = Rows(FitClassSchema)
 
 
 @always_present()
@@ -1273,7 +1308,13 @@ class ModelFitResponse(ResultEnvelope):
         metadata={"description": "The selected model: a joint model when several variables were fitted."}
     )
     diagnostics = fields.Nested(DiagnosticsSchema)
-    candidates = fields.List(Variants({"single": CandidateSchema, "joint": JointCandidateSchema}, _candidate_form))
+    candidates = fields.List(
+        Variants(
+            {"single": CandidateSchema, "joint": JointCandidateSchema},
+            _candidate_form,
+            dumped_as=_dumped_candidate_form,
+        )
+    )
     experimental = fields.Nested(FitExperimentalSchema)
     summary = fields.Nested(SummarySchema, metadata={"description": "Absent when fitted to a given experimental."})
 
@@ -1329,13 +1370,13 @@ class FamiliesResponse(Schema):
 
 @always_present()
 class CrossValidationSamplesSchema(Schema):
-    id = fields.List(fields.String())
-    observed = fields.List(fields.Float())
-    estimate = fields.List(fields.Float(allow_none=True))
-    standard_deviation = fields.List(fields.Float(allow_none=True))
-    error = fields.List(fields.Float(allow_none=True))
-    standardized_error = fields.List(fields.Float(allow_none=True))
-    outlier = fields.List(fields.Boolean())
+    id = Column(fields.String())
+    observed = Column(fields.Float())
+    estimate = Column(fields.Float(allow_none=True))
+    standard_deviation = Column(fields.Float(allow_none=True))
+    error = Column(fields.Float(allow_none=True))
+    standardized_error = Column(fields.Float(allow_none=True))
+    outlier = Column(fields.Boolean())
 
 
 @always_present()
@@ -1371,7 +1412,7 @@ class CokrigingGainSchema(Schema):
     variance_reduction = fields.Float(
         allow_none=True, metadata={"description": "1 - mean_variance / mean_variance_primary_only."}
     )
-    variance_primary_only = fields.List(
+    variance_primary_only = Column(
         fields.Float(allow_none=True), metadata={"description": "Per target (or sample): kriging the primary alone."}
     )
     statistics_primary_only = fields.Nested(
@@ -1392,8 +1433,8 @@ class CrossValidationResponse(ResultEnvelope):
 class WeightsSchema(Schema):
     target = fields.Integer()
     samples = fields.List(fields.String())
-    weights = fields.List(fields.Float())
-    lagrange = fields.List(fields.Float())
+    weights = Column(fields.Float())
+    lagrange = Column(fields.Float())
 
 
 @always_present()
@@ -1407,7 +1448,7 @@ class GridSchema(Schema):
 @always_present()
 class ExceedanceSchema(Schema):
     threshold = fields.Float(metadata={"description": "Original units."})
-    probability = fields.List(
+    probability = Column(
         fields.Float(allow_none=True),
         metadata={"description": "P(value > threshold), aligned with estimate (null where no estimate)."},
     )
@@ -1415,11 +1456,11 @@ class ExceedanceSchema(Schema):
 
 @always_present("y", "z", "grid", "weights", "exceedance", "cokriging")
 class PredictionResponse(ResultEnvelope):
-    x = fields.List(fields.Float())
-    y = fields.List(fields.Float(), metadata={"description": "2-D and 3-D samples."})
-    z = fields.List(fields.Float(), metadata={"description": "3-D samples."})
-    estimate = fields.List(fields.Float(allow_none=True))
-    variance = fields.List(fields.Float(allow_none=True))
+    x = Column(fields.Float())
+    y = Column(fields.Float(), metadata={"description": "2-D and 3-D samples."})
+    z = Column(fields.Float(), metadata={"description": "3-D samples."})
+    estimate = Column(fields.Float(allow_none=True))
+    variance = Column(fields.Float(allow_none=True))
     grid = fields.Nested(GridSchema, metadata={"description": "Predictions on a grid."})
     unestimated = fields.List(fields.Nested(UnestimatedSchema))
     weights = fields.List(fields.Nested(WeightsSchema), metadata={"description": "When return_weights was given."})
@@ -1497,7 +1538,7 @@ class AnalysisCrossValidationSchema(Schema):
 
 @always_present()
 class ProbabilityClassSchema(Schema):
-    name = fields.String(data_key="class", validate=validate.OneOf(("below", "uncertain", "above")))
+    name = fields.String(attribute="class", data_key="class", validate=validate.OneOf(("below", "uncertain", "above")))
     meaning = fields.String()
     count = fields.Integer()
     share = fields.Float(allow_none=True)
@@ -1524,12 +1565,10 @@ class AnalysisSimulationSchema(Schema):
 
 @always_present()
 class AnalysisPredictionSchema(Schema):
-    x = fields.List(fields.Float())
-    y = fields.List(fields.Float())
-    estimate = fields.List(
-        fields.Float(allow_none=True), metadata={"description": "Original units (back-transformed)."}
-    )
-    variance = fields.List(fields.Float(allow_none=True))
+    x = Column(fields.Float())
+    y = Column(fields.Float())
+    estimate = Column(fields.Float(allow_none=True), metadata={"description": "Original units (back-transformed)."})
+    variance = Column(fields.Float(allow_none=True))
     grid = fields.Nested(GridSchema)
     unestimated = fields.List(fields.Nested(UnestimatedSchema))
     support = one_of(("point", "block"))
@@ -1647,15 +1686,15 @@ class SimulationRequest(SampleOptions):
 
 @always_present()
 class NodeQuantilesSchema(Schema):
-    p10 = fields.List(fields.Float())
-    p50 = fields.List(fields.Float())
-    p90 = fields.List(fields.Float())
+    p10 = Column(fields.Float())
+    p50 = Column(fields.Float())
+    p90 = Column(fields.Float())
 
 
 @always_present()
 class SimulatedExceedanceSchema(Schema):
     threshold = fields.Float(metadata={"description": "Original units."})
-    probability = fields.List(
+    probability = Column(
         fields.Float(), metadata={"description": "Share of the realisations above the threshold, x fastest."}
     )
 
@@ -1663,7 +1702,7 @@ class SimulatedExceedanceSchema(Schema):
 @always_present()
 class SimulatedBlocksSchema(Schema):
     grid = fields.Nested(GridSchema, metadata={"description": "Block centres; spacing is the block size."})
-    mean = fields.List(fields.Float(), metadata={"description": "Mean over realisations of each block average."})
+    mean = Column(fields.Float(), metadata={"description": "Mean over realisations of each block average."})
     exceedance = fields.List(fields.Nested(SimulatedExceedanceSchema))
 
 
@@ -1684,13 +1723,13 @@ class AboveSchema(Schema):
 @always_present("blocks", "realisations")
 class SimulationResponse(ResultEnvelope):
     grid = fields.Nested(GridSchema)
-    mean = fields.List(fields.Float(), metadata={"description": "E-type mean per node (original units)."})
-    variance = fields.List(fields.Float(), metadata={"description": "Variance over realisations (divisor R)."})
+    mean = Column(fields.Float(), metadata={"description": "E-type mean per node (original units)."})
+    variance = Column(fields.Float(), metadata={"description": "Variance over realisations (divisor R)."})
     quantiles = fields.Nested(NodeQuantilesSchema)
     exceedance = fields.List(fields.Nested(SimulatedExceedanceSchema))
     blocks = fields.Nested(SimulatedBlocksSchema, metadata={"description": "When blocks were given."})
     above = fields.List(fields.Nested(AboveSchema))
-    realisations = fields.List(
+    realisations = Column(
         fields.List(fields.Float()), metadata={"description": "When return_realisations: one list per realisation."}
     )
     method = fields.Dict()

@@ -18,7 +18,7 @@ from dataclasses import dataclass
 from .data.samples import SampleSet
 from .data.transforms import Transform
 from .errors import InvalidInput, LimitExceeded, pointers_under
-from .kriging.exceedance import Exceedance, ProbabilityClasses, classify, exceedance, validate_thresholds
+from .kriging.exceedance import Exceedance, ProbabilityClasses, classify, exceedance, reading, validate_thresholds
 from .kriging.neighbourhood import Neighbourhood
 from .kriging.prediction import PredictionResult
 from .kriging.systems import KrigingSpec
@@ -87,7 +87,13 @@ def decide(
     warning when the selected strategy or the limits do not allow it)."""
     if not stage.thresholds:
         return Decisions(None, (), prediction.support, "kriging", None, ())
-    found = exceedance(prediction.prediction.estimate, prediction.prediction.variance, stage.thresholds, transform)
+    found = exceedance(
+        prediction.prediction.estimate,
+        prediction.prediction.variance,
+        stage.thresholds,
+        transform,
+        reading(spec.type, spec.nugget_as, prediction.support),
+    )
     classes = tuple(classify(t, row) for t, row in zip(found.thresholds, found.probability, strict=True))
     support, method = prediction.support, "kriging"
     notes: list[str] = []

@@ -55,7 +55,8 @@ class Scheme:
 
 @dataclass(frozen=True)
 class CrossValidation:
-    """Per-sample results (arrays in sample order; NaN where no estimate) and statistics."""
+    """Per-sample results (arrays in sample order; NaN where no estimate), statistics and warnings
+    (e.g. a model that looks untransformed for a transformed cross-validation)."""
 
     observed: np.ndarray
     estimate: np.ndarray
@@ -67,6 +68,7 @@ class CrossValidation:
     assessment: str
     reasons: dict
     method: str
+    warnings: tuple[str, ...] = ()
 
 
 def _inverse_blocks(kriger: Kriger, rhs: np.ndarray) -> tuple[np.ndarray, np.ndarray]:

@@ -23,7 +23,7 @@ probability is 1 or 0: the value there is known.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 from scipy.stats import norm
@@ -56,11 +56,14 @@ class Exceedance:
         The same thresholds in the space where kriging ran (may be +-inf for normal
         scores outside the data's range).
     probability : ndarray, shape (len(thresholds), m)
+    reading : dict
+        How the probabilities were found (:func:`reading`), for a response's ``parameters``.
     """
 
     thresholds: tuple[float, ...]
     transformed: tuple[float, ...]
     probability: np.ndarray
+    reading: dict = field(default_factory=dict)
 
 
 def validate_thresholds(thresholds, transform_kind: str, pointer: str = "/thresholds") -> tuple[float, ...]:
@@ -101,7 +104,11 @@ def transformed_threshold(transform: Transform, t: float) -> float:
 
 
 def exceedance(
-    estimate: np.ndarray, variance: np.ndarray, thresholds: tuple[float, ...], transform: Transform
+    estimate: np.ndarray,
+    variance: np.ndarray,
+    thresholds: tuple[float, ...],
+    transform: Transform,
+    how: dict | None = None,
 ) -> Exceedance:
     """P(Z > t) for every threshold from estimates and variances in the transformed space.
 
@@ -114,6 +121,8 @@ def exceedance(
         Original units (checked by :func:`validate_thresholds`).
     transform : Transform
         The transform kriging ran in.
+    how : dict, optional
+        How the estimates and variances were found (:func:`reading`), carried by the result.
     """
     y = np.asarray(estimate, dtype=np.float64)
     sd = np.sqrt(np.maximum(np.asarray(variance, dtype=np.float64), 0.0))
@@ -125,7 +134,7 @@ def exceedance(
         p = norm.sf(z)
         p[~np.isfinite(y)] = np.nan
         rows[r] = p
-    return Exceedance(tuple(thresholds), primes, rows)
+    return Exceedance(tuple(thresholds), primes, rows, {} if how is None else how)
 
 
 def reading(kriging_type: str, nugget_as: str, support: str = "point") -> dict:

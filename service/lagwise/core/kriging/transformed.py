@@ -23,7 +23,7 @@ from ..limits import Limits
 from ..modelling.models import VariogramModel
 from .blocks import Blocks
 from .cross_validation import DEFAULT_OUTLIER_THRESHOLD, CrossValidation, Scheme, assess, cross_validate, statistics
-from .exceedance import Exceedance, exceedance, validate_thresholds
+from .exceedance import Exceedance, exceedance, reading, validate_thresholds
 from .neighbourhood import Neighbourhood
 from .prediction import Grid, PredictionResult, predict
 from .systems import KrigingSpec
@@ -169,7 +169,8 @@ def predict_transformed(
         estimate, variance = transform.back_estimate(y, s2) if transform.kind != "none" else (y, s2)
     _require_finite(y, estimate, variance)
     notes = [w for w in (units_warning(model, working), _range_warning(transform, thresholds)) if w]
-    found = exceedance(y, s2, thresholds, transform) if thresholds else None
+    how = reading(spec.type, spec.nugget_as, result.support)
+    found = exceedance(y, s2, thresholds, transform, how) if thresholds else None
     return TransformedPrediction(result, transform, estimate, variance, found, tuple(notes))
 
 
@@ -232,6 +233,7 @@ def cross_validate_transformed(
     transform = working.transform
     if transform.kind == "none":
         return inner
+    note = units_warning(model, working)
     observed = np.asarray(observed, dtype=np.float64)
     with np.errstate(over="ignore", invalid="ignore"):
         mean, var = transform.back_estimate(inner.estimate, inner.standard_deviation**2)
@@ -249,4 +251,5 @@ def cross_validate_transformed(
         statistics=stats,
         assessment=assess(stats, observed),
         method=inner.method + f"; in the {transform.kind.replace('_', '-')} space, back-transformed",
+        warnings=inner.warnings + ((note,) if note else ()),
     )

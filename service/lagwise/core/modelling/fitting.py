@@ -153,7 +153,18 @@ class FittedCandidate(Candidate):
 
 @dataclass(frozen=True)
 class FitResult:
-    """Result of :func:`fit_model`: the best candidate and every candidate, ranked."""
+    """Result of :func:`fit_model`: the best candidate and every candidate, ranked.
+
+    Attributes
+    ----------
+    families : "auto" or tuple of str
+        The families asked for.
+    structures : int
+        Structures per candidate asked for (explicit family lists).
+    fitted_values : ndarray, shape (classes,)
+        The best model's semivariance at every class of ``points`` (vectors along each
+        class's azimuth), found when the result is made.
+    """
 
     best: FittedCandidate
     candidates: tuple[Candidate, ...]
@@ -162,16 +173,17 @@ class FitResult:
     nugget: str | float
     anisotropy: str
     warnings: tuple[str, ...] = field(default=())
+    families: str | tuple[str, ...] = "auto"
+    structures: int = 1
+    fitted_values: np.ndarray = field(init=False, repr=False, compare=False)
 
-    @property
-    def fitted_values(self) -> np.ndarray:
-        """The best model's semivariance at every class (vectors along each class's azimuth)."""
+    def __post_init__(self) -> None:
         az = np.radians(self.points.azimuth)
         h = self.points.distance
         vectors = np.column_stack([h * np.sin(az), h * np.cos(az)])
         model = self.best.model
         anisotropic = any(not s.anisotropy.isotropic for s in model.structures)
-        return model.semivariance(vectors if anisotropic else h)
+        object.__setattr__(self, "fitted_values", model.semivariance(vectors if anisotropic else h))
 
 
 @dataclass(frozen=True)
@@ -615,7 +627,8 @@ def fit_model(
     if np.all(points.value[points.usable] == 0.0):
         zero = FittedCandidate(VariogramModel(0.0, ()), "pure nugget (zero)", 0, 0.0, 1.0, None, True, 0)
         notes.append("every class has zero semivariance (constant values): the model is a zero pure nugget")
-        return FitResult(zero, (zero,), points, weighting, nugget, anisotropy, tuple(notes))
+        asked = families if families == "auto" else tuple(families)
+        return FitResult(zero, (zero,), points, weighting, nugget, anisotropy, tuple(notes), asked, structures)
     guarded = families == "auto" if guarded is None else guarded
     specs = _candidate_specs(families, nugget, anisotropy, structures, dimension, guarded)
     candidates = [_fit_candidate(spec, points, weighting, sample_variance) for spec in specs]
@@ -641,7 +654,8 @@ def fit_model(
         notes.append(
             f"the best model explains little of the experimental variogram (R^2 = {best.r_squared:.2f}); the data may be close to pure nugget"
         )
-    return FitResult(best, tuple(ranked), points, weighting, nugget, anisotropy, tuple(notes))
+    asked = families if families == "auto" else tuple(families)
+    return FitResult(best, tuple(ranked), points, weighting, nugget, anisotropy, tuple(notes), asked, structures)
 
 
 def points_from_experimental(result, min_pairs: int) -> ExperimentalPoints:

@@ -118,11 +118,15 @@ class JointFitResult:
     direct_fits: tuple[FitResult, ...]
     weighting: str
     warnings: tuple[str, ...] = field(default=())
+    fitted: dict[tuple[int, int], np.ndarray] = field(init=False, repr=False, compare=False)
 
-    def fitted_values(self, i: int, j: int) -> np.ndarray:
-        """The selected model's gamma_ij at every class of entry (i, j)."""
-        points = self.experimental.points[(min(i, j), max(i, j))]
-        return self.best.model.semivariance(i, j, _vectors(points))
+    def __post_init__(self) -> None:
+        # The selected model's gamma_ij at every class of each entry (i, j), i <= j, of the experimental points.
+        fitted = {
+            key: self.best.model.semivariance(key[0], key[1], _vectors(points))
+            for key, points in self.experimental.points.items()
+        }
+        object.__setattr__(self, "fitted", fitted)
 
 
 def _vectors(points: ExperimentalPoints) -> np.ndarray:

@@ -127,6 +127,7 @@ class SimulationResult:
     passes: int
     warnings: tuple[str, ...]
 
+    @property
     def method(self) -> dict:
         """How the realisations were made, for the response's ``method``."""
         return {
