@@ -16,6 +16,8 @@ from typing import Any
 import numpy as np
 import orjson
 
+from ..core.data.identifiers import IndexIds
+
 
 class MalformedJSON(ValueError):
     """The body is not strict JSON."""
@@ -45,6 +47,8 @@ def _fallback(value: Any) -> Any:
         return np.ascontiguousarray(value)
     if isinstance(value, np.generic):
         return value.item()
+    if isinstance(value, IndexIds):
+        return list(value)
     raise TypeError(f"cannot serialise {type(value).__name__}")
 
 
