@@ -20,6 +20,7 @@ from .results import (
     ExperimentalVariogram,
     ModelFit,
     Predictions,
+    Response,
     SeveralVariograms,
     VariogramMap,
 )
@@ -63,12 +64,13 @@ def _encode(body: Mapping[str, Any], request_id: str) -> bytes:
         ) from None
 
 
-def _model(model: VariogramModel | Mapping[str, Any]) -> dict:
-    return model.to_dict() if isinstance(model, VariogramModel) else dict(model)
+def _model(model: VariogramModel | JointModel | Mapping[str, Any]) -> dict:
+    return model.to_dict() if isinstance(model, VariogramModel | JointModel) else dict(model)
 
 
-def _experimental(experimental: ExperimentalVariogram | Mapping[str, Any]) -> dict:
-    return experimental.to_dict() if isinstance(experimental, ExperimentalVariogram) else dict(experimental)
+def _experimental(experimental: Response | Mapping[str, Any]) -> dict:
+    """A previous experimental response (typed or as its document) as its document."""
+    return experimental.to_dict() if isinstance(experimental, Response) else dict(experimental)
 
 
 def _targets(targets: Mapping[str, Any]) -> dict:
@@ -85,6 +87,8 @@ CONVERSIONS: dict[str, Callable[[Any], Any]] = {
 SAMPLE_ARGUMENTS = frozenset({"self", "samples", "columns", *SAMPLE_MEMBERS})
 # Arguments that shape how the client talks, not what it asks: never sent as members.
 CLIENT_ARGUMENTS = frozenset({"arrow_answer"})
+# Arguments of the joint methods that build the samples member rather than being sent as they are.
+JOINT_ARGUMENTS = frozenset({"self", "samples", "variables", "columns"})
 
 
 def request_body(arguments: Mapping[str, Any]) -> dict:
@@ -470,22 +474,31 @@ class Lagwise:
         realisations) as an Arrow stream; the result is the same."""
         return self._compute("/v1/simulations", Simulation, locals())
 
-    def _joint_body(self, samples, variables, coordinate_columns, model, options: Mapping[str, Any]) -> dict:
-        if variables is not None:
-            samples = variables_samples(samples, variables, **coordinate_columns)
-        body: dict[str, Any] = {"samples": samples}
-        if model is not None:
-            body["model"] = model.to_dict() if isinstance(model, JointModel) else dict(model)
-        for name, value in options.items():
-            if value is not None:
-                body[name] = _targets(value) if name == "targets" else value
-        return body
+    def _joint(self, path: str, result: Any, arguments: Mapping[str, Any]) -> Any:
+        """POST a several-variable request built from a joint method's ``arguments`` and read the result.
+
+        As for :meth:`_compute`, each keyword is the request member of the same name (None: the
+        service's default); ``samples`` with ``variables`` is a table sent through
+        :func:`variables_samples` (``columns`` naming its coordinate columns), without
+        ``variables`` an already built samples document; ``model`` may be a :class:`JointModel`.
+        """
+        body: dict[str, Any] = {}
+        samples, variables = arguments.get("samples"), arguments.get("variables")
+        if samples is not None:
+            columns = dict(arguments.get("columns") or {})
+            body["samples"] = samples if variables is None else variables_samples(samples, variables, **columns)
+        for name, value in arguments.items():
+            if name in JOINT_ARGUMENTS or value is None:
+                continue
+            convert = CONVERSIONS.get(name)
+            body[name] = convert(value) if convert else value
+        return result.from_response(self.request("POST", path, body))
 
     def fit_joint_model(
         self,
         samples=None,
         *,
-        experimental: Mapping[str, Any] | None = None,
+        experimental: SeveralVariograms | Mapping[str, Any] | None = None,
         variables: list[str] | None = None,
         columns: Mapping[str, str | None] | None = None,
         lags: Mapping[str, Any] | None = None,
@@ -504,29 +517,12 @@ class Lagwise:
         Give ``samples`` (a table whose ``variables`` columns are sent, as for :meth:`cokrige`, or a
         samples document with several variables; ``lags`` and ``directions`` shape the direct and
         cross variograms computed first) or ``experimental``, a several-variable experimental
-        response (its ``variables`` and ``cross``). ``nugget`` is ``"fit"`` (default) or ``"none"``;
+        response (a :class:`SeveralVariograms` or its document: its ``variables`` and ``cross``). ``nugget`` is ``"fit"`` (default) or ``"none"``;
         ``weighting`` ``pairs``, ``pairs_over_distance`` or ``uniform``.
         """
         if (samples is None) == (experimental is None):
             raise TypeError("give samples or experimental, not both")
-        if samples is not None:
-            body = self._joint_body(samples, variables, dict(columns or {}), None, {})
-        else:
-            body = {"experimental": dict(experimental or {})}
-        options = {
-            "lags": lags,
-            "directions": directions,
-            "families": families,
-            "nugget": nugget,
-            "weighting": weighting,
-            "anisotropy": anisotropy,
-            "structures": structures,
-            "min_pairs": min_pairs,
-            "coordinates": coordinates,
-            "duplicates": duplicates,
-        }
-        body.update({k: v for k, v in options.items() if v is not None})
-        return JointFit.from_response(self.request("POST", "/v1/model-fits", body))
+        return self._joint("/v1/model-fits", JointFit, locals())
 
     def cokrige(
         self,
@@ -551,17 +547,7 @@ class Lagwise:
         ``kriging`` ``{"type": "ordinary"}`` (default) or ``{"type": "simple", "means": {...}}``.
         The result's ``cokriging`` shows the variance with and without the secondaries.
         """
-        options = {
-            "primary": primary,
-            "targets": targets,
-            "grid": grid,
-            "kriging": kriging,
-            "neighbourhood": neighbourhood,
-            "coordinates": coordinates,
-            "duplicates": duplicates,
-        }
-        body = self._joint_body(samples, variables, dict(columns or {}), model, options)
-        return Cokriging.from_response(self.request("POST", "/v1/predictions", body))
+        return self._joint("/v1/predictions", Cokriging, locals())
 
     def cross_validate_cokriging(
         self,
@@ -580,17 +566,7 @@ class Lagwise:
     ) -> CokrigingCrossValidation:
         """Cross-validation of ``primary`` by cokriging (``POST /v1/cross-validations``); samples as
         for :meth:`cokrige`. Only primary values are left out."""
-        options = {
-            "primary": primary,
-            "kriging": kriging,
-            "neighbourhood": neighbourhood,
-            "scheme": scheme,
-            "outlier_threshold": outlier_threshold,
-            "coordinates": coordinates,
-            "duplicates": duplicates,
-        }
-        body = self._joint_body(samples, variables, dict(columns or {}), model, options)
-        return CokrigingCrossValidation.from_response(self.request("POST", "/v1/cross-validations", body))
+        return self._joint("/v1/cross-validations", CokrigingCrossValidation, locals())
 
     def analyze(
         self,

@@ -26,6 +26,11 @@ def _dataframe(rows: list[dict]):
     return pd.DataFrame(rows)
 
 
+def _columnar_frame(columns: Mapping[str, list]):
+    """A DataFrame of equal-length columns (a response's columnar member), one row per entry."""
+    return _dataframe([dict(zip(columns, row, strict=True)) for row in zip(*columns.values(), strict=True)])
+
+
 def _object(payload: Any, where: str) -> Mapping[str, Any]:
     if not isinstance(payload, Mapping):
         raise ResponseError(f"the response's {where or '/'} is not a JSON object")
@@ -339,9 +344,7 @@ class CrossValidation(Response):
 
     def to_dataframe(self):
         """One row per sample (needs pandas)."""
-        return _dataframe(
-            [dict(zip(self.samples, row, strict=True)) for row in zip(*self.samples.values(), strict=True)]
-        )
+        return _columnar_frame(self.samples)
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -620,11 +623,13 @@ class BatchAnalysis(Response):
         return self.variables[self.names.index(name)]
 
     def to_dataframe(self):
-        """One row per variable: name, unit, samples, verdict level, usable, the selected model's
-        families, and the cross-validation's RMSE and standardized RMSE (needs pandas)."""
+        """One row per variable (needs pandas): name, unit, samples, verdict level, usable, the selected
+        model (families, nugget, total sill, largest practical range of its bounded structures) and every cross-validation
+        statistic (RMSE and standardized RMSE also as ``rmse`` and ``rmse_standardized``)."""
         rows = []
         for name, analysis in zip(self.names, self.variables, strict=True):
             statistics = (analysis.cross_validation or {}).get("statistics") or {}
+            model = analysis.model
             rows.append(
                 {
                     "name": name,
@@ -632,9 +637,22 @@ class BatchAnalysis(Response):
                     "samples": analysis.summary.get("samples"),
                     "verdict": analysis.verdict.get("level"),
                     "usable": analysis.verdict.get("usable"),
-                    "families": "+".join(s.family for s in analysis.model.structures),
+                    "families": "+".join(s.family for s in model.structures),
+                    "nugget": model.nugget,
+                    "sill": model.sill,
+                    "range": max((s.range for s in model.structures if s.bounded), default=None),
                     "rmse": statistics.get("root_mean_square_error"),
                     "rmse_standardized": statistics.get("root_mean_square_standardized_error"),
+                    **{k: v for k, v in statistics.items() if not isinstance(v, dict | list)},
                 }
             )
         return _dataframe(rows)
+
+    def frames(self) -> dict:
+        """One DataFrame per variable, keyed by its name: its cross-validation per sample (id,
+        observed, estimate, standard_deviation, error, standardized_error, outlier; the samples
+        where that variable was measured), empty when the analysis had no cross-validation."""
+        return {
+            name: _columnar_frame((analysis.cross_validation or {}).get("samples") or {})
+            for name, analysis in zip(self.names, self.variables, strict=True)
+        }

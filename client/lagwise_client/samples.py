@@ -121,7 +121,9 @@ def samples_document(
         are sent when present; rename with ``columns``, e.g. ``{"values": "lead_mg_kg",
         "ids": "sample"}``. ``{"values": ["lead", "zinc"]}`` sends several value columns as
         ``variables`` (named by their columns; missing values, None or NaN, as null: not
-        measured). A mapping that holds ``geojson`` is sent as it is.
+        measured). A mapping that holds ``raster``, ``geojson`` or ``variables`` (a mapping of
+        columns, with ``units``, ``censored`` and ``detection_limits`` per variable) is an already
+        built samples document and is sent as it is.
     x, y, z, values, ids, censored, detection_limits : sequence, optional
         Columns given one by one (lists, tuples, numpy arrays, pandas Series), instead of
         ``samples``.
@@ -163,13 +165,10 @@ def samples_document(
         raise TypeError(
             f"give the samples as a table or as separate columns, not both (also given: {', '.join(separate)})"
         )
-    if isinstance(samples, Mapping) and "raster" in samples:
+    built = _built_document(samples)
+    if built is not None:
         if columns:
-            raise TypeError("columns applies to tables, not to a raster")
-        return dict(samples)
-    if isinstance(samples, Mapping) and "geojson" in samples:
-        if columns:
-            raise TypeError("columns applies to tables, not to GeoJSON samples (use value_property, id_property)")
+            raise TypeError(f"columns applies to tables, not to {built}")
         return dict(samples)
     available = _table_columns(samples)
     several = (columns or {}).get("values")
@@ -179,6 +178,25 @@ def samples_document(
     document = {name: _member(name, samples[source], arrays) for name, source in names.items() if source in available}
     _fill_censored_values(document)
     return document
+
+
+# Samples documents sent as they are, by the member that marks them, and how to name them.
+BUILT_DOCUMENTS = {
+    "raster": "a raster",
+    "geojson": "GeoJSON samples (use value_property, id_property)",
+    "variables": "a samples document with variables (name a table's value columns instead)",
+}
+
+
+def _built_document(samples: Any) -> str | None:
+    """What ``samples`` is when it is an already built samples document (raster, GeoJSON or
+    several variables, whose ``variables`` member is a mapping of columns), else None."""
+    if not isinstance(samples, Mapping):
+        return None
+    for member, kind in BUILT_DOCUMENTS.items():
+        if member in samples and (member != "variables" or isinstance(samples[member], Mapping)):
+            return kind
+    return None
 
 
 def _not_measured(value: Any) -> Any:

@@ -17,6 +17,8 @@ from pathlib import Path
 import numpy as np
 from scipy.linalg import cho_factor
 
+from .demo_batch import batch_html, batch_lines, elmsworth_batch, model_text, run_batch
+
 SEED = 20261204
 WIDTH_M, HEIGHT_M = 800.0, 500.0
 ENGINE_SHED = (560.0, 330.0)
@@ -25,6 +27,10 @@ CAUTION = (
     "Estimates are statistical. Decisions about contaminated land follow local regulations "
     "and the judgement of a qualified professional."
 )
+# The batch runs the whole chain twelve times in one request: about a minute of CPU on this
+# project's 2-core machine, so the demo waits longer than the client's default and the service
+# started by `manage.py run` allows it (LAGWISE_DEADLINE_SECONDS, see manage.py).
+DEMO_TIMEOUT_SECONDS = 900.0
 ACTION_LEVEL = 300.0  # mg/kg, an INVENTED action level for the demo
 UNIT_SIZE_M = 100.0  # side of the invented remediation units (5 x 5 nodes of the 20 m grid)
 LIMIT_CAUTION = (
@@ -42,8 +48,8 @@ def _anisotropic_distance(a: np.ndarray, b: np.ndarray, azimuth: float, ratio: f
     return np.hypot(h @ along, (h @ across) / ratio)
 
 
-def elmsworth_samples() -> dict:
-    """The 260 invented lead samples: ``{"x", "y", "values", "ids"}`` (metres, mg/kg)."""
+def depot_field() -> tuple[np.ndarray, np.ndarray]:
+    """The 260 invented sample locations (metres) and the log-lead at each (natural log of mg/kg)."""
     rng = np.random.default_rng(SEED)
     gx, gy = np.meshgrid(np.linspace(20, WIDTH_M - 20, 20), np.linspace(20, HEIGHT_M - 20, 12))
     grid = np.column_stack([gx.ravel(), gy.ravel()]) + rng.normal(0, 9.0, (240, 2))
@@ -56,11 +62,16 @@ def elmsworth_samples() -> dict:
     factor, _ = cho_factor(covariance, lower=True)
     field = np.tril(factor) @ rng.standard_normal(len(points))
     shed_bump = 0.9 * np.exp(-np.sum((points - ENGINE_SHED) ** 2, axis=1) / (2 * 70.0**2))
-    lead = np.exp(4.7 + field + shed_bump)
+    return points, 4.7 + field + shed_bump
+
+
+def elmsworth_samples() -> dict:
+    """The 260 invented lead samples: ``{"x", "y", "values", "ids"}`` (metres, mg/kg)."""
+    points, log_lead = depot_field()
     return {
         "x": np.round(points[:, 0], 1).tolist(),
         "y": np.round(points[:, 1], 1).tolist(),
-        "values": np.round(lead, 1).tolist(),
+        "values": np.round(np.exp(log_lead), 1).tolist(),
         "ids": [f"ELM-{i + 1:03d}" for i in range(len(points))],
     }
 
@@ -68,8 +79,9 @@ def elmsworth_samples() -> dict:
 def run_demo(base_url: str, out_dir: Path) -> Path:
     """Run the demo through the SDK against a running service; write the report folder.
 
-    The folder holds ``samples.json``, ``report.json`` (every response), ``figures/``
-    (SVG), ``index.html`` (a one-page summary) and ``summary.txt``. Returns the path of
+    The folder holds ``samples.json``, ``batch.json`` (the laboratory batch's samples),
+    ``report.json`` (every response), ``figures/`` (SVG; ``figures/analytes/<analyte>/`` for
+    the batch), ``index.html`` (a one-page summary) and ``summary.txt``. Returns the path of
     the text summary.
     """
     from lagwise_client import Lagwise
@@ -77,8 +89,10 @@ def run_demo(base_url: str, out_dir: Path) -> Path:
     out_dir.mkdir(parents=True, exist_ok=True)
     samples = elmsworth_samples()
     (out_dir / "samples.json").write_text(json.dumps(samples, indent=1))
+    batch_samples = elmsworth_batch(*depot_field(), ENGINE_SHED)
+    (out_dir / "batch.json").write_text(json.dumps(batch_samples, indent=1))
     log_samples = dict(samples, values=np.log(samples["values"]).tolist())
-    with Lagwise(base_url) as client:
+    with Lagwise(base_url, timeout=DEMO_TIMEOUT_SECONDS) as client:
         omni = client.experimental_variogram(samples, lags={"auto": "equal_width"})
         directional = client.experimental_variogram(
             log_samples,
@@ -111,6 +125,7 @@ def run_demo(base_url: str, out_dir: Path) -> Path:
             coordinate_unit="m",
         )
         seconds = time.perf_counter() - started
+        batch = run_batch(client, batch_samples, out_dir / "figures" / "analytes")
     report = {
         "scenario": "Elmsworth former rail depot, soil lead (mg/kg) - invented data",
         "caution": CAUTION,
@@ -118,12 +133,14 @@ def run_demo(base_url: str, out_dir: Path) -> Path:
         "omnidirectional_lead": omni.to_dict(),
         "directional_log_lead": directional.to_dict(),
         "analysis": analysis.to_dict(),
+        "batch": batch["batch"].to_dict(),
+        "batch_joint_metals": batch["joint"].to_dict(),
     }
     (out_dir / "report.json").write_text(json.dumps(report, indent=1))
     analysis.save_figures(out_dir / "figures")
-    (out_dir / "index.html").write_text(_html(omni, analysis))
+    (out_dir / "index.html").write_text(_html(omni, analysis, batch_html(batch)))
     summary_path = out_dir / "summary.txt"
-    summary_path.write_text(_summary_text(omni, directional, analysis, seconds))
+    summary_path.write_text(_summary_text(omni, directional, analysis, seconds, batch_lines(batch)))
     return summary_path
 
 
@@ -192,14 +209,7 @@ def _decision_lines(analysis) -> list[str]:
     return lines
 
 
-def _model_text(model) -> str:
-    parts = [f"nugget {model.nugget:.3f}"]
-    for s in model.structures:
-        parts.append(f"{s.family} (partial sill {s.partial_sill:.3f}, range {s.range:.0f} m)")
-    return " + ".join(parts)
-
-
-def _summary_text(omni, directional, analysis, seconds) -> str:
+def _summary_text(omni, directional, analysis, seconds, batch: list[str]) -> str:
     s = omni.summary
     cv = analysis.cross_validation["statistics"]
     estimate = [v for v in analysis.prediction["estimate"] if v is not None]
@@ -222,7 +232,7 @@ def _summary_text(omni, directional, analysis, seconds) -> str:
         "Finding: " + _ratio_along_across(directional),
         "",
         f"One-call analysis of log-lead ({seconds:.2f} s through the SDK):",
-        f"  model ({len(analysis.fit['candidates'])} candidates ranked): " + _model_text(analysis.model),
+        f"  model ({len(analysis.fit['candidates'])} candidates ranked): " + model_text(analysis.model),
         f"  anisotropy from 6 direction classes: azimuth {anisotropy['azimuth']:.0f}, ratio {anisotropy['ratio']:.2f}"
         if anisotropy
         else "  anisotropy: not estimated",
@@ -239,14 +249,17 @@ def _summary_text(omni, directional, analysis, seconds) -> str:
         "",
         "Warnings: " + ("; ".join(analysis.warnings) if analysis.warnings else "none"),
         "",
+        *batch,
+        "",
         "CAUTION: " + CAUTION,
         "",
     ]
     return "\n".join(lines)
 
 
-def _html(omni, analysis) -> str:
-    """A self-contained one-page HTML summary (inline SVG figures, no external resources)."""
+def _html(omni, analysis, batch: str) -> str:
+    """A one-page HTML summary: the lead analysis with inline SVG figures, then the ``batch`` section
+    (whose figures are the SVG files under figures/analytes/)."""
     cv = analysis.cross_validation["statistics"]
     rows = "".join(
         f"<tr><th>{html.escape(k.replace('_', ' '))}</th><td>{v:.4g}</td></tr>"
@@ -279,11 +292,13 @@ def _html(omni, analysis) -> str:
     )
     s = omni.summary
     return f"""<!doctype html>
-<html lang="en"><head><meta charset="utf-8"><title>Elmsworth soil lead - Lagwise report</title>
+<html lang="en"><head><meta charset="utf-8"><title>Elmsworth soil lead and laboratory batch - Lagwise report</title>
 <style>body{{font-family:system-ui,sans-serif;color:#2f3e46;max-width:980px;margin:2em auto;padding:0 1em}}
 .caution{{border-left:4px solid #8e4a7d;background:#f6eef4;padding:.6em 1em}}table{{border-collapse:collapse}}
-th,td{{text-align:left;padding:.2em .8em;border-bottom:1px solid #e9eef0}}figure{{margin:1.5em 0}}svg{{max-width:100%;height:auto}}</style></head>
-<body><h1>Elmsworth former rail depot: soil lead</h1>
+th,td{{text-align:left;padding:.2em .8em;border-bottom:1px solid #e9eef0}}figure{{margin:1.5em 0}}svg{{max-width:100%;height:auto}}
+.pair{{display:flex;gap:2%;flex-wrap:wrap}}figure.half{{width:48%;margin:.5em 0}}figure.half img{{width:100%;height:auto}}
+section{{border-top:1px solid #e9eef0;margin-top:1.5em}}.level-no_structure,.level-review{{color:#8e4a7d;font-weight:600}}</style></head>
+<body><h1>Elmsworth former rail depot: soil lead and a twelve-analyte batch</h1>
 <p class="caution"><strong>Invented demo data.</strong> {html.escape(CAUTION)}</p>
 <p>{s["samples"]} samples, mean {s["mean"]:.1f} mg/kg, values {s["minimum"]:.1f} to {s["maximum"]:.1f} mg/kg.</p>
 <h2>Verdict: {html.escape(analysis.verdict["level"].replace("_", " "))}</h2><p>{html.escape(analysis.verdict["text"])}</p>
@@ -292,5 +307,7 @@ th,td{{text-align:left;padding:.2em .8em;border-bottom:1px solid #e9eef0}}figure
 {decision}
 <h2>Warnings</h2><ul>{warnings}</ul>
 <h2>Figures</h2>{figures}
+{batch}
+<p class="caution">{html.escape(CAUTION)}</p>
 </body></html>
 """

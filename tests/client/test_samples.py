@@ -94,6 +94,23 @@ def test_geojson_is_sent_as_given():
     assert samples_document(geojson) == geojson
 
 
+def test_a_several_variable_document_is_sent_as_given():
+    """A built document with variables keeps its per-variable units and censoring (a table's
+    columns would lose them); a table column that happens to be called variables stays a column."""
+    document = {
+        "x": [0.0, 1.0, 2.0],
+        "y": [0.0, 1.0, 0.0],
+        "variables": {"lead": [1.0, None, 3.0], "zinc": [2.0, 2.5, None]},
+        "units": {"lead": "mg/kg", "zinc": "mg/kg"},
+        "censored": {"zinc": [False, True, False]},
+    }
+    assert samples_document(document) == document
+    with pytest.raises(TypeError, match="samples document with variables"):
+        samples_document(document, columns={"x": "x"})
+    table = {"x": [0.0, 1.0], "variables": [4.0, 5.0]}
+    assert samples_document(table, columns={"values": "variables"}) == {"x": [0.0, 1.0], "values": [4.0, 5.0]}
+
+
 def test_request_body_from_method_arguments(lab_table):
     body = request_body(
         dict(

@@ -95,3 +95,45 @@ def test_twelve_analyte_batch_through_the_sdk(lw, table):
     assert list(summary["name"]) == list(ANALYTES) and summary["samples"].iloc[0] == 90
     assert set(summary["verdict"]) <= {"no_structure", "weak", "usable", "review"}
     assert result["nitrate"].summary["samples"] == int(table["nitrate"].notna().sum())
+
+
+def test_batch_frames_per_variable(lw, table):
+    """Per-variable DataFrames of a batch: each holds that variable's measured samples only, and
+    the summary's RMSE is the root mean square of the frame's errors (definition, common practice)."""
+    names = ["lead", "nitrate", "xylene"]
+    result = lw.analyze(
+        table, columns={"values": names}, fit={"compare": False}, cross_validation={"kriging": {"type": "ordinary"}}
+    )
+    frames = result.frames()
+    assert list(frames) == names
+    summary = result.to_dataframe().set_index("name")
+    for name in names:
+        frame = frames[name]
+        measured = table[name].dropna().to_numpy()
+        assert len(frame) == len(measured) == summary.loc[name, "samples"] == summary.loc[name, "count"]
+        np.testing.assert_allclose(np.sort(frame["observed"]), np.sort(measured), rtol=1e-12)
+        np.testing.assert_allclose(frame["error"], frame["estimate"] - frame["observed"], rtol=1e-9, atol=1e-12)
+        rmse = float(np.sqrt(np.mean(frame["error"].to_numpy() ** 2)))
+        assert summary.loc[name, "rmse"] == pytest.approx(rmse, rel=1e-9)
+        assert summary.loc[name, "sill"] == pytest.approx(
+            summary.loc[name, "nugget"] + sum(s.partial_sill for s in result[name].model.structures)
+        )
+    # A variable of the batch gives what the single-variable request on its measured samples gives.
+    rows = table.dropna(subset=["nitrate"])
+    alone = lw.analyze(
+        x=rows["x"],
+        y=rows["y"],
+        values=rows["nitrate"],
+        fit={"compare": False},
+        cross_validation={"kriging": {"type": "ordinary"}},
+    )
+    assert result["nitrate"].cross_validation["statistics"] == alone.cross_validation["statistics"]
+    assert result["nitrate"].model == alone.model
+
+
+def test_joint_fit_from_a_several_variogram_result(lw, table):
+    """fit_joint_model takes the SeveralVariograms result itself, as it takes its document."""
+    several = lw.experimental_variogram(table, columns={"values": ["lead", "zinc"]}, lags={"edges": EDGES})
+    typed = lw.fit_joint_model(experimental=several, families=["spherical"])
+    plain = lw.fit_joint_model(experimental=several.to_dict(), families=["spherical"])
+    assert typed.model == plain.model and typed.model.variables == ("lead", "zinc")

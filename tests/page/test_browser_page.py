@@ -9,6 +9,7 @@ import shutil
 import pytest
 from lagwise.demo import elmsworth_samples
 
+from tests.batch_data import batch
 from tests.live import running_service
 
 CHROMIUM = shutil.which("chromium") or "/usr/bin/chromium"
@@ -45,7 +46,7 @@ def browser(tmp_path_factory):
 
 @pytest.fixture(scope="module")
 def url():
-    with running_service(workers=1) as base:
+    with running_service({"LAGWISE_DEADLINE_SECONDS": "300"}, workers=1) as base:
         yield base
 
 
@@ -66,9 +67,11 @@ def test_upload_run_and_see_results(browser, url, tmp_path):
 
     browser.get(url + "/")
     browser.find_element(By.ID, "file").send_keys(str(_demo_csv(tmp_path / "elmsworth.csv")))
-    WebDriverWait(browser, 10).until(lambda d: len(Select(d.find_element(By.ID, "col-value")).options) == 4)
+    WebDriverWait(browser, 10).until(lambda d: d.find_elements(By.ID, "value-3"))
     assert Select(browser.find_element(By.ID, "col-x")).first_selected_option.text == "easting"
-    Select(browser.find_element(By.ID, "col-value")).select_by_visible_text("lead")
+    # The one numeric column not taken by coordinates or ids is ticked by its content.
+    assert browser.find_element(By.ID, "value-3").is_selected()
+    assert len(browser.find_elements(By.CSS_SELECTOR, ".value-pick")) == 1
     Select(browser.find_element(By.ID, "transform")).select_by_value("log")
     browser.find_element(By.ID, "directions").click()
     browser.find_element(By.ID, "run").click()
@@ -79,7 +82,106 @@ def test_upload_run_and_see_results(browser, url, tmp_path):
     assert "Spatial structure" in browser.find_element(By.ID, "verdict").text
     rows = browser.find_elements(By.CSS_SELECTOR, "#strategies tbody tr")
     assert len(rows) >= 2 and sum(r.find_elements(By.TAG_NAME, "td")[4].text == "yes" for r in rows) == 1
+    assert not browser.find_element(By.ID, "batch").is_displayed()
     browser.save_screenshot(str(tmp_path / "page.png"))
+
+
+BATCH_COLUMNS = ("lead", "nitrate", "toluene", "empty")
+
+
+def _batch_csv(path, columns=BATCH_COLUMNS, bad_cell=None):
+    """The invented batch's analytes as a laboratory CSV: empty where not measured, <limit below it;
+    ``empty`` is a column with one result only; ``bad_cell`` (column, row) holds text."""
+    samples = batch()
+    variables = dict(samples["variables"], empty=[1.0] + [None] * (len(samples["x"]) - 1))
+    with open(path, "w", newline="") as handle:
+        writer = csv.writer(handle)
+        writer.writerow(["sample", "easting", "northing", *columns])
+        for i, (x, y) in enumerate(zip(samples["x"], samples["y"], strict=True)):
+            cells = []
+            for name in columns:
+                limit = samples["detection_limits"].get(name, [None] * len(samples["x"]))[i]
+                value = variables[name][i]
+                cells.append(f"<{limit}" if limit is not None else "" if value is None else value)
+            if bad_cell is not None and i == bad_cell[1]:
+                cells[columns.index(bad_cell[0])] = "n/a"
+            writer.writerow([f"S{i + 1}", x, y, *cells])
+    return path
+
+
+def _tick(browser, header, names, units=None):
+    from selenium.webdriver.common.by import By
+
+    for name in header:
+        box = browser.find_element(By.ID, f"value-{3 + header.index(name)}")
+        if box.is_selected() != (name in names):
+            box.click()
+    for name, unit in (units or {}).items():
+        browser.find_element(By.ID, f"unit-{3 + header.index(name)}").send_keys(unit)
+
+
+def test_several_value_columns_give_results_per_variable(browser, url, tmp_path):
+    """Three analytes of the invented batch (heterotopic, one below its detection limit) in one run."""
+    from selenium.webdriver.common.by import By
+    from selenium.webdriver.support import expected_conditions as ec
+    from selenium.webdriver.support.ui import Select, WebDriverWait
+
+    browser.get(url + "/")
+    browser.find_element(By.ID, "file").send_keys(str(_batch_csv(tmp_path / "batch.csv")))
+    WebDriverWait(browser, 10).until(lambda d: d.find_elements(By.ID, "value-6"))
+    assert [b.is_selected() for b in browser.find_elements(By.CSS_SELECTOR, ".value-pick")] == [
+        True,
+        False,
+        False,
+        False,
+    ]
+    _tick(browser, BATCH_COLUMNS, ("lead", "nitrate", "toluene"), {"lead": "mg/kg", "toluene": "ug/kg"})
+    Select(browser.find_element(By.ID, "transform")).select_by_value("log")
+    browser.find_element(By.ID, "run").click()
+    WebDriverWait(browser, 240).until(ec.visibility_of_element_located((By.ID, "batch")))
+    rows = browser.find_elements(By.CSS_SELECTOR, "#batch-table tbody tr")
+    cells = [[td.text for td in r.find_elements(By.TAG_NAME, "td")] for r in rows]
+    assert [c[0] for c in cells] == ["lead", "nitrate", "toluene"]
+    assert [c[1] for c in cells] == ["mg/kg", "", "ug/kg"]
+    measured = batch()["variables"]
+    assert [int(c[2]) for c in cells] == [sum(v is not None for v in measured[n]) for n in ("lead", "nitrate")] + [
+        sum(v is not None for v in measured["toluene"]) + 1  # the censored result counts as a sample
+    ]
+    assert "Verdict for lead" in browser.find_element(By.ID, "shown-title").text
+    Select(browser.find_element(By.ID, "variable")).select_by_index(2)
+    assert "Verdict for toluene" in browser.find_element(By.ID, "shown-title").text
+    assert "detection limit" in browser.find_element(By.ID, "warnings").text
+    assert browser.find_element(By.CSS_SELECTOR, "#figure-variogram svg").is_displayed()
+    assert "toluene" in browser.find_element(By.CSS_SELECTOR, "#figure-variogram").text
+    browser.find_element(By.LINK_TEXT, "nitrate").click()
+    assert "Verdict for nitrate" in browser.find_element(By.ID, "shown-title").text
+    browser.save_screenshot(str(tmp_path / "batch.png"))
+
+
+def test_errors_of_a_value_column_show_beside_it(browser, url, tmp_path):
+    """A text cell is refused in the page beside its column; the service's refusal of a column with
+    one result (a problem pointing at /samples/variables/empty) lands beside that column too."""
+    from selenium.webdriver.common.by import By
+    from selenium.webdriver.support.ui import WebDriverWait
+
+    browser.get(url + "/")
+    browser.find_element(By.ID, "file").send_keys(str(_batch_csv(tmp_path / "bad.csv", bad_cell=("nitrate", 4))))
+    WebDriverWait(browser, 10).until(lambda d: d.find_elements(By.ID, "value-6"))
+    _tick(browser, BATCH_COLUMNS, ("lead", "nitrate"))
+    browser.find_element(By.ID, "run").click()
+    WebDriverWait(browser, 10).until(lambda d: d.find_element(By.ID, "value-error-4").text != "")
+    assert "Row 6, column nitrate: 'n/a' is not a number" in browser.find_element(By.ID, "value-error-4").text
+    assert browser.find_element(By.ID, "value-error-3").text == ""
+
+    browser.get(url + "/")
+    browser.find_element(By.ID, "file").send_keys(str(_batch_csv(tmp_path / "one.csv")))
+    WebDriverWait(browser, 10).until(lambda d: d.find_elements(By.ID, "value-6"))
+    _tick(browser, BATCH_COLUMNS, ("lead", "empty"))
+    browser.find_element(By.ID, "run").click()
+    WebDriverWait(browser, 60).until(lambda d: d.find_element(By.ID, "value-error-6").text != "")
+    assert "/samples/variables/empty" in browser.find_element(By.ID, "value-error-6").text
+    assert browser.find_element(By.ID, "value-error-3").text == ""
+    assert browser.find_element(By.ID, "csv-error").text == ""
 
 
 @pytest.mark.parametrize(
