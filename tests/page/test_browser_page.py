@@ -139,6 +139,7 @@ def test_several_value_columns_give_results_per_variable(browser, url, tmp_path)
     Select(browser.find_element(By.ID, "transform")).select_by_value("log")
     browser.find_element(By.ID, "run").click()
     WebDriverWait(browser, 240).until(ec.visibility_of_element_located((By.ID, "batch")))
+    browser.save_screenshot(str(tmp_path / "batch-top.png"))
     rows = browser.find_elements(By.CSS_SELECTOR, "#batch-table tbody tr")
     cells = [[td.text for td in r.find_elements(By.TAG_NAME, "td")] for r in rows]
     assert [c[0] for c in cells] == ["lead", "nitrate", "toluene"]
@@ -158,28 +159,32 @@ def test_several_value_columns_give_results_per_variable(browser, url, tmp_path)
     browser.save_screenshot(str(tmp_path / "batch.png"))
 
 
-def test_errors_of_a_value_column_show_beside_it(browser, url, tmp_path):
-    """A text cell is refused in the page beside its column; the service's refusal of a column with
-    one result (a problem pointing at /samples/variables/empty) lands beside that column too."""
+def _run_with_error(browser, url, path, names, field, seconds):
+    """Upload ``path``, tick ``names``, run, and return the text that appears in ``field``."""
     from selenium.webdriver.common.by import By
     from selenium.webdriver.support.ui import WebDriverWait
 
     browser.get(url + "/")
-    browser.find_element(By.ID, "file").send_keys(str(_batch_csv(tmp_path / "bad.csv", bad_cell=("nitrate", 4))))
+    browser.find_element(By.ID, "file").send_keys(str(path))
     WebDriverWait(browser, 10).until(lambda d: d.find_elements(By.ID, "value-6"))
-    _tick(browser, BATCH_COLUMNS, ("lead", "nitrate"))
+    _tick(browser, BATCH_COLUMNS, names)
     browser.find_element(By.ID, "run").click()
-    WebDriverWait(browser, 10).until(lambda d: d.find_element(By.ID, "value-error-4").text != "")
-    assert "Row 6, column nitrate: 'n/a' is not a number" in browser.find_element(By.ID, "value-error-4").text
+    WebDriverWait(browser, seconds).until(lambda d: d.find_element(By.ID, field).text != "")
+    return browser.find_element(By.ID, field).text
+
+
+def test_errors_of_a_value_column_show_beside_it(browser, url, tmp_path):
+    """A text cell is refused in the page beside its column; the service's refusal of a column with
+    one result (a problem pointing at /samples/variables/empty) lands beside that column too."""
+    from selenium.webdriver.common.by import By
+
+    bad = _batch_csv(tmp_path / "bad.csv", bad_cell=("nitrate", 4))
+    text = _run_with_error(browser, url, bad, ("lead", "nitrate"), "value-error-4", 10)
+    assert "Row 6, column nitrate: 'n/a' is not a number" in text
     assert browser.find_element(By.ID, "value-error-3").text == ""
 
-    browser.get(url + "/")
-    browser.find_element(By.ID, "file").send_keys(str(_batch_csv(tmp_path / "one.csv")))
-    WebDriverWait(browser, 10).until(lambda d: d.find_elements(By.ID, "value-6"))
-    _tick(browser, BATCH_COLUMNS, ("lead", "empty"))
-    browser.find_element(By.ID, "run").click()
-    WebDriverWait(browser, 60).until(lambda d: d.find_element(By.ID, "value-error-6").text != "")
-    assert "/samples/variables/empty" in browser.find_element(By.ID, "value-error-6").text
+    one = _batch_csv(tmp_path / "one.csv")
+    assert "/samples/variables/empty" in _run_with_error(browser, url, one, ("lead", "empty"), "value-error-6", 60)
     assert browser.find_element(By.ID, "value-error-3").text == ""
     assert browser.find_element(By.ID, "csv-error").text == ""
 
