@@ -47,6 +47,14 @@ def check_cost(document: dict, samples: int, limits) -> None:
         limits.check_figure("cross_validation", 2 * samples, document["figure_format"])
 
 
+def marks(document: dict, samples: int) -> int:
+    """Marks the requested maps and the cross-validation figure draw together (grid nodes and sample markers)."""
+    names = document["figures"]
+    nodes = math.prod(document["prediction"]["grid"]["shape"]) if "prediction" in document else 0
+    maps = sum(name in names for name in ("prediction_map", "standard_deviation_map", "probability_map"))
+    return maps * (nodes + samples) + (2 * samples if "cross_validation" in names else 0)
+
+
 def render(result, samples, document: dict) -> dict:
     """Figure name -> SVG text or base64 PNG, for the requested figures that apply to ``result``."""
     names = document["figures"]

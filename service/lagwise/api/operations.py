@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import functools
 import time
+from collections.abc import Sequence
 from dataclasses import dataclass, replace
 
 import numba
@@ -12,6 +13,7 @@ import scipy
 from flask import Blueprint, Response, current_app, g, request
 
 from .. import __version__
+from ..core import analysis_cost
 from ..core.analysis import analyse
 from ..core.data.samples import SampleSet
 from ..core.data.variables import MultiSampleSet
@@ -32,6 +34,7 @@ from .body import load_json
 from .columnar import ARROW_MEDIA_TYPE, arrow_answer, wants_arrow
 from .fields import pointer_token
 from .figure_set import check_cost as check_figures
+from .figure_set import marks as figure_marks
 from .figure_set import render
 from .jsonio import dumps
 from .observability import count_work
@@ -398,8 +401,10 @@ def analyses():
     document = load_json(AnalysisRequest())
     given = convert.samples_of(document, settings().limits)
     if isinstance(given, MultiSampleSet) and document["variable"]["name"] not in given.names:
+        _check_analysis_cost(document, [given.variable(name) for name in given.names], given.names)
         return _batch_analyses(document, given)
     samples = given.variable(convert.chosen_variable(document, given)) if isinstance(given, MultiSampleSet) else given
+    _check_analysis_cost(document, [samples])
     body, pairs = _analysis_body(document, samples)
     return with_provenance(body, samples.input_hash, samples.size, pairs)
 
@@ -418,6 +423,23 @@ def _batch_analyses(document: dict, samples: MultiSampleSet) -> Response:
         analyses.append((name, unit, body))
         pairs += counted
     return with_provenance(serialize.batch_analysis(samples, analyses), samples.input_hash, samples.size, pairs)
+
+
+def _check_analysis_cost(document: dict, variables: list[SampleSet], names: Sequence[str] = ()) -> None:
+    """Refuse, before any work, analyses whose estimated seconds summed over ``variables`` exceed the limit."""
+    options = replace(convert.analysis_options(document), with_map="variogram_map" in document["figures"])
+    limits = settings().limits
+    costs = [
+        analysis_cost.estimate(
+            samples,
+            options,
+            limits,
+            figure_marks=figure_marks(document, samples.size),
+            figure_format=document["figure_format"],
+        )
+        for samples in variables
+    ]
+    analysis_cost.check(costs, limits, names)
 
 
 def _of_variable(exc: InvalidInput, name: str) -> InvalidInput:

@@ -131,7 +131,8 @@ class Analysis:
     verdict: Verdict = Verdict(False, "review", "")
 
 
-def _neighbourhood(options: AnalysisOptions, samples: SampleSet) -> Neighbourhood:
+def neighbourhood_for(options: AnalysisOptions, samples: SampleSet) -> Neighbourhood:
+    """The caller's neighbourhood, else the unique one up to :data:`UNIQUE_UP_TO` samples and 24 points above."""
     given = options.cross_validation.neighbourhood
     if given is not None:
         return given
@@ -574,7 +575,7 @@ def analyse(
     working = replace(samples, values=start.values)
     envelope = Envelope.of(working.values)
     omni = _variogram(working, options.variogram, limits, declustering=start.declustering)
-    hood = _neighbourhood(options, samples)
+    hood = neighbourhood_for(options, samples)
     constant = omni.summary.variance == 0.0
     notes = list(omni.warnings)
     if constant:

@@ -59,6 +59,11 @@ class Limits:
     max_returned_values : int
         Realisation values a simulation may return (``LAGWISE_MAX_RETURNED_VALUES``):
         realisations x grid nodes with ``return_realisations``; about 20 bytes of JSON each.
+    max_analysis_seconds : int
+        Estimated seconds of one core for a whole analysis (``LAGWISE_MAX_ANALYSIS_SECONDS``): its
+        variograms, fits, the cross-validation of every strategy, the prediction, simulation and
+        figures, summed over the variables of a batch, at the rates of the limits above
+        (``lagwise.core.analysis_cost``); raise it with the deadline.
     """
 
     max_samples: int = 200_000
@@ -74,6 +79,7 @@ class Limits:
     max_simulation_values: int = 100_000_000
     max_embedding_nodes: int = 4_194_304
     max_returned_values: int = 2_000_000
+    max_analysis_seconds: int = 60
 
     def check_samples(self, n: int) -> None:
         """Refuse more than ``max_samples`` samples."""

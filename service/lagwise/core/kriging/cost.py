@@ -88,6 +88,15 @@ def prediction_flops(n: int, m: int, neighbourhood: Neighbourhood, p: int) -> fl
     return m * (TARGET_OPERATIONS + ENTRY_OPERATIONS * (k * k + k) + s**3 / 3 + 2.0 * s * s)
 
 
+def block_prediction_flops(n: int, m: int, neighbourhood: Neighbourhood, p: int, points: int) -> float:
+    """Operations to krige m blocks of ``points`` discretisation points each (``points`` 1: m points):
+    :func:`prediction_flops` plus the point-to-block and within-block covariance averages."""
+    if points <= 1:
+        return prediction_flops(n, m, neighbourhood, p)
+    k = n if neighbourhood.unique else min(neighbourhood.max_points or n, n)
+    return prediction_flops(n, m, neighbourhood, p) + ENTRY_OPERATIONS * (m * k * (points - 1) + points**2)
+
+
 def cross_validation_flops(n: int, folds: int | None, neighbourhood: Neighbourhood, p: int) -> float:
     """Operations of leave-one-out (``folds`` None) or k-fold cross-validation of n samples.
 

@@ -12,7 +12,7 @@ from ..errors import FieldIssue, InvalidInput, LimitExceeded
 from ..limits import Limits
 from ..modelling.models import VariogramModel
 from .blocks import Blocks, BlockSupport, validate_blocks
-from .cost import ENTRY_OPERATIONS, check_kriging, drift_terms, prediction_flops
+from .cost import block_prediction_flops, check_kriging, drift_terms
 from .neighbourhood import Neighbourhood
 from .systems import Kriger, KrigingSpec, Prediction
 
@@ -120,11 +120,7 @@ def _check_cost(
             "LAGWISE_MAX_TARGETS", limits.max_targets, m, "Predict on a coarser grid or in several requests.", "/grid"
         )
     p = drift_terms(spec.type, spec.drift, samples.dimension)
-    flops = None
-    if points > 1:
-        k = samples.size if neighbourhood.unique else min(neighbourhood.max_points or samples.size, samples.size)
-        extra = ENTRY_OPERATIONS * (m * k * (points - 1) + points**2)  # point-to-block and within-block averages
-        flops = prediction_flops(samples.size, m, neighbourhood, p) + extra
+    flops = block_prediction_flops(samples.size, m, neighbourhood, p, points)
     check_kriging(limits, samples.size, m, neighbourhood, p, flops=flops, what="prediction")
 
 
