@@ -441,20 +441,48 @@ class Kriger:
                     )
         return Prediction(estimate, variance, reasons, weights)
 
+    def bordered_systems(self, pts: np.ndarray, covariances: np.ndarray, drift: np.ndarray):
+        """Build and solve, as one batch, the bordered systems [[K, F], [F', 0]] x = [c, f].
+
+        Parameters
+        ----------
+        pts : ndarray, shape (m, k, d)
+            Each system's neighbours (coordinate units).
+        covariances : ndarray, shape (m, k)
+            Covariances between the neighbours and each target (the right-hand side c).
+        drift : ndarray, shape (m, p)
+            Drift functions at each target (f).
+
+        Returns
+        -------
+        solution : ndarray, shape (m, k + p)
+            Weights then Lagrange multipliers.
+        ok : ndarray of bool, shape (m,)
+            Systems LAPACK solved.
+        K, F, b : ndarray
+            The covariance blocks (m, k, k), drift blocks (m, k, p) and right-hand sides (m, k + p).
+        """
+        k = pts.shape[1]
+        K = self.cov.between(pts, pts, same=True)
+        F = self.frame.drift(self.spec, pts)
+        p = F.shape[-1]
+        A = np.zeros((len(pts), k + p, k + p))
+        A[:, :k, :k] = K
+        A[:, :k, k:] = F
+        A[:, k:, :k] = np.swapaxes(F, 1, 2)
+        b = np.concatenate([covariances, drift], axis=1)
+        solution, ok = _batched_solve(A, b)
+        return solution, ok, K, F, b
+
     def _solve_group(self, targets, idx, rows, start, estimate, variance, reasons, weights, want_weights, support):
         """Solve the systems of targets that have the same number of neighbours, as one batch."""
         pts = self.coords[idx]
         tgt = targets[rows][:, None, :]
         k = idx.shape[1]
-        K = self.cov.between(pts, pts, same=True)
-        F = self.frame.drift(self.spec, pts)
+        solution, ok, K, F, b = self.bordered_systems(
+            pts, support.covariance(pts, tgt)[..., 0], support.drift(tgt)[:, 0, :]
+        )
         p = F.shape[-1]
-        A = np.zeros((len(rows), k + p, k + p))
-        A[:, :k, :k] = K
-        A[:, :k, k:] = F
-        A[:, k:, :k] = np.swapaxes(F, 1, 2)
-        b = np.concatenate([support.covariance(pts, tgt)[..., 0], support.drift(tgt)[:, 0, :]], axis=1)
-        solution, ok = _batched_solve(A, b)
         conditioned = pivot_ratios(K) >= RCOND_MIN if self.model.bounded else np.ones(len(rows), dtype=bool)
         if p > 1:
             # A drift the neighbours cannot separate (e.g. collinear samples for a linear

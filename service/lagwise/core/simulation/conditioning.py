@@ -37,7 +37,7 @@ from ..errors import InvalidInput, SingularSystem
 from ..kriging.conditioning import RCOND_MIN, pivot_ratios
 from ..kriging.cost import batch_rows
 from ..kriging.neighbourhood import Neighbourhood, to_search_space
-from ..kriging.systems import Covariance, Kriger, KrigingSpec, _batched_solve
+from ..kriging.systems import Covariance, Kriger, KrigingSpec
 from ..modelling.models import VariogramModel, unit_semivariance
 
 FLOAT = 8
@@ -190,15 +190,9 @@ class ResidualKriging:
         pts = kriger.coords[idx]
         tgt = targets[:, None, :]
         k = idx.shape[1]
-        K = self.cov.between(pts, pts, same=True)
-        F = kriger.frame.drift(self.spec, pts)
-        p = F.shape[-1]
-        A = np.zeros((len(idx), k + p, k + p))
-        A[:, :k, :k] = K
-        A[:, :k, k:] = F
-        A[:, k:, :k] = np.swapaxes(F, 1, 2)
-        b = np.concatenate([self.cov.between(pts, tgt)[..., 0], kriger.frame.drift(self.spec, tgt)[:, 0, :]], axis=1)
-        solution, ok = _batched_solve(A, b)
+        solution, ok, K, _, _ = kriger.bordered_systems(
+            pts, self.cov.between(pts, tgt)[..., 0], kriger.frame.drift(self.spec, tgt)[:, 0, :]
+        )
         ok &= pivot_ratios(K) >= RCOND_MIN
         if not ok.all():
             bad = int(np.flatnonzero(~ok)[0])
