@@ -14,7 +14,8 @@ from flask import Blueprint, Response, current_app, g, request
 
 from .. import __version__
 from ..core import analysis_cost
-from ..core.analysis import analyse
+from ..core.analysis import Given, analyse
+from ..core.batch import batch_inputs, of_variable
 from ..core.data.samples import SampleSet
 from ..core.data.variables import MultiSampleSet
 from ..core.deadline import deadline
@@ -32,7 +33,6 @@ from ..core.variography.several import several_variograms
 from . import convert, joint, serialize
 from .body import load_json
 from .columnar import ARROW_MEDIA_TYPE, arrow_answer, wants_arrow
-from .fields import pointer_token
 from .figure_set import check_cost as check_figures
 from .figure_set import marks as figure_marks
 from .figure_set import render
@@ -412,14 +412,15 @@ def analyses():
 def _batch_analyses(document: dict, samples: MultiSampleSet) -> Response:
     """The whole chain for each variable of the samples, in their order, in one response."""
     analyses, pairs = [], 0
+    given = batch_inputs(samples, convert.analysis_options(document), settings().limits)
     for k, name in enumerate(samples.names):
         unit = samples.units[k] if samples.units[k] is not None else document["variable"]["unit"]
         try:
             body, counted = _analysis_body(
-                {**document, "variable": {"name": name, "unit": unit}}, samples.variable(name)
+                {**document, "variable": {"name": name, "unit": unit}}, samples.variable(name), given[k]
             )
         except InvalidInput as exc:
-            raise _of_variable(exc, name) from None
+            raise of_variable(exc, name) from None
         analyses.append((name, unit, body))
         pairs += counted
     return with_provenance(serialize.batch_analysis(samples, analyses), samples.input_hash, samples.size, pairs)
@@ -442,23 +443,12 @@ def _check_analysis_cost(document: dict, variables: list[SampleSet], names: Sequ
     analysis_cost.check(costs, limits, names)
 
 
-def _of_variable(exc: InvalidInput, name: str) -> InvalidInput:
-    """The error with pointers into one variable's values moved to ``/samples/variables/<name>``."""
-    column = f"/samples/variables/{pointer_token(name)}"
-    issues = [
-        replace(i, pointer=column + i.pointer[len("/samples/values") :])
-        if i.pointer.startswith("/samples/values")
-        else i
-        for i in exc.issues
-    ]
-    return InvalidInput(issues, f"variable {name!r}: {exc.summary}")
-
-
-def _analysis_body(document: dict, samples: SampleSet) -> tuple[dict, int]:
-    """The analysis of one variable: its response body (without provenance) and the pairs counted."""
+def _analysis_body(document: dict, samples: SampleSet, given: Given | None = None) -> tuple[dict, int]:
+    """The analysis of one variable: its response body (without provenance) and the pairs counted
+    (``given``: its first steps, done for a batch)."""
     options = replace(convert.analysis_options(document), with_map="variogram_map" in document["figures"])
     check_figures(document, samples.size, settings().limits)
-    result = analyse(samples, options, limits=settings().limits, workers=numba.get_num_threads())
+    result = analyse(samples, options, limits=settings().limits, workers=numba.get_num_threads(), given=given)
     figures = render(result, samples, document)
     body = serialize.analysis(
         result,

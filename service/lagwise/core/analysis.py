@@ -27,7 +27,7 @@ from dataclasses import dataclass, field, replace
 
 import numpy as np
 
-from .data.declustering import weighted_start
+from .data.declustering import WeightedStart, weighted_start
 from .data.samples import SampleSet
 from .data.summary import Summary, summarise
 from .data.transforms import Transform
@@ -131,6 +131,52 @@ class Analysis:
     verdict: Verdict = Verdict(False, "review", "")
 
 
+@dataclass(frozen=True)
+class Given:
+    """What a batch of analyses computed for one variable before its chain (:mod:`.batch`).
+
+    Attributes
+    ----------
+    start : WeightedStart
+        From :func:`begin` on the variable's samples.
+    omnidirectional, fan : ExperimentalVariogram or None
+        Its omnidirectional variogram and the fan of :func:`fan_directions` (when
+        :func:`wants_fan`) of the working values; None: computed by the chain.
+    """
+
+    start: WeightedStart
+    omnidirectional: ExperimentalVariogram | None = None
+    fan: ExperimentalVariogram | None = None
+
+
+def begin(samples: SampleSet, options: AnalysisOptions) -> WeightedStart:
+    """Validate every stage's options, then decluster and fit the transform (the chain's first step)."""
+    validate_stages(
+        samples,
+        {
+            "/variogram": options.variogram,
+            "/fit": options.fit,
+            "/cross_validation": options.cross_validation,
+            "/prediction": options.prediction,
+        },
+    )
+    if options.prediction is not None:
+        validate_decisions(samples, options.transform, options.prediction)
+    return weighted_start(samples.coords, samples.values, options.transform, samples.source_index)
+
+
+def fan_directions(options: AnalysisOptions) -> tuple[DirectionClass, ...]:
+    """The direction classes of the anisotropy fan: the caller's, else :data:`AUTO_FAN`."""
+    given = options.variogram.directions
+    return given if isinstance(given, tuple) else AUTO_FAN
+
+
+def wants_fan(options: AnalysisOptions, dimension: int) -> bool:
+    """Whether the chain may look at the fan (it does once the isotropic fit has a structure)."""
+    asked = options.variogram.directions is not None or options.fit.anisotropy != "none"
+    return dimension >= 2 and asked and options.fit.model is None
+
+
 def neighbourhood_for(options: AnalysisOptions, samples: SampleSet) -> Neighbourhood:
     """The caller's neighbourhood, else the unique one up to :data:`UNIQUE_UP_TO` samples and 24 points above."""
     given = options.cross_validation.neighbourhood
@@ -182,7 +228,13 @@ def _single_families(isotropic: FitResult, count: int) -> list[str]:
 
 
 def _anisotropic_fit(
-    working: SampleSet, options: AnalysisOptions, isotropic: FitResult, variance: float, limits: Limits, declustering
+    working: SampleSet,
+    options: AnalysisOptions,
+    isotropic: FitResult,
+    variance: float,
+    limits: Limits,
+    declustering,
+    fan: ExperimentalVariogram | None = None,
 ):
     """The fan (or the given direction classes) and a joint one-structure anisotropic fit.
 
@@ -190,8 +242,8 @@ def _anisotropic_fit(
     candidates (a nested anisotropic model is poorly identified by a fan of classes).
     """
     stage = options.variogram
-    directions = stage.directions if isinstance(stage.directions, tuple) else AUTO_FAN
-    fan = _variogram(working, stage, limits, directions, declustering=declustering)
+    if fan is None:
+        fan = _variogram(working, stage, limits, fan_directions(options), declustering=declustering)
     points = points_from_experimental(fan, stage.min_pairs)
     best = isotropic.best.model
     families = _single_families(isotropic, FAN_FAMILIES) or [s.family for s in best.structures][:1]
@@ -423,7 +475,7 @@ def _single_model(isotropic: FitResult) -> VariogramModel | None:
     )
 
 
-def _strategies(working, options, hood, limits, workers, omni, declustering=None):
+def _strategies(working, options, hood, limits, workers, omni, declustering=None, given_fan=None):
     """Build and score the strategies; returns (strategies, isotropic fit, fan, anisotropic fit, trend, residuals)."""
     fit_stage, cv_stage = options.fit, options.cross_validation
     fixed = cv_stage.kriging
@@ -458,9 +510,8 @@ def _strategies(working, options, hood, limits, workers, omni, declustering=None
     if not universal_only:
         strategies.append(_score("isotropic", iso_candidates, base, working, hood, options, limits, workers))
     fan, anisotropic = None, None
-    wants_fan = options.variogram.directions is not None or fit_stage.anisotropy != "none"
-    if working.dimension >= 2 and wants_fan and isotropic.best.model.structures:
-        fan, anisotropic = _anisotropic_fit(working, options, isotropic, variance, limits, declustering)
+    if wants_fan(options, working.dimension) and isotropic.best.model.structures:
+        fan, anisotropic = _anisotropic_fit(working, options, isotropic, variance, limits, declustering, given_fan)
     if anisotropic is not None and fan is not None and fit_stage.anisotropy != "none" and not universal_only:
         strategy = _anisotropic_strategy(
             working, options, isotropic, anisotropic, fan, refined, base, hood, limits, workers, _reach(omni)
@@ -556,25 +607,21 @@ def _predict(working, transform, strategy: Strategy, hood, options, envelope, li
 
 
 def analyse(
-    samples: SampleSet, options: AnalysisOptions = AnalysisOptions(), *, limits: Limits = Limits(), workers: int = 1
+    samples: SampleSet,
+    options: AnalysisOptions = AnalysisOptions(),
+    *,
+    limits: Limits = Limits(),
+    workers: int = 1,
+    given: Given | None = None,
 ) -> Analysis:
-    """Run the chain on ``samples`` (see the module docstring)."""
-    validate_stages(
-        samples,
-        {
-            "/variogram": options.variogram,
-            "/fit": options.fit,
-            "/cross_validation": options.cross_validation,
-            "/prediction": options.prediction,
-        },
-    )
-    if options.prediction is not None:
-        validate_decisions(samples, options.transform, options.prediction)
-    start = weighted_start(samples.coords, samples.values, options.transform, samples.source_index)
+    """Run the chain on ``samples`` (see the module docstring); ``given``: its first steps, done by a batch."""
+    start = given.start if given is not None else begin(samples, options)
     transform = start.transform
     working = replace(samples, values=start.values)
     envelope = Envelope.of(working.values)
-    omni = _variogram(working, options.variogram, limits, declustering=start.declustering)
+    omni = given.omnidirectional if given is not None else None
+    if omni is None:
+        omni = _variogram(working, options.variogram, limits, declustering=start.declustering)
     hood = neighbourhood_for(options, samples)
     constant = omni.summary.variance == 0.0
     notes = list(omni.warnings)
@@ -602,7 +649,7 @@ def analyse(
             verdict=judge(constant=True, strategy=None, model=None, label="", statistics=None),
         )
     scored, isotropic, fan, anisotropic, trend, residuals = _strategies(
-        working, options, hood, limits, workers, omni, start.declustering
+        working, options, hood, limits, workers, omni, start.declustering, given.fan if given is not None else None
     )
     estimated_by_null = (
         scored[0].cross_validation.statistics["count"] if scored and scored[0].name == "pure_nugget" else 0

@@ -331,14 +331,27 @@ def experimental_variogram(
     medians = _class_medians(statistic, prepared, classes, counts, limits)
     uncertain, plan = class_uncertainties(statistic, prepared, classes, samples.coords, int(counts.sum()))
     check_deadline()
-    results = tuple(
+    results = direction_results(statistic, table, edges, medians, min_pairs, prepared, uncertain, resolved)
+    scatter = None if pairs_for_class is None else _scattergram(pairs_for_class, prepared, classes, counts, limits)
+    notes = [*samples.warnings, *warnings, *_class_warnings(results, min_pairs, summary)]
+    if declustering.warning:
+        notes.append(declustering.warning)
+    return assembled(results, summary, statistic, min_pairs, lags, colocated, spacing, plan, notes, scatter)
+
+
+def direction_results(statistic, table, edges, medians, min_pairs, prepared, uncertain, resolved):
+    """The classes of every direction: ``table`` (ndir, kmax, ACCUMULATORS), ``edges`` and
+    ``medians`` per direction, ``uncertain[k][c]`` the uncertainty of class c of direction k."""
+    return tuple(
         DirectionResult(d, _rows(statistic, table[k], edges[k], medians[k], min_pairs, prepared, uncertain[k]))
         for k, d in enumerate(resolved)
     )
-    warnings.extend(_class_warnings(results, min_pairs, summary))
-    if declustering.warning:
-        warnings.append(declustering.warning)
-    scatter = None if pairs_for_class is None else _scattergram(pairs_for_class, prepared, classes, counts, limits)
+
+
+def assembled(
+    results, summary, statistic, min_pairs, lags, colocated, spacing, plan, warnings, scatter=None
+) -> ExperimentalVariogram:
+    """An :class:`ExperimentalVariogram` of the pair engine from its parts (see its attributes)."""
     return ExperimentalVariogram(
         directions=results,
         summary=summary,
@@ -349,7 +362,7 @@ def experimental_variogram(
         spacing=spacing,
         uncertainty=plan,
         scattergram=scatter,
-        warnings=tuple(list(samples.warnings) + warnings),
+        warnings=tuple(warnings),
     )
 
 

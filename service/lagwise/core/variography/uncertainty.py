@@ -107,7 +107,8 @@ def block_count(samples: int) -> int:
     return min(MAX_BLOCKS, samples // SAMPLES_PER_BLOCK)
 
 
-def _undefined(reason: str, shape: tuple[int, int]) -> list[list[ClassUncertainty]]:
+def undefined(reason: str, shape: tuple[int, int]) -> list[list[ClassUncertainty]]:
+    """The same undefined uncertainty for every class of ``shape`` (directions, classes)."""
     return [[ClassUncertainty(None, None, reason) for _ in range(shape[1])] for _ in range(shape[0])]
 
 
@@ -136,31 +137,49 @@ def class_uncertainties(
         rows[k][c] for direction k and class c; plan is None when no pass ran.
     """
     shape = (classes.table.shape[0], classes.kmax)
-    blocks = block_count(coords.shape[0])
-    if statistic == "semivariance_median":
-        return _undefined("not available for the median-based statistic (no pair sums to leave out)", shape), None
-    if blocks < MIN_BLOCKS:
-        return _undefined(
-            f"too few samples for {MIN_BLOCKS} spatial blocks of {SAMPLES_PER_BLOCK} samples", shape
-        ), None
     work = max(pairs_in_classes, int(sweep_visits(prepared.points[:, 0], classes.search_radius).sum()))
-    if work > MAX_UNCERTAINTY_PAIRS:
-        return _undefined(f"skipped: more than {MAX_UNCERTAINTY_PAIRS:.0e} pairs in the classes", shape), None
+    blocks, reason = plan_blocks(statistic, coords.shape[0], shape, work)
+    if reason is not None:
+        return undefined(reason, shape), None
+    labels = spatial_blocks(coords, blocks)[prepared.order]
+    total, by_block = accumulate_by_block(prepared, classes, ACCUMULATION_MODE[statistic], labels, blocks)
+    return from_block_sums(statistic, total, by_block, prepared, shape), UncertaintyPlan(blocks)
+
+
+def plan_blocks(statistic: str, samples: int, shape: tuple[int, int], work: int | None) -> tuple[int, str | None]:
+    """Blocks for the jackknife of ``samples`` samples and ``shape`` (directions, classes), or why there are none.
+
+    ``work`` is the larger of the pairs in the classes and the pairs the sweep visits
+    (None when not known yet: only the block count is decided then).
+    """
+    blocks = block_count(samples)
+    if statistic == "semivariance_median":
+        return 0, "not available for the median-based statistic (no pair sums to leave out)"
+    if blocks < MIN_BLOCKS:
+        return 0, f"too few samples for {MIN_BLOCKS} spatial blocks of {SAMPLES_PER_BLOCK} samples"
+    if work is not None and work > MAX_UNCERTAINTY_PAIRS:
+        return 0, f"skipped: more than {MAX_UNCERTAINTY_PAIRS:.0e} pairs in the classes"
     while blocks > MIN_BLOCKS and blocks * shape[0] * shape[1] > MAX_BLOCK_CELLS:
         blocks //= 2
     if blocks * shape[0] * shape[1] > MAX_BLOCK_CELLS:
-        return _undefined("skipped: too many classes for the per-block sums", shape), None
-    labels = spatial_blocks(coords, blocks)[prepared.order]
-    total, by_block = accumulate_by_block(prepared, classes, ACCUMULATION_MODE[statistic], labels, blocks)
-    factor = float(student_t.ppf(0.975, blocks - 1))
+        return 0, "skipped: too many classes for the per-block sums"
+    return blocks, None
+
+
+def from_block_sums(
+    statistic: str, total: np.ndarray, by_block: np.ndarray, prepared, shape: tuple[int, int]
+) -> list[list[ClassUncertainty]]:
+    """Class uncertainties from the total sums (bins, ACCUMULATORS) and per-block sums (blocks, bins,
+    ACCUMULATORS), bin = direction x ``shape[1]`` + class; ``prepared`` gives the mean and scale."""
+    factor = float(student_t.ppf(0.975, by_block.shape[0] - 1))
     rows = []
     for k in range(shape[0]):
         row = []
         for c in range(shape[1]):
-            b = k * classes.kmax + c
+            b = k * shape[1] + c
             row.append(_one_class(statistic, total[b], by_block[:, b], prepared, factor))
         rows.append(row)
-    return rows, UncertaintyPlan(blocks)
+    return rows
 
 
 def _one_class(statistic, total, by_block, prepared, factor) -> ClassUncertainty:
