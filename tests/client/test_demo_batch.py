@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import html
+
 import numpy as np
 import pytest
 from lagwise.demo import ENGINE_SHED, depot_field, elmsworth_samples
@@ -56,7 +58,7 @@ def test_the_batch_section_from_a_real_service(samples, tmp_path):
     for name in ANALYTES:
         assert f'id="analyte-{name}"' in page and f"\n  {name} " in text
         assert (tmp_path / "analytes" / name / "variogram.svg").read_text().lstrip().startswith(("<?xml", "<svg"))
-    assert "variable 'mercury'" in page.split('id="analyte-mercury"')[1].split("</section>")[0]
+    assert html.escape("variable 'mercury'") in page.split('id="analyte-mercury"')[1].split("</section>")[0]
     model = result["joint"].model
     for matrix in [model.nugget, *(s["sills"] for s in model.structures)]:
         assert np.linalg.eigvalsh(np.array(matrix)).min() >= -1e-12  # PSD (numpy.linalg.eigvalsh)
