@@ -144,6 +144,33 @@ def test_structures_are_discriminated_by_family_and_fitted_models_are_request_mo
     assert schemas["Candidate"]["properties"]["model"]["anyOf"] == [model_ref, {"type": "null"}]
 
 
+@pytest.mark.parametrize(
+    ("union", "forms"),
+    [
+        ("Kriging", {"ordinary": "OrdinaryKriging", "simple": "SimpleKriging", "universal": "UniversalKriging"}),
+        ("Scheme", {"leave_one_out": "LeaveOneOut", "k_fold": "KFold"}),
+    ],
+)
+def test_kriging_and_scheme_are_discriminated_by_type(union, forms):
+    """One named union per either/or option, each form requiring its own ``type``; every request that
+    takes the option refers to the union (analyses' cross-validation: "auto" or the union)."""
+    schemas = SPEC["components"]["schemas"]
+    found = schemas[union]
+    assert found["discriminator"]["propertyName"] == "type"
+    assert found["discriminator"]["mapping"] == {t: f"#/components/schemas/{f}" for t, f in forms.items()}
+    assert [b["$ref"].rsplit("/", 1)[1] for b in found["oneOf"]] == list(forms.values())
+    for kind, form in forms.items():
+        assert schemas[form]["properties"]["type"]["enum"] == [kind] and "type" in schemas[form]["required"]
+    ref = {"$ref": f"#/components/schemas/{union}"}
+    member = union.lower()
+    for request in ("CrossValidationRequest", "PredictionAtTargets", "PredictionOnGrid"):
+        if member in schemas[request]["properties"]:
+            assert schemas[request]["properties"][member] == ref
+    assert ref in schemas["CrossValidationStage"]["properties"][member].get("oneOf", [ref])
+    assert "universal" not in schemas["SimpleKriging"]["properties"]["type"]["enum"]
+    assert "drift" in schemas["UniversalKriging"]["required"]
+
+
 def test_names_are_enums():
     schemas = SPEC["components"]["schemas"]
     assert set(schemas["Family"]["properties"]["name"]["enum"]) == set(FAMILIES)

@@ -172,3 +172,40 @@ def test_simple_kriging_mean_defaults_to_the_declustered_mean(client, rng):
     assert expected.clustered
     assert r.json["parameters"]["kriging"]["mean"] == pytest.approx(expected.declustered_mean)
     assert r.json["parameters"]["kriging"]["mean"] < values.mean()
+
+
+def _kriging_body(**options):
+    rng = np.random.default_rng(8)
+    xy = rng.uniform(0, 100, (40, 2))
+    model = {"nugget": 0.1, "structures": [{"family": "spherical", "partial_sill": 1.0, "range": 40}]}
+    return {
+        "samples": {"x": xy[:, 0].tolist(), "y": xy[:, 1].tolist(), "values": rng.normal(5, 1, 40).tolist()},
+        "model": model,
+        **options,
+    }
+
+
+def test_kriging_and_scheme_without_type_keep_their_defaults(client):
+    """Older requests that leave out ``type`` are still read (ordinary kriging, leave-one-out), though the
+    contract asks for ``type`` so that its either/or forms are told apart."""
+    plain = client.post("/v1/cross-validations", json=_kriging_body()).json
+    untyped = client.post(
+        "/v1/cross-validations", json=_kriging_body(kriging={"nugget_as": "micro_scale"}, scheme={})
+    ).json
+    assert untyped["parameters"]["kriging"]["type"] == "ordinary"
+    assert untyped["statistics"] == plain["statistics"]
+
+
+@pytest.mark.parametrize(
+    ("options", "pointer"),
+    [
+        ({"kriging": {"type": "ordinary", "drift": "linear"}}, "/kriging/drift"),
+        ({"kriging": {"type": "universal", "mean": 1.0, "drift": "linear"}}, "/kriging/mean"),
+        ({"kriging": {"type": "universal"}}, "/kriging/drift"),
+        ({"scheme": {"type": "leave_one_out", "folds": 5}}, "/scheme/folds"),
+    ],
+)
+def test_a_member_of_another_kriging_form_is_named(client, options, pointer):
+    """A member that belongs to another form is refused by name (never silently ignored)."""
+    r = client.post("/v1/cross-validations", json=_kriging_body(**options))
+    assert r.status_code == 422 and [e["pointer"] for e in r.json["errors"]] == [pointer], r.json

@@ -8,9 +8,9 @@ from lagwise.core.data.samples import build_sample_set
 from lagwise.core.errors import InvalidInput, LimitExceeded
 from lagwise.core.kriging.blocks import Blocks, validate_blocks
 from lagwise.core.kriging.prediction import predict
-from lagwise.core.kriging.transformed import predict_transformed, working_samples
 from lagwise.core.limits import Limits
 from lagwise.core.modelling.models import Structure, VariogramModel
+from lagwise.core.stages import PredictionOptions
 
 MODEL = VariogramModel(0.1, (Structure("exponential", 1.0, 30.0),))
 
@@ -60,9 +60,9 @@ def test_discretisation_multiplies_the_estimated_cost(samples):
 
 def test_blocks_with_a_transform_are_refused(samples):
     with pytest.raises(InvalidInput) as caught:
-        predict_transformed(
-            working_samples(samples, "log"), MODEL, targets=np.array([[50.0, 50.0]]), blocks=Blocks((5, 5), (2, 2))
-        )
+        PredictionOptions(
+            targets=np.array([[50.0, 50.0]]), blocks=Blocks((5, 5), (2, 2)), transform="log", model=MODEL
+        ).validate(samples)
     assert caught.value.issues[0].pointer == "/blocks" and "/v1/simulations" in caught.value.issues[0].detail
 
 

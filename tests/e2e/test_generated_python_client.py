@@ -126,6 +126,15 @@ def test_every_operation_through_the_generated_client(generated, url, request):
     assert isinstance(cv, m.CrossValidationResponse)
     assert isinstance(cv.statistics.root_mean_square_error, float) and cv.statistics.count == len(samples.x)
     assert len(cv.samples.estimate) == len(samples.x)
+    # Kriging and the scheme are discriminated unions: each form is a class of its own.
+    typed = m.CrossValidationRequest(
+        samples=samples,
+        model=fit.model,
+        kriging=m.SimpleKriging(type_=m.SimpleKrigingType.SIMPLE),
+        scheme=m.KFold(type_=m.KFoldType.K_FOLD, folds=3),
+    )
+    folded = call("cross_validations", body=typed).parsed
+    assert isinstance(folded, m.CrossValidationResponse) and folded.statistics.count == len(samples.x)
 
     grid = m.PredictionOnGrid.from_dict(REQUESTS["predictions"])
     grid.model = fit.model

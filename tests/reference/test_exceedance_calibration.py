@@ -14,9 +14,10 @@ from __future__ import annotations
 import numpy as np
 import pytest
 from lagwise.core.data.samples import build_sample_set
-from lagwise.core.kriging.neighbourhood import Neighbourhood
 from lagwise.core.kriging.systems import KrigingSpec
-from lagwise.core.kriging.transformed import predict_transformed, working_samples
+from lagwise.core.kriging.transformed import working_samples
+from lagwise.core.limits import Limits
+from lagwise.core.stages import PredictionOptions, run_transformed_prediction
 
 from .simulate import isotropic, simulate
 
@@ -34,9 +35,10 @@ def _outcomes(kind: str, replicates: int = 40, n: int = 60, m: int = 60):
         samples = build_sample_set(z[:n], coords[:n, 0], coords[:n, 1])
         working = working_samples(samples, "log")
         spec = KrigingSpec("simple", mean=0.0) if kind == "simple" else KrigingSpec()
-        found = predict_transformed(
-            working, MODEL, spec=spec, neighbourhood=Neighbourhood(), targets=coords[n:], thresholds=(THRESHOLD,)
+        stage = PredictionOptions(
+            targets=coords[n:], thresholds=(THRESHOLD,), transform="log", kriging=spec, model=MODEL
         )
+        found = run_transformed_prediction(working, stage, limits=Limits())
         assert found.exceedance is not None
         probabilities.append(found.exceedance.probability[0])
         truths.append(z[n:] > THRESHOLD)
@@ -72,7 +74,8 @@ def test_a_wrong_model_is_miscalibrated():
         coords = rng.uniform(0, 200, (n + m, 2))
         z = np.exp(simulate(MODEL, coords, rng))
         working = working_samples(build_sample_set(z[:n], coords[:n, 0], coords[:n, 1]), "log")
-        found = predict_transformed(working, wrong, targets=coords[n:], thresholds=(THRESHOLD,))
+        stage = PredictionOptions(targets=coords[n:], thresholds=(THRESHOLD,), transform="log", model=wrong)
+        found = run_transformed_prediction(working, stage, limits=Limits())
         assert found.exceedance is not None
         extreme.append(found.exceedance.probability[0])
         truths.append(z[n:] > THRESHOLD)

@@ -8,9 +8,10 @@ import math
 import numpy as np
 import pytest
 from lagwise.core.data.samples import build_sample_set
+from lagwise.core.limits import Limits
 from lagwise.core.modelling.fitting import ExperimentalPoints, fit_model
-from lagwise.core.modelling.from_samples import fit_samples
 from lagwise.core.modelling.models import Anisotropy, Structure, VariogramModel
+from lagwise.core.stages import FitOptions, VariogramOptions, run_fit_to_samples
 from lagwise.core.variography.directions import DirectionClass
 from lagwise.core.variography.lags import LagRequest
 
@@ -99,12 +100,18 @@ def test_cressie_objective_at_the_optimum():
     assert fit.best.converged
 
 
+def _fit_samples(samples, lags, directions=None, **fit):
+    """The model-fit stage on samples (as POST /v1/model-fits runs it)."""
+    variogram = VariogramOptions(lags=lags, directions=None if directions is None else tuple(directions))
+    return run_fit_to_samples(samples, variogram, FitOptions(**fit), limits=Limits())
+
+
 def _simulated_fit(family, seed, **options):
     rng = np.random.default_rng(1000 + seed)
     coords = rng.uniform(0, 100, (400, 2))
     values = simulate(isotropic(family, 1.0, 20.0), coords, rng)
     samples = build_sample_set(values, coords[:, 0], coords[:, 1])
-    return fit_samples(samples, lags=LagRequest(width=3.0, count=12), **options).fit
+    return _fit_samples(samples, LagRequest(width=3.0, count=12), **options).fit
 
 
 @pytest.mark.parametrize("family", ["spherical", "exponential"])
@@ -114,7 +121,7 @@ def test_recovery_from_simulated_fields(family):
     sill are under 20 % (about 8 % and 12 % for the range measured over 40 replicates)."""
     range_errors, sill_errors = [], []
     for seed in range(30):
-        model = _simulated_fit(family, seed, families=[family], weighting="pairs_over_distance").best.model
+        model = _simulated_fit(family, seed, families=(family,), weighting="pairs_over_distance").best.model
         range_errors.append(abs(model.structures[0].range - 20.0) / 20.0)
         sill_errors.append(abs(model.sill - 1.0))
     assert np.median(range_errors) < 0.20
@@ -142,8 +149,8 @@ def test_anisotropy_recovered_in_most_replicates():
         coords = rng.uniform(0, 100, (1000, 2))
         values = simulate(anisotropic("spherical", 1.0, 20.0, 60.0, 0.5, 0.1), coords, rng)
         samples = build_sample_set(values, coords[:, 0], coords[:, 1])
-        fit = fit_samples(
-            samples, lags=LagRequest(width=2.0, count=12), directions=fan, families=["spherical"], anisotropy="fit"
+        fit = _fit_samples(
+            samples, LagRequest(width=2.0, count=12), directions=fan, families=("spherical",), anisotropy="fit"
         ).fit
         a = fit.best.model.structures[0].anisotropy
         gap = abs((a.azimuth - 60.0 + 90.0) % 180.0 - 90.0)

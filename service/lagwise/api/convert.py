@@ -16,7 +16,7 @@ from ..core.data.samples import SampleSet, build_sample_set, columnar_pointer, i
 from ..core.data.variables import MultiSampleSet, VariableInput, build_multi_sample_set, variables_from_mapping
 from ..core.errors import FieldIssue, InvalidInput, pointers_under
 from ..core.kriging.blocks import DEFAULT_POINTS_PER_AXIS, Blocks
-from ..core.kriging.cross_validation import Scheme
+from ..core.kriging.cross_validation import DEFAULT_OUTLIER_THRESHOLD, Scheme
 from ..core.kriging.neighbourhood import Neighbourhood
 from ..core.kriging.prediction import Grid
 from ..core.kriging.systems import KrigingSpec
@@ -26,6 +26,7 @@ from ..core.modelling.models import FAMILIES, Anisotropy, Structure, VariogramMo
 from ..core.stages import AreaSimulation, CrossValidationOptions, FitOptions, PredictionOptions, VariogramOptions
 from ..core.variography.directions import DirectionClass
 from ..core.variography.experimental import ScatterRequest
+from ..core.variography.gridded import DEFAULT_TOLERANCE
 from ..core.variography.lags import LagRequest
 from .fields import pointer_token
 
@@ -429,7 +430,7 @@ def neighbourhood(document: dict) -> Neighbourhood:
 
 def scheme(document: dict) -> Scheme:
     raw = document["scheme"]
-    return Scheme(type=raw["type"], folds=raw["folds"], seed=raw["seed"])
+    return Scheme(type=raw["type"], folds=raw.get("folds", Scheme.folds), seed=raw.get("seed", Scheme.seed))
 
 
 def targets(document: dict, dimension: int) -> np.ndarray | None:
@@ -459,58 +460,118 @@ def simulation_grid(document: dict) -> Grid:
     return Grid(tuple(raw["origin"]), tuple(raw["spacing"]), tuple(raw["shape"]))
 
 
-def _stage_grid(stage: dict) -> Grid:
-    """The prediction stage's grid (its schema requires one)."""
-    found = grid(stage)
-    assert found is not None  # PredictionStage.grid is required
-    return found
+# ---- one converter per stage: the separate endpoint's request, or the analysis's stage object ----
 
 
-def _stage_model(fit: dict) -> VariogramModel | None:
-    if "model" not in fit:
-        return None
-    with pointers_under("/fit"):
-        return variogram_model(fit)
+def _given_model(stage: dict) -> VariogramModel | None:
+    """The stage's given ``model`` (fit: skips fitting; kriging endpoints: the model to krige with)."""
+    return variogram_model(stage) if "model" in stage else None
 
 
-def _prediction_stage(stage: dict) -> PredictionOptions:
-    """The analysis's prediction stage: grid, thresholds, kriged blocks and the optional simulation."""
+def variogram_options(stage: dict, *, for_fit: bool = True) -> VariogramOptions:
+    """The experimental variogram stage (``for_fit``: the classes are fitted, so semivariances only)."""
+    directions = stage.get("directions")
+    return VariogramOptions(
+        lags=lag_request(stage),
+        directions=tuple(DirectionClass(**d) for d in directions) if isinstance(directions, list) else directions,
+        statistic=stage["statistic"],
+        min_pairs=stage["min_pairs"],
+        pairs_for_class=scatter_request(stage),
+        method=stage.get("method") or "exact",
+        tolerance=stage.get("tolerance", DEFAULT_TOLERANCE),
+        for_fit=for_fit,
+    )
+
+
+def fit_options(stage: dict) -> FitOptions:
+    """The model-fitting stage."""
+    return FitOptions(
+        families=stage["families"] if stage["families"] == "auto" else tuple(stage["families"]),
+        nugget=stage["nugget"],
+        weighting=stage["weighting"],
+        anisotropy=stage["anisotropy"],
+        structures=stage.get("structures", 1),
+        model=_given_model(stage),
+        compare=stage.get("compare", True),
+    )
+
+
+def _kriging_choices(stage: dict, default_mean: Callable[[], float] | None, default_neighbourhood):
+    """The kriging options (None for ``auto``) and the neighbourhood (``default_neighbourhood`` when omitted)."""
+    given = stage.get("kriging")
+    kriging = None if given is None or given == "auto" else kriging_spec(stage, default_mean=default_mean)
+    hood = neighbourhood(stage) if stage.get("neighbourhood") is not None else default_neighbourhood
+    return kriging, hood
+
+
+def cross_validation_options(
+    stage: dict,
+    *,
+    default_mean: Callable[[], float] | None = None,
+    default_neighbourhood: Neighbourhood | None = None,
+) -> CrossValidationOptions:
+    """The kriging and cross-validation stage (the separate endpoint's ``model`` included).
+
+    ``default_mean``: simple kriging's mean when none is given; ``default_neighbourhood``:
+    the neighbourhood when none is given (None: the analysis chooses).
+    """
+    kriging, hood = _kriging_choices(stage, default_mean, default_neighbourhood)
+    return CrossValidationOptions(
+        kriging=kriging,
+        neighbourhood=hood,
+        scheme=scheme(stage),
+        outlier_threshold=stage.get("outlier_threshold", DEFAULT_OUTLIER_THRESHOLD),
+        model=_given_model(stage),
+    )
+
+
+def prediction_options(
+    stage: dict,
+    *,
+    transform: str,
+    dimension: int | None = None,
+    default_mean: Callable[[], float] | None = None,
+    default_neighbourhood: Neighbourhood | None = None,
+) -> PredictionOptions:
+    """The prediction stage: targets (``dimension``: the samples') or a grid, thresholds, blocks; the
+    separate endpoint's model, kriging and weights; an analysis's simulation."""
     raw = stage.get("simulation")
     simulation = None
     if raw is not None:
         size = raw.get("blocks", {}).get("size")
         simulation = AreaSimulation(raw["realisations"], raw["seed"], None if size is None else tuple(size))
+    found = targets(stage, dimension) if dimension is not None else None
+    kriging, hood = _kriging_choices(stage, default_mean, default_neighbourhood)
     return PredictionOptions(
-        _stage_grid(stage), thresholds=tuple(stage["thresholds"]), blocks=blocks(stage), simulation=simulation
+        grid=grid(stage),
+        targets=found,
+        thresholds=tuple(stage["thresholds"]),
+        blocks=blocks(stage),
+        transform=transform,
+        weights_for=tuple(stage.get("return_weights", ())),
+        kriging=kriging,
+        neighbourhood=hood,
+        model=_given_model(stage),
+        simulation=simulation,
     )
 
 
 def analysis_options(document: dict) -> AnalysisOptions:
-    """The analysis stages' options (defaults filled in by the schema)."""
-    stage = document["variogram"]
-    directions = stage.get("directions")
-    if isinstance(directions, list):
-        directions = tuple(DirectionClass(**d) for d in directions)
-    fit, cv = document["fit"], document["cross_validation"]
-    staged = {"neighbourhood": cv["neighbourhood"], "scheme": cv["scheme"]}
-    prediction = document.get("prediction")
+    """The analysis stages' options (defaults filled in by the schema), pointers under each stage."""
+    with pointers_under("/variogram"):
+        variogram = variogram_options(document["variogram"])
+    with pointers_under("/fit"):
+        fit = fit_options(document["fit"])
+    with pointers_under("/cross_validation"):
+        cross_validation = cross_validation_options(document["cross_validation"])
+    prediction = None
+    if "prediction" in document:
+        with pointers_under("/prediction"):
+            prediction = prediction_options(document["prediction"], transform=document["transform"])
     return AnalysisOptions(
         transform=document["transform"],
-        variogram=VariogramOptions(
-            lags=lag_request(stage), directions=directions, statistic=stage["statistic"], min_pairs=stage["min_pairs"]
-        ),
-        fit=FitOptions(
-            families=fit["families"] if fit["families"] == "auto" else tuple(fit["families"]),
-            nugget=fit["nugget"],
-            weighting=fit["weighting"],
-            anisotropy=fit["anisotropy"],
-            model=_stage_model(fit),
-            compare=fit["compare"],
-        ),
-        cross_validation=CrossValidationOptions(
-            kriging=None if cv["kriging"] == "auto" else kriging_spec(cv),
-            neighbourhood=neighbourhood(staged) if cv["neighbourhood"] is not None else None,
-            scheme=scheme(staged),
-        ),
-        prediction=_prediction_stage(prediction) if prediction else None,
+        variogram=variogram,
+        fit=fit,
+        cross_validation=cross_validation,
+        prediction=prediction,
     )

@@ -337,6 +337,13 @@ class Variants(fields.Field):
     dumped_as : callable, optional
         Given an object to dump, the name of its form, whose schema then dumps it; without
         it a value is dumped as it is (an object already in its JSON form).
+    component : str, optional
+        Document the union once, as this named component schema, and refer to it
+        (generated clients then name the union type).
+    omitted : str, optional
+        The form of an object without the discriminator: the contract requires the
+        discriminator (so that it tells the forms apart), the service still reads such
+        an object as this form, with the discriminator filled in.
     """
 
     def __init__(
@@ -346,6 +353,8 @@ class Variants(fields.Field):
         *,
         discriminator: str | None = None,
         dumped_as: Callable[[object], str] | None = None,
+        component: str | None = None,
+        omitted: str | None = None,
         **kwargs,
     ):
         super().__init__(**kwargs)
@@ -354,10 +363,14 @@ class Variants(fields.Field):
         self.discriminator = discriminator
         self.dumped_as = dumped_as
         self._dumpers: dict[str, Schema] = {}
+        self.component = component
+        self.omitted = omitted
 
     def _deserialize(self, value, attr, data, **kwargs):
         if not isinstance(value, dict):
             raise ValidationError("must be an object")
+        if self.omitted is not None and self.discriminator is not None and self.discriminator not in value:
+            value = {self.discriminator: self.omitted, **value}
         return self.forms[self.pick(value)]().load(value)
 
     def _serialize(self, value, attr, obj, **kwargs):
@@ -381,19 +394,19 @@ def by_discriminator(member: str, names: tuple[str, ...]) -> Callable[[dict], st
     return pick
 
 
-class AutoOrNested(fields.Field):
-    """Either ``"auto"`` or an object validated by a nested schema (e.g. the kriging options)."""
+class AutoOr(fields.Field):
+    """Either ``"auto"`` or a value of the ``inner`` field (e.g. the kriging options)."""
 
-    def __init__(self, nested, **kwargs):
+    def __init__(self, inner: fields.Field, **kwargs):
         super().__init__(**kwargs)
-        self.nested_field = fields.Nested(nested)
+        self.inner = inner
 
     def _deserialize(self, value, attr, data, **kwargs):
         if value == "auto":
             return "auto"
         if not isinstance(value, dict):
             raise ValidationError('must be "auto" or an object')
-        return self.nested_field.deserialize(value, attr, data, **kwargs)
+        return self.inner.deserialize(value, attr, data, **kwargs)
 
 
 # ---- apispec attribute functions (bound to the converter: ``self.resolve_nested_schema``) ----
@@ -442,20 +455,18 @@ def choice_properties(self, field, **kwargs) -> dict:
                 },
             ]
         }
-    if isinstance(field, AutoOrNested):
-        return {
-            "oneOf": [
-                {"type": "string", "enum": ["auto"]},
-                self.resolve_nested_schema(field.nested_field.nested),
-            ]
-        }
+    if isinstance(field, AutoOr):
+        return {"oneOf": [{"type": "string", "enum": ["auto"]}, self.field2property(field.inner)]}
     return {}
 
 
 def variants_properties(self, field, **kwargs) -> dict:
-    """Document :class:`Variants` as ``oneOf`` references (with the discriminator's mapping)."""
+    """Document :class:`Variants` as ``oneOf`` references (with the discriminator's mapping); a union
+    with a ``component`` name is registered once and referred to."""
     if not isinstance(field, Variants):
         return {}
+    if field.component is not None and field.component in self.spec.components.schemas:
+        return {"$ref": f"#/components/schemas/{field.component}"}
     refs = {name: self.resolve_nested_schema(form) for name, form in field.forms.items()}
     out: dict = {"oneOf": list(refs.values())}
     if field.discriminator is not None:
@@ -463,4 +474,7 @@ def variants_properties(self, field, **kwargs) -> dict:
             "propertyName": field.discriminator,
             "mapping": {name: ref["$ref"] for name, ref in refs.items()},
         }
-    return out
+    if field.component is None:
+        return out
+    self.spec.components.schema(field.component, out)
+    return {"$ref": f"#/components/schemas/{field.component}"}

@@ -16,17 +16,27 @@ from .. import __version__
 from ..core import analysis_cost
 from ..core.analysis import Given, analyse
 from ..core.batch import batch_inputs, of_variable
+from ..core.data.raster import Raster, raster_points
 from ..core.data.samples import SampleSet
 from ..core.data.variables import MultiSampleSet
 from ..core.deadline import deadline
 from ..core.errors import InvalidInput
+from ..core.kriging.neighbourhood import Neighbourhood
 from ..core.kriging.systems import KrigingSpec
-from ..core.kriging.transformed import cross_validate_transformed, predict_transformed, working_samples
+from ..core.kriging.transformed import working_samples
 from ..core.modelling.families import FIT_SCALES, family_catalogue, model_parameter_catalogue
-from ..core.modelling.fitting import fit_model
-from ..core.modelling.from_samples import fit_samples
 from ..core.simulation import simulate
-from ..core.variography.experimental import experimental_variogram, raster_variogram
+from ..core.stages import (
+    VariogramOptions,
+    given_setup,
+    run_fit,
+    run_fit_to_samples,
+    run_transformed_cross_validation,
+    run_transformed_prediction,
+    run_variogram,
+    validate_stages,
+)
+from ..core.variography.experimental import ExperimentalVariogram, raster_variogram
 from ..core.variography.fft import FFT_STATISTICS
 from ..core.variography.maps import raster_map, variogram_map
 from ..core.variography.several import several_variograms
@@ -149,59 +159,61 @@ def with_provenance(
 )
 def experimental_variograms():
     document = load_json(ExperimentalRequest())
+    stage = convert.variogram_options(document, for_fit=False)
     grid = convert.raster(document)
-    method = document.get("method") or ("exact" if grid is None else "auto")
-    on_grid = grid is not None and (method == "grid" or (method == "auto" and document["statistic"] in FFT_STATISTICS))
-    if grid is not None and on_grid:
-        if "pairs_for_class" in document:
+    if grid is not None:
+        return _raster_variograms(document, grid, stage)
+    given = convert.samples_of(document, settings().limits)
+    if isinstance(given, MultiSampleSet) and "variable" not in document:
+        return _several_variograms(document, given, stage)
+    samples = given.variable(convert.chosen_variable(document, given)) if isinstance(given, MultiSampleSet) else given
+    validate_stages(samples, [("", stage)])
+    result = run_variogram(samples, stage, limits=settings().limits)
+    return _experimental_answer(result, samples)
+
+
+def _experimental_answer(result: ExperimentalVariogram, samples: SampleSet | Raster, note: str | None = None):
+    if note is not None:
+        result = replace(result, warnings=result.warnings + (note,))
+    pairs = sum(row.pairs for d in result.directions for row in d.classes)
+    return with_provenance(serialize.experimental(result, samples), samples.input_hash, samples.size, pairs)
+
+
+def _raster_variograms(document: dict, grid: Raster, stage: VariogramOptions) -> Response:
+    """A raster's variogram: by FFT on its own grid (method grid, or auto for an FFT statistic), else its
+    present cells taken as points."""
+    method = document.get("method") or "auto"
+    if method == "grid" or (method == "auto" and stage.statistic in FFT_STATISTICS):
+        if stage.pairs_for_class is not None:
             raise InvalidInput.at(
                 "/pairs_for_class", "h-scattergrams need method 'exact' (the raster's cells as points)"
             )
         result = raster_variogram(
             grid,
-            lags=convert.lag_request(document),
-            directions=convert.direction_classes(document),
-            statistic=document["statistic"],
-            min_pairs=document["min_pairs"],
+            lags=stage.lags,
+            directions=stage.classes,
+            statistic=stage.statistic,
+            min_pairs=stage.min_pairs,
             limits=settings().limits,
         )
-        pairs = sum(row.pairs for d in result.directions for row in d.classes)
-        return with_provenance(serialize.experimental(result, grid), grid.input_hash, grid.size, pairs)
-    given = convert.samples_of(document, settings().limits)
-    if isinstance(given, MultiSampleSet) and "variable" not in document:
-        return _several_variograms(document, given)
-    samples = given.variable(convert.chosen_variable(document, given)) if isinstance(given, MultiSampleSet) else given
-    result = experimental_variogram(
-        samples,
-        lags=convert.lag_request(document),
-        directions=convert.direction_classes(document),
-        statistic=document["statistic"],
-        min_pairs=document["min_pairs"],
-        pairs_for_class=convert.scatter_request(document),
-        limits=settings().limits,
-        method="exact" if grid is not None else method,
-        tolerance=document["tolerance"],
-    )
-    if grid is not None:
-        result = replace(
-            result,
-            warnings=result.warnings
-            + (f"{document['statistic']!r} is not an FFT statistic: the raster's cells were taken as points",),
-        )
-    pairs = sum(row.pairs for d in result.directions for row in d.classes)
-    return with_provenance(serialize.experimental(result, samples), samples.input_hash, samples.size, pairs)
+        return _experimental_answer(result, grid)
+    samples = raster_points(grid, settings().limits)
+    stage = replace(stage, method="exact")
+    validate_stages(samples, [("", stage)])
+    note = f"{stage.statistic!r} is not an FFT statistic: the raster's cells were taken as points"
+    return _experimental_answer(run_variogram(samples, stage, limits=settings().limits), samples, note)
 
 
-def _several_variograms(document: dict, samples: MultiSampleSet) -> Response:
+def _several_variograms(document: dict, samples: MultiSampleSet, stage: VariogramOptions) -> Response:
     """Direct and cross experimental variograms of every variable of the samples."""
-    if "pairs_for_class" in document:
+    if stage.pairs_for_class is not None:
         raise InvalidInput.at("/pairs_for_class", "h-scattergrams are of one variable: name it with variable")
     result = several_variograms(
         samples,
-        lags=convert.lag_request(document),
-        directions=convert.direction_classes(document),
-        statistic=document["statistic"],
-        min_pairs=document["min_pairs"],
+        lags=stage.lags,
+        directions=stage.classes,
+        statistic=stage.statistic,
+        min_pairs=stage.min_pairs,
         limits=settings().limits,
     )
     body = serialize.several_experimental(result, samples)
@@ -254,33 +266,29 @@ def model_fits():
     document = load_json(ModelFitRequest())
     if joint.is_joint_fit(document):
         return with_provenance(*joint.model_fit(document, settings().limits))
-    options = {k: document[k] for k in ("families", "nugget", "weighting", "anisotropy", "structures")}
-    if "samples" in document:
-        samples = convert.sample_set(document, settings().limits)
-        working = working_samples(samples, document["transform"])
-        result = fit_samples(
-            working.samples,
-            lags=convert.lag_request(document),
-            directions=convert.direction_classes(document),
-            statistic=document["statistic"],
-            min_pairs=document["min_pairs"],
-            limits=settings().limits,
-            **options,
+    fit = convert.fit_options(document)
+    if "samples" not in document:
+        points, dimension, variance, statistic, digest = convert.experimental_points(document, document["min_pairs"])
+        fit.validate_in(dimension)
+        found = run_fit(points, dimension, variance, fit)
+        return with_provenance(
+            serialize.model_fit(found, statistic, dimension=dimension, min_pairs=document["min_pairs"]), digest
         )
-        body = serialize.model_fit(
-            result.fit,
-            document["statistic"],
-            samples=samples,
-            experimental=result.experimental,
-            min_pairs=document["min_pairs"],
-            transform=document["transform"],
-        )
-        pairs = sum(row.pairs for d in result.experimental.directions for row in d.classes)
-        return with_provenance(body, samples.input_hash, samples.size, pairs)
-    points, dimension, variance, statistic, digest = convert.experimental_points(document, document["min_pairs"])
-    fit = fit_model(points, dimension=dimension, sample_variance=variance, **options)
-    body = serialize.model_fit(fit, statistic, dimension=dimension, min_pairs=document["min_pairs"])
-    return with_provenance(body, digest)
+    variogram = convert.variogram_options(document)
+    samples = convert.sample_set(document, settings().limits)
+    working = working_samples(samples, document["transform"])
+    validate_stages(working.samples, [("", variogram), ("", fit)])
+    result = run_fit_to_samples(working.samples, variogram, fit, limits=settings().limits)
+    body = serialize.model_fit(
+        result.fit,
+        variogram.statistic,
+        samples=samples,
+        experimental=result.experimental,
+        min_pairs=variogram.min_pairs,
+        transform=document["transform"],
+    )
+    pairs = sum(row.pairs for d in result.experimental.directions for row in d.classes)
+    return with_provenance(body, samples.input_hash, samples.size, pairs)
 
 
 @operation(
@@ -296,24 +304,14 @@ def cross_validations():
         return with_provenance(*joint.cross_validation(document, settings().limits, numba.get_num_threads()))
     samples = convert.sample_set(document, settings().limits)
     working = working_samples(samples, convert.transform_kind(document))
-    model, spec = (
-        convert.variogram_model(document),
-        convert.kriging_spec(document, default_mean=lambda: working.simple_kriging_mean),
+    stage = convert.cross_validation_options(
+        document, default_mean=lambda: working.simple_kriging_mean, default_neighbourhood=Neighbourhood()
     )
-    hood, scheme = convert.neighbourhood(document), convert.scheme(document)
-    result = cross_validate_transformed(
-        working,
-        samples.values,
-        model,
-        spec,
-        hood,
-        scheme,
-        outlier_threshold=document["outlier_threshold"],
-        limits=settings().limits,
-        workers=numba.get_num_threads(),
-    )
+    validate_stages(working.samples, [("", stage)])
+    result = run_transformed_cross_validation(working, stage, limits=settings().limits, workers=numba.get_num_threads())
+    model, kriging, hood = given_setup(stage)
     body = serialize.cross_validation(
-        result, samples, model, spec, hood, scheme, document["outlier_threshold"], working.transform
+        result, samples, model, kriging, hood, stage.scheme, stage.outlier_threshold, working.transform
     )
     return with_provenance(body, samples.input_hash, samples.size)
 
@@ -332,26 +330,17 @@ def predictions():
         return with_provenance(body, digest, size, columns=PREDICTION_COLUMNS)
     samples = convert.sample_set(document, settings().limits)
     working = working_samples(samples, convert.transform_kind(document))
-    model, spec, hood = (
-        convert.variogram_model(document),
-        convert.kriging_spec(document, default_mean=lambda: working.simple_kriging_mean),
-        convert.neighbourhood(document),
+    stage = convert.prediction_options(
+        document,
+        transform=working.transform.kind,
+        dimension=samples.dimension,
+        default_mean=lambda: working.simple_kriging_mean,
+        default_neighbourhood=Neighbourhood(),
     )
-    result = predict_transformed(
-        working,
-        model,
-        spec=spec,
-        neighbourhood=hood,
-        targets=convert.targets(document, samples.dimension),
-        grid=convert.grid(document),
-        thresholds=tuple(document["thresholds"]),
-        weights_for=tuple(document.get("return_weights", ())),
-        blocks=convert.blocks(document),
-        limits=settings().limits,
-        workers=numba.get_num_threads(),
-    )
+    validate_stages(working.samples, [("", stage)])
+    result = run_transformed_prediction(working, stage, limits=settings().limits, workers=numba.get_num_threads())
     return with_provenance(
-        serialize.prediction(result, samples, model, spec, hood),
+        serialize.prediction(result, samples, *given_setup(stage)),
         samples.input_hash,
         samples.size,
         columns=PREDICTION_COLUMNS,

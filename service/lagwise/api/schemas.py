@@ -22,6 +22,7 @@ from ..core.data.samples import COORDINATE_SYSTEMS, DUPLICATE_POLICIES
 from ..core.data.transforms import TRANSFORMS
 from ..core.data.variables import MAX_VARIABLES
 from ..core.kriging.blocks import DEFAULT_POINTS_PER_AXIS, MAX_POINTS, MAX_POINTS_PER_AXIS
+from ..core.kriging.cross_validation import SCHEMES
 from ..core.kriging.systems import DRIFTS, KRIGING_TYPES, NUGGET_ROLES
 from ..core.modelling.families import ANISOTROPY, FAMILIES, NUGGET, UNIT_KINDS, Family, Parameter
 from ..core.modelling.fitting import SEMIVARIANCE_STATISTICS, WEIGHTINGS
@@ -35,8 +36,8 @@ from ..core.variography.statistics import CLASS_REASONS, STATISTICS
 from ..core.verdict import LEVELS as VERDICT_LEVELS
 from ..figures import COLOUR_SCALES, FIGURES, FORMATS
 from .fields import (
+    AutoOr,
     AutoOrList,
-    AutoOrNested,
     CappedList,
     Column,
     DirectionsOption,
@@ -99,8 +100,8 @@ def always_present(*optional: str):
 # ---- samples -----------------------------------------------------------------
 
 
-class SampleColumns(Schema):
-    """Samples as columns of equal length."""
+class _SampleCoordinates(Schema):
+    """The coordinate columns (and identifiers) every columnar form of samples has."""
 
     x = NumberArray(
         required=True, metadata={"description": "Easting, or longitude in degrees for geographic coordinates."}
@@ -111,8 +112,13 @@ class SampleColumns(Schema):
             "description": "Elevation, positive up, same unit as x and y (metres for geographic); makes the set 3-D."
         }
     )
-    values = NumberArray(required=True, metadata={"description": "Measured values."})
     ids = CappedList(fields.String(), metadata={"description": "Sample identifiers echoed in per-sample outputs."})
+
+
+class SampleColumns(_SampleCoordinates):
+    """Samples as columns of equal length."""
+
+    values = NumberArray(required=True, metadata={"description": "Measured values."})
     censored = CappedList(
         fields.Boolean(), metadata={"description": "True where the result is below its detection limit."}
     )
@@ -122,18 +128,23 @@ class SampleColumns(Schema):
     )
 
 
-class SampleFeatures(Schema):
-    """Samples as a GeoJSON FeatureCollection (RFC 7946) of Point features."""
+class _SampleFeatureCollection(Schema):
+    """The feature collection (and identifier property) every GeoJSON form of samples has."""
 
     geojson = fields.Dict(
         required=True, metadata={"description": "A GeoJSON FeatureCollection (RFC 7946) of Point features."}
     )
+    id_property = fields.String(
+        metadata={"description": "Feature property holding the identifier (default the feature id)."}
+    )
+
+
+class SampleFeatures(_SampleFeatureCollection):
+    """Samples as a GeoJSON FeatureCollection (RFC 7946) of Point features."""
+
     value_property = fields.String(
         required=True,
         metadata={"description": 'Feature property holding the value (a value written like "<0.5" is censored).'},
-    )
-    id_property = fields.String(
-        metadata={"description": "Feature property holding the identifier (default the feature id)."}
     )
 
 
@@ -145,18 +156,9 @@ def _units_field() -> NamedColumns:
     )
 
 
-class SampleVariableColumns(Schema):
+class SampleVariableColumns(_SampleCoordinates):
     """Samples as columns carrying several named variables (null where a variable was not measured)."""
 
-    x = NumberArray(
-        required=True, metadata={"description": "Easting, or longitude in degrees for geographic coordinates."}
-    )
-    y = NumberArray(metadata={"description": "Northing, or latitude in degrees; makes the set 2-D."})
-    z = NumberArray(
-        metadata={
-            "description": "Elevation, positive up, same unit as x and y (metres for geographic); makes the set 3-D."
-        }
-    )
     variables = NamedColumns(
         NullableNumberArray(),
         required=True,
@@ -168,7 +170,6 @@ class SampleVariableColumns(Schema):
             "example": {"lead": [120.0, None, 95.5], "zinc": [310.0, 280.0, None]},
         },
     )
-    ids = CappedList(fields.String(), metadata={"description": "Sample identifiers echoed in per-sample outputs."})
     censored = NamedColumns(
         CappedList(fields.Boolean()),
         max_names=MAX_VARIABLES,
@@ -182,12 +183,9 @@ class SampleVariableColumns(Schema):
     units = _units_field()
 
 
-class SampleFeatureVariables(Schema):
+class SampleFeatureVariables(_SampleFeatureCollection):
     """Samples as GeoJSON Point features (RFC 7946) carrying several variables as properties."""
 
-    geojson = fields.Dict(
-        required=True, metadata={"description": "A GeoJSON FeatureCollection (RFC 7946) of Point features."}
-    )
     variable_properties = fields.List(
         fields.String(validate=validate.Length(min=1, max=60)),
         required=True,
@@ -196,9 +194,6 @@ class SampleFeatureVariables(Schema):
             "description": "Feature properties holding the variables; a missing or null property means not measured, "
             'a value written like "<0.5" is censored.'
         },
-    )
-    id_property = fields.String(
-        metadata={"description": "Feature property holding the identifier (default the feature id)."}
     )
     units = _units_field()
 
@@ -682,12 +677,25 @@ class ModelFitFromExperimental(ModelFitRequest):
 # ---- kriging -----------------------------------------------------------------------
 
 
-class KrigingInput(Schema):
-    type = one_of(KRIGING_TYPES, load_default="ordinary")
+def _nugget_role() -> fields.String:
+    return one_of(NUGGET_ROLES, load_default="micro_scale")
+
+
+class OrdinaryKriging(Schema):
+    """Ordinary kriging: the weights sum to one (an unknown constant mean); the default."""
+
+    type = fields.String(required=True, validate=validate.Equal("ordinary"))
+    nugget_as = _nugget_role()
+
+
+class SimpleKriging(Schema):
+    """Simple kriging: a known mean (or, for a joint model, one per variable)."""
+
+    type = fields.String(required=True, validate=validate.Equal("simple"))
     mean = finite(
         metadata={
-            "description": "Known mean (simple kriging). Default: the samples' mean, declustered (cell declustering) "
-            "when sampling is clustered."
+            "description": "Known mean. Default (separate endpoints): the samples' mean, declustered (cell "
+            "declustering) when sampling is clustered; an analysis's fixed simple kriging needs it."
         }
     )
     means = NamedColumns(
@@ -698,8 +706,31 @@ class KrigingInput(Schema):
             "variable's mean, declustered when sampling is clustered."
         },
     )
-    drift = one_of(DRIFTS, metadata={"description": "Drift (universal kriging)."})
-    nugget_as = one_of(NUGGET_ROLES, load_default="micro_scale")
+    nugget_as = _nugget_role()
+
+
+class UniversalKriging(Schema):
+    """Universal kriging: a drift in the coordinates, estimated with the weights."""
+
+    type = fields.String(required=True, validate=validate.Equal("universal"))
+    drift = one_of(
+        DRIFTS,
+        required=True,
+        error_messages={"required": f"universal kriging needs a drift: one of {', '.join(DRIFTS)}"},
+    )
+    nugget_as = _nugget_role()
+
+
+def kriging_field(**kwargs) -> Variants:
+    """The kriging options: one form per ``type`` (the service reads an object without it as ordinary)."""
+    return Variants(
+        {"ordinary": OrdinaryKriging, "simple": SimpleKriging, "universal": UniversalKriging},
+        by_discriminator("type", KRIGING_TYPES),
+        discriminator="type",
+        component="Kriging",
+        omitted="ordinary",
+        **kwargs,
+    )
 
 
 class NeighbourhoodInput(Schema):
@@ -711,10 +742,31 @@ class NeighbourhoodInput(Schema):
     sectors = fields.Integer(strict=True, allow_none=True, load_default=None, validate=validate.Range(min=1, max=8))
 
 
-class SchemeInput(Schema):
-    type = one_of(("leave_one_out", "k_fold"), load_default="leave_one_out")
+class LeaveOneOut(Schema):
+    """Leave-one-out: each sample estimated from all the others; the default."""
+
+    type = fields.String(required=True, validate=validate.Equal("leave_one_out"))
+
+
+class KFold(Schema):
+    """k-fold: the samples shuffled (by ``seed``) into ``folds`` groups, each estimated from the others."""
+
+    type = fields.String(required=True, validate=validate.Equal("k_fold"))
     folds = fields.Integer(strict=True, load_default=10, validate=validate.Range(min=2))
     seed = fields.Integer(strict=True, load_default=1, validate=validate.Range(min=0))
+
+
+def scheme_field() -> Variants:
+    """The cross-validation scheme: one form per ``type`` (the service reads an object without it as
+    leave-one-out)."""
+    return Variants(
+        {"leave_one_out": LeaveOneOut, "k_fold": KFold},
+        by_discriminator("type", SCHEMES),
+        discriminator="type",
+        component="Scheme",
+        omitted="leave_one_out",
+        load_default=lambda: {"type": "leave_one_out"},
+    )
 
 
 class KrigingOptions(SampleOptions):
@@ -746,14 +798,14 @@ class KrigingOptions(SampleOptions):
             "Default: the model's transform, else none."
         },
     )
-    kriging = fields.Nested(KrigingInput, load_default=lambda: {"type": "ordinary", "nugget_as": "micro_scale"})
+    kriging = kriging_field(load_default=lambda: {"type": "ordinary", "nugget_as": "micro_scale"})
     neighbourhood = fields.Nested(NeighbourhoodInput, allow_none=True, load_default=None)
 
 
 class CrossValidationRequest(KrigingOptions):
     """POST /v1/cross-validations."""
 
-    scheme = fields.Nested(SchemeInput, load_default=lambda: {"type": "leave_one_out", "folds": 10, "seed": 1})
+    scheme = scheme_field()
     outlier_threshold = finite(load_default=2.5, validate=validate.Range(min=0, min_inclusive=False))
 
 
@@ -883,8 +935,8 @@ class FitStage(Schema):
 
 
 class CrossValidationStage(Schema):
-    kriging = AutoOrNested(
-        KrigingInput,
+    kriging = AutoOr(
+        kriging_field(),
         load_default="auto",
         metadata={
             "description": "auto (default): ordinary kriging, or universal kriging with a drift on the residual "
@@ -897,7 +949,7 @@ class CrossValidationStage(Schema):
         load_default=None,
         metadata={"description": "Default: all samples up to 1500, else 24 neighbours."},
     )
-    scheme = fields.Nested(SchemeInput, load_default=lambda: {"type": "leave_one_out", "folds": 10, "seed": 1})
+    scheme = scheme_field()
 
 
 class AnalysisSimulationBlocks(Schema):

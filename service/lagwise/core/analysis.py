@@ -33,9 +33,9 @@ from .data.summary import Summary, summarise
 from .data.transforms import Transform
 from .decisions import Decisions, decide, validate_decisions
 from .errors import InvalidInput, SingularSystem, pointers_under
-from .kriging.cross_validation import CrossValidation, cross_validate
+from .kriging.cross_validation import CrossValidation
 from .kriging.neighbourhood import Neighbourhood
-from .kriging.prediction import PredictionResult, predict
+from .kriging.prediction import PredictionResult
 from .kriging.systems import KrigingSpec
 from .limits import Limits
 from .modelling.fitting import FitResult, FittedCandidate, fit_model, points_from_experimental
@@ -44,9 +44,20 @@ from .modelling.models import Anisotropy as ModelAnisotropy
 from .modelling.models import VariogramModel
 from .modelling.trend import QUADRATIC_MIN_SAMPLES, ResidualModel, TrendTest, design, residual_model, test_trend
 from .selection import Envelope, Selection, Strategy, null_cross_validation, pure_nugget, screen, select
-from .stages import CrossValidationOptions, FitOptions, PredictionOptions, VariogramOptions, validate_stages
+from .stages import (
+    ORDINARY,
+    CrossValidationOptions,
+    FitOptions,
+    PredictionOptions,
+    VariogramOptions,
+    run_cross_validation,
+    run_fit,
+    run_prediction,
+    run_variogram,
+    validate_stages,
+)
 from .variography.directions import DirectionClass
-from .variography.experimental import ExperimentalVariogram, experimental_variogram
+from .variography.experimental import ExperimentalVariogram
 from .variography.maps import VariogramMap, variogram_map
 from .variography.uncertainty import structure_evidence
 from .verdict import Verdict, judge
@@ -60,7 +71,6 @@ FAN_DESCRIPTION = (
 ANISOTROPY_WORTH_TESTING = 0.85
 FEW_SAMPLES = 50
 UNIQUE_UP_TO = 1500
-ORDINARY = KrigingSpec()
 CALIBRATED = (0.67, 1.5)
 CANDIDATES_SCORED = 3
 FAN_FAMILIES = 2
@@ -151,17 +161,19 @@ class Given:
 
 def begin(samples: SampleSet, options: AnalysisOptions) -> WeightedStart:
     """Validate every stage's options, then decluster and fit the transform (the chain's first step)."""
+    # Thresholds and blocks are checked in the analysis's transform.
+    prediction = None if options.prediction is None else replace(options.prediction, transform=options.transform)
+    if prediction is not None:
+        validate_decisions(samples, prediction)
     validate_stages(
         samples,
-        {
-            "/variogram": options.variogram,
-            "/fit": options.fit,
-            "/cross_validation": options.cross_validation,
-            "/prediction": options.prediction,
-        },
+        [
+            ("/variogram", options.variogram),
+            ("/fit", options.fit),
+            ("/cross_validation", options.cross_validation),
+            ("/prediction", prediction),
+        ],
     )
-    if options.prediction is not None:
-        validate_decisions(samples, options.transform, options.prediction)
     return weighted_start(samples.coords, samples.values, options.transform, samples.source_index)
 
 
@@ -189,27 +201,14 @@ def _variogram(
     samples: SampleSet, stage: VariogramOptions, limits: Limits, directions=None, declustering=None
 ) -> ExperimentalVariogram:
     with pointers_under("/variogram"):
-        return experimental_variogram(
-            samples,
-            lags=stage.lags,
-            directions=None if directions is None else list(directions),
-            statistic=stage.statistic,
-            min_pairs=stage.min_pairs,
-            limits=limits,
-            declustering=declustering,
-        )
+        return run_variogram(samples, stage, limits=limits, directions=directions, declustering=declustering)
 
 
 def _fit(points, samples: SampleSet, stage: FitOptions, variance: float, **overrides) -> FitResult:
-    arguments = {
-        "families": stage.families if stage.families == "auto" else list(stage.families),
-        "nugget": stage.nugget,
-        "weighting": stage.weighting,
-        "structures": stage.structures,
-        **overrides,
-    }
+    """The fit stage; isotropic unless ``overrides`` say otherwise (the stage's ``anisotropy`` decides
+    whether an anisotropic strategy is compared, not the shape of this fit)."""
     with pointers_under("/fit"):
-        return fit_model(points, dimension=samples.dimension, sample_variance=variance, **arguments)
+        return run_fit(points, samples.dimension, variance, stage, **{"anisotropy": "none", **overrides})
 
 
 def _single_families(isotropic: FitResult, count: int) -> list[str]:
@@ -310,17 +309,9 @@ def _as_candidate(fit: FitResult, model: VariogramModel) -> tuple[VariogramModel
 
 
 def _cross_validate(model, spec, working, hood, options, limits, workers) -> CrossValidation:
-    stage = options.cross_validation
     with pointers_under("/cross_validation"):
-        return cross_validate(
-            working,
-            model,
-            spec,
-            hood,
-            stage.scheme,
-            outlier_threshold=stage.outlier_threshold,
-            limits=limits,
-            workers=workers,
+        return run_cross_validation(
+            working, model, options.cross_validation, kriging=spec, neighbourhood=hood, limits=limits, workers=workers
         )
 
 
@@ -576,13 +567,12 @@ def _predict(working, transform, strategy: Strategy, hood, options, envelope, li
     """Predictions with the selected strategy; estimates outside the envelope withheld."""
     assert options.prediction is not None
     with pointers_under("/prediction"):
-        result = predict(
+        result = run_prediction(
             working,
             strategy.model,
-            spec=strategy.kriging,
+            options.prediction,
+            kriging=strategy.kriging,
             neighbourhood=hood,
-            grid=options.prediction.grid,
-            blocks=options.prediction.blocks,
             limits=limits,
             workers=workers,
         )

@@ -109,7 +109,7 @@ def _pair_seconds(samples: SampleSet, options: AnalysisOptions, variograms: int,
 def _simulated_seconds(options: AnalysisOptions, n: int, hood, limits: Limits) -> float:
     """Values drawn and the conditioning of a simulation (0 when it would be skipped by its own limit)."""
     stage = options.prediction
-    if stage is None or stage.simulation is None:
+    if stage is None or stage.simulation is None or stage.grid is None:
         return 0.0
     m, realisations = stage.grid.size, stage.simulation.realisations
     draws = realisations * m * (1 + EMBEDDING_FACTOR)
@@ -136,7 +136,7 @@ def estimate(
     reports them, before any work, with the pointers of its stages.
     """
     try:
-        validate_stages(samples, {"/variogram": options.variogram, "/cross_validation": options.cross_validation})
+        validate_stages(samples, [("/variogram", options.variogram), ("/cross_validation", options.cross_validation)])
     except InvalidInput:
         return AnalysisCost({})
     n, d = samples.size, samples.dimension
@@ -170,7 +170,7 @@ def estimate(
     evaluation = ENTRY_OPERATIONS * m * m + m**3 / 3
     refinements = int(refinable) * (1 + EVALUATIONS + int(wants_fan) * (LIKELIHOOD_STARTS + EVALUATIONS))
     prediction = 0.0
-    if options.prediction is not None:
+    if options.prediction is not None and options.prediction.grid is not None:
         points = 1 if options.prediction.blocks is None else options.prediction.blocks.points
         p = max([base] + [p for _, p in runs])
         prediction = block_prediction_flops(n, options.prediction.grid.size, hood, p, points)

@@ -18,7 +18,7 @@ from dataclasses import dataclass
 from .data.samples import SampleSet
 from .data.transforms import Transform
 from .errors import InvalidInput, LimitExceeded, pointers_under
-from .kriging.exceedance import Exceedance, ProbabilityClasses, classify, exceedance, reading, validate_thresholds
+from .kriging.exceedance import Exceedance, ProbabilityClasses, classify, exceedance, reading
 from .kriging.neighbourhood import Neighbourhood
 from .kriging.prediction import PredictionResult
 from .kriging.systems import KrigingSpec
@@ -26,11 +26,6 @@ from .limits import Limits
 from .modelling.models import VariogramModel
 from .simulation.simulate import SimulationResult, simulate
 from .stages import PredictionOptions
-
-BLOCKS_WITH_TRANSFORM = (
-    "block kriging runs without a transform: the back-transform of a block estimate is not the block's average; "
-    "ask prediction.simulation with block_size for block averages (as POST /v1/simulations does)"
-)
 
 
 @dataclass(frozen=True)
@@ -59,12 +54,14 @@ class Decisions:
     warnings: tuple[str, ...]
 
 
-def validate_decisions(samples: SampleSet, transform_kind: str, stage: PredictionOptions) -> None:
-    """Checks before any work, with pointers under ``/prediction``."""
+def validate_decisions(samples: SampleSet, stage: PredictionOptions) -> None:
+    """The analysis's own checks of its prediction stage (a map and a simulation on a plane), before any
+    work, with pointers under ``/prediction``; the stage's options are checked by :meth:`PredictionOptions.validate`."""
     with pointers_under("/prediction"):
-        validate_thresholds(stage.thresholds, transform_kind)
-        if stage.blocks is not None and transform_kind != "none":
-            raise InvalidInput.at("/blocks", BLOCKS_WITH_TRANSFORM)
+        if samples.dimension != 2:
+            raise InvalidInput.at(
+                "/grid", f"analysis prediction grids need 2-D samples (these are {samples.dimension}-D)"
+            )
         if stage.simulation is not None:
             if not stage.thresholds:
                 raise InvalidInput.at("/simulation", "a simulation in an analysis needs thresholds")
@@ -114,6 +111,7 @@ def _simulate(samples, transform, model, spec, neighbourhood, stage, limits, wor
     if not model.structures or not model.bounded:
         return None, "the selected model has no bounded spatial structure"
     options = stage.simulation
+    assert options is not None and stage.grid is not None  # an analysis simulates on its prediction grid
     try:
         with pointers_under("/prediction/simulation"):
             result = simulate(

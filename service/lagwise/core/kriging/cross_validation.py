@@ -35,6 +35,7 @@ from .systems import Kriger, KrigingSpec
 
 Z95 = 1.959963984540054  # scipy.stats.norm.ppf(0.975)
 DEFAULT_OUTLIER_THRESHOLD = 2.5
+SCHEMES = ("leave_one_out", "k_fold")
 
 
 @dataclass(frozen=True)
@@ -147,8 +148,8 @@ def _check_cost(n: int, dimension: int, spec: KrigingSpec, hood: Neighbourhood, 
 
 def validate_scheme(scheme: Scheme, samples: int, outlier_threshold: float = DEFAULT_OUTLIER_THRESHOLD) -> None:
     """Check a scheme against the number of samples; raises InvalidInput naming ``/scheme/...``."""
-    if scheme.type not in ("leave_one_out", "k_fold"):
-        raise InvalidInput.at("/scheme/type", "must be leave_one_out or k_fold")
+    if scheme.type not in SCHEMES:
+        raise InvalidInput.at("/scheme/type", f"must be one of {', '.join(SCHEMES)}")
     if scheme.type == "k_fold" and not 2 <= scheme.folds <= samples:
         raise InvalidInput.at("/scheme/folds", f"must be from 2 to the number of samples ({samples})")
     if not (math.isfinite(outlier_threshold) and outlier_threshold > 0):

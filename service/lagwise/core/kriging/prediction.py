@@ -124,6 +124,48 @@ def _check_cost(
     check_kriging(limits, samples.size, m, neighbourhood, p, flops=flops, what="prediction")
 
 
+def validate_targets(
+    samples: SampleSet,
+    targets: np.ndarray | None,
+    grid: Grid | None,
+    blocks: Blocks | None = None,
+    weights_for: tuple[int, ...] = (),
+) -> int:
+    """Check what a prediction is asked for against the samples; returns the number of targets.
+
+    Raises
+    ------
+    InvalidInput
+        Naming ``/targets``, ``/grid/...``, ``/blocks/...`` or ``/return_weights``.
+    """
+    if blocks is not None:
+        validate_blocks(blocks, samples.dimension)
+        if samples.projection is not None:
+            raise InvalidInput.at(
+                "/blocks", "blocks need planar coordinates (their size is a length); project the samples first"
+            )
+    if (targets is None) == (grid is None):
+        raise InvalidInput.at("/targets", "give either targets or grid")
+    if grid is not None:
+        validate_grid(grid, samples.dimension)
+        m = grid.size
+    else:
+        points = np.asarray(targets, dtype=np.float64)
+        if points.ndim != 2 or points.shape[1] != samples.dimension:
+            raise InvalidInput.at(
+                "/targets", f"targets need {samples.dimension} coordinates (the samples are {samples.dimension}-D)"
+            )
+        if points.shape[0] == 0:
+            raise InvalidInput.at("/targets", "give at least one target")
+        m = points.shape[0]
+    if len(weights_for) > MAX_WEIGHT_TARGETS:
+        raise InvalidInput.at("/return_weights", f"weights are returned for at most {MAX_WEIGHT_TARGETS} targets")
+    bad = [t for t in weights_for if not 0 <= t < m]
+    if bad:
+        raise InvalidInput.at("/return_weights", f"target index {bad[0]} is outside 0..{m - 1}")
+    return m
+
+
 def predict(
     samples: SampleSet,
     model: VariogramModel,
@@ -144,36 +186,9 @@ def predict(
     ``blocks``: block kriging of blocks centred at the targets (:mod:`.blocks`); planar
     coordinates only (block sizes are lengths).
     """
-    if blocks is not None:
-        validate_blocks(blocks, samples.dimension)
-        if samples.projection is not None:
-            raise InvalidInput.at(
-                "/blocks", "blocks need planar coordinates (their size is a length); project the samples first"
-            )
-    if (targets is None) == (grid is None):
-        raise InvalidInput.at("/targets", "give either targets or grid")
-    points: np.ndarray | None = None
-    if grid is not None:
-        validate_grid(grid, samples.dimension)
-        m = grid.size
-    else:
-        points = np.asarray(targets, dtype=np.float64)
-        if points.ndim != 2 or points.shape[1] != samples.dimension:
-            raise InvalidInput.at(
-                "/targets", f"targets need {samples.dimension} coordinates (the samples are {samples.dimension}-D)"
-            )
-        if points.shape[0] == 0:
-            raise InvalidInput.at("/targets", "give at least one target")
-        m = points.shape[0]
+    m = validate_targets(samples, targets, grid, blocks, weights_for)
     _check_cost(samples, m, neighbourhood, spec, limits, 1 if blocks is None else blocks.points)
-    if len(weights_for) > MAX_WEIGHT_TARGETS:
-        raise InvalidInput.at("/return_weights", f"weights are returned for at most {MAX_WEIGHT_TARGETS} targets")
-    bad = [t for t in weights_for if not 0 <= t < m]
-    if bad:
-        raise InvalidInput.at("/return_weights", f"target index {bad[0]} is outside 0..{m - 1}")
-    if grid is not None:
-        points = grid.points()
-    assert points is not None  # the targets, when no grid is given
+    points = grid.points() if grid is not None else np.asarray(targets, dtype=np.float64)
     projected = _project(samples, points)
     _check_reach(samples, projected, grid is not None)
     kriger = Kriger(

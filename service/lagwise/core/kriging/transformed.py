@@ -19,21 +19,13 @@ from ..data.declustering import Declustering, decluster, weighted_start
 from ..data.samples import SampleSet
 from ..data.transforms import Transform, fit_transform
 from ..errors import InvalidInput
-from ..limits import Limits
 from ..modelling.models import VariogramModel
-from .blocks import Blocks
-from .cross_validation import DEFAULT_OUTLIER_THRESHOLD, CrossValidation, Scheme, assess, cross_validate, statistics
-from .exceedance import Exceedance, exceedance, reading, validate_thresholds
-from .neighbourhood import Neighbourhood
-from .prediction import Grid, PredictionResult, predict
+from .cross_validation import CrossValidation, assess, statistics
+from .exceedance import Exceedance, exceedance, reading
+from .prediction import PredictionResult
 from .systems import KrigingSpec
 
 SILL_FACTOR = 5.0
-BLOCKS_NEED_SIMULATION = (
-    "block averages of transformed values cannot be back-transformed from block kriging (the back-transform of "
-    "an average is not the average of back-transformed values); use POST /v1/simulations with blocks, or "
-    "krige blocks without a transform"
-)
 STANDARDIZED = ("mean_standardized_error", "root_mean_square_standardized_error", "interval_coverage_95", "outliers")
 
 
@@ -123,47 +115,23 @@ class TransformedPrediction:
     warnings: tuple[str, ...]
 
 
-def predict_transformed(
+def back_transform_prediction(
     working: Working,
     model: VariogramModel,
-    *,
-    spec: KrigingSpec = KrigingSpec(),
-    neighbourhood: Neighbourhood = Neighbourhood(),
-    targets: np.ndarray | None = None,
-    grid: Grid | None = None,
+    spec: KrigingSpec,
+    result: PredictionResult,
     thresholds: tuple[float, ...] = (),
-    weights_for: tuple[int, ...] = (),
-    blocks: Blocks | None = None,
-    limits: Limits = Limits(),
-    workers: int = 1,
 ) -> TransformedPrediction:
-    """Krige the working samples and back-transform; P(Z > t) for each threshold (original units).
-
-    ``blocks``: block kriging (:mod:`.blocks`), without a transform only: the average of
-    back-transformed values over a block is not the back-transform of a block estimate.
+    """Back-transform kriging in the working space; P(Z > t) for each threshold (original units, checked
+    beforehand: :func:`.exceedance.validate_thresholds`).
 
     Raises
     ------
     InvalidInput
-        Bad thresholds (``/thresholds/<i>``), blocks with a transform (``/blocks``) and
-        everything :func:`.prediction.predict` refuses.
+        At ``/model`` when back-transformed moments overflow (a model far too large for the
+        transformed units).
     """
     transform = working.transform
-    thresholds = validate_thresholds(thresholds, transform.kind)
-    if blocks is not None and transform.kind != "none":
-        raise InvalidInput.at("/blocks", BLOCKS_NEED_SIMULATION)
-    result = predict(
-        working.samples,
-        model,
-        spec=spec,
-        neighbourhood=neighbourhood,
-        targets=targets,
-        grid=grid,
-        weights_for=weights_for,
-        blocks=blocks,
-        limits=limits,
-        workers=workers,
-    )
     y, s2 = result.prediction.estimate, result.prediction.variance
     with np.errstate(over="ignore", invalid="ignore"):
         estimate, variance = transform.back_estimate(y, s2) if transform.kind != "none" else (y, s2)
@@ -199,37 +167,18 @@ def _range_warning(transform: Transform, thresholds: tuple[float, ...]) -> str |
     )
 
 
-def cross_validate_transformed(
-    working: Working,
-    observed: np.ndarray,
-    model: VariogramModel,
-    spec: KrigingSpec = KrigingSpec(),
-    neighbourhood: Neighbourhood = Neighbourhood(),
-    scheme: Scheme = Scheme(),
-    *,
-    outlier_threshold: float = DEFAULT_OUTLIER_THRESHOLD,
-    limits: Limits = Limits(),
-    workers: int = 1,
+def back_transform_cross_validation(
+    working: Working, observed: np.ndarray, model: VariogramModel, inner: CrossValidation
 ) -> CrossValidation:
-    """Cross-validation in the working space, reported in original units where that reading holds.
+    """Cross-validation in the working space (``inner``), reported in original units where that reading holds.
 
     Estimates, standard deviations and errors (and the statistics built on errors: mean,
     absolute and root-mean-square error, correlation, goodness of prediction) are in
     original units: the back-transformed mean and standard deviation of each held-out
-    estimate against the observed value. Standardized errors, their statistics, the
+    estimate against the ``observed`` value. Standardized errors, their statistics, the
     outlier flags and the 95 % interval coverage are those of the transformed space,
     where the kriging error is read as Gaussian.
     """
-    inner = cross_validate(
-        working.samples,
-        model,
-        spec,
-        neighbourhood,
-        scheme,
-        outlier_threshold=outlier_threshold,
-        limits=limits,
-        workers=workers,
-    )
     transform = working.transform
     if transform.kind == "none":
         return inner
