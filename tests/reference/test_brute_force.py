@@ -78,3 +78,29 @@ def test_bandwidth_and_tolerance_partition(rng):
     omni = experimental_variogram(samples, lags=LagRequest(width=5.0, count=6))
     total = sum(row.pairs for d in result.directions for row in d.classes)
     assert total == sum(row.pairs for row in omni.directions[0].classes)
+
+
+@pytest.mark.parametrize("statistic", ["semivariance", "covariance"])
+def test_directions_with_their_own_classes_match_brute_force(statistic, rng):
+    """Automatic classes per direction (each direction has its own edges, the first the shortest).
+
+    Reference: ``scipy.spatial.distance.pdist`` and explicit angle tests (tests/reference/brute.py);
+    every pair within a direction's own last edge is counted, whatever the first direction's edges.
+    """
+    coords = rng.uniform(0, 1, (400, 2)) * [1000.0, 600.0]
+    values = rng.lognormal(2.0, 0.5, 400)
+    samples = build_sample_set(values, coords[:, 0], coords[:, 1])
+    directions = [DirectionClass(azimuth, 22.5) for azimuth in (0.0, 30.0, 60.0, 90.0, 120.0, 150.0)]
+    result = experimental_variogram(samples, directions=directions, statistic=statistic, min_pairs=1)
+    edges_of = [[row.lower for row in d.classes] for d in result.directions]
+    assert len({tuple(e) for e in edges_of}) > 1, "the directions should have different classes"
+    i, j, h, d = pair_table(coords, values)
+    for k, direction in enumerate(directions):
+        rows = result.directions[k].classes
+        edges = np.array([row.lower for row in rows] + [rows[-1].upper])
+        ok, klass, sign = members(h, d, edges, **direction.__dict__)
+        expected = class_statistics(statistic, values, i, j, ok, klass, sign, len(edges) - 1)
+        assert [row.pairs for row in rows] == [n for n, _ in expected], f"direction {direction.azimuth}"
+        for row, (n, value) in zip(rows, expected, strict=True):
+            if n:
+                assert row.value == pytest.approx(value, rel=1e-9, abs=1e-12)

@@ -264,7 +264,9 @@ def bin_span(
     for q in range(span):
         m = np.int32(scratch[4, q])
         d2 = scratch[3, q]
-        c = class_of(padded, lut, 0, m, scratch[2, q], kmax)
+        # With shared edges the class is found once here; otherwise bins only marks the pairs
+        # within the radius (0) and each pair's class is found with its own direction's edges below.
+        c = class_of(padded, lut, 0, m, scratch[2, q], kmax) if shared else 0
         cell[q] = m
         bins[q] = c if (d2 > 0.0) & (d2 <= max_d2) else kmax
     if ndir == 1 and cos2[0] <= 0.0 and band2[0] == np.inf:
