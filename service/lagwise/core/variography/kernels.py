@@ -37,6 +37,7 @@ MODE_COUNT, MODE_SQUARE, MODE_ABSOLUTE, MODE_COVARIANCE, MODE_RELATIVE = range(5
 
 ROW_BLOCK = 64
 SPAN = 256  # candidate pairs binned at a time (the scratch columns stay in the L1 cache)
+UNSURE = 1e-6  # distances this close to an edge (in class widths) take the exact lookup
 COPIES = 4  # interleaved copies of a thread's table (a power of two)
 
 
@@ -212,6 +213,7 @@ def bin_span(
     xs,
     ys,
     zs,
+    vals,
     i,
     start,
     stop,
@@ -224,6 +226,8 @@ def bin_span(
     lut,
     inv_cell,
     shared,
+    origin,
+    inv_step,
     kmax,
     scratch,
     cell,
@@ -243,6 +247,7 @@ def bin_span(
     xi = xs[i]
     yi = ys[i]
     zi = zs[i]
+    vi = vals[i]
     span = stop - start
     last = np.float64(lut.shape[1] - 1)
     ndir = ux.shape[0]
@@ -259,22 +264,36 @@ def bin_span(
         scratch[1, q] = dy
         scratch[2, q] = d
         scratch[3, q] = d2
-        scratch[4, q] = min(d * inv_cell, last)
+        scratch[4, q] = vals[j] - vi
+        cell[q] = np.int32(min(d * inv_cell, last))
         zero += np.int64(d2 == 0.0)
-    for q in range(span):
-        m = np.int32(scratch[4, q])
-        d2 = scratch[3, q]
-        # With shared edges the class is found once here; otherwise bins only marks the pairs
-        # within the radius (0) and each pair's class is found with its own direction's edges below.
-        c = class_of(padded, lut, 0, m, scratch[2, q], kmax) if shared else 0
-        cell[q] = m
-        bins[q] = c if (d2 > 0.0) & (d2 <= max_d2) else kmax
+    unsure = 1
+    if shared and inv_step > 0.0:
+        # Equal widths: the class is floor((d - origin) / width) unless d lies within UNSURE
+        # (in class widths) of an edge, where the span falls back on the exact lookup.
+        unsure = 0
+        top = np.float64(kmax)
+        for q in range(span):
+            d2 = scratch[3, q]
+            t = (scratch[2, q] - origin) * inv_step
+            f = math.floor(t)
+            frac = t - f
+            unsure += np.int64((frac < UNSURE) | (frac > 1.0 - UNSURE))
+            member = (t >= 0.0) & (t < top) & (d2 > 0.0) & (d2 <= max_d2)
+            bins[q] = np.int32(f) if member else kmax
+    if unsure > 0:
+        for q in range(span):
+            d2 = scratch[3, q]
+            # With shared edges the class is found once here; otherwise bins only marks the pairs
+            # within the radius (0) and each pair's class is found with its own direction's edges below.
+            c = class_of(padded, lut, 0, cell[q], scratch[2, q], kmax) if shared else 0
+            bins[q] = c if (d2 > 0.0) & (d2 <= max_d2) else kmax
     if ndir == 1 and cos2[0] <= 0.0 and band2[0] == np.inf:
         # The omnidirectional class admits every pair.
         for q in range(span):
             passes[q] = 1
             best[q] = 0
-        return zero
+        return zero, 0
     for q in range(span):
         passes[q] = 0
         best[q] = 0
@@ -291,17 +310,19 @@ def bin_span(
             admitted = (proj * proj - (dx * dx + dy * dy) * c2 >= 0.0) & (perp * perp <= b2)
             passes[q] += np.int64(admitted)
             best[q] = k if admitted else best[q]
+    several = 0
     if shared:
         for q in range(span):
             c = bins[q] if passes[q] == 1 else kmax
             bins[q] = best[q] * stride + c
+            several += np.int64(passes[q] > 1)
     else:
         for q in range(span):
             k = best[q]
-            d = scratch[2, q]
-            c = class_of(padded, lut, k, cell[q], d, kmax)
+            c = class_of(padded, lut, k, cell[q], scratch[2, q], kmax)
             bins[q] = k * stride + (c if (bins[q] < kmax) & (passes[q] == 1) else kmax)
-    return zero
+            several += np.int64(passes[q] > 1)
+    return zero, several
 
 
 @njit(cache=True)
@@ -336,8 +357,8 @@ def scatter_span(table, copy_rows, xs, ys, zs, vals, i, start, stop, dirs, mode,
             b = bins[q] + (q & (COPIES - 1)) * copy_rows
             table[b, COUNT] += 1.0
             table[b, DISTANCE] += scratch[2, q]
-            diff = vals[start + q] - vi
             if mode == MODE_SQUARE:
+                diff = scratch[4, q]
                 table[b, SQUARE] += diff * diff
         return
     for q in range(span):
@@ -351,14 +372,19 @@ def scatter_span(table, copy_rows, xs, ys, zs, vals, i, start, stop, dirs, mode,
 
 
 @njit(parallel=True, cache=True)
-def accumulate_horizontal(pts, vals, mean, max_d2, dirs, padded, lut, inv_cell, shared, mode, nthreads, first, last):
+def accumulate_horizontal(
+    pts, vals, mean, max_d2, dirs, padded, lut, inv_cell, shared, origin, inv_step, mode, nthreads, first, last
+):
     """Fast path of :func:`accumulate_classes` (rows [first, last)) for classes without dip or vertical band.
 
     Class lookup: ``lut[k, m]`` is ``searchsorted(edges_k, m * cell, "right") - 1`` for
     fine cells narrower than the narrowest class, so one step up and one step down
     (against ``padded[k] = [-inf, edges_k..., +inf...]``) give exactly
     ``searchsorted(edges_k, d, "right") - 1``. ``shared`` means every direction has
-    the same edges, so the class is looked up once per pair.
+    the same edges, so the class is looked up once per pair; if they are also of equal
+    width (``inv_step`` > 0, the first edge ``origin``), the class is found by a floor division
+    in a SIMD loop, the lookup table serving only spans with a distance within
+    :data:`UNSURE` widths of an edge.
 
     Each sample i takes its candidates j (later in x, within the radius along x) in spans
     of :data:`SPAN`: :func:`bin_span` finds every pair's bin in loops without branches
@@ -397,10 +423,11 @@ def accumulate_horizontal(pts, vals, mean, max_d2, dirs, padded, lut, inv_cell, 
                 end = np.searchsorted(xs, xs[i] + radius, side="right")
                 for start in range(i + 1, end, SPAN):
                     stop = min(end, start + SPAN)
-                    zero_pairs += bin_span(
+                    zero, several = bin_span(
                         xs,
                         ys,
                         zs,
+                        vals,
                         i,
                         start,
                         stop,
@@ -413,6 +440,8 @@ def accumulate_horizontal(pts, vals, mean, max_d2, dirs, padded, lut, inv_cell, 
                         lut,
                         inv_cell,
                         shared,
+                        origin,
+                        inv_step,
                         kmax,
                         scratch,
                         cell,
@@ -420,10 +449,11 @@ def accumulate_horizontal(pts, vals, mean, max_d2, dirs, padded, lut, inv_cell, 
                         passes,
                         best,
                     )
+                    zero_pairs += zero
                     scatter_span(
                         table, copy_rows, xs, ys, zs, vals, i, start, stop, dirs, mode, mean, scratch, bins, best
                     )
-                    for q in range(stop - start):
+                    for q in range(stop - start if several > 0 else 0):
                         if passes[q] > 1:
                             add_shared_pair(
                                 table,

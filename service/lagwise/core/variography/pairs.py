@@ -102,6 +102,24 @@ class ClassLayout:
         return bool(np.all(self.table[:, HAS_DIP] == 0.0) and np.all(np.isinf(self.table[:, VBAND2])))
 
     @property
+    def step_inverse(self) -> float:
+        """1 / width when every direction has the same classes of equal width, else 0.
+
+        Equal within :data:`lagwise.core.variography.kernels.UNSURE` / 10 class widths
+        (edges against origin + k width, and the rounding of (d - origin) / width), so that
+        floor((d - origin) / width) is the exact class of every distance farther than
+        ``UNSURE`` widths from an edge.
+        """
+        count = int(self.counts[0])
+        e = self.edges[0, : count + 1]
+        if not self.shared or e[-1] <= e[0]:
+            return 0.0
+        inverse = count / (e[-1] - e[0])
+        spread = float(np.max(np.abs(e - (e[0] + np.arange(count + 1) / inverse)))) * inverse
+        rounding = 8.0 * np.finfo(float).eps * (abs(e[0]) + abs(e[-1])) * inverse
+        return float(inverse) if spread + rounding < K.UNSURE / 10 else 0.0
+
+    @property
     def kmax(self) -> int:
         """Largest class count over the directions."""
         return int(self.edges.shape[1] - 1)
@@ -197,6 +215,8 @@ def accumulate(prepared: PreparedSamples, classes: ClassLayout, mode: int) -> tu
                 classes.lookup,
                 classes.inv_cell,
                 classes.shared,
+                classes.edges[0, 0],
+                classes.step_inverse,
                 mode,
                 numba.get_num_threads(),
                 first,
