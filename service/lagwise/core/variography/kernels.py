@@ -108,28 +108,69 @@ def classify(dx, dy, dz, d, dirs, k, edges, nk, inv_width):
     return c, sign
 
 
+@njit(cache=True)
+def sweep_row(pts, i, max_d2, near, sep):
+    """The pairs (i, j), j > i, of the x-sorted sweep that lie within sqrt(max_d2) and are not co-located.
+
+    Writes j to ``near[q]`` and (dx, dy, dz, distance) of the separation x_j - x_i to
+    ``sep[:, q]`` for q < count; returns (count, co-located pairs passed over).
+    """
+    n = pts.shape[0]
+    xi = pts[i, 0]
+    yi = pts[i, 1]
+    zi = pts[i, 2]
+    count = 0
+    zero = 0
+    for j in range(i + 1, n):
+        dx = pts[j, 0] - xi
+        if dx * dx > max_d2:
+            break
+        dy = pts[j, 1] - yi
+        dz = pts[j, 2] - zi
+        d2 = dx * dx + dy * dy + dz * dz
+        if d2 > max_d2:
+            continue
+        if d2 == 0.0:
+            zero += 1
+            continue
+        near[count] = j
+        sep[0, count] = dx
+        sep[1, count] = dy
+        sep[2, count] = dz
+        sep[3, count] = math.sqrt(d2)
+        count += 1
+    return count, zero
+
+
 @njit(cache=True, inline="always")
-def add_pair(table, b, d, tail, head, mode, mean):
-    """Add one oriented pair (centred tail and head values) to bin b of a table."""
-    table[b, COUNT] += 1.0
-    table[b, DISTANCE] += d
+def add_to(sums, d, tail, head, mode, mean):
+    """Add one oriented pair (centred tail and head values, distance d) to one bin's sums,
+    indexed by the accumulator columns (``COUNT`` .. ``RELATIVE``)."""
+    sums[COUNT] += 1.0
+    sums[DISTANCE] += d
     if mode == MODE_COUNT:
         return
     diff = head - tail
-    table[b, SQUARE] += diff * diff
+    sums[SQUARE] += diff * diff
     if mode == MODE_ABSOLUTE:
         a = abs(diff)
-        table[b, ROOT] += math.sqrt(a)
-        table[b, ABSOLUTE] += a
+        sums[ROOT] += math.sqrt(a)
+        sums[ABSOLUTE] += a
     elif mode == MODE_COVARIANCE:
-        table[b, TAIL] += tail
-        table[b, HEAD] += head
-        table[b, TAIL2] += tail * tail
-        table[b, HEAD2] += head * head
-        table[b, PRODUCT] += tail * head
+        sums[TAIL] += tail
+        sums[HEAD] += head
+        sums[TAIL2] += tail * tail
+        sums[HEAD2] += head * head
+        sums[PRODUCT] += tail * head
     elif mode == MODE_RELATIVE:
         r = diff / (0.5 * (tail + head) + mean)
-        table[b, RELATIVE] += r * r
+        sums[RELATIVE] += r * r
+
+
+@njit(cache=True, inline="always")
+def add_pair(table, b, d, tail, head, mode, mean):
+    """Add one oriented pair to bin b of a table (bins, ACCUMULATORS)."""
+    add_to(table[b], d, tail, head, mode, mean)
 
 
 @njit(parallel=True, cache=True)
@@ -149,24 +190,14 @@ def accumulate_classes(pts, vals, mean, max_d2, dirs, edges, nk, inv_width, mode
     for t in prange(nthreads):
         table = tables[t]
         zero_pairs = 0
+        near = np.empty(n, dtype=np.int64)
+        sep = np.empty((4, n))
         for blk in range(t, nblocks, nthreads):
             for i in range(first + blk * ROW_BLOCK, min(last, first + (blk + 1) * ROW_BLOCK)):
-                xi = pts[i, 0]
-                yi = pts[i, 1]
-                zi = pts[i, 2]
-                for j in range(i + 1, n):
-                    dx = pts[j, 0] - xi
-                    if dx * dx > max_d2:
-                        break
-                    dy = pts[j, 1] - yi
-                    dz = pts[j, 2] - zi
-                    d2 = dx * dx + dy * dy + dz * dz
-                    if d2 > max_d2:
-                        continue
-                    if d2 == 0.0:
-                        zero_pairs += 1
-                        continue
-                    d = math.sqrt(d2)
+                count, zero = sweep_row(pts, i, max_d2, near, sep)
+                zero_pairs += zero
+                for q in range(count):
+                    j, dx, dy, dz, d = near[q], sep[0, q], sep[1, q], sep[2, q], sep[3, q]
                     for k in range(ndir):
                         c, sign = classify(dx, dy, dz, d, dirs, k, edges, nk, inv_width)
                         if c < 0:
@@ -210,40 +241,22 @@ def class_of(padded, lut, k, m, d, kmax):
 
 @njit(cache=True)
 def bin_span(
-    xs,
-    ys,
-    zs,
-    vals,
-    i,
-    start,
-    stop,
-    max_d2,
-    ux,
-    uy,
-    cos2,
-    band2,
-    padded,
-    lut,
-    inv_cell,
-    shared,
-    origin,
-    inv_step,
-    kmax,
-    scratch,
-    cell,
-    bins,
-    passes,
-    best,
+    cols, i, start, stop, max_d2, sectors, padded, lut, inv_cell, shared, origin, inv_step, kmax, scratch, marks
 ):
     """Bins of the candidate pairs (i, j), j in [start, stop), in loops without branches.
 
-    Fills, for q = j - start: ``scratch[0, q]`` dx, ``scratch[1, q]`` dy, ``scratch[2, q]`` the
-    distance, ``cell[q]`` its fine cell, ``passes[q]`` the directions that admit the pair and
-    ``best[q]`` the last of them, and ``bins[q] = best * (kmax + 1) + class``, the class being
-    ``kmax`` (a dropped bin) when the pair lies outside the radius or the classes, is co-located,
-    or is admitted by no direction or by several (those take :func:`add_shared_pair`). Returns the
-    co-located pairs of the span.
+    ``cols`` holds the rows x, y, z and centred value of the samples; ``sectors`` the rows
+    ux, uy, cos^2(tolerance), bandwidth^2 of the directions. Fills, for q = j - start:
+    ``scratch[:, q]`` with dx, dy, the distance, its square and the value difference, and
+    ``marks[0..3][q]`` (four arrays) with the distance's fine cell, the pair's bin ``best * (kmax + 1) + class``,
+    the directions that admit the pair and ``best``, the last of them; the class is ``kmax`` (a
+    dropped bin) when the pair lies outside the radius or the classes, is co-located, or is
+    admitted by no direction or by several (those take :func:`add_shared_pair`). Returns the
+    co-located pairs of the span and the pairs admitted by several directions.
     """
+    xs, ys, zs, vals = cols[0], cols[1], cols[2], cols[3]
+    ux, uy, cos2, band2 = sectors[0], sectors[1], sectors[2], sectors[3]
+    cell, bins, passes, best = marks[0], marks[1], marks[2], marks[3]
     xi = xs[i]
     yi = ys[i]
     zi = zs[i]
@@ -265,7 +278,7 @@ def bin_span(
         scratch[2, q] = d
         scratch[3, q] = d2
         scratch[4, q] = vals[j] - vi
-        cell[q] = np.int32(min(d * inv_cell, last))
+        cell[q] = np.int64(min(d * inv_cell, last))
         zero += np.int64(d2 == 0.0)
     unsure = 1
     if shared and inv_step > 0.0:
@@ -326,8 +339,9 @@ def bin_span(
 
 
 @njit(cache=True)
-def add_shared_pair(table, xs, ys, zs, vals, i, j, d, m, max_d2, dirs, padded, lut, shared, kmax, mode, mean):
+def add_shared_pair(table, cols, i, j, d, m, max_d2, dirs, padded, lut, shared, kmax, mode, mean):
     """Add a pair admitted by several directions (overlapping or touching sectors) to each of them."""
+    xs, ys, zs, vals = cols[0], cols[1], cols[2], cols[3]
     dx = xs[j] - xs[i]
     dy = ys[j] - ys[i]
     dz = zs[j] - zs[i]
@@ -347,9 +361,11 @@ def add_shared_pair(table, xs, ys, zs, vals, i, j, d, m, max_d2, dirs, padded, l
 
 
 @njit(cache=True)
-def scatter_span(table, copy_rows, xs, ys, zs, vals, i, start, stop, dirs, mode, mean, scratch, bins, best):
+def scatter_span(table, copy_rows, cols, i, start, stop, dirs, mode, mean, scratch, marks):
     """Add the pairs (i, j), j in [start, stop), to their bins (:func:`bin_span`); pair q goes to
     copy ``q % COPIES`` of the table so that consecutive pairs of one bin do not wait on each other."""
+    zs, vals = cols[2], cols[3]
+    bins, best = marks[1], marks[3]
     vi = vals[i]
     span = stop - start
     if mode == MODE_COUNT or mode == MODE_SQUARE:
@@ -402,40 +418,38 @@ def accumulate_horizontal(
     tables = np.zeros((nthreads, COPIES * copy_rows, ACCUMULATORS))
     colocated = np.zeros(nthreads, dtype=np.int64)
     nblocks = (last - first + ROW_BLOCK - 1) // ROW_BLOCK
-    xs = np.ascontiguousarray(pts[:, 0])
-    ys = np.ascontiguousarray(pts[:, 1])
-    zs = np.ascontiguousarray(pts[:, 2])
+    cols = np.empty((4, pts.shape[0]))
+    cols[:3] = pts.T
+    cols[3] = vals
+    xs = cols[0]
     radius = math.sqrt(max_d2)
-    ux = np.ascontiguousarray(dirs[:, 0])
-    uy = np.ascontiguousarray(dirs[:, 1])
-    band2 = np.ascontiguousarray(dirs[:, 3])
-    cos2 = np.ascontiguousarray(dirs[:, 11])
+    sectors = np.empty((4, ndir))
+    sectors[0] = dirs[:, 0]
+    sectors[1] = dirs[:, 1]
+    sectors[2] = dirs[:, 11]
+    sectors[3] = dirs[:, 3]
     for t in prange(nthreads):
         table = tables[t]
         zero_pairs = 0
         scratch = np.empty((5, SPAN))
-        cell = np.empty(SPAN, dtype=np.int32)
-        bins = np.empty(SPAN, dtype=np.int64)
-        passes = np.empty(SPAN, dtype=np.int64)
-        best = np.empty(SPAN, dtype=np.int64)
+        marks = (
+            np.empty(SPAN, dtype=np.int64),
+            np.empty(SPAN, dtype=np.int64),
+            np.empty(SPAN, dtype=np.int64),
+            np.empty(SPAN, dtype=np.int64),
+        )
         for blk in range(t, nblocks, nthreads):
             for i in range(first + blk * ROW_BLOCK, min(last, first + (blk + 1) * ROW_BLOCK)):
                 end = np.searchsorted(xs, xs[i] + radius, side="right")
                 for start in range(i + 1, end, SPAN):
                     stop = min(end, start + SPAN)
                     zero, several = bin_span(
-                        xs,
-                        ys,
-                        zs,
-                        vals,
+                        cols,
                         i,
                         start,
                         stop,
                         max_d2,
-                        ux,
-                        uy,
-                        cos2,
-                        band2,
+                        sectors,
                         padded,
                         lut,
                         inv_cell,
@@ -444,27 +458,19 @@ def accumulate_horizontal(
                         inv_step,
                         kmax,
                         scratch,
-                        cell,
-                        bins,
-                        passes,
-                        best,
+                        marks,
                     )
                     zero_pairs += zero
-                    scatter_span(
-                        table, copy_rows, xs, ys, zs, vals, i, start, stop, dirs, mode, mean, scratch, bins, best
-                    )
+                    scatter_span(table, copy_rows, cols, i, start, stop, dirs, mode, mean, scratch, marks)
                     for q in range(stop - start if several > 0 else 0):
-                        if passes[q] > 1:
+                        if marks[2][q] > 1:
                             add_shared_pair(
                                 table,
-                                xs,
-                                ys,
-                                zs,
-                                vals,
+                                cols,
                                 i,
                                 start + q,
                                 scratch[2, q],
-                                cell[q],
+                                marks[0][q],
                                 max_d2,
                                 dirs,
                                 padded,
@@ -519,17 +525,12 @@ def collect_pairs(
     seen = state[0]
     written = state[1]
     want_abs = out_abs.shape[0] > 0
+    near = np.empty(n, dtype=np.int64)
+    sep = np.empty((4, n))
     for i in range(first, last):
-        for j in range(i + 1, n):
-            dx = pts[j, 0] - pts[i, 0]
-            if dx * dx > max_d2:
-                break
-            dy = pts[j, 1] - pts[i, 1]
-            dz = pts[j, 2] - pts[i, 2]
-            d2 = dx * dx + dy * dy + dz * dz
-            if d2 > max_d2 or d2 == 0.0:
-                continue
-            d = math.sqrt(d2)
+        count, _ = sweep_row(pts, i, max_d2, near, sep)
+        for q in range(count):
+            j, dx, dy, dz, d = near[q], sep[0, q], sep[1, q], sep[2, q], sep[3, q]
             for k in range(ndir):
                 c, sign = classify(dx, dy, dz, d, dirs, k, edges, nk, inv_width)
                 if c < 0:
@@ -641,22 +642,14 @@ def accumulate_blocks(
     for t in prange(nthreads):
         total = totals[t]
         table = tables[t]
+        near = np.empty(n, dtype=np.int64)
+        sep = np.empty((4, n))
         for blk in range(t, nrows, nthreads):
             for i in range(first + blk * ROW_BLOCK, min(last, first + (blk + 1) * ROW_BLOCK)):
-                xi = pts[i, 0]
-                yi = pts[i, 1]
-                zi = pts[i, 2]
                 bi = blocks[i]
-                for j in range(i + 1, n):
-                    dx = pts[j, 0] - xi
-                    if dx * dx > max_d2:
-                        break
-                    dy = pts[j, 1] - yi
-                    dz = pts[j, 2] - zi
-                    d2 = dx * dx + dy * dy + dz * dz
-                    if d2 > max_d2 or d2 == 0.0:
-                        continue
-                    d = math.sqrt(d2)
+                count, _ = sweep_row(pts, i, max_d2, near, sep)
+                for q in range(count):
+                    j, dx, dy, dz, d = near[q], sep[0, q], sep[1, q], sep[2, q], sep[3, q]
                     bj = blocks[j]
                     for k in range(ndir):
                         c, sign = classify(dx, dy, dz, d, dirs, k, edges, nk, inv_width)
@@ -731,27 +724,8 @@ def _add_covariance_cross(table, b, d, vt, vh, mt, mh, p):
 def _add_direct(table, b, d, vt, vh, mt, mh, p, mode, means):
     """Add one oriented pair to the per-variable slots of bin b (single-variable columns)."""
     for a in range(p):
-        if mt[a] * mh[a] == 0.0:
-            continue
-        tail = vt[a]
-        head = vh[a]
-        table[b, COUNT, a] += 1.0
-        table[b, DISTANCE, a] += d
-        diff = head - tail
-        table[b, SQUARE, a] += diff * diff
-        if mode == MODE_ABSOLUTE:
-            m = abs(diff)
-            table[b, ROOT, a] += math.sqrt(m)
-            table[b, ABSOLUTE, a] += m
-        elif mode == MODE_COVARIANCE:
-            table[b, TAIL, a] += tail
-            table[b, HEAD, a] += head
-            table[b, TAIL2, a] += tail * tail
-            table[b, HEAD2, a] += head * head
-            table[b, PRODUCT, a] += tail * head
-        elif mode == MODE_RELATIVE:
-            r = diff / (0.5 * (tail + head) + means[a])
-            table[b, RELATIVE, a] += r * r
+        if mt[a] * mh[a] != 0.0:
+            add_to(table[b, :, a], d, vt[a], vh[a], mode, means[a])
 
 
 @njit(parallel=True, cache=True)
@@ -782,28 +756,18 @@ def accumulate_variables(
     for t in prange(nthreads):
         table = tables[t]
         zero_pairs = 0
+        near = np.empty(n, dtype=np.int64)
+        sep = np.empty((4, n))
         diff = np.empty(p)
         both = np.empty(p)
         for blk in range(t, nblocks, nthreads):
             for i in range(first + blk * ROW_BLOCK, min(last, first + (blk + 1) * ROW_BLOCK)):
-                xi = pts[i, 0]
-                yi = pts[i, 1]
-                zi = pts[i, 2]
                 vi = vals[i]
                 mi = measured[i]
-                for j in range(i + 1, n):
-                    dx = pts[j, 0] - xi
-                    if dx * dx > max_d2:
-                        break
-                    dy = pts[j, 1] - yi
-                    dz = pts[j, 2] - zi
-                    d2 = dx * dx + dy * dy + dz * dz
-                    if d2 > max_d2:
-                        continue
-                    if d2 == 0.0:
-                        zero_pairs += 1
-                        continue
-                    d = math.sqrt(d2)
+                count, zero = sweep_row(pts, i, max_d2, near, sep)
+                zero_pairs += zero
+                for q in range(count):
+                    j, dx, dy, dz, d = near[q], sep[0, q], sep[1, q], sep[2, q], sep[3, q]
                     vj = vals[j]
                     mj = measured[j]
                     prepared = False
@@ -892,26 +856,16 @@ def accumulate_square_patterns(
         touched = np.empty(bins * g_count, dtype=np.int64)
         mask = np.empty(p)
         zero_pairs = 0
+        near = np.empty(n, dtype=np.int64)
+        sep = np.empty((4, n))
         for blk in range(t, nblocks, nthreads):
             for i in range(first + blk * ROW_BLOCK, min(last, first + (blk + 1) * ROW_BLOCK)):
-                xi = pts[i, 0]
-                yi = pts[i, 1]
-                zi = pts[i, 2]
                 gi = pattern[i]
                 used = 0
-                for j in range(i + 1, n):
-                    dx = pts[j, 0] - xi
-                    if dx * dx > max_d2:
-                        break
-                    dy = pts[j, 1] - yi
-                    dz = pts[j, 2] - zi
-                    d2 = dx * dx + dy * dy + dz * dz
-                    if d2 > max_d2:
-                        continue
-                    if d2 == 0.0:
-                        zero_pairs += 1
-                        continue
-                    d = math.sqrt(d2)
+                count, zero = sweep_row(pts, i, max_d2, near, sep)
+                zero_pairs += zero
+                for q in range(count):
+                    j, dx, dy, dz, d = near[q], sep[0, q], sep[1, q], sep[2, q], sep[3, q]
                     h = pattern[j]
                     hh2 = dx * dx + dy * dy
                     m_cell = min(int(d * inv_cell), last_cell)
