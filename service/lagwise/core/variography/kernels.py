@@ -10,6 +10,13 @@ of the x-range are shared evenly.
 Accumulator columns (sums over the pairs of a bin; tail and head values centred
 on the sample mean so that sums of products keep their precision):
 ``COUNT, DISTANCE, SQUARE, ROOT, ABSOLUTE, TAIL, HEAD, TAIL2, HEAD2, PRODUCT, RELATIVE``.
+
+Where the time goes (:func:`accumulate_horizontal`, 20,000 uniform samples, 15 classes, CPU
+time on a shared machine): the distance loop (SIMD square roots) and, with directions, one
+membership loop per direction over each span of candidates; then the scalar additions into the
+tables. Equal-width classes by floor division took the class lookup out of the scalar part
+(the lookup table does not vectorise: no gathers on this CPU). Against the kernel before the
+spans, 3.8x less CPU omnidirectional and 2.75x with 4 directions (DEVELOPERS.md).
 """
 
 from __future__ import annotations
