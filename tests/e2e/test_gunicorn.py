@@ -60,13 +60,16 @@ def test_oversized_chunked_body_is_refused(url):
     assert answer.startswith(b"HTTP/1.1 413")
 
 
-def test_demo_through_the_sdk(url, tmp_path: Path):
-    out = subprocess.run(
-        [sys.executable, "-m", "lagwise.cli", "demo", "--url", url, "--out", str(tmp_path)],
-        capture_output=True,
-        text=True,
-        timeout=300,
-    )
+def test_demo_through_the_sdk(tmp_path: Path):
+    # The demo's twelve-analyte batch needs the allowances `manage.py run` gives its service.
+    allowances = {"LAGWISE_DEADLINE_SECONDS": "600", "LAGWISE_MAX_ANALYSIS_SECONDS": "600"}
+    with running_service(allowances) as url:
+        out = subprocess.run(
+            [sys.executable, "-m", "lagwise.cli", "demo", "--url", url, "--out", str(tmp_path)],
+            capture_output=True,
+            text=True,
+            timeout=900,
+        )
     assert out.returncode == 0, out.stderr
     assert "CAUTION" in out.stdout and "INVENTED" in out.stdout
     report = json.loads((tmp_path / "report.json").read_text())

@@ -78,7 +78,7 @@ def test_no_tracebacks_leave_the_service(client, monkeypatch):
     def broken(*args, **kwargs):
         raise RuntimeError("internal detail that must not leak")
 
-    monkeypatch.setattr(operations, "experimental_variogram", broken)
+    monkeypatch.setattr(operations, "run_variogram", broken)
     r = client.post("/v1/experimental-variograms", json=BODY)
     assert r.status_code == 500 and r.json["type"] == "/problems/internal-error"
     assert b"internal detail" not in r.data and b"Traceback" not in r.data

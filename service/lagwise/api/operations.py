@@ -416,9 +416,12 @@ def _batch_analyses(document: dict, samples: MultiSampleSet) -> Response:
 
 
 def _check_analysis_cost(document: dict, variables: list[SampleSet], names: Sequence[str] = ()) -> None:
-    """Refuse, before any work, analyses whose estimated seconds summed over ``variables`` exceed the limit."""
+    """Refuse, before any work, analyses whose figures exceed their mark limit or whose estimated
+    seconds summed over ``variables`` exceed the limit (the specific figure limit is named first)."""
     options = replace(convert.analysis_options(document), with_map="variogram_map" in document["figures"])
     limits = settings().limits
+    for samples in variables:
+        check_figures(document, samples.size, limits)
     costs = [
         analysis_cost.estimate(
             samples,
