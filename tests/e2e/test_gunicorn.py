@@ -74,7 +74,9 @@ def test_demo_through_the_sdk(tmp_path: Path):
     assert "CAUTION" in out.stdout and "INVENTED" in out.stdout
     report = json.loads((tmp_path / "report.json").read_text())
     assert "Caution" in (tmp_path / "index.html").read_text() or "CAUTION" in out.stdout
-    assert sorted(p.name for p in (tmp_path / "figures").iterdir()) == [
+    analytes = tmp_path / "figures" / "analytes"
+    assert len([p for p in analytes.iterdir() if any(p.glob("*.svg"))]) == 12  # the invented batch
+    assert sorted(p.name for p in (tmp_path / "figures").iterdir() if p.is_file()) == [
         "cross_validation.svg",
         "prediction_map.svg",
         "probability_map.svg",
