@@ -225,30 +225,30 @@ def _several_variograms(document: dict, samples: MultiSampleSet, stage: Variogra
 )
 def variogram_maps():
     document = load_json(MapRequest())
+    limits = settings().limits
     grid = convert.raster(document)
-    if grid is not None and document["statistic"] in FFT_STATISTICS:
-        found = raster_map(
-            grid,
-            cell_size=document.get("cell_size"),
-            cells=document.get("cells"),
-            statistic=document["statistic"],
-            min_pairs=document["min_pairs"],
-            limits=settings().limits,
-        )
-        return with_provenance(
-            serialize.variogram_map(found, grid), grid.input_hash, grid.size, int(found.pairs.sum()) // 2
-        )
-    samples = convert.sample_set(document, settings().limits)
-    result = variogram_map(
-        samples,
-        cell_size=document.get("cell_size"),
-        cells=document.get("cells"),
-        statistic=document["statistic"],
-        min_pairs=document["min_pairs"],
-        limits=settings().limits,
-    )
+    method = document.get("method")
+    options = {
+        "cell_size": document.get("cell_size"),
+        "cells": document.get("cells"),
+        "statistic": document["statistic"],
+        "min_pairs": document["min_pairs"],
+        "limits": limits,
+    }
+    note = None
     if grid is not None:
-        note = f"{document['statistic']!r} is not an FFT statistic: the raster's cells were taken as points"
+        if method in (None, "auto", "grid") and (method == "grid" or document["statistic"] in FFT_STATISTICS):
+            found = raster_map(grid, **options)
+            pairs = int(found.pairs.sum()) // 2
+            return with_provenance(serialize.variogram_map(found, grid), grid.input_hash, grid.size, pairs)
+        if method != "exact":
+            note = f"{document['statistic']!r} is not an FFT statistic: the raster's cells were taken as points"
+        samples = raster_points(grid, limits)
+        method = "exact"
+    else:
+        samples = convert.sample_set(document, limits)
+    result = variogram_map(samples, method=method or "exact", tolerance=document["tolerance"], **options)
+    if note is not None:
         result = replace(result, warnings=result.warnings + (note,))
     return with_provenance(
         serialize.variogram_map(result, samples), samples.input_hash, samples.size, int(result.pairs.sum()) // 2

@@ -406,6 +406,20 @@ class MapRequest(SampleOptions):
         validate=validate.Range(min=1),
         metadata={"description": "Average pairs per cell the automatic cell size aims for."},
     )
+    method = one_of(
+        METHODS,
+        metadata={
+            "description": "exact (pair enumeration), grid (2-D samples binned on a fine grid, every lag vector "
+            "summed by FFT, with an error bound per cell; a raster is its own grid, exact), or auto (rasters: their "
+            "grid; scattered samples: exact unless over LAGWISE_MAX_PAIRS). Default: exact for scattered samples, "
+            "auto for rasters."
+        },
+    )
+    tolerance = finite(
+        load_default=DEFAULT_TOLERANCE,
+        validate=validate.Range(min=0, max=1, min_inclusive=False, max_inclusive=False),
+        metadata={"description": "Grid method: relative error bound above which a map cell is flagged."},
+    )
 
 
 # ---- models ------------------------------------------------------------------------
@@ -1253,7 +1267,7 @@ class SeveralExperimentalResponse(ResultEnvelope):
     colocated_pairs = fields.Integer()
 
 
-@always_present()
+@always_present("error_bound", "pair_bound", "bound_exceeded")
 class MapResponse(ResultEnvelope):
     hx = Column(fields.Float())
     hy = Column(fields.Float())
@@ -1263,6 +1277,24 @@ class MapResponse(ResultEnvelope):
     )
     pairs = Column(fields.List(fields.Integer()))
     summary = fields.Nested(SummarySchema)
+    error_bound = Column(
+        fields.List(fields.Float(allow_none=True)),
+        metadata={
+            "description": "Grid method (parameters.method grid): bound on |value - exact value| / |value| per cell, "
+            "rows as values (0 on a raster's own grid; null where the value is null or 0)."
+        },
+    )
+    pair_bound = Column(
+        fields.List(fields.Integer()),
+        metadata={"description": "Grid method: largest difference of a cell's pairs from the exact count."},
+    )
+    bound_exceeded = Column(
+        fields.List(fields.Boolean()),
+        metadata={
+            "description": "Grid method: error_bound is above parameters.grid.tolerance or null, except where both "
+            "the grid's and the exact map are certainly empty (no pairs, pair_bound 0)."
+        },
+    )
 
 
 @always_present()

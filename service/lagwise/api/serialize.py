@@ -240,6 +240,8 @@ def variogram_map(result, samples: SampleSet | Raster) -> dict:
             "cells": result.cells,
             **automatic,
             "cell_convention": CELL_CONVENTION,
+            "method": result.method,
+            **({} if result.grid is None else {"grid": result.grid.as_dict()}),
         },
     )
     return MAP.dump(view)

@@ -28,6 +28,24 @@ largest, ascending for the smallest). The stated relative bound of a class is
 max(v_max - v_grid, v_grid - v_min) / |v_grid|; the pair count's bound is rigorous
 (|N_grid - N_exact| <= sum of the boundary counts), the value's holds under the
 stated reading of each boundary lag vector's mean.
+
+Map cells
+---------
+A variogram map puts a pair in cell (I, J) when its separation h has
+floor(h_x / S + 1/2) = I and floor(h_y / S + 1/2) = J, S the map's cell size. A pair
+binned in cells k and k + s has h = s c + (u_head - u_tail) with each component of
+the difference in (-c, c): h lies in the open square of half-side c about s c (not
+the disk: map cells are squares with the same axes). Along x, the map columns that
+square reaches run from floor((s_x c - c) / S + 1/2) to floor((s_x c + c) / S + 1/2),
+and likewise along y. A lag vector whose two ranges are single columns and rows is a
+*core* lag vector of that cell; the others (within c of a cell edge along an axis,
+about 4 c / S of a cell's lag vectors) are *boundary* lag vectors of every cell of
+their ranges. Pairs within one grid cell (s = 0, each counted as h and as -h, as the
+map counts every pair) are boundary pairs of the cells the square (-c, c)^2 reaches
+(the origin cell when c < S / 2). The extremes then follow as for classes, cell by
+cell, over the ordered lag vectors (s and -s both, as the map holds each pair twice),
+and so do the relative bound and the (rigorous) pair-count bound. The map's cell size
+against the grid's is what sets the bound: halving c halves the boundary share.
 """
 
 from __future__ import annotations
@@ -158,3 +176,103 @@ def relative_bounds(
         with np.errstate(divide="ignore", invalid="ignore"):
             relative[k] = np.where(np.abs(v) > 0, np.fmax(hi - v, v - lo) / np.abs(v), np.nan)
     return relative, pairs
+
+
+def _map_spans(offsets: np.ndarray, cell: float, size: float) -> tuple[np.ndarray, np.ndarray]:
+    """First and last map index, floor(h / size + 1/2), that separations within ``cell`` of each offset reach."""
+    slack = cell * (1.0 + 1e-9)  # a hair wider than the open interval: rounding of the exact path's h
+    low = np.floor((offsets - slack) / size + 0.5).astype(np.int64)
+    high = np.floor((offsets + slack) / size + 0.5).astype(np.int64)
+    return low, high
+
+
+def _core_sums(values: np.ndarray, cx: np.ndarray, cy: np.ndarray, cells: int) -> np.ndarray:
+    """Sums of ``values`` (rows by lag y, columns by lag x) over each cell's core lag vectors, shape (W, W).
+
+    ``cx``, ``cy``: the map index of each lag column and row whose span is a single index, else a
+    value outside [-cells, cells]; the grouped sums are two products with 0/1 matrices (exact).
+    """
+    index = np.arange(-cells, cells + 1)
+    columns = (cx[None, :] == index[:, None]).astype(np.float64)  # (W, lag columns)
+    rows = (cy[None, :] == index[:, None]).astype(np.float64)  # (W, lag rows)
+    return rows @ (values @ columns.T)
+
+
+def map_bounds(
+    count: np.ndarray,
+    numerator: np.ndarray,
+    reach: tuple[int, int],
+    within: tuple[float, float],
+    cell: float,
+    cell_size: float,
+    cells: int,
+    grid_values: np.ndarray,
+) -> tuple[np.ndarray, np.ndarray]:
+    """Relative error bound and pair-count bound of every map cell (module docstring, Map cells).
+
+    Parameters
+    ----------
+    count, numerator : ndarray, shape (2 ry + 1, 2 rx + 1)
+        Pair counts and statistic numerators A_s of every ordered lag vector s = (i, j),
+        indexed [j + ry, i + rx] (:class:`lagwise.core.variography.fft.LagSums`); s = 0 is ignored.
+    reach : (int, int)
+        (rx, ry), lag vectors in grid cells.
+    within : (float, float)
+        Pairs within one grid cell and their numerator (each pair once).
+    cell, cell_size : float
+        The grid's cell side c and the map's cell side S, coordinate units.
+    cells : int
+        Map cells on each side of the origin.
+    grid_values : ndarray, shape (2 cells + 1, 2 cells + 1)
+        The grid method's map (rows by hy), NaN where undefined.
+
+    Returns
+    -------
+    (relative, pairs) : ndarrays of shape (2 cells + 1, 2 cells + 1)
+        Relative bound of each cell's value (NaN where undefined or the value is 0) and the
+        largest difference of its pair count from the exact map's.
+    """
+    rx, ry = reach
+    width = 2 * cells + 1
+    lx, hx = _map_spans(np.arange(-rx, rx + 1) * cell, cell, cell_size)
+    ly, hy = _map_spans(np.arange(-ry, ry + 1) * cell, cell, cell_size)
+    outside = cells + 1
+    cx = np.where(lx == hx, lx, outside)
+    cy = np.where(ly == hy, ly, outside)
+    core_num = _core_sums(numerator, cx, cy, cells)
+    core_den = _core_sums(count, cx, cy, cells)
+    if cx[rx] == 0 and cy[ry] == 0:  # the s = 0 lag holds each sample with itself, no pair
+        core_num[cells, cells] -= numerator[ry, rx]
+        core_den[cells, cells] -= count[ry, rx]
+    boundary = ~((cx[None, :] != outside) & (cy[:, None] != outside)) & (count > 0)
+    boundary[ry, rx] = False
+    jj, ii = np.nonzero(boundary)
+    b_num, b_den = numerator[jj, ii], count[jj, ii]
+    low_i, high_i, low_j, high_j = lx[ii], hx[ii], ly[jj], hy[jj]
+    del boundary
+    parts_cell, parts_lag = [], []
+    for ti in range(int((high_i - low_i).max(initial=0)) + 1):
+        for tj in range(int((high_j - low_j).max(initial=0)) + 1):
+            i, j = low_i + ti, low_j + tj
+            pick = np.flatnonzero((i <= high_i) & (j <= high_j) & (np.abs(i) <= cells) & (np.abs(j) <= cells))
+            parts_cell.append((j[pick] + cells) * width + (i[pick] + cells))
+            parts_lag.append(pick)
+    cls = np.concatenate(parts_cell) if parts_cell else np.zeros(0, dtype=np.int64)
+    lag = np.concatenate(parts_lag) if parts_lag else np.zeros(0, dtype=np.int64)
+    e_num, e_den = b_num[lag], b_den[lag]
+    if within[0] > 0:
+        i0, i1 = _map_spans(np.zeros(1), cell, cell_size)
+        span = np.arange(max(int(i0[0]), -cells), min(int(i1[0]), cells) + 1)
+        origin = ((span[:, None] + cells) * width + (span[None, :] + cells)).ravel()
+        cls = np.r_[cls, origin]
+        e_num = np.r_[e_num, np.full(origin.size, 2.0 * within[1])]
+        e_den = np.r_[e_den, np.full(origin.size, 2.0 * within[0])]
+    key = e_num / e_den
+    flat_num, flat_den = core_num.ravel(), core_den.ravel()
+    pairs = np.bincount(cls, weights=e_den, minlength=width * width)
+    hi = _extreme(cls, key, e_num, e_den, flat_num, flat_den, width * width, True)
+    lo = _extreme(cls, key, e_num, e_den, flat_num, flat_den, width * width, False)
+    v = grid_values.ravel()
+    with np.errstate(divide="ignore", invalid="ignore"):
+        relative = np.where(np.abs(v) > 0, np.fmax(hi - v, v - lo) / np.abs(v), np.nan)
+    return relative.reshape(width, width), pairs.reshape(width, width)

@@ -93,7 +93,9 @@ class GridReport:
     within_cell_pairs : int
         Pairs of samples in one cell, left out by the grid method.
     flagged : int
-        Classes whose bound exceeds ``tolerance``.
+        Classes (or map cells) whose bound exceeds ``tolerance``.
+    scope : str
+        ``classes`` (an experimental variogram) or ``map`` (a variogram map's cells).
     """
 
     source: str
@@ -106,6 +108,7 @@ class GridReport:
     tolerance: float | None = None
     within_cell_pairs: int = 0
     flagged: int = 0
+    scope: str = "classes"
 
     def as_dict(self) -> dict:
         """Plain dictionary for serialisation."""
@@ -119,7 +122,17 @@ class GridReport:
             "memory_bytes": self.memory_bytes,
             "algorithm": "masked FFT cross-correlations of counts, value sums and squares (Marcotte 1996)",
         }
-        if self.source == "binned":
+        if self.source == "binned" and self.scope == "map":
+            out.update(
+                tolerance=self.tolerance,
+                within_cell_pairs=self.within_cell_pairs,
+                flagged_cells=self.flagged,
+                bound_rule="pairs the grid puts in another map cell than the exact path lie in lag vectors whose "
+                "square of half-side one grid cell crosses a map cell edge; error_bound is the widest change of the "
+                "cell value over every share of those lag vectors' pairs, each share at its lag vector's mean; "
+                "pair_bound is the number of those pairs (a strict bound on the count)",
+            )
+        elif self.source == "binned":
             out.update(
                 tolerance=self.tolerance,
                 within_cell_pairs=self.within_cell_pairs,

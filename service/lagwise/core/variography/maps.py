@@ -13,6 +13,14 @@ cell holds about ``min_pairs`` pairs on average (n samples over a hull of area A
 about n^2 s^2 / A ordered pairs in a cell of side s, so s >= sqrt(min_pairs A) / n)
 and so that at most ``AUTO_MAX_MAP_CELLS`` cells lie on each side of the origin.
 Given only the cell size, the count reaches R; given only the count, the size does.
+
+Methods (``method``), as for experimental variograms
+(:mod:`lagwise.core.variography.gridded`): ``exact`` enumerates the pairs
+(:func:`variogram_map`); ``grid`` bins 2-D samples on a fine grid and sums every lag
+vector by FFT, with an error bound per cell (:mod:`lagwise.core.variography.binned_maps`);
+``auto`` takes ``exact`` unless its pair work would exceed ``LAGWISE_MAX_PAIRS`` and the
+grid method applies (2-D samples, a statistic it bounds), then ``grid``. A raster's map
+(:func:`raster_map`) is computed on the raster's own grid, exact for its pairs (bound 0).
 """
 
 from __future__ import annotations
@@ -29,13 +37,15 @@ from ..data.raster import Raster, raster_summary
 from ..data.samples import MAX_SPREAD, SampleSet
 from ..data.spacing import typical_spacing
 from ..data.summary import Summary, summarise
-from ..errors import FieldIssue, InvalidInput
+from ..errors import FieldIssue, InvalidInput, LimitExceeded
 from ..limits import Limits
 from . import kernels as K
-from .fft import check_budget, check_statistic, lag_sums, map_table
-from .gridded import raster_nodes
+from .binned_maps import binned_map, cell_values, refuse_for_grid
+from .bounds import BOUND_STATISTICS
+from .fft import check_budget, check_statistic, lag_sums, map_table, padded_shape
+from .gridded import DEFAULT_TOLERANCE, METHODS, GridReport, grid_summary, raster_nodes
 from .pairs import estimate_pairs_within, in_chunks, prepare, sweep_visits
-from .statistics import ACCUMULATION_MODE, STATISTICS, class_value
+from .statistics import ACCUMULATION_MODE, STATISTICS
 
 AUTO_MAX_MAP_CELLS = 40
 DEFAULT_MAP_MIN_PAIRS = 30
@@ -58,6 +68,18 @@ class VariogramMap:
         Typical sample spacing, when the cell size or count was chosen automatically.
     min_pairs : int
         Average pairs per cell the automatic rule aimed for.
+    method : str
+        ``exact`` (pair enumeration) or ``grid`` (FFT on a grid: binned samples or a raster).
+    grid : GridReport or None
+        The grid, for the ``grid`` method.
+    error_bound : ndarray, shape (2 * cells + 1, 2 * cells + 1), or None
+        ``grid`` method: bound on |value - exact value| / |value| per cell (NaN where
+        undefined; 0 for a raster's own grid); None for ``exact``.
+    pair_bound : ndarray of int, same shape, or None
+        ``grid`` method: largest difference of a cell's pairs from the exact count.
+    bound_exceeded : ndarray of bool, same shape, or None
+        ``grid`` method: cells whose bound exceeds the tolerance or is undefined
+        (:mod:`lagwise.core.variography.binned_maps`).
     """
 
     hx: np.ndarray
@@ -71,6 +93,11 @@ class VariogramMap:
     warnings: tuple[str, ...] = field(default=())
     spacing: float | None = None
     min_pairs: int = DEFAULT_MAP_MIN_PAIRS
+    method: str = "exact"
+    grid: GridReport | None = None
+    error_bound: np.ndarray | None = None
+    pair_bound: np.ndarray | None = None
+    bound_exceeded: np.ndarray | None = None
 
 
 def _hull_area(points: np.ndarray) -> float:
@@ -130,6 +157,8 @@ def variogram_map(
     min_pairs: int = DEFAULT_MAP_MIN_PAIRS,
     limits: Limits = Limits(),
     declustering: Declustering | None = None,
+    method: str = "exact",
+    tolerance: float = DEFAULT_TOLERANCE,
 ) -> VariogramMap:
     """Compute a variogram map (see the module conventions).
 
@@ -148,17 +177,33 @@ def variogram_map(
     min_pairs : int
         Average pairs per cell the automatic cell size aims for (default 30).
     limits : Limits
-        Cost limits, checked before the pair passes.
+        Cost limits, checked before the pair passes or the transforms.
     declustering : Declustering, optional
         Declustering weights found earlier (e.g. from the original values when the
-        samples carry transformed ones); default: found from the samples' values.
+        samples carry transformed ones); default: found from the samples' values
+        (the ``grid`` method reports a summary without declustering).
+    method : {"exact", "grid", "auto"}
+        Pair enumeration, FFT on binned samples, or chosen from the cost (module docstring).
+    tolerance : float
+        Relative error bound above which a cell of the ``grid`` method is flagged.
+
+    Raises
+    ------
+    InvalidInput, LimitExceeded
     """
     limits.check_samples(samples.size)
+    if method not in METHODS:
+        raise InvalidInput.at("/method", f"must be one of {', '.join(METHODS)}")
     if min_pairs < 1:
         raise InvalidInput.at("/min_pairs", "must be at least 1")
-    if declustering is None:
-        declustering = decluster(samples.coords, samples.values)
-    summary = summarise(samples.coords, samples.values, declustering)
+    if method == "grid":
+        refuse_for_grid(samples, statistic, tolerance)
+    may_grid = method == "grid" or (method == "auto" and samples.dimension == 2 and statistic in BOUND_STATISTICS)
+    if may_grid:
+        summary = grid_summary(samples)
+    else:
+        declustering = declustering or decluster(samples.coords, samples.values)
+        summary = summarise(samples.coords, samples.values, declustering)
     spacing = None
     if samples.dimension >= 2 and (cell_size is None or cells is None):
         top = (limits.max_map_cells - 1) // 2
@@ -169,9 +214,21 @@ def variogram_map(
         samples, cell_size if cell_size is not None else 1.0, cells if cells is not None else 1, statistic, limits
     )
     assert cell_size is not None and cells is not None  # resolved above, or _validate refused 1-D samples
+    if method == "auto":
+        method = "grid" if may_grid and not _exact_fits(samples, cell_size, cells, statistic, limits) else "exact"
+    if method == "grid":
+        return _grid_map(samples, summary, cell_size, cells, statistic, min_pairs, limits, tolerance, spacing)
+    if may_grid:  # auto chose the pair engine: its summary carries the declustered moments
+        declustering = declustering or decluster(samples.coords, samples.values)
+        summary = summarise(samples.coords, samples.values, declustering)
+    assert declustering is not None
+    return _exact_map(samples, summary, declustering, cell_size, cells, statistic, min_pairs, limits, spacing)
+
+
+def _pair_work(samples: SampleSet, sorted_x: np.ndarray, cell_size: float, cells: int, statistic: str, limits):
+    """Refuse an exact map whose pair work exceeds ``LAGWISE_MAX_PAIRS``; returns the sweep's visits per sample."""
     reach = (cells + 0.5) * cell_size
-    prepared = prepare(samples.coords, samples.values)
-    visits = sweep_visits(prepared.points[:, 0], reach)
+    visits = sweep_visits(sorted_x, reach)
     limits.check_pairs(
         estimate_pairs_within(samples.coords[:, :2], reach * math.sqrt(2.0)),
         2,
@@ -179,6 +236,53 @@ def variogram_map(
         visited=int(visits.sum()),
         passes=2 if statistic == "semivariance_median" else 1,
     )
+    return visits
+
+
+def _exact_fits(samples: SampleSet, cell_size: float, cells: int, statistic: str, limits: Limits) -> bool:
+    """``auto``: whether the exact map's pair work stays within ``LAGWISE_MAX_PAIRS``."""
+    try:
+        _pair_work(samples, np.sort(samples.coords[:, 0]), cell_size, cells, statistic, limits)
+    except LimitExceeded:
+        return False
+    return True
+
+
+def _grid_map(samples, summary, cell_size, cells, statistic, min_pairs, limits, tolerance, spacing) -> VariogramMap:
+    found = binned_map(
+        samples, summary, cell_size=cell_size, cells=cells, statistic=statistic, limits=limits, tolerance=tolerance
+    )
+    width = 2 * cells + 1
+    warnings = list(samples.warnings)
+    if found.report.flagged:
+        warnings.append(
+            f"{found.report.flagged} map cells have a grid error bound above {tolerance:g} (relative); "
+            "see error_bound per cell, or use method 'exact'"
+        )
+    centres = cell_size * np.arange(-cells, cells + 1, dtype=np.float64)
+    return VariogramMap(
+        hx=centres,
+        hy=centres.copy(),
+        values=[found.values[r * width : (r + 1) * width] for r in range(width)],
+        pairs=found.pairs,
+        statistic=statistic,
+        cell_size=float(cell_size),
+        cells=int(cells),
+        summary=summary,
+        warnings=tuple(warnings),
+        spacing=spacing,
+        min_pairs=int(min_pairs),
+        method="grid",
+        grid=found.report,
+        error_bound=found.error_bound,
+        pair_bound=found.pair_bound,
+        bound_exceeded=found.bound_exceeded,
+    )
+
+
+def _exact_map(samples, summary, declustering, cell_size, cells, statistic, min_pairs, limits, spacing) -> VariogramMap:
+    prepared = prepare(samples.coords, samples.values)
+    visits = _pair_work(samples, prepared.points[:, 0], cell_size, cells, statistic, limits)
     mode = ACCUMULATION_MODE[statistic]
     table = np.zeros(((2 * cells + 1) ** 2, K.ACCUMULATORS))
 
@@ -199,9 +303,7 @@ def variogram_map(
     width = 2 * cells + 1
     counts = table[:, K.COUNT].astype(np.int64)
     medians = _cell_medians(statistic, prepared, cell_size, cells, counts, visits, limits)
-    flat = [
-        class_value(statistic, table[b], prepared.mean, prepared.scale, medians[b]).value for b in range(width * width)
-    ]
+    flat = cell_values(statistic, table, prepared.mean, prepared.scale, medians)
     centres = cell_size * np.arange(-cells, cells + 1, dtype=np.float64)
     warnings = list(samples.warnings)
     if declustering.warning:
@@ -284,13 +386,23 @@ def raster_map(
         min(int(math.ceil(extent / raster.spacing[0])), nx - 1),
         min(int(math.ceil(extent / raster.spacing[1])), ny - 1),
     )
-    check_budget((ny, nx), lag_reach, limits, "/cells")
+    memory = check_budget((ny, nx), lag_reach, limits, "/cells")
     table = map_table(lag_sums(grid.nodes, lag_reach, first_moments=statistic != "semivariance"), cell_size, cells)
     width = 2 * cells + 1
-    flat = [
-        class_value(statistic, table[b], grid.nodes.mean, grid.nodes.scale, None).value for b in range(width * width)
-    ]
+    flat = cell_values(statistic, table, grid.nodes.mean, grid.nodes.scale)
     centres = cell_size * np.arange(-cells, cells + 1, dtype=np.float64)
+    defined = np.array([v is not None for v in flat]).reshape(width, width)
+    py, px = padded_shape((ny, nx), lag_reach)
+    report = GridReport(
+        source="raster",
+        origin=raster.origin,
+        spacing=raster.spacing,
+        shape=(nx, ny),
+        padded=(px, py),
+        reach=lag_reach,
+        memory_bytes=memory,
+        scope="map",
+    )
     return VariogramMap(
         hx=centres,
         hy=centres.copy(),
@@ -302,4 +414,9 @@ def raster_map(
         summary=summary,
         warnings=raster.warnings,
         min_pairs=int(min_pairs),
+        method="grid",
+        grid=report,
+        error_bound=np.where(defined, 0.0, np.nan),
+        pair_bound=np.zeros((width, width), dtype=np.int64),
+        bound_exceeded=np.zeros((width, width), dtype=bool),
     )
