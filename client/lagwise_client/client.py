@@ -320,10 +320,14 @@ class Lagwise:
         coordinates: str | None = None,
         duplicates: str | None = None,
         variable: str | None = None,
+        method: str | None = None,
+        tolerance: float | None = None,
     ) -> VariogramMap:
         """Variogram map on (2 cells + 1)^2 square cells of side ``cell_size`` (``POST /v1/variogram-maps``).
 
         The service chooses ``cell_size`` and ``cells`` from the samples' spacing when they are omitted.
+        ``method``: ``exact``, ``grid`` (binned on a fine grid, by FFT; the result carries ``error_bound``,
+        ``pair_bound`` and ``bound_exceeded`` per cell, flagged above ``tolerance``) or ``auto``.
         """
         return self._compute("/v1/variogram-maps", VariogramMap, locals())
 

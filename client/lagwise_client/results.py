@@ -208,12 +208,19 @@ class ExperimentalVariogram(Response):
 
 @dataclass(frozen=True, kw_only=True)
 class VariogramMap(Response):
-    """Result of :meth:`Lagwise.variogram_map`: values[row][column], rows by hy."""
+    """Result of :meth:`Lagwise.variogram_map`: values[row][column], rows by hy.
+
+    With the grid method, ``error_bound`` (relative, None where undefined), ``pair_bound`` and
+    ``bound_exceeded`` per cell, in the same layout; empty tuples otherwise.
+    """
 
     hx: tuple[float, ...]
     hy: tuple[float, ...]
     values: tuple[tuple[float | None, ...], ...]
     pairs: tuple[tuple[int, ...], ...]
+    error_bound: tuple[tuple[float | None, ...], ...] = ()
+    pair_bound: tuple[tuple[int, ...], ...] = ()
+    bound_exceeded: tuple[tuple[bool, ...], ...] = ()
     summary: dict = field(default_factory=dict)
     parameters: dict = field(default_factory=dict)
     warnings: tuple[str, ...] = ()
@@ -221,12 +228,18 @@ class VariogramMap(Response):
     raw: dict = _raw()
 
     def to_dataframe(self):
-        """One row per cell: hx, hy, value, pairs (needs pandas)."""
-        rows = [
-            {"hx": hx, "hy": hy, "value": self.values[r][c], "pairs": self.pairs[r][c]}
-            for r, hy in enumerate(self.hy)
-            for c, hx in enumerate(self.hx)
-        ]
+        """One row per cell: hx, hy, value, pairs, and with the grid method its bounds (needs pandas)."""
+        rows = []
+        for r, hy in enumerate(self.hy):
+            for c, hx in enumerate(self.hx):
+                row = {"hx": hx, "hy": hy, "value": self.values[r][c], "pairs": self.pairs[r][c]}
+                if self.error_bound:
+                    row.update(
+                        error_bound=self.error_bound[r][c],
+                        pair_bound=self.pair_bound[r][c],
+                        bound_exceeded=self.bound_exceeded[r][c],
+                    )
+                rows.append(row)
         return _dataframe(rows)
 
 

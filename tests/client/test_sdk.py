@@ -52,6 +52,23 @@ def test_variogram_map(lw, columns):
     assert len(result.to_dataframe()) == 25
 
 
+def test_variogram_map_by_the_grid_method(lw, columns):
+    """Reference: the exact map of the same samples; each grid cell within its stated bound of it."""
+    x, y, v = columns
+    grid = lw.variogram_map(x=x, y=y, values=v, cell_size=10.0, cells=2, method="grid", tolerance=0.05)
+    exact = lw.variogram_map(x=x, y=y, values=v, cell_size=10.0, cells=2)
+    assert grid.parameters["method"] == "grid" and grid.parameters["grid"]["tolerance"] == 0.05
+    assert exact.parameters["method"] == "exact" and exact.error_bound == ()
+    assert len(grid.error_bound) == len(grid.pair_bound) == len(grid.bound_exceeded) == 5
+    for r in range(5):
+        for c in range(5):
+            assert abs(grid.pairs[r][c] - exact.pairs[r][c]) <= grid.pair_bound[r][c]
+            g, e, bound = grid.values[r][c], exact.values[r][c], grid.error_bound[r][c]
+            if g is not None and e is not None and bound is not None:
+                assert abs(g - e) <= bound * abs(g) + 1e-12
+    assert {"error_bound", "pair_bound", "bound_exceeded"} <= set(grid.to_dataframe().columns)
+
+
 def test_validation_error_names_fields(lw):
     with pytest.raises(ValidationError) as info:
         lw.experimental_variogram(x=[0, 1, 2], values=[1, 2, "x"])
