@@ -1,4 +1,7 @@
-"""Run the benchmarks: ``python3 manage.py bench [variogram] [fitting] [kriging] [unattended] [variables] [large] [simulation] [responses]``."""
+"""Run the benchmarks: ``python3 manage.py bench [variogram] [fitting] [kriging] [unattended] [variables] [large [section ...]] [simulation] [responses]``.
+
+Words after ``large`` that name no suite are its sections (``bench large exact_kernel``).
+"""
 
 from __future__ import annotations
 
@@ -29,10 +32,16 @@ SUITES = {
 
 
 def main(argv):
-    names = argv or list(SUITES)
+    names = [a for a in argv if a in SUITES] or list(SUITES)
+    unknown = [a for a in argv if a not in SUITES]
+    if unknown and names != ["large"]:
+        raise SystemExit(f"sections ({', '.join(unknown)}) are given after the one suite that has them: large")
     for name in names:
         print(f"== {name} ==", flush=True)
-        SUITES[name]()
+        if name == "large":
+            large.main(unknown or None)
+        else:
+            SUITES[name]()
 
 
 if __name__ == "__main__":
