@@ -155,3 +155,18 @@ def test_inverse_variance_weighting_from_a_previous_experimental_response(client
         row.pop("standard_error")
     refused = client.post(URL, json=body)
     assert refused.status_code == 422 and refused.json["errors"][0]["pointer"] == "/weighting"
+
+
+def test_a_range_far_beyond_the_classes_is_warned_about(client):
+    """A field whose variogram keeps rising past every class (a planar trend plus a little noise:
+    its semivariance grows as the square of the distance, with no sill) fitted automatically
+    over short classes: the answer must say the range and sill are not seen by the classes."""
+    rng = np.random.default_rng(5)
+    x, y = rng.uniform(0, 1000, 400), rng.uniform(0, 1000, 400)
+    values = 10 + 0.01 * x + 0.005 * y + rng.normal(0, 0.05, 400)
+    samples = {"x": x.tolist(), "y": y.tolist(), "values": values.tolist()}
+    for lags in ({"width": 10, "count": 5}, None):
+        body = {"samples": samples} | ({"lags": lags} if lags else {})
+        r = client.post(URL, json=body)
+        assert r.status_code == 200, r.json
+        assert any("has not levelled off" in w for w in r.json["warnings"]), (lags, r.json["warnings"])

@@ -120,3 +120,14 @@ def test_range_beyond_the_classes_is_flagged():
     h = np.linspace(10, 100, 10)
     fit = fit_model(_points(0.01 * h, h=h), dimension=2, families=["spherical"])
     assert any("has not levelled off" in w for w in fit.warnings)
+
+
+def test_range_beyond_the_classes_is_flagged_when_held_at_its_automatic_bound():
+    """Automatic mode caps practical ranges at AUTO_RANGE_REACH times the largest class distance;
+    a variogram still rising at its last class (here linear, which has no sill: common practice)
+    pins the range at that cap, and the warning must still say so."""
+    h = np.linspace(10, 100, 10)
+    fit = fit_model(_points(0.01 * h, h=h), dimension=2)
+    longest = max(s.range for s in fit.best.model.structures)
+    assert longest == pytest.approx(1.5 * 100.0, rel=1e-6)
+    assert any("has not levelled off" in w for w in fit.warnings), fit.warnings

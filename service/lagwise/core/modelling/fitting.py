@@ -56,6 +56,8 @@ SMOOTH_FAMILIES = ("gaussian", "stable", "cardinal_sine")
 SMOOTH_MIN_NUGGET = 0.01
 SMOOTH_MAX_SHAPE_WITHOUT_NUGGET = 1.5
 AUTO_RANGE_REACH = 1.5
+# A fitted range within 1 % of that bound counts as held by it.
+AT_RANGE_BOUND = 0.99
 DUPLICATE_RANGE_RATIO = 1.25
 # Automatic-mode fits stop earlier: on a flat (noise-like) variogram the optimiser otherwise
 # wanders to its evaluation limit at tolerances far below what the classes can resolve.
@@ -645,7 +647,9 @@ def fit_model(
     best = select(ordered)
     longest = max((st.range for st in best.model.structures if FAMILIES[st.family].bounded), default=0.0)
     reach = float(points.distance[points.usable].max())
-    if longest > 1.5 * reach:
+    # At or past AUTO_RANGE_REACH x the largest class distance: automatic mode holds ranges at that
+    # bound, so a range the classes cannot see ends there (within the optimiser's tolerance).
+    if longest >= AT_RANGE_BOUND * AUTO_RANGE_REACH * reach:
         notes.append(
             f"the fitted range ({longest:.4g}) lies far beyond the largest class distance ({reach:.4g}): the variogram "
             "has not levelled off, so the sill and range are uncertain; consider a trend (universal kriging) or an unbounded model"
