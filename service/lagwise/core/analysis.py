@@ -735,7 +735,8 @@ def _warnings(samples, scored, selection, chosen, trend, withheld) -> list[str]:
         notes.append("no strategy could be cross-validated: every kriging set-up was refused")
     if chosen is not None and chosen.cross_validation is not None and chosen.cross_validation.statistics["outliers"]:
         count = chosen.cross_validation.statistics["outliers"]
-        notes.append(f"{count} samples have large cross-validation errors (see cross_validation.samples.outlier)")
+        noun = "sample has" if count == 1 else "samples have"
+        notes.append(f"{count} {noun} large cross-validation errors (see cross_validation.samples.outlier)")
     if trend is not None and trend.significant and (chosen is None or "drift" not in chosen.name):
         notes.append(
             f"a linear trend in the coordinates explains {trend.share * 100:.0f} % of the variance, "
@@ -745,5 +746,7 @@ def _warnings(samples, scored, selection, chosen, trend, withheld) -> list[str]:
     if model is not None and model.structures and model.sill and model.nugget / model.sill > 0.8:
         notes.append(f"the nugget is {model.nugget / model.sill * 100:.0f} % of the sill: the structure is weak")
     if withheld:
-        notes.append(f"{withheld} prediction nodes fall outside the plausible envelope of the data and are withheld")
+        nodes = "prediction node falls" if withheld == 1 else "prediction nodes fall"
+        verb = "is" if withheld == 1 else "are"
+        notes.append(f"{withheld} {nodes} outside the plausible envelope of the data and {verb} withheld")
     return notes
