@@ -29,7 +29,9 @@ def good(**extra):
 @pytest.mark.parametrize("literal", [b"NaN", b"Infinity", b"-Infinity"])
 def test_nan_and_infinity_literals_are_malformed(client, literal):
     body = b'{"samples": {"x": [0, 1], "values": [1, ' + literal + b"]}}"
-    assert_problem(post_raw(client, body), 400, "malformed-json")
+    response = post_raw(client, body)
+    assert_problem(response, 400, "malformed-json")
+    assert f"{literal.decode()} at character" in response.get_json()["detail"]
 
 
 def test_overflowing_number_is_invalid(client):

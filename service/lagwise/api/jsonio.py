@@ -1,6 +1,7 @@
 """Strict JSON in and out.
 
-Bodies are parsed with orjson, which rejects NaN and Infinity literals, invalid
+Bodies are parsed with orjson, which rejects NaN and Infinity literals (the problem names
+the literal and its character position), invalid
 UTF-8 and nesting deeper than 1024 levels (all malformed: 400). A number that
 overflows a double (``1e400``) is well-formed JSON but not a usable value: such a
 body is parsed again with the standard library so that validation can name the
@@ -27,11 +28,25 @@ def _reject_constant(name: str) -> Any:
     raise MalformedJSON(f"{name} is not valid JSON (use null for a missing value)")
 
 
+def _constant_at(body: bytes, position: int) -> str | None:
+    """The NaN or Infinity literal where orjson stopped (it stops after a minus sign), if any."""
+    for literal in (b"-Infinity", b"NaN", b"Infinity"):
+        for start in (position, position - 1):
+            if start >= 0 and body[start : start + len(literal)] == literal:
+                return literal.decode()
+    return None
+
+
 def parse(body: bytes) -> Any:
     """Parse a request body strictly; raises :class:`MalformedJSON`."""
     try:
         return orjson.loads(body)
     except orjson.JSONDecodeError as exc:
+        literal = _constant_at(body, exc.pos)
+        if literal is not None:
+            raise MalformedJSON(
+                f"{literal} at character {exc.pos} is not valid JSON (use null for a missing value)"
+            ) from None
         if "infinity" not in str(exc):
             raise MalformedJSON(str(exc)) from None
     try:
