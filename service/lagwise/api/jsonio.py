@@ -1,8 +1,8 @@
 """Strict JSON in and out.
 
 Bodies are parsed with orjson, which rejects NaN and Infinity literals (the problem names
-the literal and its character position), invalid
-UTF-8 and nesting deeper than 1024 levels (all malformed: 400). A number that
+the literal and its character position), invalid UTF-8 and nesting deeper than 1024
+levels (all malformed: 400). A number that
 overflows a double (``1e400``) is well-formed JSON but not a usable value: such a
 body is parsed again with the standard library so that validation can name the
 field (422). Output uses orjson with numpy support; any NaN or infinity that
