@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import numpy as np
+from lagwise.core.data.samples import SampleSet, build_sample_set
 from lagwise.core.modelling.models import Anisotropy, Structure, VariogramModel
 from scipy.linalg import cholesky
 from scipy.spatial.distance import cdist
@@ -26,3 +27,15 @@ def anisotropic(family, sill, range_, azimuth, ratio, nugget=0.0) -> VariogramMo
 
 def distances(coords):
     return cdist(coords, coords)
+
+
+def smooth_scattered(n: int, seed: int, clustered: bool = False) -> SampleSet:
+    """Samples uniform in a 1000 x 1000 square (half in 20 clusters when ``clustered``) of a smooth
+    periodic field plus white noise: many pairs per lag vector, for the grid method's bounds."""
+    rng = np.random.default_rng(seed)
+    xy = rng.uniform(0, 1000, (n, 2))
+    if clustered:
+        centres = rng.uniform(100, 900, (20, 2))
+        xy[: n // 2] = centres[rng.integers(0, 20, n // 2)] + rng.normal(0, 25, (n // 2, 2))
+    values = np.sin(xy[:, 0] / 90.0) + np.cos(xy[:, 1] / 140.0) + 0.4 * rng.normal(size=n) + 3.0
+    return build_sample_set(values, xy[:, 0], xy[:, 1])

@@ -14,23 +14,14 @@ from __future__ import annotations
 import numpy as np
 import pytest
 from lagwise.core.data.raster import build_raster, raster_points
-from lagwise.core.data.samples import build_sample_set
 from lagwise.core.limits import Limits
 from lagwise.core.variography.maps import raster_map, variogram_map
+
+from .simulate import smooth_scattered
 
 LIMITS = Limits(max_pairs=10**13)
 # (cell_size, cells): None, None is the automatic rule (about 17 a cell, 40 cells, on a 1000 square).
 LAYOUTS = [(None, None), (25.0, 8), (6.0, 12)]
-
-
-def _samples(n, seed, clustered=False):
-    rng = np.random.default_rng(seed)
-    xy = rng.uniform(0, 1000, (n, 2))
-    if clustered:
-        centres = rng.uniform(100, 900, (20, 2))
-        xy[: n // 2] = centres[rng.integers(0, 20, n // 2)] + rng.normal(0, 25, (n // 2, 2))
-    values = np.sin(xy[:, 0] / 90.0) + np.cos(xy[:, 1] / 140.0) + 0.4 * rng.normal(size=n) + 3.0
-    return build_sample_set(values, xy[:, 0], xy[:, 1])
 
 
 def _array(values):
@@ -58,17 +49,17 @@ def _check(samples, cell_size, cells, statistic="semivariance"):
 @pytest.mark.parametrize("layout", range(len(LAYOUTS)))
 def test_map_bounds_hold_on_20000_samples(seed, layout):
     cell_size, cells = LAYOUTS[layout]
-    _check(_samples(20_000, seed, clustered=seed == 3), cell_size, cells)
+    _check(smooth_scattered(20_000, seed, clustered=seed == 3), cell_size, cells)
 
 
 def test_map_bounds_hold_for_the_noncentred_covariance():
-    _check(_samples(20_000, 4), 25.0, 8, statistic="covariance_noncentered")
+    _check(smooth_scattered(20_000, 4), 25.0, 8, statistic="covariance_noncentered")
 
 
 def test_counts_add_up_to_the_pairs_within_reach():
     """Common practice: a map counts each pair twice (h and -h); every pair binned in two different
     grid cells is counted, so the grid's total is the exact total less the within-cell pairs at most."""
-    samples = _samples(3_000, 6)
+    samples = smooth_scattered(3_000, 6)
     grid, exact = _check(samples, 400.0, 2)  # the map covers every separation of the 1000 square
     n = samples.size
     assert exact.pairs.sum() == n * (n - 1)
@@ -94,7 +85,7 @@ def test_raster_as_points_gives_the_raster_map_exactly(rng):
 
 
 def test_flags_follow_the_tolerance():
-    samples = _samples(5_000, 5)
+    samples = smooth_scattered(5_000, 5)
     strict = variogram_map(samples, cell_size=25.0, cells=6, method="grid", tolerance=1e-6, limits=LIMITS)
     loose = variogram_map(samples, cell_size=25.0, cells=6, method="grid", tolerance=0.99, limits=LIMITS)
     assert strict.grid.flagged == int(strict.bound_exceeded.sum()) > loose.grid.flagged
@@ -105,4 +96,4 @@ def test_flags_follow_the_tolerance():
 @pytest.mark.parametrize("layout", [(10.0, 10), (3.0, 16)])
 def test_map_bounds_hold_on_200000_samples(layout):
     # Maps reaching about 100 and 50: some 1e9 and 2.5e8 pairs for the exact map.
-    _check(_samples(200_000, 7), *layout)
+    _check(smooth_scattered(200_000, 7), *layout)

@@ -8,13 +8,13 @@ vectors (derivation in lagwise.core.variography.bounds).
 
 from __future__ import annotations
 
-import numpy as np
 import pytest
-from lagwise.core.data.samples import build_sample_set
 from lagwise.core.limits import Limits
 from lagwise.core.variography.directions import DirectionClass
 from lagwise.core.variography.experimental import experimental_variogram
 from lagwise.core.variography.lags import LagRequest
+
+from .simulate import smooth_scattered
 
 LIMITS = Limits(max_pairs=10**13)
 LAYOUTS = [
@@ -25,16 +25,6 @@ LAYOUTS = [
     ),
     (LagRequest(edges=(0.0, 15.0, 40.0, 80.0, 150.0, 260.0)), [DirectionClass(30.0, 30.0, bandwidth=60.0)]),
 ]
-
-
-def _samples(n, seed, clustered=False):
-    rng = np.random.default_rng(seed)
-    xy = rng.uniform(0, 1000, (n, 2))
-    if clustered:
-        centres = rng.uniform(100, 900, (20, 2))
-        xy[: n // 2] = centres[rng.integers(0, 20, n // 2)] + rng.normal(0, 25, (n // 2, 2))
-    values = np.sin(xy[:, 0] / 90.0) + np.cos(xy[:, 1] / 140.0) + 0.4 * rng.normal(size=n) + 3.0
-    return build_sample_set(values, xy[:, 0], xy[:, 1])
 
 
 def _check(samples, lags, directions, statistic="semivariance"):
@@ -60,17 +50,17 @@ def _check(samples, lags, directions, statistic="semivariance"):
 @pytest.mark.parametrize("layout", range(len(LAYOUTS)))
 def test_bounds_hold_on_20000_samples(seed, layout):
     lags, directions = LAYOUTS[layout]
-    _check(_samples(20_000, seed, clustered=seed == 3), lags, directions)
+    _check(smooth_scattered(20_000, seed, clustered=seed == 3), lags, directions)
 
 
 def test_bounds_hold_for_the_noncentred_covariance():
     lags, directions = LAYOUTS[1]
-    _check(_samples(20_000, 4), lags, directions, statistic="covariance_noncentered")
+    _check(smooth_scattered(20_000, 4), lags, directions, statistic="covariance_noncentered")
 
 
 def test_flags_follow_the_tolerance():
     lags, directions = LAYOUTS[0]
-    samples = _samples(5_000, 5)
+    samples = smooth_scattered(5_000, 5)
     strict = experimental_variogram(samples, lags=lags, directions=directions, method="grid", tolerance=1e-6)
     assert strict.grid.flagged == sum(row.bound_exceeded for row in strict.directions[0].classes) > 0
     assert any("error bound above" in w for w in strict.warnings)
@@ -80,4 +70,4 @@ def test_flags_follow_the_tolerance():
 @pytest.mark.parametrize("layout", [1, 2])
 def test_bounds_hold_on_200000_samples(layout):
     lags, directions = LAYOUTS[layout]
-    _check(_samples(200_000, 7), lags, directions)
+    _check(smooth_scattered(200_000, 7), lags, directions)

@@ -248,26 +248,34 @@ def _exact_fits(samples: SampleSet, cell_size: float, cells: int, statistic: str
     return True
 
 
+def _square_cells(flat, cell_size: float, cells: int) -> dict:
+    """Cell centres (coordinate units) and rows of a square map of ``2 * cells + 1`` cells a side, from
+    its values in row order (rows by hy)."""
+    width = 2 * cells + 1
+    centres = cell_size * np.arange(-cells, cells + 1, dtype=np.float64)
+    return {
+        "hx": centres,
+        "hy": centres.copy(),
+        "values": [flat[r * width : (r + 1) * width] for r in range(width)],
+        "cell_size": float(cell_size),
+        "cells": int(cells),
+    }
+
+
 def _grid_map(samples, summary, cell_size, cells, statistic, min_pairs, limits, tolerance, spacing) -> VariogramMap:
     found = binned_map(
         samples, summary, cell_size=cell_size, cells=cells, statistic=statistic, limits=limits, tolerance=tolerance
     )
-    width = 2 * cells + 1
     warnings = list(samples.warnings)
     if found.report.flagged:
         warnings.append(
             f"{found.report.flagged} map cells have a grid error bound above {tolerance:g} (relative); "
             "see error_bound per cell, or use method 'exact'"
         )
-    centres = cell_size * np.arange(-cells, cells + 1, dtype=np.float64)
     return VariogramMap(
-        hx=centres,
-        hy=centres.copy(),
-        values=[found.values[r * width : (r + 1) * width] for r in range(width)],
+        **_square_cells(found.values, cell_size, cells),
         pairs=found.pairs,
         statistic=statistic,
-        cell_size=float(cell_size),
-        cells=int(cells),
         summary=summary,
         warnings=tuple(warnings),
         spacing=spacing,
@@ -304,20 +312,15 @@ def _exact_map(samples, summary, declustering, cell_size, cells, statistic, min_
     counts = table[:, K.COUNT].astype(np.int64)
     medians = _cell_medians(statistic, prepared, cell_size, cells, counts, visits, limits)
     flat = cell_values(statistic, table, prepared.mean, prepared.scale, medians)
-    centres = cell_size * np.arange(-cells, cells + 1, dtype=np.float64)
     warnings = list(samples.warnings)
     if declustering.warning:
         warnings.append(declustering.warning)
     if samples.dimension == 3:
         warnings.append("3-D samples: the map uses horizontal separations and ignores the vertical one")
     return VariogramMap(
-        hx=centres,
-        hy=centres.copy(),
-        values=[flat[r * width : (r + 1) * width] for r in range(width)],
+        **_square_cells(flat, cell_size, cells),
         pairs=counts.reshape(width, width),
         statistic=statistic,
-        cell_size=float(cell_size),
-        cells=int(cells),
         summary=summary,
         warnings=tuple(warnings),
         spacing=spacing,
@@ -390,7 +393,6 @@ def raster_map(
     table = map_table(lag_sums(grid.nodes, lag_reach, first_moments=statistic != "semivariance"), cell_size, cells)
     width = 2 * cells + 1
     flat = cell_values(statistic, table, grid.nodes.mean, grid.nodes.scale)
-    centres = cell_size * np.arange(-cells, cells + 1, dtype=np.float64)
     defined = np.array([v is not None for v in flat]).reshape(width, width)
     py, px = padded_shape((ny, nx), lag_reach)
     report = GridReport(
@@ -404,13 +406,9 @@ def raster_map(
         scope="map",
     )
     return VariogramMap(
-        hx=centres,
-        hy=centres.copy(),
-        values=[flat[r * width : (r + 1) * width] for r in range(width)],
+        **_square_cells(flat, cell_size, cells),
         pairs=table[:, K.COUNT].astype(np.int64).reshape(width, width),
         statistic=statistic,
-        cell_size=float(cell_size),
-        cells=int(cells),
         summary=summary,
         warnings=raster.warnings,
         min_pairs=int(min_pairs),
