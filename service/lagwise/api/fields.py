@@ -39,6 +39,52 @@ def _array_errors(array: np.ndarray) -> dict:
     }
 
 
+def json_kind(value) -> str:
+    """The JSON type of a parsed value, with its article (``"a string"``, ``"an array"``...), for messages."""
+    if value is None:
+        return "null"
+    if value is True or value is False:
+        return "a boolean"
+    if isinstance(value, str):
+        return "a string"
+    if isinstance(value, list):
+        return "an array"
+    if isinstance(value, dict):
+        return "an object"
+    return "a number"
+
+
+class StrictFloat(fields.Float):
+    """A JSON number, never a string or boolean (marshmallow's Float would take ``"12"``)."""
+
+    def _deserialize(self, value, attr, data, **kwargs):
+        if type(value) not in NUMBER_TYPES:
+            raise ValidationError(f"must be a number, not {json_kind(value)}")
+        return super()._deserialize(value, attr, data, **kwargs)
+
+
+class StrictInteger(fields.Integer):
+    """A JSON integer, never a string, boolean or number with a fraction."""
+
+    def __init__(self, **kwargs):
+        super().__init__(strict=True, **kwargs)
+
+    def _deserialize(self, value, attr, data, **kwargs):
+        if type(value) is not int:
+            kind = "a number with a fraction" if type(value) is float else json_kind(value)
+            raise ValidationError(f"must be an integer, not {kind}")
+        return super()._deserialize(value, attr, data, **kwargs)
+
+
+class StrictBoolean(fields.Boolean):
+    """A JSON ``true`` or ``false``, never a string or number (marshmallow's Boolean would take ``"yes"`` or 1)."""
+
+    def _deserialize(self, value, attr, data, **kwargs):
+        if value is True or value is False:
+            return value
+        raise ValidationError(f"must be true or false, not {json_kind(value)}")
+
+
 class NumberArray(fields.Field):
     """A JSON array of finite numbers (magnitude at most :data:`MAX_MAGNITUDE`), deserialised to float64.
 
@@ -141,15 +187,18 @@ def _number_list(value: Any) -> Any:
 # How marshmallow dumps each scalar field type (Number, Boolean and String ``_serialize``), without its call chain.
 _SCALAR_DUMPS: tuple[tuple[type[fields.Field], Callable[[Any], Any]], ...] = (
     (fields.Float, _optional(float)),
+    (StrictFloat, _optional(float)),
     (fields.Integer, _optional(int)),
+    (StrictInteger, _optional(int)),
     (fields.Boolean, _optional(bool)),
+    (StrictBoolean, _optional(bool)),
     (fields.String, _optional(str)),
 )
 
 
 def _scalar_dump(field: fields.Field) -> Callable[[Any], Any] | None:
     """The plain conversion that dumps ``field`` (a scalar, or a list of floats), or None for other fields."""
-    if type(field) is fields.List and type(field.inner) is fields.Float:
+    if type(field) is fields.List and type(field.inner) in (fields.Float, StrictFloat):
         return _number_list
     return next((dump for kind, dump in _SCALAR_DUMPS if type(field) is kind), None)
 
@@ -344,6 +393,10 @@ class Variants(fields.Field):
         The form of an object without the discriminator: the contract requires the
         discriminator (so that it tells the forms apart), the service still reads such
         an object as this form, with the discriminator filled in.
+    accepted : str, optional
+        The forms in words (e.g. ``"width and count, edges, or auto"``). With it, an object
+        holding members of the picked form and members only another form has is refused
+        at the object itself, naming the accepted forms, instead of as unknown members.
     """
 
     def __init__(
@@ -355,10 +408,12 @@ class Variants(fields.Field):
         dumped_as: Callable[[object], str] | None = None,
         component: str | None = None,
         omitted: str | None = None,
+        accepted: str | None = None,
         **kwargs,
     ):
         super().__init__(**kwargs)
         self.forms = dict(forms)
+        self.accepted = accepted
         self.pick = pick
         self.discriminator = discriminator
         self.dumped_as = dumped_as
@@ -371,7 +426,23 @@ class Variants(fields.Field):
             raise ValidationError("must be an object")
         if self.omitted is not None and self.discriminator is not None and self.discriminator not in value:
             value = {self.discriminator: self.omitted, **value}
-        return self.forms[self.pick(value)]().load(value)
+        name = self.pick(value)
+        if self.accepted is not None:
+            self._refuse_mixed(value, name)
+        return self.forms[name]().load(value)
+
+    def _refuse_mixed(self, value: dict, name: str) -> None:
+        """Refuse an object holding members that only forms other than ``name`` have."""
+
+        def members(form: type[Schema]) -> set[str]:
+            return {field.data_key or key for key, field in form._declared_fields.items()}
+
+        own = members(self.forms[name])
+        others = set().union(*(members(form) for other, form in self.forms.items() if other != name)) - own
+        foreign = [key for key in value if key in others]
+        if foreign:
+            given = [key for key in value if key in own or key in others]
+            raise ValidationError(f"give one form: {self.accepted}; the forms cannot be mixed (got {', '.join(given)})")
 
     def _serialize(self, value, attr, obj, **kwargs):
         if value is None or self.dumped_as is None:

@@ -46,6 +46,9 @@ from .fields import (
     NullableNumberArray,
     NumberArray,
     Rows,
+    StrictBoolean,
+    StrictFloat,
+    StrictInteger,
     Variants,
     by_discriminator,
 )
@@ -57,9 +60,9 @@ PLAUSIBLE = 1e100
 FAMILY_NAMES = tuple(FAMILIES)
 
 
-def finite(**kwargs) -> fields.Float:
+def finite(**kwargs) -> StrictFloat:
     """A finite float field."""
-    return fields.Float(allow_nan=False, **kwargs)
+    return StrictFloat(allow_nan=False, **kwargs)
 
 
 def one_of(choices, **kwargs) -> fields.String:
@@ -120,10 +123,10 @@ class SampleColumns(_SampleCoordinates):
 
     values = NumberArray(required=True, metadata={"description": "Measured values."})
     censored = CappedList(
-        fields.Boolean(), metadata={"description": "True where the result is below its detection limit."}
+        StrictBoolean(), metadata={"description": "True where the result is below its detection limit."}
     )
     detection_limits = CappedList(
-        fields.Float(allow_none=True, allow_nan=False),
+        StrictFloat(allow_none=True, allow_nan=False),
         metadata={"description": "Detection limits (value units), needed where censored is true."},
     )
 
@@ -171,12 +174,12 @@ class SampleVariableColumns(_SampleCoordinates):
         },
     )
     censored = NamedColumns(
-        CappedList(fields.Boolean()),
+        CappedList(StrictBoolean()),
         max_names=MAX_VARIABLES,
         metadata={"description": "Per variable: true where the result is below its detection limit."},
     )
     detection_limits = NamedColumns(
-        CappedList(fields.Float(allow_none=True, allow_nan=False)),
+        CappedList(StrictFloat(allow_none=True, allow_nan=False)),
         max_names=MAX_VARIABLES,
         metadata={"description": "Per variable: detection limits (its unit), needed where censored is true."},
     )
@@ -211,7 +214,7 @@ class RasterGrid(Schema):
         metadata={"description": "[dx, dy] between neighbouring nodes, coordinate units."},
     )
     shape = fields.List(
-        fields.Integer(strict=True, validate=validate.Range(min=1)),
+        StrictInteger(validate=validate.Range(min=1)),
         required=True,
         validate=validate.Length(equal=2),
         metadata={"description": "[nx, ny] nodes along x and y."},
@@ -254,6 +257,8 @@ def samples_field(**kwargs) -> Variants:
             "raster": SampleRaster,
         },
         _sample_form,
+        accepted="columns (x, values), columns of several variables (x, variables), GeoJSON features "
+        "(geojson with value_property or variable_properties), or a raster",
         **kwargs,
     )
 
@@ -301,7 +306,7 @@ class LagWidths(Schema):
         validate=validate.Range(min=0, min_inclusive=False),
         metadata={"description": "Class width, coordinate units."},
     )
-    count = fields.Integer(strict=True, required=True, validate=validate.Range(min=1, max=MAX_CLASSES))
+    count = StrictInteger(required=True, validate=validate.Range(min=1, max=MAX_CLASSES))
 
 
 class LagEdges(Schema):
@@ -328,7 +333,12 @@ def _lag_form(value: dict) -> str:
 
 def lags_field(**kwargs) -> Variants:
     """Distance classes: width and count, explicit edges, or auto."""
-    return Variants({"widths": LagWidths, "edges": LagEdges, "auto": LagAuto}, _lag_form, **kwargs)
+    return Variants(
+        {"widths": LagWidths, "edges": LagEdges, "auto": LagAuto},
+        _lag_form,
+        accepted="width and count, edges, or auto",
+        **kwargs,
+    )
 
 
 class DirectionSchema(Schema):
@@ -347,9 +357,9 @@ class DirectionSchema(Schema):
 class ScatterRequestSchema(Schema):
     """Ask for the pairs of one class (h-scattergram)."""
 
-    direction = fields.Integer(strict=True, load_default=0, validate=validate.Range(min=0))
-    klass = fields.Integer(strict=True, required=True, data_key="class", validate=validate.Range(min=0))
-    limit = fields.Integer(strict=True, load_default=2000, validate=validate.Range(min=1))
+    direction = StrictInteger(load_default=0, validate=validate.Range(min=0))
+    klass = StrictInteger(required=True, data_key="class", validate=validate.Range(min=0))
+    limit = StrictInteger(load_default=2000, validate=validate.Range(min=1))
 
 
 def directions_list(**kwargs) -> fields.List:
@@ -362,7 +372,7 @@ class ExperimentalRequest(SampleOptions):
     lags = lags_field()
     directions = directions_list()
     statistic = one_of(STATISTICS, load_default="semivariance")
-    min_pairs = fields.Integer(strict=True, load_default=30, validate=validate.Range(min=1))
+    min_pairs = StrictInteger(load_default=30, validate=validate.Range(min=1))
     pairs_for_class = fields.Nested(ScatterRequestSchema)
     variable = variable_choice()
     method = one_of(
@@ -392,16 +402,14 @@ class MapRequest(SampleOptions):
             "each side of the origin."
         },
     )
-    cells = fields.Integer(
-        strict=True,
+    cells = StrictInteger(
         validate=validate.Range(min=1),
         metadata={
             "description": "Cells on each side of the origin. Default: enough to reach half the largest separation."
         },
     )
     statistic = one_of(STATISTICS, load_default="semivariance")
-    min_pairs = fields.Integer(
-        strict=True,
+    min_pairs = StrictInteger(
         load_default=30,
         validate=validate.Range(min=1),
         metadata={"description": "Average pairs per cell the automatic cell size aims for."},
@@ -425,7 +433,7 @@ class MapRequest(SampleOptions):
 # ---- models ------------------------------------------------------------------------
 
 
-def _bounded(parameter: Parameter, **kwargs) -> fields.Float:
+def _bounded(parameter: Parameter, **kwargs) -> StrictFloat:
     """A finite float field checked against a parameter's documented bounds (the family table)."""
     b = parameter.bounds
     rule = validate.Range(
@@ -559,7 +567,7 @@ class ExperimentalClassInput(Schema):
         required=True,
         validate=validate.Range(min=0, max=PLAUSIBLE, error="semivariances cannot be negative (at most {max})"),
     )
-    pairs = fields.Integer(required=True, validate=validate.Range(min=0, max=2**62))
+    pairs = StrictInteger(required=True, validate=validate.Range(min=0, max=2**62))
     standard_error = finite(
         allow_none=True,
         validate=validate.Range(min=0, max=PLAUSIBLE),
@@ -643,7 +651,7 @@ class ModelFitRequest(SampleOptions):
     lags = lags_field()
     directions = directions_list()
     statistic = one_of(SEMIVARIANCE_STATISTICS, load_default="semivariance")
-    min_pairs = fields.Integer(strict=True, load_default=30, validate=validate.Range(min=1))
+    min_pairs = StrictInteger(load_default=30, validate=validate.Range(min=1))
     families = AutoOrList(
         FAMILY_NAMES,
         load_default="auto",
@@ -652,7 +660,7 @@ class ModelFitRequest(SampleOptions):
     nugget = NuggetOption(load_default="fit", metadata={"description": '"fit", "none" or a fixed value.'})
     weighting = one_of(WEIGHTINGS, load_default="pairs")
     anisotropy = one_of(("none", "fit"), load_default="none")
-    structures = fields.Integer(strict=True, load_default=1, validate=validate.OneOf((1, 2)))
+    structures = StrictInteger(load_default=1, validate=validate.OneOf((1, 2)))
     variable = variable_choice()
     transform = one_of(
         TRANSFORMS,
@@ -750,10 +758,10 @@ def kriging_field(**kwargs) -> Variants:
 class NeighbourhoodInput(Schema):
     """A moving neighbourhood; omit it for the unique neighbourhood (all samples)."""
 
-    max_points = fields.Integer(strict=True, load_default=24, validate=validate.Range(min=1, max=500))
-    min_points = fields.Integer(strict=True, load_default=4, validate=validate.Range(min=1))
+    max_points = StrictInteger(load_default=24, validate=validate.Range(min=1, max=500))
+    min_points = StrictInteger(load_default=4, validate=validate.Range(min=1))
     radius = finite(allow_none=True, load_default=None, validate=validate.Range(min=0, min_inclusive=False))
-    sectors = fields.Integer(strict=True, allow_none=True, load_default=None, validate=validate.Range(min=1, max=8))
+    sectors = StrictInteger(allow_none=True, load_default=None, validate=validate.Range(min=1, max=8))
 
 
 class LeaveOneOut(Schema):
@@ -766,8 +774,8 @@ class KFold(Schema):
     """k-fold: the samples shuffled (by ``seed``) into ``folds`` groups, each estimated from the others."""
 
     type = fields.String(required=True, validate=validate.Equal("k_fold"))
-    folds = fields.Integer(strict=True, load_default=10, validate=validate.Range(min=2))
-    seed = fields.Integer(strict=True, load_default=1, validate=validate.Range(min=0))
+    folds = StrictInteger(load_default=10, validate=validate.Range(min=2))
+    seed = StrictInteger(load_default=1, validate=validate.Range(min=0))
 
 
 def scheme_field() -> Variants:
@@ -837,7 +845,7 @@ class GridInput(Schema):
         validate=validate.Length(min=1, max=3),
     )
     shape = fields.List(
-        fields.Integer(strict=True, validate=validate.Range(min=1)),
+        StrictInteger(validate=validate.Range(min=1)),
         required=True,
         validate=validate.Length(min=1, max=3),
     )
@@ -853,7 +861,7 @@ class BlocksInput(Schema):
         metadata={"description": "Block side per axis (coordinate units)."},
     )
     discretisation = fields.List(
-        fields.Integer(strict=True, validate=validate.Range(min=1, max=MAX_POINTS_PER_AXIS)),
+        StrictInteger(validate=validate.Range(min=1, max=MAX_POINTS_PER_AXIS)),
         validate=validate.Length(min=1, max=3),
         metadata={
             "description": f"Sub-cells per axis whose centres discretise the block (default {DEFAULT_POINTS_PER_AXIS} "
@@ -868,7 +876,7 @@ class PredictionRequest(KrigingOptions):
     targets = fields.Nested(TargetsInput)
     grid = fields.Nested(GridInput)
     return_weights = CappedList(
-        fields.Integer(strict=True, validate=validate.Range(min=0)),
+        StrictInteger(validate=validate.Range(min=0)),
         validate=validate.Length(max=20),
         metadata={"description": "Target indexes whose kriging weights are returned (at most 20)."},
     )
@@ -921,7 +929,7 @@ class VariogramStage(Schema):
         metadata={"description": '"auto" (a fan of 6 classes from which the anisotropy is estimated) or a list.'},
     )
     statistic = one_of(SEMIVARIANCE_STATISTICS, load_default="semivariance")
-    min_pairs = fields.Integer(strict=True, load_default=30, validate=validate.Range(min=1))
+    min_pairs = StrictInteger(load_default=30, validate=validate.Range(min=1))
 
 
 class FitStage(Schema):
@@ -939,7 +947,7 @@ class FitStage(Schema):
     model = fields.Nested(
         Model, metadata={"description": "A given model (working units): skips fitting; compared with the null."}
     )
-    compare = fields.Boolean(
+    compare = StrictBoolean(
         load_default=True,
         metadata={
             "description": "Compare strategies (pure nugget, isotropic, anisotropic, drift) by cross-validation "
@@ -978,8 +986,8 @@ class AnalysisSimulationBlocks(Schema):
 class AnalysisSimulationInput(Schema):
     """Conditional simulation with the selected model (as POST /v1/simulations)."""
 
-    realisations = fields.Integer(strict=True, load_default=100, validate=validate.Range(min=1, max=10_000))
-    seed = fields.Integer(strict=True, load_default=1, validate=validate.Range(min=0, max=2**63 - 1))
+    realisations = StrictInteger(load_default=100, validate=validate.Range(min=1, max=10_000))
+    seed = StrictInteger(load_default=1, validate=validate.Range(min=0, max=2**63 - 1))
     blocks = fields.Nested(
         AnalysisSimulationBlocks,
         metadata={"description": "Block averages of the simulated values (also with a transform)."},
@@ -1040,7 +1048,7 @@ class AnalysisRequest(SampleOptions):
     )
     figure_format = one_of(FORMATS, load_default="svg", metadata={"description": "svg (text) or png (base64)."})
     figure_size = fields.List(
-        fields.Integer(strict=True, validate=validate.Range(min=200, max=3000)),
+        StrictInteger(validate=validate.Range(min=200, max=3000)),
         validate=validate.Length(equal=2),
         load_default=lambda: [800, 500],
         metadata={"description": "Width and height in pixels."},
@@ -1081,7 +1089,7 @@ class ProvenanceSchema(Schema):
     input_sha256 = fields.String(
         metadata={"description": "SHA-256 of the little-endian float64 bytes of x, y, z and values as parsed."}
     )
-    elapsed_ms = fields.Float()
+    elapsed_ms = StrictFloat()
 
 
 @always_present()
@@ -1089,22 +1097,22 @@ class DeclusteringSchema(Schema):
     """Cell declustering of the samples (weights used only when sampling is clustered)."""
 
     method = fields.String()
-    cell_size = fields.Float(allow_none=True, metadata={"description": "Chosen cell size, coordinate units."})
-    clustered = fields.Boolean()
-    weights_used = fields.Boolean(
+    cell_size = StrictFloat(allow_none=True, metadata={"description": "Chosen cell size, coordinate units."})
+    clustered = StrictBoolean()
+    weights_used = StrictBoolean(
         metadata={"description": "The summary's reference moments, normal scores and sill reference use the weights."}
     )
     over_sampled = fields.String(
         allow_none=True, metadata={"description": "high (declustered mean minimised) or low (maximised)."}
     )
-    nearest_neighbour_ratio = fields.Float(
+    nearest_neighbour_ratio = StrictFloat(
         allow_none=True,
         metadata={
             "description": "Mean nearest-neighbour distance over its value for a random pattern (Clark & Evans 1954)."
         },
     )
-    nearest_neighbour_z = fields.Float(allow_none=True)
-    mean_shift_z = fields.Float(
+    nearest_neighbour_z = StrictFloat(allow_none=True)
+    mean_shift_z = StrictFloat(
         allow_none=True,
         metadata={"description": "Declustered minus plain mean in standard errors of a random assignment of values."},
     )
@@ -1113,18 +1121,18 @@ class DeclusteringSchema(Schema):
 
 @always_present()
 class SummarySchema(Schema):
-    samples = fields.Integer()
-    dimension = fields.Integer()
-    mean = fields.Float()
-    variance = fields.Float(metadata={"description": "Divisor N."})
-    minimum = fields.Float()
-    maximum = fields.Float()
-    extent = fields.Dict(keys=fields.String(), values=fields.List(fields.Float()))
-    max_distance = fields.Float()
-    declustered_mean = fields.Float(
+    samples = StrictInteger()
+    dimension = StrictInteger()
+    mean = StrictFloat()
+    variance = StrictFloat(metadata={"description": "Divisor N."})
+    minimum = StrictFloat()
+    maximum = StrictFloat()
+    extent = fields.Dict(keys=fields.String(), values=fields.List(StrictFloat()))
+    max_distance = StrictFloat()
+    declustered_mean = StrictFloat(
         allow_none=True, metadata={"description": "Mean under the cell-declustering weights."}
     )
-    declustered_variance = fields.Float(
+    declustered_variance = StrictFloat(
         allow_none=True, metadata={"description": "Variance under the cell-declustering weights (weights sum to 1)."}
     )
     declustering = fields.Nested(DeclusteringSchema, allow_none=True)
@@ -1142,18 +1150,18 @@ class SummarySchema(Schema):
     "bound_exceeded",
 )
 class ClassSchema(Schema):
-    lower = fields.Float()
-    upper = fields.Float()
-    mean_distance = fields.Float(allow_none=True)
-    pairs = fields.Integer()
-    value = fields.Float(allow_none=True)
+    lower = StrictFloat()
+    upper = StrictFloat()
+    mean_distance = StrictFloat(allow_none=True)
+    pairs = StrictInteger()
+    value = StrictFloat(allow_none=True)
     reason = one_of(CLASS_REASONS, metadata={"description": "Why value is null."})
-    sparse = fields.Boolean()
-    tail_mean = fields.Float(metadata={"description": "Covariance-type statistics only."})
-    head_mean = fields.Float()
-    tail_sd = fields.Float()
-    head_sd = fields.Float()
-    standard_error = fields.Float(
+    sparse = StrictBoolean()
+    tail_mean = StrictFloat(metadata={"description": "Covariance-type statistics only."})
+    head_mean = StrictFloat()
+    tail_sd = StrictFloat()
+    head_sd = StrictFloat()
+    standard_error = StrictFloat(
         allow_none=True,
         metadata={
             "description": "Standard error of value: delete-one-block jackknife over spatial blocks of samples "
@@ -1161,22 +1169,22 @@ class ClassSchema(Schema):
         },
     )
     interval_95 = fields.List(
-        fields.Float(),
+        StrictFloat(),
         allow_none=True,
         validate=validate.Length(equal=2),
         metadata={"description": "[lower, upper] 95 % interval of the class's expected value."},
     )
     uncertainty_reason = fields.String(metadata={"description": "Why standard_error is null."})
-    error_bound = fields.Float(
+    error_bound = StrictFloat(
         allow_none=True,
         metadata={
             "description": "Grid method: bound on |value - exact value| / |value| (0 for rasters; null when undefined)."
         },
     )
-    pair_bound = fields.Integer(
+    pair_bound = StrictInteger(
         metadata={"description": "Grid method: largest difference of pairs from the exact path's count."}
     )
-    bound_exceeded = fields.Boolean(
+    bound_exceeded = StrictBoolean(
         metadata={"description": "Grid method: error_bound is above parameters.grid.tolerance (or undefined)."}
     )
 
@@ -1198,23 +1206,23 @@ class ClassSchema(Schema):
 class DirectionResultSchema(Schema):
     """A direction class as resolved (dip members for 3-D samples only) and its distance classes."""
 
-    azimuth = fields.Float()
-    tolerance = fields.Float()
-    bandwidth = fields.Float(allow_none=True)
-    dip = fields.Float()
-    dip_tolerance = fields.Float()
-    vertical_bandwidth = fields.Float(allow_none=True)
+    azimuth = StrictFloat()
+    tolerance = StrictFloat()
+    bandwidth = StrictFloat(allow_none=True)
+    dip = StrictFloat()
+    dip_tolerance = StrictFloat()
+    vertical_bandwidth = StrictFloat(allow_none=True)
     classes = Rows(ClassSchema)
 
 
 @always_present()
 class ScattergramSchema(Schema):
-    direction = fields.Integer()
-    klass = fields.Integer(data_key="class")
-    pairs_in_class = fields.Integer()
-    stride = fields.Integer(metadata={"description": "Every stride-th pair of the class is returned."})
-    tail = Column(fields.Float())
-    head = Column(fields.Float())
+    direction = StrictInteger()
+    klass = StrictInteger(data_key="class")
+    pairs_in_class = StrictInteger()
+    stride = StrictInteger(metadata={"description": "Every stride-th pair of the class is returned."})
+    tail = Column(StrictFloat())
+    head = Column(StrictFloat())
 
 
 @always_present()
@@ -1228,7 +1236,7 @@ class ResultEnvelope(Schema):
 class ExperimentalResponse(ResultEnvelope):
     directions = fields.List(fields.Nested(DirectionResultSchema))
     summary = fields.Nested(SummarySchema)
-    colocated_pairs = fields.Integer()
+    colocated_pairs = StrictInteger()
     pairs_for_class = fields.Nested(ScattergramSchema)
 
 
@@ -1264,32 +1272,32 @@ class SeveralExperimentalResponse(ResultEnvelope):
             "description": "Every pair of variables in the given order; empty for statistics without a cross form."
         },
     )
-    colocated_pairs = fields.Integer()
+    colocated_pairs = StrictInteger()
 
 
 @always_present("error_bound", "pair_bound", "bound_exceeded")
 class MapResponse(ResultEnvelope):
-    hx = Column(fields.Float())
-    hy = Column(fields.Float())
+    hx = Column(StrictFloat())
+    hy = Column(StrictFloat())
     values = Column(
-        fields.List(fields.Float(allow_none=True)),
+        fields.List(StrictFloat(allow_none=True)),
         metadata={"description": "Rows by hy, columns by hx; null for empty cells."},
     )
-    pairs = Column(fields.List(fields.Integer()))
+    pairs = Column(fields.List(StrictInteger()))
     summary = fields.Nested(SummarySchema)
     error_bound = Column(
-        fields.List(fields.Float(allow_none=True)),
+        fields.List(StrictFloat(allow_none=True)),
         metadata={
             "description": "Grid method (parameters.method grid): bound on |value - exact value| / |value| per cell, "
             "rows as values (0 on a raster's own grid; null where the value is null or 0)."
         },
     )
     pair_bound = Column(
-        fields.List(fields.Integer()),
+        fields.List(StrictInteger()),
         metadata={"description": "Grid method: largest difference of a cell's pairs from the exact count."},
     )
     bound_exceeded = Column(
-        fields.List(fields.Boolean()),
+        fields.List(StrictBoolean()),
         metadata={
             "description": "Grid method: error_bound is above parameters.grid.tolerance or null, except where both "
             "the grid's and the exact map are certainly empty (no pairs, pair_bound 0)."
@@ -1299,26 +1307,26 @@ class MapResponse(ResultEnvelope):
 
 @always_present()
 class DiagnosticsSchema(Schema):
-    weighted_sse = fields.Float(allow_none=True)
-    r_squared = fields.Float(allow_none=True)
-    criterion = fields.Float(allow_none=True)
+    weighted_sse = StrictFloat(allow_none=True)
+    r_squared = StrictFloat(allow_none=True)
+    criterion = StrictFloat(allow_none=True)
     criterion_name = fields.String()
-    converged = fields.Boolean()
-    iterations = fields.Integer()
+    converged = StrictBoolean()
+    iterations = StrictInteger()
 
 
 @always_present()
 class CandidateSchema(Schema):
-    rank = fields.Integer()
+    rank = StrictInteger()
     label = fields.String()
     model = fields.Nested(Model, allow_none=True, metadata={"description": "Null when the fit failed (see note)."})
-    selected = fields.Boolean(metadata={"description": "True for the one candidate returned as the model."})
-    parameters = fields.Integer()
-    weighted_sse = fields.Float(allow_none=True)
-    r_squared = fields.Float(allow_none=True)
-    criterion = fields.Float(allow_none=True)
-    converged = fields.Boolean()
-    iterations = fields.Integer()
+    selected = StrictBoolean(metadata={"description": "True for the one candidate returned as the model."})
+    parameters = StrictInteger()
+    weighted_sse = StrictFloat(allow_none=True)
+    r_squared = StrictFloat(allow_none=True)
+    criterion = StrictFloat(allow_none=True)
+    converged = StrictBoolean()
+    iterations = StrictInteger()
     note = fields.String(allow_none=True)
 
 
@@ -1326,16 +1334,16 @@ class CandidateSchema(Schema):
 class JointCandidateSchema(Schema):
     """A candidate joint model (linear model of coregionalisation)."""
 
-    rank = fields.Integer()
+    rank = StrictInteger()
     label = fields.String()
     model = fields.Nested(JointModel)
-    selected = fields.Boolean(metadata={"description": "True for the one candidate returned as the model."})
-    parameters = fields.Integer()
-    weighted_sse = fields.Float()
-    r_squared = fields.Float(allow_none=True)
-    criterion = fields.Float()
-    converged = fields.Boolean()
-    iterations = fields.Integer(metadata={"description": "Goulard-Voltz sweeps of the final fit."})
+    selected = StrictBoolean(metadata={"description": "True for the one candidate returned as the model."})
+    parameters = StrictInteger()
+    weighted_sse = StrictFloat()
+    r_squared = StrictFloat(allow_none=True)
+    criterion = StrictFloat()
+    converged = StrictBoolean()
+    iterations = StrictInteger(metadata={"description": "Goulard-Voltz sweeps of the final fit."})
 
 
 def _candidate_form(value: dict) -> str:
@@ -1349,16 +1357,16 @@ def _dumped_candidate_form(candidate: Any) -> str:
 
 @always_present()
 class FitClassSchema(Schema):
-    mean_distance = fields.Float(allow_none=True)
-    value = fields.Float(allow_none=True)
-    pairs = fields.Integer()
-    used = fields.Boolean()
-    model_value = fields.Float(allow_none=True)
+    mean_distance = StrictFloat(allow_none=True)
+    value = StrictFloat(allow_none=True)
+    pairs = StrictInteger()
+    used = StrictBoolean()
+    model_value = StrictFloat(allow_none=True)
 
 
 @always_present()
 class FitDirectionSchema(Schema):
-    azimuth = fields.Float()
+    azimuth = StrictFloat()
     classes = Rows(FitClassSchema)
 
 
@@ -1407,7 +1415,7 @@ class ModelFitResponse(ResultEnvelope):
 class FitRuleSchema(Schema):
     """A fit bound or start: factor times a named fit scale."""
 
-    factor = fields.Float()
+    factor = StrictFloat()
     scale = fields.String(metadata={"description": "A key of fit_scales."})
 
 
@@ -1424,19 +1432,19 @@ class FamilyParameterSchema(Schema):
     unit = fields.String()
     kind = fields.String(validate=validate.OneOf(UNIT_KINDS))
     slot = fields.String(metadata={"description": "sill, range or shape; empty for model-wide parameters."})
-    minimum = fields.Float()
-    maximum = fields.Float()
-    exclusive = fields.Boolean(metadata={"description": "Every given end is open."})
-    minimum_exclusive = fields.Boolean()
-    maximum_exclusive = fields.Boolean()
+    minimum = StrictFloat()
+    maximum = StrictFloat()
+    exclusive = StrictBoolean(metadata={"description": "Every given end is open."})
+    minimum_exclusive = StrictBoolean()
+    maximum_exclusive = StrictBoolean()
     fit = fields.Nested(FamilyParameterFitSchema, metadata={"description": "Bounds and start of a fit."})
 
 
 @always_present()
 class FamilySchema(Schema):
     name = one_of(FAMILY_NAMES)
-    bounded = fields.Boolean()
-    max_dimension = fields.Integer()
+    bounded = StrictBoolean()
+    max_dimension = StrictInteger()
     parameters = fields.List(fields.Nested(FamilyParameterSchema))
     formula = fields.String()
     source = fields.String()
@@ -1455,31 +1463,31 @@ class FamiliesResponse(Schema):
 @always_present()
 class CrossValidationSamplesSchema(Schema):
     id = Column(fields.String())
-    observed = Column(fields.Float())
-    estimate = Column(fields.Float(allow_none=True))
-    standard_deviation = Column(fields.Float(allow_none=True))
-    error = Column(fields.Float(allow_none=True))
-    standardized_error = Column(fields.Float(allow_none=True))
-    outlier = Column(fields.Boolean())
+    observed = Column(StrictFloat())
+    estimate = Column(StrictFloat(allow_none=True))
+    standard_deviation = Column(StrictFloat(allow_none=True))
+    error = Column(StrictFloat(allow_none=True))
+    standardized_error = Column(StrictFloat(allow_none=True))
+    outlier = Column(StrictBoolean())
 
 
 @always_present()
 class CrossValidationStatisticsSchema(Schema):
-    count = fields.Integer()
-    mean_error = fields.Float(allow_none=True)
-    mean_absolute_error = fields.Float(allow_none=True)
-    root_mean_square_error = fields.Float(allow_none=True)
-    mean_standardized_error = fields.Float(allow_none=True)
-    root_mean_square_standardized_error = fields.Float(allow_none=True)
-    correlation = fields.Float(allow_none=True)
-    goodness_of_prediction = fields.Float(allow_none=True)
-    interval_coverage_95 = fields.Float(allow_none=True)
-    outliers = fields.Integer()
+    count = StrictInteger()
+    mean_error = StrictFloat(allow_none=True)
+    mean_absolute_error = StrictFloat(allow_none=True)
+    root_mean_square_error = StrictFloat(allow_none=True)
+    mean_standardized_error = StrictFloat(allow_none=True)
+    root_mean_square_standardized_error = StrictFloat(allow_none=True)
+    correlation = StrictFloat(allow_none=True)
+    goodness_of_prediction = StrictFloat(allow_none=True)
+    interval_coverage_95 = StrictFloat(allow_none=True)
+    outliers = StrictInteger()
 
 
 @always_present()
 class UnestimatedSchema(Schema):
-    index = fields.Integer()
+    index = StrictInteger()
     reason = fields.String()
 
 
@@ -1489,15 +1497,15 @@ class CokrigingGainSchema(Schema):
 
     primary = fields.String()
     secondaries = fields.List(fields.String())
-    mean_variance = fields.Float(
+    mean_variance = StrictFloat(
         allow_none=True, metadata={"description": "Mean cokriging variance over the targets both estimated."}
     )
-    mean_variance_primary_only = fields.Float(allow_none=True)
-    variance_reduction = fields.Float(
+    mean_variance_primary_only = StrictFloat(allow_none=True)
+    variance_reduction = StrictFloat(
         allow_none=True, metadata={"description": "1 - mean_variance / mean_variance_primary_only."}
     )
     variance_primary_only = Column(
-        fields.Float(allow_none=True), metadata={"description": "Per target (or sample): kriging the primary alone."}
+        StrictFloat(allow_none=True), metadata={"description": "Per target (or sample): kriging the primary alone."}
     )
     statistics_primary_only = fields.Nested(
         CrossValidationStatisticsSchema, metadata={"description": "Cross-validation of the primary kriged alone."}
@@ -1515,36 +1523,36 @@ class CrossValidationResponse(ResultEnvelope):
 
 @always_present()
 class WeightsSchema(Schema):
-    target = fields.Integer()
+    target = StrictInteger()
     samples = fields.List(fields.String())
-    weights = Column(fields.Float())
-    lagrange = Column(fields.Float())
+    weights = Column(StrictFloat())
+    lagrange = Column(StrictFloat())
 
 
 @always_present()
 class GridSchema(Schema):
-    origin = fields.List(fields.Float())
-    spacing = fields.List(fields.Float())
-    shape = fields.List(fields.Integer())
+    origin = fields.List(StrictFloat())
+    spacing = fields.List(StrictFloat())
+    shape = fields.List(StrictInteger())
     order = fields.String()
 
 
 @always_present()
 class ExceedanceSchema(Schema):
-    threshold = fields.Float(metadata={"description": "Original units."})
+    threshold = StrictFloat(metadata={"description": "Original units."})
     probability = Column(
-        fields.Float(allow_none=True),
+        StrictFloat(allow_none=True),
         metadata={"description": "P(value > threshold), aligned with estimate (null where no estimate)."},
     )
 
 
 @always_present("y", "z", "grid", "weights", "exceedance", "cokriging")
 class PredictionResponse(ResultEnvelope):
-    x = Column(fields.Float())
-    y = Column(fields.Float(), metadata={"description": "2-D and 3-D samples."})
-    z = Column(fields.Float(), metadata={"description": "3-D samples."})
-    estimate = Column(fields.Float(allow_none=True))
-    variance = Column(fields.Float(allow_none=True))
+    x = Column(StrictFloat())
+    y = Column(StrictFloat(), metadata={"description": "2-D and 3-D samples."})
+    z = Column(StrictFloat(), metadata={"description": "3-D samples."})
+    estimate = Column(StrictFloat(allow_none=True))
+    variance = Column(StrictFloat(allow_none=True))
     grid = fields.Nested(GridSchema, metadata={"description": "Predictions on a grid."})
     unestimated = fields.List(fields.Nested(UnestimatedSchema))
     weights = fields.List(fields.Nested(WeightsSchema), metadata={"description": "When return_weights was given."})
@@ -1558,14 +1566,14 @@ class PredictionResponse(ResultEnvelope):
 @always_present()
 class AnalysisVariogramSchema(Schema):
     directions = fields.List(fields.Nested(DirectionResultSchema))
-    colocated_pairs = fields.Integer()
+    colocated_pairs = StrictInteger()
 
 
 class AnisotropyEstimateSchema(Schema):
-    azimuth = fields.Float(metadata={"description": "Degrees clockwise from north of the longest continuity."})
-    ratio = fields.Float(metadata={"description": "Range across / range along, in (0, 1]."})
+    azimuth = StrictFloat(metadata={"description": "Degrees clockwise from north of the longest continuity."})
+    ratio = StrictFloat(metadata={"description": "Range across / range along, in (0, 1]."})
     family = fields.String()
-    supported = fields.Boolean(
+    supported = StrictBoolean(
         metadata={"description": "True when the anisotropic strategy won the cross-validation (it is then used)."}
     )
     why = fields.String()
@@ -1589,7 +1597,7 @@ class StrategySchema(Schema):
     model = fields.Nested(Model)
     kriging = fields.Dict()
     statistics = fields.Nested(CrossValidationStatisticsSchema, allow_none=True)
-    selected = fields.Boolean()
+    selected = StrictBoolean()
     why = fields.String()
 
 
@@ -1600,7 +1608,7 @@ class SelectionSchema(Schema):
 
 
 class VerdictSchema(Schema):
-    usable = fields.Boolean(metadata={"description": "The map and its intervals can be used as they are."})
+    usable = StrictBoolean(metadata={"description": "The map and its intervals can be used as they are."})
     level = fields.String(validate=validate.OneOf(VERDICT_LEVELS))
     text = fields.String()
 
@@ -1624,24 +1632,24 @@ class AnalysisCrossValidationSchema(Schema):
 class ProbabilityClassSchema(Schema):
     name = fields.String(attribute="class", data_key="class", validate=validate.OneOf(("below", "uncertain", "above")))
     meaning = fields.String()
-    count = fields.Integer()
-    share = fields.Float(allow_none=True)
+    count = StrictInteger()
+    share = StrictFloat(allow_none=True)
 
 
 @always_present()
 class ProbabilityClassesSchema(Schema):
-    threshold = fields.Float()
-    confidence = fields.Float()
+    threshold = StrictFloat()
+    confidence = StrictFloat()
     classes = fields.List(fields.Nested(ProbabilityClassSchema))
-    unestimated = fields.Integer()
+    unestimated = StrictInteger()
     support = one_of(("point", "block"))
     method = one_of(("kriging", "simulation"))
 
 
 @always_present("blocks")
 class AnalysisSimulationSchema(Schema):
-    realisations = fields.Integer()
-    seed = fields.Integer()
+    realisations = StrictInteger()
+    seed = StrictInteger()
     above = fields.List(fields.Nested("AboveSchema"))
     blocks = fields.Nested("SimulatedBlocksSchema")
     method = fields.Dict()
@@ -1649,10 +1657,10 @@ class AnalysisSimulationSchema(Schema):
 
 @always_present()
 class AnalysisPredictionSchema(Schema):
-    x = Column(fields.Float())
-    y = Column(fields.Float())
-    estimate = Column(fields.Float(allow_none=True), metadata={"description": "Original units (back-transformed)."})
-    variance = Column(fields.Float(allow_none=True))
+    x = Column(StrictFloat())
+    y = Column(StrictFloat())
+    estimate = Column(StrictFloat(allow_none=True), metadata={"description": "Original units (back-transformed)."})
+    variance = Column(StrictFloat(allow_none=True))
     grid = fields.Nested(GridSchema)
     unestimated = fields.List(fields.Nested(UnestimatedSchema))
     support = one_of(("point", "block"))
@@ -1698,15 +1706,6 @@ class BatchAnalysisResponse(ResultEnvelope):
 # ---- conditional simulations ---------------------------------------------------------
 
 
-class StrictBoolean(fields.Boolean):
-    """JSON true or false only (not 0, 1 or strings)."""
-
-    def _deserialize(self, value, attr, data, **kwargs):
-        if type(value) is not bool:
-            raise self.make_error("invalid")
-        return value
-
-
 class SimulationKrigingInput(Schema):
     type = one_of(SIMULATION_KRIGING, load_default="simple")
     mean = finite(
@@ -1724,9 +1723,7 @@ class SimulationGridInput(Schema):
     spacing = fields.List(
         finite(validate=validate.Range(min=0, min_inclusive=False)), required=True, validate=validate.Length(equal=2)
     )
-    shape = fields.List(
-        fields.Integer(strict=True, validate=validate.Range(min=1)), required=True, validate=validate.Length(equal=2)
-    )
+    shape = fields.List(StrictInteger(validate=validate.Range(min=1)), required=True, validate=validate.Length(equal=2))
 
 
 class SimulationBlocksInput(Schema):
@@ -1756,8 +1753,8 @@ class SimulationRequest(SampleOptions):
     kriging = fields.Nested(SimulationKrigingInput, load_default=lambda: {"type": "simple"})
     neighbourhood = fields.Nested(NeighbourhoodInput, allow_none=True, load_default=None)
     grid = fields.Nested(SimulationGridInput, required=True)
-    realisations = fields.Integer(strict=True, load_default=100, validate=validate.Range(min=1, max=MAX_REALISATIONS))
-    seed = fields.Integer(strict=True, load_default=1, validate=validate.Range(min=0, max=2**63 - 1))
+    realisations = StrictInteger(load_default=100, validate=validate.Range(min=1, max=MAX_REALISATIONS))
+    seed = StrictInteger(load_default=1, validate=validate.Range(min=0, max=2**63 - 1))
     thresholds = fields.List(
         finite(),
         validate=validate.Length(max=MAX_THRESHOLDS),
@@ -1770,51 +1767,51 @@ class SimulationRequest(SampleOptions):
 
 @always_present()
 class NodeQuantilesSchema(Schema):
-    p10 = Column(fields.Float())
-    p50 = Column(fields.Float())
-    p90 = Column(fields.Float())
+    p10 = Column(StrictFloat())
+    p50 = Column(StrictFloat())
+    p90 = Column(StrictFloat())
 
 
 @always_present()
 class SimulatedExceedanceSchema(Schema):
-    threshold = fields.Float(metadata={"description": "Original units."})
+    threshold = StrictFloat(metadata={"description": "Original units."})
     probability = Column(
-        fields.Float(), metadata={"description": "Share of the realisations above the threshold, x fastest."}
+        StrictFloat(), metadata={"description": "Share of the realisations above the threshold, x fastest."}
     )
 
 
 @always_present()
 class SimulatedBlocksSchema(Schema):
     grid = fields.Nested(GridSchema, metadata={"description": "Block centres; spacing is the block size."})
-    mean = Column(fields.Float(), metadata={"description": "Mean over realisations of each block average."})
+    mean = Column(StrictFloat(), metadata={"description": "Mean over realisations of each block average."})
     exceedance = fields.List(fields.Nested(SimulatedExceedanceSchema))
 
 
 @always_present()
 class FractionSchema(Schema):
-    mean = fields.Float()
-    p10 = fields.Float()
-    p50 = fields.Float()
-    p90 = fields.Float()
+    mean = StrictFloat()
+    p10 = StrictFloat()
+    p50 = StrictFloat()
+    p90 = StrictFloat()
 
 
 @always_present()
 class AboveSchema(Schema):
-    threshold = fields.Float()
+    threshold = StrictFloat()
     fraction = fields.Nested(FractionSchema, metadata={"description": "Share of the grid above, over realisations."})
 
 
 @always_present("blocks", "realisations")
 class SimulationResponse(ResultEnvelope):
     grid = fields.Nested(GridSchema)
-    mean = Column(fields.Float(), metadata={"description": "E-type mean per node (original units)."})
-    variance = Column(fields.Float(), metadata={"description": "Variance over realisations (divisor R)."})
+    mean = Column(StrictFloat(), metadata={"description": "E-type mean per node (original units)."})
+    variance = Column(StrictFloat(), metadata={"description": "Variance over realisations (divisor R)."})
     quantiles = fields.Nested(NodeQuantilesSchema)
     exceedance = fields.List(fields.Nested(SimulatedExceedanceSchema))
     blocks = fields.Nested(SimulatedBlocksSchema, metadata={"description": "When blocks were given."})
     above = fields.List(fields.Nested(AboveSchema))
     realisations = Column(
-        fields.List(fields.Float()), metadata={"description": "When return_realisations: one list per realisation."}
+        fields.List(StrictFloat()), metadata={"description": "When return_realisations: one list per realisation."}
     )
     method = fields.Dict()
 
@@ -1837,22 +1834,22 @@ class ProblemSchema(Schema):
 
     type = one_of(PROBLEM_TYPES, metadata={"description": "URI reference of the kind; GET it for a description."})
     title = fields.String()
-    status = fields.Integer(validate=validate.OneOf(PROBLEM_STATUSES))
+    status = StrictInteger(validate=validate.OneOf(PROBLEM_STATUSES))
     detail = fields.String()
     instance = fields.String(metadata={"description": "The request's path."})
     request_id = fields.String(metadata={"description": "Also in the X-Request-ID response header."})
     errors = fields.List(
         fields.Nested(FieldErrorSchema), metadata={"description": "Offending fields, at most 100 entries."}
     )
-    errors_omitted = fields.Integer(
+    errors_omitted = StrictInteger(
         metadata={
             "description": "Further problems not listed in errors: entries past the first 100, and list elements "
             "left unchecked after the first 20 bad ones of a list."
         }
     )
     limit = fields.String(metadata={"description": "limit-exceeded: the LAGWISE_* variable that sets the limit."})
-    allowed = fields.Float(metadata={"description": "limit-exceeded: the configured value."})
-    requested = fields.Float(metadata={"description": "limit-exceeded: what this request would need (same unit)."})
+    allowed = StrictFloat(metadata={"description": "limit-exceeded: the configured value."})
+    requested = StrictFloat(metadata={"description": "limit-exceeded: what this request would need (same unit)."})
 
 
 @always_present()
@@ -1861,7 +1858,7 @@ class ProblemKindSchema(Schema):
 
     type = one_of(PROBLEM_TYPES)
     title = fields.String()
-    status = fields.Integer(validate=validate.OneOf(PROBLEM_STATUSES))
+    status = StrictInteger(validate=validate.OneOf(PROBLEM_STATUSES))
     description = fields.String()
 
 
