@@ -263,6 +263,37 @@ def test_parts_without_filenames_and_an_unclosed_part(client, columns):
     assert r.status_code == 400 and r.json["type"] == "/problems/malformed-request"
 
 
+def _form(*parts: tuple[str, str, bytes]) -> bytes:
+    """A multipart/form-data body (boundary ``xyz``) of (name, media type, content) parts, written by hand."""
+    body = b""
+    for name, media_type, content in parts:
+        body += (
+            f'--xyz\r\nContent-Disposition: form-data; name="{name}"\r\nContent-Type: {media_type}\r\n\r\n'.encode()
+            + content
+            + b"\r\n"
+        )
+    return body + b"--xyz--\r\n"
+
+
+def test_a_repeated_or_unknown_part_is_refused_by_name(client, columns, rng):
+    """A second samples part used to replace the first silently, and unknown parts were ignored."""
+    headers = {"Content-Type": "multipart/form-data; boundary=xyz"}
+    options = ("request", "application/json", json.dumps(ENDPOINTS["/v1/experimental-variograms"]).encode())
+    first = ("samples", ARROW, stream(columns))
+    other = {name: rng.permutation(column) for name, column in columns.items()}
+    second = ("samples", ARROW, stream(other))
+    r = client.post("/v1/experimental-variograms", data=_form(options, first, second), headers=headers)
+    assert r.status_code == 422 and r.mimetype == "application/problem+json", r.json
+    assert pointers(r) == ["/samples"] and "more than one samples part" in r.json["detail"]
+    r = client.post("/v1/experimental-variograms", data=_form(options, options, first), headers=headers)
+    assert r.status_code == 422 and "more than one request part" in r.json["detail"]
+    extra = ("weights", "application/json", b"[1, 2, 3]")
+    r = client.post("/v1/experimental-variograms", data=_form(options, first, extra), headers=headers)
+    assert r.status_code == 422 and pointers(r) == [""], r.json
+    assert "'weights'" in r.json["detail"] and "only a request part" in r.json["detail"]
+    assert client.post("/v1/experimental-variograms", data=_form(options, first), headers=headers).status_code == 200
+
+
 # ---- several variables in, simulations and cokriging out ---------------------------------------
 
 SIM_MODEL = {"nugget": 0.1, "structures": [{"family": "spherical", "partial_sill": 0.9, "range": 30.0}]}

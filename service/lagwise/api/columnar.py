@@ -43,6 +43,7 @@ UNIT_KEY = b"unit"
 # The options part is small JSON; a larger one is a mistake (or samples sent as a text field).
 MAX_OPTIONS_BYTES = 1 << 20
 MAX_PARTS = 8
+PART_NAMES = ("request", "samples")
 NUMBER_COLUMNS = ("x", "y", "z", "values")
 COLUMNS = (*NUMBER_COLUMNS, "ids", "censored", "detection_limits")
 MAX_LISTED = 20
@@ -73,7 +74,13 @@ def _parts(body: bytes, boundary: bytes) -> dict[str, tuple[str, memoryview]]:
             headers[name.strip().lower()] = value.strip()
         _, disposition = parse_options_header(headers.get("content-disposition", ""))
         media_type, _ = parse_options_header(headers.get("content-type", "text/plain"))
-        parts[disposition.get("name", "")] = (media_type, view[head_end + 4 : close])
+        name = disposition.get("name", "")
+        if name in parts:
+            raise InvalidInput.at(
+                "/samples" if name == "samples" else "",
+                f"the multipart form has more than one {name or 'unnamed'} part; send each part once",
+            )
+        parts[name] = (media_type, view[head_end + 4 : close])
         position = close + 2 + len(delimiter)
     return parts
 
@@ -85,13 +92,21 @@ def split_form(body: bytes, content_type: str) -> tuple[memoryview, memoryview]:
     ------
     Problem
         400 ``malformed-request`` when the body is not multipart/form-data with a boundary,
-        422 ``invalid-input`` naming a missing part, 415 for a samples part of another type.
+        422 ``invalid-input`` naming a missing, repeated or unknown part, 415 for a samples part
+        of another type.
     """
     _, options = parse_options_header(content_type)
     boundary = options.get("boundary")
     if not boundary:
         raise Problem("malformed-request", "The multipart/form-data Content-Type has no boundary parameter.")
     parts = _parts(body, boundary.encode("latin-1"))
+    unknown = [name for name in parts if name not in PART_NAMES]
+    if unknown:
+        raise InvalidInput.at(
+            "",
+            f"the multipart form has a part named {unknown[0] or '(no name)'!r}; it takes only a request part "
+            "(application/json: the options) and a samples part (application/vnd.apache.arrow.stream)",
+        )
     if "request" not in parts:
         raise InvalidInput.at("", "the multipart form needs a request part (application/json: the options)")
     if len(parts["request"][1]) > MAX_OPTIONS_BYTES:
