@@ -10,11 +10,13 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
+from lagwise.core.data.samples import build_sample_set
 from lagwise.core.variography import kernels as K
 from lagwise.core.variography.directions import DirectionClass
-from lagwise.core.variography.pairs import accumulate, layout, prepare
+from lagwise.core.variography.experimental import experimental_variogram
+from lagwise.core.variography.pairs import MAX_LOOKUP_CELLS, accumulate, layout, prepare
 
-from .brute import members, pair_table
+from .brute import class_statistics, members, pair_table
 
 
 def _check(coords, values, directions, edges_per_direction):
@@ -79,3 +81,51 @@ def test_three_dimensional_samples_with_horizontal_directions():
     edges = np.linspace(0.0, 60.0, 13)
     _check(coords, values, [DirectionClass()], [edges])
     _check(coords, values, [DirectionClass(a, 45.0) for a in (0.0, 90.0)], [edges] * 2)
+
+
+def _near_duplicates(rng, length, width, clusters=200):
+    """Clusters of three samples along a strip: two 1e-4 apart, the third within half a unit."""
+    base = np.column_stack([rng.uniform(0.0, length, clusters), rng.uniform(0.0, width, clusters)])
+    twin = base + 1e-4 * rng.normal(size=(clusters, 2))
+    third = base + np.column_stack([rng.normal(0.0, 0.05, clusters), rng.uniform(-0.5, 0.5, clusters)])
+    return np.concatenate([base, twin, third])
+
+
+def test_classes_narrower_than_a_lookup_cell():
+    """Five classes of 1e-3 under a search radius of 1000: more than MAX_LOOKUP_CELLS cells would be
+    needed for cells narrower than a class, so the lookup table cannot resolve them; every pair
+    still lands in its own class, as scipy.spatial.distance.pdist and numpy.searchsorted say."""
+    rng = np.random.default_rng(6)
+    coords = rng.uniform(0.0, 1000.0, (600, 2))
+    coords[1::2] = coords[0::2] + rng.uniform(-0.004, 0.004, (300, 2))
+    values = rng.normal(size=600)
+    edges = np.array([0.0, 0.001, 0.002, 0.003, 0.004, 0.005, 1000.0])
+    assert 2.0 * edges[-1] / 0.001 > MAX_LOOKUP_CELLS
+    _check(coords, values, [DirectionClass()], [edges])
+    fan = [DirectionClass(a, 15.0) for a in (0.0, 30.0, 60.0, 90.0, 120.0, 150.0)]
+    _check(coords, values, fan, [edges] * len(fan))
+
+
+@pytest.mark.parametrize("statistic", ["semivariance", "covariance"])
+def test_automatic_classes_of_an_elongated_survey(statistic):
+    """A strip 5000 long and 1 wide with near-duplicate samples: automatic classes across the strip
+    are a few thousandths wide while those along it reach 2500, so the directions' classes differ in
+    width by far more than the lookup table resolves. Counts and sums against brute-force enumeration
+    (scipy.spatial.distance.pdist, explicit angle tests, tests/reference/brute.py)."""
+    coords = _near_duplicates(np.random.default_rng(5), 5000.0, 1.0)
+    values = np.random.default_rng(7).normal(size=coords.shape[0])
+    samples = build_sample_set(values, coords[:, 0], coords[:, 1])
+    fan = [DirectionClass(a, 15.0) for a in (0.0, 30.0, 60.0, 90.0, 120.0, 150.0)]
+    result = experimental_variogram(samples, directions=fan, statistic=statistic, min_pairs=1)
+    edges = [np.array([row.lower for row in d.classes] + [d.classes[-1].upper]) for d in result.directions]
+    radius = max(e[-1] for e in edges)
+    assert 2.0 * radius / min(np.diff(e).min() for e in edges) > MAX_LOOKUP_CELLS
+    i, j, h, d = pair_table(coords, values)
+    for k, direction in enumerate(fan):
+        ok, klass, sign = members(h, d, edges[k], direction.azimuth, direction.tolerance)
+        expected = class_statistics(statistic, values, i, j, ok, klass, sign, len(edges[k]) - 1)
+        rows = result.directions[k].classes
+        assert [row.pairs for row in rows] == [n for n, _ in expected], f"direction {direction.azimuth}"
+        for row, (n, value) in zip(rows, expected, strict=True):
+            if n:
+                assert row.value == pytest.approx(value, rel=1e-9, abs=1e-12)

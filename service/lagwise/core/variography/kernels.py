@@ -62,8 +62,8 @@ def classify(dx, dy, dz, d, dirs, k, edges, nk, inv_width):
     proj = dx * ux + dy * uy
     perp = dx * uy - dy * ux
     if hh2 > 0.0:
-        cos_tol = dirs[k, 2]
-        if cos_tol > 0.0 and proj * proj < hh2 * cos_tol * cos_tol:
+        # The fast kernel's angle test, to the bit (:func:`admitted`): proj^2 >= |h|^2 cos^2(tolerance).
+        if proj * proj - hh2 * dirs[k, 11] < 0.0:
             return -1, 0
         if perp * perp > dirs[k, 3]:
             return -1, 0
@@ -476,7 +476,8 @@ def accumulate_horizontal(
     """Fast path of :func:`accumulate_classes` (rows [first, last)) for classes without dip or vertical band.
 
     Class lookup: ``lut[k, m]`` is ``searchsorted(edges_k, m * cell, "right") - 1`` for
-    fine cells narrower than the narrowest class, so one step up and one step down
+    fine cells at most half the narrowest class wide (callers use :func:`accumulate_classes`
+    where the table cannot be that fine, ``ClassLayout.fast``), so one step up and one step down
     (against ``padded[k] = [-inf, edges_k..., +inf...]``) give exactly
     ``searchsorted(edges_k, d, "right") - 1``. ``shared`` means every direction has
     the same edges, so the class is looked up once per pair; if they are also of equal
@@ -911,7 +912,8 @@ def accumulate_square_patterns(
     ``vals`` (n, p) is centred per variable and 0 where not measured; ``pattern`` (n,) the
     index of each sample's row in ``patterns`` (G, p), the distinct 0/1 measurement rows;
     ``head`` (nthreads, bins * G, n) is filled in place. With ``horizontal`` (no dip or
-    vertical band) classes are looked up as in :func:`accumulate_horizontal`. Returns the (bins, p, p) sums,
+    vertical band, and a lookup table that resolves the classes: ``ClassLayout.fast``) classes
+    are looked up as in :func:`accumulate_horizontal`. Returns the (bins, p, p) sums,
     and the (bins, G, G) pair counts and distance sums per pattern pair, and the
     co-located pairs.
     """

@@ -85,6 +85,10 @@ class ClassLayout:
         Inverse width of the lookup cells.
     shared : bool
         Every direction has the same edges.
+    resolved : bool
+        The lookup cells are at most half the narrowest class wide, so that one step up and
+        one down from a cell's class give every distance's class (False when that would take
+        more than :data:`MAX_LOOKUP_CELLS` cells: the fast kernel does not apply).
     """
 
     edges: np.ndarray
@@ -95,11 +99,17 @@ class ClassLayout:
     lookup: np.ndarray
     inv_cell: float
     shared: bool
+    resolved: bool = True
 
     @property
     def horizontal(self) -> bool:
-        """No class uses a dip or a vertical band (the fast kernel applies)."""
+        """No class uses a dip or a vertical band."""
         return bool(np.all(self.table[:, HAS_DIP] == 0.0) and np.all(np.isinf(self.table[:, VBAND2])))
+
+    @property
+    def fast(self) -> bool:
+        """The fast kernel applies: horizontal classes and a lookup table that resolves them."""
+        return self.horizontal and self.resolved
 
     @property
     def step_inverse(self) -> float:
@@ -148,7 +158,8 @@ def layout(directions: list[DirectionClass], edges_per_direction: list[np.ndarra
         padded[k, 1 : len(e) + 1] = e
     radius = float(max(e[-1] for e in edges_per_direction))
     narrowest = float(min(np.diff(e).min() for e in edges_per_direction))
-    cells = int(min(MAX_LOOKUP_CELLS, max(64, np.ceil(2.0 * radius / narrowest))))
+    needed = float(np.ceil(2.0 * radius / narrowest))
+    cells = int(min(MAX_LOOKUP_CELLS, max(64, needed)))
     starts = np.arange(cells + 1) * (radius / cells)
     lookup = np.array([np.searchsorted(e, starts, side="right") - 1 for e in edges_per_direction], dtype=np.int64)
     shared = all(np.array_equal(e, edges_per_direction[0]) for e in edges_per_direction)
@@ -161,6 +172,7 @@ def layout(directions: list[DirectionClass], edges_per_direction: list[np.ndarra
         lookup=lookup,
         inv_cell=cells / radius,
         shared=shared,
+        resolved=needed <= MAX_LOOKUP_CELLS,
     )
 
 
@@ -204,7 +216,7 @@ def accumulate(prepared: PreparedSamples, classes: ClassLayout, mode: int) -> tu
     colocated = [0]
 
     def run(first: int, last: int) -> None:
-        if classes.horizontal:
+        if classes.fast:
             table, zero = K.accumulate_horizontal(
                 prepared.points,
                 prepared.values,
@@ -480,7 +492,7 @@ def accumulate_squares(
             classes.lookup,
             classes.inv_cell,
             classes.shared,
-            classes.horizontal,
+            classes.fast,
             threads,
             first,
             last,

@@ -74,10 +74,19 @@ class Member:
     declustering: Declustering | None = None
 
 
+@njit(cache=True)
+def _add_pending(main, a, pending, values, count, mode, mean):
+    """Add member a's deferred pairs (rows of ``pending``: table, bin; of ``values``: distance,
+    tail, head) to copy 0 of its tables, in the order they were deferred."""
+    for u in range(count):
+        table, b = pending[a, u, 0], pending[a, u, 1]
+        K.add_pair(main[a, table, 0], b, values[a, u, 0], values[a, u, 1], values[a, u, 2], mode, mean)
+
+
 @njit(parallel=True, cache=True)
 def _accumulate_members(
     pts, vals, in_group, slot_group, slot_set, slot_pair, pairs_of_slots, fast, group_start, group_members, dirs,
-    edges, nk, inv_width, max_d2, mode, means, table_of, own_rank, tables, labels, nblocks, owner, nthreads,
+    edges, nk, inv_width, max_d2, mode, means, table_of, own_rank, tables, labels, nblocks, owner, nthreads, room,
 ):  # fmt: skip
     """Sums of every pair per variable, slot and *table*, in the order a single-variable pass adds them.
 
@@ -90,12 +99,15 @@ def _accumulate_members(
     none). Thread t adds the variables with ``owner`` t, every pair in increasing order of
     its earlier end, then of its later end, as the single-variable kernels do per thread.
 
-    Where ``fast[set]`` the single-variable pass is
-    :func:`lagwise.core.variography.kernels.accumulate_horizontal`, which adds the pair of
-    rows (i, j) of one variable (its own x-sorted ranks, ``own_rank``) to copy
-    (j - i - 1) mod ``COPIES`` of its table when one direction of the set admits it, else to
-    copy 0; ``slot_pair`` numbers each slot's (group, set) so that the directions admitting
-    a pair are counted per set (with that kernel's test).
+    ``slot_pair`` numbers each slot's (group, set), so that the directions admitting a pair
+    are counted per set (with the fast kernel's test). Where ``fast[slot_pair]`` the
+    single-variable pass is :func:`lagwise.core.variography.kernels.accumulate_horizontal`,
+    which takes the candidates (i, j) of one variable's row i (its own x-sorted ranks,
+    ``own_rank``) in spans of ``SPAN``: a pair one direction of the set admits goes to copy
+    (j - i - 1) mod ``COPIES`` of its table at once, a pair several directions admit to
+    copy 0 of each of their tables once the span's other pairs are in. Those are deferred
+    here until the member's next span or row (``room`` rows per member: ``SPAN`` times
+    the slots of a group).
 
     Returns the sums (p, tables, COPIES, S * kmax, ACCUMULATORS) as the main pass adds them,
     the sums (p, tables, S * kmax, ACCUMULATORS) and per-block sums (p, tables, nblocks,
@@ -113,6 +125,10 @@ def _accumulate_members(
     colocated = np.zeros(p, dtype=np.int64)
     for t in prange(nthreads):
         admitted = np.zeros(pairs_of_slots, dtype=np.int64)
+        pending = np.zeros((p, room, 2), dtype=np.int64)
+        deferred = np.zeros((p, room, 3))
+        waiting = np.zeros(p, dtype=np.int64)
+        span_of = np.zeros(p, dtype=np.int64)
         for i in range(n):
             xi = pts[i, 0]
             yi = pts[i, 1]
@@ -148,7 +164,8 @@ def _accumulate_members(
                     if c < 0:
                         continue
                     b = k * kmax + c
-                    single = fast[slot_set[k]] and admitted[slot_pair[k]] == 1
+                    fan = fast[slot_pair[k]]
+                    several = fan and admitted[slot_pair[k]] > 1
                     for q in range(group_start[g], group_start[g + 1]):
                         a = group_members[q]
                         if owner[a] != t:
@@ -156,8 +173,23 @@ def _accumulate_members(
                         v = table_of[i, a, slot_set[k]]
                         tail = vals[i, a] if sign > 0 else vals[j, a]
                         head = vals[j, a] if sign > 0 else vals[i, a]
-                        copy = (own_rank[j, a] - own_rank[i, a] - 1) & (K.COPIES - 1) if single else 0
-                        K.add_pair(main[a, v, copy], b, d, tail, head, mode, means[a])
+                        gap = own_rank[j, a] - own_rank[i, a] - 1
+                        span = gap // K.SPAN
+                        if waiting[a] > 0 and span != span_of[a]:
+                            _add_pending(main, a, pending, deferred, waiting[a], mode, means[a])
+                            waiting[a] = 0
+                        if several:
+                            u = waiting[a]
+                            pending[a, u, 0] = v
+                            pending[a, u, 1] = b
+                            deferred[a, u, 0] = d
+                            deferred[a, u, 1] = tail
+                            deferred[a, u, 2] = head
+                            waiting[a] = u + 1
+                            span_of[a] = span
+                        else:
+                            copy = gap & (K.COPIES - 1) if fan else 0
+                            K.add_pair(main[a, v, copy], b, d, tail, head, mode, means[a])
                         K.add_pair(totals[a, v], b, d, tail, head, mode, means[a])
                         li = labels[i, a]
                         lj = labels[j, a]
@@ -165,6 +197,10 @@ def _accumulate_members(
                             K.add_pair(blocks[a, v, li], b, d, tail, head, mode, means[a])
                         if lj >= 0 and lj != li:
                             K.add_pair(blocks[a, v, lj], b, d, tail, head, mode, means[a])
+            for a in range(p):
+                if waiting[a] > 0:
+                    _add_pending(main, a, pending, deferred, waiting[a], mode, means[a])
+                    waiting[a] = 0
     return main, totals, blocks, colocated
 
 
@@ -366,7 +402,9 @@ def _pass(coords, members, groups, in_group, plans, statistic, limits: Limits):
             labels[shared, a] = spatial_blocks(member.samples.coords, max(plan.blocks))
     table_of, tables = _table_of(plans, positions, n, threads)
     bins = classes.table.shape[0] * classes.kmax
-    if 8 * p * tables * (1 + K.COPIES + nblocks) * bins * K.ACCUMULATORS > limits.memory_budget_bytes // 2:
+    room = K.SPAN * max(sum(len(r) for r in plans[group[0]].resolved) for group in groups)
+    held = 8 * p * (tables * (1 + K.COPIES + nblocks) * bins * K.ACCUMULATORS + threads * room * 5)
+    if held > limits.memory_budget_bytes // 2:
         return None
     members_flat = np.array([a for group in groups for a in group], dtype=np.int64)
     group_start = np.cumsum([0] + [len(group) for group in groups]).astype(np.int64)
@@ -377,13 +415,18 @@ def _pass(coords, members, groups, in_group, plans, statistic, limits: Limits):
         load[owner[a]] += members[a].rows.size
     radius = classes.search_radius
     check_deadline()
-    first_plan = plans[groups[0][0]]
-    fast = np.array([layout(r, e).horizontal for r, e in zip(first_plan.resolved, first_plan.edges, strict=True)])
+    fast = np.array(
+        [
+            layout(r, e).fast
+            for group in groups
+            for r, e in zip(plans[group[0]].resolved, plans[group[0]].edges, strict=True)
+        ]
+    )
     main, totals, blocks, colocated = _accumulate_members(
         located.points, vals, in_group[located.order], np.array(slot_group, dtype=np.int64),
         np.array(slot_set, dtype=np.int64), np.array(slot_pair, dtype=np.int64), len(groups) * sets, fast, group_start, members_flat, classes.table, classes.edges, classes.counts,
         classes.inv_width, radius * radius, ACCUMULATION_MODE[statistic], np.array([q.prepared.mean for q in plans]),
-        table_of, own_rank, tables, labels, nblocks, owner, threads,
+        table_of, own_rank, tables, labels, nblocks, owner, threads, room,
     )  # fmt: skip
     check_deadline()
     most = tables // (sets * threads)
