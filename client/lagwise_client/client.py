@@ -600,6 +600,7 @@ class Lagwise:
         duplicates: str | None = None,
         thresholds: list[float] | None = None,
         blocks: Mapping[str, Any] | None = None,
+        variogram_map: Mapping[str, Any] | None = None,
     ) -> Analysis:
         """The whole chain in one call (``POST /v1/analyses``).
 
@@ -609,7 +610,9 @@ class Lagwise:
         ``figures`` any of variogram, variogram_map, cross_validation, prediction_map,
         standard_deviation_map, probability_map; ``variable`` ``{"name": "lead", "unit":
         "mg/kg"}`` and ``coordinate_unit`` (e.g. ``"m"``) label the figures;
-        ``figure_colour_scale`` auto, linear, log or quantile.
+        ``figure_colour_scale`` auto, linear, log or quantile; ``variogram_map`` ``{"method":
+        "auto" | "exact" | "grid", "tolerance": 0.01}`` for the variogram_map figure (the
+        method used is in ``parameters["variogram_map"]``).
         """
         arguments = dict(locals())
         staged = {k: v for k in ("thresholds", "blocks") if (v := arguments.pop(k)) is not None}

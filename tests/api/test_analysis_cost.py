@@ -155,3 +155,18 @@ def test_invalid_options_are_left_to_the_analysis_which_names_their_stage(client
     r = _post(client, document)
     assert r.status_code == 422 and r.json["type"] == "/problems/invalid-input", r.json
     assert r.json["errors"][0]["pointer"].startswith("/cross_validation/scheme")
+
+
+def test_map_pairs_count_by_the_map_stage_method():
+    """The exact map's pair work counts in full; auto at most up to LAGWISE_MAX_PAIRS (beyond it, it
+    takes the grid); the grid's FFT is not pair work."""
+    limits = Limits(max_pairs=100_000)
+    document = {"samples": _columns(2000), "figures": ["variogram_map"], "fit": {"anisotropy": "none"}}
+    seconds = {
+        method: _estimate({**document, "variogram_map": {"method": method}}, limits)[0].stages["variograms"]
+        for method in ("exact", "auto", "grid")
+    }
+    without = _estimate({**document, "figures": []}, limits)[0].stages["variograms"]
+    assert seconds["exact"] - without > 100_000 / analysis_cost.PAIRS_PER_SECOND
+    assert seconds["auto"] - without == pytest.approx(100_000 / analysis_cost.PAIRS_PER_SECOND)
+    assert seconds["grid"] == without

@@ -174,3 +174,27 @@ def test_raster_samples_from_rows_with_missing_cells():
     }
     with pytest.raises(TypeError, match="rectangle"):
         raster_samples([[1.0, 2.0], [3.0]])
+
+
+def test_analyze_sends_the_variogram_map_stage(monkeypatch):
+    """The map stage goes under its own name, as the other stages (no service needed)."""
+    from lagwise_client import Lagwise
+
+    sent = {}
+
+    def capture(self, method, path, body=None, **kwargs):
+        sent.update(path=path, body=body)
+        raise RuntimeError("captured")
+
+    monkeypatch.setattr(Lagwise, "request", capture)
+    with Lagwise("http://127.0.0.1:9") as lw, pytest.raises(RuntimeError, match="captured"):
+        lw.analyze(
+            x=[0.0, 1.0],
+            y=[0.0, 1.0],
+            values=[1.0, 2.0],
+            figures=["variogram_map"],
+            variogram_map={"method": "grid", "tolerance": 0.05},
+        )
+    assert sent["path"] == "/v1/analyses"
+    assert sent["body"]["variogram_map"] == {"method": "grid", "tolerance": 0.05}
+    assert sent["body"]["figures"] == ["variogram_map"]

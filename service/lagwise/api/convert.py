@@ -23,7 +23,14 @@ from ..core.kriging.systems import KrigingSpec
 from ..core.limits import Limits
 from ..core.modelling.fitting import SEMIVARIANCE_STATISTICS, points_from_rows
 from ..core.modelling.models import FAMILIES, Anisotropy, Structure, VariogramModel
-from ..core.stages import AreaSimulation, CrossValidationOptions, FitOptions, PredictionOptions, VariogramOptions
+from ..core.stages import (
+    AreaSimulation,
+    CrossValidationOptions,
+    FitOptions,
+    MapOptions,
+    PredictionOptions,
+    VariogramOptions,
+)
 from ..core.variography.directions import DirectionClass
 from ..core.variography.experimental import ScatterRequest
 from ..core.variography.gridded import DEFAULT_TOLERANCE
@@ -568,10 +575,12 @@ def analysis_options(document: dict) -> AnalysisOptions:
     if "prediction" in document:
         with pointers_under("/prediction"):
             prediction = prediction_options(document["prediction"], transform=document["transform"])
+    stage = document["variogram_map"]
     return AnalysisOptions(
         transform=document["transform"],
         variogram=variogram,
         fit=fit,
         cross_validation=cross_validation,
         prediction=prediction,
+        variogram_map=MapOptions(method=stage["method"], tolerance=stage["tolerance"]),
     )

@@ -932,6 +932,26 @@ class VariogramStage(Schema):
     min_pairs = StrictInteger(load_default=30, validate=validate.Range(min=1))
 
 
+class VariogramMapStage(Schema):
+    """The analysis's variogram map (drawn when figures names variogram_map), of the variogram stage's statistic."""
+
+    method = one_of(
+        METHODS,
+        load_default="auto",
+        metadata={
+            "description": "As for POST /v1/variogram-maps: exact (pair enumeration), grid (2-D samples binned on a "
+            "fine grid, every lag vector summed by FFT, with an error bound per cell; semivariance only), or auto "
+            "(default: exact unless over LAGWISE_MAX_PAIRS, then grid for 2-D samples and the semivariance). The "
+            "method used is parameters.variogram_map.method."
+        },
+    )
+    tolerance = finite(
+        load_default=DEFAULT_TOLERANCE,
+        validate=validate.Range(min=0, max=1, min_inclusive=False, max_inclusive=False),
+        metadata={"description": "Grid method: relative error bound above which a map cell is flagged."},
+    )
+
+
 class FitStage(Schema):
     families = AutoOrList(FAMILY_NAMES, load_default="auto")
     nugget = NuggetOption(load_default="fit")
@@ -1041,6 +1061,7 @@ class AnalysisRequest(SampleOptions):
     fit = fields.Nested(FitStage, load_default=lambda: FitStage().load({}))
     cross_validation = fields.Nested(CrossValidationStage, load_default=lambda: CrossValidationStage().load({}))
     prediction = fields.Nested(PredictionStage)
+    variogram_map = fields.Nested(VariogramMapStage, load_default=lambda: VariogramMapStage().load({}))
     figures = fields.List(
         one_of(FIGURES),
         load_default=list,

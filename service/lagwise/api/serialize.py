@@ -673,6 +673,23 @@ def _analysis_prediction(result, stage) -> View | None:
     )
 
 
+def _map_parameters(vmap, stage) -> dict | None:
+    """How the analysis's variogram map was found (None without one): the method asked for and the one used."""
+    if vmap is None:
+        return None
+    return {
+        "method_requested": stage.method,
+        "method": vmap.method,
+        "tolerance": stage.tolerance,
+        "statistic": vmap.statistic,
+        "cell_size": vmap.cell_size,
+        "cells": vmap.cells,
+        "typical_spacing": vmap.spacing,
+        "cell_convention": CELL_CONVENTION,
+        **({} if vmap.grid is None else {"grid": vmap.grid.as_dict()}),
+    }
+
+
 def analysis_view(result, samples: SampleSet, figures: dict, options, figure_options: dict) -> View:
     """What :class:`~lagwise.api.schemas.AnalysisResponse` dumps; ``options`` is the AnalysisOptions."""
     cv = result.cross_validation
@@ -723,6 +740,7 @@ def analysis_view(result, samples: SampleSet, figures: dict, options, figure_opt
             "envelope": result.envelope.as_dict(),
             "prediction_units": "original units (back-transformed)" if result.transform.kind != "none" else "values",
             "prediction": _prediction_parameters(result, options.prediction),
+            "variogram_map": _map_parameters(result.variogram_map, options.map_stage),
             "figures": list(figures),
             **{
                 name: figure_options.get(name)

@@ -48,17 +48,19 @@ from .stages import (
     ORDINARY,
     CrossValidationOptions,
     FitOptions,
+    MapOptions,
     PredictionOptions,
     VariogramOptions,
     run_cross_validation,
     run_fit,
+    run_map,
     run_prediction,
     run_variogram,
     validate_stages,
 )
 from .variography.directions import DirectionClass
 from .variography.experimental import ExperimentalVariogram
-from .variography.maps import VariogramMap, variogram_map
+from .variography.maps import VariogramMap
 from .variography.uncertainty import structure_evidence
 from .verdict import Verdict, judge
 
@@ -80,7 +82,11 @@ RATIO_STARTS = (0.3, 0.6)
 
 @dataclass(frozen=True)
 class AnalysisOptions:
-    """What to run: the transform and one options object per stage (see :mod:`.stages`)."""
+    """What to run: the transform and one options object per stage (see :mod:`.stages`).
+
+    ``with_map``: compute the variogram map (the ``variogram_map`` figure) by the
+    ``variogram_map`` stage's method, of the variogram stage's statistic (:attr:`map_stage`).
+    """
 
     transform: str = "none"
     variogram: VariogramOptions = VariogramOptions()
@@ -88,6 +94,12 @@ class AnalysisOptions:
     cross_validation: CrossValidationOptions = CrossValidationOptions()
     prediction: PredictionOptions | None = None
     with_map: bool = False
+    variogram_map: MapOptions = MapOptions()
+
+    @property
+    def map_stage(self) -> MapOptions:
+        """The map stage as run: its method and tolerance, the variogram stage's statistic."""
+        return replace(self.variogram_map, statistic=self.variogram.statistic)
 
 
 @dataclass(frozen=True)
@@ -172,6 +184,7 @@ def begin(samples: SampleSet, options: AnalysisOptions) -> WeightedStart:
             ("/fit", options.fit),
             ("/cross_validation", options.cross_validation),
             ("/prediction", prediction),
+            ("/variogram_map", options.map_stage if options.with_map else None),
         ],
     )
     return weighted_start(samples.coords, samples.values, options.transform, samples.source_index)
@@ -662,9 +675,12 @@ def analyse(
     vmap = None
     if options.with_map and samples.dimension >= 2:
         # Cells from the automatic rule (about the typical sample spacing), as /v1/variogram-maps.
-        vmap = variogram_map(
-            working, statistic=options.variogram.statistic, min_pairs=options.variogram.min_pairs, limits=limits
-        )
+        vmap = run_map(working, options.map_stage, min_pairs=options.variogram.min_pairs, limits=limits)
+        if vmap.grid is not None and vmap.grid.flagged:
+            notes.append(
+                f"{vmap.grid.flagged} variogram map cells have a grid error bound above {vmap.grid.tolerance:g} "
+                "(relative; parameters.variogram_map); variogram_map.method 'exact' computes them exactly"
+            )
     notes += list(fit.warnings)
     if start.declustering.warning:
         notes.append(start.declustering.warning)

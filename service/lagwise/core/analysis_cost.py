@@ -91,7 +91,9 @@ class AnalysisCost:
         return sum(self.stages.values())
 
 
-def _pair_seconds(samples: SampleSet, options: AnalysisOptions, variograms: int, directions: int) -> float:
+def _pair_seconds(
+    samples: SampleSet, options: AnalysisOptions, limits: Limits, variograms: int, directions: int
+) -> float:
     """The sweep's visits and the pairs within the search radius, for every variogram pass."""
     stage = options.variogram
     edges = validate_lags(stage.lags)
@@ -101,8 +103,10 @@ def _pair_seconds(samples: SampleSet, options: AnalysisOptions, variograms: int,
     within = estimate_pairs_within(coords, radius)
     passes = pair_passes(stage.lags, stage.statistic, False)
     pairs = passes * (variograms * (visited + within) + (visited + within * directions if directions else 0))
-    if options.with_map:
-        pairs += visited + within
+    if options.with_map and options.variogram_map.method != "grid":
+        # auto takes the pair engine only within LAGWISE_MAX_PAIRS; the grid's FFT is not counted in pairs
+        exact_map = visited + within
+        pairs += min(exact_map, limits.max_pairs) if options.variogram_map.method == "auto" else exact_map
     return pairs / PAIRS_PER_SECOND
 
 
@@ -178,7 +182,7 @@ def estimate(
     rate = SVG_MARKS_PER_SECOND * (PNG_ELEMENT_FACTOR if figure_format == "png" else 1)
     return AnalysisCost(
         {
-            "variograms": _pair_seconds(samples, options, 1 + len(drifts), fan_classes if wants_fan else 0),
+            "variograms": _pair_seconds(samples, options, limits, 1 + len(drifts), fan_classes if wants_fan else 0),
             "fits": FIT_SECONDS * fits,
             "refinements": refinements * evaluation / OPERATIONS_PER_SECOND,
             "cross_validation": validations / OPERATIONS_PER_SECOND,

@@ -55,11 +55,13 @@ from .modelling.fitting import (
     validate_fit_options,
 )
 from .modelling.models import VariogramModel, validate_model
+from .variography.bounds import BOUND_STATISTICS
 from .variography.directions import DirectionClass
 from .variography.experimental import ExperimentalVariogram, ScatterRequest, experimental_variogram
 from .variography.experimental import validate_options as validate_variogram_options
 from .variography.gridded import DEFAULT_TOLERANCE, METHODS
 from .variography.lags import LagRequest, validate_lags
+from .variography.maps import VariogramMap, variogram_map
 
 ANISOTROPY_CHOICES = ("auto", "none", "fit")
 ORDINARY = KrigingSpec()
@@ -128,6 +130,38 @@ class VariogramOptions:
         if isinstance(self.directions, str) and self.directions != "auto":
             raise InvalidInput.at("/directions", 'must be "auto" or a list of direction classes')
         validate_variogram_options(samples, self.statistic, self.min_pairs, self.classes)
+
+
+@dataclass(frozen=True)
+class MapOptions:
+    """Variogram map stage (an analysis's ``variogram_map`` figure).
+
+    ``method`` and ``tolerance`` as for ``POST /v1/variogram-maps``
+    (:func:`~lagwise.core.variography.maps.variogram_map`): ``auto`` (default) takes the
+    exact path unless its pair work would exceed ``LAGWISE_MAX_PAIRS``. ``statistic`` is the
+    statistic mapped; an analysis maps its variogram stage's
+    (:meth:`lagwise.core.analysis.AnalysisOptions.map_stage`).
+    """
+
+    method: str = "auto"
+    tolerance: float = DEFAULT_TOLERANCE
+    statistic: str = "semivariance"
+
+    def validate(self, samples: SampleSet) -> None:
+        if self.method not in METHODS:
+            raise InvalidInput.at("/method", f"must be one of {', '.join(METHODS)}")
+        if not 0.0 < self.tolerance < 1.0:
+            raise InvalidInput.at("/tolerance", "must lie strictly between 0 and 1")
+        if self.method != "grid":
+            return
+        if samples.dimension != 2:
+            raise InvalidInput.at("/method", "the grid method needs 2-D samples")
+        if self.statistic not in BOUND_STATISTICS:
+            raise InvalidInput.at(
+                "/method",
+                f"the grid method bounds its error for {', '.join(BOUND_STATISTICS)} only, not the variogram "
+                f"statistic {self.statistic!r}; use method 'exact' or 'auto'",
+            )
 
 
 @dataclass(frozen=True)
@@ -296,6 +330,27 @@ def run_variogram(
         statistic=stage.statistic,
         min_pairs=stage.min_pairs,
         pairs_for_class=stage.pairs_for_class,
+        limits=limits,
+        declustering=declustering,
+        method=stage.method,
+        tolerance=stage.tolerance,
+    )
+
+
+def run_map(
+    samples: SampleSet,
+    stage: MapOptions,
+    *,
+    min_pairs: int,
+    limits: Limits,
+    declustering: Declustering | None = None,
+) -> VariogramMap:
+    """The variogram map of ``samples`` by the stage's method (cells by the automatic rule, as
+    ``POST /v1/variogram-maps`` without ``cell_size`` and ``cells``)."""
+    return variogram_map(
+        samples,
+        statistic=stage.statistic,
+        min_pairs=min_pairs,
         limits=limits,
         declustering=declustering,
         method=stage.method,
