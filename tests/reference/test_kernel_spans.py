@@ -129,3 +129,19 @@ def test_automatic_classes_of_an_elongated_survey(statistic):
         for row, (n, value) in zip(rows, expected, strict=True):
             if n:
                 assert row.value == pytest.approx(value, rel=1e-9, abs=1e-12)
+
+
+@pytest.mark.parametrize("seed", [4, 5])
+def test_columns_thinner_than_the_radius_with_a_line_along_y(seed):
+    """The column sweep: a cluster cut into about 30 columns narrower than the search radius, a line
+    of samples sharing one x (one column, sorted along y), repeated locations; omnidirectional and
+    four sectors of 22.5 degrees (the four-direction loop), equal-width and irregular classes."""
+    rng = np.random.default_rng(seed)
+    cluster = rng.uniform(0.0, 100.0, (1700, 2))
+    line = np.column_stack([np.full(300, 50.0), rng.uniform(0.0, 100.0, 300)])
+    coords = np.vstack([cluster, line, cluster[:5]])
+    values = rng.normal(size=coords.shape[0])
+    fan = [DirectionClass(a, 22.5) for a in (0.0, 45.0, 90.0, 135.0)]
+    for edges in (np.linspace(0.0, 20.25, 10), np.array([0.0, 0.5, 3.0, 7.5, 12.0, 20.25])):
+        _check(coords, values, [DirectionClass()], [edges])
+        _check(coords, values, fan, [edges] * 4)

@@ -73,7 +73,8 @@ def compile_kernels() -> None:
     K.accumulate_classes.compile(f"({a2}, {a1}, {f8}, {f8}, {a2}, {a2}, {i8}[::1], {a1}, {i8}, {i8}, {rows})")
     K.accumulate_map.compile(f"({a2}, {a1}, {f8}, {f8}, {i8}, {i8}, {i8}, {rows})")
     K.accumulate_horizontal.compile(
-        f"({a2}, {a1}, {f8}, {f8}, {a2}, {a2}, {i8}[:, ::1], {f8}, boolean, {f8}, {f8}, {i8}, {i8}, {rows})"
+        f"({a2}, {i8}[::1], {i8}[::1], {a1}, {f8}, {f8}, {a2}, {a2}, {i8}[:, ::1], {f8}, boolean, {f8}, {f8}, "
+        f"{i8}, {i8}, {rows})"
     )
     K.collect_pairs.compile(
         f"({a2}, {a1}, {f8}, {a2}, {a2}, {i8}[::1], {a1}, {i8}[::1], {i8}[::1], {a1}, {i8}, {i8}, {a1}, {a1}, {i8}[::1], {rows})"

@@ -248,6 +248,70 @@ def class_of(padded, lut, k, m, d, kmax):
 
 
 @njit(cache=True)
+def bin_span_four(cols, i, start, stop, max_d2, sectors, padded, lut, inv_cell, origin, inv_step, kmax, scratch, marks):
+    """:func:`bin_span` for up to four directions without band sharing equal-width classes: the
+    separations, the class (floor division) and the four angle tests in one SIMD loop; the exact
+    lookup again where a distance lies within :data:`UNSURE` widths of an edge."""
+    xs, ys, zs, vs = cols[0, start:stop], cols[1, start:stop], cols[2, start:stop], cols[3, start:stop]
+    sx, sy, sd, sv = scratch[0], scratch[1], scratch[2], scratch[3]
+    bins, passes, best = marks[0], marks[1], marks[2]
+    xi = cols[0, i]
+    yi = cols[1, i]
+    zi = cols[2, i]
+    vi = cols[3, i]
+    ux0, uy0, c0 = sectors[0, 0], sectors[1, 0], sectors[2, 0]
+    ux1, uy1, c1 = sectors[0, 1], sectors[1, 1], sectors[2, 1]
+    ux2, uy2, c2 = sectors[0, 2], sectors[1, 2], sectors[2, 2]
+    ux3, uy3, c3 = sectors[0, 3], sectors[1, 3], sectors[2, 3]
+    k1, k2, k3, none = np.int32(1), np.int32(2), np.int32(3), np.int32(0)
+    span = stop - start
+    stride = np.int32(kmax + 1)
+    dropped = np.int32(kmax)
+    top = np.float64(kmax)
+    zero = 0
+    unsure = 0
+    several = 0
+    for q in range(span):
+        dx = xs[q] - xi
+        dy = ys[q] - yi
+        dz = zs[q] - zi
+        hh2 = dx * dx + dy * dy
+        d2 = hh2 + dz * dz
+        d = math.sqrt(d2)
+        sx[q] = dx
+        sy[q] = dy
+        sd[q] = d
+        sv[q] = vs[q] - vi
+        zero += np.int32(d2 == 0.0)
+        t = (d - origin) * inv_step
+        f = np.floor(t)
+        frac = t - f
+        unsure += np.int32((frac < UNSURE) | (frac > 1.0 - UNSURE))
+        a0 = within(dx, dy, hh2, ux0, uy0, c0)
+        a1 = within(dx, dy, hh2, ux1, uy1, c1)
+        a2 = within(dx, dy, hh2, ux2, uy2, c2)
+        a3 = within(dx, dy, hh2, ux3, uy3, c3)
+        count = np.int32(a0) + np.int32(a1) + np.int32(a2) + np.int32(a3)
+        k = k3 if a3 else (k2 if a2 else (k1 if a1 else none))
+        member = (t >= 0.0) & (t < top) & (d2 > 0.0) & (d2 <= max_d2) & (count == 1)
+        passes[q] = count
+        best[q] = k
+        bins[q] = k * stride + (np.int32(f) if member else dropped)
+        several += np.int32(count > 1)
+    if unsure > 0:
+        last = np.float64(lut.shape[1] - 1)
+        for q in range(span):
+            dx = xs[q] - xi
+            dy = ys[q] - yi
+            dz = zs[q] - zi
+            d2 = dx * dx + dy * dy + dz * dz
+            c = class_of(padded, lut, 0, np.int64(min(sd[q] * inv_cell, last)), sd[q], kmax)
+            member = (d2 > 0.0) & (d2 <= max_d2) & (passes[q] == 1)
+            bins[q] = best[q] * stride + (np.int32(c) if member else dropped)
+    return zero, several
+
+
+@njit(cache=True)
 def bin_span(
     cols, i, start, stop, max_d2, sectors, omni, padded, lut, inv_cell, shared, origin, inv_step, kmax, scratch, marks
 ):
@@ -268,6 +332,9 @@ def bin_span(
     and, for equal-width classes, the class by floor division, and the directions are tested four
     to a loop.
     """
+    if shared and inv_step > 0.0 and not omni and sectors.shape[1] == 4 and np.all(sectors[3] == np.inf):
+        return bin_span_four(cols, i, start, stop, max_d2, sectors, padded, lut, inv_cell, origin, inv_step, kmax,
+                             scratch, marks)  # fmt: skip
     xs, ys, zs, vs = cols[0, start:stop], cols[1, start:stop], cols[2, start:stop], cols[3, start:stop]
     sx, sy, sd, sv = scratch[0], scratch[1], scratch[2], scratch[3]
     bins, passes, best = marks[0], marks[1], marks[2]
@@ -469,11 +536,46 @@ def scatter_span(table, copy_rows, cols, i, start, stop, dirs, mode, mean, scrat
         add_oriented(table, b, sd[q], vi, vals[j], scratch[0, q], scratch[1, q], dz, dirs[k, 0], dirs[k, 1], mode, mean)
 
 
+@njit(cache=True)
+def add_range(table, copy_rows, cols, i, lo, hi, max_d2, sectors, omni, dirs, padded, lut, inv_cell, shared,
+              origin, inv_step, kmax, mode, mean, scratch, marks):  # fmt: skip
+    """Add the pairs (i, j), j in [lo, hi), of the column-ordered samples to their bins, :data:`SPAN`
+    candidates at a time (:func:`bin_span`, :func:`scatter_span`, :func:`add_shared_pair`);
+    returns the co-located pairs among them."""
+    zero_pairs = 0
+    for start in range(lo, hi, SPAN):
+        stop = min(hi, start + SPAN)
+        zero, several = bin_span(
+            cols, i, start, stop, max_d2, sectors, omni, padded, lut, inv_cell, shared, origin, inv_step, kmax,
+            scratch, marks,
+        )  # fmt: skip
+        zero_pairs += zero
+        scatter_span(table, copy_rows, cols, i, start, stop, dirs, mode, mean, scratch, marks)
+        for q in range(stop - start if several > 0 else 0):
+            if marks[1, q] > 1:
+                add_shared_pair(
+                    table, cols, i, start + q, scratch[2, q], max_d2, dirs, padded, lut, inv_cell, shared, kmax,
+                    mode, mean,
+                )  # fmt: skip
+    return zero_pairs
+
+
 @njit(parallel=True, cache=True)
 def accumulate_horizontal(
-    pts, vals, mean, max_d2, dirs, padded, lut, inv_cell, shared, origin, inv_step, mode, nthreads, first, last
-):
-    """Fast path of :func:`accumulate_classes` (rows [first, last)) for classes without dip or vertical band.
+    cols, column, starts, lowest, mean, max_d2, dirs, padded, lut, inv_cell, shared, origin, inv_step, mode, nthreads,
+    first, last,
+):  # fmt: skip
+    """Fast path of :func:`accumulate_classes` (rows [first, last) of the column order) for classes
+    without dip or vertical band.
+
+    Samples arrive in *column order* (:func:`lagwise.core.variography.pairs.columns`): cut along x
+    into columns (``column[r]`` the column of row r, ``starts`` their first rows, ``lowest`` their
+    smallest x) and sorted by y within a column; ``cols`` holds the rows x, y, z and centred value.
+    Sample i visits the later samples of its own column up to y_i + radius, then, in every later
+    column whose smallest x lies within the radius (at gap g along x), the contiguous run of samples
+    with y within sqrt(radius^2 - g^2) of y_i (two binary searches). Every pair is visited once, and
+    the candidates outside the radius are only those of the runs' corners, against the whole strip
+    of the x-sorted sweep.
 
     Class lookup: ``lut[k, m]`` is ``searchsorted(edges_k, m * cell, "right") - 1`` for
     fine cells at most half the narrowest class wide (callers use :func:`accumulate_classes`
@@ -485,27 +587,28 @@ def accumulate_horizontal(
     in a SIMD loop, the lookup table serving only spans with a distance within
     :data:`UNSURE` widths of an edge.
 
-    Each sample i takes its candidates j (later in x, within the radius along x) in spans
-    of :data:`SPAN`: :func:`bin_span` finds every pair's bin in loops without branches
-    over contiguous columns (compiled to SIMD instructions), pairs outside the radius,
-    the classes or every direction going to a dropped bin ``kmax`` of their direction;
-    :func:`scatter_span` then adds them to the thread's table, in :data:`COPIES`
-    interleaved copies. Pairs admitted by several directions (only where sectors overlap
-    or touch) are added to each by :func:`add_shared_pair`. Returns the table
-    (ndir * kmax, ACCUMULATORS) and co-located pairs.
+    The runs are taken in spans of :data:`SPAN` (:func:`add_range`): :func:`bin_span` finds every
+    pair's bin in loops without branches over contiguous columns (compiled to SIMD instructions),
+    pairs outside the radius, the classes or every direction going to a dropped bin ``kmax`` of
+    their direction; :func:`scatter_span` then adds them to the thread's table, in :data:`COPIES`
+    interleaved copies. Pairs admitted by several directions (only where sectors overlap or touch)
+    are added to each by :func:`add_shared_pair`. Blocks of :data:`ROW_BLOCK` rows are dealt to the
+    threads in turn. Returns the table (ndir * kmax, ACCUMULATORS) and co-located pairs.
     """
     ndir = dirs.shape[0]
     kmax = padded.shape[1] - 3
     stride = kmax + 1
     copy_rows = ndir * stride
+    ncol = lowest.shape[0]
     tables = np.zeros((nthreads, COPIES * copy_rows, ACCUMULATORS))
     colocated = np.zeros(nthreads, dtype=np.int64)
     nblocks = (last - first + ROW_BLOCK - 1) // ROW_BLOCK
-    cols = np.empty((4, pts.shape[0]))
-    cols[:3] = pts.T
-    cols[3] = vals
     xs = cols[0]
-    radius = math.sqrt(max_d2)
+    ys = cols[1]
+    # The runs' bounds take a margin of 1e-12 radius^2 so that rounding never leaves out a pair
+    # whose computed distance is within the radius (bin_span tests each candidate exactly).
+    margin = 1e-12 * max_d2
+    reach = math.sqrt(max_d2 + margin)
     # Directions four to a loop; the padding directions admit nothing (cos^2 = inf).
     sectors = np.full((4, (ndir + 3) // 4 * 4), np.inf)
     sectors[0, :ndir] = dirs[:, 0]
@@ -520,47 +623,30 @@ def accumulate_horizontal(
         marks = np.empty((3, SPAN), dtype=np.int32)
         for blk in range(t, nblocks, nthreads):
             for i in range(first + blk * ROW_BLOCK, min(last, first + (blk + 1) * ROW_BLOCK)):
-                end = np.searchsorted(xs, xs[i] + radius, side="right")
-                for start in range(i + 1, end, SPAN):
-                    stop = min(end, start + SPAN)
-                    zero, several = bin_span(
-                        cols,
-                        i,
-                        start,
-                        stop,
-                        max_d2,
-                        sectors,
-                        omni,
-                        padded,
-                        lut,
-                        inv_cell,
-                        shared,
-                        origin,
-                        inv_step,
-                        kmax,
-                        scratch,
-                        marks,
-                    )
-                    zero_pairs += zero
-                    scatter_span(table, copy_rows, cols, i, start, stop, dirs, mode, mean, scratch, marks)
-                    for q in range(stop - start if several > 0 else 0):
-                        if marks[1, q] > 1:
-                            add_shared_pair(
-                                table,
-                                cols,
-                                i,
-                                start + q,
-                                scratch[2, q],
-                                max_d2,
-                                dirs,
-                                padded,
-                                lut,
-                                inv_cell,
-                                shared,
-                                kmax,
-                                mode,
-                                mean,
-                            )
+                c = column[i]
+                xi = xs[i]
+                yi = ys[i]
+                stop = i + 1 + np.searchsorted(ys[i + 1 : starts[c + 1]], yi + reach, side="right")
+                zero_pairs += add_range(
+                    table, copy_rows, cols, i, i + 1, stop, max_d2, sectors, omni, dirs, padded, lut, inv_cell,
+                    shared, origin, inv_step, kmax, mode, mean, scratch, marks,
+                )  # fmt: skip
+                for c2 in range(c + 1, ncol):
+                    gap = lowest[c2] - xi
+                    if gap * gap > max_d2:
+                        break
+                    s0 = starts[c2]
+                    s1 = starts[c2 + 1]
+                    if s1 == s0:
+                        continue
+                    h = math.sqrt(max(max_d2 - gap * gap, 0.0) + margin)
+                    run = ys[s0:s1]
+                    lo = s0 + np.searchsorted(run, yi - h, side="left")
+                    hi = s0 + np.searchsorted(run, yi + h, side="right")
+                    zero_pairs += add_range(
+                        table, copy_rows, cols, i, lo, hi, max_d2, sectors, omni, dirs, padded, lut, inv_cell,
+                        shared, origin, inv_step, kmax, mode, mean, scratch, marks,
+                    )  # fmt: skip
         colocated[t] = zero_pairs
     out = tables.sum(axis=0)
     result = np.zeros((ndir * kmax, ACCUMULATORS))

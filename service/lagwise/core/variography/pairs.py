@@ -21,6 +21,8 @@ from .directions import HAS_DIP, VBAND2, DirectionClass, direction_table
 ESTIMATE_SUBSET = 2000
 CHUNK_VISITS = 50_000_000  # visited pairs per kernel call (about half a second): the deadline is checked between calls
 MAX_LOOKUP_CELLS = 1 << 16
+COLUMNS_PER_RADIUS = 16  # columns of the fast kernel across one search radius
+COLUMN_SAMPLES = 64  # fewest samples per column on average
 
 
 @dataclass(frozen=True)
@@ -208,18 +210,78 @@ def in_chunks(visits: np.ndarray, run) -> None:
     check_deadline()
 
 
+@dataclass(frozen=True)
+class Columns:
+    """Samples cut along x into columns and sorted by y within each, for
+    :func:`lagwise.core.variography.kernels.accumulate_horizontal`.
+
+    Attributes
+    ----------
+    cols : ndarray, shape (4, n)
+        Rows x, y, z and centred value, in column order.
+    column : ndarray of int64, shape (n,)
+        Column of each row (non-decreasing).
+    starts : ndarray of int64, shape (columns + 1,)
+        First row of each column; the last entry is n.
+    lowest : ndarray, shape (columns,)
+        Smallest x of each column (an empty column takes the next sample's x).
+    order : ndarray of int64, shape (n,)
+        Row of :class:`PreparedSamples` (x order) at each position of the column order.
+    """
+
+    cols: np.ndarray
+    column: np.ndarray
+    starts: np.ndarray
+    lowest: np.ndarray
+    order: np.ndarray
+
+
+def columns(prepared: PreparedSamples, radius: float) -> Columns:
+    """Cut the x-sorted samples into columns of width radius / :data:`COLUMNS_PER_RADIUS` (fewer
+    when a column would hold under :data:`COLUMN_SAMPLES` samples on average), y-sorted within each."""
+    x, y = prepared.points[:, 0], prepared.points[:, 1]
+    n = x.size
+    extent = float(x[-1] - x[0]) if n else 0.0
+    count = 1
+    if extent > 0.0 and radius > 0.0:
+        count = int(max(1, min(n // COLUMN_SAMPLES, np.ceil(COLUMNS_PER_RADIUS * extent / radius))))
+    column = (
+        np.minimum(((x - x[0]) * (count / extent)).astype(np.int64), count - 1)
+        if count > 1
+        else np.zeros(n, dtype=np.int64)
+    )
+    order = np.lexsort((y, column)).astype(np.int64)
+    starts = np.searchsorted(column, np.arange(count + 1)).astype(np.int64)
+    cols = np.empty((4, n))
+    cols[:3] = prepared.points[order].T
+    cols[3] = prepared.values[order]
+    return Columns(
+        cols=cols,
+        column=np.ascontiguousarray(column[order]),
+        starts=starts,
+        lowest=np.ascontiguousarray(x[np.minimum(starts[:-1], max(n - 1, 0))]),
+        order=order,
+    )
+
+
 def accumulate(prepared: PreparedSamples, classes: ClassLayout, mode: int) -> tuple[np.ndarray, int]:
     """Run the pair kernel over ranges of rows; returns the table (ndir, kmax, ACCUMULATORS) and co-located pairs."""
     radius = classes.search_radius
     visits = sweep_visits(prepared.points[:, 0], radius)
     total = np.zeros((classes.table.shape[0] * classes.kmax, K.ACCUMULATORS))
     colocated = [0]
+    if classes.fast:
+        cut = columns(prepared, radius)
+        # The chunks' sizes are bounded by the x-sorted sweep's visits (more than the columns take).
+        visits = visits[cut.order]
 
     def run(first: int, last: int) -> None:
         if classes.fast:
             table, zero = K.accumulate_horizontal(
-                prepared.points,
-                prepared.values,
+                cut.cols,
+                cut.column,
+                cut.starts,
+                cut.lowest,
                 prepared.mean,
                 radius * radius,
                 classes.table,

@@ -15,8 +15,13 @@ How:
 * One sweep over all locations (sorted by x) visits every pair once; each (group,
   direction set, direction) is a *slot* of the class layout with its own edges. A
   pair enters a slot when both ends belong to the slot's group, and is then added to
-  the sums of every variable of the group, in total and for the spatial blocks of its
-  two ends (the variable's own blocks).
+  the jackknife's sums of every variable of the group, in total and for the spatial
+  blocks of its two ends (the variable's own blocks), in the order of the
+  single-variable jackknife pass.
+* The variograms' own sums come from each variable's single-variable pass
+  (:func:`lagwise.core.variography.pairs.accumulate`): its fast kernel visits the pairs
+  in an order of its own samples' columns, which one sweep over all locations cannot
+  follow for every variable at once.
 """
 
 from __future__ import annotations
@@ -48,7 +53,7 @@ from .experimental import (
     validate_options,
 )
 from .lags import LagRequest
-from .pairs import CHUNK_VISITS, PreparedSamples, layout, prepare, row_chunks, sweep_visits
+from .pairs import CHUNK_VISITS, PreparedSamples, accumulate, layout, prepare, row_chunks, sweep_visits
 from .statistics import ACCUMULATION_MODE
 from .uncertainty import UncertaintyPlan, from_block_sums, plan_blocks, spatial_blocks, undefined
 
@@ -74,21 +79,13 @@ class Member:
     declustering: Declustering | None = None
 
 
-@njit(cache=True)
-def _add_pending(main, a, pending, values, count, mode, mean):
-    """Add member a's deferred pairs (rows of ``pending``: table, bin; of ``values``: distance,
-    tail, head) to copy 0 of its tables, in the order they were deferred."""
-    for u in range(count):
-        table, b = pending[a, u, 0], pending[a, u, 1]
-        K.add_pair(main[a, table, 0], b, values[a, u, 0], values[a, u, 1], values[a, u, 2], mode, mean)
-
-
 @njit(parallel=True, cache=True)
 def _accumulate_members(
-    pts, vals, in_group, slot_group, slot_set, slot_pair, pairs_of_slots, fast, group_start, group_members, dirs,
-    edges, nk, inv_width, max_d2, mode, means, table_of, own_rank, tables, labels, nblocks, owner, nthreads, room,
+    pts, vals, in_group, slot_group, slot_set, group_start, group_members, dirs, edges, nk, inv_width, max_d2, mode, means,
+    table_of, tables, labels, nblocks, owner, nthreads,
 ):  # fmt: skip
-    """Sums of every pair per variable, slot and *table*, in the order a single-variable pass adds them.
+    """Jackknife sums of every pair per variable, slot and *table*, in the order the single-variable
+    jackknife pass (:func:`lagwise.core.variography.kernels.accumulate_blocks`) adds them.
 
     ``vals`` (n, p) centred per variable (anything where not measured); ``in_group`` (n, G)
     1 where the location belongs to group g; ``slot_group`` and ``slot_set`` (S,) each slot's
@@ -99,18 +96,7 @@ def _accumulate_members(
     none). Thread t adds the variables with ``owner`` t, every pair in increasing order of
     its earlier end, then of its later end, as the single-variable kernels do per thread.
 
-    ``slot_pair`` numbers each slot's (group, set), so that the directions admitting a pair
-    are counted per set (with the fast kernel's test). Where ``fast[slot_pair]`` the
-    single-variable pass is :func:`lagwise.core.variography.kernels.accumulate_horizontal`,
-    which takes the candidates (i, j) of one variable's row i (its own x-sorted ranks,
-    ``own_rank``) in spans of ``SPAN``: a pair one direction of the set admits goes to copy
-    (j - i - 1) mod ``COPIES`` of its table at once, a pair several directions admit to
-    copy 0 of each of their tables once the span's other pairs are in. Those are deferred
-    here until the member's next span or row (``room`` rows per member: ``SPAN`` times
-    the slots of a group).
-
-    Returns the sums (p, tables, COPIES, S * kmax, ACCUMULATORS) as the main pass adds them,
-    the sums (p, tables, S * kmax, ACCUMULATORS) and per-block sums (p, tables, nblocks,
+    Returns the sums (p, tables, S * kmax, ACCUMULATORS) and per-block sums (p, tables, nblocks,
     S * kmax, ACCUMULATORS) as the jackknife pass adds them, and the co-located pairs per variable.
     """
     n = pts.shape[0]
@@ -119,16 +105,10 @@ def _accumulate_members(
     groups = in_group.shape[1]
     kmax = edges.shape[1] - 1
     bins = slots * kmax
-    main = np.zeros((p, tables, K.COPIES, bins, K.ACCUMULATORS))
     totals = np.zeros((p, tables, bins, K.ACCUMULATORS))
     blocks = np.zeros((p, tables, nblocks, bins, K.ACCUMULATORS))
     colocated = np.zeros(p, dtype=np.int64)
     for t in prange(nthreads):
-        admitted = np.zeros(pairs_of_slots, dtype=np.int64)
-        pending = np.zeros((p, room, 2), dtype=np.int64)
-        deferred = np.zeros((p, room, 3))
-        waiting = np.zeros(p, dtype=np.int64)
-        span_of = np.zeros(p, dtype=np.int64)
         for i in range(n):
             xi = pts[i, 0]
             yi = pts[i, 1]
@@ -150,12 +130,6 @@ def _accumulate_members(
                                     colocated[group_members[q]] += 1
                     continue
                 d = math.sqrt(d2)
-                admitted[:] = 0
-                for k in range(slots):
-                    proj = dx * dirs[k, 0] + dy * dirs[k, 1]
-                    perp = dx * dirs[k, 1] - dy * dirs[k, 0]
-                    if (proj * proj - (dx * dx + dy * dy) * dirs[k, 11] >= 0.0) & (perp * perp <= dirs[k, 3]):
-                        admitted[slot_pair[k]] += 1
                 for k in range(slots):
                     g = slot_group[k]
                     if in_group[i, g] * in_group[j, g] == 0.0:
@@ -164,8 +138,6 @@ def _accumulate_members(
                     if c < 0:
                         continue
                     b = k * kmax + c
-                    fan = fast[slot_pair[k]]
-                    several = fan and admitted[slot_pair[k]] > 1
                     for q in range(group_start[g], group_start[g + 1]):
                         a = group_members[q]
                         if owner[a] != t:
@@ -173,23 +145,6 @@ def _accumulate_members(
                         v = table_of[i, a, slot_set[k]]
                         tail = vals[i, a] if sign > 0 else vals[j, a]
                         head = vals[j, a] if sign > 0 else vals[i, a]
-                        gap = own_rank[j, a] - own_rank[i, a] - 1
-                        span = gap // K.SPAN
-                        if waiting[a] > 0 and span != span_of[a]:
-                            _add_pending(main, a, pending, deferred, waiting[a], mode, means[a])
-                            waiting[a] = 0
-                        if several:
-                            u = waiting[a]
-                            pending[a, u, 0] = v
-                            pending[a, u, 1] = b
-                            deferred[a, u, 0] = d
-                            deferred[a, u, 1] = tail
-                            deferred[a, u, 2] = head
-                            waiting[a] = u + 1
-                            span_of[a] = span
-                        else:
-                            copy = gap & (K.COPIES - 1) if fan else 0
-                            K.add_pair(main[a, v, copy], b, d, tail, head, mode, means[a])
                         K.add_pair(totals[a, v], b, d, tail, head, mode, means[a])
                         li = labels[i, a]
                         lj = labels[j, a]
@@ -197,11 +152,7 @@ def _accumulate_members(
                             K.add_pair(blocks[a, v, li], b, d, tail, head, mode, means[a])
                         if lj >= 0 and lj != li:
                             K.add_pair(blocks[a, v, lj], b, d, tail, head, mode, means[a])
-            for a in range(p):
-                if waiting[a] > 0:
-                    _add_pending(main, a, pending, deferred, waiting[a], mode, means[a])
-                    waiting[a] = 0
-    return main, totals, blocks, colocated
+    return totals, blocks, colocated
 
 
 @njit(cache=True)
@@ -312,15 +263,17 @@ def shared_variograms(
     swept = _pass(coords, members, groups, in_group, plans, statistic, limits)
     if swept is None:
         return None
-    sums, plain, by_block, colocated, offsets, kmax = swept
+    plain, by_block, colocated, offsets, kmax = swept
     group_of = {a: g for g, group in enumerate(groups) for a in group}
+    mode = ACCUMULATION_MODE[statistic]
     out = []
     for a, member in enumerate(members):
         plan = plans[a]
         assert plan is not None
         results = []
         for s, directions in enumerate(direction_sets):
-            parts = (sums[a, s], plain[a, s], by_block[a, s], offsets[group_of[a]][s], kmax, int(colocated[a]))
+            own, _ = accumulate(plan.prepared, layout(plan.resolved[s], plan.edges[s]), mode)
+            parts = (own, plain[a, s], by_block[a, s], offsets[group_of[a]][s], kmax, int(colocated[a]))
             found = _variogram(member, plan, s, parts, summaries[a], declusterings[a], statistic, min_pairs, lags)
             if found is None:
                 # Fewer blocks for this set than the pass kept: computed alone (rare: very many classes).
@@ -360,15 +313,14 @@ def _table_of(plans, positions, n: int, threads: int) -> tuple[np.ndarray, int]:
 
 
 def _pass(coords, members, groups, in_group, plans, statistic, limits: Limits):
-    """Run the sweep over every slot; returns, per member, the sums and block sums as its
-    single-variable passes would hold them, the co-located pairs, each group's first slot per
+    """Run the sweep over every slot; returns, per member, the jackknife's sums and block sums as its
+    single-variable pass would hold them, the co-located pairs, each group's first slot per
     direction set and the layout's largest class count (None when the tables would not fit
     half the memory budget)."""
     slot_dirs: list = []
     slot_edges: list = []
     slot_group: list[int] = []
     slot_set: list[int] = []
-    slot_pair: list[int] = []
     offsets: list[list[int]] = []
     for g, group in enumerate(groups):
         plan = plans[group[0]]
@@ -379,7 +331,6 @@ def _pass(coords, members, groups, in_group, plans, statistic, limits: Limits):
             slot_edges.extend(edges)
             slot_group.extend([g] * len(resolved))
             slot_set.extend([s] * len(resolved))
-            slot_pair.extend([len(offsets) * len(plan.edges) + s] * len(resolved))
         offsets.append(starts)
     classes = layout(slot_dirs, slot_edges)
     p, n, sets = len(members), coords.shape[0], len(plans[0].edges)
@@ -389,7 +340,6 @@ def _pass(coords, members, groups, in_group, plans, statistic, limits: Limits):
     rank[located.order] = np.arange(n)
     vals = np.zeros((n, p))
     labels = np.full((n, p), -1, dtype=np.int64)
-    own_rank = np.zeros((n, p), dtype=np.int64)
     positions = []
     nblocks = max(1, max(max(plan.blocks) for plan in plans))
     for a, member in enumerate(members):
@@ -397,14 +347,11 @@ def _pass(coords, members, groups, in_group, plans, statistic, limits: Limits):
         shared = rank[member.rows]
         vals[shared, a] = member.samples.values - plan.prepared.mean
         positions.append(shared[plan.prepared.order])
-        own_rank[shared[plan.prepared.order], a] = np.arange(member.rows.size)
         if max(plan.blocks) > 0:
             labels[shared, a] = spatial_blocks(member.samples.coords, max(plan.blocks))
     table_of, tables = _table_of(plans, positions, n, threads)
     bins = classes.table.shape[0] * classes.kmax
-    room = K.SPAN * max(sum(len(r) for r in plans[group[0]].resolved) for group in groups)
-    held = 8 * p * (tables * (1 + K.COPIES + nblocks) * bins * K.ACCUMULATORS + threads * room * 5)
-    if held > limits.memory_budget_bytes // 2:
+    if 8 * p * tables * (1 + nblocks) * bins * K.ACCUMULATORS > limits.memory_budget_bytes // 2:
         return None
     members_flat = np.array([a for group in groups for a in group], dtype=np.int64)
     group_start = np.cumsum([0] + [len(group) for group in groups]).astype(np.int64)
@@ -415,50 +362,37 @@ def _pass(coords, members, groups, in_group, plans, statistic, limits: Limits):
         load[owner[a]] += members[a].rows.size
     radius = classes.search_radius
     check_deadline()
-    fast = np.array(
-        [
-            layout(r, e).fast
-            for group in groups
-            for r, e in zip(plans[group[0]].resolved, plans[group[0]].edges, strict=True)
-        ]
-    )
-    main, totals, blocks, colocated = _accumulate_members(
+    totals, blocks, colocated = _accumulate_members(
         located.points, vals, in_group[located.order], np.array(slot_group, dtype=np.int64),
-        np.array(slot_set, dtype=np.int64), np.array(slot_pair, dtype=np.int64), len(groups) * sets, fast, group_start, members_flat, classes.table, classes.edges, classes.counts,
-        classes.inv_width, radius * radius, ACCUMULATION_MODE[statistic], np.array([q.prepared.mean for q in plans]),
-        table_of, own_rank, tables, labels, nblocks, owner, threads, room,
+        np.array(slot_set, dtype=np.int64), group_start,
+        members_flat, classes.table, classes.edges, classes.counts, classes.inv_width, radius * radius,
+        ACCUMULATION_MODE[statistic], np.array([q.prepared.mean for q in plans]), table_of, tables, labels, nblocks,
+        owner, threads,
     )  # fmt: skip
     check_deadline()
     most = tables // (sets * threads)
-    sums = np.zeros((p, sets, bins, K.ACCUMULATORS))
     plain = np.zeros((p, sets, bins, K.ACCUMULATORS))
     by_block = np.zeros((p, sets, nblocks, bins, K.ACCUMULATORS))
     for a in range(p):
         for s in range(sets):
             for c in range(most):
                 first = (s * most + c) * threads
-                out = _threads_summed(main[a, first : first + threads])
-                added = np.zeros((bins, K.ACCUMULATORS))
-                for r in range(K.COPIES):
-                    added += out[r]
-                sums[a, s] += added
                 plain[a, s] += _threads_summed(totals[a, first : first + threads])
                 by_block[a, s] += _threads_summed(blocks[a, first : first + threads])
-    return sums, plain, by_block, colocated, offsets, classes.kmax
+    return plain, by_block, colocated, offsets, classes.kmax
 
 
 def _variogram(member, plan, s, parts, summary, declustering, statistic, min_pairs, lags):
-    """Member's variogram for direction set s from its sums, block sums, first slot, the layout's
-    largest class count and co-located pairs (``parts``); None when its blocks differ from the pass's."""
-    sums, plain, by_block, start, kmax, colocated = parts
+    """Member's variogram for direction set s from its own pass's table (ndir, classes, ACCUMULATORS),
+    the jackknife's sums and block sums, its first slot, the layout's largest class count and co-located
+    pairs (``parts``); None when its blocks differ from the pass's."""
+    table, plain, by_block, start, kmax, colocated = parts
     resolved, edges = plan.resolved[s], plan.edges[s]
     own = max(len(e) - 1 for e in edges)
     shape = (len(resolved), own)
     slots = [slice((start + k) * kmax, (start + k) * kmax + own) for k in range(len(resolved))]
-    total = np.concatenate([sums[at] for at in slots])
     jackknifed = np.concatenate([plain[at] for at in slots])
     blocked = np.concatenate([by_block[:, at] for at in slots], axis=1)
-    table = total.reshape(len(resolved), own, K.ACCUMULATORS)
     pairs = int(table[:, :, K.COUNT].sum())
     reach = float(max(e[-1] for e in edges))
     work = max(pairs, int(sweep_visits(plan.prepared.points[:, 0], reach).sum()))
