@@ -92,3 +92,55 @@ def test_a_misspelt_lag_member_is_still_unknown(client):
         client.post(VARIOGRAMS, json={"samples": columns(), "lags": {"widht": 1}}), 422, "invalid-input"
     )
     assert [e["pointer"] for e in doc["errors"]] == ["/lags/widht"]
+
+
+@pytest.mark.parametrize("url", ["/v1/model-fits", "/v1/analyses"])
+@pytest.mark.parametrize("n", [2, 3])
+def test_too_few_samples_to_fit_are_refused_at_samples(client, url, n):
+    """The smallest default candidate (no nugget, sill and range) needs 3 classes of min_pairs = 30 pairs:
+    90 pairs, and 13 samples make 13 * 12 / 2 = 78 (pair count n (n - 1) / 2: common practice)."""
+    samples = {"x": list(range(n)), "y": [0] * n, "values": [float(i % 2) for i in range(n)]}
+    doc = assert_problem(client.post(url, json={"samples": samples}), 422, "invalid-input", ["/samples"])
+    assert "needs at least 14 samples" in doc["detail"] and f"got {n}" in doc["detail"]
+
+
+def test_the_stated_minimum_follows_min_pairs(client):
+    """With min_pairs = 1, three classes need three pairs, which three samples make; with 2, six pairs: four."""
+    samples = {"x": [0, 1, 3], "y": [0, 0, 0], "values": [1.0, 2.0, 4.0]}
+    doc = client.post("/v1/model-fits", json={"samples": samples, "min_pairs": 1}).json
+    assert all(e["pointer"] != "/samples" for e in doc.get("errors", [])), doc
+    doc = client.post("/v1/model-fits", json={"samples": samples, "min_pairs": 2}).json
+    assert doc["errors"][0]["pointer"] == "/samples" and "at least 4 samples, got 3" in doc["detail"]
+
+
+@pytest.mark.parametrize(
+    "url, accept",
+    [
+        (VARIOGRAMS, "text/html"),
+        (VARIOGRAMS, "application/vnd.apache.arrow.stream"),  # Arrow answers are for predictions and simulations
+        ("/v1/predictions", "text/csv, application/xml;q=0.5"),
+        ("/v1/model-families", "image/png"),
+    ],
+)
+def test_an_unsatisfiable_accept_is_a_406_listing_what_the_path_answers_with(client, url, accept):
+    method = client.get if url == "/v1/model-families" else client.post
+    r = method(url, json={"samples": columns()}, headers={"Accept": accept})
+    doc = assert_problem(r, 406, "not-acceptable")
+    arrow = ["application/vnd.apache.arrow.stream"] if url == "/v1/predictions" else []
+    assert doc["acceptable"] == ["application/json", *arrow, "application/problem+json"]
+    assert all(media_type in doc["detail"] for media_type in doc["acceptable"])
+
+
+@pytest.mark.parametrize(
+    "accept",
+    [None, "*/*", "application/*", "application/json", "text/html;q=0.9, application/json;q=0.1", "*/*;q=0.01"],
+)
+def test_acceptable_accept_headers_still_answer(client, accept):
+    headers = {} if accept is None else {"Accept": accept}
+    r = client.post(VARIOGRAMS, json={"samples": columns(), "lags": {"width": 1, "count": 2}}, headers=headers)
+    assert r.status_code == 200 and r.mimetype == "application/json"
+
+
+def test_a_zero_quality_refuses_json(client):
+    r = client.get("/v1/model-families", headers={"Accept": "application/json;q=0, text/plain"})
+    assert_problem(r, 406, "not-acceptable")

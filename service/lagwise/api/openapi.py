@@ -56,6 +56,7 @@ PROBLEM_RESPONSES = {
     401: "Unauthorized",
     404: "NotFound",
     405: "MethodNotAllowed",
+    406: "NotAcceptable",
     413: "BodyTooLarge",
     415: "UnsupportedMediaType",
     422: "InvalidInput",
@@ -327,7 +328,7 @@ def build_spec() -> APISpec:
                     "tags": _tag(name, op.request is not None),
                     "parameters": [request_id],
                     **body,
-                    "responses": _responses(success, _statuses(op.path, op.errors)),
+                    "responses": _responses(success, _statuses(op.path, op.errors) | {406}),
                 },
             )
         )

@@ -28,6 +28,7 @@ from ..core.modelling.families import FIT_SCALES, family_catalogue, model_parame
 from ..core.simulation import simulate
 from ..core.stages import (
     VariogramOptions,
+    fit_sample_minimum,
     given_setup,
     run_fit,
     run_fit_to_samples,
@@ -42,13 +43,13 @@ from ..core.variography.maps import raster_map, variogram_map
 from ..core.variography.several import several_variograms
 from . import convert, joint, serialize
 from .body import load_json
-from .columnar import ARROW_MEDIA_TYPE, arrow_answer, wants_arrow
+from .columnar import ARROW_MEDIA_TYPE, JSON_MEDIA_TYPE, arrow_answer, wants_arrow
 from .figure_set import check_cost as check_figures
 from .figure_set import marks as figure_marks
 from .figure_set import render
 from .jsonio import dumps
 from .observability import count_work
-from .problems import KINDS, Problem
+from .problems import KINDS, PROBLEM_MEDIA_TYPE, Problem
 from .schemas import (
     AnalysisRequest,
     AnalysisResponse,
@@ -100,18 +101,47 @@ SIMULATION_COLUMNS = ("mean", "variance", "quantiles/*", "exceedance/*/probabili
 ARROW_ANSWERS = {"predictions": PREDICTION_COLUMNS, "simulations": SIMULATION_COLUMNS}
 
 
+def answer_media_types(operation_id: str) -> tuple[str, ...]:
+    """The media types an operation answers with: JSON, an Arrow stream where documented, and problems."""
+    arrow = (ARROW_MEDIA_TYPE,) if operation_id in ARROW_ANSWERS else ()
+    return (JSON_MEDIA_TYPE, *arrow, PROBLEM_MEDIA_TYPE)
+
+
+def check_acceptable(operation_id: str) -> None:
+    """Refuse (406) a request whose ``Accept`` allows none of the operation's media types.
+
+    No ``Accept`` (or ``*/*``) accepts everything; quality values and ranges such as
+    ``application/*`` are weighed by werkzeug (``request.accept_mimetypes.best_match``).
+    """
+    if "Accept" not in request.headers:
+        return
+    produced = answer_media_types(operation_id)
+    if request.accept_mimetypes.best_match(produced) is None:
+        listed = ", ".join(produced)
+        raise Problem(
+            "not-acceptable",
+            f"Accept: {request.headers['Accept'][:200]} allows none of the media types {request.path} answers with: "
+            f"{listed}.",
+            acceptable=list(produced),
+        )
+
+
 def operation(path, method, summary, request=None, response=HealthSchema, errors=COMPUTE_ERRORS):
-    """Register a view on the blueprint and in :data:`OPERATIONS`; computing views run under the deadline."""
+    """Register a view on the blueprint and in :data:`OPERATIONS`; computing views run under the deadline.
+    Every view first refuses an ``Accept`` header it cannot satisfy (:func:`check_acceptable`)."""
 
     def decorate(view):
         OPERATIONS.append(Operation(path, method, view.__name__, summary, request, response, errors))
 
         @functools.wraps(view)
-        def within_deadline():
+        def acceptable_then_view():
+            check_acceptable(view.__name__)
+            if request is None:
+                return view()
             with deadline(settings().deadline_seconds):
                 return view()
 
-        blueprint.add_url_rule(path, view.__name__, within_deadline if request is not None else view, methods=[method])
+        blueprint.add_url_rule(path, view.__name__, acceptable_then_view, methods=[method])
         return view
 
     return decorate
@@ -278,6 +308,8 @@ def model_fits():
     samples = convert.sample_set(document, settings().limits)
     working = working_samples(samples, document["transform"])
     validate_stages(working.samples, [("", variogram), ("", fit)])
+    if variogram.directions is None:
+        fit_sample_minimum(working.samples, variogram.min_pairs, fit)
     result = run_fit_to_samples(working.samples, variogram, fit, limits=settings().limits)
     body = serialize.model_fit(
         result.fit,

@@ -39,6 +39,11 @@ KINDS = {
     "unauthorized": ProblemKind(401, "Unauthorized", "A valid API key is required (Authorization: Bearer <key>)."),
     "not-found": ProblemKind(404, "Not found", "No resource at this path."),
     "method-not-allowed": ProblemKind(405, "Method not allowed", "This path does not accept this method."),
+    "not-acceptable": ProblemKind(
+        406,
+        "Not acceptable",
+        "The Accept header names no media type this path can answer with; acceptable lists those it can.",
+    ),
     "body-too-large": ProblemKind(413, "Body too large", "The body exceeds LAGWISE_MAX_BODY_BYTES."),
     "unsupported-media-type": ProblemKind(415, "Unsupported media type", "Send Content-Type: application/json."),
     "invalid-input": ProblemKind(

@@ -1849,7 +1849,7 @@ class FieldErrorSchema(Schema):
     detail = fields.String()
 
 
-@always_present("errors", "errors_omitted", "limit", "allowed", "requested")
+@always_present("instance", "errors", "errors_omitted", "limit", "allowed", "requested", "acceptable")
 class ProblemSchema(Schema):
     """RFC 9457 problem details; a limit-exceeded problem also names the limit and both costs."""
 
@@ -1857,7 +1857,9 @@ class ProblemSchema(Schema):
     title = fields.String()
     status = StrictInteger(validate=validate.OneOf(PROBLEM_STATUSES))
     detail = fields.String()
-    instance = fields.String(metadata={"description": "The request's path."})
+    instance = fields.String(
+        metadata={"description": "The request's path; absent when it is unknown (refused before the request was read)."}
+    )
     request_id = fields.String(metadata={"description": "Also in the X-Request-ID response header."})
     errors = fields.List(
         fields.Nested(FieldErrorSchema), metadata={"description": "Offending fields, at most 100 entries."}
@@ -1871,6 +1873,9 @@ class ProblemSchema(Schema):
     limit = fields.String(metadata={"description": "limit-exceeded: the LAGWISE_* variable that sets the limit."})
     allowed = StrictFloat(metadata={"description": "limit-exceeded: the configured value."})
     requested = StrictFloat(metadata={"description": "limit-exceeded: what this request would need (same unit)."})
+    acceptable = fields.List(
+        fields.String(), metadata={"description": "not-acceptable: the media types this path answers with."}
+    )
 
 
 @always_present()

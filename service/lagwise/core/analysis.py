@@ -51,6 +51,7 @@ from .stages import (
     MapOptions,
     PredictionOptions,
     VariogramOptions,
+    fit_sample_minimum,
     run_cross_validation,
     run_fit,
     run_map,
@@ -187,7 +188,9 @@ def begin(samples: SampleSet, options: AnalysisOptions) -> WeightedStart:
             ("/variogram_map", options.map_stage if options.with_map else None),
         ],
     )
-    return weighted_start(samples.coords, samples.values, options.transform, samples.source_index)
+    start = weighted_start(samples.coords, samples.values, options.transform, samples.source_index)
+    fit_sample_minimum(samples, options.variogram.min_pairs, options.fit)
+    return start
 
 
 def fan_directions(options: AnalysisOptions) -> tuple[DirectionClass, ...]:
@@ -316,8 +319,9 @@ def _refined_anisotropic(
 def _as_candidate(fit: FitResult, model: VariogramModel) -> tuple[VariogramModel, FitResult]:
     """A refined model as a candidate of ``fit`` (its label says how it was refined)."""
     parts = (["nugget"] if model.nugget > 0 else []) + [st.family for st in model.structures]
-    shape = " (anisotropic)" if any(not st.anisotropy.isotropic for st in model.structures) else ""
-    label = f"{' + '.join(parts)}{shape} (refined by restricted likelihood)"
+    anisotropic = any(not st.anisotropy.isotropic for st in model.structures)
+    how = ("anisotropic, " if anisotropic else "") + "refined by restricted likelihood"
+    label = f"{' + '.join(parts)} ({how})"
     return model, replace(fit, best=replace(fit.best, model=model, label=label))
 
 

@@ -17,6 +17,7 @@ separate endpoint back-transforms them (``run_transformed_*``).
 
 from __future__ import annotations
 
+import math
 from collections.abc import Callable, Iterable
 from dataclasses import dataclass
 from functools import partial
@@ -50,6 +51,7 @@ from .modelling.fitting import (
     SEMIVARIANCE_STATISTICS,
     ExperimentalPoints,
     FitResult,
+    fewest_classes,
     fit_model,
     points_from_experimental,
     validate_fit_options,
@@ -196,6 +198,34 @@ class FitOptions:
         validate_fit_options(families, self.nugget, self.weighting, "none", self.structures, dimension)
         if self.model is not None:
             validate_model(self.model, dimension)
+
+
+def fit_sample_minimum(samples: SampleSet, min_pairs: int, fit: FitOptions) -> None:
+    """Refuse, at ``/samples``, fewer samples than a fit to an omnidirectional variogram can use.
+
+    The smallest candidate needs k usable classes (:func:`.modelling.fitting.fewest_classes`,
+    3 by default) of at least ``min_pairs`` pairs each, and n samples make n (n - 1) / 2
+    pairs, each in at most one class of an omnidirectional variogram: with fewer than the
+    least n for which n (n - 1) / 2 >= k min_pairs no model can be fitted, whatever the
+    layout. Constant values need one class (their model is a zero pure nugget). Nothing is
+    checked for a given model. Call it after :func:`validate_stages`.
+    """
+    if fit.model is not None or samples.size == 0:
+        return
+    constant = bool(np.all(samples.values == samples.values[0]))
+    classes = 1 if constant else fewest_classes(fit.families, fit.nugget, fit.structures, samples.dimension)
+    pairs = classes * min_pairs
+    needed = (1 + math.isqrt(8 * pairs + 1)) // 2
+    while needed * (needed - 1) // 2 < pairs:
+        needed += 1
+    if samples.size < needed:
+        raise InvalidInput.at(
+            "/samples",
+            f"fitting a model needs at least {needed} samples, got {samples.size}: the smallest candidate needs "
+            f"{classes} distance classes of at least min_pairs ({min_pairs}) pairs, {pairs} pairs in all, and "
+            f"{samples.size} samples make {samples.size * (samples.size - 1) // 2} (send more samples or lower "
+            "min_pairs)",
+        )
 
 
 def _validate_given(model: VariogramModel | None, kriging: KrigingSpec | None, dimension: int) -> None:

@@ -86,20 +86,20 @@ def kind_for_status(status: int) -> str:
     return "malformed-request" if status < 500 else "internal-error"
 
 
-def problem(kind: str, detail: str, *, instance: str, request_id: str) -> tuple[int, list[tuple[bytes, bytes]], bytes]:
-    """Status, headers and body of a problem document written by the front."""
+def problem(
+    kind: str, detail: str, *, instance: str | None = None, request_id: str
+) -> tuple[int, list[tuple[bytes, bytes]], bytes]:
+    """Status, headers and body of a problem document written by the front.
+
+    ``instance`` is the request's path; the member is left out when it is unknown (None or
+    empty: a connection refused before its request was read, an unreadable request line).
+    """
     status, title = _status_and_title(kind)
-    body = json.dumps(
-        {
-            "type": f"/problems/{kind}",
-            "title": title,
-            "status": status,
-            "detail": detail,
-            "instance": instance,
-            "request_id": request_id,
-        },
-        separators=(",", ":"),
-    ).encode()
+    document = {"type": f"/problems/{kind}", "title": title, "status": status, "detail": detail}
+    if instance:
+        document["instance"] = instance
+    document["request_id"] = request_id
+    body = json.dumps(document, separators=(",", ":")).encode()
     return status, _headers(PROBLEM_MEDIA_TYPE, body, request_id), body
 
 

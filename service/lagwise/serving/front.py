@@ -225,7 +225,6 @@ class Front:
             status, headers, body = answers.problem(
                 "overloaded",
                 f"This instance holds {self.settings.max_connections} connections (LAGWISE_MAX_CONNECTIONS).",
-                instance="",
                 request_id=answers.request_id_for(None),
             )
             await client.write_final(status, headers + [(b"retry-after", b"1")], body)

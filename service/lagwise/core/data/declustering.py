@@ -63,6 +63,16 @@ DENSE_KEYS = 4_000_000
 _UNIT_BALL = {1: 2.0, 2: math.pi, 3: 4.0 * math.pi / 3.0}
 
 
+def distinct_figures(before: float, after: float, digits: int = 4) -> tuple[str, str]:
+    """Two numbers written with ``digits`` significant digits, or as many more (up to 17) as make them
+    differ when they do: a mean of 1e12 moved by 1e4 reads 1.00000001e+12, not 1e+12 twice."""
+    for precision in range(digits, 18):
+        pair = f"{before:.{precision}g}", f"{after:.{precision}g}"
+        if pair[0] != pair[1] or before == after:
+            return pair
+    return pair
+
+
 @dataclass(frozen=True)
 class Declustering:
     """Result of :func:`decluster`.
@@ -134,8 +144,9 @@ class Declustering:
             evidence.append(f"the {self.over_sampled} values are over-sampled")
         return (
             f"sampling is clustered ({'; '.join(evidence)}): cell declustering (cell size {self.cell_size:.4g}) "
-            f"moves the mean from {self.mean:.4g} to {self.declustered_mean:.4g} and the variance from "
-            f"{self.variance:.4g} to {self.declustered_variance:.4g}; declustering weights are used for the "
+            f"moves the mean from {' to '.join(distinct_figures(self.mean, self.declustered_mean))} and the variance "
+            f"from {' to '.join(distinct_figures(self.variance, self.declustered_variance))}; declustering weights "
+            "are used for the "
             "summary, the normal-score table, the sill reference and the simple-kriging mean"
         )
 

@@ -662,6 +662,22 @@ def fit_model(
     return FitResult(best, tuple(ranked), points, weighting, nugget, anisotropy, tuple(notes), asked, structures)
 
 
+def fewest_classes(
+    families: str | list[str] | tuple[str, ...], nugget: str | float, structures: int, dimension: int
+) -> int:
+    """The usable classes the smallest isotropic candidate of :func:`fit_model` needs (its parameters + 1).
+
+    A candidate with p fitted parameters needs more than p usable classes (see
+    :func:`_fit_candidate`); this is the least over the candidates the options make.
+    """
+    families = families if families == "auto" else list(families)
+    specs = _candidate_specs(families, nugget, "none", structures, dimension, families == "auto")
+    return 1 + min(
+        (int(spec.fit_nugget) + sum(len(FAMILIES[family].parameters) for family in spec.families) for spec in specs),
+        default=0,
+    )
+
+
 def points_from_experimental(result, min_pairs: int) -> ExperimentalPoints:
     """Flatten an :class:`~lagwise.core.variography.experimental.ExperimentalVariogram` into fit points."""
     rows = [
