@@ -41,7 +41,7 @@ def _same_refusal(client, url, separate, stage, options, base, dimension=2, top=
 VARIOGRAM_MISTAKES = [
     ({"lags": {"width": -1, "count": 3}}, "/lags/width"),
     ({"lags": {"edges": [0, 20, 10]}}, "/lags/edges/2"),
-    ({"lags": {"width": 5, "count": 4, "edges": [0, 5]}}, "/lags/width"),
+    ({"lags": {"width": 5, "count": 4, "edges": [0, 5]}}, "/lags"),  # two forms mixed: refused at the object
     ({"directions": [{"azimuth": 400}]}, "/directions/0/azimuth"),
     ({"directions": [{"azimuth": 0, "bandwidth": -2}]}, "/directions/0/bandwidth"),
     ({"min_pairs": 0}, "/min_pairs"),
