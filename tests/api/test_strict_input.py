@@ -144,3 +144,29 @@ def test_acceptable_accept_headers_still_answer(client, accept):
 def test_a_zero_quality_refuses_json(client):
     r = client.get("/v1/model-families", headers={"Accept": "application/json;q=0, text/plain"})
     assert_problem(r, 406, "not-acceptable")
+
+
+def test_repeated_sample_ids_are_refused_naming_both_samples(client):
+    samples = columns(ids=["a", "b", "a", "b"])
+    doc = assert_problem(
+        client.post(VARIOGRAMS, json={"samples": samples}), 422, "invalid-input", ["/samples/ids/2", "/samples/ids/3"]
+    )
+    assert doc["errors"][0]["detail"] == "repeats the id 'a' of sample 0; ids must be distinct"
+    assert "of sample 1" in doc["errors"][1]["detail"]
+
+
+def test_repeated_ids_of_several_variables_and_features_are_refused(client):
+    body = {"samples": {"x": [0, 1, 2], "y": [0, 1, 0], "ids": ["p", "q", "p"], "variables": {"a": [1, 2, 3]}}}
+    assert_problem(client.post(VARIOGRAMS, json=body), 422, "invalid-input", ["/samples/ids/2"])
+    features = [
+        {
+            "type": "Feature",
+            "id": name,
+            "geometry": {"type": "Point", "coordinates": [i, i % 2]},
+            "properties": {"v": i},
+        }
+        for i, name in enumerate(["s1", "s2", "s3", "s1"])
+    ]
+    body = {"samples": {"geojson": {"type": "FeatureCollection", "features": features}, "value_property": "v"}}
+    doc = assert_problem(client.post(VARIOGRAMS, json=body), 422, "invalid-input", ["/samples/geojson/features/3/id"])
+    assert "of sample 0" in doc["detail"]

@@ -12,6 +12,10 @@ from typing import overload
 
 import numpy as np
 
+from ..errors import FieldIssue, InvalidInput
+
+MAX_LISTED = 20
+
 
 class IndexIds(Sequence[str]):
     """The identifiers of samples given without ids: each sample's input index, as text.
@@ -58,3 +62,36 @@ def pick_ids(ids: Sequence[str], rows: np.ndarray) -> Sequence[str]:
     if isinstance(ids, IndexIds):
         return IndexIds(ids.positions[rows])
     return tuple(ids[i] for i in rows.tolist())
+
+
+def check_distinct(ids: Sequence[str], pointer_for) -> None:
+    """Refuse identifiers given more than once, naming each repeat and the sample it repeats.
+
+    Parameters
+    ----------
+    ids : sequence of str
+        The given identifiers (as text), in input order.
+    pointer_for : callable
+        ``pointer_for("ids", i)``: the JSON Pointer of sample ``i``'s identifier.
+
+    Raises
+    ------
+    InvalidInput
+        One issue per repeat (at most 20), at the later sample, naming the earlier one.
+    """
+    if len(set(ids)) == len(ids):
+        return
+    first: dict[str, int] = {}
+    issues = []
+    for index, identifier in enumerate(ids):
+        earlier = first.setdefault(identifier, index)
+        if earlier != index:
+            issues.append(
+                FieldIssue(
+                    pointer_for("ids", index),
+                    f"repeats the id {identifier[:60]!r} of sample {earlier}; ids must be distinct",
+                )
+            )
+            if len(issues) == MAX_LISTED:
+                break
+    raise InvalidInput(issues)

@@ -22,7 +22,7 @@ import numpy as np
 from ..errors import FieldIssue, InvalidInput
 from .censoring import substitute
 from .geographic import ACCURATE_SPAN_M, LocalProjection, centroid
-from .identifiers import IndexIds, pick_ids
+from .identifiers import IndexIds, check_distinct, pick_ids
 from .locations import kept_rows, repeated_locations
 
 COORDINATE_SYSTEMS = ("planar", "geographic")
@@ -299,6 +299,8 @@ def build_sample_set(
         columns = [c for c in (x, y, z) if c is not None]
     coords = np.column_stack(columns)
     given_ids = tuple(str(i) for i in ids) if ids is not None else IndexIds(np.arange(values.size))
+    if ids is not None:
+        check_distinct(given_ids, pointer_for)
 
     coords, values, kept_ids, source_index, report = _resolve_duplicates(
         coords, values, given_ids, duplicates, pointer_for

@@ -30,7 +30,7 @@ import numpy as np
 from ..errors import FieldIssue, InvalidInput
 from .censoring import substitute
 from .geographic import ACCURATE_SPAN_M, LocalProjection, centroid
-from .identifiers import IndexIds, pick_ids
+from .identifiers import IndexIds, check_distinct, pick_ids
 from .locations import kept_rows, repeated_locations
 from .samples import (
     MAX_SPREAD,
@@ -402,6 +402,8 @@ def build_multi_sample_set(
         axes = [c for c in (x, y, z) if c is not None]
     coords = np.column_stack(axes)
     given_ids = tuple(str(i) for i in ids) if ids is not None else IndexIds(np.arange(n))
+    if ids is not None:
+        check_distinct(given_ids, pointer_for)
     coords, table, kept_ids, source_index, report = _merge_duplicates(coords, table, given_ids, duplicates, pointer_for)
     if report.locations:
         action = "averaged" if duplicates == "average" else "kept the first measured value of"
