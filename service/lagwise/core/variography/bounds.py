@@ -102,22 +102,41 @@ def _boundary_entries(
 
 
 def _extreme(cls, ratio_key, num, den, core_num, core_den, count, largest: bool) -> np.ndarray:
-    """Per class, the extreme of (core_num + prefix num) / (core_den + prefix den) over ratio-sorted prefixes."""
-    order = np.lexsort((-ratio_key if largest else ratio_key, cls))
-    c, a, n = cls[order], num[order], den[order]
-    starts = np.flatnonzero(np.r_[True, c[1:] != c[:-1]]) if c.size else np.zeros(0, dtype=np.int64)
-    cum_a, cum_n = np.cumsum(a), np.cumsum(n)
-    base_a = np.repeat(np.r_[0.0, cum_a][starts], np.diff(np.r_[starts, c.size]))
-    base_n = np.repeat(np.r_[0.0, cum_n][starts], np.diff(np.r_[starts, c.size]))
-    top = core_num[c] + cum_a - base_a
-    bottom = core_den[c] + cum_n - base_n
-    with np.errstate(divide="ignore", invalid="ignore"):
-        values = np.where(bottom > 0, top / bottom, np.nan)
+    """Per class, the largest (or smallest) of (core_num + sum num) / (core_den + sum den) over every
+    subset of the class's boundary entries (``ratio_key`` = num / den, den > 0).
+
+    The extreme of this linear-fractional function over the box of shares is taken by a prefix of
+    the entries in order of ratio (module docstring), found without sorting by Dinkelbach's
+    iteration (Dinkelbach 1967, Management Science 13(7)): from the core's value v, take the
+    entries whose ratio exceeds v (falls below it, for the smallest), recompute v, and repeat
+    while v improves. Each step is a prefix's value, v improves strictly and there are finitely
+    many prefixes, so it stops, at the extreme (the value no entry can raise). A class without
+    core pairs takes its best entry alone: a mean never exceeds its largest member.
+    """
+    sign = 1.0 if largest else -1.0
     with np.errstate(divide="ignore", invalid="ignore"):
         out = np.where(core_den > 0, core_num / core_den, np.nan)
-    if c.size:
-        pick = np.fmax.reduceat(values, starts) if largest else np.fmin.reduceat(values, starts)
-        out[c[starts]] = np.fmax(out[c[starts]], pick) if largest else np.fmin(out[c[starts]], pick)
+    if not cls.size:
+        return out
+    key = sign * ratio_key
+    best = np.full(count, -np.inf)
+    np.maximum.at(best, cls, key)
+    touched = np.isfinite(best)
+    alone = touched & ~(core_den > 0)
+    out[alone] = sign * best[alone]
+    active = touched & (core_den > 0) & (best > sign * out)
+    above = key > sign * out[cls]  # entries that can raise their class (the others never will: v only rises)
+    cls, key, num, den = cls[above], key[above], num[above], den[above]
+    while active.any():
+        level = np.where(active, sign * out, np.inf)
+        take = key > level[cls]
+        top = core_num + np.bincount(cls[take], weights=num[take], minlength=count)
+        bottom = core_den + np.bincount(cls[take], weights=den[take], minlength=count)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            value = top / bottom
+        active &= sign * value > sign * out
+        out[active] = value[active]
+        cls, key, num, den = cls[take], key[take], num[take], den[take]
     return out
 
 
