@@ -44,8 +44,18 @@ their ranges. Pairs within one grid cell (s = 0, each counted as h and as -h, as
 map counts every pair) are boundary pairs of the cells the square (-c, c)^2 reaches
 (the origin cell when c < S / 2). The extremes then follow as for classes, cell by
 cell, over the ordered lag vectors (s and -s both, as the map holds each pair twice),
-and so do the relative bound and the (rigorous) pair-count bound. The map's cell size
-against the grid's is what sets the bound: halving c halves the boundary share.
+and so do the relative bound and the (rigorous) pair-count bound.
+
+What sets the bound: halving c halves the boundary share, but it also quarters the pairs
+of each lag vector, and the worst case takes every boundary lag vector whose mean lies
+above (below) the cell's value. Where lag vectors hold few pairs their means scatter
+widely (the pairs of one lag vector sit at different places of the field, with or without
+a nugget), and past about c = S/32 that scatter, more than the boundary share, sets the
+bound. On 20,000 samples in a 1000 square (smooth field plus noise, tests/reference) the
+median map-cell bound for cells of 25 is 3.4 % at c = S/16, 2.1 % at S/32, 1.5 % at S/64
+and 0.9 % at S/128 (the largest actual error about a quarter of the bound); for the
+automatic cells (17.4) it is 2.0 % at S/16 and 2.7 % at S/32. On 200,000 samples, cells of
+10: 1.0 % at S/16, 0.9 % at S/32.
 """
 
 from __future__ import annotations
