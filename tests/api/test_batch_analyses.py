@@ -57,27 +57,33 @@ def test_twelve_analytes_in_one_call(patient):
     assert doc["parameters"]["variables"] == list(ANALYTES)
 
 
+EXPLICIT = {"variogram": {"directions": [{"azimuth": 20.0, "tolerance": 30.0}, {"azimuth": 110.0, "tolerance": 30.0}]}}
+
+
+@pytest.mark.parametrize("stages", [LIGHT, {}, {**LIGHT, **EXPLICIT}], ids=["light", "compared", "explicit-classes"])
 @pytest.mark.parametrize("name", ["zinc", "toluene"])
-def test_a_section_equals_the_single_variable_analysis(client, name):
+def test_a_section_equals_the_single_variable_analysis(client, name, stages):
+    """The fan of direction classes (automatic, or the caller's) and the anisotropy come from the
+    batch's shared pass; the section equals the analysis of the variable alone."""
     samples = batch()
     two = {**samples, "variables": {k: samples["variables"][k] for k in ("lead", name)}}
     two["units"] = {k: samples["units"][k] for k in ("lead", name)}
     if name != "toluene":
         two.pop("censored"), two.pop("detection_limits")
-    both = client.post("/v1/analyses", json={"samples": two, "transform": "log", **LIGHT}).json
+    both = client.post("/v1/analyses", json={"samples": two, "transform": "log", **stages}).json
     alone = client.post(
         "/v1/analyses",
         json={
             "samples": measured(two, name),
             "transform": "log",
             "variable": {"name": name, "unit": UNITS[name]},
-            **LIGHT,
+            **stages,
         },
     ).json
     section = both["variables"][1]
     assert section["name"] == name
-    for key in ("summary", "fit", "verdict", "experimental", "selection"):
-        assert section[key] == alone[key], key
+    for key in ("summary", "fit", "verdict", "experimental", "selection", "anisotropy"):
+        assert section.get(key) == alone.get(key), key
     assert section["cross_validation"]["statistics"] == alone["cross_validation"]["statistics"]
 
 

@@ -163,8 +163,9 @@ class Given:
     start : WeightedStart
         From :func:`begin` on the variable's samples.
     omnidirectional, fan : ExperimentalVariogram or None
-        Its omnidirectional variogram and the fan of :func:`fan_directions` (when
-        :func:`wants_fan`) of the working values; None: computed by the chain.
+        Its first variogram (the stage's classes: omnidirectional unless given) and the fan
+        of :func:`fan_directions` (when :func:`wants_fan`) of the working values; None:
+        computed by the chain.
     """
 
     start: WeightedStart

@@ -3,11 +3,13 @@
 Each variable is analysed as a single-variable request on the samples where it was
 measured would be (:func:`lagwise.core.analysis.analyse`), with its own transform, fit,
 cross-validation and verdict. What the chains share is the pair enumeration: the
-omnidirectional variogram of every variable's working values
-comes from one pass over the pairs of all locations
-(:mod:`lagwise.core.variography.shared`), each with its own classes and class
-uncertainties. The other pair passes (the anisotropy fan, residual variograms of a
-drift, variogram maps) stay per variable.
+omnidirectional variogram of every variable's working values and, when the chain may
+look at anisotropy, its fan of direction classes (:func:`lagwise.core.analysis.fan_directions`)
+come from one pass over the pairs of all locations
+(:mod:`lagwise.core.variography.shared`), each variable with its own classes (automatic
+classes per direction too) and class uncertainties, equal to the bit to what its own
+chain computes. The other pair passes (residual variograms of a drift, variogram maps)
+stay per variable.
 """
 
 from __future__ import annotations
@@ -16,9 +18,9 @@ from dataclasses import replace
 
 import numpy as np
 
-from .analysis import AnalysisOptions, Given, begin
+from .analysis import AnalysisOptions, Given, begin, fan_directions, wants_fan
 from .data.variables import MultiSampleSet, escape_token
-from .errors import InvalidInput
+from .errors import InvalidInput, LimitExceeded
 from .limits import Limits
 from .variography.shared import SHARED_STATISTICS, Member, shared_variograms
 
@@ -59,22 +61,35 @@ def batch_inputs(samples: MultiSampleSet, options: AnalysisOptions, limits: Limi
     stage = options.variogram
     if stage.statistic not in SHARED_STATISTICS:
         return given
-    # The fan stays with each chain for now: with automatic classes its directions have edges
-    # of their own, where the single-variable fast kernel currently disagrees with a brute-force
-    # enumeration (the shared pass agrees with it), so the two would not give the same fan.
+    # The chain's first variogram has the stage's classes (None: one omnidirectional class); its fan
+    # is the stage's classes again when given, else the automatic fan.
+    first = stage.classes
+    fan = list(fan_directions(options)) if wants_fan(options, samples.dimension) else None
+    sets = [first] if fan is None or fan == first else [first, fan]
+    found = _shared(samples, members, sets, options, limits)
+    if found is None and len(sets) > 1:
+        found, fan = _shared(samples, members, sets[:1], options, limits), None
+    if found is None:
+        return given
+    return [
+        replace(g, omnidirectional=v[0], fan=None if fan is None else v[-1]) for g, v in zip(given, found, strict=True)
+    ]
+
+
+def _shared(samples: MultiSampleSet, members: list[Member], sets: list, options: AnalysisOptions, limits: Limits):
+    """Every member's variogram of each direction set from one pass, or None where the pass refuses them
+    (each chain then computes its own and reports its own error) or its tables would not fit the budget."""
+    stage = options.variogram
     try:
-        found = shared_variograms(
+        return shared_variograms(
             samples.coords,
             members,
-            [None],
+            sets,
             lags=stage.lags,
             statistic=stage.statistic,
             min_pairs=stage.min_pairs,
             limits=limits,
-            pointers=("/variogram",),
+            pointers=("/variogram",) * len(sets),
         )
-    except InvalidInput:
-        return given
-    if found is None:
-        return given
-    return [replace(g, omnidirectional=v[0]) for g, v in zip(given, found, strict=True)]
+    except (InvalidInput, LimitExceeded):
+        return None
