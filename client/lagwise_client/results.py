@@ -116,7 +116,8 @@ def _raw() -> Any:
 
 @dataclass(frozen=True, kw_only=True)
 class VariogramClass:
-    """One distance class: bounds [lower, upper), mean distance, pair count, value (None if undefined)."""
+    """One distance class: bounds [lower, upper), mean distance, pair count, value (None if undefined),
+    and its jackknife standard error and 95 % interval (None with ``uncertainty_reason`` when undefined)."""
 
     lower: float
     upper: float
@@ -132,6 +133,9 @@ class VariogramClass:
     error_bound: float | None = None
     pair_bound: int | None = None
     bound_exceeded: bool | None = None
+    standard_error: float | None = None
+    interval_95: tuple[float, ...] | None = None
+    uncertainty_reason: str | None = None
     raw: dict = _raw()
 
 
@@ -515,15 +519,18 @@ class VariableVariogram:
     directions: tuple[DirectionVariogram, ...]
     unit: str | None = None
     summary: dict = field(default_factory=dict)
+    class_uncertainty: dict = field(default_factory=dict)
     raw: dict = _raw()
 
 
 @dataclass(frozen=True, kw_only=True)
 class CrossVariogram:
-    """The cross statistic of a pair of variables; ``variables`` (a, b), a the tail variable of covariances."""
+    """The cross statistic of a pair of variables; ``variables`` (a, b), a the tail variable of covariances;
+    ``class_uncertainty`` the jackknife's method and blocks (cross-semivariance only, else None)."""
 
     variables: tuple[str, ...]
     directions: tuple[DirectionVariogram, ...]
+    class_uncertainty: dict = field(default_factory=dict)
     raw: dict = _raw()
 
 

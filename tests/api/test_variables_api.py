@@ -180,3 +180,72 @@ def test_the_pair_limit_weighs_the_variables(small_limits_client):
     refused = small_limits_client.post("/v1/experimental-variograms", json={"samples": three, **body})
     assert refused.status_code == 422 and refused.json["type"] == "/problems/limit-exceeded", refused.json
     assert refused.json["limit"] == "LAGWISE_MAX_PAIRS"
+
+
+def blocks_data(n=120, seed=21):
+    """Invented: lead and copper at every sample, zinc missing at every fourth."""
+    rng = np.random.default_rng(seed)
+    x, y = rng.uniform(0, 100, n).round(3), rng.uniform(0, 100, n).round(3)
+    trend = np.sin(x / 15.0) + np.cos(y / 20.0)
+    lead = (30 + 5 * trend + rng.normal(0, 1, n)).round(3).tolist()
+    copper = (12 - 2 * trend + rng.normal(0, 1, n)).round(3).tolist()
+    zinc = [None if i % 4 == 0 else v for i, v in enumerate((60 + 8 * trend + rng.normal(0, 2, n)).round(3).tolist())]
+    return x.tolist(), y.tolist(), {"lead": lead, "copper": copper, "zinc": zinc}
+
+
+def alone_request(client, x, y, column, options):
+    keep = [i for i, v in enumerate(column) if v is not None]
+    samples = {"x": [x[i] for i in keep], "y": [y[i] for i in keep], "values": [column[i] for i in keep]}
+    r = client.post("/v1/experimental-variograms", json={"samples": samples, **options})
+    assert r.status_code == 200, r.json
+    return r.json
+
+
+def test_direct_variograms_carry_the_single_variable_class_uncertainties(client):
+    """Reference: each variable's single-variable request on the samples where it was measured
+    (its delete-one-block jackknife, checked against a brute-force recomputation in
+    tests/core/test_class_uncertainty.py and tests/core/test_several_uncertainty.py)."""
+    x, y, columns = blocks_data()
+    options = {"lags": {"width": 10, "count": 6}, "directions": [{"azimuth": 0, "tolerance": 90}, {"azimuth": 45}]}
+    r = client.post("/v1/experimental-variograms", json={"samples": {"x": x, "y": y, "variables": columns}, **options})
+    assert r.status_code == 200, r.json
+    doc = r.json
+    for variable in doc["variables"]:
+        alone = alone_request(client, x, y, columns[variable["name"]], options)
+        assert variable["directions"] == alone["directions"]  # standard errors and intervals included, to the bit
+        assert variable["class_uncertainty"] == alone["parameters"]["class_uncertainty"]
+        assert variable["class_uncertainty"]["blocks"] == 8
+    assert "jackknife" in doc["parameters"]["class_uncertainty"]["method"]
+    assert doc["parameters"]["class_uncertainty"]["blocks"] == 8
+    for cross in doc["cross"]:
+        assert cross["class_uncertainty"]["blocks"] == 8
+        rows = [row for d in cross["directions"] for row in d["classes"] if row["value"] is not None]
+        assert rows and all(row["standard_error"] > 0 for row in rows)
+        for row in rows:
+            lower, upper = row["interval_95"]
+            assert (lower + upper) / 2 == pytest.approx(row["value"], rel=1e-9, abs=1e-12)  # symmetric
+
+
+def test_automatic_classes_with_every_variable_everywhere_equal_the_single_variable_requests(client):
+    x, y, columns = blocks_data()
+    both = {"lead": columns["lead"], "copper": columns["copper"]}
+    r = client.post("/v1/experimental-variograms", json={"samples": {"x": x, "y": y, "variables": both}})
+    assert r.status_code == 200, r.json
+    for variable in r.json["variables"]:
+        alone = alone_request(client, x, y, columns[variable["name"]], {})
+        assert variable["directions"] == alone["directions"]
+
+
+def test_cross_covariances_say_why_they_have_no_standard_errors(client):
+    x, y, columns = blocks_data()
+    r = client.post(
+        "/v1/experimental-variograms",
+        json={"samples": {"x": x, "y": y, "variables": columns}, "statistic": "covariance"},
+    )
+    assert r.status_code == 200, r.json
+    for cross in r.json["cross"]:
+        assert cross["class_uncertainty"] == {"method": None, "blocks": None}
+        rows = [row for d in cross["directions"] for row in d["classes"] if row["value"] is not None]
+        assert rows and all("cross-covariance" in row["uncertainty_reason"] for row in rows)
+        assert all(row["standard_error"] is None for row in rows)
+    assert all(v["class_uncertainty"]["blocks"] == 8 for v in r.json["variables"])

@@ -56,6 +56,11 @@ def test_several_value_columns_give_direct_and_cross_frames(lw, table):
     )
     np.testing.assert_allclose(frames["nitrate"]["value"], alone.to_dataframe()["value"], rtol=1e-9)
     np.testing.assert_array_equal(frames["nitrate"]["pairs"], alone.to_dataframe()["pairs"])
+    # Class standard errors and intervals as the single-variable request's (its own blocks).
+    assert result.variable("nitrate").class_uncertainty == alone.parameters["class_uncertainty"]
+    for column in ("standard_error", "interval_95", "uncertainty_reason"):
+        assert list(frames["nitrate"][column]) == list(alone.to_dataframe()[column])
+    assert result.cross[0].class_uncertainty["blocks"] is not None
     # Cross-semivariance by brute force (pdist), over the pairs with both measured at both ends.
     coords = table[["x", "y"]].to_numpy()
     a, b = table["lead"].to_numpy(), table["toluene"].to_numpy()

@@ -1262,6 +1262,14 @@ class ExperimentalResponse(ResultEnvelope):
 
 
 @always_present()
+class ClassUncertaintySchema(Schema):
+    """How one variogram's class standard errors were found (both null when none were)."""
+
+    method = fields.String(allow_none=True)
+    blocks = fields.Integer(allow_none=True, metadata={"description": "Spatial blocks of the jackknife."})
+
+
+@always_present()
 class VariableVariogramSchema(Schema):
     """The direct experimental variogram of one variable."""
 
@@ -1269,6 +1277,13 @@ class VariableVariogramSchema(Schema):
     unit = fields.String(allow_none=True)
     directions = fields.List(fields.Nested(DirectionResultSchema))
     summary = fields.Nested(SummarySchema, metadata={"description": "The samples where the variable was measured."})
+    class_uncertainty = fields.Nested(
+        ClassUncertaintySchema,
+        metadata={
+            "description": "The delete-one-block jackknife over the variable's own samples, as a single-variable "
+            "request on them would run it."
+        },
+    )
 
 
 @always_present()
@@ -1280,6 +1295,14 @@ class CrossVariogramSchema(Schema):
         metadata={"description": "[a, b]: a is the tail variable of covariance-type statistics."},
     )
     directions = fields.List(fields.Nested(DirectionResultSchema))
+    class_uncertainty = fields.Nested(
+        ClassUncertaintySchema,
+        metadata={
+            "description": "Cross-semivariance: the delete-one-block jackknife over the samples measuring both "
+            "variables, interval value +- t standard_error; the cross-covariance statistics have none "
+            "(uncertainty_reason says why)."
+        },
+    )
 
 
 @always_present()

@@ -152,11 +152,18 @@ def _directions(results, dimension: int) -> list[dict]:
     return [{**d.direction.as_dict(dimension), "classes": d.classes} for d in results]
 
 
-def uncertainty_parameters(result: ExperimentalVariogram) -> dict:
-    """How the classes' standard errors and intervals were found."""
+def uncertainty_parameters(result) -> dict:
+    """How the classes' standard errors and intervals were found (``result.uncertainty``, a plan or None)."""
     if result.uncertainty is None:
         return {"method": None, "blocks": None}
     return {"method": result.uncertainty.method, "blocks": result.uncertainty.blocks}
+
+
+def _shared_uncertainty(plans: list[dict]) -> dict:
+    """The request's class uncertainty: the method when any variogram has one, the blocks when all agree."""
+    methods = {p["method"] for p in plans if p["method"] is not None}
+    blocks = {p["blocks"] for p in plans}
+    return {"method": methods.pop() if methods else None, "blocks": blocks.pop() if len(blocks) == 1 else None}
 
 
 def lag_parameters(result: ExperimentalVariogram) -> dict:
@@ -201,13 +208,23 @@ def several_experimental(result, samples: MultiSampleSet) -> dict:
     """Response body of ``POST /v1/experimental-variograms`` for several variables (without provenance)."""
     dimension = samples.dimension
     first = result.variables[0].result
+    direct = [uncertainty_parameters(v.result) for v in result.variables]
+    cross = [uncertainty_parameters(c) for c in result.cross]
     view = View(
         result,
         variables=[
-            View(v, directions=_directions(v.result.directions, dimension), summary=v.result.summary)
-            for v in result.variables
+            View(
+                v,
+                directions=_directions(v.result.directions, dimension),
+                summary=v.result.summary,
+                class_uncertainty=plan,
+            )
+            for v, plan in zip(result.variables, direct, strict=True)
         ],
-        cross=[View(c, variables=c.names, directions=_directions(c.directions, dimension)) for c in result.cross],
+        cross=[
+            View(c, variables=c.names, directions=_directions(c.directions, dimension), class_uncertainty=plan)
+            for c, plan in zip(result.cross, cross, strict=True)
+        ],
         parameters={
             **sample_parameters(samples),
             "variables": list(samples.names),
@@ -218,7 +235,7 @@ def several_experimental(result, samples: MultiSampleSet) -> dict:
             "directions": [d.direction.as_dict(dimension) for d in first.directions],
             "angle_convention": ANGLES,
             "class_convention": CLASSES,
-            "class_uncertainty": {"method": None, "blocks": None},
+            "class_uncertainty": _shared_uncertainty(direct + cross),
         },
     )
     return SEVERAL_EXPERIMENTAL.dump(view)

@@ -322,21 +322,67 @@ def experimental_variogram(
     prepared = prepare(samples.coords, samples.values)
     passes = pair_passes(lags, statistic, pairs_for_class is not None)
     edges, spacing = _resolve_edges(samples, summary, prepared, lags, resolved, min_pairs, limits, passes)
-    classes = layout(resolved, edges)
-    _check_pairs(samples, prepared, classes.search_radius, len(resolved), passes, limits)
+    _check_pairs(samples, prepared, layout(resolved, edges).search_radius, len(resolved), passes, limits)
+    classes = Classes(resolved, edges, spacing, tuple(warnings))
+    return on_classes(
+        samples, classes, statistic, min_pairs, lags, limits, declustering, pairs_for_class, (summary, prepared)
+    )
+
+
+@dataclass(frozen=True)
+class Classes:
+    """Resolved direction and distance classes of a request.
+
+    Attributes
+    ----------
+    directions : list of DirectionClass
+    edges : list of ndarray
+        Class edges per direction (coordinate units).
+    spacing : float or None
+        Typical spacing the ``equal_width`` classes were built from, else None.
+    notes : tuple of str
+        Warnings of the direction checks.
+    """
+
+    directions: list[DirectionClass]
+    edges: list[np.ndarray]
+    spacing: float | None
+    notes: tuple[str, ...] = ()
+
+
+def on_classes(
+    samples: SampleSet,
+    classes: Classes,
+    statistic: str,
+    min_pairs: int,
+    lags: LagRequest,
+    limits: Limits,
+    declustering: Declustering,
+    pairs_for_class: ScatterRequest | None = None,
+    found: tuple[Summary, PreparedSamples] | None = None,
+) -> ExperimentalVariogram:
+    """The pair engine's variogram of ``samples`` on classes resolved and checked beforehand
+    (the part of :func:`experimental_variogram` after its checks): the class sums, the median's
+    differences, the class uncertainties and the h-scattergram. ``found``: the samples' summary
+    and kernel layout when already at hand."""
+    if found is None:
+        found = summarise(samples.coords, samples.values, declustering), prepare(samples.coords, samples.values)
+    summary, prepared = found
+    resolved, edges = classes.directions, classes.edges
+    packed = layout(resolved, edges)
     check_deadline()
-    table, colocated = accumulate(prepared, classes, ACCUMULATION_MODE[statistic])
+    table, colocated = accumulate(prepared, packed, ACCUMULATION_MODE[statistic])
     check_deadline()
     counts = table[:, :, K.COUNT]
-    medians = _class_medians(statistic, prepared, classes, counts, limits)
-    uncertain, plan = class_uncertainties(statistic, prepared, classes, samples.coords, int(counts.sum()))
+    medians = _class_medians(statistic, prepared, packed, counts, limits)
+    uncertain, plan = class_uncertainties(statistic, prepared, packed, samples.coords, int(counts.sum()))
     check_deadline()
     results = direction_results(statistic, table, edges, medians, min_pairs, prepared, uncertain, resolved)
-    scatter = None if pairs_for_class is None else _scattergram(pairs_for_class, prepared, classes, counts, limits)
-    notes = [*samples.warnings, *warnings, *_class_warnings(results, min_pairs, summary)]
+    scatter = None if pairs_for_class is None else _scattergram(pairs_for_class, prepared, packed, counts, limits)
+    notes = [*samples.warnings, *classes.notes, *_class_warnings(results, min_pairs, summary)]
     if declustering.warning:
         notes.append(declustering.warning)
-    return assembled(results, summary, statistic, min_pairs, lags, colocated, spacing, plan, notes, scatter)
+    return assembled(results, summary, statistic, min_pairs, lags, colocated, classes.spacing, plan, notes, scatter)
 
 
 def direction_results(statistic, table, edges, medians, min_pairs, prepared, uncertain, resolved):

@@ -1116,3 +1116,69 @@ def add_head_squares(squares, vals, pattern, patterns, head):
                     for c in range(p):
                         if mask[c] != 0.0:
                             squares[b, a, c] += wa * vals[j, c]
+
+
+@njit(parallel=True, cache=True)
+def accumulate_cross_blocks(
+    pts, vals, measured, max_d2, dirs, edges, nk, inv_width, first_of, second_of, set_of, labels, nblocks, nthreads,
+    first, last,
+):  # fmt: skip
+    """Cross-semivariance sums of chosen pairs of variables, in total and per spatial block, for the
+    pairs whose first sample is in rows [first, last).
+
+    Cross pair s is (``first_of[s]``, ``second_of[s]``); a pair of samples enters it when both
+    variables are measured at both ends, adding 1, the distance and (a_j - a_i)(b_j - b_i)
+    (columns ``MULTI_COUNT``, ``MULTI_DISTANCE``, ``MULTI_SQUARE``; orientation does not matter)
+    to the total and to the table of each block it touches (once when both ends share it), the
+    blocks being column ``set_of[s]`` of ``labels`` (n, sets). ``vals`` and ``measured`` as for
+    :func:`accumulate_variables`. Returns (total (ndir * kmax, 3, P), by_block (nblocks,
+    ndir * kmax, 3, P)).
+    """
+    n = pts.shape[0]
+    p = vals.shape[1]
+    ndir = dirs.shape[0]
+    kmax = edges.shape[1] - 1
+    bins = ndir * kmax
+    cross = first_of.shape[0]
+    totals = np.zeros((nthreads, bins, 3, cross))
+    tables = np.zeros((nthreads, nblocks, bins, 3, cross))
+    nrows = (last - first + ROW_BLOCK - 1) // ROW_BLOCK
+    for t in prange(nthreads):
+        total = totals[t]
+        table = tables[t]
+        near = np.empty(n, dtype=np.int64)
+        sep = np.empty((4, n))
+        diff = np.empty(p)
+        both = np.empty(p)
+        for blk in range(t, nrows, nthreads):
+            for i in range(first + blk * ROW_BLOCK, min(last, first + (blk + 1) * ROW_BLOCK)):
+                count, _ = sweep_row(pts, i, max_d2, near, sep)
+                for q in range(count):
+                    j, dx, dy, dz, d = near[q], sep[0, q], sep[1, q], sep[2, q], sep[3, q]
+                    for a in range(p):
+                        both[a] = measured[i, a] * measured[j, a]
+                        diff[a] = vals[j, a] - vals[i, a]
+                    for k in range(ndir):
+                        c, _ = classify(dx, dy, dz, d, dirs, k, edges, nk, inv_width)
+                        if c < 0:
+                            continue
+                        b = k * kmax + c
+                        for s in range(cross):
+                            u = first_of[s]
+                            v = second_of[s]
+                            if both[u] * both[v] == 0.0:
+                                continue
+                            product = diff[u] * diff[v]
+                            total[b, MULTI_COUNT, s] += 1.0
+                            total[b, MULTI_DISTANCE, s] += d
+                            total[b, MULTI_SQUARE, s] += product
+                            li = labels[i, set_of[s]]
+                            lj = labels[j, set_of[s]]
+                            table[li, b, MULTI_COUNT, s] += 1.0
+                            table[li, b, MULTI_DISTANCE, s] += d
+                            table[li, b, MULTI_SQUARE, s] += product
+                            if lj != li:
+                                table[lj, b, MULTI_COUNT, s] += 1.0
+                                table[lj, b, MULTI_DISTANCE, s] += d
+                                table[lj, b, MULTI_SQUARE, s] += product
+    return totals.sum(axis=0), tables.sum(axis=0)

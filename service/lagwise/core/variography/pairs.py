@@ -573,3 +573,45 @@ def accumulate_squares(
     distances = np.einsum("kgh,gab,hab->kab", by_pattern[1], both, both)
     shape = (ndir, kmax, p, p)
     return squares.reshape(shape), counts.reshape(shape), distances.reshape(shape), colocated[0]
+
+
+def accumulate_cross_by_block(
+    prepared: PreparedVariables, classes: ClassLayout, pairs: np.ndarray, set_of: np.ndarray, labels: np.ndarray
+) -> tuple[np.ndarray, np.ndarray]:
+    """Cross-semivariance sums of the pairs of variables ``pairs`` (P, 2), in total and per spatial
+    block, over ranges of rows (deadline checked between them).
+
+    ``labels`` (n, sets) holds each sample's block (prepared order) in each block set, -1 outside
+    it; cross pair s takes column ``set_of[s]``. Returns (total (ndir * kmax, 3, P), by_block
+    (nblocks, ndir * kmax, 3, P)); see :func:`lagwise.core.variography.kernels.accumulate_cross_blocks`.
+    """
+    radius = classes.search_radius
+    bins = classes.table.shape[0] * classes.kmax
+    nblocks = int(labels.max()) + 1
+    total = np.zeros((bins, 3, pairs.shape[0]))
+    by_block = np.zeros((nblocks, bins, 3, pairs.shape[0]))
+
+    def run(first: int, last: int) -> None:
+        part, parts = K.accumulate_cross_blocks(
+            prepared.points,
+            prepared.values,
+            prepared.measured,
+            radius * radius,
+            classes.table,
+            classes.edges,
+            classes.counts,
+            classes.inv_width,
+            np.ascontiguousarray(pairs[:, 0]),
+            np.ascontiguousarray(pairs[:, 1]),
+            set_of,
+            labels,
+            nblocks,
+            numba.get_num_threads(),
+            first,
+            last,
+        )
+        total[:] += part
+        by_block[:] += parts
+
+    in_chunks(sweep_visits(prepared.points[:, 0], radius), run)
+    return total, by_block

@@ -5,7 +5,14 @@ Conventions
 * Direct statistics of each variable are those of one variable
   (:mod:`lagwise.core.variography.statistics`), over the pairs where the variable is
   measured at both ends; they equal a single-variable request on the samples where it
-  was measured (same classes; class standard errors are not computed here).
+  was measured whenever the classes agree (explicit classes, or automatic ones when every
+  variable is measured everywhere), class standard errors and 95 % intervals included:
+  the delete-one-block jackknife of :mod:`lagwise.core.variography.uncertainty` over the
+  variable's own blocks, under the single-variable rules (skipped above
+  ``MAX_UNCERTAINTY_PAIRS``, none for the median-based statistic). The variables whose
+  jackknife runs take their sums from one pass of
+  :func:`lagwise.core.variography.shared.on_shared_classes` (equal to the single-variable
+  request to the bit); the others keep this module's sums (equal up to the order of summation).
 * Cross statistics of the pair of variables (a, b), over the pairs where what they need
   is measured (N such pairs in the class; tail and head as for one variable):
 
@@ -20,6 +27,10 @@ Conventions
   The cross-semivariance is symmetric in a and b; the cross-covariance is not
   (C_ab(h) = C_ba(-h)). The other statistics have no cross form: with them only the
   direct variograms are returned (a warning says so).
+* Class standard errors of the cross-semivariance: the same jackknife over the blocks of
+  the samples measuring both variables (:mod:`lagwise.core.variography.cross_uncertainty`).
+  The cross-covariance statistics have none: their pairs take one variable at the tail
+  and the other at the head, so no one set of samples (and of blocks) is theirs.
 * Distance classes are resolved on all sample locations (for ``auto``, the extent,
   spacing and pair counts of every location), so every variable and pair shares them.
 * One pass: semivariances of every variable and pair come from one sweep whose work
@@ -45,9 +56,11 @@ from ..deadline import check_deadline
 from ..errors import FieldIssue, InvalidInput
 from ..limits import Limits
 from . import kernels as K
+from .cross_uncertainty import cross_uncertainties
 from .directions import DirectionClass
 from .experimental import (
     DEFAULT_MIN_PAIRS,
+    Classes,
     ClassRow,
     DirectionResult,
     ExperimentalVariogram,
@@ -55,6 +68,8 @@ from .experimental import (
     _class_warnings,
     _resolve_edges,
     _rows,
+    assembled,
+    on_classes,
     pair_passes,
     validate_options,
 )
@@ -70,8 +85,9 @@ from .pairs import (
     prepare_variables,
     sweep_visits,
 )
+from .shared import Member, on_shared_classes
 from .statistics import ACCUMULATION_MODE, CONSTANT_ENDS, COVARIANCE_TYPE, NO_PAIRS
-from .uncertainty import ClassUncertainty
+from .uncertainty import MAX_UNCERTAINTY_PAIRS, UncertaintyPlan, plan_blocks, undefined
 
 CROSS_MEANING = {
     "semivariance": "(1/2N) sum (a_head - a_tail)(b_head - b_tail), pairs with a and b measured at both ends",
@@ -80,7 +96,10 @@ CROSS_MEANING = {
     "correlogram": "cross-covariance / (s_a,tail s_b,head), pairs with a at the tail and b at the head",
 }
 CROSS_STATISTICS = tuple(CROSS_MEANING)
-NOT_COMPUTED = "class standard errors are computed for one variable per request; send one variable for them"
+CROSS_COVARIANCE_UNCERTAINTY = (
+    "not computed for the cross-covariance statistics: their pairs take one variable at the tail and the other "
+    "at the head, so no one set of samples (and of spatial blocks) is theirs; the cross-semivariance has them"
+)
 # Work per pair of the several-variable kernels relative to the single-variable kernel,
 # measured on the variables benchmark (bench/variables.py): each variable adds about a
 # twelfth with the semivariance, each p x p entry about a twelfth with covariances.
@@ -113,10 +132,14 @@ class CrossVariogram:
     names : tuple of str
         (a, b): a is the tail variable of covariance-type statistics.
     directions : tuple of DirectionResult
+    uncertainty : UncertaintyPlan or None
+        Blocks of the cross-semivariance's class uncertainties
+        (:mod:`lagwise.core.variography.cross_uncertainty`); None when none were computed.
     """
 
     names: tuple[str, str]
     directions: tuple[DirectionResult, ...]
+    uncertainty: UncertaintyPlan | None = None
 
 
 @dataclass(frozen=True)
@@ -189,21 +212,70 @@ def work_per_pair(statistic: str, variables: int) -> float:
     return 1.0 + variables * WORK_PER_ADDED_SUM
 
 
-def _uncertain(count: int) -> list[ClassUncertainty]:
-    return [ClassUncertainty(None, None, NOT_COMPUTED)] * count
+def _reasons(samples: MultiSampleSet, classes, statistic: str, diagonal: np.ndarray) -> list:
+    """Why each variable's class uncertainties are undefined (None: its jackknife runs), by the
+    single-variable rule on its own samples and its pairs in the classes (``diagonal`` counts)."""
+    shape = (classes.table.shape[0], classes.kmax)
+    reasons = []
+    for a in range(samples.count):
+        xs = np.sort(samples.coords[~np.isnan(samples.values[:, a]), 0])
+        work = max(int(diagonal[:, :, K.COUNT, a].sum()), int(sweep_visits(xs, classes.search_radius).sum()))
+        reasons.append(plan_blocks(statistic, xs.size, shape, work)[1])
+    return reasons
 
 
-def _direct(statistic, table, edges, min_pairs, means, scales, names, medians):
-    """Direct rows per variable: ``table`` (ndir, kmax, ACCUMULATORS, p) in single-variable columns."""
-    out = []
-    for a in range(len(names)):
-        prepared = PreparedSamples(np.empty((0, 3)), np.empty(0), float(means[a]), float(scales[a]), np.empty(0))
-        out.append(
-            tuple(
-                _rows(statistic, table[k, :, :, a], e, medians[a][k], min_pairs, prepared, _uncertain(len(e) - 1))
-                for k, e in enumerate(edges)
-            )
+def _jackknifed(samples: MultiSampleSet, chosen: list[int], classes: Classes, statistic, min_pairs, lags, limits):
+    """The variograms of the ``chosen`` variables with their class uncertainties: one shared pass
+    when its sweep over every location stays within ``MAX_UNCERTAINTY_PAIRS`` visits (the
+    single-variable jackknife's bound) and its tables fit, else each variable's own passes."""
+    members = [
+        Member(samples.variable(samples.names[a]), np.flatnonzero(~np.isnan(samples.values[:, a]))) for a in chosen
+    ]
+    radius = layout(classes.directions, classes.edges).search_radius
+    if int(sweep_visits(np.sort(samples.coords[:, 0]), radius).sum()) <= MAX_UNCERTAINTY_PAIRS:
+        found = on_shared_classes(
+            samples.coords, members, classes, statistic=statistic, min_pairs=min_pairs, lags=lags, limits=limits
         )
+        if found is not None:
+            return found
+    return [
+        on_classes(
+            m.samples, classes, statistic, min_pairs, lags, limits, decluster(m.samples.coords, m.samples.values)
+        )
+        for m in members
+    ]
+
+
+def _direct(samples, classes: Classes, statistic, min_pairs, lags, limits, sums, reasons, colocated):
+    """Every variable's direct variogram: ``sums`` = (table (ndir, kmax, ACCUMULATORS, p) in
+    single-variable columns, medians per variable, means, scales) of this module's pass, used
+    for the variables whose jackknife does not run (``reasons``)."""
+    table, medians, means, scales = sums
+    chosen = [a for a, reason in enumerate(reasons) if reason is None]
+    found = {}
+    if chosen:
+        found = dict(
+            zip(chosen, _jackknifed(samples, chosen, classes, statistic, min_pairs, lags, limits), strict=True)
+        )
+    shape = (len(classes.directions), max(len(e) - 1 for e in classes.edges))
+    out = []
+    for a, name in enumerate(samples.names):
+        if a in found:
+            out.append(found[a])
+            continue
+        single = samples.variable(name)
+        declustering = decluster(single.coords, single.values)
+        summary = summarise(single.coords, single.values, declustering)
+        prepared = PreparedSamples(np.empty((0, 3)), np.empty(0), float(means[a]), float(scales[a]), np.empty(0))
+        uncertain = undefined(reasons[a], shape)
+        results = tuple(
+            DirectionResult(d, _rows(statistic, table[k, :, :, a], e, medians[a][k], min_pairs, prepared, uncertain[k]))
+            for k, (d, e) in enumerate(zip(classes.directions, classes.edges, strict=True))
+        )
+        notes = [*single.warnings, *classes.notes, *_class_warnings(results, min_pairs, summary)]
+        if declustering.warning:
+            notes.append(declustering.warning)
+        out.append(assembled(results, summary, statistic, min_pairs, lags, colocated, classes.spacing, None, notes))
     return out
 
 
@@ -260,12 +332,24 @@ def _cross_value(statistic, row, mean_a, mean_b, scale):
     return centred / (tail_sd * head_sd), None, moments
 
 
-def _cross_rows(statistic, table, edges, min_pairs, mean_a, mean_b, scale) -> tuple[ClassRow, ...]:
+def _cross_uncertain(statistic, prepared, samples, classes, table, limits) -> dict:
+    """(rows[k][c], plan) of the class uncertainties of every cross pair (a, b), a < b."""
+    shape = (classes.table.shape[0], classes.kmax)
+    if statistic != "semivariance":
+        pairs = [(a, b) for a in range(samples.count) for b in range(a + 1, samples.count)]
+        return {pair: (undefined(CROSS_COVARIANCE_UNCERTAINTY, shape), None) for pair in pairs}
+    return cross_uncertainties(prepared, samples.coords, classes, table[:, :, K.COUNT], limits)
+
+
+def _cross_rows(statistic, table, edges, min_pairs, moments_of, uncertain) -> tuple[ClassRow, ...]:
+    """The classes of one direction of a cross pair: ``moments_of`` = (mean of a, mean of b, scale)."""
+    mean_a, mean_b, scale = moments_of
     rows = []
     for c in range(len(edges) - 1):
         row = table[c]
         n = int(row[K.COUNT])
         value, reason, moments = _cross_value(statistic, row, mean_a, mean_b, scale)
+        known = value is not None
         rows.append(
             ClassRow(
                 lower=float(edges[c]),
@@ -275,7 +359,9 @@ def _cross_rows(statistic, table, edges, min_pairs, mean_a, mean_b, scale) -> tu
                 value=value,
                 reason=reason,
                 sparse=n < min_pairs,
-                uncertainty_reason=NOT_COMPUTED if value is not None else reason,
+                standard_error=uncertain[c].standard_error if known else None,
+                interval_95=uncertain[c].interval_95 if known else None,
+                uncertainty_reason=uncertain[c].reason if known else reason,
                 **moments,
             )
         )
@@ -373,36 +459,23 @@ def several_variograms(
             one = prepare(single.coords, single.values)
             counts = diagonal[:, :, K.COUNT, len(medians)]
             medians.append(_class_medians(statistic, one, classes, counts, limits))
-    direct = _direct(statistic, diagonal, edges, min_pairs, prepared.means, prepared.scales, samples.names, medians)
+    given = Classes(resolved, edges, spacing, tuple(warnings))
+    reasons = _reasons(samples, classes, statistic, diagonal)
+    sums = (diagonal, medians, prepared.means, prepared.scales)
+    direct = _direct(samples, given, statistic, min_pairs, lags, limits, sums, reasons, colocated)
     variables = []
-    for a, name in enumerate(samples.names):
-        single = samples.variable(name)
-        summary = summarise(single.coords, single.values, decluster(single.coords, single.values))
-        results = tuple(DirectionResult(d, direct[a][k]) for k, d in enumerate(resolved))
-        notes = [f"variable {name!r}: {w}" for w in _class_warnings(results, min_pairs, summary)]
-        warnings.extend(notes)
-        variables.append(
-            VariableVariogram(
-                name,
-                samples.units[a],
-                ExperimentalVariogram(
-                    directions=results,
-                    summary=summary,
-                    statistic=statistic,
-                    min_pairs=min_pairs,
-                    lag_method=lags.method,
-                    colocated_pairs=colocated,
-                    scattergram=None,
-                    spacing=spacing,
-                    warnings=tuple(notes),
-                ),
-            )
+    for a, (name, result) in enumerate(zip(samples.names, direct, strict=True)):
+        warnings.extend(
+            f"variable {name!r}: {w}" for w in _class_warnings(result.directions, min_pairs, result.summary)
         )
+        variables.append(VariableVariogram(name, samples.units[a], result))
     cross = []
     if statistic in CROSS_STATISTICS:
+        found = _cross_uncertain(statistic, prepared, samples, classes, table, limits)
         for a in range(p):
             for b in range(a + 1, p):
                 scale = float(max(prepared.scales[a], prepared.scales[b]))
+                uncertain, plan = found[(a, b)]
                 rows = tuple(
                     DirectionResult(
                         d,
@@ -411,14 +484,13 @@ def several_variograms(
                             table[k, :, :, a, b],
                             edges[k],
                             min_pairs,
-                            prepared.means[a],
-                            prepared.means[b],
-                            scale,
+                            (prepared.means[a], prepared.means[b], scale),
+                            uncertain[k],
                         ),
                     )
                     for k, d in enumerate(resolved)
                 )
-                cross.append(CrossVariogram((samples.names[a], samples.names[b]), rows))
+                cross.append(CrossVariogram((samples.names[a], samples.names[b]), rows, plan))
     elif p > 1:
         warnings.append(f"{statistic} has no cross form; only the direct variograms are returned")
     return SeveralVariograms(

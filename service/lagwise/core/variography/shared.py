@@ -42,6 +42,7 @@ from ..limits import Limits
 from . import kernels as K
 from .experimental import (
     DEFAULT_MIN_PAIRS,
+    Classes,
     ExperimentalVariogram,
     _check_pairs,
     _class_warnings,
@@ -49,6 +50,7 @@ from .experimental import (
     assembled,
     direction_results,
     experimental_variogram,
+    on_classes,
     pair_passes,
     validate_options,
 )
@@ -259,30 +261,111 @@ def shared_variograms(
             blocks = [plan_blocks(statistic, member.samples.size, shape, None)[0] for shape in shapes]
             own = prepare(member.samples.coords, member.samples.values)
             plans[a] = _Plan(own, resolved, warnings, edges, spacing, blocks)
+
+    def alone(a: int, s: int) -> ExperimentalVariogram:
+        with pointers_under(bases[s]):
+            return experimental_variogram(
+                members[a].samples, lags=lags, directions=direction_sets[s], statistic=statistic,
+                min_pairs=min_pairs, limits=limits, declustering=declusterings[a],
+            )  # fmt: skip
+
+    context = _Context(summaries, declusterings, statistic, min_pairs, lags, limits)
+    return _swept(coords, members, groups, in_group, plans, context, alone)
+
+
+def on_shared_classes(
+    coords: np.ndarray,
+    members: list[Member],
+    classes: Classes,
+    *,
+    statistic: str = "semivariance",
+    min_pairs: int = DEFAULT_MIN_PAIRS,
+    lags: LagRequest = LagRequest(),
+    limits: Limits = Limits(),
+) -> list[ExperimentalVariogram] | None:
+    """Every member's experimental variogram on the same classes, resolved and checked beforehand
+    (e.g. on every location of a several-variable request), the jackknife's sums from one pass
+    over the pairs.
+
+    Each equals :func:`lagwise.core.variography.experimental.on_classes` of the member's samples
+    on those classes, class uncertainties included (the member's own blocks), to the bit.
+
+    Parameters
+    ----------
+    coords : ndarray, shape (n, d)
+        Every location (working coordinates); members index them.
+    members : list of Member
+    classes : Classes
+        One direction set and its edges, shared by every member.
+    statistic, min_pairs, lags, limits
+        As for :func:`shared_variograms`.
+
+    Returns
+    -------
+    list of ExperimentalVariogram, or None
+        In the members' order; None when the pass's tables would not fit half of
+        ``limits.memory_budget_bytes``.
+    """
+    if statistic not in SHARED_STATISTICS:
+        raise ValueError(f"the shared pass computes {', '.join(SHARED_STATISTICS)}")
+    in_group, groups = _groups(members, coords.shape[0])
+    declusterings = [m.declustering or decluster(m.samples.coords, m.samples.values) for m in members]
+    summaries = [summarise(m.samples.coords, m.samples.values, w) for m, w in zip(members, declusterings, strict=True)]
+    shape = (len(classes.directions), max(len(e) - 1 for e in classes.edges))
+    plans: list[_Plan | None] = []
+    for member in members:
+        own = prepare(member.samples.coords, member.samples.values)
+        blocks = plan_blocks(statistic, member.samples.size, shape, None)[0]
+        plans.append(
+            _Plan(own, [classes.directions], [list(classes.notes)], [classes.edges], [classes.spacing], [blocks])
+        )
+
+    def alone(a: int, s: int) -> ExperimentalVariogram:
+        member = members[a]
+        return on_classes(member.samples, classes, statistic, min_pairs, lags, limits, declusterings[a])
+
+    context = _Context(summaries, declusterings, statistic, min_pairs, lags, limits)
+    found = _swept(coords, members, groups, in_group, plans, context, alone)
+    return None if found is None else [results[0] for results in found]
+
+
+@dataclass(frozen=True)
+class _Context:
+    """What the assembly of every member's variograms needs besides the pass's sums."""
+
+    summaries: list
+    declusterings: list
+    statistic: str
+    min_pairs: int
+    lags: LagRequest
+    limits: Limits
+
+
+def _swept(coords, members, groups, in_group, plans, context: _Context, alone):
+    """Run the pass and assemble ``result[a][s]`` for member a and direction set s (its own sums
+    from its single-variable pass); ``alone(a, s)`` computes one by itself when its blocks differ
+    from the pass's. None when the pass's tables would not fit half the memory budget."""
     check_deadline()
-    swept = _pass(coords, members, groups, in_group, plans, statistic, limits)
+    swept = _pass(coords, members, groups, in_group, plans, context.statistic, context.limits)
     if swept is None:
         return None
     plain, by_block, colocated, offsets, kmax = swept
     group_of = {a: g for g, group in enumerate(groups) for a in group}
-    mode = ACCUMULATION_MODE[statistic]
+    mode = ACCUMULATION_MODE[context.statistic]
     out = []
     for a, member in enumerate(members):
         plan = plans[a]
         assert plan is not None
         results = []
-        for s, directions in enumerate(direction_sets):
+        for s in range(len(plan.edges)):
             own, _ = accumulate(plan.prepared, layout(plan.resolved[s], plan.edges[s]), mode)
             parts = (own, plain[a, s], by_block[a, s], offsets[group_of[a]][s], kmax, int(colocated[a]))
-            found = _variogram(member, plan, s, parts, summaries[a], declusterings[a], statistic, min_pairs, lags)
-            if found is None:
-                # Fewer blocks for this set than the pass kept: computed alone (rare: very many classes).
-                with pointers_under(bases[s]):
-                    found = experimental_variogram(
-                        member.samples, lags=lags, directions=directions, statistic=statistic, min_pairs=min_pairs,
-                        limits=limits, declustering=declusterings[a],
-                    )  # fmt: skip
-            results.append(found)
+            found = _variogram(
+                member, plan, s, parts, context.summaries[a], context.declusterings[a], context.statistic,
+                context.min_pairs, context.lags,
+            )  # fmt: skip
+            # None: fewer blocks for this set than the pass kept; computed alone (rare: very many classes).
+            results.append(alone(a, s) if found is None else found)
         out.append(results)
     return out
 

@@ -167,22 +167,24 @@ def plan_blocks(statistic: str, samples: int, shape: tuple[int, int], work: int 
 
 
 def from_block_sums(
-    statistic: str, total: np.ndarray, by_block: np.ndarray, prepared, shape: tuple[int, int]
+    statistic: str, total: np.ndarray, by_block: np.ndarray, prepared, shape: tuple[int, int], signed: bool = False
 ) -> list[list[ClassUncertainty]]:
     """Class uncertainties from the total sums (bins, ACCUMULATORS) and per-block sums (blocks, bins,
-    ACCUMULATORS), bin = direction x ``shape[1]`` + class; ``prepared`` gives the mean and scale."""
+    ACCUMULATORS), bin = direction x ``shape[1]`` + class; ``prepared`` gives the mean and scale.
+    ``signed``: the statistic may take either sign (a cross-semivariance), so the interval is
+    theta +- t SE whatever the statistic."""
     factor = float(student_t.ppf(0.975, by_block.shape[0] - 1))
     rows = []
     for k in range(shape[0]):
         row = []
         for c in range(shape[1]):
             b = k * shape[1] + c
-            row.append(_one_class(statistic, total[b], by_block[:, b], prepared, factor))
+            row.append(_one_class(statistic, total[b], by_block[:, b], prepared, factor, signed))
         rows.append(row)
     return rows
 
 
-def _one_class(statistic, total, by_block, prepared, factor) -> ClassUncertainty:
+def _one_class(statistic, total, by_block, prepared, factor, signed=False) -> ClassUncertainty:
     if total[K.COUNT] == 0:
         return ClassUncertainty(None, None, "no pairs in this class")
     touched = int(np.count_nonzero(by_block[:, K.COUNT]))
@@ -203,7 +205,7 @@ def _one_class(statistic, total, by_block, prepared, factor) -> ClassUncertainty
     spread = np.array(replicates)
     blocks = spread.size
     se = math.sqrt((blocks - 1) / blocks * float(np.sum((spread - spread.mean()) ** 2)))
-    if statistic in COVARIANCE_TYPE or full <= 0.0:
+    if signed or statistic in COVARIANCE_TYPE or full <= 0.0:
         return ClassUncertainty(se, (full - factor * se, full + factor * se))
     ratio = factor * se / full
     if ratio > LOG_RATIO_CAP:
