@@ -100,9 +100,10 @@ def main(argv: list[str]) -> int:
     if command == "run":
         return run()
     if command == "test":
-        return pytest("-q", *rest)
+        # --durations: every CI log names the slowest tests, so a creeping suite is seen early.
+        return pytest("-q", "--durations=15", *rest)
     if command == "test-slow":
-        return pytest("-q", "-m", "slow", *rest)
+        return pytest("-q", "--durations=15", "-m", "slow", *rest)
     if command == "bench":
         ensure_environment()
         return subprocess.run([str(PYTHON), str(ROOT / "bench" / "run.py"), *rest], cwd=ROOT).returncode
