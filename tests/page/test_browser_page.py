@@ -208,3 +208,36 @@ def test_bad_csv_shows_an_error_beside_the_upload(browser, url, tmp_path, text, 
     browser.find_element(By.ID, "run").click()
     WebDriverWait(browser, 10).until(lambda d: d.find_element(By.ID, "csv-error").text != "")
     assert message in browser.find_element(By.ID, "csv-error").text
+
+
+@pytest.mark.parametrize(
+    "text, header, rows",
+    [
+        # RFC 4180: a quoted field holds the separator, quotes written twice and line breaks; CRLF ends records.
+        (
+            'x,y,value,id\r\n1,2,3,"A, north"\r\n4,5,6,"say ""hi"""\r\n',
+            ["x", "y", "value", "id"],
+            [["1", "2", "3", "A, north"], ["4", "5", "6", 'say "hi"']],
+        ),
+        ('x;y;value\n1;2;"7"\n\n3;4;"two\nlines"\n', ["x", "y", "value"], [["1", "2", "7"], ["3", "4", "two\nlines"]]),
+        ('"x","y","value"\n1,2,3\n', ["x", "y", "value"], [["1", "2", "3"]]),
+        ('"a,b";c\n1;2\n', ["a,b", "c"], [["1", "2"]]),
+        ("\ufeffx\ty\tvalue\n1\t2\t3", ["x", "y", "value"], [["1", "2", "3"]]),
+    ],
+)
+def test_quoted_csv_fields_are_read(browser, url, text, header, rows):
+    browser.get(url + "/")
+    assert browser.execute_script("return parseCsv(arguments[0])", text) == {"header": header, "rows": rows}
+
+
+@pytest.mark.parametrize(
+    "text, message",
+    [
+        ('x,y,value\n1,2,"3\n', "Row 2 has a quoted field that is not closed."),
+        ('x,y,value\n1,2,"3"x\n', "Row 2 has text after the closing quote"),
+    ],
+)
+def test_broken_quotes_are_named(browser, url, text, message):
+    browser.get(url + "/")
+    error = browser.execute_script("try { parseCsv(arguments[0]); return ''; } catch (e) { return e.message; }", text)
+    assert error.startswith(message)
