@@ -1266,7 +1266,7 @@ class ClassUncertaintySchema(Schema):
     """How one variogram's class standard errors were found (both null when none were)."""
 
     method = fields.String(allow_none=True)
-    blocks = fields.Integer(allow_none=True, metadata={"description": "Spatial blocks of the jackknife."})
+    blocks = StrictInteger(allow_none=True, metadata={"description": "Spatial blocks of the jackknife."})
 
 
 @always_present()
