@@ -30,7 +30,8 @@ Sections
   classes up to 500, omnidirectional and 4 direction classes (tolerance 22.5 degrees), both
   cores; beside it ``scipy.spatial.distance.pdist`` + ``numpy.histogram`` at 20,000 samples
   (its pairs fit in memory there; rates compared) and the kernel of :data:`OLD_KERNEL_COMMIT`
-  run in the same invocation from that commit's sources (``git archive``).
+  (the x-sorted sweep, before the column sweep) run in the same invocation from that commit's
+  sources (``git archive``).
 * ``parsing``: a 1,000,000-sample request (x, y, values) read by the web layer's one parsing
   path (body, schema validation) and hashed (``provenance.input_sha256``), as an Arrow
   multipart body and as JSON.
@@ -64,8 +65,9 @@ GiB = 1024**3
 KERNEL_SAMPLES = 50_000
 PDIST_SAMPLES = 20_000
 PDIST_CHUNK = 20_000_000  # pairs of the direction baseline handled at a time (bounded memory)
-# The kernel before the spans and interleaved tables; its figure is measured in the same run, from that commit's sources.
-OLD_KERNEL_COMMIT = "cc625da"
+# The kernel before the column sweep (the x-sorted sweep: every later sample within the radius along x,
+# in spans); its figure is measured in the same run, from that commit's sources.
+OLD_KERNEL_COMMIT = "d476c02"
 PARSE_SAMPLES = 1_000_000
 SDK_SAMPLES = 1_000_000
 # The SDK before it sent numpy columns to Arrow as they are (it built Python lists first).
@@ -642,9 +644,10 @@ def exact_kernel() -> list[dict]:
                     "target": ">= 3e8 pairs/s",
                     "met": rate >= 3e8,
                     "detail": f"{cpu_rate:.3g} pairs per CPU second{cycles} (two quiet cores: {2 * cpu_rate:.3g} "
-                    f"pairs/s; best CPU time of two runs {ours_cpu:.2f} s); "
-                    f"kernel of {OLD_KERNEL_COMMIT} in this run {old_rate:.3g} pairs/s wall (x{rate / old_rate:.2f}), "
-                    f"{old_cpu_rate:.3g} per CPU second (x{cpu_rate / old_cpu_rate:.2f}); "
+                    f"pairs/s, {'at' if 2 * cpu_rate >= 3e8 else 'under'} the target, x{2 * cpu_rate / 3e8:.2f}; "
+                    f"best CPU time of two runs {ours_cpu:.2f} s); "
+                    f"kernel of {OLD_KERNEL_COMMIT} (x-sorted sweep) in this run {old_rate:.3g} pairs/s wall "
+                    f"(x{rate / old_rate:.2f}), {old_cpu_rate:.3g} per CPU second (x{cpu_rate / old_cpu_rate:.2f}); "
                     f"pdist + histogram at {PDIST_SAMPLES:,} samples {base_rate:.3g} pairs/s (x{rate / base_rate:.1f})",
                 }
             )

@@ -313,7 +313,7 @@ def bin_span_four(cols, i, start, stop, max_d2, sectors, padded, lut, inv_cell, 
 
 @njit(cache=True)
 def bin_span(
-    cols, i, start, stop, max_d2, sectors, omni, padded, lut, inv_cell, shared, origin, inv_step, kmax, scratch, marks
+    cols, i, start, stop, max_d2, sectors, omni, four, padded, lut, inv_cell, shared, origin, inv_step, kmax, scratch, marks
 ):
     """Bins of the candidate pairs (i, j), j in [start, stop), in loops without branches.
 
@@ -324,7 +324,8 @@ def bin_span(
     with the pair's bin ``best * (kmax + 1) + class``, the directions that admit the pair and
     ``best``, the last of them; the class is ``kmax`` (a dropped bin) when the pair lies outside
     the radius or the classes, is co-located, or is admitted by no direction or by several
-    (those take :func:`add_shared_pair`); ``omni`` means one direction that admits every pair.
+    (those take :func:`add_shared_pair`); ``omni`` means one direction that admits every pair,
+    ``four`` up to four directions without band sharing equal-width classes (:func:`bin_span_four`).
     Returns the co-located pairs of the span and the pairs admitted by several directions.
 
     Every loop reads and writes contiguous rows with indices from 0 (the candidates' columns are
@@ -332,7 +333,7 @@ def bin_span(
     and, for equal-width classes, the class by floor division, and the directions are tested four
     to a loop.
     """
-    if shared and inv_step > 0.0 and not omni and sectors.shape[1] == 4 and np.all(sectors[3] == np.inf):
+    if four:
         return bin_span_four(cols, i, start, stop, max_d2, sectors, padded, lut, inv_cell, origin, inv_step, kmax,
                              scratch, marks)  # fmt: skip
     xs, ys, zs, vs = cols[0, start:stop], cols[1, start:stop], cols[2, start:stop], cols[3, start:stop]
@@ -537,7 +538,7 @@ def scatter_span(table, copy_rows, cols, i, start, stop, dirs, mode, mean, scrat
 
 
 @njit(cache=True)
-def add_range(table, copy_rows, cols, i, lo, hi, max_d2, sectors, omni, dirs, padded, lut, inv_cell, shared,
+def add_range(table, copy_rows, cols, i, lo, hi, max_d2, sectors, omni, four, dirs, padded, lut, inv_cell, shared,
               origin, inv_step, kmax, mode, mean, scratch, marks):  # fmt: skip
     """Add the pairs (i, j), j in [lo, hi), of the column-ordered samples to their bins, :data:`SPAN`
     candidates at a time (:func:`bin_span`, :func:`scatter_span`, :func:`add_shared_pair`);
@@ -546,7 +547,7 @@ def add_range(table, copy_rows, cols, i, lo, hi, max_d2, sectors, omni, dirs, pa
     for start in range(lo, hi, SPAN):
         stop = min(hi, start + SPAN)
         zero, several = bin_span(
-            cols, i, start, stop, max_d2, sectors, omni, padded, lut, inv_cell, shared, origin, inv_step, kmax,
+            cols, i, start, stop, max_d2, sectors, omni, four, padded, lut, inv_cell, shared, origin, inv_step, kmax,
             scratch, marks,
         )  # fmt: skip
         zero_pairs += zero
@@ -616,6 +617,7 @@ def accumulate_horizontal(
     sectors[2, :ndir] = dirs[:, 11]
     sectors[3, :ndir] = dirs[:, 3]
     omni = ndir == 1 and dirs[0, 11] <= 0.0 and dirs[0, 3] == np.inf
+    four = shared and inv_step > 0.0 and not omni and ndir <= 4 and np.all(sectors[3] == np.inf)
     for t in prange(nthreads):
         table = tables[t]
         zero_pairs = 0
@@ -628,7 +630,7 @@ def accumulate_horizontal(
                 yi = ys[i]
                 stop = i + 1 + np.searchsorted(ys[i + 1 : starts[c + 1]], yi + reach, side="right")
                 zero_pairs += add_range(
-                    table, copy_rows, cols, i, i + 1, stop, max_d2, sectors, omni, dirs, padded, lut, inv_cell,
+                    table, copy_rows, cols, i, i + 1, stop, max_d2, sectors, omni, four, dirs, padded, lut, inv_cell,
                     shared, origin, inv_step, kmax, mode, mean, scratch, marks,
                 )  # fmt: skip
                 for c2 in range(c + 1, ncol):
@@ -644,7 +646,7 @@ def accumulate_horizontal(
                     lo = s0 + np.searchsorted(run, yi - h, side="left")
                     hi = s0 + np.searchsorted(run, yi + h, side="right")
                     zero_pairs += add_range(
-                        table, copy_rows, cols, i, lo, hi, max_d2, sectors, omni, dirs, padded, lut, inv_cell,
+                        table, copy_rows, cols, i, lo, hi, max_d2, sectors, omni, four, dirs, padded, lut, inv_cell,
                         shared, origin, inv_step, kmax, mode, mean, scratch, marks,
                     )  # fmt: skip
         colocated[t] = zero_pairs
