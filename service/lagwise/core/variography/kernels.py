@@ -313,8 +313,9 @@ def bin_span_four(cols, i, start, stop, max_d2, sectors, padded, lut, inv_cell, 
 
 @njit(cache=True)
 def bin_span(
-    cols, i, start, stop, max_d2, sectors, omni, four, padded, lut, inv_cell, shared, origin, inv_step, kmax, scratch, marks
-):
+    cols, i, start, stop, max_d2, sectors, omni, four, padded, lut, inv_cell, shared, origin, inv_step, kmax, scratch,
+    marks,
+):  # fmt: skip
     """Bins of the candidate pairs (i, j), j in [start, stop), in loops without branches.
 
     ``cols`` holds the rows x, y, z and centred value of the samples; ``sectors`` the rows
