@@ -524,13 +524,16 @@ def scatter_span(table, copy_rows, cols, i, start, stop, dirs, mode, mean, scrat
     sd, sv = scratch[2], scratch[3]
     span = stop - start
     if mode == MODE_COUNT or mode == MODE_SQUARE:
+        # The table as one flat row with unsigned offsets: no negative-index wrap-around per access.
+        flat = table.reshape(table.size)
+        width = np.uint64(ACCUMULATORS)
         for q in range(span):
-            b = bins[q] + (q & (COPIES - 1)) * copy_rows
-            table[b, COUNT] += 1.0
-            table[b, DISTANCE] += sd[q]
+            b = np.uint64(bins[q] + (q & (COPIES - 1)) * copy_rows) * width
+            flat[b + np.uint64(COUNT)] += 1.0
+            flat[b + np.uint64(DISTANCE)] += sd[q]
             if mode == MODE_SQUARE:
                 diff = sv[q]
-                table[b, SQUARE] += diff * diff
+                flat[b + np.uint64(SQUARE)] += diff * diff
         return
     zs, vals = cols[2], cols[3]
     vi = vals[i]
