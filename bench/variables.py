@@ -9,6 +9,15 @@ Sections (each in a fresh process, so that compilation and caches of one do not 
   The analytes come in panels, as laboratories report them: six on every sample, two on
   60 % of them, two on 30 % (four measurement patterns). Target: the 10-variable request
   under 2x the single-variable one; the 10 separate requests should cost about 10x.
+* batch vs separate: one ``POST /v1/analyses`` of 10 variables on 600 samples (the same four
+  panels as above) against 10 separate single-variable ``POST /v1/analyses`` (each variable's
+  measured samples), in one process with BLAS pinned to one thread (threadpoolctl, as
+  gunicorn_conf pins each worker), after one untimed warm-up analysis; repeats alternate the
+  order (batch first, then separate first), medians of CPU time of the process
+  (``time.process_time``) and wall time. Target: the batch cheaper than the separate calls
+  (CPU ratio batch / separate < 1), as the batch shares the pair enumeration. The batch is
+  then profiled once (cProfile) to give the share of its time in pair passes and where the
+  rest goes.
 * cokriging: leave-one-out cross-validation of the primary by ordinary cokriging with 24
   neighbours per variable, 20,000 samples, 3 variables (each missing at 20 % of the samples,
   heterotopic), through ``POST /v1/cross-validations`` in process (Flask test client: parsing,
@@ -26,6 +35,7 @@ import os
 import subprocess
 import sys
 import time
+from typing import Any
 
 import numpy as np
 
@@ -140,6 +150,150 @@ def variograms_section() -> None:
     )
 
 
+BATCH_SAMPLES = 600
+BATCH_VARIABLES = 10
+BATCH_REPEATS = 2  # even: each order (batch first, separate first) runs as often; 2 keeps the section near 3 min
+# One strategy (no comparison by cross-validation) and ordinary kriging: the pair passes (with the fan
+# of direction classes, fit.anisotropy auto) are all there, the analysis about 1.5 s of CPU per variable.
+BATCH_OPTIONS = {"fit": {"compare": False}, "cross_validation": {"kriging": {"type": "ordinary"}}}
+BATCH_TARGET_RATIO = 1.0
+# Functions that enumerate pairs (numba kernels run inside them): each variable's passes, the
+# batch's shared jackknife sweep, the pair-count estimates; none calls another.
+PAIR_PASSES = {
+    ("pairs.py", "accumulate"),
+    ("pairs.py", "accumulate_by_block"),
+    ("pairs.py", "_collect"),
+    ("pairs.py", "estimate_pairs_within"),
+    ("pairs.py", "accumulate_variables"),
+    ("pairs.py", "accumulate_squares"),
+    ("shared.py", "_pass"),
+    ("maps.py", "_exact_map"),
+}
+# Where the rest of an analysis goes: cumulative time of stage entry points that do not call
+# each other nor the pair passes; the remainder is everything else (parsing, transforms, trend
+# tests, selection, serialisation).
+STAGES = {
+    "model fits": ("stages.py", "run_fit"),
+    "cross-validation": ("stages.py", "run_cross_validation"),
+    "likelihood refinement": ("analysis.py", "_refined_isotropic", "_refined_anisotropic"),
+}
+
+
+def _alone(samples: dict, name: str) -> dict:
+    """One variable's measured samples as a single-variable ``samples`` document."""
+    column = samples["variables"][name]
+    keep = [i for i, v in enumerate(column) if v is not None]
+    return {
+        "x": [samples["x"][i] for i in keep],
+        "y": [samples["y"][i] for i in keep],
+        "values": [column[i] for i in keep],
+    }
+
+
+def _cumulative(stats, wanted) -> float:
+    """Cumulative seconds of the profiled functions named by (file name, function name...)."""
+    total = 0.0
+    for (path, _, function), row in stats.stats.items():  # type: ignore[attr-defined]
+        for entry in wanted:
+            if os.path.basename(path) == entry[0] and function in entry[1:]:
+                total += row[3]
+    return total
+
+
+def case_batch() -> dict:
+    import cProfile
+    import pstats
+    import statistics
+
+    from lagwise.api import create_app
+    from lagwise.api.settings import Settings
+    from lagwise.core.limits import Limits
+    from lagwise.core.warmup import warm_kernels
+    from threadpoolctl import threadpool_limits
+
+    warm_kernels()
+    samples = _panel_samples(BATCH_SAMPLES, BATCH_VARIABLES)
+    # A batch's cost estimate is the sum of its variables': lift the cost limit and the deadline.
+    settings = Settings(limits=Limits(max_analysis_seconds=10**6), deadline_seconds=3600.0)
+    client = create_app(settings=settings).test_client()
+
+    def post(body: dict) -> None:
+        response = client.post("/v1/analyses", json={**body, **BATCH_OPTIONS})
+        if response.status_code != 200:
+            raise SystemExit(f"analysis failed: {response.status_code} {response.get_data(as_text=True)[:500]}")
+
+    def timed(run) -> tuple[float, float]:
+        wall, cpu = time.perf_counter(), time.process_time()
+        run()
+        return time.perf_counter() - wall, time.process_time() - cpu
+
+    def batch() -> None:
+        post({"samples": samples})
+
+    def separate() -> None:
+        for name in samples["variables"]:
+            post({"samples": _alone(samples, name)})
+
+    runs: dict[str, list[tuple[float, float]]] = {"batch": [], "separate": []}
+    with threadpool_limits(1):
+        post({"samples": _alone(samples, "v0")})
+        for r in range(BATCH_REPEATS):
+            order = ("batch", "separate") if r % 2 == 0 else ("separate", "batch")
+            for name in order:
+                runs[name].append(timed(batch if name == "batch" else separate))
+        profile = cProfile.Profile()
+        profile.enable()
+        profiled = timed(batch)
+        profile.disable()
+    stats = pstats.Stats(profile)
+    figures: dict[str, Any] = {
+        f"{name}_{kind}": statistics.median(run[i] for run in runs[name])
+        for name in runs
+        for i, kind in enumerate(("wall", "cpu"))
+    }
+    total = max(stats.total_tt, 1e-9)  # type: ignore[attr-defined]
+    figures["profiled_cpu"] = profiled[1]
+    figures["pair_share"] = _cumulative(stats, PAIR_PASSES) / total
+    figures["stages"] = {name: _cumulative(stats, [entry]) / total for name, entry in STAGES.items()}
+    rows = stats.stats  # type: ignore[attr-defined]  # (file, line, function) -> (calls, ..., own, cumulative, ...)
+    top = sorted(rows.items(), key=lambda item: -item[1][2])[:4]
+    figures["top"] = [(f"{os.path.basename(path)}:{function}", row[2] / total) for (path, _, function), row in top]
+    figures["runs"] = runs
+    return figures
+
+
+def batch_section() -> None:
+    f = _run_case("batch")
+    load = os.getloadavg()
+    ratio = f["batch_cpu"] / f["separate_cpu"]
+    verdict = "MET" if ratio < BATCH_TARGET_RATIO else "MISSED"
+    print(
+        f"batch vs separate, {BATCH_SAMPLES} samples x {BATCH_VARIABLES} variables (four panels), POST /v1/analyses "
+        f"{json.dumps(BATCH_OPTIONS)} (fan of direction classes kept), BLAS on 1 thread, median of "
+        f"{BATCH_REPEATS} (orders alternated):"
+    )
+    print(f"  1 batch request:                 {f['batch_wall']:.2f} s wall, {f['batch_cpu']:.2f} s CPU")
+    print(
+        f"  {BATCH_VARIABLES} separate requests:            {f['separate_wall']:.2f} s wall, {f['separate_cpu']:.2f} s CPU"
+    )
+    print(
+        f"  ratio batch / separate: {ratio:.3f} CPU, {f['batch_wall'] / f['separate_wall']:.3f} wall "
+        f"(target < {BATCH_TARGET_RATIO:.1f} (batch cheaper than separate): {verdict})"
+    )
+    each = "; ".join(
+        f"{name} " + ", ".join(f"{cpu:.2f}" for _, cpu in f["runs"][name]) for name in ("batch", "separate")
+    )
+    print(f"  CPU s of each repeat: {each}")
+    rest = ", ".join(f"{name} {100 * share:.1f} %" for name, share in f["stages"].items())
+    other = 1.0 - f["pair_share"] - sum(f["stages"].values())
+    print(
+        f"  profile of one batch ({f['profiled_cpu']:.2f} s CPU under cProfile): pair passes "
+        f"{100 * f['pair_share']:.1f} %; {rest}; everything else {100 * other:.1f} %"
+    )
+    print("  most own time: " + ", ".join(f"{name} {100 * share:.1f} %" for name, share in f["top"]))
+    print(f"  load average {load[0]:.1f}, {load[1]:.1f}, {load[2]:.1f} (1, 5, 15 min) on {os.cpu_count()} cores")
+
+
 def _joint_model(p: int) -> dict:
     structured = np.full((p, p), 0.6) + np.diag(np.full(p, 0.4))
     return {
@@ -176,13 +330,15 @@ def case_cokriging() -> dict:
     }
 
 
-CASES = {"cokriging": case_cokriging, "variograms": case_variograms}
+CASES = {"cokriging": case_cokriging, "variograms": case_variograms, "batch": case_batch}
 
 
 def _run_case(name: str) -> dict:
     """Run one case in a fresh interpreter and read its JSON line."""
     code = f"import sys, json; sys.path.insert(0, {os.path.dirname(__file__)!r}); import variables; print(json.dumps(variables.CASES[{name!r}]()))"
-    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True)
+    if out.returncode != 0:
+        raise SystemExit(f"case {name} failed: {out.stdout[-1000:]}{out.stderr[-2000:]}")
     return json.loads(out.stdout.strip().splitlines()[-1])
 
 
@@ -203,7 +359,7 @@ def cokriging_section() -> None:
     )
 
 
-SECTIONS = [variograms_section, cokriging_section]
+SECTIONS = [variograms_section, batch_section, cokriging_section]
 
 
 def main() -> None:

@@ -2,14 +2,14 @@
 
 Each variable is analysed as a single-variable request on the samples where it was
 measured would be (:func:`lagwise.core.analysis.analyse`), with its own transform, fit,
-cross-validation and verdict. What the chains share is the pair enumeration: the
-omnidirectional variogram of every variable's working values and, when the chain may
-look at anisotropy, its fan of direction classes (:func:`lagwise.core.analysis.fan_directions`)
-come from one pass over the pairs of all locations
-(:mod:`lagwise.core.variography.shared`), each variable with its own classes (automatic
-classes per direction too) and class uncertainties, equal to the bit to what its own
-chain computes. The other pair passes (residual variograms of a drift, variogram maps)
-stay per variable.
+cross-validation and verdict. The chains' first variograms (the stage's classes,
+omnidirectional unless given) and, when the chain may look at anisotropy, their fans of
+direction classes (:func:`lagwise.core.analysis.fan_directions`) are computed before the
+chains by :mod:`lagwise.core.variography.shared`: automatic classes once per group of
+variables measured at the same samples, the class uncertainties' pass over the pairs of
+all locations once for every variable, each variable's class sums from its own pass;
+each result equal to the bit to what its own chain computes. The other pair passes
+(residual variograms of a drift, variogram maps) stay per variable.
 """
 
 from __future__ import annotations
