@@ -8,7 +8,9 @@ They are split into spatial blocks by the rule of one variable
 deleting a block deletes every pair that touches it, and the spread of the recomputed
 statistics gives the standard error, as for a direct variogram (delete-one-block jackknife,
 Kuensch 1989, Annals of Statistics 17(3)). Where a and b are measured at the same samples,
-these are the blocks of their own direct variograms.
+these are the blocks of their own direct variograms. The pairs of variables measured at the
+same samples share one pass of :func:`lagwise.core.variography.kernels.accumulate_cross_blocks`
+over those samples alone, so each pass's sweep is bounded by the single-variable rule.
 
 The 95 % interval is theta +- t SE, t the 97.5 % quantile of Student's t with B - 1 degrees
 of freedom: a cross-semivariance may be negative, so the log-scale form of the direct
@@ -62,45 +64,50 @@ def cross_uncertainties(
     measured = np.zeros(prepared.measured.shape, dtype=bool)
     measured[prepared.order] = prepared.measured != 0.0  # input order
     out: dict[tuple[int, int], Found] = {}
-    chosen: list[tuple[int, int]] = []
-    sets: dict[tuple[bytes, int], int] = {}  # (samples measuring both, blocks): column of the labels
-    set_of: list[int] = []
-    blocks_of: list[int] = []
+    sets: dict[bytes, list[tuple[int, int]]] = {}  # the samples measuring both: the pairs they serve
     for a in range(p):
         for b in range(a + 1, p):
             both = measured[:, a] & measured[:, b]
             xs = np.sort(coords[both, 0])
             work = max(int(counts[:, :, a, b].sum()), int(sweep_visits(xs, classes.search_radius).sum()))
-            blocks, reason = plan_blocks("semivariance", xs.size, shape, work)
-            if reason is not None:
+            reason = plan_blocks("semivariance", xs.size, shape, work)[1]
+            if reason is None:
+                sets.setdefault(np.packbits(both).tobytes(), []).append((a, b))
+            else:
                 out[(a, b)] = undefined(reason, shape), None
-                continue
-            key = (np.packbits(both).tobytes(), blocks)
-            set_of.append(sets.setdefault(key, len(sets)))
-            blocks_of.append(blocks)
-            chosen.append((a, b))
-    if not chosen:
-        return out
-    nblocks = max(blocks_of)
+    for key, pairs in sets.items():
+        both = np.unpackbits(np.frombuffer(key, dtype=np.uint8), count=coords.shape[0]).astype(bool)
+        out.update(_one_set(prepared, coords, classes, both, pairs, limits))
+    return out
+
+
+def _one_set(prepared: PreparedVariables, coords, classes: ClassLayout, both: np.ndarray, pairs, limits) -> dict:
+    """The pairs of variables measured together at the samples ``both`` (input order): one pass over
+    those samples alone, whose sweep the single-variable rule has bounded."""
+    shape = (classes.table.shape[0], classes.kmax)
     bins = shape[0] * shape[1]
-    if 8 * (numba.get_num_threads() + 1) * (nblocks + 1) * bins * 3 * len(chosen) > limits.memory_budget_bytes // 2:
-        for pair in chosen:
-            out[pair] = undefined(TOO_LARGE, shape), None
-        return out
-    labels = np.full((coords.shape[0], len(sets)), -1, dtype=np.int64)
-    for (mask_bytes, blocks), s in sets.items():
-        both = np.unpackbits(np.frombuffer(mask_bytes, dtype=np.uint8), count=coords.shape[0]).astype(bool)
-        labels[both, s] = spatial_blocks(coords[both], blocks)
-    total, by_block = accumulate_cross_by_block(
-        prepared, classes, np.array(chosen, dtype=np.int64), np.array(set_of, dtype=np.int64), labels[prepared.order]
+    blocks = plan_blocks("semivariance", int(both.sum()), shape, None)[0]
+    if 8 * (numba.get_num_threads() + 1) * (blocks + 1) * bins * 3 * len(pairs) > limits.memory_budget_bytes // 2:
+        return {pair: (undefined(TOO_LARGE, shape), None) for pair in pairs}
+    inside = both[prepared.order]  # x-sorted: a subsequence stays sorted
+    rank = np.cumsum(both) - 1  # position of an input row among the samples measuring both
+    labels = spatial_blocks(coords[both], blocks)[rank[prepared.order[inside]]]
+    subset = PreparedVariables(
+        points=np.ascontiguousarray(prepared.points[inside]),
+        values=np.ascontiguousarray(prepared.values[inside]),
+        measured=np.ascontiguousarray(prepared.measured[inside]),
+        means=prepared.means,
+        scales=prepared.scales,
+        order=np.flatnonzero(inside),
     )
+    total, by_block = accumulate_cross_by_block(subset, classes, np.array(pairs, dtype=np.int64), labels)
     moments = types.SimpleNamespace(mean=0.0, scale=0.0)  # the semivariance reads neither
-    for s, (pair, blocks) in enumerate(zip(chosen, blocks_of, strict=True)):
+    out = {}
+    for s, pair in enumerate(pairs):
         whole = np.zeros((bins, K.ACCUMULATORS))
         parts = np.zeros((blocks, bins, K.ACCUMULATORS))
         for column, source in ((K.COUNT, K.MULTI_COUNT), (K.DISTANCE, K.MULTI_DISTANCE), (K.SQUARE, K.MULTI_SQUARE)):
             whole[:, column] = total[:, source, s]
-            parts[:, :, column] = by_block[:blocks, :, source, s]
-        rows = from_block_sums("semivariance", whole, parts, moments, shape, signed=True)
-        out[pair] = rows, UncertaintyPlan(blocks)
+            parts[:, :, column] = by_block[:, :, source, s]
+        out[pair] = from_block_sums("semivariance", whole, parts, moments, shape, signed=True), UncertaintyPlan(blocks)
     return out

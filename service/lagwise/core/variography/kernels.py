@@ -1130,8 +1130,8 @@ def add_head_squares(squares, vals, pattern, patterns, head):
 
 @njit(parallel=True, cache=True)
 def accumulate_cross_blocks(
-    pts, vals, measured, max_d2, dirs, edges, nk, inv_width, first_of, second_of, set_of, labels, nblocks, nthreads,
-    first, last,
+    pts, vals, measured, max_d2, dirs, edges, nk, inv_width, first_of, second_of, labels, nblocks, nthreads, first,
+    last,
 ):  # fmt: skip
     """Cross-semivariance sums of chosen pairs of variables, in total and per spatial block, for the
     pairs whose first sample is in rows [first, last).
@@ -1139,8 +1139,8 @@ def accumulate_cross_blocks(
     Cross pair s is (``first_of[s]``, ``second_of[s]``); a pair of samples enters it when both
     variables are measured at both ends, adding 1, the distance and (a_j - a_i)(b_j - b_i)
     (columns ``MULTI_COUNT``, ``MULTI_DISTANCE``, ``MULTI_SQUARE``; orientation does not matter)
-    to the total and to the table of each block it touches (once when both ends share it), the
-    blocks being column ``set_of[s]`` of ``labels`` (n, sets). ``vals`` and ``measured`` as for
+    to the total and to the table of each block it touches (once when both ends share it),
+    ``labels[i]`` the block of sample i. ``vals`` and ``measured`` as for
     :func:`accumulate_variables`. Returns (total (ndir * kmax, 3, P), by_block (nblocks,
     ndir * kmax, 3, P)).
     """
@@ -1182,8 +1182,8 @@ def accumulate_cross_blocks(
                             total[b, MULTI_COUNT, s] += 1.0
                             total[b, MULTI_DISTANCE, s] += d
                             total[b, MULTI_SQUARE, s] += product
-                            li = labels[i, set_of[s]]
-                            lj = labels[j, set_of[s]]
+                            li = labels[i]
+                            lj = labels[j]
                             table[li, b, MULTI_COUNT, s] += 1.0
                             table[li, b, MULTI_DISTANCE, s] += d
                             table[li, b, MULTI_SQUARE, s] += product

@@ -576,13 +576,12 @@ def accumulate_squares(
 
 
 def accumulate_cross_by_block(
-    prepared: PreparedVariables, classes: ClassLayout, pairs: np.ndarray, set_of: np.ndarray, labels: np.ndarray
+    prepared: PreparedVariables, classes: ClassLayout, pairs: np.ndarray, labels: np.ndarray
 ) -> tuple[np.ndarray, np.ndarray]:
     """Cross-semivariance sums of the pairs of variables ``pairs`` (P, 2), in total and per spatial
     block, over ranges of rows (deadline checked between them).
 
-    ``labels`` (n, sets) holds each sample's block (prepared order) in each block set, -1 outside
-    it; cross pair s takes column ``set_of[s]``. Returns (total (ndir * kmax, 3, P), by_block
+    ``labels`` (n,) holds each sample's block (prepared order). Returns (total (ndir * kmax, 3, P), by_block
     (nblocks, ndir * kmax, 3, P)); see :func:`lagwise.core.variography.kernels.accumulate_cross_blocks`.
     """
     radius = classes.search_radius
@@ -603,7 +602,6 @@ def accumulate_cross_by_block(
             classes.inv_width,
             np.ascontiguousarray(pairs[:, 0]),
             np.ascontiguousarray(pairs[:, 1]),
-            set_of,
             labels,
             nblocks,
             numba.get_num_threads(),
