@@ -8,6 +8,7 @@ from flask import Flask
 from lagwise.api import create_app
 from lagwise.api.settings import Settings
 from lagwise.core.limits import Limits
+from threadpoolctl import threadpool_limits
 
 from tests.contract_check import TALLY, ContractClient
 
@@ -17,6 +18,15 @@ def _responses_obey_the_contract():
     """Every Flask test client of the session checks each response against openapi/openapi.yaml."""
     with pytest.MonkeyPatch.context() as patch:
         patch.setattr(Flask, "test_client_class", ContractClient)
+        yield
+
+
+@pytest.fixture(autouse=True, scope="session")
+def _one_blas_thread():
+    """BLAS runs on one thread in the test process, as in each service worker (gunicorn_conf pins it):
+    OpenBLAS threads spinning against numba's threads and other processes made one 600 x 600 Cholesky
+    factorisation some 30 times slower on a busy 2-core machine (0.25 s instead of 0.008 s)."""
+    with threadpool_limits(limits=1, user_api="blas"):
         yield
 
 
