@@ -135,6 +135,36 @@ def test_the_single_variable_skip_rule_applies_per_variable(monkeypatch):
     assert 0 < skipped < len(result.variables)
 
 
+def test_one_budget_bounds_the_class_uncertainty_work_of_a_request(monkeypatch):
+    """The direct jackknifes, then the cross pairs', run in order while their pair work fits one
+    budget; the rest say so, and the variables that ran still equal their single requests."""
+    import lagwise.core.variography.several as several
+    from lagwise.core.variography import cross_uncertainty
+
+    samples, _, _ = heterotopic()
+    whole = several_variograms(samples, lags=LAGS)
+    assert all(v.result.uncertainty is not None for v in whole.variables)
+    assert all(c.uncertainty is not None for c in whole.cross)
+    from lagwise.core.variography.pairs import sweep_visits
+
+    lead_x = np.sort(samples.coords[~np.isnan(samples.values[:, 0]), 0])
+    first = max(
+        sum(r.pairs for r in whole.variables[0].result.directions[0].classes),
+        int(sweep_visits(lead_x, EDGES[-1]).sum()),
+    )
+    monkeypatch.setattr(several, "REQUEST_UNCERTAINTY_PAIRS", first)
+    bounded = several_variograms(samples, lags=LAGS)
+    lead, *others = bounded.variables
+    assert lead.result.uncertainty == whole.variables[0].result.uncertainty
+    assert lead.result.directions == whole.variables[0].result.directions
+    for variable in others:
+        assert variable.result.uncertainty is None
+        assert {r.uncertainty_reason for r in variable.result.directions[0].classes} == {several.BUDGET_SPENT}
+    for cross in bounded.cross:
+        assert cross.uncertainty is None
+        assert {r.uncertainty_reason for r in cross.directions[0].classes} == {cross_uncertainty.BUDGET_SPENT}
+
+
 def test_cross_semivariance_standard_errors_equal_a_brute_force_delete_one_group_jackknife():
     """The cross-semivariance (1/2N) sum (a_j - a_i)(b_j - b_i) (Journel & Huijbregts 1978, Mining
     Geostatistics, ch. II) over the samples measuring both, recomputed with each group deleted."""

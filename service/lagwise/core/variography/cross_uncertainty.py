@@ -17,7 +17,8 @@ of freedom: a cross-semivariance may be negative, so the log-scale form of the d
 semivariances does not apply.
 
 Undefined (null, with the reason) under the rules of one variable (too few samples measuring
-both, more than ``MAX_UNCERTAINTY_PAIRS`` pairs, too many classes), and when the per-block
+both, more than ``MAX_UNCERTAINTY_PAIRS`` pairs, too many classes), when the request's budget of
+jackknife work is spent (a set of samples costs its sweep once, whatever pairs it serves), and when the per-block
 sums of the pairs of variables would not fit half the memory budget.
 """
 
@@ -33,13 +34,22 @@ from . import kernels as K
 from .pairs import ClassLayout, PreparedVariables, accumulate_cross_by_block, sweep_visits
 from .uncertainty import ClassUncertainty, UncertaintyPlan, from_block_sums, plan_blocks, spatial_blocks, undefined
 
+BUDGET_SPENT = (
+    "skipped: the request's pair work for class standard errors is spent by the variables and pairs before "
+    "this one; send the two variables alone for them"
+)
 TOO_LARGE = "skipped: the per-block sums of the pairs of variables would exceed half the memory budget"
 
 Found = tuple[list[list[ClassUncertainty]], UncertaintyPlan | None]
 
 
 def cross_uncertainties(
-    prepared: PreparedVariables, coords: np.ndarray, classes: ClassLayout, counts: np.ndarray, limits: Limits
+    prepared: PreparedVariables,
+    coords: np.ndarray,
+    classes: ClassLayout,
+    counts: np.ndarray,
+    limits: Limits,
+    budget: int,
 ) -> dict[tuple[int, int], Found]:
     """Class uncertainties of the cross-semivariance of every pair of variables (a < b).
 
@@ -53,6 +63,9 @@ def cross_uncertainties(
     counts : ndarray, shape (ndir, kmax, p, p)
         Pairs of each class per pair of variables (the cost rule of one variable).
     limits : Limits
+    budget : int
+        Pair work left for these jackknifes: in the pairs' order, a set of samples whose
+        pass would exceed what is left gets none (:data:`BUDGET_SPENT`).
 
     Returns
     -------
@@ -71,8 +84,14 @@ def cross_uncertainties(
             xs = np.sort(coords[both, 0])
             work = max(int(counts[:, :, a, b].sum()), int(sweep_visits(xs, classes.search_radius).sum()))
             reason = plan_blocks("semivariance", xs.size, shape, work)[1]
+            key = np.packbits(both).tobytes()
+            if reason is None and key not in sets:
+                if work > budget:
+                    reason = BUDGET_SPENT
+                else:
+                    budget -= work
             if reason is None:
-                sets.setdefault(np.packbits(both).tobytes(), []).append((a, b))
+                sets.setdefault(key, []).append((a, b))
             else:
                 out[(a, b)] = undefined(reason, shape), None
     for key, pairs in sets.items():

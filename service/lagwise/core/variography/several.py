@@ -9,7 +9,9 @@ Conventions
   variable is measured everywhere), class standard errors and 95 % intervals included:
   the delete-one-block jackknife of :mod:`lagwise.core.variography.uncertainty` over the
   variable's own blocks, under the single-variable rules (skipped above
-  ``MAX_UNCERTAINTY_PAIRS``, none for the median-based statistic). The variables whose
+  ``MAX_UNCERTAINTY_PAIRS``, none for the median-based statistic), and within one budget for
+  the whole request (``REQUEST_UNCERTAINTY_PAIRS``: a variable, then a cross pair, whose
+  jackknife would exceed what is left gets none, with the reason). The variables whose
   jackknife runs take their sums from one pass of
   :func:`lagwise.core.variography.shared.on_shared_classes` (equal to the single-variable
   request to the bit); the others keep this module's sums (equal up to the order of summation).
@@ -105,6 +107,13 @@ CROSS_COVARIANCE_UNCERTAINTY = (
 # twelfth with the semivariance, each p x p entry about a twelfth with covariances.
 WORK_PER_ADDED_SUM = 1.0 / 12.0
 HEAD_BUDGET_SHARE = 0.5
+# One request spends on class uncertainties (direct jackknifes in the variables' order, then
+# the cross pairs') no more pair work than one single-variable request may.
+REQUEST_UNCERTAINTY_PAIRS = MAX_UNCERTAINTY_PAIRS
+BUDGET_SPENT = (
+    f"skipped: the request's {REQUEST_UNCERTAINTY_PAIRS:.0e} pairs of work for class standard errors are spent "
+    "by the variables before this one; send it alone (or with fewer variables) for them"
+)
 
 
 @dataclass(frozen=True)
@@ -212,16 +221,26 @@ def work_per_pair(statistic: str, variables: int) -> float:
     return 1.0 + variables * WORK_PER_ADDED_SUM
 
 
-def _reasons(samples: MultiSampleSet, classes, statistic: str, diagonal: np.ndarray) -> list:
-    """Why each variable's class uncertainties are undefined (None: its jackknife runs), by the
-    single-variable rule on its own samples and its pairs in the classes (``diagonal`` counts)."""
+def _reasons(samples: MultiSampleSet, classes, statistic: str, diagonal: np.ndarray) -> tuple[list, int]:
+    """Why each variable's class uncertainties are undefined (None: its jackknife runs), and the
+    budget the direct jackknifes leave for the cross pairs.
+
+    Each variable follows the single-variable rule on its own samples and its pairs in the
+    classes (``diagonal`` counts); then, in the variables' order, a jackknife runs only while
+    the request's total work stays within :data:`REQUEST_UNCERTAINTY_PAIRS`.
+    """
     shape = (classes.table.shape[0], classes.kmax)
-    reasons = []
+    reasons, budget = [], REQUEST_UNCERTAINTY_PAIRS
     for a in range(samples.count):
         xs = np.sort(samples.coords[~np.isnan(samples.values[:, a]), 0])
         work = max(int(diagonal[:, :, K.COUNT, a].sum()), int(sweep_visits(xs, classes.search_radius).sum()))
-        reasons.append(plan_blocks(statistic, xs.size, shape, work)[1])
-    return reasons
+        reason = plan_blocks(statistic, xs.size, shape, work)[1]
+        if reason is None and work > budget:
+            reason = BUDGET_SPENT
+        elif reason is None:
+            budget -= work
+        reasons.append(reason)
+    return reasons, budget
 
 
 def _jackknifed(samples: MultiSampleSet, chosen: list[int], classes: Classes, statistic, min_pairs, lags, limits):
@@ -332,13 +351,14 @@ def _cross_value(statistic, row, mean_a, mean_b, scale):
     return centred / (tail_sd * head_sd), None, moments
 
 
-def _cross_uncertain(statistic, prepared, samples, classes, table, limits) -> dict:
-    """(rows[k][c], plan) of the class uncertainties of every cross pair (a, b), a < b."""
+def _cross_uncertain(statistic, prepared, samples, classes, table, limits, budget: int) -> dict:
+    """(rows[k][c], plan) of the class uncertainties of every cross pair (a, b), a < b, within
+    ``budget`` pairs of jackknife work."""
     shape = (classes.table.shape[0], classes.kmax)
     if statistic != "semivariance":
         pairs = [(a, b) for a in range(samples.count) for b in range(a + 1, samples.count)]
         return {pair: (undefined(CROSS_COVARIANCE_UNCERTAINTY, shape), None) for pair in pairs}
-    return cross_uncertainties(prepared, samples.coords, classes, table[:, :, K.COUNT], limits)
+    return cross_uncertainties(prepared, samples.coords, classes, table[:, :, K.COUNT], limits, budget)
 
 
 def _cross_rows(statistic, table, edges, min_pairs, moments_of, uncertain) -> tuple[ClassRow, ...]:
@@ -460,7 +480,7 @@ def several_variograms(
             counts = diagonal[:, :, K.COUNT, len(medians)]
             medians.append(_class_medians(statistic, one, classes, counts, limits))
     given = Classes(resolved, edges, spacing, tuple(warnings))
-    reasons = _reasons(samples, classes, statistic, diagonal)
+    reasons, budget = _reasons(samples, classes, statistic, diagonal)
     sums = (diagonal, medians, prepared.means, prepared.scales)
     direct = _direct(samples, given, statistic, min_pairs, lags, limits, sums, reasons, colocated)
     variables = []
@@ -471,7 +491,7 @@ def several_variograms(
         variables.append(VariableVariogram(name, samples.units[a], result))
     cross = []
     if statistic in CROSS_STATISTICS:
-        found = _cross_uncertain(statistic, prepared, samples, classes, table, limits)
+        found = _cross_uncertain(statistic, prepared, samples, classes, table, limits, budget)
         for a in range(p):
             for b in range(a + 1, p):
                 scale = float(max(prepared.scales[a], prepared.scales[b]))
