@@ -1,4 +1,4 @@
-"""Direct experimental variograms of several variables, each with its own classes, in one pass over the pairs.
+"""Direct experimental variograms of several variables, each with its own classes, with shared pair work.
 
 What it is for: a batch of analyses (one per variable measured at a shared set of
 samples) needs each variable's variograms exactly as a single-variable request on
@@ -6,7 +6,7 @@ the samples where that variable was measured would give them
 (:func:`lagwise.core.variography.experimental.experimental_variogram`): the same
 distance classes, pair counts and class uncertainties (the delete-one-block
 jackknife of :mod:`lagwise.core.variography.uncertainty`, with the variable's own
-blocks). Values agree up to the order of floating-point summation.
+blocks), equal to the bit.
 
 How:
 * Variables measured at the same samples form a *group*; automatic classes depend on
