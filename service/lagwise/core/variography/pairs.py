@@ -329,30 +329,28 @@ def accumulate_by_block(
     """
     radius = classes.search_radius
     bins = classes.table.shape[0] * classes.kmax
-    total = np.zeros((bins, K.ACCUMULATORS))
-    by_block = np.zeros((nblocks, bins, K.ACCUMULATORS))
+    return _summed_by_block(
+        prepared.points[:, 0],
+        radius,
+        np.zeros((bins, K.ACCUMULATORS)),
+        np.zeros((nblocks, bins, K.ACCUMULATORS)),
+        lambda first, last: K.accumulate_blocks(
+            prepared.points, prepared.values, prepared.mean, radius * radius, classes.table, classes.edges,
+            classes.counts, classes.inv_width, mode, blocks, nblocks, numba.get_num_threads(), first, last,
+        ),
+    )  # fmt: skip
+
+
+def _summed_by_block(xs: np.ndarray, radius: float, total: np.ndarray, by_block: np.ndarray, kernel):
+    """``total`` and ``by_block`` with ``kernel(first, last) -> (part, parts)`` added over ranges of
+    rows of the x-sorted samples ``xs`` (deadline checked between them)."""
 
     def run(first: int, last: int) -> None:
-        part, parts = K.accumulate_blocks(
-            prepared.points,
-            prepared.values,
-            prepared.mean,
-            radius * radius,
-            classes.table,
-            classes.edges,
-            classes.counts,
-            classes.inv_width,
-            mode,
-            blocks,
-            nblocks,
-            numba.get_num_threads(),
-            first,
-            last,
-        )
+        part, parts = kernel(first, last)
         total[:] += part
         by_block[:] += parts
 
-    in_chunks(sweep_visits(prepared.points[:, 0], radius), run)
+    in_chunks(sweep_visits(xs, radius), run)
     return total, by_block
 
 
@@ -587,29 +585,15 @@ def accumulate_cross_by_block(
     radius = classes.search_radius
     bins = classes.table.shape[0] * classes.kmax
     nblocks = int(labels.max()) + 1
-    total = np.zeros((bins, 3, pairs.shape[0]))
-    by_block = np.zeros((nblocks, bins, 3, pairs.shape[0]))
-
-    def run(first: int, last: int) -> None:
-        part, parts = K.accumulate_cross_blocks(
-            prepared.points,
-            prepared.values,
-            prepared.measured,
-            radius * radius,
-            classes.table,
-            classes.edges,
-            classes.counts,
-            classes.inv_width,
-            np.ascontiguousarray(pairs[:, 0]),
-            np.ascontiguousarray(pairs[:, 1]),
-            labels,
-            nblocks,
-            numba.get_num_threads(),
-            first,
-            last,
-        )
-        total[:] += part
-        by_block[:] += parts
-
-    in_chunks(sweep_visits(prepared.points[:, 0], radius), run)
-    return total, by_block
+    first_of, second_of = np.ascontiguousarray(pairs[:, 0]), np.ascontiguousarray(pairs[:, 1])
+    return _summed_by_block(
+        prepared.points[:, 0],
+        radius,
+        np.zeros((bins, 3, pairs.shape[0])),
+        np.zeros((nblocks, bins, 3, pairs.shape[0])),
+        lambda first, last: K.accumulate_cross_blocks(
+            prepared.points, prepared.values, prepared.measured, radius * radius, classes.table, classes.edges,
+            classes.counts, classes.inv_width, first_of, second_of, labels, nblocks, numba.get_num_threads(),
+            first, last,
+        ),
+    )  # fmt: skip
