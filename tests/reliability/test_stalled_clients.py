@@ -55,6 +55,9 @@ def _post(url: str, body: bytes, headers: dict | None = None):
             return error.code, error.headers, json.load(error)
 
 
+HEAVY_SAMPLES = 40_000  # every pair within the classes: 8e8 pairs, seconds of work for the column-sweep kernel
+
+
 def _heavy_body(n: int, seed: int) -> bytes:
     rng = np.random.default_rng(seed)
     samples = {
@@ -112,7 +115,7 @@ def test_liveness_answers_within_a_second_while_both_workers_compute(service):
 
     def compute(seed: int) -> None:
         start = time.perf_counter()
-        status, _, _ = _post(service, _heavy_body(15_000, seed))
+        status, _, _ = _post(service, _heavy_body(HEAVY_SAMPLES, seed))
         results.append((status, time.perf_counter() - start))
 
     workers = [threading.Thread(target=compute, args=(seed,)) for seed in (1, 2)]
@@ -157,7 +160,7 @@ def _instance_pid(port: int) -> int:
 def test_a_worker_killed_mid_request_gives_a_problem(service):
     port = urlparse(service).port
     outcome: list = []
-    thread = threading.Thread(target=lambda: outcome.append(_post(service, _heavy_body(15_000, 3))))
+    thread = threading.Thread(target=lambda: outcome.append(_post(service, _heavy_body(HEAVY_SAMPLES, 3))))
     workers = [w for master in _children(_instance_pid(port)) for w in _children(master)]
     assert len(workers) == 2
     idle = {w: _cpu_seconds(w) for w in workers}
