@@ -86,15 +86,6 @@ def case_variograms() -> dict:
         + [{"azimuth": a, "tolerance": 22.5} for a in (0.0, 45.0, 90.0, 135.0)],
     }
 
-    def alone(name: str) -> dict:
-        column = samples["variables"][name]
-        keep = [i for i, v in enumerate(column) if v is not None]
-        return {
-            "x": [samples["x"][i] for i in keep],
-            "y": [samples["y"][i] for i in keep],
-            "values": [column[i] for i in keep],
-        }
-
     client = create_app().test_client()
 
     def timed(body: dict) -> tuple[float, float, dict]:
@@ -107,11 +98,11 @@ def case_variograms() -> dict:
             )
         return elapsed, cpu, response.get_json()
 
-    one, one_cpu, _ = timed({"samples": alone("v0"), **options})
+    one, one_cpu, _ = timed({"samples": _alone(samples, "v0"), **options})
     several, several_cpu, document = timed({"samples": samples, **options})
     ten = ten_cpu = 0.0
     for name in samples["variables"]:
-        seconds, cpu, _ = timed({"samples": alone(name), **options})
+        seconds, cpu, _ = timed({"samples": _alone(samples, name), **options})
         ten, ten_cpu = ten + seconds, ten_cpu + cpu
     pairs = sum(row["pairs"] for d in document["variables"][0]["directions"] for row in d["classes"])
     return {

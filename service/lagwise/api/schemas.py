@@ -60,6 +60,15 @@ PLAUSIBLE = 1e100
 FAMILY_NAMES = tuple(FAMILIES)
 
 
+def map_tolerance() -> fields.Field:
+    """The grid method's per-cell tolerance of a variogram map (its own endpoint and an analysis' stage)."""
+    return finite(
+        load_default=DEFAULT_TOLERANCE,
+        validate=validate.Range(min=0, max=1, min_inclusive=False, max_inclusive=False),
+        metadata={"description": "Grid method: relative error bound above which a map cell is flagged."},
+    )
+
+
 def finite(**kwargs) -> StrictFloat:
     """A finite float field."""
     return StrictFloat(allow_nan=False, **kwargs)
@@ -423,11 +432,7 @@ class MapRequest(SampleOptions):
             "auto for rasters."
         },
     )
-    tolerance = finite(
-        load_default=DEFAULT_TOLERANCE,
-        validate=validate.Range(min=0, max=1, min_inclusive=False, max_inclusive=False),
-        metadata={"description": "Grid method: relative error bound above which a map cell is flagged."},
-    )
+    tolerance = map_tolerance()
 
 
 # ---- models ------------------------------------------------------------------------
@@ -945,11 +950,7 @@ class VariogramMapStage(Schema):
             "method used is parameters.variogram_map.method."
         },
     )
-    tolerance = finite(
-        load_default=DEFAULT_TOLERANCE,
-        validate=validate.Range(min=0, max=1, min_inclusive=False, max_inclusive=False),
-        metadata={"description": "Grid method: relative error bound above which a map cell is flagged."},
-    )
+    tolerance = map_tolerance()
 
 
 class FitStage(Schema):
