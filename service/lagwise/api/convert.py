@@ -80,6 +80,24 @@ def _below_limit(raw) -> float | None:
     return None
 
 
+def _fill_ids(ids: list[str | None]) -> list[str]:
+    """Name each feature without an identifier (None) by its index in ``features``, as text.
+
+    Where that text is another feature's given identifier, ``#`` is put before it until it is
+    not (``"3"``, then ``"#3"``, ``"##3"``...), so a made identifier never repeats a given one
+    (and two made ones differ by their digits).
+    """
+    given = {identifier for identifier in ids if identifier is not None}
+    filled = []
+    for index, identifier in enumerate(ids):
+        if identifier is None:
+            identifier = str(index)
+            while identifier in given:
+                identifier = "#" + identifier
+        filled.append(identifier)
+    return filled
+
+
 def _feature_columns(collection, value_properties: list[str], id_property: str | None, *, optional: bool = False):
     """Read Point features into columns; raises InvalidInput naming each bad feature.
 
@@ -132,11 +150,12 @@ def _feature_columns(collection, value_properties: list[str], id_property: str |
         columns["y"].append(numbers[1])
         columns["z"].append(numbers[2] if len(numbers) == 3 else None)
         identifier = properties.get(id_property) if id_property else feature.get("id")
-        columns["ids"].append(str(identifier) if identifier is not None else str(i))
+        columns["ids"].append(str(identifier) if identifier is not None else None)
     if len(dims) > 1:
         issues.append(FieldIssue(FEATURES, "every Point must have the same number of coordinates (2 or 3)"))
     if issues:
         raise InvalidInput(issues[:20])
+    columns["ids"] = _fill_ids(columns["ids"])
     return columns, dims == {3}
 
 

@@ -147,7 +147,11 @@ class _SampleFeatureCollection(Schema):
         required=True, metadata={"description": "A GeoJSON FeatureCollection (RFC 7946) of Point features."}
     )
     id_property = fields.String(
-        metadata={"description": "Feature property holding the identifier (default the feature id)."}
+        metadata={
+            "description": "Feature property holding the identifier (default the feature id). A feature without "
+            'one is named by its 0-based index in features, as text ("3"), with "#" put before it while another '
+            'feature\'s identifier has that text ("#3", "##3"...): a made identifier never repeats a given one.'
+        }
     )
 
 
