@@ -40,6 +40,12 @@ Sections
   multipart body to ``requests``, network excluded), against the SDK of :data:`OLD_SDK_COMMIT`
   (which made Python lists first) run in the same invocation from that commit's sources, and the
   JSON form of the same call.
+* ``ids``: 10,000,000 samples (x, y, values) accepted from an Arrow multipart body (the web layer's
+  parsing path, schema validation, the sample set with its duplicate searches): without ids (the
+  baseline of the same run), with text ids (11 characters, in random order) and with integer ids;
+  wall time and the peak resident memory the call adds (``VmHWM`` after a reset, less ``VmRSS``
+  before; the body and the application already held), and the text case
+  again from the sources of :data:`OLD_IDS_COMMIT` (one Python string per id) in the same run.
 * ``kriging``: ordinary kriging of 1,000,000 targets from 1,000,000 samples with 16
   neighbours (k-d tree once, targets in chunks sized by ``LAGWISE_MEMORY_BUDGET_BYTES``).
 """
@@ -73,6 +79,9 @@ SDK_SAMPLES = 1_000_000
 # The SDK before it sent numpy columns to Arrow as they are (it built Python lists first).
 OLD_SDK_COMMIT = "cc625da"
 KRIGING_SAMPLES = 1_000_000
+IDS_SAMPLES = 10_000_000
+# The service before it held identifiers compactly (a Python string per id, a set to find repeats).
+OLD_IDS_COMMIT = "f2f5f18"
 KRIGING_TARGETS = 1_000_000
 NOTE = "shared machine (up to 8 agents on 2 cores): figures vary with load"
 
@@ -540,6 +549,85 @@ def _sdk_case(form: str) -> dict:
     return {"seconds": min(times), "cpu_seconds": min(cpu), "bytes": size, "content_type": content_type.split(";")[0]}
 
 
+def _ids_body(n: int, kind: str, path: str) -> int:
+    """Write the multipart Arrow request of ``n`` samples with ``kind`` ids (none, text, integer) to ``path``.
+
+    Text ids are ``BH-`` and a zero-padded number of 8 digits; ids of both kinds are a random
+    permutation of 0 .. n-1, made by Arrow's compute functions (no Python string per id).
+    """
+    import numpy as np
+    import orjson
+    import pyarrow as pa
+    import pyarrow.compute as pc
+    from urllib3.filepost import encode_multipart_formdata
+
+    rng = np.random.default_rng(3)
+    x, y = rng.uniform(0, SIDE, n), rng.uniform(0, SIDE, n)
+    columns = {"x": x, "y": y, "values": _field(x, y, rng)}
+    numbers = pa.array(rng.permutation(n))
+    if kind == "text":
+        columns["ids"] = pc.binary_join_element_wise("BH-", pc.utf8_lpad(pc.cast(numbers, pa.string()), 8, "0"), "")
+    elif kind == "integer":
+        columns["ids"] = numbers
+    table = pa.table(columns)
+    sink = pa.BufferOutputStream()
+    with pa.ipc.new_stream(sink, table.schema) as writer:
+        writer.write_table(table)
+    body, content_type = encode_multipart_formdata(
+        {
+            "request": ("request.json", orjson.dumps({"lags": {"width": 10.0, "count": 10}}), "application/json"),
+            "samples": ("samples.arrows", sink.getvalue().to_pybytes(), "application/vnd.apache.arrow.stream"),
+        }
+    )
+    Path(path).write_bytes(body)
+    Path(path + ".type").write_text(content_type)
+    return len(body)
+
+
+def _ids_case(path: str) -> dict:
+    """Accept the request at ``path`` (body, multipart, Arrow, schema, sample set) twice; the best time."""
+    import io
+
+    from lagwise.api import create_app
+    from lagwise.api.body import load_json
+    from lagwise.api.convert import sample_set
+    from lagwise.api.schemas import ExperimentalRequest
+
+    body, content_type = Path(path).read_bytes(), Path(path + ".type").read_text()
+    app = create_app({"TESTING": True}, warm=False)
+    times, added = [], []
+    for _ in range(2):
+        with app.test_request_context(
+            "/v1/experimental-variograms",
+            method="POST",
+            input_stream=io.BytesIO(body),
+            content_type=content_type,
+            content_length=len(body),
+        ):
+            held = _reset_peak()
+            start = time.perf_counter()
+            samples = sample_set(load_json(ExperimentalRequest()))
+            times.append(time.perf_counter() - start)
+            added.append(_status_bytes("VmHWM") - held)
+            size, last = samples.size, samples.ids[samples.size - 1]
+            del samples
+    return {"seconds": min(times), "added_bytes": max(added), "size": size, "last_id": last}
+
+
+def _status_bytes(name: str) -> int:
+    """A ``/proc/self/status`` memory figure (``VmRSS``, ``VmHWM``) in bytes."""
+    for line in Path("/proc/self/status").read_text().splitlines():
+        if line.startswith(name + ":"):
+            return int(line.split()[1]) * 1024
+    raise KeyError(name)
+
+
+def _reset_peak() -> int:
+    """Reset the process's peak resident memory to its current one (Linux ``clear_refs`` 5); returns it."""
+    Path("/proc/self/clear_refs").write_text("5")
+    return _status_bytes("VmRSS")
+
+
 def _kriging_case() -> dict:
     import numba
     import numpy as np
@@ -596,6 +684,8 @@ def _measure_case(case: str, *args: str) -> None:
         out = _service_case(args[0])
     elif case == "sdk":
         out = _sdk_case(args[0])
+    elif case == "ids":
+        out = _ids_case(args[0])
     else:
         out = _kriging_case()
     print(json.dumps({**out, "peak_bytes": resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024}))
@@ -692,6 +782,47 @@ def sdk_sending() -> list[dict]:
     ]
 
 
+def identifiers() -> list[dict]:
+    runs = {}
+    with tempfile.TemporaryDirectory(prefix="lagwise-bench-ids-") as folder:
+        for kind in ("none", "text", "integer"):
+            path = os.path.join(folder, f"{kind}.multipart")
+            size = _ids_body(IDS_SAMPLES, kind, path)
+            runs[kind] = {**_case("ids", path), "bytes": size}
+            if kind == "text":
+                old_path = _old_sources(folder, OLD_IDS_COMMIT)
+                runs["old"] = _case("ids", path, pythonpath=old_path)
+            os.remove(path)
+    base = runs["none"]
+
+    def added(r: dict) -> float:
+        return r["added_bytes"] / GiB
+
+    rows = []
+    for kind in ("text", "integer"):
+        r = runs[kind]
+        ratio = r["seconds"] / base["seconds"]
+        rows.append(
+            {
+                "figure": f"{IDS_SAMPLES:,} Arrow samples accepted with {kind} ids, against none (same run)",
+                "value": f"{r['seconds']:.2f} s, x{ratio:.2f} of {base['seconds']:.2f} s without ids",
+                "target": "ids add < 25 %",
+                "met": ratio < 1.25,
+                "detail": f"peak added by the call {added(r):.2f} GiB ({added(base):.2f} GiB without ids; body "
+                f"{r['bytes'] / 1e6:.0f} MB, {base['bytes'] / 1e6:.0f} MB without ids); last sample's id "
+                f"{r['last_id']!r}"
+                + (
+                    f"; the service of {OLD_IDS_COMMIT} (a Python string per id) {runs['old']['seconds']:.2f} s, "
+                    f"peak added {added(runs['old']):.2f} GiB: x{runs['old']['seconds'] / r['seconds']:.1f} "
+                    "in time"
+                    if kind == "text"
+                    else ""
+                ),
+            }
+        )
+    return rows
+
+
 def kriging_scale() -> list[dict]:
     r = _case("kriging")
     peak = r["peak_bytes"] / GiB
@@ -716,6 +847,7 @@ SECTIONS = [
     ("exact_kernel", exact_kernel),
     ("parsing", parsing),
     ("sdk_sending", sdk_sending),
+    ("ids", identifiers),
     ("kriging", kriging_scale),
 ]
 

@@ -6,7 +6,7 @@ import numpy as np
 
 
 def test_samples_sent_without_ids_are_named_by_their_index_in_the_answer(client):
-    # The identifiers are made only when read (IndexIds); they reach the response as text, not a 500.
+    # The identifiers are made only when read (IntegerIds); they reach the response as text, not a 500.
     rng = np.random.default_rng(5)
     xy = rng.uniform(0, 100, (60, 2))
     document = {

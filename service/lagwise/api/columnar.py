@@ -29,6 +29,7 @@ import pyarrow as pa
 from flask import request
 from werkzeug.http import parse_options_header
 
+from ..core.data.identifiers import CompactIds, IntegerIds, TextIds
 from ..core.errors import FieldIssue, InvalidInput, LimitExceeded
 from .fields import pointer_token
 from .jsonio import dumps
@@ -230,8 +231,25 @@ def _batches(reader: pa.ipc.RecordBatchStreamReader, max_rows: int) -> list[pa.R
         batches.append(batch)
 
 
+def _ids(column: pa.ChunkedArray) -> CompactIds:
+    """The ``ids`` column without a Python string per row: integers as they are, text as its
+    UTF-8 bytes and offsets (views of the stream's buffers; a column of several batches is
+    joined once, a ``string_view`` column cast to ``large_string``)."""
+    array = column.combine_chunks()
+    if pa.types.is_integer(array.type):
+        return IntegerIds(array.to_numpy())
+    if pa.types.is_string_view(array.type):
+        array = array.cast(pa.large_string())
+    width = np.dtype(np.int32 if pa.types.is_string(array.type) else np.int64)
+    _, offsets, data = array.buffers()
+    return TextIds(
+        np.zeros(0, dtype=np.uint8) if data is None else np.frombuffer(data, dtype=np.uint8),
+        np.frombuffer(offsets, dtype=width, count=len(array) + 1, offset=array.offset * width.itemsize),
+    )
+
+
 def _column(name: str, column: pa.ChunkedArray):
-    """A numpy array (numbers, flags) or a list of text (ids) from one Arrow column.
+    """A numpy array (numbers, flags) or compact identifiers (ids) from one Arrow column.
 
     Nulls: a detection limit's is none, a variable's is not measured (NaN, as JSON's null);
     elsewhere they are refused, as is a NaN number where null marks not measured.
@@ -257,7 +275,7 @@ def _column(name: str, column: pa.ChunkedArray):
         return column.cast(pa.float64(), safe=False).to_numpy()
     if prefix == "censored":
         return column.to_numpy(zero_copy_only=False)
-    return [str(v) for v in column.to_pylist()]
+    return _ids(column)
 
 
 def _samples_member(table: pa.Table) -> dict:
@@ -295,7 +313,8 @@ def read_samples(data: bytes | memoryview, max_rows: int) -> dict:
     dict
         The ``samples`` member of the JSON form: column name to float64 array (numbers; NaN
         for a null detection limit or an unmeasured variable), boolean array (``censored``)
-        or list of str (``ids``); for several variables, ``variables``, ``censored`` and
+        or :class:`~lagwise.core.data.identifiers.CompactIds` (``ids``: integers, or text as UTF-8
+        bytes and offsets, read as str only where an answer echoes them); for several variables, ``variables``, ``censored`` and
         ``detection_limits`` map each variable's name to its column and ``units`` to its unit.
 
     Raises

@@ -9,6 +9,8 @@ from typing import Any
 import numpy as np
 from marshmallow import Schema, ValidationError, fields, missing
 
+from ..core.data.identifiers import CompactIds
+
 NUMBER_TYPES = (int, float)
 MAX_ELEMENT_ERRORS = 20
 MAX_FAMILIES = 32
@@ -290,12 +292,12 @@ class CappedList(fields.List):
 
     marshmallow's list keeps one message per bad element, so a body of a million bad
     entries would build a million messages; this one stops early and reports how many
-    elements it did not check under the key ``"_unchecked"``. A numpy array (an Arrow
-    column, typed by :mod:`lagwise.api.columnar`) is taken as it is.
+    elements it did not check under the key ``"_unchecked"``. A numpy array or compact
+    identifiers (an Arrow column, typed by :mod:`lagwise.api.columnar`) are taken as they are.
     """
 
     def _deserialize(self, value, attr, data, **kwargs):
-        if isinstance(value, np.ndarray):
+        if isinstance(value, (np.ndarray, CompactIds)):
             # A column of an Arrow stream, whose element type the reader has checked.
             return value
         if not isinstance(value, list):

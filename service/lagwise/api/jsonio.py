@@ -17,7 +17,7 @@ from typing import Any
 import numpy as np
 import orjson
 
-from ..core.data.identifiers import IndexIds
+from ..core.data.identifiers import CompactIds
 
 
 class MalformedJSON(ValueError):
@@ -62,7 +62,7 @@ def _fallback(value: Any) -> Any:
         return np.ascontiguousarray(value)
     if isinstance(value, np.generic):
         return value.item()
-    if isinstance(value, IndexIds):
+    if isinstance(value, CompactIds):
         return list(value)
     raise TypeError(f"cannot serialise {type(value).__name__}")
 

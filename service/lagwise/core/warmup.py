@@ -65,6 +65,9 @@ def _tiny_variables(samples):
 
 def compile_kernels() -> None:
     """Compile every kernel for the argument types the engine uses, without running it."""
+    from numba import types
+
+    from .data import identifiers
     from .kriging import compiled
     from .variography import kernels as K
 
@@ -86,3 +89,7 @@ def compile_kernels() -> None:
     K.collect_map_differences.compile(f"({a2}, {a1}, {f8}, {i8}, {i8}[::1], {i8}[::1], {a1}, {rows})")
     a3 = f"{f8}[:, :, ::1]"
     compiled.add_structure.compile(f"({a3}, {a3}, {a3}, {i8}, {f8}, {f8}, {f8}, boolean)")
+    # Text ids of an Arrow stream: read-only views of its bytes and its int32 or int64 offsets.
+    data = types.Array(types.uint8, 1, "C", readonly=True)
+    for width in (types.int32, types.int64):
+        identifiers._text_hashes.compile((data, types.Array(width, 1, "C", readonly=True)))

@@ -1,50 +1,70 @@
-"""Sample identifiers: given text, or the input index as text, made only when read.
+"""Sample identifiers, held compactly and made into text only when read.
 
-Ten million samples sent without ``ids`` would otherwise cost ten million Python strings
-(several seconds and about 600 MB) for identifiers that only a few per-sample answers
-(cross-validation, weights, singular-system messages) ever read.
+Ten million samples would otherwise cost ten million Python strings (several seconds and
+about 600 MB) for identifiers that only a few per-sample answers (cross-validation, weights,
+singular-system messages) ever read. Identifiers take one of three forms:
+
+* a tuple of str: identifiers given in JSON (already Python strings);
+* :class:`IntegerIds`: integers read as their decimal text — the input index of samples sent
+  without ids, an integer ``ids`` column of an Arrow stream, a raster's cell numbers;
+* :class:`TextIds`: UTF-8 bytes and offsets (the layout of an Arrow string column, viewed
+  without copying), with the column's rows in the set's order.
+
+Repeated identifiers are refused (:func:`check_distinct`) with the same issues whatever the
+form: one per repeat, in input order, at the later sample, naming the first sample with that id.
 """
 
 from __future__ import annotations
 
-from collections.abc import Iterator, Sequence
+from collections.abc import Callable, Hashable, Iterator, Sequence
 from typing import overload
 
 import numpy as np
+from numba import njit
 
 from ..errors import FieldIssue, InvalidInput
 
 MAX_LISTED = 20
+# FNV-1a's 64-bit offset basis and prime (Fowler, Noll and Vo).
+_FNV_BASIS = np.uint64(0xCBF29CE484222325)
+_FNV_PRIME = np.uint64(0x100000001B3)
 
 
-class IndexIds(Sequence[str]):
-    """The identifiers of samples given without ids: each sample's input index, as text.
+class CompactIds(Sequence[str]):
+    """Identifiers kept as arrays; an element becomes a str when it is read.
 
-    Parameters
-    ----------
-    positions : ndarray of int, shape (n,)
-        The input index of each sample, in the set's order.
+    Subclasses give :meth:`__len__`, :meth:`take` (the identifiers at some rows),
+    :meth:`_text` (one identifier) and :meth:`_keys` (one hashable key and one integer
+    per row, equal wherever the identifiers are equal) for the search of repeats.
     """
 
-    def __init__(self, positions: np.ndarray) -> None:
-        self.positions = np.asarray(positions, dtype=np.int64)
+    def take(self, rows: np.ndarray) -> CompactIds:
+        """The identifiers at the integer positions ``rows``, in that order."""
+        raise NotImplementedError
 
-    def __len__(self) -> int:
-        return int(self.positions.size)
+    def _text(self, i: int) -> str:
+        raise NotImplementedError
+
+    def _keys(self) -> tuple[np.ndarray, Callable[[int], Hashable]]:
+        """Per row an integer, equal for equal identifiers (a hash), and the exact key of a row."""
+        raise NotImplementedError
 
     @overload
     def __getitem__(self, i: int) -> str: ...
 
     @overload
-    def __getitem__(self, i: slice) -> IndexIds: ...
+    def __getitem__(self, i: slice) -> CompactIds: ...
 
     def __getitem__(self, i):
         if isinstance(i, slice):
-            return IndexIds(self.positions[i])
-        return str(int(self.positions[i]))
+            return self.take(np.arange(len(self))[i])
+        index = int(i)
+        if not -len(self) <= index < len(self):
+            raise IndexError("identifier index out of range")
+        return self._text(index % len(self))
 
     def __iter__(self) -> Iterator[str]:
-        return (str(i) for i in self.positions.tolist())
+        return (self._text(i) for i in range(len(self)))
 
     def __eq__(self, other: object) -> bool:
         return (
@@ -53,14 +73,151 @@ class IndexIds(Sequence[str]):
             and all(a == b for a, b in zip(self, other, strict=True))
         )
 
-    __hash__ = None  # type: ignore[assignment]  # mutable-array backed, like a list
+    __hash__ = None  # type: ignore[assignment]  # array-backed, like a list
+
+    def repeats(self, limit: int = MAX_LISTED) -> list[tuple[int, int]]:
+        """The first ``limit`` repeats as (row, first row with that identifier), in row order.
+
+        One sort of an integer per row finds the rows whose integer repeats (O(n log n),
+        vectorised); only those candidates are compared exactly, so hash collisions cost
+        time, never a wrong answer.
+        """
+        hashes, key_of = self._keys()
+        ordered = np.sort(hashes)
+        same = ordered[1:] == ordered[:-1]
+        if not same.any():
+            return []
+        repeated = np.unique(ordered[1:][same])
+        where = np.minimum(np.searchsorted(repeated, hashes), repeated.size - 1)
+        candidates = np.flatnonzero(repeated[where] == hashes)
+        return _first_repeats(((int(row), key_of(int(row))) for row in candidates), limit)
+
+
+class IntegerIds(CompactIds):
+    """Integer identifiers, read as their decimal text (``7`` is ``"7"``).
+
+    Parameters
+    ----------
+    numbers : ndarray of int, shape (n,)
+        The identifiers in the set's order (any integer type; kept as given).
+    """
+
+    def __init__(self, numbers: np.ndarray) -> None:
+        numbers = np.asarray(numbers)
+        if numbers.dtype.kind not in "iu":
+            raise TypeError(f"integer identifiers need an integer array, got {numbers.dtype}")
+        self.numbers = numbers
+
+    def __len__(self) -> int:
+        return int(self.numbers.size)
+
+    def take(self, rows: np.ndarray) -> IntegerIds:
+        return IntegerIds(self.numbers[rows])
+
+    def _text(self, i: int) -> str:
+        return str(int(self.numbers[i]))
+
+    def __iter__(self) -> Iterator[str]:
+        return (str(v) for v in self.numbers.tolist())
+
+    def _keys(self):
+        # Distinct integers have distinct decimal texts: the numbers are their own exact keys.
+        numbers = self.numbers
+        return numbers, lambda row: int(numbers[row])
+
+
+class TextIds(CompactIds):
+    """Text identifiers as UTF-8 bytes and offsets (Arrow's string layout).
+
+    Parameters
+    ----------
+    data : ndarray of uint8
+        The identifiers' UTF-8 bytes, one after the other.
+    offsets : ndarray of int32 or int64, shape (m + 1,)
+        Identifier ``j`` of the column is ``data[offsets[j]:offsets[j + 1]]``.
+    rows : ndarray of int, shape (n,), optional
+        The column's identifier of each sample, in the set's order; default the column as it is.
+    """
+
+    def __init__(self, data: np.ndarray, offsets: np.ndarray, rows: np.ndarray | None = None) -> None:
+        # Read-only views: the identifiers cannot change under the set, and the hash kernel
+        # sees one array type whatever buffer they came from (compiled once, in warmup.compile_kernels).
+        self.data = np.ascontiguousarray(data, dtype=np.uint8).view()
+        self.offsets = np.ascontiguousarray(offsets).view()
+        if self.offsets.dtype not in (np.int32, np.int64) or self.offsets.ndim != 1 or self.offsets.size == 0:
+            raise TypeError("offsets must be a non-empty int32 or int64 array")
+        self.data.flags.writeable = False
+        self.offsets.flags.writeable = False
+        self.rows = None if rows is None else np.asarray(rows, dtype=np.int64)
+        self._bytes = memoryview(self.data.data)
+
+    @classmethod
+    def from_strings(cls, strings: Sequence[str]) -> TextIds:
+        """The identifiers of a sequence of str (encoded once; for tests and small inputs)."""
+        encoded = [s.encode("utf-8") for s in strings]
+        lengths = np.fromiter((len(e) for e in encoded), dtype=np.int64, count=len(encoded))
+        offsets = np.concatenate([[0], np.cumsum(lengths)]).astype(np.int64)
+        return cls(np.frombuffer(b"".join(encoded), dtype=np.uint8), offsets)
+
+    def __len__(self) -> int:
+        return int(self.offsets.size - 1 if self.rows is None else self.rows.size)
+
+    def take(self, rows: np.ndarray) -> TextIds:
+        rows = np.asarray(rows, dtype=np.int64)
+        return TextIds(self.data, self.offsets, rows if self.rows is None else self.rows[rows])
+
+    def _text(self, i: int) -> str:
+        row = i if self.rows is None else int(self.rows[i])
+        return str(self._bytes[int(self.offsets[row]) : int(self.offsets[row + 1])], "utf-8")
+
+    def _keys(self):
+        hashes = _text_hashes(self.data, self.offsets)
+        if self.rows is not None:
+            hashes = hashes[self.rows]
+        return hashes, lambda row: self._text(row)
+
+
+@njit(cache=True)
+def _text_hashes(data, offsets):
+    """FNV-1a (64-bit) of each identifier's bytes (Fowler, Noll and Vo): equal texts hash alike."""
+    count = offsets.size - 1
+    out = np.empty(count, dtype=np.uint64)
+    for j in range(count):
+        h = _FNV_BASIS
+        for k in range(offsets[j], offsets[j + 1]):
+            h = (h ^ np.uint64(data[k])) * _FNV_PRIME
+        out[j] = h
+    return out
+
+
+def _first_repeats(keyed, limit: int) -> list[tuple[int, int]]:
+    """(row, first row with the same key) for each repeat of ``keyed`` ((row, key) in row order)."""
+    first: dict[Hashable, int] = {}
+    found: list[tuple[int, int]] = []
+    for row, key in keyed:
+        earlier = first.setdefault(key, row)
+        if earlier != row:
+            found.append((row, earlier))
+            if len(found) == limit:
+                break
+    return found
+
+
+def given_ids(ids: Sequence | None, n: int) -> Sequence[str]:
+    """The identifiers of a set of ``n`` samples: as held when compact, else as a tuple of str;
+    the input index (:class:`IntegerIds`) when none are given."""
+    if ids is None:
+        return IntegerIds(np.arange(n))
+    if isinstance(ids, CompactIds):
+        return ids
+    return tuple(str(i) for i in ids)
 
 
 def pick_ids(ids: Sequence[str], rows: np.ndarray) -> Sequence[str]:
     """The identifiers at ``rows`` (integer positions or a boolean mask), in that order."""
     rows = np.flatnonzero(rows) if np.asarray(rows).dtype == bool else np.asarray(rows)
-    if isinstance(ids, IndexIds):
-        return IndexIds(ids.positions[rows])
+    if isinstance(ids, CompactIds):
+        return ids.take(rows)
     return tuple(ids[i] for i in rows.tolist())
 
 
@@ -70,7 +227,7 @@ def check_distinct(ids: Sequence[str], pointer_for) -> None:
     Parameters
     ----------
     ids : sequence of str
-        The given identifiers (as text), in input order.
+        The given identifiers, in input order (a tuple of str or a :class:`CompactIds`).
     pointer_for : callable
         ``pointer_for("ids", i)``: the JSON Pointer of sample ``i``'s identifier.
 
@@ -79,19 +236,19 @@ def check_distinct(ids: Sequence[str], pointer_for) -> None:
     InvalidInput
         One issue per repeat (at most 20), at the later sample, naming the earlier one.
     """
-    if len(set(ids)) == len(ids):
+    if isinstance(ids, CompactIds):
+        found = ids.repeats(MAX_LISTED)
+    elif len(set(ids)) == len(ids):
         return
-    first: dict[str, int] = {}
-    issues = []
-    for index, identifier in enumerate(ids):
-        earlier = first.setdefault(identifier, index)
-        if earlier != index:
-            issues.append(
+    else:
+        found = _first_repeats(enumerate(ids), MAX_LISTED)
+    if found:
+        raise InvalidInput(
+            [
                 FieldIssue(
-                    pointer_for("ids", index),
-                    f"repeats the id {identifier[:60]!r} of sample {earlier}; ids must be distinct",
+                    pointer_for("ids", row),
+                    f"repeats the id {ids[row][:60]!r} of sample {earlier}; ids must be distinct",
                 )
-            )
-            if len(issues) == MAX_LISTED:
-                break
-    raise InvalidInput(issues)
+                for row, earlier in found
+            ]
+        )

@@ -23,6 +23,7 @@ from scipy.spatial.distance import pdist
 
 from ..errors import FieldIssue, InvalidInput
 from ..limits import Limits
+from .identifiers import IntegerIds
 from .samples import MAX_SPREAD, MIN_SPREAD, SampleSet, build_sample_set, input_hash
 from .summary import Summary
 
@@ -142,7 +143,7 @@ def raster_points(raster: Raster, limits: Limits = Limits()) -> SampleSet:
     return SampleSet(
         coords=samples.coords,
         values=samples.values,
-        ids=tuple(str(c) for c in cells),
+        ids=IntegerIds(cells),
         source_index=cells,
         coordinates="planar",
         input_hash=raster.input_hash,

@@ -22,7 +22,7 @@ import numpy as np
 from ..errors import FieldIssue, InvalidInput
 from .censoring import substitute
 from .geographic import ACCURATE_SPAN_M, LocalProjection, centroid
-from .identifiers import IndexIds, check_distinct, pick_ids
+from .identifiers import check_distinct, given_ids, pick_ids
 from .locations import kept_rows, repeated_locations
 
 COORDINATE_SYSTEMS = ("planar", "geographic")
@@ -69,7 +69,8 @@ class SampleSet:
     values : ndarray, shape (n,)
         Measured values, finite.
     ids : sequence of str
-        Sample identifiers (given, or the 0-based input index as text: :class:`IndexIds`).
+        Sample identifiers: given (a tuple of str, or held compactly as integers or UTF-8 bytes:
+        :mod:`lagwise.core.data.identifiers`), or the 0-based input index as text.
     source_index : ndarray of int, shape (n,)
         Input index of each kept sample (the first of a duplicate group).
     coordinates : str
@@ -253,7 +254,8 @@ def build_sample_set(
     x, y, z : array_like, shape (n,)
         Coordinates (see the module conventions); y and z optional.
     ids : sequence of str, optional
-        Identifiers echoed in per-sample outputs; default the input index.
+        Identifiers echoed in per-sample outputs (str, or a compact
+        :class:`~lagwise.core.data.identifiers.CompactIds`); default the input index.
     coordinates : {"planar", "geographic"}
         How to read x and y.
     duplicates : {"average", "first", "reject"}
@@ -298,12 +300,12 @@ def build_sample_set(
     else:
         columns = [c for c in (x, y, z) if c is not None]
     coords = np.column_stack(columns)
-    given_ids = tuple(str(i) for i in ids) if ids is not None else IndexIds(np.arange(values.size))
+    held_ids = given_ids(ids, values.size)
     if ids is not None:
-        check_distinct(given_ids, pointer_for)
+        check_distinct(held_ids, pointer_for)
 
     coords, values, kept_ids, source_index, report = _resolve_duplicates(
-        coords, values, given_ids, duplicates, pointer_for
+        coords, values, held_ids, duplicates, pointer_for
     )
     if report.locations:
         action = "averaged" if duplicates == "average" else "kept the first of"

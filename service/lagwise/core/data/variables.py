@@ -30,7 +30,7 @@ import numpy as np
 from ..errors import FieldIssue, InvalidInput
 from .censoring import substitute
 from .geographic import ACCURATE_SPAN_M, LocalProjection, centroid
-from .identifiers import IndexIds, check_distinct, pick_ids
+from .identifiers import check_distinct, given_ids, pick_ids
 from .locations import kept_rows, repeated_locations
 from .samples import (
     MAX_SPREAD,
@@ -91,7 +91,8 @@ class MultiSampleSet:
     units : tuple of (str or None), length p
         Each variable's unit, when given.
     ids : sequence of str
-        Sample identifiers (given, or the 0-based input index as text: ``IndexIds``).
+        Sample identifiers (given as str or compactly, or the 0-based input index as text:
+        :mod:`lagwise.core.data.identifiers`).
     source_index : ndarray of int, shape (n,)
         Input index of each kept sample (the first of a duplicate group).
     coordinates : str
@@ -401,10 +402,10 @@ def build_multi_sample_set(
     else:
         axes = [c for c in (x, y, z) if c is not None]
     coords = np.column_stack(axes)
-    given_ids = tuple(str(i) for i in ids) if ids is not None else IndexIds(np.arange(n))
+    held_ids = given_ids(ids, n)
     if ids is not None:
-        check_distinct(given_ids, pointer_for)
-    coords, table, kept_ids, source_index, report = _merge_duplicates(coords, table, given_ids, duplicates, pointer_for)
+        check_distinct(held_ids, pointer_for)
+    coords, table, kept_ids, source_index, report = _merge_duplicates(coords, table, held_ids, duplicates, pointer_for)
     if report.locations:
         action = "averaged" if duplicates == "average" else "kept the first measured value of"
         warnings.append(
