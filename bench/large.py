@@ -43,7 +43,8 @@ Sections
 * ``ids``: 10,000,000 samples (x, y, values) accepted from an Arrow multipart body (the web layer's
   parsing path, schema validation, the sample set with its duplicate searches): without ids (the
   baseline of the same run), with text ids (11 characters, in random order) and with integer ids;
-  wall time and the peak resident memory the call adds (``VmHWM`` after a reset, less ``VmRSS``
+  CPU and wall time (the target is judged on CPU time, which other agents' load inflates less) and the
+  peak resident memory the call adds (``VmHWM`` after a reset, less ``VmRSS``
   before; the body and the application already held), and the text case
   again from the sources of :data:`OLD_IDS_COMMIT` (one Python string per id) in the same run.
 * ``kriging``: ordinary kriging of 1,000,000 targets from 1,000,000 samples with 16
@@ -595,7 +596,7 @@ def _ids_case(path: str) -> dict:
 
     body, content_type = Path(path).read_bytes(), Path(path + ".type").read_text()
     app = create_app({"TESTING": True}, warm=False)
-    times, added = [], []
+    times, cpu, added = [], [], []
     for _ in range(2):
         with app.test_request_context(
             "/v1/experimental-variograms",
@@ -605,13 +606,14 @@ def _ids_case(path: str) -> dict:
             content_length=len(body),
         ):
             held = _reset_peak()
-            start = time.perf_counter()
+            start, start_cpu = time.perf_counter(), time.process_time()
             samples = sample_set(load_json(ExperimentalRequest()))
             times.append(time.perf_counter() - start)
+            cpu.append(time.process_time() - start_cpu)
             added.append(_status_bytes("VmHWM") - held)
             size, last = samples.size, samples.ids[samples.size - 1]
             del samples
-    return {"seconds": min(times), "added_bytes": max(added), "size": size, "last_id": last}
+    return {"seconds": min(times), "cpu_seconds": min(cpu), "added_bytes": max(added), "size": size, "last_id": last}
 
 
 def _status_bytes(name: str) -> int:
@@ -801,20 +803,21 @@ def identifiers() -> list[dict]:
     rows = []
     for kind in ("text", "integer"):
         r = runs[kind]
-        ratio = r["seconds"] / base["seconds"]
+        ratio = r["cpu_seconds"] / base["cpu_seconds"]
         rows.append(
             {
                 "figure": f"{IDS_SAMPLES:,} Arrow samples accepted with {kind} ids, against none (same run)",
-                "value": f"{r['seconds']:.2f} s, x{ratio:.2f} of {base['seconds']:.2f} s without ids",
-                "target": "ids add < 25 %",
+                "value": f"{r['cpu_seconds']:.2f} s CPU, x{ratio:.2f} of {base['cpu_seconds']:.2f} s without ids",
+                "target": "ids add < 25 % of CPU time",
                 "met": ratio < 1.25,
-                "detail": f"peak added by the call {added(r):.2f} GiB ({added(base):.2f} GiB without ids; body "
+                "detail": f"wall {r['seconds']:.2f} s against {base['seconds']:.2f} s (x{r['seconds'] / base['seconds']:.2f}); "
+                f"peak added by the call {added(r):.2f} GiB ({added(base):.2f} GiB without ids; body "
                 f"{r['bytes'] / 1e6:.0f} MB, {base['bytes'] / 1e6:.0f} MB without ids); last sample's id "
                 f"{r['last_id']!r}"
                 + (
-                    f"; the service of {OLD_IDS_COMMIT} (a Python string per id) {runs['old']['seconds']:.2f} s, "
-                    f"peak added {added(runs['old']):.2f} GiB: x{runs['old']['seconds'] / r['seconds']:.1f} "
-                    "in time"
+                    f"; the service of {OLD_IDS_COMMIT} (a Python string per id) {runs['old']['cpu_seconds']:.2f} s "
+                    f"CPU ({runs['old']['seconds']:.2f} s wall), peak added {added(runs['old']):.2f} GiB: "
+                    f"x{runs['old']['cpu_seconds'] / r['cpu_seconds']:.1f} in CPU time"
                     if kind == "text"
                     else ""
                 ),
