@@ -31,7 +31,7 @@ def test_grid_map_of_scattered_samples_states_grid_method_and_bounds(client, rng
     doc = r.json
     params = doc["parameters"]
     assert params["method"] == "grid" and params["grid"]["source"] == "binned"
-    assert params["grid"]["tolerance"] == 0.01 and params["grid"]["spacing"] == [10.0 / 32, 10.0 / 32]
+    assert params["grid"]["tolerance"] == 0.01 and params["grid"]["spacing"] == [10.0 / 31, 10.0 / 31]
     bound, exceeded = _array(doc["error_bound"]), np.array(doc["bound_exceeded"])
     assert bound.shape == exceeded.shape == (9, 9) and np.array(doc["pair_bound"]).shape == (9, 9)
     assert params["grid"]["flagged_cells"] == int(exceeded.sum())

@@ -67,17 +67,18 @@ def test_counts_add_up_to_the_pairs_within_reach():
 
 
 def test_raster_as_points_gives_the_raster_map_exactly(rng):
-    """A raster's nodes as scattered samples: grid cells of 1/8 the spacing (a power of two, so
-    every node sits exactly on a grid corner) make each lag vector the nodes' own offset."""
+    """A raster's nodes as scattered samples: map cells of 31/8 take grid cells of 1/8 the spacing
+    (31 grid cells a map cell; a power of two, so every node sits exactly on a grid corner), which
+    make each lag vector the nodes' own offset."""
     nx, ny = 48, 40
     x, y = np.meshgrid(np.arange(nx, dtype=np.float64), np.arange(ny, dtype=np.float64))
     values = np.sin(x.ravel() / 6.0) + np.cos(y.ravel() / 9.0) + 0.3 * rng.normal(size=nx * ny)
     values[rng.random(nx * ny) < 0.2] = np.nan
     values[0] = 1.0  # the corner node present: the grid starts on the raster's origin
     raster = build_raster((0.0, 0.0), (1.0, 1.0), (nx, ny), values)
-    reference = raster_map(raster, cell_size=4.0, cells=6)
+    reference = raster_map(raster, cell_size=31 / 8, cells=6)
     points = raster_points(raster, LIMITS)
-    found = variogram_map(points, cell_size=4.0, cells=6, method="grid", limits=LIMITS)
+    found = variogram_map(points, cell_size=31 / 8, cells=6, method="grid", limits=LIMITS)
     assert found.grid.spacing == (0.125, 0.125)
     assert np.array_equal(found.pairs, reference.pairs)
     assert found.grid.within_cell_pairs == 0

@@ -10,11 +10,22 @@ within one grid cell are left out.
 
 Grid cell
 ---------
-c = S / :data:`CELLS_PER_MAP_CELL`, enlarged (by 1.25 at a time) until the grid has at
-most :data:`~lagwise.core.variography.gridded.MAX_GRID_SIDE` cells a side and its
-transforms fit ``LAGWISE_MEMORY_BUDGET_BYTES``; refused when that would take a grid
-cell larger than the map's (``LAGWISE_MEMORY_BUDGET_BYTES`` or ``/cell_size``).
+c = S / m with m odd, from :data:`CELLS_PER_MAP_CELL` down by 2, the first that gives a
+grid of at most :data:`~lagwise.core.variography.gridded.MAX_GRID_SIDE` cells a side whose
+transforms fit ``LAGWISE_MEMORY_BUDGET_BYTES`` (c = S, m = 1, the last); refused when that
+does not fit either (``LAGWISE_MEMORY_BUDGET_BYTES``) or when the finest allowed grid is
+coarser than the map (``/cell_size``). An odd m puts every map cell edge,
+(I + 1/2) S = (I m + (m - 1) / 2 + 1/2) c, half a grid cell from the two nearest columns
+(rows) of lag vectors: the pairs those lag vectors put across the edge are the ones whose
+offsets within their cells differ by more than c / 2, for samples spread evenly within their
+cells, a quarter of a column against a half when the edge lies on a column (bounds.py,
+"Map cells"), and the columns a whole cell or more from an edge
+hold no pair of another map cell.
 
+Each boundary lag vector's share of pairs that can cross a map cell edge is capped from the
+sums of the samples' offset differences and their squares over its pairs (per-node sums of
+the offsets within grid cells along x and y, four more forward and inverse transforms,
+:func:`lagwise.core.variography.fft.offset_moments`; the memory estimate counts their arrays).
 Each map cell states a relative error bound and a pair-count bound
 (:func:`lagwise.core.variography.bounds.map_bounds`, derivation in that module's
 docstring, "Map cells"); a cell is flagged when its bound exceeds the tolerance or
@@ -35,12 +46,13 @@ from ..deadline import check_deadline
 from ..errors import InvalidInput
 from ..limits import Limits
 from . import kernels as K
+from .binning import bin_offsets
 from .bounds import map_bounds
-from .fft import check_budget, fft_bytes, lag_sums, map_table, padded_shape
+from .fft import check_budget, fft_bytes, lag_sums, map_table, offset_moments, padded_shape
 from .gridded import MAX_GRID_SIDE, GridReport, binned_nodes, refuse_unbounded
 from .statistics import class_value
 
-CELLS_PER_MAP_CELL = 32
+CELLS_PER_MAP_CELL = 31
 
 
 def cell_values(statistic: str, table: np.ndarray, mean: float, scale: float, medians=None) -> list:
@@ -96,21 +108,22 @@ def map_grid_cell(summary: Summary, cell_size: float, cells: int, limits: Limits
         When a grid no coarser than the map's cells does not fit ``LAGWISE_MEMORY_BUDGET_BYTES``.
     """
     extent = [hi - lo for lo, hi in summary.extent.values()]
-    cell = max(cell_size / CELLS_PER_MAP_CELL, max(extent) / (MAX_GRID_SIDE - 1))
-    if cell > cell_size:
+    finest = max(extent) / (MAX_GRID_SIDE - 1)
+    if finest > cell_size:
         raise InvalidInput.at(
             "/cell_size",
             f"the grid method bins the samples' whole extent on at most {MAX_GRID_SIDE} cells a side, which are "
-            f"larger than the map's cells ({cell:.4g} > {cell_size:.4g}); use method 'exact' or larger cells",
+            f"larger than the map's cells ({finest:.4g} > {cell_size:.4g}); use method 'exact' or larger cells",
         )
+    sides = [cell_size / m for m in range(CELLS_PER_MAP_CELL, 1, -2) if cell_size / m >= finest] or [finest]
     radius = (cells + 0.5) * cell_size
-    while True:
+    for cell in sides:
         shape, reach = _grid_shape(extent, cell, radius)
-        if fft_bytes(shape, reach) <= limits.memory_budget_bytes:
+        if fft_bytes(shape, reach, offsets=True) <= limits.memory_budget_bytes:
             return cell
-        if cell * 1.25 > cell_size:
-            check_budget(shape, reach, limits, "/cells")
-        cell *= 1.25
+    shape, reach = _grid_shape(extent, cell_size, radius)
+    check_budget(shape, reach, limits, "/cells", offsets=True)
+    return cell_size
 
 
 def refuse_for_grid(samples: SampleSet, statistic: str, tolerance: float) -> None:
@@ -158,7 +171,7 @@ def binned_map(
     ny, nx = grid.nodes.count.shape
     radius = (cells + 0.5) * cell_size
     reach = (min(int(math.ceil(radius / cell)), nx - 1), min(int(math.ceil(radius / cell)), ny - 1))
-    memory = check_budget((ny, nx), reach, limits, "/cells")
+    memory = check_budget((ny, nx), reach, limits, "/cells", offsets=True)
     sums = lag_sums(grid.nodes, reach, first_moments=statistic != "semivariance")
     check_deadline()
     table = map_table(sums, cell_size, cells)
@@ -172,7 +185,19 @@ def binned_map(
     else:
         numerator = sums.product + mean * (sums.tail + sums.head) + mean * mean * sums.count
         within = (grid.within[0], grid.within[2])
-    bound, pair_bound = map_bounds(sums.count, numerator, reach, within, cell, cell_size, cells, grid_values)
+    coords = np.ascontiguousarray(samples.coords)
+
+    def offsets(axis: int) -> tuple[np.ndarray, np.ndarray]:
+        first, second = bin_offsets(coords, grid.origin[0], grid.origin[1], cell, nx, ny, axis)
+        return first.reshape(ny, nx), second.reshape(ny, nx)
+
+    moments = offset_moments(grid.nodes.count, (offsets(axis) for axis in (0, 1)), reach)
+    check_deadline()
+    margin = (grid.margin, grid.margin)
+    bound, pair_bound = map_bounds(
+        sums.count, numerator, reach, within, cell, grid.spread, margin, moments, cell_size, cells, grid_values
+    )
+    del moments
     del sums, numerator
     check_deadline()
     pairs = table[:, K.COUNT].astype(np.int64).reshape(width, width)

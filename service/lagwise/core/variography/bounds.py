@@ -4,8 +4,10 @@ Derivation
 ----------
 Scattered samples are binned on square cells of side c. A pair whose samples sit in
 cells k and k + s is classified by the cells' offset s = (i c, j c); its true
-separation differs from s by less than c along each axis, so it lies in the open
-disk of radius r = c sqrt(2) (a cell's diagonal) about s. Hence:
+separation differs from s by the difference of the two samples' offsets within their
+cells, at most w_x along x and w_y along y (measured, "Map cells" below; each at most
+about c), so it lies in the disk of radius r = sqrt(w_x^2 + w_y^2) (about a cell's
+diagonal) about s. Hence:
 
 * a lag vector whose disk lies inside one class (distance within [lower + r,
   upper - r), and no sector line at azimuth +- tolerance nor band line at
@@ -33,29 +35,67 @@ Map cells
 ---------
 A variogram map puts a pair in cell (I, J) when its separation h has
 floor(h_x / S + 1/2) = I and floor(h_y / S + 1/2) = J, S the map's cell size. A pair
-binned in cells k and k + s has h = s c + (u_head - u_tail) with each component of
-the difference in (-c, c): h lies in the open square of half-side c about s c (not
-the disk: map cells are squares with the same axes). Along x, the map columns that
-square reaches run from floor((s_x c - c) / S + 1/2) to floor((s_x c + c) / S + 1/2),
-and likewise along y. A lag vector whose two ranges are single columns and rows is a
-*core* lag vector of that cell; the others (within c of a cell edge along an axis,
-about 4 c / S of a cell's lag vectors) are *boundary* lag vectors of every cell of
-their ranges. Pairs within one grid cell (s = 0, each counted as h and as -h, as the
-map counts every pair) are boundary pairs of the cells the square (-c, c)^2 reaches
-(the origin cell when c < S / 2). The extremes then follow as for classes, cell by
-cell, over the ordered lag vectors (s and -s both, as the map holds each pair twice),
-and so do the relative bound and the (rigorous) pair-count bound.
+binned in cells k and k + s has h = s c + (u_head - u_tail), u a sample's offset from its
+cell's lower-left corner. The offsets are measured (one pass over the samples,
+:func:`lagwise.core.variography.gridded.offset_spread`): along x every difference lies
+within w_x = (largest - smallest offset along x) plus a rounding margin (of the offsets
+and of the exact path's h), at most about c, and likewise w_y; so h lies in the rectangle
+of half-sides (w_x, w_y) about s c (not a disk: map cells are squares with the same axes).
+Along x, the map columns that rectangle reaches run from floor((s_x c - w_x) / S + 1/2) to
+floor((s_x c + w_x) / S + 1/2), and likewise along y. A lag vector whose two ranges are
+single columns and rows is a *core* lag vector of that cell; the others (within w of a
+cell edge along an axis) are *boundary* lag vectors of every cell of their ranges. Pairs
+within one grid cell (s = 0, each counted as h and as -h, as the map counts every pair)
+are boundary pairs of the cells the rectangle about 0 reaches (the origin cell when
+w < S / 2). The extremes then follow as for classes, cell by cell, over the ordered lag
+vectors (s and -s both, as the map holds each pair twice), and so do the relative bound
+and the (rigorous) pair-count bound. With the map's grid cells (c = S / m, m odd,
+:mod:`lagwise.core.variography.binned_maps`) each edge lies half a grid cell from the
+nearest column of lag vectors on either side, so two columns (rows) per edge are boundary
+lag vectors and those a whole cell or more away are core; a fixed reach of c with a
+relative slack (before the offsets were measured) made the columns whose rectangle
+touches the edge only at its rim boundary lag vectors too.
+
+Shares from the offsets' moments (map cells)
+--------------------------------------------
+Which pairs of a boundary lag vector cross an edge depends on d = u_head - u_tail, not on
+a product of a head term and a tail term, so no sum over node pairs gives the crossing
+pairs' sums; but the sums of d and d^2 over each lag vector's pairs are such sums
+(per-node sums of the offsets and of their squares, two more transforms and two inverse
+ones per axis, :func:`lagwise.core.variography.fft.offset_moments`). The grid puts lag
+vector s in column g = floor(s_x c / S + 1/2); one of its pairs lies in a column i > g only
+if d_x >= t = (i - 1/2) S - s_x c (in i < g only if -d_x > s_x c - (i + 1/2) S), and by
+Cantelli's inequality the share of the lag vector's pairs with d_x >= t is at most
+1 - (t - mu)^2 / E[(d_x - t)^2] when t > mu (mu and E[...] over those pairs, widened by
+the transforms' rounding bound), a rigorous bound on a count. Each boundary lag vector then
+enters the cells its rectangle reaches with a share capped by the smaller of its two axes'
+caps, and its own cell (I, J) keeps at least 1 - (caps of leaving along x) - (caps of
+leaving along y) of its pairs in the core, the rest as a boundary entry; the extremes over
+the shares then run as before (a box [0, cap] is the box [0, 1] of an entry scaled by cap,
+and the pair-count bound is the sum of the scaled counts, still a strict bound). With
+m odd (:mod:`lagwise.core.variography.binned_maps`) the two columns nearest an edge sit
+c / 2 from it: for samples spread evenly within cells mu = 0 and E[d^2] = c^2 / 6, so the
+cap is 1 - (1/4) / (1/6 + 1/4) = 0.4 instead of 1 (the actual share is 1/8). On an edge
+(t = 0, m even) the moments give nothing: with mu = 0 the cap is 1 whatever the variance;
+hence odd m. No polynomial in d bounds the crossing indicator 1[d >= t] closely near t
+(its jump lies where the pairs are densest), so only the count share, not the value the
+crossing pairs carry, is narrowed: each share still carries its lag vector's mean (the
+reading stated above).
 
 What sets the bound: halving c halves the boundary share, but it also quarters the pairs
 of each lag vector, and the worst case takes every boundary lag vector whose mean lies
 above (below) the cell's value. Where lag vectors hold few pairs their means scatter
-widely (the pairs of one lag vector sit at different places of the field, with or without
-a nugget), and past about c = S/32 that scatter, more than the boundary share, sets the
-bound. On 20,000 samples in a 1000 square (smooth field plus noise, tests/reference) the
-median map-cell bound for cells of 25 is 3.4 % at c = S/16, 2.1 % at S/32, 1.5 % at S/64
-and 0.9 % at S/128 (the largest actual error about a quarter of the bound); for the
-automatic cells (17.4) it is 2.0 % at S/16 and 2.7 % at S/32. On 200,000 samples, cells of
-10: 1.0 % at S/16, 0.9 % at S/32.
+widely (the pairs of one lag vector sit at different places of the field), so a finer
+grid alone lowers the bound little (1/128 of a map cell, 1.48 GiB: still 17 % of the
+cells flagged on 20,000 samples). Measured on 20,000 samples in a 1000 square (smooth
+field plus noise, tests/reference, seeds 1-3), share of map cells flagged at tolerance
+0.01 and median bound, before (c = S/32 enlarged by 1.25 under the memory budget, reach c
+with slack, shares in [0, 1]) and after (measured offsets, m odd, capped shares):
+automatic cells (17.4, 40 a side) 99.9-100 % -> 25-33 %, median 2.0 % -> 0.83 %; cells
+of 25 (8 a side) 100 % -> 0 %, 2.0 % -> 0.50 %; cells of 6 (12 a side, grid c = S/9 under
+the 256 MiB budget) 100 % -> 99 %, 4.3 % -> 1.5-1.8 % (there the largest actual error, 1.3 %,
+is itself above the tolerance). The largest actual error over the bound rose from 0.36
+to 0.76 (the bound is closer to the error, never below it in these runs).
 """
 
 from __future__ import annotations
@@ -65,6 +105,7 @@ import math
 import numpy as np
 
 from .directions import DirectionClass
+from .fft import OffsetMoments
 
 BOUND_STATISTICS = ("semivariance", "covariance_noncentered")
 
@@ -207,12 +248,64 @@ def relative_bounds(
     return relative, pairs
 
 
-def _map_spans(offsets: np.ndarray, cell: float, size: float) -> tuple[np.ndarray, np.ndarray]:
-    """First and last map index, floor(h / size + 1/2), that separations within ``cell`` of each offset reach."""
-    slack = cell * (1.0 + 1e-9)  # a hair wider than the open interval: rounding of the exact path's h
+def _map_spans(offsets: np.ndarray, spread: float, size: float) -> tuple[np.ndarray, np.ndarray]:
+    """First and last map index, floor(h / size + 1/2), that separations within ``spread`` of each offset reach.
+
+    ``spread`` already holds the rounding margin of the offsets and of the exact path's h
+    (:func:`lagwise.core.variography.gridded.offset_spread`); the slack added here covers the rounding
+    of the division and the addition of 1/2 (a few units in the last place of |h| and of ``size``).
+    """
+    slack = spread + 8.0 * np.finfo(np.float64).eps * (np.abs(offsets) + spread + size)
     low = np.floor((offsets - slack) / size + 0.5).astype(np.int64)
     high = np.floor((offsets + slack) / size + 0.5).astype(np.int64)
     return low, high
+
+
+_EPS = float(np.finfo(np.float64).eps)
+
+
+class _Crossing:
+    """Along one axis, how many of each boundary lag vector's pairs may lie in each map column (row).
+
+    The grid puts lag vector s in column g = floor(s c / S + 1/2); a pair of it lies in column
+    i > g only if its offset difference d >= t = (i - 1/2) S - s c, and in i < g only if
+    -d > t = s c - (i + 1/2) S (less the rounding slack of :func:`_map_spans`). The share of
+    the lag vector's pairs with d >= t is at most 1 - (t - mu)^2 / E[(d - t)^2] for t > mu
+    (Cantelli's inequality; mu and E[(d - t)^2] from the pair sums of d and d^2, each widened
+    by the transforms' rounding bound), else 1.
+    """
+
+    def __init__(self, steps, cell, size, spread, margin, pairs, moments, jj, ii):
+        self.offset = steps * cell
+        self.own = np.floor(self.offset / size + 0.5).astype(np.int64)
+        self.size = size
+        self.slack = margin + 8.0 * _EPS * (np.abs(self.offset) + spread + size)
+        self.mean = moments.first[jj, ii] / pairs
+        self.mean_error = moments.first_error / pairs
+        self.square = (moments.second[jj, ii] + moments.second_error) / pairs
+
+    def cap(self, index: np.ndarray, pick: np.ndarray) -> np.ndarray:
+        """Largest share of the pairs of boundary lag vectors ``pick`` in column ``index`` (1 in their own)."""
+        own, offset = self.own[pick], self.offset[pick]
+        up = index > own
+        sign = np.where(up, 1.0, -1.0)
+        t = np.where(up, (index - 0.5) * self.size - offset, offset - (index + 0.5) * self.size) - self.slack[pick]
+        mean, error = sign * self.mean[pick], self.mean_error[pick]
+        high, low = mean + error, mean - error
+        spread = self.square[pick] - np.minimum(2.0 * t * low, 2.0 * t * high) + t * t  # >= E[(d - t)^2]
+        with np.errstate(divide="ignore", invalid="ignore"):
+            bound = np.where(t > high, 1.0 - (t - high) ** 2 / spread, 1.0)
+        return np.where(index == own, 1.0, np.clip(np.nan_to_num(bound, nan=1.0), 0.0, 1.0))
+
+    def leaving(self, low: np.ndarray, high: np.ndarray) -> np.ndarray:
+        """Largest share of every boundary lag vector's pairs outside its own column."""
+        every = np.arange(self.own.size)
+        out = np.zeros(self.own.size)
+        for step in (-1, 1):
+            index = self.own + step
+            reach = (index >= low) & (index <= high)
+            out[reach] += self.cap(index[reach], every[reach])
+        return out
 
 
 def _core_sums(values: np.ndarray, cx: np.ndarray, cy: np.ndarray, cells: int) -> np.ndarray:
@@ -233,6 +326,9 @@ def map_bounds(
     reach: tuple[int, int],
     within: tuple[float, float],
     cell: float,
+    spread: tuple[float, float],
+    margin: tuple[float, float],
+    moments: tuple[OffsetMoments, OffsetMoments],
     cell_size: float,
     cells: int,
     grid_values: np.ndarray,
@@ -250,6 +346,14 @@ def map_bounds(
         Pairs within one grid cell and their numerator (each pair once).
     cell, cell_size : float
         The grid's cell side c and the map's cell side S, coordinate units.
+    spread : (float, float)
+        Largest |u_head - u_tail| of two samples' offsets within their grid cells along x and y,
+        rounding margin included (at most about c; :func:`lagwise.core.variography.gridded.offset_spread`).
+    margin : (float, float)
+        The rounding margin within ``spread`` (of the offsets and of the exact path's h).
+    moments : (OffsetMoments, OffsetMoments)
+        Sums of d = w_head - w_tail and d^2 over each lag vector's pairs, along x and y
+        (:func:`lagwise.core.variography.fft.offset_moments`).
     cells : int
         Map cells on each side of the origin.
     grid_values : ndarray, shape (2 cells + 1, 2 cells + 1)
@@ -263,8 +367,8 @@ def map_bounds(
     """
     rx, ry = reach
     width = 2 * cells + 1
-    lx, hx = _map_spans(np.arange(-rx, rx + 1) * cell, cell, cell_size)
-    ly, hy = _map_spans(np.arange(-ry, ry + 1) * cell, cell, cell_size)
+    lx, hx = _map_spans(np.arange(-rx, rx + 1) * cell, spread[0], cell_size)
+    ly, hy = _map_spans(np.arange(-ry, ry + 1) * cell, spread[1], cell_size)
     outside = cells + 1
     cx = np.where(lx == hx, lx, outside)
     cy = np.where(ly == hy, ly, outside)
@@ -276,23 +380,39 @@ def map_bounds(
     boundary = ~((cx[None, :] != outside) & (cy[:, None] != outside)) & (count > 0)
     boundary[ry, rx] = False
     jj, ii = np.nonzero(boundary)
+    del boundary
     b_num, b_den = numerator[jj, ii], count[jj, ii]
     low_i, high_i, low_j, high_j = lx[ii], hx[ii], ly[jj], hy[jj]
-    del boundary
-    parts_cell, parts_lag = [], []
+    along_x = _Crossing(ii - rx, cell, cell_size, spread[0], margin[0], b_den, moments[0], jj, ii)
+    along_y = _Crossing(jj - ry, cell, cell_size, spread[1], margin[1], b_den, moments[1], jj, ii)
+    # The grid's own cell keeps at least `kept` of the lag vector's pairs: those that cross no edge.
+    kept = np.maximum(0.0, 1.0 - along_x.leaving(low_i, high_i) - along_y.leaving(low_j, high_j))
+    own = (np.abs(along_x.own) <= cells) & (np.abs(along_y.own) <= cells)
+    own_cell = (along_y.own[own] + cells) * width + (along_x.own[own] + cells)
+    core_num += np.bincount(own_cell, weights=kept[own] * b_num[own], minlength=width * width).reshape(width, width)
+    core_den += np.bincount(own_cell, weights=kept[own] * b_den[own], minlength=width * width).reshape(width, width)
+    parts_cell, parts_lag, parts_share = [], [], []
     for ti in range(int((high_i - low_i).max(initial=0)) + 1):
         for tj in range(int((high_j - low_j).max(initial=0)) + 1):
             i, j = low_i + ti, low_j + tj
             pick = np.flatnonzero((i <= high_i) & (j <= high_j) & (np.abs(i) <= cells) & (np.abs(j) <= cells))
-            parts_cell.append((j[pick] + cells) * width + (i[pick] + cells))
-            parts_lag.append(pick)
+            i, j = i[pick], j[pick]
+            mine = (i == along_x.own[pick]) & (j == along_y.own[pick])
+            share = np.where(mine, 1.0 - kept[pick], np.minimum(along_x.cap(i, pick), along_y.cap(j, pick)))
+            take = share > 0.0
+            parts_cell.append(((j + cells) * width + (i + cells))[take])
+            parts_lag.append(pick[take])
+            parts_share.append(share[take])
     cls = np.concatenate(parts_cell) if parts_cell else np.zeros(0, dtype=np.int64)
     lag = np.concatenate(parts_lag) if parts_lag else np.zeros(0, dtype=np.int64)
-    e_num, e_den = b_num[lag], b_den[lag]
+    share = np.concatenate(parts_share) if parts_share else np.zeros(0)
+    e_num, e_den = share * b_num[lag], share * b_den[lag]
     if within[0] > 0:
-        i0, i1 = _map_spans(np.zeros(1), cell, cell_size)
-        span = np.arange(max(int(i0[0]), -cells), min(int(i1[0]), cells) + 1)
-        origin = ((span[:, None] + cells) * width + (span[None, :] + cells)).ravel()
+        i0, i1 = _map_spans(np.zeros(1), spread[0], cell_size)
+        j0, j1 = _map_spans(np.zeros(1), spread[1], cell_size)
+        span_i = np.arange(max(int(i0[0]), -cells), min(int(i1[0]), cells) + 1)
+        span_j = np.arange(max(int(j0[0]), -cells), min(int(j1[0]), cells) + 1)
+        origin = ((span_j[:, None] + cells) * width + (span_i[None, :] + cells)).ravel()
         cls = np.r_[cls, origin]
         e_num = np.r_[e_num, np.full(origin.size, 2.0 * within[1])]
         e_den = np.r_[e_den, np.full(origin.size, 2.0 * within[0])]

@@ -39,7 +39,7 @@ from ..deadline import check_deadline
 from ..errors import InvalidInput
 from ..limits import Limits
 from . import kernels as K
-from .binning import bin_on_cells, extent_and_mean
+from .binning import bin_on_cells, extent_and_mean, offset_range
 from .bounds import BOUND_STATISTICS, relative_bounds
 from .directions import DirectionClass
 from .fft import (
@@ -128,9 +128,11 @@ class GridReport:
                 within_cell_pairs=self.within_cell_pairs,
                 flagged_cells=self.flagged,
                 bound_rule="pairs the grid puts in another map cell than the exact path lie in lag vectors whose "
-                "square of half-side one grid cell crosses a map cell edge; error_bound is the widest change of the "
-                "cell value over every share of those lag vectors' pairs, each share at its lag vector's mean; "
-                "pair_bound is the number of those pairs (a strict bound on the count)",
+                "rectangle of the samples' measured offset spread within grid cells crosses a map cell edge; the "
+                "share of a lag vector's pairs that can cross is capped by Cantelli's inequality on the pairs' offset "
+                "differences; error_bound is the widest change of the cell value over every share within those caps, "
+                "each share at its lag vector's mean; pair_bound is the largest number of pairs that can cross (a "
+                "strict bound on the count)",
             )
         elif self.source == "binned":
             out.update(
@@ -153,6 +155,8 @@ class _Grid:
     origin: tuple[float, float]
     source: str
     within: tuple[float, float, float]  # within-cell pairs, their sum of Delta^2 / 2, their sum of z_a z_b
+    spread: tuple[float, float] = (0.0, 0.0)  # largest |u_head - u_tail| along x, y (binned grids; coordinate units)
+    margin: float = 0.0  # the rounding margin within spread
 
 
 def raster_nodes(raster: Raster) -> _Grid:
@@ -171,15 +175,35 @@ def raster_nodes(raster: Raster) -> _Grid:
     return _Grid(nodes, raster.origin, "raster", (0.0, 0.0, 0.0))
 
 
+def offset_spread(
+    coords: np.ndarray, low: tuple[float, float], cell: float, shape: tuple[int, int]
+) -> tuple[tuple[float, float], float]:
+    """Largest difference |u_head - u_tail| of two samples' offsets within their cells along x and y,
+    and the rounding margin it includes.
+
+    Each offset u is measured from its cell's lower-left corner
+    (:func:`~lagwise.core.variography.binning.offset_range`); the difference of two lies within
+    (largest - smallest offset), widened by the rounding of the offsets and of the exact path's
+    separations (64 units in the last place of the grid's extent from 0, and 1e-9 of a cell).
+    At most about one cell; much less when the samples sit near their cells' corners (a
+    raster's nodes on a grid that divides its spacing: the margin alone).
+    """
+    ny, nx = shape
+    ux_lo, ux_hi, uy_lo, uy_hi = offset_range(coords, low[0], low[1], cell, nx, ny)
+    extent = max(nx, ny) * cell + max(abs(low[0]), abs(low[1]))
+    margin = 1e-9 * cell + 64.0 * float(np.finfo(np.float64).eps) * extent
+    return (float(ux_hi - ux_lo) + margin, float(uy_hi - uy_lo) + margin), margin
+
+
 def binned_nodes(coords: np.ndarray, values: np.ndarray, cell: float, summary: Summary) -> _Grid:
     """Bin 2-D samples on square cells of side ``cell`` from the lower-left corner of ``summary.extent``."""
     (x_lo, x_hi), (y_lo, y_hi) = summary.extent["x"], summary.extent["y"]
     low, mean = (x_lo, y_lo), summary.mean
     nx = int((x_hi - x_lo) // cell) + 1
     ny = int((y_hi - y_lo) // cell) + 1
-    count, total, squares = bin_on_cells(
-        np.ascontiguousarray(coords), np.ascontiguousarray(values), low[0], low[1], cell, nx, ny, mean
-    )
+    coords = np.ascontiguousarray(coords)
+    count, total, squares = bin_on_cells(coords, np.ascontiguousarray(values), low[0], low[1], cell, nx, ny, mean)
+    spread, margin = offset_spread(coords, low, cell, (ny, nx))
     pairs = float(np.sum(count * (count - 1.0)) / 2.0)
     half_square = float(np.sum(count * squares - total * total)) / 2.0
     # sum over a < b in a cell of z_a z_b, z = centred + mean.
@@ -192,7 +216,7 @@ def binned_nodes(coords: np.ndarray, values: np.ndarray, cell: float, summary: S
         mean,
         max(abs(summary.minimum), abs(summary.maximum)),
     )
-    return _Grid(nodes, (float(low[0]), float(low[1])), "binned", (pairs, half_square, raw))
+    return _Grid(nodes, (float(low[0]), float(low[1])), "binned", (pairs, half_square, raw), spread, margin)
 
 
 def _reach(grid: _Grid, radius: float) -> tuple[int, int]:
@@ -293,9 +317,8 @@ def grid_classes(
             m = grid.nodes.mean
             numerator = sums.product[mask] + m * (sums.tail[mask] + sums.head[mask]) + m * m * counts
             within = (grid.within[0], grid.within[2])
-        cell = grid.nodes.spacing[0]
         bounds, pair_bounds = relative_bounds(
-            classes.hx, classes.hy, counts, numerator, within, directions, edges, cell * math.sqrt(2.0), values
+            classes.hx, classes.hy, counts, numerator, within, directions, edges, math.hypot(*grid.spread), values
         )
         for k, e in enumerate(edges):
             flagged += int(np.sum(~(bounds[k, : len(e) - 1] <= tolerance)))
