@@ -127,8 +127,62 @@ def test_an_unsatisfiable_accept_is_a_406_listing_what_the_path_answers_with(cli
     r = method(url, json={"samples": columns()}, headers={"Accept": accept})
     doc = assert_problem(r, 406, "not-acceptable")
     arrow = ["application/vnd.apache.arrow.stream"] if url == "/v1/predictions" else []
-    assert doc["acceptable"] == ["application/json", *arrow, "application/problem+json"]
+    assert doc["acceptable"] == ["application/json", *arrow]
     assert all(media_type in doc["detail"] for media_type in doc["acceptable"])
+
+
+@pytest.mark.parametrize(
+    "url, accept",
+    [
+        (VARIOGRAMS, "application/problem+json"),
+        ("/v1/model-families", "application/problem+json"),
+        ("/healthz", "application/problem+json"),
+        ("/readyz", "application/problem+json, text/html"),
+        ("/v1/predictions", "application/problem+json;q=1, application/json;q=0"),
+    ],
+)
+def test_asking_for_problems_alone_asks_for_no_answer_and_is_a_406(client, url, accept):
+    # A problem is sent whatever Accept says; it is not an answer a path can be asked for.
+    method = client.post if url.startswith("/v1/") and url != "/v1/model-families" else client.get
+    r = method(url, json={"samples": columns()}, headers={"Accept": accept})
+    doc = assert_problem(r, 406, "not-acceptable")
+    assert "application/problem+json" not in doc["acceptable"]
+
+
+@pytest.mark.parametrize(
+    "url, accept, served",
+    [
+        ("/", "application/json", "text/html"),
+        ("/openapi.json", "application/yaml", "application/json"),
+        ("/openapi.json", "application/problem+json", "application/json"),
+        ("/openapi.yaml", "application/json", "application/yaml"),
+        ("/openapi.yaml", "application/yaml;q=0, */*", "application/yaml"),
+        ("/metrics", "application/json", "text/plain"),
+        ("/problems/limit-exceeded", "text/html", "application/json"),
+        ("/problems/no-such-kind", "application/problem+json", "application/json"),
+    ],
+)
+def test_fixed_documents_refuse_an_accept_they_cannot_satisfy(client, url, accept, served):
+    doc = assert_problem(client.get(url, headers={"Accept": accept}), 406, "not-acceptable")
+    assert doc["acceptable"] == [served] and served in doc["detail"]
+
+
+@pytest.mark.parametrize(
+    "url, accept, served",
+    [
+        ("/", "text/html,application/xhtml+xml,application/xml;q=0.9,*/*;q=0.8", "text/html"),
+        ("/openapi.json", "application/json, application/problem+json", "application/json"),
+        ("/openapi.yaml", "application/*", "application/yaml"),
+        ("/openapi.yaml", None, "application/yaml"),
+        ("/metrics", "text/plain;version=0.0.4", "text/plain"),
+        ("/metrics", "application/openmetrics-text;version=1.0.0,text/plain;version=0.0.4;q=0.5", "text/plain"),
+        ("/problems/limit-exceeded", "application/json", "application/json"),
+        ("/healthz", "application/json;q=0.5, application/problem+json", "application/json"),
+    ],
+)
+def test_fixed_documents_answer_an_accept_they_can_satisfy(client, url, accept, served):
+    r = client.get(url, headers={} if accept is None else {"Accept": accept})
+    assert r.status_code == 200 and r.mimetype == served
 
 
 @pytest.mark.parametrize(

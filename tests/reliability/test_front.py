@@ -206,3 +206,16 @@ def test_an_upstream_that_closes_without_answering_gives_a_502_problem():
 def test_liveness_is_answered_by_the_front_itself():
     status, document, head, _ = exchange(b"GET /healthz HTTP/1.1\r\nHost: h\r\nConnection: close\r\n\r\n")
     assert status == 200 and document == {"status": "alive"} and b"x-request-id" in head.lower()
+
+
+def test_liveness_with_an_accept_refusing_json_goes_to_a_worker():
+    # The worker's /healthz refuses such an Accept (406) like every path; the stand-in echoes it.
+    status, document, _, _ = exchange(
+        b"GET /healthz HTTP/1.1\r\nHost: h\r\nAccept: application/problem+json\r\nConnection: close\r\n\r\n"
+    )
+    assert status == 200 and "accept: application/problem+json" in document["head"].lower()
+    status, document, _, _ = exchange(
+        b"GET /healthz HTTP/1.1\r\nHost: h\r\nAccept: text/html\r\nAccept: application/*;q=0.5\r\n"
+        b"Connection: close\r\n\r\n"
+    )
+    assert status == 200 and document == {"status": "alive"}

@@ -11,11 +11,14 @@ from flask import Flask, Response
 from ..core.warmup import warm_kernels
 from . import observability, security
 from .jsonio import dumps
-from .openapi import as_dict, as_yaml
+from .negotiation import check_acceptable
+from .openapi import DOCUMENTS, as_dict, as_yaml
 from .operations import blueprint
 from .problems import Problem, register_error_handlers
 from .settings import Settings
 
+# The media type each fixed document is served as (the contract's), checked against Accept.
+SERVED_AS = {doc.operation_id: doc.media_type for doc in DOCUMENTS}
 # The page's own script and styles are inline; it talks only to this service.
 PAGE_POLICY = (
     "default-src 'none'; script-src 'unsafe-inline'; style-src 'unsafe-inline'; img-src data: blob:; "
@@ -49,6 +52,7 @@ def create_app(config: Mapping | None = None, *, settings: Settings | None = Non
 
     @app.get("/metrics")
     def metrics():
+        check_acceptable((SERVED_AS["metrics"],))
         if not settings.metrics_on_main_listener:
             raise Problem("not-found", "metrics are served on LAGWISE_METRICS_BIND")
         return observability.metrics_response()
@@ -57,16 +61,19 @@ def create_app(config: Mapping | None = None, *, settings: Settings | None = Non
 
     @app.get("/")
     def home():
+        check_acceptable((SERVED_AS["page"],))
         response = Response(page, mimetype="text/html")
         response.headers["Content-Security-Policy"] = PAGE_POLICY
         return response
 
     @app.get("/openapi.json")
     def openapi_json():
+        check_acceptable((SERVED_AS["openapi_json"],))
         return Response(dumps(as_dict()), mimetype="application/json")
 
     @app.get("/openapi.yaml")
     def openapi_yaml():
+        check_acceptable((SERVED_AS["openapi_yaml"],))
         return Response(as_yaml(), mimetype="application/yaml")
 
     app.register_blueprint(blueprint)

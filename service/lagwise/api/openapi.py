@@ -344,7 +344,7 @@ def build_spec() -> APISpec:
                     "description": f"{doc.summary}. Read only; served as {doc.media_type}.",
                     "tags": _tag(doc.operation_id, False),
                     "parameters": [*doc.parameters, request_id],
-                    "responses": _responses(success, _statuses(doc.path, doc.errors)),
+                    "responses": _responses(success, _statuses(doc.path, doc.errors) | {406}),
                 },
             )
         )

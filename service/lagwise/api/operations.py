@@ -48,8 +48,9 @@ from .figure_set import check_cost as check_figures
 from .figure_set import marks as figure_marks
 from .figure_set import render
 from .jsonio import dumps
+from .negotiation import check_acceptable
 from .observability import count_work
-from .problems import KINDS, PROBLEM_MEDIA_TYPE, Problem
+from .problems import KINDS, Problem
 from .schemas import (
     AnalysisRequest,
     AnalysisResponse,
@@ -102,28 +103,9 @@ ARROW_ANSWERS = {"predictions": PREDICTION_COLUMNS, "simulations": SIMULATION_CO
 
 
 def answer_media_types(operation_id: str) -> tuple[str, ...]:
-    """The media types an operation answers with: JSON, an Arrow stream where documented, and problems."""
+    """The media types of an operation's successful answers: JSON, and an Arrow stream where documented."""
     arrow = (ARROW_MEDIA_TYPE,) if operation_id in ARROW_ANSWERS else ()
-    return (JSON_MEDIA_TYPE, *arrow, PROBLEM_MEDIA_TYPE)
-
-
-def check_acceptable(operation_id: str) -> None:
-    """Refuse (406) a request whose ``Accept`` allows none of the operation's media types.
-
-    No ``Accept`` (or ``*/*``) accepts everything; quality values and ranges such as
-    ``application/*`` are weighed by werkzeug (``request.accept_mimetypes.best_match``).
-    """
-    if "Accept" not in request.headers:
-        return
-    produced = answer_media_types(operation_id)
-    if request.accept_mimetypes.best_match(produced) is None:
-        listed = ", ".join(produced)
-        raise Problem(
-            "not-acceptable",
-            f"Accept: {request.headers['Accept'][:200]} allows none of the media types {request.path} answers with: "
-            f"{listed}.",
-            acceptable=list(produced),
-        )
+    return (JSON_MEDIA_TYPE, *arrow)
 
 
 def operation(path, method, summary, request=None, response=HealthSchema, errors=COMPUTE_ERRORS):
@@ -135,7 +117,7 @@ def operation(path, method, summary, request=None, response=HealthSchema, errors
 
         @functools.wraps(view)
         def acceptable_then_view():
-            check_acceptable(view.__name__)
+            check_acceptable(answer_media_types(view.__name__))
             if request is None:
                 return view()
             with deadline(settings().deadline_seconds):
@@ -526,6 +508,7 @@ def readyz():
 
 @blueprint.get("/problems/<kind>")
 def problem_kind(kind: str):
+    check_acceptable((JSON_MEDIA_TYPE,))
     if kind not in KINDS:
         raise Problem("not-found", f"no problem type named {kind!r}")
     k = KINDS[kind]

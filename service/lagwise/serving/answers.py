@@ -11,6 +11,7 @@ from __future__ import annotations
 import json
 import re
 import uuid
+from collections.abc import Sequence
 from http import HTTPStatus
 
 REQUEST_ID = re.compile(r"^[A-Za-z0-9._:-]{1,128}$")
@@ -101,6 +102,50 @@ def problem(
     document["request_id"] = request_id
     body = json.dumps(document, separators=(",", ":")).encode()
     return status, _headers(PROBLEM_MEDIA_TYPE, body, request_id), body
+
+
+def _media_ranges(accept: str) -> dict[str, float]:
+    """The media ranges of an ``Accept`` value (type/subtype, lower case) and their quality.
+
+    Parameters other than ``q`` are dropped; a range given twice keeps its larger quality; a
+    ``q`` that is not a number counts as 0 (that range allows nothing).
+    """
+    ranges: dict[str, float] = {}
+    for element in accept.split(","):
+        essence, *parameters = (part.strip() for part in element.split(";"))
+        if "/" not in essence:
+            continue
+        quality = 1.0
+        for parameter in parameters:
+            name, _, value = parameter.partition("=")
+            if name.strip().lower() == "q":
+                try:
+                    quality = min(max(float(value.strip()), 0.0), 1.0)
+                except ValueError:
+                    quality = 0.0
+        essence = essence.lower()
+        ranges[essence] = max(quality, ranges.get(essence, 0.0))
+    return ranges
+
+
+def accepts(accept: str | None, produced: Sequence[str]) -> bool:
+    """True when an ``Accept`` value (None: no header, anything goes) allows one of ``produced``.
+
+    RFC 9110 §12.5.1 on type and subtype: each media type takes the quality of the most
+    specific range matching it (``type/subtype``, then ``type/*``, then ``*/*``), and a
+    quality of 0 refuses it. Parameters other than ``q`` are not compared, so
+    ``text/plain;version=0.0.4`` asks for ``text/plain``.
+    """
+    if accept is None:
+        return True
+    ranges = _media_ranges(accept)
+    for media_type in produced:
+        essence = media_type.split(";", 1)[0].strip().lower()
+        kind = essence.split("/", 1)[0]
+        quality = next((ranges[c] for c in (essence, f"{kind}/*", "*/*") if c in ranges), 0.0)
+        if quality > 0:
+            return True
+    return False
 
 
 def alive(request_id: str) -> tuple[int, list[tuple[bytes, bytes]], bytes]:

@@ -9,7 +9,8 @@ starts both). It
   (``LAGWISE_RECEIVE_SECONDS``) and a size limit (``LAGWISE_MAX_BODY_BYTES``, or
   ``LAGWISE_MAX_ARROW_BYTES`` for a multipart body, whose samples are an Arrow stream),
   holding no worker meanwhile; bodies above 256 KiB are spooled to a temporary file;
-* answers ``GET /healthz`` itself, so liveness answers in milliseconds however busy the
+* answers ``GET /healthz`` itself (without Accept or with one allowing JSON; any other goes to a
+  worker, which refuses it with 406 like every path), so liveness answers in milliseconds however busy the
   workers are;
 * forwards only complete requests, with a ``Content-Length`` and an ``X-Request-ID``,
   over a private Unix socket, one connection per request, and relays the answer;
@@ -266,7 +267,12 @@ class Front:
             if request is None:
                 raise ClientGone
             request_id, target = request.request_id, request.target
-            if request.method in (b"GET", b"HEAD") and request.path.encode() in LIVENESS_PATHS:
+            if (
+                request.method in (b"GET", b"HEAD")
+                and request.path.encode() in LIVENESS_PATHS
+                and answers.accepts(_accept(request.headers), ("application/json",))
+            ):
+                # Any other Accept goes to a worker, whose /healthz refuses it (406) like every path.
                 request.body.close()
                 status, headers, body = answers.alive(request_id)
                 await client.answer(status, headers, b"" if request.method == b"HEAD" else body)
@@ -412,6 +418,12 @@ class Front:
                 if not replaced:
                     await client.send(h11.EndOfMessage())
                 return
+
+
+def _accept(headers) -> str | None:
+    """The request's Accept fields joined into one value (RFC 9110 §5.3), or None without one."""
+    values = [value.decode("latin-1") for key, value in headers if key == b"accept"]
+    return ", ".join(values) if values else None
 
 
 def _header(headers, name: bytes) -> str | None:
