@@ -269,6 +269,14 @@ def _map_values(found):
     return np.array([[np.nan if v is None else v for v in row] for row in found.values])
 
 
+def _error_over_bound(g, e, bound) -> float:
+    """Largest |grid - exact| / (bound |grid|) over the cells with a value and a bound above 0."""
+    import numpy as np
+
+    both = np.isfinite(g) & np.isfinite(e) & np.isfinite(bound) & (bound > 0)
+    return float(np.max(np.abs(g - e)[both] / (bound[both] * np.abs(g[both]))))
+
+
 def grid_map() -> list[dict]:
     import numpy as np
     from lagwise.core.variography.maps import variogram_map
@@ -311,7 +319,9 @@ def grid_map() -> list[dict]:
             "met": None,
             "detail": f"exact / grid = {exact_seconds / grid_seconds:.1f}; largest relative error of a cell "
             f"{100 * worst:.3f} %, largest stated bound {100 * float(np.nanmax(bound)):.2f} %; every cell within "
-            f"its bound: {inside}; {int(exact.pairs.sum()) // 2:,} pairs",
+            f"its bound: {inside}; {int(exact.pairs.sum()) // 2:,} pairs; {grid.grid.flagged} of {width * width} "
+            f"cells above tolerance {grid.grid.tolerance:g}, median bound "
+            f"{100 * float(np.nanmedian(bound)):.2f} %; largest error / bound {_error_over_bound(g, e, bound):.2f}",
         },
     ]
 
