@@ -108,3 +108,27 @@ def test_instances_do_not_share_a_control_socket():
             kept = _control_socket(outer)
         # The inner instance stopped; the outer one's socket is still there.
         assert _control_socket(outer) == kept and os.path.exists(kept)
+
+
+WARM_UP_INTERRUPTED = """
+import os, signal, time
+import lagwise.core.warmup
+from lagwise.serving import gunicorn_conf
+
+def warm_up_receiving_sigterm():
+    os.kill(os.getpid(), signal.SIGTERM)
+    time.sleep(10)
+
+signal.signal(signal.SIGTERM, lambda *_: None)  # as a gunicorn master's handler: queue, do not stop
+lagwise.core.warmup.warm_kernels = warm_up_receiving_sigterm
+gunicorn_conf.post_fork(None, None)
+"""
+
+
+def test_a_worker_stops_on_sigterm_during_its_warm_up(tmp_path):
+    """The post-fork hook runs with the master's handlers inherited (gunicorn installs the worker's
+    after it): a SIGTERM then must end the worker, not be queued and lost (stopping an instance just
+    after a worker restart then waited the whole graceful timeout)."""
+    env = dict(os.environ, PROMETHEUS_MULTIPROC_DIR=str(tmp_path))
+    done = subprocess.run([sys.executable, "-c", WARM_UP_INTERRUPTED], env=env, capture_output=True, timeout=60)
+    assert done.returncode == -signal.SIGTERM, (done.returncode, done.stderr[-2000:])

@@ -70,11 +70,21 @@ def when_ready(server):
 
 
 def post_fork(server, worker):
-    """Set this worker's compute threads and run the kernels once, so requests never compile."""
+    """Set this worker's compute threads and run the kernels once, so requests never compile.
+
+    Until gunicorn installs the worker's own handlers (after this hook) the worker holds the
+    master's, which only queue a signal in the worker's copy of the master: a SIGTERM during the
+    warm-up was lost, and stopping right after a worker (re)start waited the whole graceful
+    timeout. The default actions end a worker that has no request yet.
+    """
+    import signal
+
     import numba
 
     from lagwise.core.warmup import warm_kernels
 
+    for stop in (signal.SIGTERM, signal.SIGINT, signal.SIGQUIT):
+        signal.signal(stop, signal.SIG_DFL)
     numba.set_num_threads(min(threads_per_worker, numba.config.NUMBA_NUM_THREADS))
     warm_kernels()
 
