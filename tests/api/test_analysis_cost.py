@@ -9,6 +9,7 @@ multiply-adds, Golub & Van Loan 2013, section 3.2) and the pair counts of the sw
 from __future__ import annotations
 
 import json
+import math
 from dataclasses import replace
 
 import numpy as np
@@ -24,6 +25,7 @@ from lagwise.core.errors import LimitExceeded
 from lagwise.core.kriging.cost import cross_validation_flops, prediction_flops
 from lagwise.core.kriging.neighbourhood import Neighbourhood
 from lagwise.core.limits import Limits
+from lagwise.core.variography import maps
 from lagwise.demo import ACTION_LEVEL, UNIT_SIZE_M, elmsworth_samples
 
 LIMIT = "LAGWISE_MAX_ANALYSIS_SECONDS"
@@ -157,16 +159,45 @@ def test_invalid_options_are_left_to_the_analysis_which_names_their_stage(client
     assert r.json["errors"][0]["pointer"].startswith("/cross_validation/scheme")
 
 
-def test_map_pairs_count_by_the_map_stage_method():
-    """The exact map's pair work counts in full; auto at most up to LAGWISE_MAX_PAIRS (beyond it, it
-    takes the grid); the grid's FFT is not pair work."""
-    limits = Limits(max_pairs=100_000)
-    document = {"samples": _columns(2000), "figures": ["variogram_map"], "fit": {"anisotropy": "none"}}
-    seconds = {
-        method: _estimate({**document, "variogram_map": {"method": method}}, limits)[0].stages["variograms"]
-        for method in ("exact", "auto", "grid")
+def _map_document(method: str) -> dict:
+    return {
+        "samples": _columns(2000),
+        "figures": ["variogram_map"],
+        "fit": {"anisotropy": "none"},
+        "variogram_map": {"method": method},
     }
-    without = _estimate({**document, "figures": []}, limits)[0].stages["variograms"]
-    assert seconds["exact"] - without > 100_000 / analysis_cost.PAIRS_PER_SECOND
-    assert seconds["auto"] - without == pytest.approx(100_000 / analysis_cost.PAIRS_PER_SECOND)
-    assert seconds["grid"] == without
+
+
+def test_the_map_stage_counts_by_the_method_it_takes():
+    """The exact map counts its pair work; auto its pairs within LAGWISE_MAX_PAIRS, else the grid's
+    transforms; the grid's transforms are transforms x points x log2 points of the padded grid that
+    the map reports (an FFT of P points takes of the order of P log2 P operations, Cooley & Tukey 1965)."""
+    limits = Limits(max_pairs=100_000)
+    samples = convert.samples_of(AnalysisRequest().load(_map_document("exact")), limits)
+    exact = maps.map_work(samples, statistic="semivariance", min_pairs=30, method="exact", limits=limits)
+    grid = maps.map_work(samples, statistic="semivariance", min_pairs=30, method="grid", limits=limits)
+    assert exact.method == "exact" and exact.pairs > limits.max_pairs and exact.transforms == 0
+    assert grid.method == "grid" and grid.pairs == 0 and grid.transforms == 5
+    made = maps.variogram_map(samples, method="grid", limits=limits)
+    assert grid.points == made.grid.padded[0] * made.grid.padded[1]
+    fft_seconds = grid.transforms * grid.points * math.log2(grid.points) / analysis_cost.FFT_UNITS_PER_SECOND
+    seconds = {m: _estimate(_map_document(m), limits)[0].stages for m in ("exact", "auto", "grid")}
+    without = _estimate({**_map_document("exact"), "figures": []}, limits)[0].stages
+    assert seconds["exact"]["variogram_map"] == pytest.approx(exact.pairs / analysis_cost.PAIRS_PER_SECOND)
+    assert seconds["auto"]["variogram_map"] == seconds["grid"]["variogram_map"] == pytest.approx(fft_seconds)
+    assert without["variogram_map"] == 0.0
+    assert {m: s["variograms"] for m, s in seconds.items()} == dict.fromkeys(seconds, without["variograms"])
+    roomy = _estimate(_map_document("auto"))[0].stages["variogram_map"]
+    assert roomy == pytest.approx(exact.pairs / analysis_cost.PAIRS_PER_SECOND)
+
+
+def test_a_grid_map_can_take_an_analysis_past_the_limit():
+    document = {**_map_document("grid"), "fit": {"anisotropy": "none", "compare": False}}
+    (cost,) = _estimate(document)
+    (without,) = _estimate({**document, "figures": []})
+    limits = Limits(max_analysis_seconds=math.ceil(without.seconds))
+    analysis_cost.check([without], limits)
+    assert cost.seconds > limits.max_analysis_seconds
+    with pytest.raises(LimitExceeded) as info:
+        analysis_cost.check([cost], limits)
+    assert info.value.limit == LIMIT and f"variogram_map {cost.stages['variogram_map']:.3g} s" in info.value.advice

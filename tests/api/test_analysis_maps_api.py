@@ -63,10 +63,11 @@ def test_flagged_cells_are_warned_about(client, rng):
 
 
 def test_auto_turns_to_grid_when_the_exact_map_is_over_the_pair_limit(rng):
-    """The variogram classes need some 2e4 pairs of work, the exact map (reaching about 70) some 8e4."""
-    limits = Limits(max_pairs=50_000)
+    """The variogram classes need some 2.7e5 pairs of work (the column sweep's runs most of it), the exact
+    map (reaching about 70) some 5e5."""
+    limits = Limits(max_pairs=400_000)
     client = create_app({"TESTING": True}, settings=Settings(limits=limits)).test_client()
-    samples = random_columns(rng, n=300)
+    samples = random_columns(rng, n=600)
     doc = _analysis(client, samples, variogram=SHORT)
     assert doc["parameters"]["variogram_map"]["method"] == "grid"
     refused = client.post(

@@ -174,7 +174,9 @@ def test_the_pair_limit_weighs_the_variables(small_limits_client):
     """Covariances of p variables add p x p sums per pair: a request one variable may make is refused for three."""
     x = [float(i) for i in range(30)]
     body = {"lags": {"width": 1, "count": 5}, "statistic": "covariance"}
-    one = small_limits_client.post("/v1/experimental-variograms", json={"samples": {"x": x, "values": x}, **body})
+    one = small_limits_client.post(
+        "/v1/experimental-variograms", json={"samples": {"x": x, "variables": {"a": x}}, **body}
+    )
     assert one.status_code == 200, one.json
     three = {"x": x, "variables": {"a": x, "b": [v * v for v in x], "c": [-v for v in x]}}
     refused = small_limits_client.post("/v1/experimental-variograms", json={"samples": three, **body})

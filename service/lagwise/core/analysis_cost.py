@@ -5,14 +5,18 @@ stages: the omnidirectional variogram, the fan of direction classes, the residua
 variograms of the drifts, the fits, the likelihood refinements, one cross-validation of
 every candidate of every strategy, the prediction, the simulation and the figures. A
 request whose stages each pass could still add up to far more than its deadline, so
-their sum is estimated from sizes alone (and the pair counts of the sweep) and refused
+their sum is estimated from sizes alone (and the candidates the pair kernels will visit) and refused
 above ``LAGWISE_MAX_ANALYSIS_SECONDS``; for several variables, the sum over the variables.
 
 The estimate counts the most the chain may run (every strategy that the options allow,
 as if the data supported it) and converts each stage's count to seconds of one worker
 core on a loaded machine, by the rates the stage limits document:
 
-* pair kernels: :data:`PAIRS_PER_SECOND` (``LAGWISE_MAX_PAIRS``);
+* pair kernels: :data:`PAIRS_PER_SECOND` (``LAGWISE_MAX_PAIRS``): the candidates each pass's
+  kernel visits (the column sweep of the fast path, the sweep along x of the others) and the
+  pairs within the search radius per direction class, with the class uncertainties' pass;
+* the variogram map: its pairs (exact) or, for the grid method, its FFTs:
+  :data:`FFT_UNITS_PER_SECOND` (transforms x points x log2 points of the padded grid);
 * kriging operations (multiply-add equivalents, :mod:`.kriging.cost`):
   :data:`OPERATIONS_PER_SECOND` (``LAGWISE_MAX_KRIGING_FLOPS``);
 * simulated values: :data:`SIMULATED_PER_SECOND` (``LAGWISE_MAX_SIMULATION_VALUES``);
@@ -23,6 +27,7 @@ core on a loaded machine, by the rates the stage limits document:
 
 from __future__ import annotations
 
+import math
 from collections.abc import Sequence
 from dataclasses import dataclass
 
@@ -50,19 +55,26 @@ from .modelling.likelihood import EVALUATIONS
 from .modelling.likelihood import MAX_SAMPLES as LIKELIHOOD_SAMPLES
 from .modelling.trend import QUADRATIC_MIN_SAMPLES
 from .stages import validate_stages
-from .variography.experimental import pair_passes
+from .variography.directions import OMNIDIRECTIONAL
+from .variography.experimental import pair_passes, resolve_directions, summed_fast
 from .variography.lags import validate_lags
-from .variography.pairs import estimate_pairs_within, sweep_visits
+from .variography.maps import map_work
+from .variography.pairs import X_SWEEP, estimate_pairs_within, pass_visits, prepare
+from .variography.uncertainty import plan_blocks
 
 PAIRS_PER_SECOND = 1e8
 OPERATIONS_PER_SECOND = 3e9
 SIMULATED_PER_SECOND = 1e7
+# A grid-method variogram map, whole (binning, transforms, bounds), took 3.4-6.2 ns of CPU per unit of
+# transforms x points x log2(points) at 20,000-200,000 samples on the loaded 2-core machine (load 7).
+FFT_UNITS_PER_SECOND = 1.6e8
 SVG_MARKS_PER_SECOND = 2000.0  # about 0.5 ms per map cell
 FIT_SECONDS = 0.7  # one least-squares fit of every family: about 0.6 s of CPU profiled on the loaded 2-core machine
 LIKELIHOOD_STARTS = 12  # starts of the anisotropic refinement: up to 4 candidates x 3 ratios
 EMBEDDING_FACTOR = 4  # the torus of a circulant embedding is at least twice the grid along each axis
 POINTERS = {
     "variograms": "/variogram",
+    "variogram_map": "/variogram_map",
     "fits": "/fit",
     "refinements": "/fit",
     "cross_validation": "/cross_validation",
@@ -79,8 +91,8 @@ class AnalysisCost:
     Attributes
     ----------
     stages : dict of str to float
-        ``variograms``, ``fits``, ``refinements``, ``cross_validation``, ``prediction``,
-        ``simulation`` and ``figures``: seconds of one worker core (see the module docstring).
+        ``variograms``, ``variogram_map``, ``fits``, ``refinements``, ``cross_validation``,
+        ``prediction``, ``simulation`` and ``figures``: seconds of one worker core (see the module docstring).
     """
 
     stages: dict[str, float]
@@ -91,23 +103,44 @@ class AnalysisCost:
         return sum(self.stages.values())
 
 
-def _pair_seconds(
-    samples: SampleSet, options: AnalysisOptions, limits: Limits, variograms: int, directions: int
-) -> float:
-    """The sweep's visits and the pairs within the search radius, for every variogram pass."""
+def _pair_seconds(samples: SampleSet, options: AnalysisOptions, variograms: int, fan: tuple) -> float:
+    """The pair work of every variogram pass (``LAGWISE_MAX_PAIRS`` units, :meth:`.limits.Limits.check_pairs`):
+    the candidates each pass's kernel visits (the column sweep or the sweep along x,
+    :func:`.variography.pairs.pass_visits`) plus the pairs within the search radius per direction class,
+    and the class uncertainties' per-block pass (the sweep along x) where it runs."""
     stage = options.variogram
     edges = validate_lags(stage.lags)
     coords = samples.coords
     radius = float(edges[-1]) if edges is not None else 0.5 * float(np.linalg.norm(np.ptp(coords, axis=0)))
-    visited = int(sweep_visits(np.sort(coords[:, 0]), radius).sum())
+    prepared = prepare(coords, np.zeros(samples.size))
     within = estimate_pairs_within(coords, radius)
-    passes = pair_passes(stage.lags, stage.statistic, False)
-    pairs = passes * (variograms * (visited + within) + (visited + within * directions if directions else 0))
-    if options.with_map and options.variogram_map.method != "grid":
-        # auto takes the pair engine only within LAGWISE_MAX_PAIRS; the grid's FFT is not counted in pairs
-        exact_map = visited + within
-        pairs += min(exact_map, limits.max_pairs) if options.variogram_map.method == "auto" else exact_map
-    return pairs / PAIRS_PER_SECOND
+    along_x = pass_visits(prepared, radius, [X_SWEEP])[0][1]
+    sets = [([OMNIDIRECTIONAL], variograms)] + (
+        [(resolve_directions(list(fan), samples.dimension)[0], 1)] if fan else []
+    )
+    work = 0
+    for directions, count in sets:
+        passes = pair_passes(stage.lags, stage.statistic, False, summed_fast(directions, stage.lags))
+        visited = sum(v for _, v in pass_visits(prepared, radius, passes))
+        _, skipped = plan_blocks(stage.statistic, samples.size, (len(directions), 1), max(within, along_x))
+        blocks = 0 if skipped else along_x + within * len(directions)
+        work += count * (visited + len(passes) * within * len(directions) + blocks)
+    return work / PAIRS_PER_SECOND
+
+
+def _map_seconds(samples: SampleSet, options: AnalysisOptions, limits: Limits) -> float:
+    """The variogram map's pair work (exact) or its transforms (grid: transforms x points x log2 points),
+    by the method the map stage will take (:func:`.variography.maps.map_work`)."""
+    if not options.with_map:
+        return 0.0
+    stage = options.map_stage
+    work = map_work(
+        samples, statistic=stage.statistic, min_pairs=options.variogram.min_pairs, method=stage.method, limits=limits
+    )
+    if work is None:
+        return 0.0
+    transforms = work.transforms * work.points * math.log2(max(work.points, 2))
+    return work.pairs / PAIRS_PER_SECOND + transforms / FFT_UNITS_PER_SECOND
 
 
 def _simulated_seconds(options: AnalysisOptions, n: int, hood, limits: Limits) -> float:
@@ -151,9 +184,8 @@ def estimate(
     folds = None if cv.scheme.type == "leave_one_out" else cv.scheme.folds
     refinable = fit.compare and fit.nugget == "fit" and n >= REFINE_MIN_SAMPLES
     wants_fan = fit.model is None and d >= 2 and (options.variogram.directions is not None or fit.anisotropy != "none")
-    fan_classes = (
-        len(options.variogram.directions) if isinstance(options.variogram.directions, tuple) else len(AUTO_FAN)
-    )
+    fan = options.variogram.directions if isinstance(options.variogram.directions, tuple) else AUTO_FAN
+    fan_classes = len(fan)
     drifts: list[int] = []
     if fit.model is None and (fixed is None or universal_only) and (fit.compare or universal_only):
         degrees = [1, 2] if fixed is None else [2 if fixed.drift == "quadratic" else 1]
@@ -182,7 +214,8 @@ def estimate(
     rate = SVG_MARKS_PER_SECOND * (PNG_ELEMENT_FACTOR if figure_format == "png" else 1)
     return AnalysisCost(
         {
-            "variograms": _pair_seconds(samples, options, limits, 1 + len(drifts), fan_classes if wants_fan else 0),
+            "variograms": _pair_seconds(samples, options, 1 + len(drifts), fan if wants_fan else ()),
+            "variogram_map": _map_seconds(samples, options, limits),
             "fits": FIT_SECONDS * fits,
             "refinements": refinements * evaluation / OPERATIONS_PER_SECOND,
             "cross_validation": validations / OPERATIONS_PER_SECOND,

@@ -6,6 +6,7 @@ Every limit is set by a ``LAGWISE_*`` environment variable in the service (see
 
 from __future__ import annotations
 
+from collections.abc import Sequence
 from dataclasses import dataclass
 
 from .errors import LimitExceeded
@@ -23,8 +24,11 @@ class Limits:
         Samples per request (``LAGWISE_MAX_SAMPLES``).
     max_pairs : int
         Pair work of one request (``LAGWISE_MAX_PAIRS``): for each pass of the pair
-        kernels, the pairs the x-sorted sweep visits plus the pairs within the search
-        radius times the number of direction classes; the kernels run at about 1e8 pairs/s.
+        kernels, the candidate pairs that pass's kernel visits (the column sweep of the fast
+        path, ``accumulate_horizontal``, about 1.03 per pair within the search radius on
+        spread samples, plus 150 for each run of a column it takes; the sweep along x of the
+        other kernels, every pair within the radius along x) plus the pairs within the search
+        radius times the number of direction classes; the kernels run at about 1e8 of these a second.
     max_median_pairs : int
         Pairs whose differences the median-based estimator may hold in memory
         (8 bytes each, ``LAGWISE_MAX_MEDIAN_PAIRS``).
@@ -61,8 +65,8 @@ class Limits:
         realisations x grid nodes with ``return_realisations``; about 20 bytes of JSON each.
     max_analysis_seconds : int
         Estimated seconds of one core for a whole analysis (``LAGWISE_MAX_ANALYSIS_SECONDS``): its
-        variograms, fits, the cross-validation of every strategy, the prediction, simulation and
-        figures, summed over the variables of a batch, at the rates of the limits above
+        variograms, the variogram map (its pair work, or the grid method's transforms), fits, the
+        cross-validation of every strategy, the prediction, simulation and figures, summed over the variables of a batch, at the rates of the limits above
         (``lagwise.core.analysis_cost``); raise it with the deadline.
     """
 
@@ -93,19 +97,33 @@ class Limits:
             )
 
     def check_pairs(
-        self, pairs: int, directions: int, pointer: str = "/lags", *, visited: int = 0, passes: int = 1
+        self, pairs: int, directions: int, pointer: str = "/lags", *, visits: Sequence[tuple[str, int]] = ()
     ) -> None:
-        """Refuse when ``passes`` x (visited pairs + pairs within the radius x direction classes) exceed ``max_pairs``."""
-        cost = passes * (visited + pairs * max(directions, 1))
+        """Refuse when the pair work of a request exceeds ``max_pairs``.
+
+        ``visits`` holds one (kernel, visiting work) per pass over the pairs, counted beforehand
+        (:func:`lagwise.core.variography.pairs.pass_visits`): the candidates of the ``sweep along x``,
+        or of the ``column sweep`` with a fixed work for each run it takes. The work is their sum plus,
+        for every pass, ``pairs`` (within the search radius) x ``directions``.
+        """
+        passes = max(len(visits), 1)
+        cost = sum(v for _, v in visits) + passes * pairs * max(directions, 1)
         if cost > self.max_pairs:
+            by_kernel: dict[str, list[int]] = {}
+            for kernel, count in visits:
+                by_kernel.setdefault(kernel, []).append(count)
+            visited = "; ".join(
+                f"{len(counts)} by the {kernel} visiting {sum(counts):,}" for kernel, counts in by_kernel.items()
+            )
+            visited = f" ({visited})" if visited else ""
             raise LimitExceeded(
                 "LAGWISE_MAX_PAIRS",
                 self.max_pairs,
                 cost,
-                f"{passes} pass(es) over the pairs: {visited:,} visited by the sweep along x and {pairs:,} within "
-                f"the search radius for {max(directions, 1)} direction class(es). Shorten the largest distance "
-                "class, use fewer direction classes, fewer samples, or a statistic other than the median and "
-                "no h-scattergram.",
+                f"{passes} pass(es) over the pairs{visited}; each pass also weighs {pairs:,} pairs within the "
+                f"search radius for {max(directions, 1)} direction class(es). Shorten the largest distance class, "
+                "use fewer direction classes, fewer samples, or a statistic other than the median and no "
+                "h-scattergram.",
                 pointer,
             )
 

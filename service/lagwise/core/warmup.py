@@ -80,6 +80,7 @@ def compile_kernels() -> None:
         f"({a2}, {i8}[::1], {i8}[::1], {a1}, {f8}, {f8}, {a2}, {a2}, {i8}[:, ::1], {f8}, boolean, {f8}, {f8}, "
         f"{i8}, {i8}, {rows})"
     )
+    K.column_candidates.compile(f"({a2}, {i8}[::1], {i8}[::1], {a1}, {f8}, {i8}, {i8})")
     K.collect_pairs.compile(
         f"({a2}, {a1}, {f8}, {a2}, {a2}, {i8}[::1], {a1}, {i8}[::1], {i8}[::1], {a1}, {i8}, {i8}, {a1}, {a1}, {i8}[::1], {rows})"
     )

@@ -91,7 +91,9 @@ class BinnedMap:
     report: GridReport
 
 
-def _grid_shape(extent: list[float], cell: float, radius: float) -> tuple[tuple[int, int], tuple[int, int]]:
+def grid_shape(extent: list[float], cell: float, radius: float) -> tuple[tuple[int, int], tuple[int, int]]:
+    """(rows, columns) of the binned grid of cell side ``cell`` over ``extent`` (x, y) and the lag
+    reach (x, y) in cells of a map reaching ``radius``."""
     shape = (int(extent[1] // cell) + 1, int(extent[0] // cell) + 1)
     reach = (min(int(math.ceil(radius / cell)), shape[1] - 1), min(int(math.ceil(radius / cell)), shape[0] - 1))
     return shape, reach
@@ -118,10 +120,10 @@ def map_grid_cell(summary: Summary, cell_size: float, cells: int, limits: Limits
     sides = [cell_size / m for m in range(CELLS_PER_MAP_CELL, 1, -2) if cell_size / m >= finest] or [finest]
     radius = (cells + 0.5) * cell_size
     for cell in sides:
-        shape, reach = _grid_shape(extent, cell, radius)
+        shape, reach = grid_shape(extent, cell, radius)
         if fft_bytes(shape, reach, offsets=True) <= limits.memory_budget_bytes:
             return cell
-    shape, reach = _grid_shape(extent, cell_size, radius)
+    shape, reach = grid_shape(extent, cell_size, radius)
     check_budget(shape, reach, limits, "/cells", offsets=True)
     return cell_size
 

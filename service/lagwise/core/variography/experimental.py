@@ -16,7 +16,7 @@ from ..deadline import check_deadline
 from ..errors import FieldIssue, InvalidInput, LimitExceeded
 from ..limits import Limits
 from . import kernels as K
-from .directions import OMNIDIRECTIONAL, DirectionClass, validate_direction
+from .directions import OMNIDIRECTIONAL, DirectionClass, direction_table, validate_direction
 from .fft import check_statistic
 from .gridded import (
     BOUND_STATISTICS,
@@ -44,14 +44,17 @@ from .lags import (
     validate_lags,
 )
 from .pairs import (
+    COLUMN_SWEEP,
+    X_SWEEP,
     PreparedSamples,
     absolute_differences,
     accumulate,
     estimate_pairs_within,
+    horizontal_table,
     layout,
+    pass_visits,
     prepare,
     scatter_pairs,
-    sweep_visits,
 )
 from .statistics import ACCUMULATION_MODE, COVARIANCE_TYPE, STATISTICS, class_value
 from .uncertainty import ClassUncertainty, UncertaintyPlan, class_uncertainties
@@ -215,16 +218,30 @@ def _half_extent(samples: SampleSet, summary: Summary, direction: DirectionClass
     return 0.5 * float(np.ptp(projection))
 
 
-def pair_passes(lags: LagRequest, statistic: str, scattergram: bool) -> int:
-    """Passes of the pair kernels: automatic classes count once, the statistic once,
-    the median's differences and the h-scattergram once more each."""
+def pair_passes(lags: LagRequest, statistic: str, scattergram: bool, fast: bool = True) -> list[str]:
+    """The kernel of each pass over the pairs: the automatic classes' counts and the statistic's sums
+    by :func:`~lagwise.core.variography.pairs.accumulate` (the column sweep when ``fast``, i.e.
+    the layout's :attr:`~lagwise.core.variography.pairs.ClassLayout.fast`, else the sweep along x),
+    the median's differences and the h-scattergram by ``collect_pairs`` (the sweep along x)."""
     explicit = lags.width is not None or lags.edges is not None
-    return 1 + (0 if explicit else 1) + (statistic == "semivariance_median") + int(scattergram)
+    summed = COLUMN_SWEEP if fast else X_SWEEP
+    collected = (statistic == "semivariance_median") + int(scattergram)
+    return [summed] * (1 + (0 if explicit else 1)) + [X_SWEEP] * collected
+
+
+def summed_fast(directions: list[DirectionClass], lags: LagRequest) -> bool:
+    """Whether :func:`~lagwise.core.variography.pairs.accumulate` will take the column sweep: horizontal
+    classes and, for explicit edges, a lookup table that resolves them (automatic classes always do)."""
+    explicit = validate_lags(lags)
+    if explicit is not None:
+        return layout(directions, [explicit] * len(directions)).fast
+    return horizontal_table(direction_table(directions))
 
 
 def _check_pairs(samples, prepared, radius, directions, passes, limits):
-    visited = int(sweep_visits(prepared.points[:, 0], radius).sum())
-    limits.check_pairs(estimate_pairs_within(samples.coords, radius), directions, visited=visited, passes=passes)
+    limits.check_pairs(
+        estimate_pairs_within(samples.coords, radius), directions, visits=pass_visits(prepared, radius, passes)
+    )
 
 
 def _resolve_edges(samples, summary, prepared, lags, directions, min_pairs, limits, passes):
@@ -320,9 +337,12 @@ def experimental_variogram(
         declustering = decluster(samples.coords, samples.values)
     summary = summarise(samples.coords, samples.values, declustering)
     prepared = prepare(samples.coords, samples.values)
-    passes = pair_passes(lags, statistic, pairs_for_class is not None)
+    scatter = pairs_for_class is not None
+    passes = pair_passes(lags, statistic, scatter, summed_fast(resolved, lags))
     edges, spacing = _resolve_edges(samples, summary, prepared, lags, resolved, min_pairs, limits, passes)
-    _check_pairs(samples, prepared, layout(resolved, edges).search_radius, len(resolved), passes, limits)
+    packed = layout(resolved, edges)
+    passes = pair_passes(lags, statistic, scatter, packed.fast)
+    _check_pairs(samples, prepared, packed.search_radius, len(resolved), passes, limits)
     classes = Classes(resolved, edges, spacing, tuple(warnings))
     return on_classes(
         samples, classes, statistic, min_pairs, lags, limits, declustering, pairs_for_class, (summary, prepared)
@@ -476,7 +496,8 @@ def choose_method(
     radius = float(explicit[-1]) if explicit is not None else 0.5 * largest_separation(samples.coords)
     prepared = prepare(samples.coords, samples.values)
     try:
-        _check_pairs(samples, prepared, radius, len(directions), pair_passes(lags, statistic, False), limits)
+        passes = pair_passes(lags, statistic, False, summed_fast(directions, lags))
+        _check_pairs(samples, prepared, radius, len(directions), passes, limits)
     except LimitExceeded:
         return "grid"
     return "exact"

@@ -122,6 +122,13 @@ def fft_bytes(shape: tuple[int, int], reach: tuple[int, int], offsets: bool = Fa
     return SPECTRA_ALIVE * spectrum + windows * window + grids * shape[0] * shape[1] * 8
 
 
+def transform_count(first_moments: bool, offsets: bool = False) -> int:
+    """Real 2-D FFTs of :func:`lag_sums`: forward transforms of the counts, sums and squares, then two
+    inverse transforms (count, square) or, with the first moments, four; with ``offsets``, also those
+    of :func:`offset_moments` (the counts' forward transform, then two forward and two inverse per axis)."""
+    return 3 + (4 if first_moments else 2) + (9 if offsets else 0)
+
+
 def check_budget(
     shape: tuple[int, int], reach: tuple[int, int], limits: Limits, pointer: str, offsets: bool = False
 ) -> int:

@@ -666,6 +666,42 @@ def accumulate_horizontal(
     return result, colocated.sum()
 
 
+@njit(parallel=True, cache=True)
+def column_candidates(cols, column, starts, lowest, max_d2, stride, run_work):
+    """Work of :func:`accumulate_horizontal` from rows 0, stride, 2 stride, ... (same arguments, column order):
+    the candidates it visits, the later rows of its own column up to y + radius and, in each later
+    non-empty column within the radius along x, the run within sqrt(radius^2 - gap^2) of its y (the same
+    bounds and margin), plus ``run_work`` for each run it takes (its own column's included).
+    Returns an int64 array of one count per row taken."""
+    n = cols.shape[1]
+    ncol = lowest.shape[0]
+    taken = (n + stride - 1) // stride
+    out = np.zeros(taken, dtype=np.int64)
+    xs = cols[0]
+    ys = cols[1]
+    margin = 1e-12 * max_d2
+    reach = math.sqrt(max_d2 + margin)
+    for k in prange(taken):
+        i = k * stride
+        c = column[i]
+        xi = xs[i]
+        yi = ys[i]
+        count = np.searchsorted(ys[i + 1 : starts[c + 1]], yi + reach, side="right") + run_work
+        for c2 in range(c + 1, ncol):
+            gap = lowest[c2] - xi
+            if gap * gap > max_d2:
+                break
+            s0 = starts[c2]
+            s1 = starts[c2 + 1]
+            if s1 == s0:
+                continue
+            h = math.sqrt(max(max_d2 - gap * gap, 0.0) + margin)
+            run = ys[s0:s1]
+            count += np.searchsorted(run, yi + h, side="right") - np.searchsorted(run, yi - h, side="left") + run_work
+        out[k] = count
+    return out
+
+
 @njit(cache=True)
 def collect_pairs(
     pts,

@@ -40,11 +40,11 @@ from ..data.summary import Summary, summarise
 from ..errors import FieldIssue, InvalidInput, LimitExceeded
 from ..limits import Limits
 from . import kernels as K
-from .binned_maps import binned_map, cell_values, refuse_for_grid
+from .binned_maps import binned_map, cell_values, grid_shape, map_grid_cell, refuse_for_grid
 from .bounds import BOUND_STATISTICS
-from .fft import check_budget, check_statistic, lag_sums, map_table, padded_shape
+from .fft import check_budget, check_statistic, lag_sums, map_table, padded_shape, transform_count
 from .gridded import DEFAULT_TOLERANCE, METHODS, GridReport, grid_summary, raster_nodes
-from .pairs import estimate_pairs_within, in_chunks, prepare, sweep_visits
+from .pairs import X_SWEEP, estimate_pairs_within, in_chunks, prepare, sweep_visits
 from .statistics import ACCUMULATION_MODE, STATISTICS
 
 AUTO_MAX_MAP_CELLS = 40
@@ -233,10 +233,66 @@ def _pair_work(samples: SampleSet, sorted_x: np.ndarray, cell_size: float, cells
         estimate_pairs_within(samples.coords[:, :2], reach * math.sqrt(2.0)),
         2,
         "/cells",
-        visited=int(visits.sum()),
-        passes=2 if statistic == "semivariance_median" else 1,
+        visits=[(X_SWEEP, int(visits.sum()))] * (2 if statistic == "semivariance_median" else 1),
     )
     return visits
+
+
+def exact_map_work(samples: SampleSet, cell_size: float, cells: int, statistic: str) -> int:
+    """Pair work of an exact map (``LAGWISE_MAX_PAIRS`` units, :meth:`~lagwise.core.limits.Limits.check_pairs`):
+    per pass, the sweep along x to (cells + 1/2) x cell_size plus the pairs within the map's corner
+    distance twice (the map kernel adds every pair as h and as -h); the median takes a second pass."""
+    reach = (cells + 0.5) * cell_size
+    visited = int(sweep_visits(np.sort(samples.coords[:, 0]), reach).sum())
+    within = estimate_pairs_within(samples.coords[:, :2], reach * math.sqrt(2.0))
+    return (2 if statistic == "semivariance_median" else 1) * (visited + 2 * within)
+
+
+@dataclass(frozen=True)
+class MapWork:
+    """What a variogram map of scattered samples will compute, known before any work (:func:`map_work`).
+
+    Attributes
+    ----------
+    method : str
+        ``exact`` or ``grid``, as :func:`variogram_map` would choose for the method asked for.
+    pairs : int
+        The exact map's pair work (:func:`exact_map_work`), 0 for the grid method.
+    transforms : int
+        The grid method's real 2-D FFTs (forward and inverse, :func:`~lagwise.core.variography.fft.lag_sums`
+        and :func:`~lagwise.core.variography.fft.offset_moments`).
+    points : int
+        Points of each transform (the padded grid's rows x columns), 0 for the exact method.
+    """
+
+    method: str
+    pairs: int
+    transforms: int = 0
+    points: int = 0
+
+
+def map_work(samples: SampleSet, *, statistic: str, min_pairs: int, method: str, limits: Limits) -> MapWork | None:
+    """The work of :func:`variogram_map` with automatic cells (as an analysis asks for it), or None
+    when the map would be refused (its own checks name the field then)."""
+    if samples.dimension < 2 or (method == "grid" and (samples.dimension != 2 or statistic not in BOUND_STATISTICS)):
+        return None
+    summary = grid_summary(samples)
+    top = (limits.max_map_cells - 1) // 2
+    cell_size, cells, _ = automatic_cells(samples, summary, None, None, min_pairs, top)
+    if not cell_size > 0:
+        return None
+    pairs = exact_map_work(samples, cell_size, cells, statistic)
+    gridded = samples.dimension == 2 and statistic in BOUND_STATISTICS
+    if method == "exact" or (method == "auto" and (not gridded or pairs <= limits.max_pairs)):
+        return MapWork("exact", pairs)
+    try:
+        cell = map_grid_cell(summary, cell_size, cells, limits)
+    except (InvalidInput, LimitExceeded):
+        return None
+    extent = [hi - lo for lo, hi in summary.extent.values()]
+    shape, reach = grid_shape(extent, cell, (cells + 0.5) * cell_size)
+    rows, columns = padded_shape(shape, reach)
+    return MapWork("grid", 0, transform_count(statistic != "semivariance", offsets=True), rows * columns)
 
 
 def _exact_fits(samples: SampleSet, cell_size: float, cells: int, statistic: str, limits: Limits) -> bool:

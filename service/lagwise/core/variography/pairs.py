@@ -23,6 +23,14 @@ CHUNK_VISITS = 50_000_000  # visited pairs per kernel call (about half a second)
 MAX_LOOKUP_CELLS = 1 << 16
 COLUMNS_PER_RADIUS = 16  # columns of the fast kernel across one search radius
 COLUMN_SAMPLES = 64  # fewest samples per column on average
+COUNTED_ROWS = 16_384  # rows whose column-sweep candidates are counted one by one (column_visits)
+# Pair work of one run of the column sweep (its binary searches and the span's set-up), in units of
+# one candidate or pair within the radius: a least-squares fit of the kernel's CPU time (one thread,
+# 20,000-200,000 uniform samples, radii 10-500, load 8) gave 1.8 ns per unit and 340 ns per run;
+# 1 to 32 columns per radius at 200,000 samples within 10 units, 160-290 ns per run.
+RUN_WORK = 150
+COLUMN_SWEEP = "column sweep"  # accumulate_horizontal: samples by columns of x, y-sorted runs
+X_SWEEP = "sweep along x"  # every other kernel: the later samples within the radius along x
 
 
 @dataclass(frozen=True)
@@ -106,7 +114,7 @@ class ClassLayout:
     @property
     def horizontal(self) -> bool:
         """No class uses a dip or a vertical band."""
-        return bool(np.all(self.table[:, HAS_DIP] == 0.0) and np.all(np.isinf(self.table[:, VBAND2])))
+        return horizontal_table(self.table)
 
     @property
     def fast(self) -> bool:
@@ -140,6 +148,12 @@ class ClassLayout:
     def search_radius(self) -> float:
         """Largest upper edge: no pair farther apart is visited."""
         return float(max(self.edges[k, c] for k, c in enumerate(self.counts)))
+
+
+def horizontal_table(table: np.ndarray) -> bool:
+    """Whether no direction of a :func:`~lagwise.core.variography.directions.direction_table` uses a dip or a
+    vertical band (the fast kernel's condition besides a resolving lookup table)."""
+    return bool(np.all(table[:, HAS_DIP] == 0.0) and np.all(np.isinf(table[:, VBAND2])))
 
 
 def layout(directions: list[DirectionClass], edges_per_direction: list[np.ndarray]) -> ClassLayout:
@@ -264,16 +278,48 @@ def columns(prepared: PreparedSamples, radius: float) -> Columns:
     )
 
 
+def column_visits(cut: Columns, radius: float) -> np.ndarray:
+    """Pair work of the column sweep (:func:`lagwise.core.variography.kernels.accumulate_horizontal`)
+    from each row of ``cut`` (column order): the candidates it visits, counted with the kernel's own
+    bounds, plus :data:`RUN_WORK` for each run of a column it takes.
+
+    Exact up to :data:`COUNTED_ROWS` rows; above, every s-th row is counted (s the smallest
+    stride leaving at most that many) and its count stands for the s rows from it. Rows next
+    to each other in column order are neighbours in space, so the sum stays within a fraction
+    of a per cent on spread samples (tests/core/test_pair_cost.py) for a few binary searches
+    per counted row and column.
+    """
+    n = cut.column.size
+    stride = max(1, -(-n // COUNTED_ROWS))
+    counts = K.column_candidates(cut.cols, cut.column, cut.starts, cut.lowest, radius * radius, stride, RUN_WORK)
+    return np.repeat(counts, stride)[:n]
+
+
+def pass_visits(prepared: PreparedSamples, radius: float, kernels: list[str]) -> list[tuple[str, int]]:
+    """(kernel, candidates visited) of each pass over the pairs within ``radius``, one per entry of
+    ``kernels`` (:data:`COLUMN_SWEEP` or :data:`X_SWEEP`); each kernel's count is exact."""
+    counts: dict[str, int] = {}
+    for kernel in set(kernels):
+        if kernel == COLUMN_SWEEP:
+            counts[kernel] = int(column_visits(columns(prepared, radius), radius).sum())
+        else:
+            counts[kernel] = int(sweep_visits(prepared.points[:, 0], radius).sum())
+    return [(kernel, counts[kernel]) for kernel in kernels]
+
+
 def accumulate(prepared: PreparedSamples, classes: ClassLayout, mode: int) -> tuple[np.ndarray, int]:
-    """Run the pair kernel over ranges of rows; returns the table (ndir, kmax, ACCUMULATORS) and co-located pairs."""
+    """Run the pair kernel over ranges of rows; returns the table (ndir, kmax, ACCUMULATORS) and co-located pairs.
+
+    The ranges hold about :data:`CHUNK_VISITS` candidates of the kernel that runs: the column
+    sweep's (:func:`column_visits`) on the fast path, else the x-sorted sweep's."""
     radius = classes.search_radius
-    visits = sweep_visits(prepared.points[:, 0], radius)
     total = np.zeros((classes.table.shape[0] * classes.kmax, K.ACCUMULATORS))
     colocated = [0]
     if classes.fast:
         cut = columns(prepared, radius)
-        # The chunks' sizes are bounded by the x-sorted sweep's visits (more than the columns take).
-        visits = visits[cut.order]
+        visits = column_visits(cut, radius)
+    else:
+        visits = sweep_visits(prepared.points[:, 0], radius)
 
     def run(first: int, last: int) -> None:
         if classes.fast:

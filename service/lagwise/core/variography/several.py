@@ -72,17 +72,20 @@ from .experimental import (
     _rows,
     assembled,
     on_classes,
-    pair_passes,
+    summed_fast,
     validate_options,
 )
 from .lags import LagRequest
 from .pairs import (
+    COLUMN_SWEEP,
+    X_SWEEP,
     PreparedSamples,
     accumulate_squares,
     accumulate_variables,
     estimate_pairs_within,
     layout,
     measurement_patterns,
+    pass_visits,
     prepare,
     prepare_variables,
     sweep_visits,
@@ -406,6 +409,16 @@ def _triangle_table(raw: np.ndarray, p: int) -> np.ndarray:
     return table
 
 
+def _several_passes(lags: LagRequest, statistic: str, variables: int, fast: bool) -> list[str]:
+    """The kernel of each pass of :func:`several_variograms`: the automatic classes' counts over the
+    locations (:func:`~lagwise.core.variography.pairs.accumulate`: the column sweep when ``fast``), the
+    several-variable sums (the sweep along x) and, for the median, each variable's differences (the
+    sweep along x over its own samples, counted at the locations' as an upper bound)."""
+    explicit = lags.width is not None or lags.edges is not None
+    automatic = [] if explicit else [COLUMN_SWEEP if fast else X_SWEEP]
+    return automatic + [X_SWEEP] * (1 + variables * (statistic == "semivariance_median"))
+
+
 def _semivariance_table(prepared, classes, limits: Limits) -> tuple[np.ndarray, int]:
     """Semivariance sums of every pair of variables: the O(p)-per-pair kernel when its per-sample
     counts fit half the memory budget, else the kernel that adds the p x p sums per pair."""
@@ -449,14 +462,15 @@ def several_variograms(
     resolved, warnings = validate_options(locations, statistic, min_pairs, directions)
     placement = summarise(locations.coords, locations.values, decluster(locations.coords, np.zeros(samples.size)))
     located = prepare(locations.coords, np.zeros(samples.size))
-    passes = pair_passes(lags, statistic, False)
+    passes = _several_passes(lags, statistic, samples.count, summed_fast(resolved, lags))
     edges, spacing = _resolve_edges(locations, placement, located, lags, resolved, min_pairs, limits, passes)
     classes = layout(resolved, edges)
     radius = classes.search_radius
-    visited = int(sweep_visits(located.points[:, 0], radius).sum())
     pairs = estimate_pairs_within(locations.coords, radius)
     limits.check_pairs(
-        int(math.ceil(pairs * work_per_pair(statistic, samples.count))), len(resolved), visited=visited, passes=passes
+        int(math.ceil(pairs * work_per_pair(statistic, samples.count))),
+        len(resolved),
+        visits=pass_visits(located, radius, _several_passes(lags, statistic, samples.count, classes.fast)),
     )
     prepared = prepare_variables(samples.coords, samples.values)
     if statistic == "semivariance":

@@ -52,6 +52,7 @@ from .experimental import (
     experimental_variogram,
     on_classes,
     pair_passes,
+    summed_fast,
     validate_options,
 )
 from .lags import LagRequest
@@ -233,7 +234,6 @@ def shared_variograms(
         raise ValueError(f"the shared pass computes {', '.join(SHARED_STATISTICS)}")
     bases = pointers or ("",) * len(direction_sets)
     in_group, groups = _groups(members, coords.shape[0])
-    passes = pair_passes(lags, statistic, False)
     declusterings = [m.declustering or decluster(m.samples.coords, m.samples.values) for m in members]
     summaries = [summarise(m.samples.coords, m.samples.values, w) for m, w in zip(members, declusterings, strict=True)]
     plans: list[_Plan | None] = [None] * len(members)
@@ -245,10 +245,13 @@ def shared_variograms(
             with pointers_under(base):
                 limits.check_samples(first.samples.size)
                 found, notes = validate_options(first.samples, statistic, min_pairs, directions)
+                passes = pair_passes(lags, statistic, False, summed_fast(found, lags))
                 e, s = _resolve_edges(
                     first.samples, summaries[group[0]], prepared, lags, found, min_pairs, limits, passes
                 )
-                _check_pairs(first.samples, prepared, layout(found, e).search_radius, len(found), passes, limits)
+                packed = layout(found, e)
+                passes = pair_passes(lags, statistic, False, packed.fast)
+                _check_pairs(first.samples, prepared, packed.search_radius, len(found), passes, limits)
             resolved.append(found)
             warnings.append(notes)
             edges.append(e)
