@@ -25,7 +25,7 @@ from lagwise.core.errors import LimitExceeded
 from lagwise.core.kriging.cost import cross_validation_flops, prediction_flops
 from lagwise.core.kriging.neighbourhood import Neighbourhood
 from lagwise.core.limits import Limits
-from lagwise.core.variography import maps
+from lagwise.core.variography import maps, pairs
 from lagwise.demo import ACTION_LEVEL, UNIT_SIZE_M, elmsworth_samples
 
 LIMIT = "LAGWISE_MAX_ANALYSIS_SECONDS"
@@ -201,3 +201,21 @@ def test_a_grid_map_can_take_an_analysis_past_the_limit():
     with pytest.raises(LimitExceeded) as info:
         analysis_cost.check([cost], limits)
     assert info.value.limit == LIMIT and f"variogram_map {cost.stages['variogram_map']:.3g} s" in info.value.advice
+
+
+def test_the_variogram_stage_counts_the_kernel_each_pass_takes():
+    """Explicit classes, no fan and no drift: the statistic's pass by the column sweep, the class
+    uncertainties' per-block pass by the sweep along x (pairs.pass_visits, checked against brute force
+    and scipy's cKDTree in tests/core/test_pair_cost.py), each with the pairs within the radius."""
+    document = {
+        "samples": _columns(2000),
+        "variogram": {"lags": {"width": 10.0, "count": 5}},
+        "fit": {"anisotropy": "none", "compare": False},
+    }
+    samples = convert.samples_of(AnalysisRequest().load(document), Limits())
+    prepared = pairs.prepare(samples.coords, samples.values)
+    (_, columns), (_, along_x) = pairs.pass_visits(prepared, 50.0, [pairs.COLUMN_SWEEP, pairs.X_SWEEP])
+    within = pairs.estimate_pairs_within(samples.coords, 50.0)
+    (cost,) = _estimate(document)
+    work = (columns + within) + (along_x + within)
+    assert cost.stages["variograms"] == pytest.approx(work / analysis_cost.PAIRS_PER_SECOND, rel=1e-12)
