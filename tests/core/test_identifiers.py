@@ -87,9 +87,9 @@ def test_distinct_ids_pass_in_every_form():
 class _Colliding(TextIds):
     """Text ids whose every hash is the same: only the exact comparison tells them apart."""
 
-    def _keys(self):
-        hashes, key_of = super()._keys()
-        return np.zeros_like(hashes), key_of
+    def _hashes(self):
+        hashes, _ = super()._hashes()
+        return np.zeros_like(hashes), True
 
 
 def test_hash_collisions_never_read_as_repeats():
@@ -129,3 +129,20 @@ def test_sample_sets_keep_compact_ids_through_duplicates_and_subsets():
     with pytest.raises(InvalidInput) as caught:
         build_sample_set([1.0, 2.0, 3.0], [0.0, 1.0, 2.0], ids=IntegerIds(np.array([4, 5, 4])))
     assert caught.value.issues[0].pointer == "/samples/ids/2"
+
+
+@pytest.mark.parametrize(
+    "numbers",
+    [
+        np.random.default_rng(8).permutation(5000),  # dense: a bit per value
+        np.random.default_rng(8).permutation(5000) * 10**12,  # sparse: the sort
+        np.arange(-120, 120, dtype=np.int8),  # dense across zero, in a narrow type
+        np.array([2**64 - 1, 0, 2**63], dtype=np.uint64),
+    ],
+)
+def test_integer_ids_dense_or_sparse_are_checked_alike(numbers):
+    assert refusal(IntegerIds(numbers)) == []
+    repeated = numbers.copy()
+    repeated[-1] = repeated[1]
+    text = tuple(str(v) for v in repeated.tolist())
+    assert refusal(IntegerIds(repeated)) == refusal(text) != []

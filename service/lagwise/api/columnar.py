@@ -235,7 +235,7 @@ def _ids(column: pa.ChunkedArray) -> CompactIds:
     """The ``ids`` column without a Python string per row: integers as they are, text as its
     UTF-8 bytes and offsets (views of the stream's buffers; a column of several batches is
     joined once, a ``string_view`` column cast to ``large_string``)."""
-    array = column.combine_chunks()
+    array = column.chunk(0) if column.num_chunks == 1 else column.combine_chunks()
     if pa.types.is_integer(array.type):
         return IntegerIds(array.to_numpy())
     if pa.types.is_string_view(array.type):

@@ -94,3 +94,5 @@ def compile_kernels() -> None:
     data = types.Array(types.uint8, 1, "C", readonly=True)
     for width in (types.int32, types.int64):
         identifiers._text_hashes.compile((data, types.Array(width, 1, "C", readonly=True)))
+    # Integer ids (an Arrow int64 column, raster cells): read-only int64 views.
+    identifiers._distinct_in_span.compile((types.Array(types.int64, 1, "C", readonly=True), types.int64, types.int64))

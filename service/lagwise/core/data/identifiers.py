@@ -16,7 +16,7 @@ form: one per repeat, in input order, at the later sample, naming the first samp
 
 from __future__ import annotations
 
-from collections.abc import Callable, Hashable, Iterator, Sequence
+from collections.abc import Hashable, Iterator, Sequence
 from typing import overload
 
 import numpy as np
@@ -25,17 +25,20 @@ from numba import njit
 from ..errors import FieldIssue, InvalidInput
 
 MAX_LISTED = 20
-# FNV-1a's 64-bit offset basis and prime (Fowler, Noll and Vo).
-_FNV_BASIS = np.uint64(0xCBF29CE484222325)
-_FNV_PRIME = np.uint64(0x100000001B3)
+# Odd 64-bit multipliers of the splitmix64 finaliser (Steele, Lea and Flood 2014).
+_MIX_1 = np.uint64(0xBF58476D1CE4E5B9)
+_MIX_2 = np.uint64(0x94D049BB133111EB)
+# Integer ids spanning at most this many values per id are checked with a bit per value.
+DENSE_SPAN_PER_ID = 8
 
 
 class CompactIds(Sequence[str]):
     """Identifiers kept as arrays; an element becomes a str when it is read.
 
     Subclasses give :meth:`__len__`, :meth:`take` (the identifiers at some rows),
-    :meth:`_text` (one identifier) and :meth:`_keys` (one hashable key and one integer
-    per row, equal wherever the identifiers are equal) for the search of repeats.
+    :meth:`_text` (one identifier), and for the search of repeats :meth:`_hashes` (one
+    integer per row, equal wherever the identifiers are equal) and :meth:`_key` (a row's
+    exact key); :meth:`_distinct_quickly` may prove the identifiers distinct without a sort.
     """
 
     def take(self, rows: np.ndarray) -> CompactIds:
@@ -45,9 +48,18 @@ class CompactIds(Sequence[str]):
     def _text(self, i: int) -> str:
         raise NotImplementedError
 
-    def _keys(self) -> tuple[np.ndarray, Callable[[int], Hashable]]:
-        """Per row an integer, equal for equal identifiers (a hash), and the exact key of a row."""
+    def _hashes(self) -> tuple[np.ndarray, bool]:
+        """Per row an integer, equal for equal identifiers, and whether the array is a fresh one
+        (which the search may sort in place)."""
         raise NotImplementedError
+
+    def _key(self, row: int) -> Hashable:
+        """The exact key of the identifier at ``row`` (equal keys: equal identifiers)."""
+        raise NotImplementedError
+
+    def _distinct_quickly(self) -> bool:
+        """True when a check cheaper than the sort proves the identifiers distinct."""
+        return False
 
     @overload
     def __getitem__(self, i: int) -> str: ...
@@ -82,15 +94,20 @@ class CompactIds(Sequence[str]):
         vectorised); only those candidates are compared exactly, so hash collisions cost
         time, never a wrong answer.
         """
-        hashes, key_of = self._keys()
-        ordered = np.sort(hashes)
+        if self._distinct_quickly():
+            return []
+        hashes, fresh = self._hashes()
+        ordered = hashes if fresh else hashes.copy()
+        ordered.sort()
         same = ordered[1:] == ordered[:-1]
         if not same.any():
             return []
         repeated = np.unique(ordered[1:][same])
+        if fresh:
+            hashes, _ = self._hashes()
         where = np.minimum(np.searchsorted(repeated, hashes), repeated.size - 1)
         candidates = np.flatnonzero(repeated[where] == hashes)
-        return _first_repeats(((int(row), key_of(int(row))) for row in candidates), limit)
+        return _first_repeats(((int(row), self._key(int(row))) for row in candidates), limit)
 
 
 class IntegerIds(CompactIds):
@@ -106,7 +123,9 @@ class IntegerIds(CompactIds):
         numbers = np.asarray(numbers)
         if numbers.dtype.kind not in "iu":
             raise TypeError(f"integer identifiers need an integer array, got {numbers.dtype}")
-        self.numbers = numbers
+        # A read-only view, as TextIds' arrays are: one array type for the compiled check.
+        self.numbers = numbers.view()
+        self.numbers.flags.writeable = False
 
     def __len__(self) -> int:
         return int(self.numbers.size)
@@ -120,10 +139,21 @@ class IntegerIds(CompactIds):
     def __iter__(self) -> Iterator[str]:
         return (str(v) for v in self.numbers.tolist())
 
-    def _keys(self):
-        # Distinct integers have distinct decimal texts: the numbers are their own exact keys.
-        numbers = self.numbers
-        return numbers, lambda row: int(numbers[row])
+    # Distinct integers have distinct decimal texts: the numbers are their own hashes and keys.
+    def _hashes(self):
+        return self.numbers, False
+
+    def _key(self, row):
+        return int(self.numbers[row])
+
+    def _distinct_quickly(self):
+        """A bit per value from the smallest to the largest, when that span is small (sample
+        numbers, raster cells): one pass, at most ``DENSE_SPAN_PER_ID`` bits per id."""
+        if self.numbers.size == 0:
+            return True
+        low, high = self.numbers.min(), self.numbers.max()
+        span = int(high) - int(low) + 1
+        return span <= DENSE_SPAN_PER_ID * self.numbers.size and _distinct_in_span(self.numbers, low, span)
 
 
 class TextIds(CompactIds):
@@ -170,24 +200,53 @@ class TextIds(CompactIds):
         row = i if self.rows is None else int(self.rows[i])
         return str(self._bytes[int(self.offsets[row]) : int(self.offsets[row + 1])], "utf-8")
 
-    def _keys(self):
+    def _hashes(self):
         hashes = _text_hashes(self.data, self.offsets)
-        if self.rows is not None:
-            hashes = hashes[self.rows]
-        return hashes, lambda row: self._text(row)
+        return (hashes if self.rows is None else hashes[self.rows]), True
+
+    def _key(self, row):
+        return self._text(row)
 
 
 @njit(cache=True)
 def _text_hashes(data, offsets):
-    """FNV-1a (64-bit) of each identifier's bytes (Fowler, Noll and Vo): equal texts hash alike."""
+    """A 64-bit hash of each identifier's bytes: equal texts hash alike.
+
+    The length, then each 8-byte word (little-endian, the last one zero-padded) is mixed in
+    by an xor, a multiplication by an odd constant and an xor-shift (the steps of the
+    splitmix64 finaliser, Steele, Lea and Flood 2014): each step is a bijection of the
+    running hash, so texts of one length that differ in their last word never collide.
+    """
     count = offsets.size - 1
     out = np.empty(count, dtype=np.uint64)
     for j in range(count):
-        h = _FNV_BASIS
-        for k in range(offsets[j], offsets[j + 1]):
-            h = (h ^ np.uint64(data[k])) * _FNV_PRIME
-        out[j] = h
+        start, end = offsets[j], offsets[j + 1]
+        h = np.uint64(end - start) * _MIX_2
+        k = start
+        while k < end:
+            stop = min(k + 8, end)
+            word = np.uint64(0)
+            for b in range(k, stop):
+                word |= np.uint64(data[b]) << np.uint64(8 * (b - k))
+            h = (h ^ word) * _MIX_1
+            h ^= h >> np.uint64(31)
+            k = stop
+        h = (h ^ (h >> np.uint64(30))) * _MIX_2
+        out[j] = h ^ (h >> np.uint64(31))
     return out
+
+
+@njit(cache=True)
+def _distinct_in_span(numbers, low, span):
+    """True when no two of ``numbers`` (all within ``low`` .. ``low + span - 1``) are equal."""
+    seen = np.zeros((span + 7) // 8, dtype=np.uint8)
+    for i in range(numbers.size):
+        v = np.int64(numbers[i] - low)
+        byte, bit = v >> 3, np.uint8(1 << (v & 7))
+        if seen[byte] & bit:
+            return False
+        seen[byte] |= bit
+    return True
 
 
 def _first_repeats(keyed, limit: int) -> list[tuple[int, int]]:
