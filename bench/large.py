@@ -42,7 +42,8 @@ Sections
   JSON form of the same call.
 * ``ids``: 10,000,000 samples (x, y, values) accepted from an Arrow multipart body (the web layer's
   parsing path, schema validation, the sample set with its duplicate searches): without ids (the
-  baseline of the same run), with text ids (11 characters, in random order) and with integer ids;
+  baseline of the same run), with text ids (11 characters, in random order) and with integer ids,
+  the three alternated over :data:`IDS_ROUNDS` rounds (each one's best kept);
   CPU and wall time (the target is judged on CPU time, which other agents' load inflates less) and the
   peak resident memory the call adds (``VmHWM`` after a reset, less ``VmRSS``
   before; the body and the application already held), and the text case
@@ -81,6 +82,7 @@ SDK_SAMPLES = 1_000_000
 OLD_SDK_COMMIT = "cc625da"
 KRIGING_SAMPLES = 1_000_000
 IDS_SAMPLES = 10_000_000
+IDS_ROUNDS = 3
 # The service before it held identifiers compactly (a Python string per id, a set to find repeats).
 OLD_IDS_COMMIT = "f2f5f18"
 KRIGING_TARGETS = 1_000_000
@@ -795,16 +797,18 @@ def sdk_sending() -> list[dict]:
 
 
 def identifiers() -> list[dict]:
-    runs = {}
+    runs: dict[str, dict] = {}
     with tempfile.TemporaryDirectory(prefix="lagwise-bench-ids-") as folder:
-        for kind in ("none", "text", "integer"):
-            path = os.path.join(folder, f"{kind}.multipart")
-            size = _ids_body(IDS_SAMPLES, kind, path)
-            runs[kind] = {**_case("ids", path), "bytes": size}
-            if kind == "text":
-                old_path = _old_sources(folder, OLD_IDS_COMMIT)
-                runs["old"] = _case("ids", path, pythonpath=old_path)
-            os.remove(path)
+        paths = {kind: os.path.join(folder, f"{kind}.multipart") for kind in ("none", "text", "integer")}
+        sizes = {kind: _ids_body(IDS_SAMPLES, kind, path) for kind, path in paths.items()}
+        # The three forms alternated, each one's best kept: a change of load between runs
+        # does not read as a difference between forms.
+        for _ in range(IDS_ROUNDS):
+            for kind, path in paths.items():
+                r = _case("ids", path)
+                if kind not in runs or r["cpu_seconds"] < runs[kind]["cpu_seconds"]:
+                    runs[kind] = {**r, "bytes": sizes[kind]}
+        runs["old"] = _case("ids", paths["text"], pythonpath=_old_sources(folder, OLD_IDS_COMMIT))
     base = runs["none"]
 
     def added(r: dict) -> float:

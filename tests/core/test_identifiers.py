@@ -11,7 +11,7 @@ import time
 
 import numpy as np
 import pytest
-from lagwise.core.data.identifiers import IntegerIds, TextIds, check_distinct, given_ids, pick_ids
+from lagwise.core.data.identifiers import IndexIds, IntegerIds, TextIds, check_distinct, given_ids, pick_ids
 from lagwise.core.data.samples import build_sample_set, columnar_pointer
 from lagwise.core.errors import InvalidInput
 
@@ -62,7 +62,16 @@ def test_given_ids_keep_compact_forms_and_make_text_of_the_rest():
     compact = TextIds.from_strings(["a", "b"])
     assert given_ids(compact, 2) is compact
     assert given_ids([1, "b"], 2) == ("1", "b")
-    assert isinstance(given_ids(None, 3), IntegerIds) and list(given_ids(None, 3)) == ["0", "1", "2"]
+    assert isinstance(given_ids(None, 3), IndexIds) and list(given_ids(None, 3)) == ["0", "1", "2"]
+
+
+def test_index_ids_hold_no_array_and_become_integers_when_picked():
+    ids = IndexIds(10_000_000)
+    assert len(ids) == 10_000_000 and ids[9_999_999] == "9999999" and ids[-2] == "9999998"
+    assert ids.repeats() == [] and refusal(ids) == []
+    part = pick_ids(ids, np.array([5, 2]))
+    assert isinstance(part, IntegerIds) and list(part) == ["5", "2"]
+    assert list(ids[3:6]) == ["3", "4", "5"]
 
 
 @pytest.mark.parametrize("seed", [0, 1, 2])

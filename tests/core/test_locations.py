@@ -9,7 +9,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 from lagwise.core.data import locations as module
-from lagwise.core.data.identifiers import IntegerIds
+from lagwise.core.data.identifiers import CompactIds
 from lagwise.core.data.locations import kept_rows, locations, repeated_locations
 from lagwise.core.data.samples import build_sample_set
 from lagwise.core.data.variables import VariableInput, build_multi_sample_set
@@ -141,7 +141,7 @@ def test_several_variables_match_the_numpy_unique_reference(hashing, policy):
 
 def test_index_ids_read_as_text_and_follow_subsets():
     samples = build_sample_set([1.0, 2.0, 3.0, 4.0], [0.0, 1.0, 1.0, 2.0])
-    assert isinstance(samples.ids, IntegerIds)
+    assert isinstance(samples.ids, CompactIds)
     assert list(samples.ids) == ["0", "1", "3"] and samples.ids[2] == "3" and samples.ids == ("0", "1", "3")
     part = samples.subset(np.array([False, True, True]))
     assert list(part.ids) == ["1", "3"] and part.ids[-1] == "3" and list(part.ids[:1]) == ["1"]

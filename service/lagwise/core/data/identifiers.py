@@ -5,8 +5,9 @@ about 600 MB) for identifiers that only a few per-sample answers (cross-validati
 singular-system messages) ever read. Identifiers take one of three forms:
 
 * a tuple of str: identifiers given in JSON (already Python strings);
-* :class:`IntegerIds`: integers read as their decimal text — the input index of samples sent
-  without ids, an integer ``ids`` column of an Arrow stream, a raster's cell numbers;
+* :class:`IndexIds`: the input index of samples sent without ids (no array at all), and
+  :class:`IntegerIds`: integers read as their decimal text — an integer ``ids`` column of an
+  Arrow stream, a raster's cell numbers, the index ids of a subset;
 * :class:`TextIds`: UTF-8 bytes and offsets (the layout of an Arrow string column, viewed
   without copying), with the column's rows in the set's order.
 
@@ -69,7 +70,7 @@ class CompactIds(Sequence[str]):
 
     def __getitem__(self, i):
         if isinstance(i, slice):
-            return self.take(np.arange(len(self))[i])
+            return self.take(np.arange(*i.indices(len(self))))
         index = int(i)
         if not -len(self) <= index < len(self):
             raise IndexError("identifier index out of range")
@@ -156,6 +157,34 @@ class IntegerIds(CompactIds):
         return span <= DENSE_SPAN_PER_ID * self.numbers.size and _distinct_in_span(self.numbers, low, span)
 
 
+class IndexIds(CompactIds):
+    """The identifiers of samples sent without ids: each one's input index, as text; no array.
+
+    Parameters
+    ----------
+    count : int
+        The number of samples (identifiers ``"0"`` .. ``str(count - 1)``).
+    """
+
+    def __init__(self, count: int) -> None:
+        self.count = int(count)
+
+    def __len__(self) -> int:
+        return self.count
+
+    def take(self, rows: np.ndarray) -> IntegerIds:
+        return IntegerIds(np.asarray(rows, dtype=np.int64))
+
+    def _text(self, i: int) -> str:
+        return str(i)
+
+    def __iter__(self) -> Iterator[str]:
+        return map(str, range(self.count))
+
+    def _distinct_quickly(self):
+        return True  # input indices are distinct: the search never needs hashes
+
+
 class TextIds(CompactIds):
     """Text identifiers as UTF-8 bytes and offsets (Arrow's string layout).
 
@@ -220,17 +249,31 @@ def _text_hashes(data, offsets):
     count = offsets.size - 1
     out = np.empty(count, dtype=np.uint64)
     for j in range(count):
-        start, end = offsets[j], offsets[j + 1]
-        h = np.uint64(end - start) * _MIX_2
-        k = start
-        while k < end:
-            stop = min(k + 8, end)
-            word = np.uint64(0)
-            for b in range(k, stop):
-                word |= np.uint64(data[b]) << np.uint64(8 * (b - k))
+        k, end = np.int64(offsets[j]), np.int64(offsets[j + 1])
+        h = np.uint64(end - k) * _MIX_2
+        while k + 8 <= end:
+            # Eight byte loads written out: the compiler joins them into one 64-bit load.
+            word = (
+                np.uint64(data[k])
+                | np.uint64(data[k + 1]) << np.uint64(8)
+                | np.uint64(data[k + 2]) << np.uint64(16)
+                | np.uint64(data[k + 3]) << np.uint64(24)
+                | np.uint64(data[k + 4]) << np.uint64(32)
+                | np.uint64(data[k + 5]) << np.uint64(40)
+                | np.uint64(data[k + 6]) << np.uint64(48)
+                | np.uint64(data[k + 7]) << np.uint64(56)
+            )
             h = (h ^ word) * _MIX_1
             h ^= h >> np.uint64(31)
-            k = stop
+            k += 8
+        if k < end:
+            word, shift = np.uint64(0), np.uint64(0)
+            while k < end:
+                word |= np.uint64(data[k]) << shift
+                shift += np.uint64(8)
+                k += 1
+            h = (h ^ word) * _MIX_1
+            h ^= h >> np.uint64(31)
         h = (h ^ (h >> np.uint64(30))) * _MIX_2
         out[j] = h ^ (h >> np.uint64(31))
     return out
@@ -264,9 +307,9 @@ def _first_repeats(keyed, limit: int) -> list[tuple[int, int]]:
 
 def given_ids(ids: Sequence | None, n: int) -> Sequence[str]:
     """The identifiers of a set of ``n`` samples: as held when compact, else as a tuple of str;
-    the input index (:class:`IntegerIds`) when none are given."""
+    the input index (:class:`IndexIds`) when none are given."""
     if ids is None:
-        return IntegerIds(np.arange(n))
+        return IndexIds(n)
     if isinstance(ids, CompactIds):
         return ids
     return tuple(str(i) for i in ids)
