@@ -157,7 +157,10 @@ def test_the_deadline_is_honoured_inside_a_pass(monkeypatch):
     monkeypatch.setattr(pairs, "CHUNK_VISITS", 100_000)
     lags = LagRequest(width=2.0, count=5)
     experimental_variogram(_line(200, "y"), lags=lags)  # the passes compiled before the clock starts
-    samples = _line(20_000, "y")
+    # 20,000 samples in a square of side 10: nearly every one of the 2e8 pairs lies within the
+    # classes, seconds of work for any kernel.
+    rng = np.random.default_rng(6)
+    samples = build_sample_set(rng.normal(size=20_000), *rng.uniform(0, 10, (2, 20_000)))
     start = time.perf_counter()
     with pytest.raises(DeadlineExceeded), deadline(0.3):
         experimental_variogram(samples, lags=lags, limits=Limits(max_pairs=10**12))
