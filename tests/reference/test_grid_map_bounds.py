@@ -98,13 +98,3 @@ def test_flags_follow_the_tolerance():
 def test_map_bounds_hold_on_200000_samples(layout):
     # Maps reaching about 100 and 50: some 1e9 and 2.5e8 pairs for the exact map.
     _check(smooth_scattered(200_000, 7), *layout)
-
-
-def test_most_cells_within_the_default_tolerance_on_20000_samples():
-    """Measured (bounds.py docstring): the capped shares leave about a quarter of the automatic map's
-    cells above the default tolerance on 20,000 samples (nearly all before); cells of 25: none."""
-    samples = smooth_scattered(20_000, 1)
-    automatic = variogram_map(samples, method="grid", limits=LIMITS)
-    assert automatic.grid.flagged < 0.4 * automatic.pairs.size
-    wide = variogram_map(samples, cell_size=25.0, cells=8, method="grid", limits=LIMITS)
-    assert wide.grid.flagged <= 0.02 * wide.pairs.size

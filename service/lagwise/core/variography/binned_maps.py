@@ -22,8 +22,8 @@ cells, a quarter of a column against a half when the edge lies on a column (boun
 "Map cells"), and the columns a whole cell or more from an edge
 hold no pair of another map cell.
 
-Each boundary lag vector's share of pairs that can cross a map cell edge is capped from the
-sums of the samples' offset differences and their squares over its pairs (per-node sums of
+For the pair-count bound, each boundary lag vector's share of pairs that can cross a map cell
+edge is capped from the sums of the samples' offset differences and their squares over its pairs (per-node sums of
 the offsets within grid cells along x and y, four more forward and inverse transforms,
 :func:`lagwise.core.variography.fft.offset_moments`; the memory estimate counts their arrays).
 Each map cell states a relative error bound and a pair-count bound

@@ -56,8 +56,8 @@ lag vectors and those a whole cell or more away are core; a fixed reach of c wit
 relative slack (before the offsets were measured) made the columns whose rectangle
 touches the edge only at its rim boundary lag vectors too.
 
-Shares from the offsets' moments (map cells)
---------------------------------------------
+Shares from the offsets' moments (map cells): the pair-count bound
+------------------------------------------------------------------
 Which pairs of a boundary lag vector cross an edge depends on d = u_head - u_tail, not on
 a product of a head term and a tail term, so no sum over node pairs gives the crossing
 pairs' sums; but the sums of d and d^2 over each lag vector's pairs are such sums
@@ -67,46 +67,38 @@ vector s in column g = floor(s_x c / S + 1/2); one of its pairs lies in a column
 if d_x >= t = (i - 1/2) S - s_x c (in i < g only if -d_x > s_x c - (i + 1/2) S), and by
 Cantelli's inequality the share of the lag vector's pairs with d_x >= t is at most
 1 - (t - mu)^2 / E[(d_x - t)^2] when t > mu (mu and E[...] over those pairs, widened by
-the transforms' rounding bound), a rigorous bound on a count. Each boundary lag vector then
-enters the cells its rectangle reaches with a share capped by the smaller of its two axes'
-caps, and its own cell (I, J) keeps at least 1 - (caps of leaving along x) - (caps of
-leaving along y) of its pairs in the core, the rest as a boundary entry; the extremes over
-the shares then run as before (a box [0, cap] is the box [0, 1] of an entry scaled by cap,
-and the pair-count bound is the sum of the scaled counts, still a strict bound). With
-m odd (:mod:`lagwise.core.variography.binned_maps`) the two columns nearest an edge sit
-c / 2 from it: for samples spread evenly within cells mu = 0 and E[d^2] = c^2 / 6, so the
-cap is 1 - (1/4) / (1/6 + 1/4) = 0.4 instead of 1 (the actual share is 1/8). On an edge
-(t = 0, m even) the moments give nothing: with mu = 0 the cap is 1 whatever the variance;
-hence odd m. No polynomial in d bounds the crossing indicator 1[d >= t] closely near t
-(its jump lies where the pairs are densest), so only the count share, not the value the
-crossing pairs carry, is narrowed: each share still carries its lag vector's mean (the
-reading stated above).
+the transforms' rounding bound). A boundary lag vector may then bring into a cell it
+reaches at most the smaller of its two axes' caps of its pairs, and lose from its own cell
+at most the sum of the caps of leaving along x and along y: the pair-count bound is the sum
+of those counts, still strict and narrower than the boundary counts themselves. With m odd
+(:mod:`lagwise.core.variography.binned_maps`) the two columns nearest an edge sit c / 2
+from it: for samples spread evenly within cells mu = 0 and E[d^2] = c^2 / 6, so the cap is
+1 - (1/4) / (1/6 + 1/4) = 0.4 instead of 1 (the actual share is 1/8). On an edge (t = 0)
+the cap is 1 whatever the variance. No polynomial in d bounds the crossing indicator
+1[d >= t] closely near t (its jump lies where the pairs are densest).
+
+The value's extremes do not use the caps. Capping the shares while each still carries its
+lag vector's mean removes the slack that made that reading hold: on 120 samples of white
+noise (tests/client/test_sdk.py, cells of 10) a map cell's actual error reached 1.17 times
+such a capped bound (1.49 times when the lag vectors that caps show cannot move, mostly of
+one pair, were taken as exact), because the one or two pairs of a lag vector that cross
+carry their own values, not the lag vector's mean; on 20,000 samples the capped bound
+would have flagged 25-33 % of the automatic map's cells instead of nearly all, with the
+largest error at 0.88 of it. A bound free of the reading must let the crossing pairs be
+those of largest (smallest) value: with each lag vector's sum of squared pair values (more
+transforms) a subset of k of its N pairs sums to k mean +- sqrt(k (N - k) / N) times the
+root of the sum of squared deviations (exact for N <= 2), but for the lag vectors of
+about a hundred pairs on 20,000 samples this would move a map cell's value by some 3 % (an estimate, not measured; the share
+of pairs that may cross has a median of 22-37 % there), wider than the bound with the
+reading: neither is a tighter rigorous bound, so the value keeps the reading and its
+shares in [0, 1].
 
 What sets the bound: halving c halves the boundary share, but it also quarters the pairs
 of each lag vector, and the worst case takes every boundary lag vector whose mean lies
 above (below) the cell's value. Where lag vectors hold few pairs their means scatter
 widely (the pairs of one lag vector sit at different places of the field), so a finer
 grid alone lowers the bound little (1/128 of a map cell, 1.48 GiB: still 17 % of the
-cells flagged on 20,000 samples). Measured on 20,000 samples in a 1000 square (smooth
-field plus noise, tests/reference, seeds 1-3), share of map cells flagged at tolerance
-0.01 and median bound, before (c = S/32 enlarged by 1.25 under the memory budget, reach c
-with slack, shares in [0, 1]) and after (measured offsets, m odd, capped shares):
-automatic cells (17.4, 40 a side) 99.9-100 % -> 25-33 %, median 2.0 % -> 0.83 %; cells
-of 25 (8 a side) 100 % -> 0 %, 2.0 % -> 0.50 %; cells of 6 (12 a side, grid c = S/9 under
-the 256 MiB budget) 100 % -> 99 %, 4.3 % -> 1.5-1.8 % (there the largest actual error, 1.3 %,
-is itself above the tolerance). The largest actual error over the bound rose from 0.36
-to 0.76 (the bound is closer to the error, never below it in these runs); over 40 more maps
-(seeds 4-9, five layouts, both statistics, half of them clustered) it reached 0.88, in
-outer cells of the map; the median cell's ratio is about 0.14.
-
-Why the value's reading stays: the count caps are strict, but which pairs of a lag vector
-cross is unknown, so a bound that does not read the crossing pairs at their lag vector's
-mean must let them be the pairs of largest (smallest) value. Even with each lag vector's
-sum of squared pair values (more transforms) that worst case moves a cell's value by the
-order of its share of pairs that may cross times the pairs' spread, and that share (the
-pair-count bound over the pairs) has a median of 22 % (automatic cells) to 37 % (cells of 6)
-on 20,000 samples: a strict value bound would be tens of percent, far above any useful
-tolerance.
+cells flagged on 20,000 samples).
 """
 
 from __future__ import annotations
@@ -397,11 +389,10 @@ def map_bounds(
     along_x = _Crossing(ii - rx, cell, cell_size, spread[0], margin[0], b_den, moments[0], jj, ii)
     along_y = _Crossing(jj - ry, cell, cell_size, spread[1], margin[1], b_den, moments[1], jj, ii)
     # The grid's own cell keeps at least `kept` of the lag vector's pairs: those that cross no edge.
-    kept = np.maximum(0.0, 1.0 - along_x.leaving(low_i, high_i) - along_y.leaving(low_j, high_j))
-    own = (np.abs(along_x.own) <= cells) & (np.abs(along_y.own) <= cells)
-    own_cell = (along_y.own[own] + cells) * width + (along_x.own[own] + cells)
-    core_num += np.bincount(own_cell, weights=kept[own] * b_num[own], minlength=width * width).reshape(width, width)
-    core_den += np.bincount(own_cell, weights=kept[own] * b_den[own], minlength=width * width).reshape(width, width)
+    # The value's extremes take each boundary lag vector's pairs in every cell its rectangle reaches with
+    # a share in [0, 1]; the pair-count bound counts only the pairs that may move there, by the caps
+    # (module docstring, "Shares from the offsets' moments").
+    leaving = np.minimum(1.0, along_x.leaving(low_i, high_i) + along_y.leaving(low_j, high_j))
     parts_cell, parts_lag, parts_share = [], [], []
     for ti in range(int((high_i - low_i).max(initial=0)) + 1):
         for tj in range(int((high_j - low_j).max(initial=0)) + 1):
@@ -409,15 +400,14 @@ def map_bounds(
             pick = np.flatnonzero((i <= high_i) & (j <= high_j) & (np.abs(i) <= cells) & (np.abs(j) <= cells))
             i, j = i[pick], j[pick]
             mine = (i == along_x.own[pick]) & (j == along_y.own[pick])
-            share = np.where(mine, 1.0 - kept[pick], np.minimum(along_x.cap(i, pick), along_y.cap(j, pick)))
-            take = share > 0.0
-            parts_cell.append(((j + cells) * width + (i + cells))[take])
-            parts_lag.append(pick[take])
-            parts_share.append(share[take])
+            share = np.where(mine, leaving[pick], np.minimum(along_x.cap(i, pick), along_y.cap(j, pick)))
+            parts_cell.append((j + cells) * width + (i + cells))
+            parts_lag.append(pick)
+            parts_share.append(share)
     cls = np.concatenate(parts_cell) if parts_cell else np.zeros(0, dtype=np.int64)
     lag = np.concatenate(parts_lag) if parts_lag else np.zeros(0, dtype=np.int64)
     share = np.concatenate(parts_share) if parts_share else np.zeros(0)
-    e_num, e_den = share * b_num[lag], share * b_den[lag]
+    e_num, e_den, moving = b_num[lag], b_den[lag], share * b_den[lag]
     if within[0] > 0:
         i0, i1 = _map_spans(np.zeros(1), spread[0], cell_size)
         j0, j1 = _map_spans(np.zeros(1), spread[1], cell_size)
@@ -427,9 +417,10 @@ def map_bounds(
         cls = np.r_[cls, origin]
         e_num = np.r_[e_num, np.full(origin.size, 2.0 * within[1])]
         e_den = np.r_[e_den, np.full(origin.size, 2.0 * within[0])]
+        moving = np.r_[moving, np.full(origin.size, 2.0 * within[0])]
     key = e_num / e_den
     flat_num, flat_den = core_num.ravel(), core_den.ravel()
-    pairs = np.bincount(cls, weights=e_den, minlength=width * width)
+    pairs = np.bincount(cls, weights=moving, minlength=width * width)
     hi = _extreme(cls, key, e_num, e_den, flat_num, flat_den, width * width, True)
     lo = _extreme(cls, key, e_num, e_den, flat_num, flat_den, width * width, False)
     v = grid_values.ravel()

@@ -128,11 +128,10 @@ class GridReport:
                 within_cell_pairs=self.within_cell_pairs,
                 flagged_cells=self.flagged,
                 bound_rule="pairs the grid puts in another map cell than the exact path lie in lag vectors whose "
-                "rectangle of the samples' measured offset spread within grid cells crosses a map cell edge; the "
-                "share of a lag vector's pairs that can cross is capped by Cantelli's inequality on the pairs' offset "
-                "differences; error_bound is the widest change of the cell value over every share within those caps, "
-                "each share at its lag vector's mean; pair_bound is the largest number of pairs that can cross (a "
-                "strict bound on the count)",
+                "rectangle of the samples' measured offset spread within grid cells crosses a map cell edge; "
+                "error_bound is the widest change of the cell value over every share of those lag vectors' pairs, "
+                "each share at its lag vector's mean; pair_bound is the largest number of those pairs that can cross, "
+                "capped by Cantelli's inequality on the pairs' offset differences (a strict bound on the count)",
             )
         elif self.source == "binned":
             out.update(
