@@ -2,8 +2,11 @@
 
 from __future__ import annotations
 
+import io
+
 import pytest
 
+from tests.api.test_arrow_api import ARROW, stream
 from tests.api.test_bad_input import assert_problem
 
 VARIOGRAMS = "/v1/experimental-variograms"
@@ -224,3 +227,60 @@ def test_repeated_ids_of_several_variables_and_features_are_refused(client):
     body = {"samples": {"geojson": {"type": "FeatureCollection", "features": features}, "value_property": "v"}}
     doc = assert_problem(client.post(VARIOGRAMS, json=body), 422, "invalid-input", ["/samples/geojson/features/3/id"])
     assert "of sample 0" in doc["detail"]
+
+
+@pytest.mark.parametrize(
+    "body, pointer",
+    [
+        (
+            b'{"samples": {"x": [0, 1, 2], "values": [1, 2, 3]}, "lags": {"width": 1, "count": 2, "width": 5}}',
+            "/lags/width",
+        ),
+        (b'{"samples": {"x": [0, 1, 2], "values": [1, 2, 3], "x": [5, 6, 7]}}', "/samples/x"),
+        (
+            b'{"samples": {"x": [0, 1, 2], "values": [1, 2, 3], "ids": ["a:1", "a:2", "a:3"]}, "min_pairs": 1, '
+            b'"min_pairs": 2}',
+            "/min_pairs",
+        ),
+        # The same name written with an escape, and a repeat inside the 17th feature's properties.
+        (b'{"samples": {"x": [0, 1, 2], "values": [1, 2, 3]}, "min_pairs": 1, "min_\\u0070airs": 2}', "/min_pairs"),
+        (
+            b'{"samples": {"geojson": {"type": "FeatureCollection", "features": ['
+            + b", ".join(
+                b'{"type": "Feature", "geometry": {"type": "Point", "coordinates": [%d, %d]}, "properties": {"v": 1%s}}'
+                % (i, i % 3, b', "v": 2' if i == 17 else b"")
+                for i in range(20)
+            )
+            + b']}, "value_property": "v"}}',
+            "/samples/geojson/features/17/properties/v",
+        ),
+    ],
+)
+def test_a_member_given_twice_is_refused_by_pointer(client, body, pointer):
+    r = client.post(VARIOGRAMS, data=body, content_type="application/json")
+    doc = assert_problem(r, 422, "invalid-input", [pointer])
+    assert "names a member already given in its object" in doc["detail"]
+
+
+def test_a_member_given_twice_in_the_request_part_of_a_multipart_body_is_refused(client):
+    options = b'{"lags": {"width": 1, "count": 2}, "lags": {"width": 2, "count": 2}}'
+    form = {
+        "request": (io.BytesIO(options), "request.json", "application/json"),
+        "samples": (io.BytesIO(stream({"x": [0.0, 1.0, 2.0], "values": [1.0, 2.0, 3.0]})), "s.arrows", ARROW),
+    }
+    r = client.post(VARIOGRAMS, data=form, content_type="multipart/form-data")
+    assert_problem(r, 422, "invalid-input", ["/lags"])
+
+
+@pytest.mark.parametrize(
+    "body",
+    [
+        b'{"samples": {"x": [0, 1, 2], "values": [1, 2, 3]}, "lags": {"width": 1, "count": 2}}',
+        # Names alike only inside strings, or in different objects, are not repeats.
+        b'{"samples": {"x": [0, 1, 2], "values": [1, 2, 3], "ids": ["\\"x\\": 1", "x", "{\\"x\\":2}"]}, '
+        b'"lags": {"width": 1, "count": 2}}',
+    ],
+)
+def test_distinct_members_are_read_as_before(client, body):
+    r = client.post(VARIOGRAMS, data=body, content_type="application/json")
+    assert r.status_code == 200, r.json

@@ -9,7 +9,7 @@ from pathlib import Path
 from flask import Flask, Response
 
 from ..core.warmup import warm_kernels
-from . import observability, security
+from . import members, observability, security
 from .jsonio import dumps
 from .negotiation import check_acceptable
 from .openapi import DOCUMENTS, as_dict, as_yaml
@@ -80,5 +80,6 @@ def create_app(config: Mapping | None = None, *, settings: Settings | None = Non
     register_error_handlers(app)
     if warm:
         warm_kernels()
+        members.warm()
         ready.set()
     return app

@@ -7,9 +7,9 @@ import zlib
 from flask import current_app, g, request
 from marshmallow import Schema, ValidationError
 
-from . import prescan
+from . import members, prescan
 from .columnar import MULTIPART_MEDIA_TYPE, read_samples, split_form
-from .jsonio import MalformedJSON, parse
+from .jsonio import MalformedJSON, parse, repeated_member
 from .problems import Problem
 
 
@@ -133,12 +133,18 @@ def read_body(limit: int | None = None, name: str = "LAGWISE_MAX_BODY_BYTES") ->
 
 
 def _json_object(body: bytes, what: str) -> dict:
-    """Parse a JSON object, refusing first a body with more values than the limits allow (:mod:`.prescan`)."""
-    prescan.check_body(body, current_app.extensions["lagwise"].limits)
+    """Parse a JSON object, refusing first a body with more values than the limits allow (:mod:`.prescan`),
+    then one that names a member twice in an object (:mod:`.members`), by pointer."""
+    scanned = members.scan(body)
+    prescan.check_body(body, current_app.extensions["lagwise"].limits, scanned.values)
     try:
         document = parse(body)
     except MalformedJSON as exc:
         raise Problem("malformed-json", str(exc)) from None
+    repeated = repeated_member(body) if scanned.maybe_repeated else None
+    if repeated is not None:
+        detail = "names a member already given in its object (give each member once)"
+        raise Problem("invalid-input", f"{repeated or 'the body'}: {detail}", [{"pointer": repeated, "detail": detail}])
     del body
     if not isinstance(document, dict):
         raise Problem(

@@ -7,6 +7,12 @@ overflows a double (``1e400``) is well-formed JSON but not a usable value: such 
 body is parsed again with the standard library so that validation can name the
 field (422). Output uses orjson with numpy support; any NaN or infinity that
 reached it would be written as ``null``.
+
+A member named twice in one object (``{"width": 1, "width": 2}``) is refused rather than
+read as the last one: orjson keeps the last without telling, so the raw body is scanned
+once (:mod:`lagwise.api.members`), and only when that pass finds a possible repeat is the
+body parsed again by the standard library, keeping each object's members in order, to
+name it (:func:`repeated_member`).
 """
 
 from __future__ import annotations
@@ -18,6 +24,7 @@ import numpy as np
 import orjson
 
 from ..core.data.identifiers import CompactIds
+from .fields import pointer_token
 
 
 class MalformedJSON(ValueError):
@@ -55,6 +62,50 @@ def parse(body: bytes) -> Any:
         raise MalformedJSON("nesting is too deep") from None
     except (ValueError, UnicodeDecodeError) as exc:
         raise MalformedJSON(str(exc)) from None
+
+
+class _Repeats(dict):
+    """An object parsed by the standard library in which ``repeated`` was given more than once."""
+
+    repeated: str
+
+
+def _keep_repeats(pairs: list[tuple[str, Any]]) -> dict:
+    found = dict(pairs)
+    if len(found) == len(pairs):
+        return found
+    marked = _Repeats(found)
+    seen: set[str] = set()
+    for key, _ in pairs:
+        if key in seen:
+            marked.repeated = key
+            break
+        seen.add(key)
+    return marked
+
+
+def repeated_member(body: bytes) -> str | None:
+    """The JSON Pointer of the first member (in document order) named twice in one object of
+    ``body``, or None; ``""`` when the body is too deeply nested for the standard library to tell.
+
+    ``body`` is strict JSON already (parsed by :func:`parse`): this parse is exact, not fast.
+    """
+    try:
+        document = json.loads(body, object_pairs_hook=_keep_repeats)
+    except RecursionError:
+        return ""
+    stack: list[tuple[Any, str]] = [(document, "")] if isinstance(document, dict | list) else []
+    while stack:
+        node, pointer = stack.pop()
+        if isinstance(node, _Repeats):
+            return f"{pointer}/{pointer_token(node.repeated)}"
+        children = list(node.items()) if isinstance(node, dict) else list(enumerate(node))
+        stack.extend(
+            (value, f"{pointer}/{pointer_token(str(key))}")
+            for key, value in reversed(children)
+            if isinstance(value, dict | list)
+        )
+    return None
 
 
 def _fallback(value: Any) -> Any:

@@ -2,12 +2,14 @@
 
 A parsed JSON value costs far more than its text: a float or a short string is an
 object of 24 to 56 bytes plus an 8-byte slot in its list, so a 64 MB body of ``"a",``
-becomes about 1.5 GB. Two counts run over the raw bytes (C-speed ``bytes.count``):
+becomes about 1.5 GB. Two counts run over the raw bytes:
 
 * values: every JSON value but the first follows a comma or opens an array or object,
   so commas + brackets + braces + 1 bound the number of values from above (commas
-  inside strings only make the bound larger). Above the memory budget divided by
-  :data:`VALUE_BYTES` the body is refused (``LAGWISE_MEMORY_BUDGET_BYTES``).
+  inside strings only make the bound larger); the count is taken by the one compiled
+  pass of :mod:`lagwise.api.members` (which also looks for members named twice). Above
+  the memory budget divided by :data:`VALUE_BYTES` the body is refused
+  (``LAGWISE_MEMORY_BUDGET_BYTES``).
 * GeoJSON points: every Point feature holds the string ``"Point"`` once, so a
   collection with more of them than ``LAGWISE_MAX_SAMPLES`` is refused before its
   features are parsed and converted.
@@ -26,8 +28,9 @@ VALUE_BYTES = 48  # a parsed float or short string with its list slot, bytes (CP
 COLUMNS = ("x", "y", "z", "values", "ids", "censored", "detection_limits")
 
 
-def check_body(body: bytes, limits: Limits) -> None:
-    """Refuse a raw JSON body whose values or GeoJSON points exceed the limits (see the module notes)."""
+def check_body(body: bytes, limits: Limits, values: int) -> None:
+    """Refuse a raw JSON body whose values (``values``, the bound counted by :func:`lagwise.api.members.scan`)
+    or GeoJSON points exceed the limits (see the module notes)."""
     if b'"geojson"' in body:
         points = body.count(b'"Point"')
         if points > limits.max_samples:
@@ -39,7 +42,6 @@ def check_body(body: bytes, limits: Limits) -> None:
                 "per request (thin or split the data set).",
                 "/samples/geojson/features",
             )
-    values = body.count(b",") + body.count(b"[") + body.count(b"{") + 1
     if values * VALUE_BYTES > limits.memory_budget_bytes:
         raise LimitExceeded(
             "LAGWISE_MEMORY_BUDGET_BYTES",

@@ -47,14 +47,16 @@ control_socket = os.path.join(tempfile.gettempdir(), f"lagwise-gunicorn-{os.getp
 
 
 def on_starting(server):
-    """Start from empty metric files and compile the kernels once in the master (no threads start)."""
+    """Start from empty metric files and compile the kernels (and the body scan) once in the master (no threads start)."""
     for entry in os.listdir(_metrics_dir):
         path = os.path.join(_metrics_dir, entry)
         if os.path.isfile(path):
             os.remove(path)
+    from lagwise.api import members
     from lagwise.core.warmup import compile_kernels
 
     compile_kernels()
+    members.warm()
 
 
 def when_ready(server):
