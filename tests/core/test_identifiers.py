@@ -72,6 +72,7 @@ def test_index_ids_hold_no_array_and_become_integers_when_picked():
     part = pick_ids(ids, np.array([5, 2]))
     assert isinstance(part, IntegerIds) and list(part) == ["5", "2"]
     assert list(ids[3:6]) == ["3", "4", "5"]
+    assert IndexIds(5).count("3") == 1 and IndexIds(5).index("4") == 4  # the Sequence methods still work
 
 
 @pytest.mark.parametrize("seed", [0, 1, 2])

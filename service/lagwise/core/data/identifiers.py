@@ -162,15 +162,15 @@ class IndexIds(CompactIds):
 
     Parameters
     ----------
-    count : int
-        The number of samples (identifiers ``"0"`` .. ``str(count - 1)``).
+    size : int
+        The number of samples (identifiers ``"0"`` .. ``str(size - 1)``).
     """
 
-    def __init__(self, count: int) -> None:
-        self.count = int(count)
+    def __init__(self, size: int) -> None:
+        self.size = int(size)
 
     def __len__(self) -> int:
-        return self.count
+        return self.size
 
     def take(self, rows: np.ndarray) -> IntegerIds:
         return IntegerIds(np.asarray(rows, dtype=np.int64))
@@ -179,7 +179,7 @@ class IndexIds(CompactIds):
         return str(i)
 
     def __iter__(self) -> Iterator[str]:
-        return map(str, range(self.count))
+        return map(str, range(self.size))
 
     def _distinct_quickly(self):
         return True  # input indices are distinct: the search never needs hashes
