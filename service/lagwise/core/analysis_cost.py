@@ -65,9 +65,10 @@ from .variography.uncertainty import plan_blocks
 PAIRS_PER_SECOND = 1e8
 OPERATIONS_PER_SECOND = 3e9
 SIMULATED_PER_SECOND = 1e7
-# A grid-method variogram map, whole (binning, transforms with the offset moments', bounds), took
-# 1.8-3.1 ns of CPU per unit of transforms x points x log2(points) at 2,000-200,000 samples on the
-# loaded 2-core machine (load 9, wall about 3 times the CPU); 6.25 ns a unit leaves room for both.
+# A grid-method variogram map, whole (binning, transforms, bounds), took 1.8-3.1 ns of CPU per unit
+# of transforms x points x log2(points) at 2,000-200,000 samples on the loaded 2-core machine (load
+# 9, wall about 3 times the CPU) while it also ran, and counted, 9 transforms of offset moments (since
+# removed: the bounds' own time now weighs more per unit); 6.25 ns a unit leaves room for both.
 FFT_UNITS_PER_SECOND = 1.6e8
 SVG_MARKS_PER_SECOND = 2000.0  # about 0.5 ms per map cell
 FIT_SECONDS = 0.7  # one least-squares fit of every family: about 0.6 s of CPU profiled on the loaded 2-core machine

@@ -22,10 +22,6 @@ cells, a quarter of a column against a half when the edge lies on a column (boun
 "Map cells"), and the columns a whole cell or more from an edge
 hold no pair of another map cell.
 
-For the pair-count bound, each boundary lag vector's share of pairs that can cross a map cell
-edge is capped from the sums of the samples' offset differences and their squares over its pairs (per-node sums of
-the offsets within grid cells along x and y, four more forward and inverse transforms,
-:func:`lagwise.core.variography.fft.offset_moments`; the memory estimate counts their arrays).
 Each map cell states a relative error bound and a pair-count bound
 (:func:`lagwise.core.variography.bounds.map_bounds`, derivation in that module's
 docstring, "Map cells"); a cell is flagged when its bound exceeds the tolerance or
@@ -46,9 +42,8 @@ from ..deadline import check_deadline
 from ..errors import InvalidInput
 from ..limits import Limits
 from . import kernels as K
-from .binning import bin_offsets
 from .bounds import map_bounds
-from .fft import check_budget, fft_bytes, lag_sums, map_table, offset_moments, padded_shape
+from .fft import check_budget, fft_bytes, lag_sums, map_table, padded_shape
 from .gridded import MAX_GRID_SIDE, GridReport, binned_nodes, refuse_unbounded
 from .statistics import class_value
 
@@ -121,10 +116,10 @@ def map_grid_cell(summary: Summary, cell_size: float, cells: int, limits: Limits
     radius = (cells + 0.5) * cell_size
     for cell in sides:
         shape, reach = grid_shape(extent, cell, radius)
-        if fft_bytes(shape, reach, offsets=True) <= limits.memory_budget_bytes:
+        if fft_bytes(shape, reach) <= limits.memory_budget_bytes:
             return cell
     shape, reach = grid_shape(extent, cell_size, radius)
-    check_budget(shape, reach, limits, "/cells", offsets=True)
+    check_budget(shape, reach, limits, "/cells")
     return cell_size
 
 
@@ -173,7 +168,7 @@ def binned_map(
     ny, nx = grid.nodes.count.shape
     radius = (cells + 0.5) * cell_size
     reach = (min(int(math.ceil(radius / cell)), nx - 1), min(int(math.ceil(radius / cell)), ny - 1))
-    memory = check_budget((ny, nx), reach, limits, "/cells", offsets=True)
+    memory = check_budget((ny, nx), reach, limits, "/cells")
     sums = lag_sums(grid.nodes, reach, first_moments=statistic != "semivariance")
     check_deadline()
     table = map_table(sums, cell_size, cells)
@@ -187,19 +182,9 @@ def binned_map(
     else:
         numerator = sums.product + mean * (sums.tail + sums.head) + mean * mean * sums.count
         within = (grid.within[0], grid.within[2])
-    coords = np.ascontiguousarray(samples.coords)
-
-    def offsets(axis: int) -> tuple[np.ndarray, np.ndarray]:
-        first, second = bin_offsets(coords, grid.origin[0], grid.origin[1], cell, nx, ny, axis)
-        return first.reshape(ny, nx), second.reshape(ny, nx)
-
-    moments = offset_moments(grid.nodes.count, (offsets(axis) for axis in (0, 1)), reach)
-    check_deadline()
-    margin = (grid.margin, grid.margin)
     bound, pair_bound = map_bounds(
-        sums.count, numerator, reach, within, cell, grid.spread, margin, moments, cell_size, cells, grid_values
+        sums.count, numerator, reach, within, cell, grid.spread, cell_size, cells, grid_values
     )
-    del moments
     del sums, numerator
     check_deadline()
     pairs = table[:, K.COUNT].astype(np.int64).reshape(width, width)

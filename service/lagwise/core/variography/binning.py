@@ -66,23 +66,3 @@ def offset_range(coords, x0, y0, cell, nx, ny):
         y_lo = min(y_lo, v)
         y_hi = max(y_hi, v)
     return x_lo, x_hi, y_lo, y_hi
-
-
-@njit(cache=True)
-def bin_offsets(coords, x0, y0, cell, nx, ny, axis):
-    """Sums of w and w^2 in each cell, w = offset from the cell's lower-left corner less half a cell,
-    along ``axis`` (0: x, 1: y); the cells of :func:`bin_on_cells`, arrays of shape (ny * nx,)."""
-    first = np.zeros(nx * ny)
-    second = np.zeros(nx * ny)
-    half = 0.5 * cell
-    for k in range(coords.shape[0]):
-        i = min(int((coords[k, 0] - x0) / cell), nx - 1)
-        j = min(int((coords[k, 1] - y0) / cell), ny - 1)
-        b = j * nx + i
-        if axis == 0:
-            w = (coords[k, 0] - x0) - i * cell - half
-        else:
-            w = (coords[k, 1] - y0) - j * cell - half
-        first[b] += w
-        second[b] += w * w
-    return first, second

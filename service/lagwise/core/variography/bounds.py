@@ -56,49 +56,53 @@ lag vectors and those a whole cell or more away are core; a fixed reach of c wit
 relative slack (before the offsets were measured) made the columns whose rectangle
 touches the edge only at its rim boundary lag vectors too.
 
-Shares from the offsets' moments (map cells): the pair-count bound
-------------------------------------------------------------------
+Narrower crossing shares from the offsets' moments: analysed, not used
+-----------------------------------------------------------------------
 Which pairs of a boundary lag vector cross an edge depends on d = u_head - u_tail, not on
 a product of a head term and a tail term, so no sum over node pairs gives the crossing
 pairs' sums; but the sums of d and d^2 over each lag vector's pairs are such sums
-(per-node sums of the offsets and of their squares, two more transforms and two inverse
-ones per axis, :func:`lagwise.core.variography.fft.offset_moments`). The grid puts lag
-vector s in column g = floor(s_x c / S + 1/2); one of its pairs lies in a column i > g only
-if d_x >= t = (i - 1/2) S - s_x c (in i < g only if -d_x > s_x c - (i + 1/2) S), and by
-Cantelli's inequality the share of the lag vector's pairs with d_x >= t is at most
-1 - (t - mu)^2 / E[(d_x - t)^2] when t > mu (mu and E[...] over those pairs, widened by
-the transforms' rounding bound). A boundary lag vector may then bring into a cell it
-reaches at most the smaller of its two axes' caps of its pairs, and lose from its own cell
-at most the sum of the caps of leaving along x and along y: the pair-count bound is the sum
-of those counts, still strict and narrower than the boundary counts themselves. With m odd
-(:mod:`lagwise.core.variography.binned_maps`) the two columns nearest an edge sit c / 2
-from it: for samples spread evenly within cells mu = 0 and E[d^2] = c^2 / 6, so the cap is
-1 - (1/4) / (1/6 + 1/4) = 0.4 instead of 1 (the actual share is 1/8). On an edge (t = 0)
-the cap is 1 whatever the variance. No polynomial in d bounds the crossing indicator
-1[d >= t] closely near t (its jump lies where the pairs are densest).
+(per-node sums of the offsets and of their squares: two more forward and two inverse
+transforms per axis, 9 in all with the counts'). One of the pairs of lag vector s lies in
+a column i above the grid's own g = floor(s_x c / S + 1/2) only if
+d_x >= t = (i - 1/2) S - s_x c, and by Cantelli's inequality the share of its pairs with
+d_x >= t is at most 1 - (t - mu)^2 / E[(d_x - t)^2] when t > mu (mu and E[...] over
+those pairs): with the odd m of :mod:`lagwise.core.variography.binned_maps` the columns
+nearest an edge sit c / 2 from it, and for samples spread evenly within cells (mu = 0,
+E[d^2] = c^2 / 6) the cap is 0.4 instead of 1 (the actual share 1/8); on an edge
+(t = 0) it is 1 whatever the variance, and no polynomial in d bounds the crossing
+indicator 1[d >= t] closely near t (its jump lies where the pairs are densest).
 
-The value's extremes do not use the caps. Capping the shares while each still carries its
-lag vector's mean removes the slack that made that reading hold: on 120 samples of white
-noise (tests/client/test_sdk.py, cells of 10) a map cell's actual error reached 1.17 times
-such a capped bound (1.49 times when the lag vectors that caps show cannot move, mostly of
-one pair, were taken as exact), because the one or two pairs of a lag vector that cross
-carry their own values, not the lag vector's mean; on 20,000 samples the capped bound
-would have flagged 25-33 % of the automatic map's cells instead of nearly all, with the
-largest error at 0.88 of it. A bound free of the reading must let the crossing pairs be
-those of largest (smallest) value: with each lag vector's sum of squared pair values (more
-transforms) a subset of k of its N pairs sums to k mean +- sqrt(k (N - k) / N) times the
-root of the sum of squared deviations (exact for N <= 2), but for the lag vectors of
-about a hundred pairs on 20,000 samples this would move a map cell's value by some 3 % (an estimate, not measured; the share
-of pairs that may cross has a median of 22-37 % there), wider than the bound with the
-reading: neither is a tighter rigorous bound, so the value keeps the reading and its
-shares in [0, 1].
+Those caps are strict bounds on counts, but they do not give a tighter rigorous value
+bound. Capping each share while it still carries its lag vector's mean removes the slack
+that made that reading hold: on 120 samples of white noise (tests/client/test_sdk.py,
+cells of 10) a map cell's actual error reached 1.17 times such a capped bound (1.49 times
+when the lag vectors the caps show cannot move, mostly of one pair, were taken as exact),
+because the one or two pairs of a lag vector that cross carry their own values, not the
+lag vector's mean (on 20,000 samples the capped bound would have flagged 25-33 % of the
+automatic map's cells instead of nearly all, the largest error at 0.88 of it). A bound
+free of the reading must let the crossing pairs be those of largest (smallest) value:
+with each lag vector's sum of squared pair values (more transforms) a subset of k of its
+N pairs sums to k mean +- sqrt(k (N - k) / N) times the root of the sum of squared
+deviations (exact for N <= 2), but for lag vectors of about a hundred pairs, as on
+20,000 samples, that moves a map cell's value by some 3 % by estimate (not measured; the
+share of pairs that may cross has a median of 22-37 % there), wider than the bound with
+the reading. The caps alone would narrow only ``pair_bound``, for 2.3 times the
+transforms' CPU time of the semivariance map (200,000 samples: 0.76 against 0.33 CPU s)
+and a memory estimate 22 % larger (170 -> 208 MiB), which under the default budget took a
+coarser grid and more flagged cells (200,000 samples, automatic cells: 28 % -> 33 %); they
+are not computed.
 
 What sets the bound: halving c halves the boundary share, but it also quarters the pairs
 of each lag vector, and the worst case takes every boundary lag vector whose mean lies
 above (below) the cell's value. Where lag vectors hold few pairs their means scatter
 widely (the pairs of one lag vector sit at different places of the field), so a finer
 grid alone lowers the bound little (1/128 of a map cell, 1.48 GiB: still 17 % of the
-cells flagged on 20,000 samples).
+cells flagged on 20,000 samples). Measured offsets and odd m (3 December 2026, share of
+map cells above tolerance 0.01, before -> after, same samples): 20,000 samples (seeds
+1-3), automatic cells 99.9-100 % -> 99.9-100 %, cells of 25 100 % -> 89-90 % (median bound
+2.0 % -> 1.2 %, largest actual error 0.73 % -> 0.17 %), cells of 6 100 % -> 100 %; largest
+actual error over the bound 0.36 -> 0.33; 200,000 samples (seed 7, default budget),
+automatic cells 28 % -> 26 %, cells of 10 54 % -> 41 %.
 """
 
 from __future__ import annotations
@@ -108,7 +112,6 @@ import math
 import numpy as np
 
 from .directions import DirectionClass
-from .fft import OffsetMoments
 
 BOUND_STATISTICS = ("semivariance", "covariance_noncentered")
 
@@ -264,53 +267,6 @@ def _map_spans(offsets: np.ndarray, spread: float, size: float) -> tuple[np.ndar
     return low, high
 
 
-_EPS = float(np.finfo(np.float64).eps)
-
-
-class _Crossing:
-    """Along one axis, how many of each boundary lag vector's pairs may lie in each map column (row).
-
-    The grid puts lag vector s in column g = floor(s c / S + 1/2); a pair of it lies in column
-    i > g only if its offset difference d >= t = (i - 1/2) S - s c, and in i < g only if
-    -d > t = s c - (i + 1/2) S (less the rounding slack of :func:`_map_spans`). The share of
-    the lag vector's pairs with d >= t is at most 1 - (t - mu)^2 / E[(d - t)^2] for t > mu
-    (Cantelli's inequality; mu and E[(d - t)^2] from the pair sums of d and d^2, each widened
-    by the transforms' rounding bound), else 1.
-    """
-
-    def __init__(self, steps, cell, size, spread, margin, pairs, moments, jj, ii):
-        self.offset = steps * cell
-        self.own = np.floor(self.offset / size + 0.5).astype(np.int64)
-        self.size = size
-        self.slack = margin + 8.0 * _EPS * (np.abs(self.offset) + spread + size)
-        self.mean = moments.first[jj, ii] / pairs
-        self.mean_error = moments.first_error / pairs
-        self.square = (moments.second[jj, ii] + moments.second_error) / pairs
-
-    def cap(self, index: np.ndarray, pick: np.ndarray) -> np.ndarray:
-        """Largest share of the pairs of boundary lag vectors ``pick`` in column ``index`` (1 in their own)."""
-        own, offset = self.own[pick], self.offset[pick]
-        up = index > own
-        sign = np.where(up, 1.0, -1.0)
-        t = np.where(up, (index - 0.5) * self.size - offset, offset - (index + 0.5) * self.size) - self.slack[pick]
-        mean, error = sign * self.mean[pick], self.mean_error[pick]
-        high, low = mean + error, mean - error
-        spread = self.square[pick] - np.minimum(2.0 * t * low, 2.0 * t * high) + t * t  # >= E[(d - t)^2]
-        with np.errstate(divide="ignore", invalid="ignore"):
-            bound = np.where(t > high, 1.0 - (t - high) ** 2 / spread, 1.0)
-        return np.where(index == own, 1.0, np.clip(np.nan_to_num(bound, nan=1.0), 0.0, 1.0))
-
-    def leaving(self, low: np.ndarray, high: np.ndarray) -> np.ndarray:
-        """Largest share of every boundary lag vector's pairs outside its own column."""
-        every = np.arange(self.own.size)
-        out = np.zeros(self.own.size)
-        for step in (-1, 1):
-            index = self.own + step
-            reach = (index >= low) & (index <= high)
-            out[reach] += self.cap(index[reach], every[reach])
-        return out
-
-
 def _core_sums(values: np.ndarray, cx: np.ndarray, cy: np.ndarray, cells: int) -> np.ndarray:
     """Sums of ``values`` (rows by lag y, columns by lag x) over each cell's core lag vectors, shape (W, W).
 
@@ -330,8 +286,6 @@ def map_bounds(
     within: tuple[float, float],
     cell: float,
     spread: tuple[float, float],
-    margin: tuple[float, float],
-    moments: tuple[OffsetMoments, OffsetMoments],
     cell_size: float,
     cells: int,
     grid_values: np.ndarray,
@@ -352,11 +306,6 @@ def map_bounds(
     spread : (float, float)
         Largest |u_head - u_tail| of two samples' offsets within their grid cells along x and y,
         rounding margin included (at most about c; :func:`lagwise.core.variography.gridded.offset_spread`).
-    margin : (float, float)
-        The rounding margin within ``spread`` (of the offsets and of the exact path's h).
-    moments : (OffsetMoments, OffsetMoments)
-        Sums of d = w_head - w_tail and d^2 over each lag vector's pairs, along x and y
-        (:func:`lagwise.core.variography.fft.offset_moments`).
     cells : int
         Map cells on each side of the origin.
     grid_values : ndarray, shape (2 cells + 1, 2 cells + 1)
@@ -386,28 +335,16 @@ def map_bounds(
     del boundary
     b_num, b_den = numerator[jj, ii], count[jj, ii]
     low_i, high_i, low_j, high_j = lx[ii], hx[ii], ly[jj], hy[jj]
-    along_x = _Crossing(ii - rx, cell, cell_size, spread[0], margin[0], b_den, moments[0], jj, ii)
-    along_y = _Crossing(jj - ry, cell, cell_size, spread[1], margin[1], b_den, moments[1], jj, ii)
-    # The grid's own cell keeps at least `kept` of the lag vector's pairs: those that cross no edge.
-    # The value's extremes take each boundary lag vector's pairs in every cell its rectangle reaches with
-    # a share in [0, 1]; the pair-count bound counts only the pairs that may move there, by the caps
-    # (module docstring, "Shares from the offsets' moments").
-    leaving = np.minimum(1.0, along_x.leaving(low_i, high_i) + along_y.leaving(low_j, high_j))
-    parts_cell, parts_lag, parts_share = [], [], []
+    parts_cell, parts_lag = [], []
     for ti in range(int((high_i - low_i).max(initial=0)) + 1):
         for tj in range(int((high_j - low_j).max(initial=0)) + 1):
             i, j = low_i + ti, low_j + tj
             pick = np.flatnonzero((i <= high_i) & (j <= high_j) & (np.abs(i) <= cells) & (np.abs(j) <= cells))
-            i, j = i[pick], j[pick]
-            mine = (i == along_x.own[pick]) & (j == along_y.own[pick])
-            share = np.where(mine, leaving[pick], np.minimum(along_x.cap(i, pick), along_y.cap(j, pick)))
-            parts_cell.append((j + cells) * width + (i + cells))
+            parts_cell.append((j[pick] + cells) * width + (i[pick] + cells))
             parts_lag.append(pick)
-            parts_share.append(share)
     cls = np.concatenate(parts_cell) if parts_cell else np.zeros(0, dtype=np.int64)
     lag = np.concatenate(parts_lag) if parts_lag else np.zeros(0, dtype=np.int64)
-    share = np.concatenate(parts_share) if parts_share else np.zeros(0)
-    e_num, e_den, moving = b_num[lag], b_den[lag], share * b_den[lag]
+    e_num, e_den = b_num[lag], b_den[lag]
     if within[0] > 0:
         i0, i1 = _map_spans(np.zeros(1), spread[0], cell_size)
         j0, j1 = _map_spans(np.zeros(1), spread[1], cell_size)
@@ -417,10 +354,9 @@ def map_bounds(
         cls = np.r_[cls, origin]
         e_num = np.r_[e_num, np.full(origin.size, 2.0 * within[1])]
         e_den = np.r_[e_den, np.full(origin.size, 2.0 * within[0])]
-        moving = np.r_[moving, np.full(origin.size, 2.0 * within[0])]
     key = e_num / e_den
     flat_num, flat_den = core_num.ravel(), core_den.ravel()
-    pairs = np.bincount(cls, weights=moving, minlength=width * width)
+    pairs = np.bincount(cls, weights=e_den, minlength=width * width)
     hi = _extreme(cls, key, e_num, e_den, flat_num, flat_den, width * width, True)
     lo = _extreme(cls, key, e_num, e_den, flat_num, flat_den, width * width, False)
     v = grid_values.ravel()

@@ -21,10 +21,6 @@ The semivariance needs only count and square; square's spectrum is
 conj(Q) C + conj(C) Q - 2 |S|^2 (hats omitted), so it takes three forward and two
 inverse transforms.
 
-For the grid method's map bounds, :func:`offset_moments` gives by the same correlations the
-sums over each lag vector's pairs of the difference of the samples' offsets within their
-cells and of its square.
-
 Lag vectors are then classified with the pair engine's own rules
 (:mod:`lagwise.core.variography.kernels`): separation h = (i dx, j dy), distance
 sqrt(hx^2 + hy^2), class ``searchsorted(edges, d, "right") - 1`` within the
@@ -112,28 +108,23 @@ def padded_shape(shape: tuple[int, int], reach: tuple[int, int]) -> tuple[int, i
     return scipy.fft.next_fast_len(ny + reach[1], real=True), scipy.fft.next_fast_len(nx + reach[0], real=True)
 
 
-def fft_bytes(shape: tuple[int, int], reach: tuple[int, int], offsets: bool = False) -> int:
-    """Working memory of :func:`lag_sums` in bytes (see :data:`SPECTRA_ALIVE`); with ``offsets``, of
-    :func:`offset_moments` after it too (four more windows, two more node arrays, the same spectra)."""
+def fft_bytes(shape: tuple[int, int], reach: tuple[int, int]) -> int:
+    """Working memory of :func:`lag_sums` in bytes (see :data:`SPECTRA_ALIVE`)."""
     py, px = padded_shape(shape, reach)
     spectrum = py * (px // 2 + 1) * 16
     window = (2 * reach[0] + 1) * (2 * reach[1] + 1) * 8
-    windows, grids = (10, 5) if offsets else (6, 3)
-    return SPECTRA_ALIVE * spectrum + windows * window + grids * shape[0] * shape[1] * 8
+    return SPECTRA_ALIVE * spectrum + 6 * window + 3 * shape[0] * shape[1] * 8
 
 
-def transform_count(first_moments: bool, offsets: bool = False) -> int:
+def transform_count(first_moments: bool) -> int:
     """Real 2-D FFTs of :func:`lag_sums`: forward transforms of the counts, sums and squares, then two
-    inverse transforms (count, square) or, with the first moments, four; with ``offsets``, also those
-    of :func:`offset_moments` (the counts' forward transform, then two forward and two inverse per axis)."""
-    return 3 + (4 if first_moments else 2) + (9 if offsets else 0)
+    inverse transforms (count, square) or, with the first moments, four."""
+    return 3 + (4 if first_moments else 2)
 
 
-def check_budget(
-    shape: tuple[int, int], reach: tuple[int, int], limits: Limits, pointer: str, offsets: bool = False
-) -> int:
+def check_budget(shape: tuple[int, int], reach: tuple[int, int], limits: Limits, pointer: str) -> int:
     """Refuse FFT work whose memory estimate exceeds ``LAGWISE_MEMORY_BUDGET_BYTES``; returns the estimate."""
-    need = fft_bytes(shape, reach, offsets)
+    need = fft_bytes(shape, reach)
     if need > limits.memory_budget_bytes:
         py, px = padded_shape(shape, reach)
         raise LimitExceeded(
@@ -204,67 +195,6 @@ def lag_sums(nodes: NodeSums, reach: tuple[int, int], first_moments: bool = True
         a[empty] = 0.0
     count[empty] = 0.0
     return LagSums(count, square, tail, head, tail2, head2, product, reach, nodes.spacing)
-
-
-@dataclass(frozen=True)
-class OffsetMoments:
-    """Sums over the ordered pairs of every lag vector of d = w_head - w_tail and d^2 along one axis,
-    w a sample's offset within its cell (coordinate units); shape and indexing of :class:`LagSums`.
-
-    ``first_error`` and ``second_error`` bound the transforms' rounding of each entry (see
-    :func:`offset_moments`).
-    """
-
-    first: np.ndarray
-    second: np.ndarray
-    first_error: float
-    second_error: float
-
-
-def offset_moments(count: np.ndarray, axes, reach: tuple[int, int]) -> list[OffsetMoments]:
-    """Pair sums of the offset difference d and of d^2 for every lag vector, one axis at a time.
-
-    ``axes`` yields, per axis, the per-node sums (W, W2) of the samples' offsets w and of w^2.
-    For the pairs (tail in node k, head in node k + s): sum d = corr(C, W)(s) - corr(W, C)(s) and
-    sum d^2 = corr(C, W2)(s) + corr(W2, C)(s) - 2 corr(W, W)(s), with spectra
-    conj(C) W - conj(W) C and conj(C) W2 + conj(W2) C - 2 |W|^2 (hats omitted): two forward and
-    two inverse transforms per axis, the counts' spectrum shared. Rounding: each correlation's
-    entries are within 24 eps log2(P) (|a|_2 |b|_1 + |a|_1 |b|_2) of the exact sums (three
-    transforms of relative error about 5 eps log2(P) each, as for any FFT product (Higham 2002,
-    Accuracy and Stability of Numerical Algorithms, section 24.1), doubled).
-    """
-    shape = padded_shape(count.shape, reach)
-    kappa = 24.0 * np.finfo(np.float64).eps * np.log2(shape[0] * shape[1])
-
-    def forward(a: np.ndarray) -> np.ndarray:
-        return scipy.fft.rfft2(a, s=shape, workers=WORKERS)
-
-    def inverse(spectrum: np.ndarray) -> np.ndarray:
-        check_deadline()
-        return _window(scipy.fft.irfft2(spectrum, s=shape, workers=WORKERS), reach)
-
-    def rounding(a: np.ndarray, b: np.ndarray) -> float:
-        return kappa * float(np.sqrt(np.sum(a * a)) * np.sum(np.abs(b)) + np.sum(np.abs(a)) * np.sqrt(np.sum(b * b)))
-
-    c_hat = forward(count)
-    out = []
-    for first, second in axes:
-        w_hat = forward(first)
-        spectrum = np.conj(c_hat)
-        spectrum *= w_hat
-        spectrum -= np.conj(spectrum)
-        moment_1 = inverse(spectrum)
-        spectrum = np.conj(c_hat)
-        spectrum *= forward(second)
-        spectrum += np.conj(spectrum)
-        spectrum -= 2.0 * (w_hat.real**2 + w_hat.imag**2)
-        del w_hat
-        moment_2 = inverse(spectrum)
-        del spectrum
-        error_1 = 2.0 * rounding(count, first)
-        error_2 = 2.0 * rounding(count, second) + 2.0 * rounding(first, first)
-        out.append(OffsetMoments(moment_1, moment_2, error_1, error_2))
-    return out
 
 
 def check_statistic(statistic: str, pointer: str = "/statistic") -> None:

@@ -130,8 +130,8 @@ class GridReport:
                 bound_rule="pairs the grid puts in another map cell than the exact path lie in lag vectors whose "
                 "rectangle of the samples' measured offset spread within grid cells crosses a map cell edge; "
                 "error_bound is the widest change of the cell value over every share of those lag vectors' pairs, "
-                "each share at its lag vector's mean; pair_bound is the largest number of those pairs that can cross, "
-                "capped by Cantelli's inequality on the pairs' offset differences (a strict bound on the count)",
+                "each share at its lag vector's mean; pair_bound is the number of those pairs (a strict bound on the "
+                "count)",
             )
         elif self.source == "binned":
             out.update(
@@ -155,7 +155,6 @@ class _Grid:
     source: str
     within: tuple[float, float, float]  # within-cell pairs, their sum of Delta^2 / 2, their sum of z_a z_b
     spread: tuple[float, float] = (0.0, 0.0)  # largest |u_head - u_tail| along x, y (binned grids; coordinate units)
-    margin: float = 0.0  # the rounding margin within spread
 
 
 def raster_nodes(raster: Raster) -> _Grid:
@@ -176,9 +175,8 @@ def raster_nodes(raster: Raster) -> _Grid:
 
 def offset_spread(
     coords: np.ndarray, low: tuple[float, float], cell: float, shape: tuple[int, int]
-) -> tuple[tuple[float, float], float]:
-    """Largest difference |u_head - u_tail| of two samples' offsets within their cells along x and y,
-    and the rounding margin it includes.
+) -> tuple[float, float]:
+    """Largest difference |u_head - u_tail| of two samples' offsets within their cells along x and y.
 
     Each offset u is measured from its cell's lower-left corner
     (:func:`~lagwise.core.variography.binning.offset_range`); the difference of two lies within
@@ -191,7 +189,7 @@ def offset_spread(
     ux_lo, ux_hi, uy_lo, uy_hi = offset_range(coords, low[0], low[1], cell, nx, ny)
     extent = max(nx, ny) * cell + max(abs(low[0]), abs(low[1]))
     margin = 1e-9 * cell + 64.0 * float(np.finfo(np.float64).eps) * extent
-    return (float(ux_hi - ux_lo) + margin, float(uy_hi - uy_lo) + margin), margin
+    return float(ux_hi - ux_lo) + margin, float(uy_hi - uy_lo) + margin
 
 
 def binned_nodes(coords: np.ndarray, values: np.ndarray, cell: float, summary: Summary) -> _Grid:
@@ -202,7 +200,7 @@ def binned_nodes(coords: np.ndarray, values: np.ndarray, cell: float, summary: S
     ny = int((y_hi - y_lo) // cell) + 1
     coords = np.ascontiguousarray(coords)
     count, total, squares = bin_on_cells(coords, np.ascontiguousarray(values), low[0], low[1], cell, nx, ny, mean)
-    spread, margin = offset_spread(coords, low, cell, (ny, nx))
+    spread = offset_spread(coords, low, cell, (ny, nx))
     pairs = float(np.sum(count * (count - 1.0)) / 2.0)
     half_square = float(np.sum(count * squares - total * total)) / 2.0
     # sum over a < b in a cell of z_a z_b, z = centred + mean.
@@ -215,7 +213,7 @@ def binned_nodes(coords: np.ndarray, values: np.ndarray, cell: float, summary: S
         mean,
         max(abs(summary.minimum), abs(summary.maximum)),
     )
-    return _Grid(nodes, (float(low[0]), float(low[1])), "binned", (pairs, half_square, raw), spread, margin)
+    return _Grid(nodes, (float(low[0]), float(low[1])), "binned", (pairs, half_square, raw), spread)
 
 
 def _reach(grid: _Grid, radius: float) -> tuple[int, int]:

@@ -259,8 +259,7 @@ class MapWork:
     pairs : int
         The exact map's pair work (:func:`exact_map_work`), 0 for the grid method.
     transforms : int
-        The grid method's real 2-D FFTs (forward and inverse, :func:`~lagwise.core.variography.fft.lag_sums`
-        and :func:`~lagwise.core.variography.fft.offset_moments`).
+        The grid method's real 2-D FFTs (forward and inverse, :func:`~lagwise.core.variography.fft.lag_sums`).
     points : int
         Points of each transform (the padded grid's rows x columns), 0 for the exact method.
     """
@@ -292,7 +291,7 @@ def map_work(samples: SampleSet, *, statistic: str, min_pairs: int, method: str,
     extent = [hi - lo for lo, hi in summary.extent.values()]
     shape, reach = grid_shape(extent, cell, (cells + 0.5) * cell_size)
     rows, columns = padded_shape(shape, reach)
-    return MapWork("grid", 0, transform_count(statistic != "semivariance", offsets=True), rows * columns)
+    return MapWork("grid", 0, transform_count(statistic != "semivariance"), rows * columns)
 
 
 def _exact_fits(samples: SampleSet, cell_size: float, cells: int, statistic: str, limits: Limits) -> bool:
