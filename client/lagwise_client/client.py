@@ -12,6 +12,7 @@ from urllib3.exceptions import ReadTimeoutError  # urllib3 is requests' own tran
 
 from . import columnar
 from .errors import LagwiseError, ResponseError, TransportError, ValidationError, error_for
+from .finite import non_finite_errors
 from .joint import Cokriging, CokrigingCrossValidation, JointFit, JointModel, variables_samples
 from .models import VariogramModel
 from .results import (
@@ -59,9 +60,15 @@ def _encode(body: Mapping[str, Any], request_id: str) -> bytes:
     try:
         return json.dumps(body, allow_nan=False, separators=(",", ":"), default=_plain).encode()
     except ValueError as exc:
-        raise ValidationError(
-            f"the request holds NaN or Infinity, which JSON cannot carry: {exc}", request_id=request_id
-        ) from None
+        errors = non_finite_errors(body)
+        where = ", ".join(e["pointer"] for e in errors[:3]) + (" ..." if len(errors) > 3 else "")
+        problem = {
+            "type": "/problems/invalid-input",
+            "title": "Invalid input",
+            "detail": f"the request holds NaN or Infinity, which JSON cannot carry: {where or exc}",
+            "errors": errors,
+        }
+        raise ValidationError(problem["detail"], problem=problem, request_id=request_id) from None
 
 
 def _model(model: VariogramModel | JointModel | Mapping[str, Any]) -> dict:
