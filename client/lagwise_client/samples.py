@@ -265,9 +265,13 @@ def raster_samples(grid: Any, origin: Any = (0.0, 0.0), spacing: Any = (1.0, 1.0
         ``{"raster": {"origin", "spacing", "shape": [nx, ny], "values"}}``, values x fastest,
         missing cells as None (JSON null).
     """
-    rows = [column(row) for row in column(grid)]
+    shape_message = "grid must be a non-empty rectangle of rows of equal length"
+    try:
+        rows = [column(row) for row in column(grid)]
+    except TypeError:  # a flat sequence or a scalar: its elements are not rows
+        raise TypeError(f"{shape_message} (a 2-D sequence, shape (ny, nx))") from None
     if not rows or any(len(row) != len(rows[0]) for row in rows):
-        raise TypeError("grid must be a non-empty rectangle of rows of equal length")
+        raise TypeError(shape_message)
     values = [None if v is None or (isinstance(v, float) and math.isnan(v)) else v for row in rows for v in row]
     return {
         "raster": {

@@ -174,6 +174,9 @@ def test_raster_samples_from_rows_with_missing_cells():
     }
     with pytest.raises(TypeError, match="rectangle"):
         raster_samples([[1.0, 2.0], [3.0]])
+    for flat in (np.arange(5.0), [1.0, 2.0], 3.0, []):
+        with pytest.raises(TypeError, match="non-empty rectangle"):
+            raster_samples(flat)
 
 
 def test_analyze_sends_the_variogram_map_stage(monkeypatch):
