@@ -9,15 +9,17 @@ from marshmallow import Schema, ValidationError
 
 from . import members, prescan
 from .columnar import MULTIPART_MEDIA_TYPE, read_samples, split_form
+from .fields import FURTHER_INVALID
 from .jsonio import MalformedJSON, parse, repeated_member
-from .problems import Problem
+from .problems import Problem, invalid_detail
 
 
 def _pointers(messages, prefix: str = "") -> list[dict]:
     """Flatten marshmallow's nested error messages into JSON Pointer entries.
 
     Elements a capped list did not check (``"_unchecked"``) become one entry at the list
-    with ``unchecked`` set to their number.
+    with ``unchecked`` set to their number; invalid elements counted but not listed
+    (:data:`~lagwise.api.fields.FURTHER_INVALID`) one with ``further`` set to theirs.
     """
     if isinstance(messages, dict):
         out = []
@@ -26,6 +28,9 @@ def _pointers(messages, prefix: str = "") -> list[dict]:
                 out.append(
                     {"pointer": prefix, "detail": f"{value} further elements were not checked", "unchecked": value}
                 )
+                continue
+            if key == FURTHER_INVALID:
+                out.append({"pointer": prefix, "detail": f"{value} further elements are invalid", "further": value})
                 continue
             where = prefix if key == "_schema" else f"{prefix}/{key}"
             out.extend(_pointers(value, where))
@@ -144,7 +149,9 @@ def _json_object(body: bytes, what: str) -> dict:
     repeated = repeated_member(body) if scanned.maybe_repeated else None
     if repeated is not None:
         detail = "names a member already given in its object (give each member once)"
-        raise Problem("invalid-input", f"{repeated or 'the body'}: {detail}", [{"pointer": repeated, "detail": detail}])
+        raise Problem(
+            "invalid-input", f"{repeated}: {detail}" if repeated else detail, [{"pointer": repeated, "detail": detail}]
+        )
     del body
     if not isinstance(document, dict):
         raise Problem(
@@ -209,11 +216,7 @@ def load_json(schema: Schema) -> dict:
     except ValidationError as exc:
         entries = _pointers(exc.messages)
         unchecked = sum(e.get("unchecked", 0) for e in entries)
-        errors = [e for e in entries if "unchecked" not in e]
-        detail = (
-            f"{errors[0]['pointer']}: {errors[0]['detail']}"
-            if len(errors) == 1 and not unchecked
-            else f"{len(errors)} fields are invalid"
-            + (f" and {unchecked} elements were not checked" if unchecked else "")
-        )
-        raise Problem("invalid-input", detail, errors, omitted=unchecked) from None
+        further = sum(e.get("further", 0) for e in entries)
+        errors = [e for e in entries if "unchecked" not in e and "further" not in e]
+        detail = invalid_detail(errors, len(errors) + further, unchecked)
+        raise Problem("invalid-input", detail, errors, omitted=unchecked + further) from None

@@ -31,7 +31,7 @@ from werkzeug.http import parse_options_header
 
 from ..core.data.identifiers import CompactIds, IntegerIds, TextIds
 from ..core.errors import FieldIssue, InvalidInput, LimitExceeded
-from .fields import pointer_token
+from .fields import MISSING, pointer_token
 from .jsonio import dumps
 from .problems import Problem
 
@@ -265,12 +265,15 @@ def _column(name: str, column: pa.ChunkedArray):
                     [
                         FieldIssue(_pointer(name, int(i)), "not a finite number (null marks not measured)")
                         for i in nan[:MAX_LISTED]
-                    ]
+                    ],
+                    total=int(nan.size),
                 )
         return numbers.fill_null(np.nan).to_numpy()
     if column.null_count:
         missing = np.flatnonzero(~column.is_valid().to_numpy(zero_copy_only=False))
-        raise InvalidInput([FieldIssue(_pointer(name, int(i)), "missing (null)") for i in missing[:MAX_LISTED]])
+        raise InvalidInput(
+            [FieldIssue(_pointer(name, int(i)), MISSING) for i in missing[:MAX_LISTED]], total=int(missing.size)
+        )
     if name in NUMBER_COLUMNS:
         return column.cast(pa.float64(), safe=False).to_numpy()
     if prefix == "censored":

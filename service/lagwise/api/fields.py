@@ -13,32 +13,62 @@ from ..core.data.identifiers import CompactIds
 
 NUMBER_TYPES = (int, float)
 MAX_ELEMENT_ERRORS = 20
+# The key under which an array's error messages count its invalid elements past the first MAX_ELEMENT_ERRORS.
+FURTHER_INVALID = "_further_invalid"
 MAX_FAMILIES = 32
 # Array numbers stay below this magnitude, so that squares and sums of squares are finite doubles.
 MAX_MAGNITUDE = 1e150
 
 
+NOT_FINITE = "not a finite number (overflows to infinity)"
+# An element that is JSON null where a number is required; an Arrow column's null gets the same words.
+MISSING = "missing (null)"
+
+
 def _element_error(value) -> str | None:
+    if value is None:
+        return MISSING
     if type(value) not in NUMBER_TYPES:
         return "not a number"
     try:
         if not math.isfinite(float(value)):
-            return "not a finite number (overflows to infinity)"
+            return NOT_FINITE
     except OverflowError:
-        return "not a finite number (overflows to infinity)"
+        return NOT_FINITE
     if abs(value) > MAX_MAGNITUDE:
         return f"magnitude above {MAX_MAGNITUDE:g}"
     return None
 
 
 def _array_errors(array: np.ndarray) -> dict:
-    """Per-index messages for a float64 array's elements that are not finite or too large (at most 20)."""
+    """Per-index messages for a float64 array's elements that are not finite or too large (the first 20),
+    with the number of further ones under :data:`FURTHER_INVALID`."""
     with np.errstate(invalid="ignore"):
         bad = np.flatnonzero(~(np.abs(array) <= MAX_MAGNITUDE))
-    return {
+    errors: dict = {
         int(i): ["not a finite number" if not math.isfinite(array[i]) else f"magnitude above {MAX_MAGNITUDE:g}"]
         for i in bad[:MAX_ELEMENT_ERRORS]
     }
+    if bad.size > MAX_ELEMENT_ERRORS:
+        errors[FURTHER_INVALID] = int(bad.size - MAX_ELEMENT_ERRORS)
+    return errors
+
+
+def _list_errors(value: list, message_for: Callable[[Any], str | None]) -> dict:
+    """Per-index messages for a JSON array's invalid elements (the first 20), with the number of
+    further ones under :data:`FURTHER_INVALID` (counted without building their messages)."""
+    errors: dict = {}
+    further = 0
+    for index, element in enumerate(value):
+        message = message_for(element)
+        if message:
+            if len(errors) < MAX_ELEMENT_ERRORS:
+                errors[index] = [message]
+            else:
+                further += 1
+    if further:
+        errors[FURTHER_INVALID] = further
+    return errors
 
 
 def json_kind(value) -> str:
@@ -57,7 +87,9 @@ def json_kind(value) -> str:
 
 
 class StrictFloat(fields.Float):
-    """A JSON number, never a string or boolean (marshmallow's Float would take ``"12"``)."""
+    """A JSON number, never a string or boolean (marshmallow's Float would take ``"12"``), and finite."""
+
+    default_error_messages = {"special": NOT_FINITE}
 
     def _deserialize(self, value, attr, data, **kwargs):
         if type(value) not in NUMBER_TYPES:
@@ -91,8 +123,8 @@ class NumberArray(fields.Field):
     """A JSON array of finite numbers (magnitude at most :data:`MAX_MAGNITUDE`), deserialised to float64.
 
     A float64 numpy array (a column of an Arrow stream, see :mod:`lagwise.api.columnar`)
-    is checked by the same rules. Errors name each offending index (at most 20), e.g.
-    ``{17: ["not a number"]}``.
+    is checked by the same rules. Errors name each offending index (the first 20), e.g.
+    ``{17: ["not a number"]}``, and count the further ones under :data:`FURTHER_INVALID`.
     """
 
     def _deserialize(self, value, attr, data, **kwargs):
@@ -112,14 +144,7 @@ class NumberArray(fields.Field):
                     return array
             except OverflowError:
                 pass
-        errors = {}
-        for index, element in enumerate(value):
-            message = _element_error(element)
-            if message:
-                errors[index] = [message]
-                if len(errors) == 20:
-                    break
-        raise ValidationError(errors)
+        raise ValidationError(_list_errors(value, _element_error))
 
     def _serialize(self, value, attr, obj, **kwargs):
         return None if value is None else [float(v) for v in value]
@@ -128,7 +153,8 @@ class NumberArray(fields.Field):
 class NullableNumberArray(fields.Field):
     """A JSON array of finite numbers or ``null`` (not measured), deserialised to float64 with NaN for null.
 
-    Numbers obey the rules of :class:`NumberArray`; errors name each offending index (at most 20).
+    Numbers obey the rules of :class:`NumberArray`; errors name each offending index (the first 20)
+    and count the further ones.
     """
 
     def _deserialize(self, value, attr, data, **kwargs):
@@ -150,13 +176,7 @@ class NullableNumberArray(fields.Field):
                     return array
             except OverflowError:
                 pass
-        errors = {}
-        for index, element in enumerate(value):
-            message = None if element is None else _element_error(element)
-            if message:
-                errors[index] = [message]
-                if len(errors) == MAX_ELEMENT_ERRORS:
-                    break
+        errors = _list_errors(value, lambda element: None if element is None else _element_error(element))
         if errors:
             raise ValidationError(errors)
         return np.array([np.nan if v is None else v for v in value], dtype=np.float64)

@@ -125,12 +125,32 @@ def problem_response(problem: Problem) -> Response:
     return Response(dumps(document), status=kind.status, mimetype=PROBLEM_MEDIA_TYPE, headers=problem.headers)
 
 
+def invalid_detail(errors: list[dict], total: int | None = None, unchecked: int = 0) -> str:
+    """The ``detail`` of an invalid-input problem listing ``errors`` (pointer and detail each).
+
+    ``total`` counts every invalid field (default: those listed); ``unchecked`` elements were not
+    checked, so the count is then a lower bound. One field names itself (without a pointer when it
+    is the document root); more give their number and how many are listed.
+    """
+    total = max(total or 0, len(errors))
+    listed = min(len(errors), MAX_LISTED_ERRORS)
+    if total == 1 and not unchecked:
+        pointer, text = errors[0]["pointer"], errors[0]["detail"]
+        return f"{pointer}: {text}" if pointer else text
+    count = f"at least {total}" if unchecked else str(total)
+    out = f"{count} fields are invalid"
+    if listed < total or unchecked:
+        out += f" (the first {listed} listed)"
+    if unchecked:
+        out += f"; {unchecked} further elements were not checked"
+    return out
+
+
 def from_invalid_input(exc: InvalidInput) -> Problem:
     """Map the core's :class:`InvalidInput` to an ``invalid-input`` problem."""
     errors = [{"pointer": i.pointer, "detail": i.detail} for i in exc.issues]
-    count = len(errors)
-    detail = errors[0]["pointer"] + ": " + errors[0]["detail"] if count == 1 else f"{count} fields are invalid"
-    return Problem("invalid-input", detail, errors)
+    omitted = max(0, exc.total - len(errors))
+    return Problem("invalid-input", invalid_detail(errors, exc.total), errors, omitted=omitted)
 
 
 def from_limit(exc: LimitExceeded) -> Problem:

@@ -1894,8 +1894,9 @@ class ProblemSchema(Schema):
     )
     errors_omitted = StrictInteger(
         metadata={
-            "description": "Further problems not listed in errors: entries past the first 100, and list elements "
-            "left unchecked after the first 20 bad ones of a list."
+            "description": "Further problems not listed in errors: entries past the first 100, invalid elements "
+            "of an array past the first 20 listed, and list elements left unchecked after the first 20 bad ones "
+            "of a list."
         }
     )
     limit = fields.String(metadata={"description": "limit-exceeded: the LAGWISE_* variable that sets the limit."})

@@ -38,11 +38,16 @@ class LagwiseCoreError(Exception):
 
 
 class InvalidInput(LagwiseCoreError):
-    """Input that cannot be computed; carries one :class:`FieldIssue` per problem."""
+    """Input that cannot be computed; carries one :class:`FieldIssue` per problem listed.
 
-    def __init__(self, issues: list[FieldIssue] | FieldIssue, summary: str | None = None):
+    ``total`` counts every invalid field when only the first few are listed in ``issues``
+    (e.g. 150,000 bad values, 20 listed); it defaults to the number listed.
+    """
+
+    def __init__(self, issues: list[FieldIssue] | FieldIssue, summary: str | None = None, total: int | None = None):
         self.issues = [issues] if isinstance(issues, FieldIssue) else list(issues)
         self.summary = summary or self.issues[0].detail
+        self.total = max(total or 0, len(self.issues))
         super().__init__(self.summary)
 
     @classmethod
@@ -53,7 +58,9 @@ class InvalidInput(LagwiseCoreError):
     def under(self, base: str) -> InvalidInput:
         """The same error with every pointer moved under ``base`` (e.g. ``/fit``)."""
         moved = type(self).__new__(type(self))
-        InvalidInput.__init__(moved, [replace(i, pointer=base + i.pointer) for i in self.issues], self.summary)
+        InvalidInput.__init__(
+            moved, [replace(i, pointer=base + i.pointer) for i in self.issues], self.summary, self.total
+        )
         return moved
 
 
