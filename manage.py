@@ -89,6 +89,14 @@ def run() -> int:
     return 0
 
 
+def _parallel() -> list[str]:
+    """pytest-xdist options: two test processes where there are two cores (one process left the
+    second core mostly idle: pip installs, numba compiling, most tests run on one thread); a module's
+    tests stay in one process, so each module-scoped service starts once."""
+    processes = min(2, os.cpu_count() or 1)
+    return ["-n", str(processes), "--dist", "loadscope"] if processes > 1 else []
+
+
 def pytest(*args: str) -> int:
     ensure_environment()
     return subprocess.run([str(PYTHON), "-m", "pytest", *args], cwd=ROOT).returncode
@@ -101,7 +109,7 @@ def main(argv: list[str]) -> int:
         return run()
     if command == "test":
         # --durations: every CI log names the slowest tests, so a creeping suite is seen early.
-        return pytest("-q", "--durations=15", *rest)
+        return pytest("-q", "--durations=15", *_parallel(), *rest)
     if command == "test-slow":
         return pytest("-q", "--durations=15", "-m", "slow", *rest)
     if command == "bench":

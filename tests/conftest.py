@@ -30,6 +30,20 @@ def _one_blas_thread():
         yield
 
 
+def pytest_sessionfinish(session):
+    """In a pytest-xdist worker: hand this process's contract tally to the controller."""
+    output = getattr(session.config, "workeroutput", None)
+    if output is not None:
+        output["contract_tally"] = dict(TALLY)
+
+
+@pytest.hookimpl(optionalhook=True)
+def pytest_testnodedown(node, error):
+    """In the pytest-xdist controller: add a finished worker's contract tally to the session's."""
+    for key, count in getattr(node, "workeroutput", {}).get("contract_tally", {}).items():
+        TALLY[key] += count
+
+
 def pytest_terminal_summary(terminalreporter):
     if TALLY["checked"]:
         terminalreporter.write_line(

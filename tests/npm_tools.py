@@ -6,6 +6,7 @@ Tests that need them skip with a message when npm (or node) is absent. The folde
 
 from __future__ import annotations
 
+import fcntl
 import hashlib
 import os
 import shutil
@@ -26,17 +27,20 @@ def tools_folder() -> Path:
     default = Path.home() / ".cache" / "lagwise" / f"npm-{digest}"
     folder = Path(os.environ.get("LAGWISE_NPM_CACHE", default))
     stamp = folder / ".installed"
-    if not stamp.exists():
-        folder.mkdir(parents=True, exist_ok=True)
-        shutil.copy(PACKAGE_JSON, folder / "package.json")
-        subprocess.run(
-            ["npm", "install", "--no-audit", "--no-fund", "--loglevel=error"],
-            cwd=folder,
-            check=True,
-            timeout=900,
-            env={**os.environ, **QUIET},
-        )
-        stamp.write_text(digest)
+    folder.mkdir(parents=True, exist_ok=True)
+    # One installer at a time: parallel test processes (pytest-xdist) may ask at once.
+    with open(folder.with_name(folder.name + ".lock"), "w") as lock:
+        fcntl.flock(lock, fcntl.LOCK_EX)
+        if not stamp.exists():
+            shutil.copy(PACKAGE_JSON, folder / "package.json")
+            subprocess.run(
+                ["npm", "install", "--no-audit", "--no-fund", "--loglevel=error"],
+                cwd=folder,
+                check=True,
+                timeout=900,
+                env={**os.environ, **QUIET},
+            )
+            stamp.write_text(digest)
     return folder
 
 
