@@ -95,3 +95,46 @@ def test_an_option_that_overflows_has_the_samples_wording(client):
 def test_a_null_value_has_the_arrow_wording(client):
     problem = client.post(VARIOGRAMS, json={"samples": {"x": [0, 1, 2], "values": [1, None, 3]}}).get_json()
     assert problem["errors"] == [{"pointer": "/samples/values/1", "detail": "missing (null)"}]
+
+
+BODY = '{"samples":{"x":[0,1,2],"values":[1,2,3]}}'
+
+
+def test_json_declared_in_another_charset_is_refused(client):
+    body = '{"samples":{"x":[0,1,2],"values":[1,2,3]},"variable":{"name":"Blei ü"}}'.encode("latin-1")
+    response = client.post(VARIOGRAMS, data=body, content_type="application/json; charset=latin-1")
+    assert response.status_code == 415
+    problem = response.get_json()
+    assert problem["type"] == "/problems/unsupported-media-type"
+    assert "charset latin-1" in problem["detail"] and "UTF-8" in problem["detail"]
+
+
+def test_json_in_utf8_is_taken_with_or_without_its_charset(client):
+    for content_type in ("application/json", "application/json; charset=utf-8", "application/json; charset=UTF-8"):
+        response = client.post(VARIOGRAMS, data=BODY.encode(), content_type=content_type)
+        assert response.status_code == 200, content_type
+
+
+def _arrow_samples() -> bytes:
+    table = pa.table({"x": [0.0, 1.0, 2.0], "values": [1.0, 2.0, 3.0]})
+    sink = io.BytesIO()
+    with pa.ipc.new_stream(sink, table.schema) as writer:
+        writer.write_table(table)
+    return sink.getvalue()
+
+
+def test_a_request_part_declared_in_another_charset_is_refused(client):
+    def post(part_type):
+        return client.post(
+            VARIOGRAMS,
+            data={
+                "request": (io.BytesIO(b"{}"), "r.json", part_type),
+                "samples": (io.BytesIO(_arrow_samples()), "s.arrow", ARROW),
+            },
+            content_type="multipart/form-data",
+        )
+
+    refused = post("application/json; charset=iso-8859-1")
+    assert refused.status_code == 415
+    assert "the request part is declared as charset iso-8859-1" in refused.get_json()["detail"]
+    assert post("application/json; charset=utf-8").status_code == 200

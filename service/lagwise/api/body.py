@@ -8,7 +8,7 @@ from flask import current_app, g, request
 from marshmallow import Schema, ValidationError
 
 from . import members, prescan
-from .columnar import MULTIPART_MEDIA_TYPE, read_samples, split_form
+from .columnar import MULTIPART_MEDIA_TYPE, read_samples, refuse_charset, split_form
 from .fields import FURTHER_INVALID
 from .jsonio import MalformedJSON, parse, repeated_member
 from .problems import Problem, invalid_detail
@@ -194,7 +194,7 @@ def load_json(schema: Schema) -> dict:
     Raises
     ------
     Problem
-        415 for another media type, 400 for malformed JSON or multipart, 422 for invalid
+        415 for another media type or a charset other than UTF-8, 400 for malformed JSON or multipart, 422 for invalid
         fields; 413 before a body over its limit is read.
     LimitExceeded
         For more values or samples than the limits allow, counted before the body is
@@ -209,6 +209,7 @@ def load_json(schema: Schema) -> dict:
             f"expected Content-Type application/json (or multipart/form-data with Arrow samples), got {mimetype or 'none'}",
         )
     else:
+        refuse_charset(request.mimetype_params.get("charset"), "the body")
         document = _json_object(read_body(), "the body")
         prescan.check_parsed(document, current_app.extensions["lagwise"].limits)
     try:

@@ -50,8 +50,23 @@ COLUMNS = (*NUMBER_COLUMNS, "ids", "censored", "detection_limits")
 MAX_LISTED = 20
 
 
-def _parts(body: bytes, boundary: bytes) -> dict[str, tuple[str, memoryview]]:
-    """Name -> (media type, content) of each part of a multipart/form-data body (RFC 7578).
+def refuse_charset(charset: str | None, what: str) -> None:
+    """Refuse JSON declared in a charset other than UTF-8 (RFC 8259 §8.1: JSON is UTF-8); none is fine.
+
+    Raises
+    ------
+    Problem
+        415 ``unsupported-media-type`` naming the accepted charset.
+    """
+    if charset is not None and charset.strip().lower() != "utf-8":
+        raise Problem(
+            "unsupported-media-type",
+            f"{what} is declared as charset {charset}; JSON is read as UTF-8 only (charset=utf-8, or no charset)",
+        )
+
+
+def _parts(body: bytes, boundary: bytes) -> dict[str, tuple[str, memoryview, str | None]]:
+    """Name -> (media type, content, charset or None) of each part of a multipart/form-data body (RFC 7578).
 
     Contents are views of ``body``: a part of hundreds of megabytes is not copied.
     """
@@ -60,7 +75,7 @@ def _parts(body: bytes, boundary: bytes) -> dict[str, tuple[str, memoryview]]:
     position = body.find(delimiter)
     if position < 0:
         raise Problem("malformed-request", "The multipart body holds no boundary delimiter.")
-    parts: dict[str, tuple[str, memoryview]] = {}
+    parts: dict[str, tuple[str, memoryview, str | None]] = {}
     position += len(delimiter)
     while body[position : position + 2] != b"--":
         if body[position : position + 2] != b"\r\n" or len(parts) == MAX_PARTS:
@@ -74,14 +89,14 @@ def _parts(body: bytes, boundary: bytes) -> dict[str, tuple[str, memoryview]]:
             name, _, value = line.partition(":")
             headers[name.strip().lower()] = value.strip()
         _, disposition = parse_options_header(headers.get("content-disposition", ""))
-        media_type, _ = parse_options_header(headers.get("content-type", "text/plain"))
+        media_type, type_options = parse_options_header(headers.get("content-type", "text/plain"))
         name = disposition.get("name", "")
         if name in parts:
             raise InvalidInput.at(
                 "/samples" if name == "samples" else "",
                 f"the multipart form has more than one {name or 'unnamed'} part; send each part once",
             )
-        parts[name] = (media_type, view[head_end + 4 : close])
+        parts[name] = (media_type, view[head_end + 4 : close], type_options.get("charset"))
         position = close + 2 + len(delimiter)
     return parts
 
@@ -94,7 +109,7 @@ def split_form(body: bytes, content_type: str) -> tuple[memoryview, memoryview]:
     Problem
         400 ``malformed-request`` when the body is not multipart/form-data with a boundary,
         422 ``invalid-input`` naming a missing, repeated or unknown part, 415 for a samples part
-        of another type.
+        of another type or a request part declared in a charset other than UTF-8.
     """
     _, options = parse_options_header(content_type)
     boundary = options.get("boundary")
@@ -110,6 +125,7 @@ def split_form(body: bytes, content_type: str) -> tuple[memoryview, memoryview]:
         )
     if "request" not in parts:
         raise InvalidInput.at("", "the multipart form needs a request part (application/json: the options)")
+    refuse_charset(parts["request"][2], "the request part")
     if len(parts["request"][1]) > MAX_OPTIONS_BYTES:
         raise InvalidInput.at(
             "", f"the request part is over {MAX_OPTIONS_BYTES} bytes; the samples go in the samples part"
@@ -118,7 +134,7 @@ def split_form(body: bytes, content_type: str) -> tuple[memoryview, memoryview]:
         raise InvalidInput.at(
             "/samples", "the multipart form needs a samples part (application/vnd.apache.arrow.stream)"
         )
-    media_type, samples = parts["samples"]
+    media_type, samples, _ = parts["samples"]
     if media_type != ARROW_MEDIA_TYPE:
         raise Problem("unsupported-media-type", f"the samples part must be {ARROW_MEDIA_TYPE}, got {media_type}")
     return parts["request"][1], samples
