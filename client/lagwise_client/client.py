@@ -60,14 +60,18 @@ def _encode(body: Mapping[str, Any], request_id: str) -> bytes:
     try:
         return json.dumps(body, allow_nan=False, separators=(",", ":"), default=_plain).encode()
     except ValueError as exc:
-        errors = non_finite_errors(body)
-        where = ", ".join(e["pointer"] for e in errors[:3]) + (" ..." if len(errors) > 3 else "")
+        errors, total = non_finite_errors(body)
+        where = ", ".join(e["pointer"] for e in errors[:3]) + (", ..." if len(errors) > 3 else "")
+        if total > 1:
+            where = f"{total} values ({where})"
         problem = {
             "type": "/problems/invalid-input",
             "title": "Invalid input",
             "detail": f"the request holds NaN or Infinity, which JSON cannot carry: {where or exc}",
             "errors": errors,
         }
+        if total > len(errors):
+            problem["errors_omitted"] = total - len(errors)
         raise ValidationError(problem["detail"], problem=problem, request_id=request_id) from None
 
 

@@ -7,7 +7,7 @@ offending value by its JSON pointer (RFC 6901) into the body, as the service doe
 from __future__ import annotations
 
 import math
-from collections.abc import Iterator, Mapping
+from collections.abc import Mapping
 from typing import Any
 
 MAX_LISTED = 20  # as many as the service lists for one sample member
@@ -18,47 +18,56 @@ def _token(key: Any) -> str:
     return str(key).replace("~", "~0").replace("/", "~1")
 
 
-def _array_pointers(array: Any, pointer: str) -> Iterator[str] | None:
-    """Pointers of the non-finite elements of a numeric numpy array (vectorised), or None when
-    ``array`` is not one (object arrays and other sequences are walked element by element)."""
-    kind = getattr(getattr(array, "dtype", None), "kind", None)
-    if kind in ("b", "i", "u"):
-        return iter(())
-    if kind not in ("f", "c") or not hasattr(array, "shape"):
-        return None
-    import numpy as np  # only reached with a numpy array in hand
+class _Walk:
+    """The pointers of the first ``limit`` non-finite numbers of a document, and their total."""
 
-    bad = np.argwhere(~np.isfinite(np.asarray(array)))[:MAX_LISTED]
-    return (pointer + "".join(f"/{int(i)}" for i in index) for index in bad)
+    def __init__(self, limit: int):
+        self.limit = limit
+        self.pointers: list[str] = []
+        self.total = 0
+
+    def add(self, pointer: str) -> None:
+        self.total += 1
+        if len(self.pointers) < self.limit:
+            self.pointers.append(pointer)
+
+    def array(self, array: Any, pointer: str) -> bool:
+        """Walk a numeric numpy array (vectorised); False when ``array`` is not one (object
+        arrays and other sequences are walked element by element)."""
+        kind = getattr(getattr(array, "dtype", None), "kind", None)
+        if kind in ("b", "i", "u"):
+            return True
+        if kind not in ("f", "c") or not hasattr(array, "shape"):
+            return False
+        import numpy as np  # only reached with a numpy array in hand
+
+        bad = ~np.isfinite(np.asarray(array))
+        room = self.limit - len(self.pointers)
+        self.pointers += [pointer + "".join(f"/{int(i)}" for i in index) for index in np.argwhere(bad)[:room]]
+        self.total += int(np.count_nonzero(bad))
+        return True
+
+    def value(self, value: Any, pointer: str) -> None:
+        if isinstance(value, float):
+            if not math.isfinite(value):
+                self.add(pointer)
+        elif isinstance(value, str | bytes | bool | int) or value is None:
+            return
+        elif isinstance(value, Mapping):
+            for key, member in value.items():
+                self.value(member, f"{pointer}/{_token(key)}")
+        elif self.array(value, pointer):
+            return
+        elif hasattr(value, "to_numpy"):  # a pandas Series
+            self.value(value.to_numpy(), pointer)
+        elif hasattr(value, "tolist"):  # an object array or a numpy scalar
+            self.value(value.tolist(), pointer)
+        elif isinstance(value, list | tuple):
+            for i, element in enumerate(value):
+                self.value(element, f"{pointer}/{i}")
 
 
-def _pointers(value: Any, pointer: str) -> Iterator[str]:
-    if isinstance(value, float):
-        if not math.isfinite(value):
-            yield pointer
-        return
-    if isinstance(value, str | bytes | bool | int) or value is None:
-        return
-    if isinstance(value, Mapping):
-        for key, member in value.items():
-            yield from _pointers(member, f"{pointer}/{_token(key)}")
-        return
-    from_array = _array_pointers(value, pointer)
-    if from_array is not None:
-        yield from from_array
-        return
-    if hasattr(value, "to_numpy"):  # a pandas Series
-        yield from _pointers(value.to_numpy(), pointer)
-        return
-    if hasattr(value, "tolist"):  # an object array or a numpy scalar
-        yield from _pointers(value.tolist(), pointer)
-        return
-    if isinstance(value, list | tuple):
-        for i, element in enumerate(value):
-            yield from _pointers(element, f"{pointer}/{i}")
-
-
-def non_finite_errors(body: Any, limit: int = MAX_LISTED) -> list[dict]:
+def non_finite_errors(body: Any, limit: int = MAX_LISTED) -> tuple[list[dict], int]:
     """``{"pointer", "detail"}`` for the first ``limit`` NaN or Infinity values of ``body``.
 
     Parameters
@@ -70,12 +79,11 @@ def non_finite_errors(body: Any, limit: int = MAX_LISTED) -> list[dict]:
 
     Returns
     -------
-    list of dict
+    errors : list of dict
         Pointers from the body's root (``/samples/values/1``); empty when every number is finite.
+    total : int
+        How many values are not finite, listed or not.
     """
-    errors = []
-    for pointer in _pointers(body, ""):
-        errors.append({"pointer": pointer, "detail": DETAIL})
-        if len(errors) >= limit:
-            break
-    return errors
+    walk = _Walk(limit)
+    walk.value(body, "")
+    return [{"pointer": p, "detail": DETAIL} for p in walk.pointers], walk.total

@@ -30,9 +30,17 @@ def test_infinity_in_list_coordinates_and_nan_nugget():
     assert [e["pointer"] for e in caught.value.errors] == ["/model/nugget"]
 
 
-def test_listing_stops_at_twenty_and_escapes_keys():
-    errors = non_finite_errors({"a/b": np.full((3, 10), np.nan), "c": [1, 2]})
-    assert len(errors) == 20
+def test_listing_stops_at_twenty_counts_the_rest_and_escapes_keys():
+    errors, total = non_finite_errors({"a/b": np.full((3, 10), np.nan), "c": [1, float("nan")]})
+    assert len(errors) == 20 and total == 31
     assert errors[0]["pointer"] == "/a~1b/0/0" and errors[10]["pointer"] == "/a~1b/1/0"
-    assert non_finite_errors({"n": np.arange(5), "v": np.float64(3.0), "s": "nan"}) == []
-    assert non_finite_errors({"v": np.float64(np.inf)}) == [{"pointer": "/v", "detail": "not a finite number"}]
+    assert non_finite_errors({"n": np.arange(5), "v": np.float64(3.0), "s": "nan"}) == ([], 0)
+    assert non_finite_errors({"v": np.float64(np.inf)}) == ([{"pointer": "/v", "detail": "not a finite number"}], 1)
+
+
+def test_many_non_finite_values_counted_in_errors_omitted():
+    values = np.full(150_000, np.nan)
+    with pytest.raises(ValidationError) as caught:
+        Lagwise(OFFLINE, arrow_above=None).experimental_variogram(x=np.arange(150_000.0), values=values)
+    assert len(caught.value.errors) == 20 and caught.value.problem["errors_omitted"] == 149_980
+    assert "150000 values (/samples/values/0, /samples/values/1, /samples/values/2, ...)" in str(caught.value)
