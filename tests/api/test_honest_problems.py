@@ -138,3 +138,15 @@ def test_a_request_part_declared_in_another_charset_is_refused(client):
     assert refused.status_code == 415
     assert "the request part is declared as charset iso-8859-1" in refused.get_json()["detail"]
     assert post("application/json; charset=utf-8").status_code == 200
+
+
+def test_every_invalid_geojson_value_is_counted(client):
+    features = [
+        {"type": "Feature", "geometry": {"type": "Point", "coordinates": [i, 0]}, "properties": {"v": "n/a"}}
+        for i in range(60)
+    ]
+    body = {"samples": {"geojson": {"type": "FeatureCollection", "features": features}, "value_property": "v"}}
+    problem = client.post(VARIOGRAMS, json=body).get_json()
+    assert problem["detail"] == "60 fields are invalid (the first 20 listed)"
+    assert problem["errors"][19]["pointer"] == "/samples/geojson/features/19/properties/v"
+    assert problem["errors_omitted"] == 40

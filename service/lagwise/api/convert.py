@@ -111,6 +111,14 @@ def _feature_columns(collection, value_properties: list[str], id_property: str |
     for name in value_properties:
         columns.update({f"values/{name}": [], f"censored/{name}": [], f"limits/{name}": []})
     issues: list[FieldIssue] = []
+    bad = 0  # every invalid field; the first 20 are listed
+
+    def note(pointer: str, detail: str) -> None:
+        nonlocal bad
+        bad += 1
+        if len(issues) < 20:
+            issues.append(FieldIssue(pointer, detail))
+
     dims = set()
     for i, feature in enumerate(collection["features"]):
         geometry = feature.get("geometry") if isinstance(feature, dict) else None
@@ -121,40 +129,37 @@ def _feature_columns(collection, value_properties: list[str], id_property: str |
             or not isinstance(coordinates, list)
             or len(coordinates) not in (2, 3)
         ):
-            issues.append(FieldIssue(f"{FEATURES}/{i}/geometry", "must be a Point with 2 or 3 coordinates"))
+            note(f"{FEATURES}/{i}/geometry", "must be a Point with 2 or 3 coordinates")
             continue
         numbers = [_number(c) for c in coordinates]
-        issues.extend(
-            FieldIssue(f"{FEATURES}/{i}/geometry/coordinates/{a}", "not a finite number")
-            for a, c in enumerate(numbers)
-            if c is None
-        )
+        for a, c in enumerate(numbers):
+            if c is None:
+                note(f"{FEATURES}/{i}/geometry/coordinates/{a}", "not a finite number")
         properties = feature.get("properties") or {}
         if not isinstance(properties, dict):
             properties = {}
+        dims.add(len(coordinates))
         for name in value_properties:
             raw = properties.get(name)
             limit = _below_limit(raw)
             value = limit if limit is not None else _number(raw)
             if value is None and not (optional and raw is None):
-                issues.append(
-                    FieldIssue(f"{FEATURES}/{i}/properties/{pointer_token(name)}", "missing or not a finite number")
-                )
-            columns[f"values/{name}"].append(np.nan if value is None else value)
-            columns[f"censored/{name}"].append(limit is not None)
-            columns[f"limits/{name}"].append(limit if limit is not None else np.nan)
-        dims.add(len(coordinates))
-        if len(issues) >= 20:
-            break
+                note(f"{FEATURES}/{i}/properties/{pointer_token(name)}", "missing or not a finite number")
+            if not bad:
+                columns[f"values/{name}"].append(np.nan if value is None else value)
+                columns[f"censored/{name}"].append(limit is not None)
+                columns[f"limits/{name}"].append(limit if limit is not None else np.nan)
+        if bad:
+            continue  # the request is refused: its columns are not needed
         columns["x"].append(numbers[0])
         columns["y"].append(numbers[1])
         columns["z"].append(numbers[2] if len(numbers) == 3 else None)
         identifier = properties.get(id_property) if id_property else feature.get("id")
         columns["ids"].append(str(identifier) if identifier is not None else None)
     if len(dims) > 1:
-        issues.append(FieldIssue(FEATURES, "every Point must have the same number of coordinates (2 or 3)"))
+        note(FEATURES, "every Point must have the same number of coordinates (2 or 3)")
     if issues:
-        raise InvalidInput(issues[:20])
+        raise InvalidInput(issues, total=bad)
     columns["ids"] = _fill_ids(columns["ids"])
     return columns, dims == {3}
 
