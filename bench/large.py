@@ -58,6 +58,7 @@ Sections
 
 from __future__ import annotations
 
+import io
 import json
 import os
 import resource
@@ -476,9 +477,18 @@ def _pdist_case(n: int, kind: str) -> dict:
     return {"seconds": time.perf_counter() - start, "pairs": pairs}
 
 
-def _parsing_case(form: str) -> dict:
-    import io
+def _posted(app, body: bytes, content_type: str):
+    """A request context of ``body`` posted to the experimental-variogram path (parsed by the sections that time it)."""
+    return app.test_request_context(
+        "/v1/experimental-variograms",
+        method="POST",
+        input_stream=io.BytesIO(body),
+        content_type=content_type,
+        content_length=len(body),
+    )
 
+
+def _parsing_case(form: str) -> dict:
     import numpy as np
     import orjson
     import pyarrow as pa
@@ -517,13 +527,7 @@ def _parsing_case(form: str) -> dict:
     app = create_app({"TESTING": True}, settings=settings, warm=False)
     times, built = [], []
     for _ in range(3):
-        with app.test_request_context(
-            "/v1/experimental-variograms",
-            method="POST",
-            input_stream=io.BytesIO(body),
-            content_type=content_type,
-            content_length=len(body),
-        ):
+        with _posted(app, body, content_type):
             start = time.perf_counter()
             document = load_json(ExperimentalRequest())
             samples = document["samples"]
@@ -663,8 +667,6 @@ def _ids_body(n: int, kind: str, path: str) -> int:
 
 def _ids_case(path: str) -> dict:
     """Accept the request at ``path`` (body, multipart, Arrow, schema, sample set) twice; the best time."""
-    import io
-
     from lagwise.api import create_app
     from lagwise.api.body import load_json
     from lagwise.api.convert import sample_set
@@ -674,13 +676,7 @@ def _ids_case(path: str) -> dict:
     app = create_app({"TESTING": True}, warm=False)
     times, cpu, added = [], [], []
     for _ in range(2):
-        with app.test_request_context(
-            "/v1/experimental-variograms",
-            method="POST",
-            input_stream=io.BytesIO(body),
-            content_type=content_type,
-            content_length=len(body),
-        ):
+        with _posted(app, body, content_type):
             held = _reset_peak()
             start, start_cpu = time.perf_counter(), time.process_time()
             samples = sample_set(load_json(ExperimentalRequest()))
