@@ -64,15 +64,16 @@ def _encode(body: Mapping[str, Any], request_id: str) -> bytes:
         where = ", ".join(e["pointer"] for e in errors[:3]) + (", ..." if len(errors) > 3 else "")
         if total > 1:
             where = f"{total} values ({where})"
-        problem = {
+        detail = f"the request holds NaN or Infinity, which JSON cannot carry: {where or exc}"
+        problem: dict[str, Any] = {
             "type": "/problems/invalid-input",
             "title": "Invalid input",
-            "detail": f"the request holds NaN or Infinity, which JSON cannot carry: {where or exc}",
+            "detail": detail,
             "errors": errors,
         }
         if total > len(errors):
             problem["errors_omitted"] = total - len(errors)
-        raise ValidationError(problem["detail"], problem=problem, request_id=request_id) from None
+        raise ValidationError(detail, problem=problem, request_id=request_id) from None
 
 
 def _model(model: VariogramModel | JointModel | Mapping[str, Any]) -> dict:

@@ -2,7 +2,6 @@
 
 import numpy as np
 import pytest
-
 from lagwise_client import Lagwise
 from lagwise_client.errors import ValidationError
 from lagwise_client.finite import non_finite_errors
