@@ -569,6 +569,20 @@ def add_range(table, copy_rows, cols, i, lo, hi, max_d2, sectors, omni, four, di
     return zero_pairs
 
 
+@njit(cache=True, inline="always")
+def column_run(ys, starts, lowest, c2, xi, yi, max_d2, margin):
+    """The run of column ``c2`` that sample (xi, yi) visits in the column sweep: whether the column's
+    smallest x lies within the radius (the sweep stops at the first that does not), and the rows
+    [lo, hi) whose y lies within sqrt(radius^2 - gap^2 + margin) of yi (two binary searches)."""
+    gap = lowest[c2] - xi
+    if gap * gap > max_d2:
+        return False, 0, 0
+    s0 = starts[c2]
+    h = math.sqrt(max(max_d2 - gap * gap, 0.0) + margin)
+    run = ys[s0 : starts[c2 + 1]]
+    return True, s0 + np.searchsorted(run, yi - h, side="left"), s0 + np.searchsorted(run, yi + h, side="right")
+
+
 @njit(parallel=True, cache=True)
 def accumulate_horizontal(
     cols, column, starts, lowest, mean, max_d2, dirs, padded, lut, inv_cell, shared, origin, inv_step, mode, nthreads,
@@ -642,17 +656,11 @@ def accumulate_horizontal(
                     shared, origin, inv_step, kmax, mode, mean, scratch, marks,
                 )  # fmt: skip
                 for c2 in range(c + 1, ncol):
-                    gap = lowest[c2] - xi
-                    if gap * gap > max_d2:
+                    within_reach, lo, hi = column_run(ys, starts, lowest, c2, xi, yi, max_d2, margin)
+                    if not within_reach:
                         break
-                    s0 = starts[c2]
-                    s1 = starts[c2 + 1]
-                    if s1 == s0:
+                    if starts[c2 + 1] == starts[c2]:
                         continue
-                    h = math.sqrt(max(max_d2 - gap * gap, 0.0) + margin)
-                    run = ys[s0:s1]
-                    lo = s0 + np.searchsorted(run, yi - h, side="left")
-                    hi = s0 + np.searchsorted(run, yi + h, side="right")
                     zero_pairs += add_range(
                         table, copy_rows, cols, i, lo, hi, max_d2, sectors, omni, four, dirs, padded, lut, inv_cell,
                         shared, origin, inv_step, kmax, mode, mean, scratch, marks,
@@ -688,16 +696,12 @@ def column_candidates(cols, column, starts, lowest, max_d2, stride, run_work):
         yi = ys[i]
         count = np.searchsorted(ys[i + 1 : starts[c + 1]], yi + reach, side="right") + run_work
         for c2 in range(c + 1, ncol):
-            gap = lowest[c2] - xi
-            if gap * gap > max_d2:
+            within_reach, lo, hi = column_run(ys, starts, lowest, c2, xi, yi, max_d2, margin)
+            if not within_reach:
                 break
-            s0 = starts[c2]
-            s1 = starts[c2 + 1]
-            if s1 == s0:
+            if starts[c2 + 1] == starts[c2]:
                 continue
-            h = math.sqrt(max(max_d2 - gap * gap, 0.0) + margin)
-            run = ys[s0:s1]
-            count += np.searchsorted(run, yi + h, side="right") - np.searchsorted(run, yi - h, side="left") + run_work
+            count += hi - lo + run_work
         out[k] = count
     return out
 
