@@ -6,9 +6,12 @@ import json
 import tracemalloc
 
 import pytest
+from lagwise.api.fields import CappedList, StrictFloat
 from lagwise.api.problems import MAX_LISTED_ERRORS, Problem
+from marshmallow import ValidationError, fields
 
 SAMPLES = {"x": [0, 1, 2, 3], "y": [0, 1, 0, 1], "values": [1, 2, 3, 4]}
+VARIOGRAMS = "/v1/experimental-variograms"
 
 
 def _post(client, url, document):
@@ -49,12 +52,59 @@ def test_a_million_families_cost_little(client):
         ),
     ],
 )
-def test_element_errors_stop_early_with_a_count(client, url, document, pointer):
+def test_element_errors_list_twenty_and_count_all(client, url, document, pointer):
     r = _post(client, url, document)
     assert r.status_code == 422
     doc = r.json
     assert doc["errors"][0]["pointer"] == pointer and len(doc["errors"]) == 20
     assert doc["errors_omitted"] == 200_000 - 20
+    assert doc["detail"] == "200000 fields are invalid (the first 20 listed)"
+
+
+MODEL = {"nugget": 0.1, "structures": [{"family": "spherical", "partial_sill": 1, "range": 3}]}
+
+
+@pytest.mark.parametrize(
+    "url, document, column, bad, good",
+    [
+        (VARIOGRAMS, {"samples": SAMPLES}, "/samples/ids", 7, "s"),
+        (VARIOGRAMS, {"samples": SAMPLES}, "/samples/censored", "yes", False),
+        (VARIOGRAMS, {"samples": SAMPLES}, "/samples/detection_limits", "<1", 0.5),
+        pytest.param(VARIOGRAMS, {"samples": SAMPLES}, "/samples/detection_limits", 10**400, 1, id="huge-integer"),
+        (
+            "/v1/predictions",
+            {"samples": SAMPLES, "model": MODEL, "targets": {"x": [0.5], "y": [0.5]}},
+            "/return_weights",
+            "a",
+            0,
+        ),
+    ],
+)
+def test_every_invalid_list_element_is_counted_past_the_twentieth(client, url, document, column, bad, good):
+    # 1000 elements, every third invalid: 334 invalid, of which the first 20 are listed.
+    elements = [bad if i % 3 == 0 else good for i in range(1000)]
+    *parents, name = column.strip("/").split("/")
+    document = json.loads(json.dumps(document))
+    target = document
+    for parent in parents:
+        target = target[parent]
+    target[name] = elements
+    r = _post(client, url, document)
+    assert r.status_code == 422
+    doc = r.json
+    assert doc["detail"] == "334 fields are invalid (the first 20 listed)"
+    assert [e["pointer"] for e in doc["errors"]] == [f"{column}/{3 * i}" for i in range(20)]
+    assert doc["errors_omitted"] == 314
+
+
+def test_plain_lists_load_as_before():
+    field = CappedList(StrictFloat(allow_none=True, allow_nan=False))
+    loaded = field.deserialize([1, 2.5, None])
+    assert loaded == [1.0, 2.5, None] and type(loaded[0]) is float
+    assert CappedList(fields.String()).deserialize(["a", "b"]) == ["a", "b"]
+    with pytest.raises(ValidationError):
+        CappedList(fields.String()).deserialize([None])
+    assert CappedList(fields.String(allow_none=True)).deserialize([None]) == [None]
 
 
 def test_problem_lists_are_capped():

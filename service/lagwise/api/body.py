@@ -17,18 +17,12 @@ from .problems import Problem, invalid_detail
 def _pointers(messages, prefix: str = "") -> list[dict]:
     """Flatten marshmallow's nested error messages into JSON Pointer entries.
 
-    Elements a capped list did not check (``"_unchecked"``) become one entry at the list
-    with ``unchecked`` set to their number; invalid elements counted but not listed
-    (:data:`~lagwise.api.fields.FURTHER_INVALID`) one with ``further`` set to theirs.
+    Invalid elements of an array counted but not listed (:data:`~lagwise.api.fields.FURTHER_INVALID`)
+    become one entry at the array with ``further`` set to their number.
     """
     if isinstance(messages, dict):
         out = []
         for key, value in messages.items():
-            if key == "_unchecked":
-                out.append(
-                    {"pointer": prefix, "detail": f"{value} further elements were not checked", "unchecked": value}
-                )
-                continue
             if key == FURTHER_INVALID:
                 out.append({"pointer": prefix, "detail": f"{value} further elements are invalid", "further": value})
                 continue
@@ -216,8 +210,6 @@ def load_json(schema: Schema) -> dict:
         return schema.load(document)
     except ValidationError as exc:
         entries = _pointers(exc.messages)
-        unchecked = sum(e.get("unchecked", 0) for e in entries)
         further = sum(e.get("further", 0) for e in entries)
-        errors = [e for e in entries if "unchecked" not in e and "further" not in e]
-        detail = invalid_detail(errors, len(errors) + further, unchecked)
-        raise Problem("invalid-input", detail, errors, omitted=unchecked + further) from None
+        errors = [e for e in entries if "further" not in e]
+        raise Problem("invalid-input", invalid_detail(errors, len(errors) + further), errors, omitted=further) from None

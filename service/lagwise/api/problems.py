@@ -79,7 +79,7 @@ class Problem(Exception):
         ``{"pointer": ..., "detail": ...}`` per offending field; at most
         :data:`MAX_LISTED_ERRORS` are sent, and ``errors_omitted`` counts the rest.
     omitted : int
-        Further problems known but not in ``errors`` (e.g. list elements left unchecked).
+        Further problems known but not in ``errors`` (e.g. invalid array elements past the first 20).
     headers : dict, optional
         Response header fields that go with it (e.g. ``Allow`` for a 405).
     extra : dict, optional
@@ -125,24 +125,20 @@ def problem_response(problem: Problem) -> Response:
     return Response(dumps(document), status=kind.status, mimetype=PROBLEM_MEDIA_TYPE, headers=problem.headers)
 
 
-def invalid_detail(errors: list[dict], total: int | None = None, unchecked: int = 0) -> str:
+def invalid_detail(errors: list[dict], total: int | None = None) -> str:
     """The ``detail`` of an invalid-input problem listing ``errors`` (pointer and detail each).
 
-    ``total`` counts every invalid field (default: those listed); ``unchecked`` elements were not
-    checked, so the count is then a lower bound. One field names itself (without a pointer when it
-    is the document root); more give their number and how many are listed.
+    ``total`` counts every invalid field (default: those listed). One field names itself (without
+    a pointer when it is the document root); more give their number and how many are listed.
     """
     total = max(total or 0, len(errors))
     listed = min(len(errors), MAX_LISTED_ERRORS)
-    if total == 1 and not unchecked:
+    if total == 1:
         pointer, text = errors[0]["pointer"], errors[0]["detail"]
         return f"{pointer}: {text}" if pointer else text
-    count = f"at least {total}" if unchecked else str(total)
-    out = f"{count} fields are invalid"
-    if listed < total or unchecked:
+    out = f"{total} fields are invalid"
+    if listed < total:
         out += f" (the first {listed} listed)"
-    if unchecked:
-        out += f"; {unchecked} further elements were not checked"
     return out
 
 

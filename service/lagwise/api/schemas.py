@@ -1895,8 +1895,7 @@ class ProblemSchema(Schema):
     errors_omitted = StrictInteger(
         metadata={
             "description": "Further problems not listed in errors: entries past the first 100, invalid elements "
-            "of an array past the first 20 listed, and list elements left unchecked after the first 20 bad ones "
-            "of a list."
+            "of an array past the first 20 listed (every one is counted)."
         }
     )
     limit = fields.String(metadata={"description": "limit-exceeded: the LAGWISE_* variable that sets the limit."})
