@@ -12,7 +12,8 @@ from urllib3.exceptions import ReadTimeoutError  # urllib3 is requests' own tran
 
 from . import columnar
 from .errors import LagwiseError, ResponseError, TransportError, ValidationError, error_for
-from .finite import non_finite_errors
+from .finite import DETAIL as NON_FINITE
+from .finite import MAX_LISTED, non_finite_errors
 from .joint import Cokriging, CokrigingCrossValidation, JointFit, JointModel, variables_samples
 from .models import VariogramModel
 from .results import (
@@ -56,24 +57,45 @@ def _plain(value: Any) -> Any:
     raise TypeError(f"a {type(value).__name__} value cannot be sent as JSON")
 
 
+def _non_finite_refusal(
+    errors: list[dict], total: int, request_id: str, why: str, unnamed: str = ""
+) -> ValidationError:
+    """The refusal of a request holding ``total`` NaN or Infinity values, the first ``errors`` listed
+    (pointer and detail each), shaped as the service's invalid-input problem; ``why`` says who refuses
+    them, ``unnamed`` stands for the pointers when none is known."""
+    where = ", ".join(e["pointer"] for e in errors[:3]) + (", ..." if len(errors) > 3 else "")
+    if total > 1:
+        where = f"{total} values ({where})"
+    detail = f"the request holds NaN or Infinity, which {why}: {where or unnamed}"
+    problem: dict[str, Any] = {
+        "type": "/problems/invalid-input",
+        "title": "Invalid input",
+        "detail": detail,
+        "errors": errors,
+    }
+    if total > len(errors):
+        problem["errors_omitted"] = total - len(errors)
+    return ValidationError(detail, problem=problem, request_id=request_id)
+
+
 def _encode(body: Mapping[str, Any], request_id: str) -> bytes:
     try:
         return json.dumps(body, allow_nan=False, separators=(",", ":"), default=_plain).encode()
     except ValueError as exc:
         errors, total = non_finite_errors(body)
-        where = ", ".join(e["pointer"] for e in errors[:3]) + (", ..." if len(errors) > 3 else "")
-        if total > 1:
-            where = f"{total} values ({where})"
-        detail = f"the request holds NaN or Infinity, which JSON cannot carry: {where or exc}"
-        problem: dict[str, Any] = {
-            "type": "/problems/invalid-input",
-            "title": "Invalid input",
-            "detail": detail,
-            "errors": errors,
-        }
-        if total > len(errors):
-            problem["errors_omitted"] = total - len(errors)
-        raise ValidationError(detail, problem=problem, request_id=request_id) from None
+        raise _non_finite_refusal(errors, total, request_id, "JSON cannot carry", str(exc)) from None
+
+
+def _arrow_parts(body: Mapping[str, Any], table: Any, request_id: str) -> tuple[bytes, str]:
+    """The multipart body (options as JSON, the samples' Arrow ``table``) and its Content-Type, after
+    refusing NaN and Infinity in either part as :func:`_encode` does for a JSON body."""
+    options = {name: value for name, value in body.items() if name != "samples"}
+    pointers, total = columnar.non_finite(table, "/samples", MAX_LISTED)
+    errors = [{"pointer": p, "detail": NON_FINITE} for p in pointers]
+    more, more_total = non_finite_errors(options, MAX_LISTED - len(errors))
+    if total + more_total:
+        raise _non_finite_refusal(errors + more, total + more_total, request_id, "the service refuses")
+    return columnar.multipart_body(_encode(options, request_id), columnar.table_stream(table))
 
 
 def _model(model: VariogramModel | JointModel | Mapping[str, Any]) -> dict:
@@ -180,14 +202,14 @@ class Lagwise:
 
     # ---- the one request path ----------------------------------------------
 
-    def _arrow_samples(self, body: Mapping[str, Any]) -> bytes | None:
-        """The Arrow stream of the body's samples when they are to go as Arrow (see ``arrow_above``)."""
+    def _arrow_table(self, body: Mapping[str, Any]) -> Any:
+        """The Arrow table of the body's samples when they are to go as Arrow (see ``arrow_above``), else None."""
         samples = body.get("samples")
         if self.arrow_above is None or samples is None or not columnar.columnar(samples) or not columnar.available():
             return None
         if len(samples["values"]) < self.arrow_above:
             return None
-        return columnar.samples_stream(samples)
+        return columnar.samples_table(samples)
 
     def request(
         self, method: str, path: str, body: Mapping[str, Any] | None = None, *, arrow_answer: bool = False
@@ -203,10 +225,9 @@ class Lagwise:
         headers = {"X-Request-ID": request_id}
         data = None
         if body is not None:
-            stream = self._arrow_samples(body)
-            if stream is not None:
-                options = {name: value for name, value in body.items() if name != "samples"}
-                data, headers["Content-Type"] = columnar.multipart_body(_encode(options, request_id), stream)
+            table = self._arrow_table(body)
+            if table is not None:
+                data, headers["Content-Type"] = _arrow_parts(body, table, request_id)
             else:
                 data = _encode(body, request_id)
                 headers["Content-Type"] = "application/json"

@@ -33,20 +33,56 @@ def columnar(samples: Any) -> bool:
     return isinstance(samples, Mapping) and "values" in samples and set(samples) <= set(COLUMN_MEMBERS)
 
 
-def samples_stream(samples: Mapping[str, Any]) -> bytes | None:
-    """The Arrow IPC stream of columnar samples, or None when a column does not fit its Arrow type
-    (e.g. text among the numbers): such samples go as JSON, and the service names the bad entry."""
+def samples_table(samples: Mapping[str, Any]) -> Any:
+    """The Arrow table of columnar samples (a ``pyarrow.Table``), or None when a column does not fit
+    its Arrow type (e.g. text among the numbers): such samples go as JSON, and the service names the
+    bad entry."""
     import pyarrow as pa
 
     types = {name: pa.float64() for name in FLOAT_MEMBERS} | {"ids": pa.string(), "censored": pa.bool_()}
     try:
-        table = pa.table({name: pa.array(samples[name], type=types[name]) for name in samples})
+        return pa.table({name: pa.array(samples[name], type=types[name]) for name in samples})
     except (pa.ArrowException, TypeError, ValueError, OverflowError):
         return None
+
+
+def non_finite(table: Any, prefix: str, limit: int) -> tuple[list[str], int]:
+    """The JSON pointers (``<prefix>/<column>/<index>``) of the first ``limit`` NaN or Infinity values
+    of ``table``'s float columns, column by column as the samples member lists them, and their total
+    (null is not counted: it marks a missing value)."""
+    import pyarrow as pa
+    import pyarrow.compute as pc
+
+    pointers: list[str] = []
+    total = 0
+    for name in table.column_names:
+        column = table.column(name)
+        if not pa.types.is_floating(column.type):
+            continue
+        bad = pc.invert(pc.is_finite(column))
+        count = pc.sum(bad).as_py() or 0
+        if count and len(pointers) < limit:
+            indices = pc.indices_nonzero(bad).slice(0, limit - len(pointers)).to_pylist()
+            pointers += [f"{prefix}/{name}/{i}" for i in indices]
+        total += count
+    return pointers, total
+
+
+def table_stream(table: Any) -> bytes:
+    """The Arrow IPC stream of a table."""
+    import pyarrow as pa
+
     sink = pa.BufferOutputStream()
     with pa.ipc.new_stream(sink, table.schema) as writer:
         writer.write_table(table)
     return sink.getvalue().to_pybytes()
+
+
+def samples_stream(samples: Mapping[str, Any]) -> bytes | None:
+    """The Arrow IPC stream of columnar samples, or None when a column does not fit its Arrow type
+    (see :func:`samples_table`)."""
+    table = samples_table(samples)
+    return None if table is None else table_stream(table)
 
 
 def multipart_body(options: bytes, stream: bytes) -> tuple[bytes, str]:

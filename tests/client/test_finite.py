@@ -43,3 +43,44 @@ def test_many_non_finite_values_counted_in_errors_omitted():
         Lagwise(OFFLINE, arrow_above=None).experimental_variogram(x=np.arange(150_000.0), values=values)
     assert len(caught.value.errors) == 20 and caught.value.problem["errors_omitted"] == 149_980
     assert "150000 values (/samples/values/0, /samples/values/1, /samples/values/2, ...)" in str(caught.value)
+
+
+@pytest.mark.parametrize("force", [True, False])
+def test_the_arrow_form_refuses_nan_and_infinity_before_sending(force):
+    # Above arrow_above the samples go as an Arrow stream: the same refusal, the same pointers and count.
+    pytest.importorskip("pyarrow")
+    n = 30_000
+    values = np.ones(n)
+    values[[4, 7]] = np.nan
+    x = np.arange(float(n))
+    x[-1] = np.inf
+    client = Lagwise(OFFLINE, arrow_above=100) if force else Lagwise(OFFLINE)
+    with pytest.raises(ValidationError) as caught:
+        client.experimental_variogram(x=x, values=values, lags={"width": float("nan"), "count": 3})
+    pointers = ["/samples/x/29999", "/samples/values/4", "/samples/values/7", "/lags/width"]
+    assert sorted(e["pointer"] for e in caught.value.errors) == sorted(pointers)
+    assert all(e["detail"] == "not a finite number" for e in caught.value.errors)
+    assert caught.value.status is None and "4 values (" in str(caught.value)
+
+
+def test_the_arrow_form_lists_twenty_and_counts_every_one():
+    pytest.importorskip("pyarrow")
+    values = np.full(150_000, np.inf)
+    with pytest.raises(ValidationError) as caught:
+        Lagwise(OFFLINE, arrow_above=100).experimental_variogram(x=np.arange(150_000.0), values=values)
+    assert [e["pointer"] for e in caught.value.errors] == [f"/samples/values/{i}" for i in range(20)]
+    assert caught.value.problem["errors_omitted"] == 149_980
+    assert "150000 values (/samples/values/0, /samples/values/1, /samples/values/2, ...)" in str(caught.value)
+
+
+def test_missing_detection_limits_are_not_refused_in_the_arrow_form():
+    # None (null) marks a missing value, not a non-finite one: the request is sent (and fails to connect).
+    pytest.importorskip("pyarrow")
+    from lagwise_client import TransportError
+
+    n = 200
+    limits = [None] * n
+    with pytest.raises(TransportError):
+        Lagwise(OFFLINE, arrow_above=100, retries=0).experimental_variogram(
+            x=np.arange(float(n)), values=np.ones(n), censored=[False] * n, detection_limits=limits
+        )
