@@ -219,3 +219,56 @@ def test_liveness_with_an_accept_refusing_json_goes_to_a_worker():
         b"Connection: close\r\n\r\n"
     )
     assert status == 200 and document == {"status": "alive"}
+
+
+async def _polls_before_the_workers_start(polls: int) -> list[dict]:
+    """``polls`` readiness requests while no worker listens, then one once a stand-in listens."""
+    folder = tempfile.mkdtemp(prefix="lagwise-front-test-")
+    path = os.path.join(folder, "up.sock")
+    front = Front(
+        FrontSettings(upstream=path, max_body_bytes=MAX_BODY, receive_seconds=RECEIVE_SECONDS, max_connections=4)
+    )
+    server = await asyncio.start_server(front.handle, "127.0.0.1", 0)
+    port = server.sockets[0].getsockname()[1]
+    statuses = []
+
+    async def poll() -> None:
+        reader, writer = await asyncio.open_connection("127.0.0.1", port)
+        writer.write(b"GET /readyz HTTP/1.1\r\nHost: h\r\nConnection: close\r\n\r\n")
+        await writer.drain()
+        statuses.append(int((await asyncio.wait_for(reader.read(-1), 10)).split()[1]))
+        writer.close()
+
+    try:
+        for _ in range(polls):
+            await poll()
+        upstream = await asyncio.start_unix_server(_upstream, path)
+        await poll()
+        await front.drained(5)
+        upstream.close()
+    finally:
+        server.close()
+        os.unlink(path)
+        os.rmdir(folder)
+    return statuses
+
+
+def _front_lines(captured: str) -> list[dict]:
+    lines = [json.loads(line) for line in captured.splitlines() if line.startswith("{")]
+    return [line for line in lines if line.get("logger") == "lagwise.front"]
+
+
+def test_startup_polls_refused_not_ready_log_once_at_info_then_a_count(capsys, monkeypatch):
+    monkeypatch.delenv("LAGWISE_LOG_LEVEL", raising=False)
+    assert asyncio.run(_polls_before_the_workers_start(5)) == [503] * 5 + [200]
+    lines = _front_lines(capsys.readouterr().err)
+    assert [(line["message"], line["level"]) for line in lines] == [("refused", "info"), ("workers reached", "info")]
+    assert lines[0]["problem"] == "not-ready" and "debug" in lines[0]["note"]
+    assert lines[1]["refused_not_ready"] == 5
+
+
+def test_every_not_ready_refusal_is_logged_at_debug_level(capsys, monkeypatch):
+    monkeypatch.setenv("LAGWISE_LOG_LEVEL", "debug")
+    asyncio.run(_polls_before_the_workers_start(3))
+    lines = _front_lines(capsys.readouterr().err)
+    assert [line["level"] for line in lines if line["message"] == "refused"] == ["info", "debug", "debug"]

@@ -26,6 +26,7 @@ from __future__ import annotations
 import asyncio
 import contextlib
 import json
+import os
 import sys
 import tempfile
 import time
@@ -107,9 +108,15 @@ class ClientGone(Exception):
     """The client closed its connection or went silent between requests."""
 
 
-def log(message: str, **fields) -> None:
-    """One JSON line on stderr, like the service's logs (never sample data)."""
-    entry = {"time": time.strftime("%Y-%m-%dT%H:%M:%SZ", time.gmtime()), "level": "info", "logger": "lagwise.front"}
+LEVELS = {"debug": 10, "info": 20, "warning": 30, "error": 40, "critical": 50}
+
+
+def log(message: str, level: str = "info", **fields) -> None:
+    """One JSON line on stderr, like the service's logs (never sample data), when ``level`` is at
+    or above ``LAGWISE_LOG_LEVEL`` (default info)."""
+    if LEVELS[level] < LEVELS.get(os.environ.get("LAGWISE_LOG_LEVEL", "info").lower(), LEVELS["info"]):
+        return
+    entry = {"time": time.strftime("%Y-%m-%dT%H:%M:%SZ", time.gmtime()), "level": level, "logger": "lagwise.front"}
     entry.update(message=message, **fields)
     print(json.dumps(entry, separators=(",", ":")), file=sys.stderr, flush=True)
 
@@ -209,6 +216,9 @@ class Front:
         self.settings = settings
         self.connections = 0
         self._handlers: set[asyncio.Task] = set()
+        # not-ready refusals since the workers were last reached: the first is logged at info,
+        # the rest (readiness polls while the workers start) at debug, their number once they answer.
+        self.not_ready = 0
 
     async def drained(self, seconds: float) -> None:
         """Wait up to ``seconds`` for every client connection to finish."""
@@ -291,7 +301,14 @@ class Front:
 
     async def _refuse(self, client: ClientConnection, kind: str, detail: str, target: bytes, request_id: str) -> None:
         instance = target.split(b"?", 1)[0].decode("latin-1")[:MAX_FIELD_BYTES]
-        log("refused", request_id=request_id, problem=kind, path=instance)
+        level, note = "info", {}
+        if kind == "not-ready":
+            self.not_ready += 1
+            if self.not_ready == 1:
+                note = {"note": "further not-ready refusals are logged at debug level until the workers are reached"}
+            else:
+                level = "debug"
+        log("refused", level, request_id=request_id, problem=kind, path=instance, **note)
         status, headers, body = answers.problem(kind, detail, instance=instance, request_id=request_id)
         if client.h11.our_state in (h11.IDLE, h11.SEND_RESPONSE, h11.ERROR):
             await client.write_final(status, headers, body)
@@ -351,6 +368,9 @@ class Front:
         except OSError:
             request.body.close()
             raise Refusal("not-ready", "The workers are starting or stopping; retry shortly.") from None
+        if self.not_ready:
+            log("workers reached", refused_not_ready=self.not_ready)
+            self.not_ready = 0
         upstream = h11.Connection(h11.CLIENT)
         headers = list(request.headers)
         if not any(n == b"host" for n, _ in headers):
