@@ -97,6 +97,34 @@ def test_a_misspelt_lag_member_is_still_unknown(client):
     assert [e["pointer"] for e in doc["errors"]] == ["/lags/widht"]
 
 
+MODEL_WITHOUT_SILL = {"nugget": 0.1, "structures": [{"family": "spherical", "range": 2}]}
+
+
+@pytest.mark.parametrize(
+    "url, body, pointer",
+    [
+        (VARIOGRAMS, {}, "/samples"),
+        (VARIOGRAMS, {"samples": {"x": [0, 1, 2]}}, "/samples/values"),
+        (VARIOGRAMS, {"samples": columns(), "lags": {"width": 1}}, "/lags/count"),
+        (
+            "/v1/predictions",
+            {"samples": columns(), "model": MODEL_WITHOUT_SILL, "targets": {"x": [0.5]}},
+            "/model/structures/0/partial_sill",
+        ),
+    ],
+)
+def test_a_missing_required_member_is_named_in_our_words(client, url, body, pointer):
+    doc = assert_problem(client.post(url, json=body), 422, "invalid-input", [pointer])
+    assert doc["errors"][0]["detail"] == "is required" and doc["detail"] == f"{pointer}: is required"
+
+
+def test_a_field_with_its_own_required_message_keeps_it(client):
+    model = {"nugget": 0.1, "structures": [{"family": "spherical", "partial_sill": 1, "range": 2}]}
+    body = {"samples": columns(), "model": model, "targets": {"x": [0.5]}, "kriging": {"type": "universal"}}
+    doc = assert_problem(client.post("/v1/predictions", json=body), 422, "invalid-input", ["/kriging/drift"])
+    assert doc["errors"][0]["detail"].startswith("universal kriging needs a drift")
+
+
 @pytest.mark.parametrize("url", ["/v1/model-fits", "/v1/analyses"])
 @pytest.mark.parametrize("n", [2, 3])
 def test_too_few_samples_to_fit_are_refused_at_samples(client, url, n):

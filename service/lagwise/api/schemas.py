@@ -60,6 +60,19 @@ PLAUSIBLE = 1e100
 FAMILY_NAMES = tuple(FAMILIES)
 
 
+# The words of a missing required member, after its pointer ("/samples/values: is required").
+REQUIRED = "is required"
+
+
+class BaseSchema(Schema):
+    """The base of every schema: a missing required member is refused in our own words
+    (:data:`REQUIRED`) unless its field gives its own message."""
+
+    def on_bind_field(self, field_name: str, field_obj: fields.Field) -> None:
+        if field_obj.error_messages.get("required") == fields.Field.default_error_messages["required"]:
+            field_obj.error_messages = {**field_obj.error_messages, "required": REQUIRED}
+
+
 def map_tolerance() -> fields.Field:
     """The grid method's per-cell tolerance of a variogram map (its own endpoint and an analysis' stage)."""
     return finite(
@@ -112,7 +125,7 @@ def always_present(*optional: str):
 # ---- samples -----------------------------------------------------------------
 
 
-class _SampleCoordinates(Schema):
+class _SampleCoordinates(BaseSchema):
     """The coordinate columns (and identifiers) every columnar form of samples has."""
 
     x = NumberArray(
@@ -140,7 +153,7 @@ class SampleColumns(_SampleCoordinates):
     )
 
 
-class _SampleFeatureCollection(Schema):
+class _SampleFeatureCollection(BaseSchema):
     """The feature collection (and identifier property) every GeoJSON form of samples has."""
 
     geojson = fields.Dict(
@@ -214,7 +227,7 @@ class SampleFeatureVariables(_SampleFeatureCollection):
     units = _units_field()
 
 
-class RasterGrid(Schema):
+class RasterGrid(BaseSchema):
     """A regular 2-D grid of values (planar coordinates); a cell's value sits at its node, origin + i spacing."""
 
     origin = fields.List(
@@ -237,7 +250,7 @@ class RasterGrid(Schema):
     )
 
 
-class SampleRaster(Schema):
+class SampleRaster(BaseSchema):
     """Samples on a raster: experimental variograms and maps by FFT; points elsewhere (within the sample limit)."""
 
     raster = fields.Nested(RasterGrid, required=True)
@@ -288,7 +301,7 @@ def variable_choice(**kwargs) -> fields.String:
     )
 
 
-class SampleOptions(Schema):
+class SampleOptions(BaseSchema):
     """Options shared by every request that carries samples."""
 
     samples = samples_field(required=True)
@@ -311,7 +324,7 @@ class SampleOptions(Schema):
 # ---- distance and direction classes -------------------------------------------------
 
 
-class LagWidths(Schema):
+class LagWidths(BaseSchema):
     """Contiguous classes [0, w), [w, 2w), ... [(count - 1) w, count w)."""
 
     width = finite(
@@ -322,13 +335,13 @@ class LagWidths(Schema):
     count = StrictInteger(required=True, validate=validate.Range(min=1, max=MAX_CLASSES))
 
 
-class LagEdges(Schema):
+class LagEdges(BaseSchema):
     """Classes [e_i, e_i+1) between strictly increasing edges (coordinate units)."""
 
     edges = fields.List(finite(), required=True, validate=validate.Length(min=2, max=MAX_CLASSES + 1))
 
 
-class LagAuto(Schema):
+class LagAuto(BaseSchema):
     """Classes chosen from the data up to half the field's extent (an empty object: equal_width)."""
 
     auto = one_of(
@@ -354,7 +367,7 @@ def lags_field(**kwargs) -> Variants:
     )
 
 
-class DirectionSchema(Schema):
+class DirectionSchema(BaseSchema):
     """A direction class (degrees; azimuth clockwise from north)."""
 
     azimuth = finite(load_default=0.0, validate=validate.Range(min=0, max=360, max_inclusive=False))
@@ -367,7 +380,7 @@ class DirectionSchema(Schema):
     vertical_bandwidth = finite(load_default=None, allow_none=True)
 
 
-class ScatterRequestSchema(Schema):
+class ScatterRequestSchema(BaseSchema):
     """Ask for the pairs of one class (h-scattergram)."""
 
     direction = StrictInteger(load_default=0, validate=validate.Range(min=0))
@@ -459,7 +472,7 @@ def _bounded(parameter: Parameter, **kwargs) -> StrictFloat:
     return finite(validate=rule, metadata=doc, **kwargs)
 
 
-AnisotropyInput = Schema.from_dict(
+AnisotropyInput = BaseSchema.from_dict(
     {p.name: _bounded(p, load_default=getattr(Anisotropy(), p.name)) for p in ANISOTROPY}, name="AnisotropyInput"
 )
 AnisotropyInput.__doc__ = "Geometric anisotropy; omitted: isotropic."
@@ -473,7 +486,7 @@ def _structure_form(family: Family) -> type[Schema]:
         "anisotropy": fields.Nested(AnisotropyInput),
     }
     title = "".join(part.capitalize() for part in family.name.split("_"))
-    form = Schema.from_dict(members, name=f"{title}Structure")
+    form = BaseSchema.from_dict(members, name=f"{title}Structure")
     form.__doc__ = f"A {family.name.replace('_', ' ')} structure: {family.description}."
     return form
 
@@ -481,7 +494,7 @@ def _structure_form(family: Family) -> type[Schema]:
 STRUCTURE_FORMS = {name: _structure_form(f) for name, f in FAMILIES.items()}
 
 
-class Model(Schema):
+class Model(BaseSchema):
     """A variogram model: a nugget plus nested structures (GET /v1/model-families lists the families).
 
     Fitted models in responses use this same schema, so a response's model can be sent back as it is.
@@ -510,7 +523,7 @@ def _matrix(**kwargs) -> fields.List:
     )
 
 
-class JointStructureInput(Schema):
+class JointStructureInput(BaseSchema):
     """A structure shared by every variable of a joint model, with its matrix of sills."""
 
     family = one_of(
@@ -536,7 +549,7 @@ class JointStructureInput(Schema):
     )
 
 
-class JointModel(Schema):
+class JointModel(BaseSchema):
     """A joint model of several variables (linear model of coregionalisation): a nugget matrix and
     shared structures, every matrix symmetric positive semi-definite."""
 
@@ -562,7 +575,7 @@ def model_field(**kwargs) -> Variants:
 # ---- fitting -----------------------------------------------------------------------
 
 
-class ExperimentalClassInput(Schema):
+class ExperimentalClassInput(BaseSchema):
     """A class of a previous experimental response (other members are ignored)."""
 
     class Meta:
@@ -584,7 +597,7 @@ class ExperimentalClassInput(Schema):
     )
 
 
-class ExperimentalDirectionInput(Schema):
+class ExperimentalDirectionInput(BaseSchema):
     class Meta:
         unknown = EXCLUDE
 
@@ -602,7 +615,7 @@ class CrossDirectionInput(ExperimentalDirectionInput):
     classes = fields.List(fields.Nested(CrossClassInput), required=True, validate=validate.Length(min=1))
 
 
-class ExperimentalVariableInput(Schema):
+class ExperimentalVariableInput(BaseSchema):
     """One variable's direct variogram in a several-variable experimental response."""
 
     class Meta:
@@ -615,7 +628,7 @@ class ExperimentalVariableInput(Schema):
     summary = fields.Dict()
 
 
-class ExperimentalCrossInput(Schema):
+class ExperimentalCrossInput(BaseSchema):
     """One pair's cross variogram in a several-variable experimental response."""
 
     class Meta:
@@ -629,7 +642,7 @@ class ExperimentalCrossInput(Schema):
     )
 
 
-class ExperimentalInput(Schema):
+class ExperimentalInput(BaseSchema):
     """A previous response of POST /v1/experimental-variograms (as returned): one variable's
     ``directions``, or several variables' ``variables`` and ``cross`` (a joint fit)."""
 
@@ -712,14 +725,14 @@ def _nugget_role() -> fields.String:
     return one_of(NUGGET_ROLES, load_default="micro_scale")
 
 
-class OrdinaryKriging(Schema):
+class OrdinaryKriging(BaseSchema):
     """Ordinary kriging: the weights sum to one (an unknown constant mean); the default."""
 
     type = fields.String(required=True, validate=validate.Equal("ordinary"))
     nugget_as = _nugget_role()
 
 
-class SimpleKriging(Schema):
+class SimpleKriging(BaseSchema):
     """Simple kriging: a known mean (or, for a joint model, one per variable)."""
 
     type = fields.String(required=True, validate=validate.Equal("simple"))
@@ -740,7 +753,7 @@ class SimpleKriging(Schema):
     nugget_as = _nugget_role()
 
 
-class UniversalKriging(Schema):
+class UniversalKriging(BaseSchema):
     """Universal kriging: a drift in the coordinates, estimated with the weights."""
 
     type = fields.String(required=True, validate=validate.Equal("universal"))
@@ -764,7 +777,7 @@ def kriging_field(**kwargs) -> Variants:
     )
 
 
-class NeighbourhoodInput(Schema):
+class NeighbourhoodInput(BaseSchema):
     """A moving neighbourhood; omit it for the unique neighbourhood (all samples)."""
 
     max_points = StrictInteger(load_default=24, validate=validate.Range(min=1, max=500))
@@ -773,13 +786,13 @@ class NeighbourhoodInput(Schema):
     sectors = StrictInteger(allow_none=True, load_default=None, validate=validate.Range(min=1, max=8))
 
 
-class LeaveOneOut(Schema):
+class LeaveOneOut(BaseSchema):
     """Leave-one-out: each sample estimated from all the others; the default."""
 
     type = fields.String(required=True, validate=validate.Equal("leave_one_out"))
 
 
-class KFold(Schema):
+class KFold(BaseSchema):
     """k-fold: the samples shuffled (by ``seed``) into ``folds`` groups, each estimated from the others."""
 
     type = fields.String(required=True, validate=validate.Equal("k_fold"))
@@ -840,13 +853,13 @@ class CrossValidationRequest(KrigingOptions):
     outlier_threshold = finite(load_default=2.5, validate=validate.Range(min=0, min_inclusive=False))
 
 
-class TargetsInput(Schema):
+class TargetsInput(BaseSchema):
     x = NumberArray(required=True)
     y = NumberArray()
     z = NumberArray()
 
 
-class GridInput(Schema):
+class GridInput(BaseSchema):
     origin = fields.List(finite(), required=True, validate=validate.Length(min=1, max=3))
     spacing = fields.List(
         finite(validate=validate.Range(min=0, min_inclusive=False)),
@@ -860,7 +873,7 @@ class GridInput(Schema):
     )
 
 
-class BlocksInput(Schema):
+class BlocksInput(BaseSchema):
     """Block kriging: each target or grid node is the centre of a block."""
 
     size = fields.List(
@@ -930,7 +943,7 @@ class PredictionOnGrid(PredictionRequest):
 # ---- analyses ----------------------------------------------------------------------
 
 
-class VariogramStage(Schema):
+class VariogramStage(BaseSchema):
     lags = lags_field()
     directions = DirectionsOption(
         DirectionSchema,
@@ -941,7 +954,7 @@ class VariogramStage(Schema):
     min_pairs = StrictInteger(load_default=30, validate=validate.Range(min=1))
 
 
-class VariogramMapStage(Schema):
+class VariogramMapStage(BaseSchema):
     """The analysis's variogram map (drawn when figures names variogram_map), of the variogram stage's statistic."""
 
     method = one_of(
@@ -957,7 +970,7 @@ class VariogramMapStage(Schema):
     tolerance = map_tolerance()
 
 
-class FitStage(Schema):
+class FitStage(BaseSchema):
     families = AutoOrList(FAMILY_NAMES, load_default="auto")
     nugget = NuggetOption(load_default="fit")
     weighting = one_of(WEIGHTINGS, load_default="pairs")
@@ -981,7 +994,7 @@ class FitStage(Schema):
     )
 
 
-class CrossValidationStage(Schema):
+class CrossValidationStage(BaseSchema):
     kriging = AutoOr(
         kriging_field(),
         load_default="auto",
@@ -999,7 +1012,7 @@ class CrossValidationStage(Schema):
     scheme = scheme_field()
 
 
-class AnalysisSimulationBlocks(Schema):
+class AnalysisSimulationBlocks(BaseSchema):
     size = fields.List(
         finite(validate=validate.Range(min=0, min_inclusive=False)),
         required=True,
@@ -1008,7 +1021,7 @@ class AnalysisSimulationBlocks(Schema):
     )
 
 
-class AnalysisSimulationInput(Schema):
+class AnalysisSimulationInput(BaseSchema):
     """Conditional simulation with the selected model (as POST /v1/simulations)."""
 
     realisations = StrictInteger(load_default=100, validate=validate.Range(min=1, max=10_000))
@@ -1019,7 +1032,7 @@ class AnalysisSimulationInput(Schema):
     )
 
 
-class PredictionStage(Schema):
+class PredictionStage(BaseSchema):
     grid = fields.Nested(GridInput, required=True)
     thresholds = fields.List(
         finite(),
@@ -1044,7 +1057,7 @@ def _printable(text: str) -> None:
         raise ValidationError("must not contain control characters")
 
 
-class VariableSchema(Schema):
+class VariableSchema(BaseSchema):
     """What was measured, for labels and the echo."""
 
     name = fields.String(
@@ -1106,7 +1119,7 @@ class AnalysisRequest(SampleOptions):
 
 
 @always_present()
-class ProvenanceSchema(Schema):
+class ProvenanceSchema(BaseSchema):
     service = fields.String()
     version = fields.String()
     numpy = fields.String()
@@ -1119,7 +1132,7 @@ class ProvenanceSchema(Schema):
 
 
 @always_present()
-class DeclusteringSchema(Schema):
+class DeclusteringSchema(BaseSchema):
     """Cell declustering of the samples (weights used only when sampling is clustered)."""
 
     method = fields.String()
@@ -1146,7 +1159,7 @@ class DeclusteringSchema(Schema):
 
 
 @always_present()
-class SummarySchema(Schema):
+class SummarySchema(BaseSchema):
     samples = StrictInteger()
     dimension = StrictInteger()
     mean = StrictFloat()
@@ -1175,7 +1188,7 @@ class SummarySchema(Schema):
     "pair_bound",
     "bound_exceeded",
 )
-class ClassSchema(Schema):
+class ClassSchema(BaseSchema):
     lower = StrictFloat()
     upper = StrictFloat()
     mean_distance = StrictFloat(allow_none=True)
@@ -1229,7 +1242,7 @@ class ClassSchema(Schema):
 
 
 @always_present("dip", "dip_tolerance", "vertical_bandwidth")
-class DirectionResultSchema(Schema):
+class DirectionResultSchema(BaseSchema):
     """A direction class as resolved (dip members for 3-D samples only) and its distance classes."""
 
     azimuth = StrictFloat()
@@ -1242,7 +1255,7 @@ class DirectionResultSchema(Schema):
 
 
 @always_present()
-class ScattergramSchema(Schema):
+class ScattergramSchema(BaseSchema):
     direction = StrictInteger()
     klass = StrictInteger(data_key="class")
     pairs_in_class = StrictInteger()
@@ -1252,7 +1265,7 @@ class ScattergramSchema(Schema):
 
 
 @always_present()
-class ResultEnvelope(Schema):
+class ResultEnvelope(BaseSchema):
     parameters = fields.Dict(metadata={"description": "Every resolved parameter, defaults filled in."})
     warnings = fields.List(fields.String())
     provenance = fields.Nested(ProvenanceSchema)
@@ -1267,7 +1280,7 @@ class ExperimentalResponse(ResultEnvelope):
 
 
 @always_present()
-class ClassUncertaintySchema(Schema):
+class ClassUncertaintySchema(BaseSchema):
     """How one variogram's class standard errors were found (both null when none were)."""
 
     method = fields.String(allow_none=True)
@@ -1275,7 +1288,7 @@ class ClassUncertaintySchema(Schema):
 
 
 @always_present()
-class VariableVariogramSchema(Schema):
+class VariableVariogramSchema(BaseSchema):
     """The direct experimental variogram of one variable."""
 
     name = fields.String()
@@ -1292,7 +1305,7 @@ class VariableVariogramSchema(Schema):
 
 
 @always_present()
-class CrossVariogramSchema(Schema):
+class CrossVariogramSchema(BaseSchema):
     """The cross statistic of a pair of variables (parameters.cross_statistic says which)."""
 
     variables = fields.List(
@@ -1355,7 +1368,7 @@ class MapResponse(ResultEnvelope):
 
 
 @always_present()
-class DiagnosticsSchema(Schema):
+class DiagnosticsSchema(BaseSchema):
     weighted_sse = StrictFloat(allow_none=True)
     r_squared = StrictFloat(allow_none=True)
     criterion = StrictFloat(allow_none=True)
@@ -1365,7 +1378,7 @@ class DiagnosticsSchema(Schema):
 
 
 @always_present()
-class CandidateSchema(Schema):
+class CandidateSchema(BaseSchema):
     rank = StrictInteger()
     label = fields.String()
     model = fields.Nested(Model, allow_none=True, metadata={"description": "Null when the fit failed (see note)."})
@@ -1380,7 +1393,7 @@ class CandidateSchema(Schema):
 
 
 @always_present()
-class JointCandidateSchema(Schema):
+class JointCandidateSchema(BaseSchema):
     """A candidate joint model (linear model of coregionalisation)."""
 
     rank = StrictInteger()
@@ -1405,7 +1418,7 @@ def _dumped_candidate_form(candidate: Any) -> str:
 
 
 @always_present()
-class FitClassSchema(Schema):
+class FitClassSchema(BaseSchema):
     mean_distance = StrictFloat(allow_none=True)
     value = StrictFloat(allow_none=True)
     pairs = StrictInteger()
@@ -1414,25 +1427,25 @@ class FitClassSchema(Schema):
 
 
 @always_present()
-class FitDirectionSchema(Schema):
+class FitDirectionSchema(BaseSchema):
     azimuth = StrictFloat()
     classes = Rows(FitClassSchema)
 
 
 @always_present()
-class FitVariableSchema(Schema):
+class FitVariableSchema(BaseSchema):
     name = fields.String()
     directions = fields.List(fields.Nested(FitDirectionSchema))
 
 
 @always_present()
-class FitCrossSchema(Schema):
+class FitCrossSchema(BaseSchema):
     variables = fields.List(fields.String())
     directions = fields.List(fields.Nested(FitDirectionSchema))
 
 
 @always_present("variables", "cross")
-class FitExperimentalSchema(Schema):
+class FitExperimentalSchema(BaseSchema):
     statistic = one_of(STATISTICS)
     directions = fields.List(
         fields.Nested(FitDirectionSchema), metadata={"description": "One variable's classes; empty for a joint fit."}
@@ -1461,7 +1474,7 @@ class ModelFitResponse(ResultEnvelope):
 
 
 @always_present()
-class FitRuleSchema(Schema):
+class FitRuleSchema(BaseSchema):
     """A fit bound or start: factor times a named fit scale."""
 
     factor = StrictFloat()
@@ -1469,14 +1482,14 @@ class FitRuleSchema(Schema):
 
 
 @always_present()
-class FamilyParameterFitSchema(Schema):
+class FamilyParameterFitSchema(BaseSchema):
     low = fields.Nested(FitRuleSchema)
     high = fields.Nested(FitRuleSchema)
     start = fields.Nested(FitRuleSchema)
 
 
 @always_present("minimum", "maximum", "fit")
-class FamilyParameterSchema(Schema):
+class FamilyParameterSchema(BaseSchema):
     name = fields.String()
     unit = fields.String()
     kind = fields.String(validate=validate.OneOf(UNIT_KINDS))
@@ -1490,7 +1503,7 @@ class FamilyParameterSchema(Schema):
 
 
 @always_present()
-class FamilySchema(Schema):
+class FamilySchema(BaseSchema):
     name = one_of(FAMILY_NAMES)
     bounded = StrictBoolean()
     max_dimension = StrictInteger()
@@ -1500,7 +1513,7 @@ class FamilySchema(Schema):
 
 
 @always_present()
-class FamiliesResponse(Schema):
+class FamiliesResponse(BaseSchema):
     families = fields.List(fields.Nested(FamilySchema))
     model_parameters = fields.List(
         fields.Nested(FamilyParameterSchema), metadata={"description": "The nugget and the anisotropy."}
@@ -1510,7 +1523,7 @@ class FamiliesResponse(Schema):
 
 
 @always_present()
-class CrossValidationSamplesSchema(Schema):
+class CrossValidationSamplesSchema(BaseSchema):
     id = Column(fields.String())
     observed = Column(StrictFloat())
     estimate = Column(StrictFloat(allow_none=True))
@@ -1521,7 +1534,7 @@ class CrossValidationSamplesSchema(Schema):
 
 
 @always_present()
-class CrossValidationStatisticsSchema(Schema):
+class CrossValidationStatisticsSchema(BaseSchema):
     count = StrictInteger()
     mean_error = StrictFloat(allow_none=True)
     mean_absolute_error = StrictFloat(allow_none=True)
@@ -1535,12 +1548,12 @@ class CrossValidationStatisticsSchema(Schema):
 
 
 @always_present()
-class UnestimatedSchema(Schema):
+class UnestimatedSchema(BaseSchema):
     index = StrictInteger()
     reason = fields.String()
 
 
-class CokrigingGainSchema(Schema):
+class CokrigingGainSchema(BaseSchema):
     """Cokriging: what the secondary variables bought against kriging the primary alone (its direct model,
     the same kriging type and neighbourhood)."""
 
@@ -1571,7 +1584,7 @@ class CrossValidationResponse(ResultEnvelope):
 
 
 @always_present()
-class WeightsSchema(Schema):
+class WeightsSchema(BaseSchema):
     target = StrictInteger()
     samples = fields.List(fields.String())
     weights = Column(StrictFloat())
@@ -1579,7 +1592,7 @@ class WeightsSchema(Schema):
 
 
 @always_present()
-class GridSchema(Schema):
+class GridSchema(BaseSchema):
     origin = fields.List(StrictFloat())
     spacing = fields.List(StrictFloat())
     shape = fields.List(StrictInteger())
@@ -1587,7 +1600,7 @@ class GridSchema(Schema):
 
 
 @always_present()
-class ExceedanceSchema(Schema):
+class ExceedanceSchema(BaseSchema):
     threshold = StrictFloat(metadata={"description": "Original units."})
     probability = Column(
         StrictFloat(allow_none=True),
@@ -1613,12 +1626,12 @@ class PredictionResponse(ResultEnvelope):
 
 
 @always_present()
-class AnalysisVariogramSchema(Schema):
+class AnalysisVariogramSchema(BaseSchema):
     directions = fields.List(fields.Nested(DirectionResultSchema))
     colocated_pairs = StrictInteger()
 
 
-class AnisotropyEstimateSchema(Schema):
+class AnisotropyEstimateSchema(BaseSchema):
     azimuth = StrictFloat(metadata={"description": "Degrees clockwise from north of the longest continuity."})
     ratio = StrictFloat(metadata={"description": "Range across / range along, in (0, 1]."})
     family = fields.String()
@@ -1630,7 +1643,7 @@ class AnisotropyEstimateSchema(Schema):
 
 
 @always_present()
-class AnalysisExperimentalSchema(Schema):
+class AnalysisExperimentalSchema(BaseSchema):
     omnidirectional = fields.Nested(AnalysisVariogramSchema)
     directional = fields.Nested(AnalysisVariogramSchema, allow_none=True)
     residual = fields.Nested(
@@ -1641,7 +1654,7 @@ class AnalysisExperimentalSchema(Schema):
     anisotropy = fields.Nested(AnisotropyEstimateSchema, allow_none=True)
 
 
-class StrategySchema(Schema):
+class StrategySchema(BaseSchema):
     name = fields.String(validate=validate.OneOf(STRATEGY_NAMES))
     model = fields.Nested(Model)
     kriging = fields.Dict()
@@ -1650,27 +1663,27 @@ class StrategySchema(Schema):
     why = fields.String()
 
 
-class SelectionSchema(Schema):
+class SelectionSchema(BaseSchema):
     strategies = fields.List(fields.Nested(StrategySchema))
     reason = fields.String()
     rule = fields.String()
 
 
-class VerdictSchema(Schema):
+class VerdictSchema(BaseSchema):
     usable = StrictBoolean(metadata={"description": "The map and its intervals can be used as they are."})
     level = fields.String(validate=validate.OneOf(VERDICT_LEVELS))
     text = fields.String()
 
 
 @always_present()
-class AnalysisFitSchema(Schema):
+class AnalysisFitSchema(BaseSchema):
     model = fields.Nested(Model)
     diagnostics = fields.Nested(DiagnosticsSchema)
     candidates = fields.List(fields.Nested(CandidateSchema))
 
 
 @always_present()
-class AnalysisCrossValidationSchema(Schema):
+class AnalysisCrossValidationSchema(BaseSchema):
     statistics = fields.Nested(CrossValidationStatisticsSchema)
     samples = fields.Nested(CrossValidationSamplesSchema)
     assessment = fields.String()
@@ -1678,7 +1691,7 @@ class AnalysisCrossValidationSchema(Schema):
 
 
 @always_present()
-class ProbabilityClassSchema(Schema):
+class ProbabilityClassSchema(BaseSchema):
     name = fields.String(attribute="class", data_key="class", validate=validate.OneOf(("below", "uncertain", "above")))
     meaning = fields.String()
     count = StrictInteger()
@@ -1686,7 +1699,7 @@ class ProbabilityClassSchema(Schema):
 
 
 @always_present()
-class ProbabilityClassesSchema(Schema):
+class ProbabilityClassesSchema(BaseSchema):
     threshold = StrictFloat()
     confidence = StrictFloat()
     classes = fields.List(fields.Nested(ProbabilityClassSchema))
@@ -1696,7 +1709,7 @@ class ProbabilityClassesSchema(Schema):
 
 
 @always_present("blocks")
-class AnalysisSimulationSchema(Schema):
+class AnalysisSimulationSchema(BaseSchema):
     realisations = StrictInteger()
     seed = StrictInteger()
     above = fields.List(fields.Nested("AboveSchema"))
@@ -1705,7 +1718,7 @@ class AnalysisSimulationSchema(Schema):
 
 
 @always_present()
-class AnalysisPredictionSchema(Schema):
+class AnalysisPredictionSchema(BaseSchema):
     x = Column(StrictFloat())
     y = Column(StrictFloat())
     estimate = Column(StrictFloat(allow_none=True), metadata={"description": "Original units (back-transformed)."})
@@ -1755,7 +1768,7 @@ class BatchAnalysisResponse(ResultEnvelope):
 # ---- conditional simulations ---------------------------------------------------------
 
 
-class SimulationKrigingInput(Schema):
+class SimulationKrigingInput(BaseSchema):
     type = one_of(SIMULATION_KRIGING, load_default="simple")
     mean = finite(
         metadata={
@@ -1765,7 +1778,7 @@ class SimulationKrigingInput(Schema):
     )
 
 
-class SimulationGridInput(Schema):
+class SimulationGridInput(BaseSchema):
     """A regular 2-D grid: nodes at origin + (i, j) * spacing, x fastest."""
 
     origin = fields.List(finite(), required=True, validate=validate.Length(equal=2))
@@ -1775,7 +1788,7 @@ class SimulationGridInput(Schema):
     shape = fields.List(StrictInteger(validate=validate.Range(min=1)), required=True, validate=validate.Length(equal=2))
 
 
-class SimulationBlocksInput(Schema):
+class SimulationBlocksInput(BaseSchema):
     size = fields.List(
         finite(validate=validate.Range(min=0, min_inclusive=False)),
         required=True,
@@ -1815,14 +1828,14 @@ class SimulationRequest(SampleOptions):
 
 
 @always_present()
-class NodeQuantilesSchema(Schema):
+class NodeQuantilesSchema(BaseSchema):
     p10 = Column(StrictFloat())
     p50 = Column(StrictFloat())
     p90 = Column(StrictFloat())
 
 
 @always_present()
-class SimulatedExceedanceSchema(Schema):
+class SimulatedExceedanceSchema(BaseSchema):
     threshold = StrictFloat(metadata={"description": "Original units."})
     probability = Column(
         StrictFloat(), metadata={"description": "Share of the realisations above the threshold, x fastest."}
@@ -1830,14 +1843,14 @@ class SimulatedExceedanceSchema(Schema):
 
 
 @always_present()
-class SimulatedBlocksSchema(Schema):
+class SimulatedBlocksSchema(BaseSchema):
     grid = fields.Nested(GridSchema, metadata={"description": "Block centres; spacing is the block size."})
     mean = Column(StrictFloat(), metadata={"description": "Mean over realisations of each block average."})
     exceedance = fields.List(fields.Nested(SimulatedExceedanceSchema))
 
 
 @always_present()
-class FractionSchema(Schema):
+class FractionSchema(BaseSchema):
     mean = StrictFloat()
     p10 = StrictFloat()
     p50 = StrictFloat()
@@ -1845,7 +1858,7 @@ class FractionSchema(Schema):
 
 
 @always_present()
-class AboveSchema(Schema):
+class AboveSchema(BaseSchema):
     threshold = StrictFloat()
     fraction = fields.Nested(FractionSchema, metadata={"description": "Share of the grid above, over realisations."})
 
@@ -1872,13 +1885,13 @@ PROBLEM_STATUSES = tuple(sorted({k.status for k in KINDS.values()}))
 
 
 @always_present()
-class FieldErrorSchema(Schema):
+class FieldErrorSchema(BaseSchema):
     pointer = fields.String(metadata={"description": "JSON Pointer (RFC 6901) into the request."})
     detail = fields.String()
 
 
 @always_present("instance", "errors", "errors_omitted", "limit", "allowed", "requested", "acceptable")
-class ProblemSchema(Schema):
+class ProblemSchema(BaseSchema):
     """RFC 9457 problem details; a limit-exceeded problem also names the limit and both costs."""
 
     type = one_of(PROBLEM_TYPES, metadata={"description": "URI reference of the kind; GET it for a description."})
@@ -1907,7 +1920,7 @@ class ProblemSchema(Schema):
 
 
 @always_present()
-class ProblemKindSchema(Schema):
+class ProblemKindSchema(BaseSchema):
     """A kind of refusal, described for people."""
 
     type = one_of(PROBLEM_TYPES)
@@ -1917,5 +1930,5 @@ class ProblemKindSchema(Schema):
 
 
 @always_present()
-class HealthSchema(Schema):
+class HealthSchema(BaseSchema):
     status = one_of(("alive", "ready"))
