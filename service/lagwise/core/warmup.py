@@ -45,7 +45,8 @@ def warm_kernels() -> None:
     )
     # The grid method's compiled passes (binning, hull throw-away on 3,001 points).
     many = build_sample_set(np.ones(3001), np.arange(3001.0) % 61, np.arange(3001.0) // 61)
-    experimental_variogram(many, lags=LagRequest(width=5.0, count=3), method="grid")
+    for statistic in ("semivariance", "covariance_noncentered"):  # the FFT's two sets of spectrum products
+        experimental_variogram(many, lags=LagRequest(width=5.0, count=3), method="grid", statistic=statistic)
     several = _tiny_variables(samples)
     for statistic in ("semivariance", "covariance", "madogram"):
         several_variograms(several, statistic=statistic)
@@ -70,6 +71,7 @@ def compile_kernels() -> None:
     from .data import identifiers
     from .kriging import compiled
     from .variography import kernels as K
+    from .variography import spectra
 
     f8, i8 = "float64", "int64"
     a1, a2 = f"{f8}[::1]", f"{f8}[:, ::1]"
@@ -88,6 +90,10 @@ def compile_kernels() -> None:
         f"({a2}, {a1}, {f8}, {f8}, {a2}, {a2}, {i8}[::1], {a1}, {i8}, {i8}[::1], {i8}, {i8}, {rows})"
     )
     K.collect_map_differences.compile(f"({a2}, {a1}, {f8}, {i8}, {i8}[::1], {i8}[::1], {a1}, {rows})")
+    c1 = "complex128[::1]"
+    for product in (spectra.cross_into, spectra.power_into, spectra.twice_real_cross, spectra.less_twice_power):
+        arguments = 3 if product is spectra.cross_into else 2
+        product.compile(f"({', '.join([c1] * arguments)})")
     a3 = f"{f8}[:, :, ::1]"
     compiled.add_structure.compile(f"({a3}, {a3}, {a3}, {i8}, {f8}, {f8}, {f8}, boolean)")
     # Text ids of an Arrow stream: read-only views of its bytes and its int32 or int64 offsets.

@@ -165,7 +165,7 @@ def binned_map(
     cell = map_grid_cell(summary, cell_size, cells, limits)
     check_deadline()
     grid = binned_nodes(samples.coords, samples.values, cell, summary)
-    ny, nx = grid.nodes.count.shape
+    ny, nx = grid.nodes.shape
     radius = (cells + 0.5) * cell_size
     reach = (min(int(math.ceil(radius / cell)), nx - 1), min(int(math.ceil(radius / cell)), ny - 1))
     memory = check_budget((ny, nx), reach, limits, "/cells")

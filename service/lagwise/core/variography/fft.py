@@ -19,7 +19,9 @@ around; corr(b, a)(s) = corr(a, b)(-s) gives the head sums from the tail sums. T
 forward and four inverse real transforms serve every class, direction and map cell.
 The semivariance needs only count and square; square's spectrum is
 conj(Q) C + conj(C) Q - 2 |S|^2 (hats omitted), so it takes three forward and two
-inverse transforms.
+inverse transforms. An inverse transform keeps only the lags up to the reach: the
+inverse along y runs on every column of the spectrum, the one along x only on the
+2 ry + 1 rows of the window (about half the work of a whole 2-D inverse).
 
 Lag vectors are then classified with the pair engine's own rules
 (:mod:`lagwise.core.variography.kernels`): separation h = (i dx, j dy), distance
@@ -45,13 +47,15 @@ from ..deadline import check_deadline
 from ..errors import FieldIssue, InvalidInput, LimitExceeded
 from ..limits import Limits
 from . import kernels as K
+from . import spectra
 from .directions import BAND2, COS2_TOL, UX, UY, DirectionClass, direction_table
 
 FFT_STATISTICS = ("semivariance", "covariance", "covariance_noncentered", "correlogram")
 WORKERS = 2
-# Arrays alive at the peak of lag_sums: three spectra, one product, one inverse transform
-# (each about the padded grid's size in float64 pairs), the six cropped sums and the inputs.
-SPECTRA_ALIVE = 5
+# Arrays alive at the peak of lag_sums, each the size of the padded grid in float64 (a half
+# spectrum in complex128 takes the same): the padded layer and three spectra.
+SPECTRA_ALIVE = 4
+LAYERS = ("count", "total", "squares")
 
 
 @dataclass(frozen=True)
@@ -76,6 +80,53 @@ class NodeSums:
     spacing: tuple[float, float]
     mean: float
     scale: float
+
+    @property
+    def shape(self) -> tuple[int, int]:
+        """(ny, nx) nodes."""
+        return self.count.shape
+
+    def fill(self, layer: str, out: np.ndarray) -> None:
+        """Write ``layer`` (one of :data:`LAYERS`) into ``out``, shape (ny, nx)."""
+        np.copyto(out, getattr(self, layer))
+
+
+@dataclass(frozen=True)
+class RasterNodes:
+    """A raster's cells as nodes, without arrays of their own: weight 1 at a present cell and 0
+    at a missing one, S the value less ``mean`` (0 where missing), Q = S^2; formed on demand
+    (:meth:`fill`), so the transforms' input is the only copy.
+
+    Attributes
+    ----------
+    values : ndarray, shape (ny, nx)
+        The raster's values (NaN where missing).
+    present : ndarray of bool, shape (ny, nx)
+        The cells holding a value.
+    spacing, mean, scale
+        As :class:`NodeSums`.
+    """
+
+    values: np.ndarray
+    present: np.ndarray
+    spacing: tuple[float, float]
+    mean: float
+    scale: float
+
+    @property
+    def shape(self) -> tuple[int, int]:
+        """(ny, nx) nodes."""
+        return self.values.shape
+
+    def fill(self, layer: str, out: np.ndarray) -> None:
+        """Write ``layer`` (one of :data:`LAYERS`) into ``out``, shape (ny, nx)."""
+        if layer == "count":
+            np.copyto(out, self.present)
+            return
+        np.subtract(self.values, self.mean, out=out)
+        np.copyto(out, 0.0, where=~self.present)
+        if layer == "squares":
+            np.multiply(out, out, out=out)
 
 
 @dataclass(frozen=True)
@@ -109,11 +160,14 @@ def padded_shape(shape: tuple[int, int], reach: tuple[int, int]) -> tuple[int, i
 
 
 def fft_bytes(shape: tuple[int, int], reach: tuple[int, int]) -> int:
-    """Working memory of :func:`lag_sums` in bytes (see :data:`SPECTRA_ALIVE`)."""
+    """Working memory of :func:`lag_sums` in bytes (see :data:`SPECTRA_ALIVE`): the spectra, an
+    inverse transform's window rows (complex, then real), the sums' windows and three node arrays
+    of the grid's size (binned grids hold them; rasters need none)."""
     py, px = padded_shape(shape, reach)
     spectrum = py * (px // 2 + 1) * 16
+    window_rows = 2 * (2 * reach[1] + 1) * (px // 2 + 1) * 16
     window = (2 * reach[0] + 1) * (2 * reach[1] + 1) * 8
-    return SPECTRA_ALIVE * spectrum + 6 * window + 3 * shape[0] * shape[1] * 8
+    return SPECTRA_ALIVE * spectrum + window_rows + 8 * window + 3 * shape[0] * shape[1] * 8
 
 
 def transform_count(first_moments: bool) -> int:
@@ -139,55 +193,82 @@ def check_budget(shape: tuple[int, int], reach: tuple[int, int], limits: Limits,
     return need
 
 
-def _window(full: np.ndarray, reach: tuple[int, int]) -> np.ndarray:
-    """Lags -r..r of a circular correlation (index s mod P) as a (2 ry + 1, 2 rx + 1) array."""
-    rx, ry = reach
-    rows = np.r_[full.shape[0] - ry : full.shape[0], 0 : ry + 1]
-    columns = np.r_[full.shape[1] - rx : full.shape[1], 0 : rx + 1]
-    return full[np.ix_(rows, columns)]
+class _Transforms:
+    """The forward and (windowed) inverse transforms of :func:`lag_sums` on one padded shape."""
+
+    def __init__(self, nodes: NodeSums | RasterNodes, shape: tuple[int, int], reach: tuple[int, int]):
+        self.nodes = nodes
+        self.shape = shape
+        self.reach = reach
+        self.layer = np.zeros(shape)
+
+    def forward(self, layer: str) -> np.ndarray:
+        """Half spectrum (rows, columns // 2 + 1) of a node layer zero-padded to the transforms' shape."""
+        ny, nx = self.nodes.shape
+        self.nodes.fill(layer, self.layer[:ny, :nx])
+        return scipy.fft.rfft2(self.layer, workers=WORKERS)
+
+    def inverse(self, spectrum: np.ndarray) -> np.ndarray:
+        """Lags -reach..reach of the circular correlation whose half spectrum is ``spectrum`` (overwritten).
+
+        The 2-D inverse is the inverse along the rows' axis, then along the columns: only the
+        2 ry + 1 rows of the window go through the second.
+        """
+        check_deadline()
+        rx, ry = self.reach
+        rows, columns = self.shape
+        along_y = scipy.fft.ifft(spectrum, axis=0, overwrite_x=True, workers=WORKERS)
+        window_rows = np.concatenate([along_y[rows - ry :], along_y[: ry + 1]])
+        full = scipy.fft.irfft(window_rows, n=columns, axis=1, workers=WORKERS)
+        return np.concatenate([full[:, columns - rx :], full[:, : rx + 1]], axis=1)
 
 
-def lag_sums(nodes: NodeSums, reach: tuple[int, int], first_moments: bool = True) -> LagSums:
+def _flat(spectrum: np.ndarray) -> np.ndarray:
+    return spectrum.reshape(-1)
+
+
+def lag_sums(nodes: NodeSums | RasterNodes, reach: tuple[int, int], first_moments: bool = True) -> LagSums:
     """The pair sums for lag vectors up to ``reach`` = (rx, ry) nodes (see the module docstring).
 
     ``first_moments=False`` computes count and square only (the semivariance's sums;
-    the others are left zero), with two inverse transforms instead of four.
+    the others are left zero), with two inverse transforms instead of four. Spectra are
+    multiplied in place (:mod:`lagwise.core.variography.spectra`) and dropped after their last
+    use, so at most :data:`SPECTRA_ALIVE` arrays of the padded size are alive at once.
     """
-    shape = padded_shape(nodes.count.shape, reach)
-
-    def forward(a: np.ndarray) -> np.ndarray:
-        return scipy.fft.rfft2(a, s=shape, workers=WORKERS)
-
-    def inverse(spectrum: np.ndarray) -> np.ndarray:
-        check_deadline()
-        return _window(scipy.fft.irfft2(spectrum, s=shape, workers=WORKERS), reach)
-
-    def cross(a_hat: np.ndarray, b_hat: np.ndarray) -> np.ndarray:
-        out = np.conj(a_hat)
-        out *= b_hat
-        return out
-
-    c_hat = forward(nodes.count)
-    count = np.rint(inverse(cross(c_hat, c_hat)))  # products of whole numbers
-    s_hat = forward(nodes.total)
-    q_hat = forward(nodes.squares)
+    t = _Transforms(nodes, padded_shape(nodes.shape, reach), reach)
+    c_hat = t.forward("count")
     if first_moments:
-        tail = inverse(cross(s_hat, c_hat))
-        product = inverse(cross(s_hat, s_hat))
+        s_hat = t.forward("total")
+        work = np.empty_like(c_hat)
+        spectra.cross_into(_flat(work), _flat(s_hat), _flat(c_hat))
+        tail = t.inverse(work)
+        spectra.power_into(_flat(s_hat), _flat(s_hat))
+        product = t.inverse(s_hat)
         del s_hat
-        tail2 = inverse(cross(q_hat, c_hat))
-        del q_hat, c_hat
+        q_hat = t.forward("squares")
+        del t.layer
+        spectra.cross_into(_flat(work), _flat(q_hat), _flat(c_hat))
+        del q_hat
+        tail2 = t.inverse(work)
+        del work
+        spectra.power_into(_flat(c_hat), _flat(c_hat))
+        count = np.rint(t.inverse(c_hat))  # products of whole numbers
+        del c_hat
         # corr(c, S)(s) = corr(S, c)(-s): reverse both axes of the symmetric window.
         head, head2 = tail[::-1, ::-1].copy(), tail2[::-1, ::-1].copy()
         square = tail2 + head2 - 2.0 * product
     else:
-        spectrum = cross(q_hat, c_hat)
-        del q_hat, c_hat
-        spectrum += np.conj(spectrum)  # conj(Q) C + conj(C) Q
-        spectrum -= 2.0 * (s_hat.real**2 + s_hat.imag**2)
+        q_hat = t.forward("squares")
+        spectra.twice_real_cross(_flat(q_hat), _flat(c_hat))  # conj(Q) C + conj(C) Q
+        spectra.power_into(_flat(c_hat), _flat(c_hat))
+        count = np.rint(t.inverse(c_hat))
+        del c_hat
+        s_hat = t.forward("total")
+        del t.layer
+        spectra.less_twice_power(_flat(q_hat), _flat(s_hat))
         del s_hat
-        square = inverse(spectrum)
-        del spectrum
+        square = t.inverse(q_hat)
+        del q_hat
         tail = head = tail2 = head2 = product = np.zeros_like(count)
     check_deadline()
     empty = count <= 0.0

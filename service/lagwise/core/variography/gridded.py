@@ -45,6 +45,7 @@ from .directions import DirectionClass
 from .fft import (
     LagSums,
     NodeSums,
+    RasterNodes,
     check_budget,
     class_table,
     classify_lags,
@@ -150,7 +151,7 @@ class GridReport:
 class _Grid:
     """Node sums plus where the grid lies."""
 
-    nodes: NodeSums
+    nodes: NodeSums | RasterNodes
     origin: tuple[float, float]
     source: str
     within: tuple[float, float, float]  # within-cell pairs, their sum of Delta^2 / 2, their sum of z_a z_b
@@ -158,18 +159,9 @@ class _Grid:
 
 
 def raster_nodes(raster: Raster) -> _Grid:
-    """Counts 1/0, centred values and squares of a raster's cells."""
+    """A raster's cells as nodes (counts 1/0, centred values and squares, formed as the transforms read them)."""
     mean, _, minimum, maximum = raster.moments
-    centred = raster.grid - mean
-    np.copyto(centred, 0.0, where=~raster.present)
-    nodes = NodeSums(
-        raster.present.astype(np.float64),
-        centred,
-        centred * centred,
-        raster.spacing,
-        mean,
-        max(abs(minimum), abs(maximum)),
-    )
+    nodes = RasterNodes(raster.grid, raster.present, raster.spacing, mean, max(abs(minimum), abs(maximum)))
     return _Grid(nodes, raster.origin, "raster", (0.0, 0.0, 0.0))
 
 
@@ -217,7 +209,7 @@ def binned_nodes(coords: np.ndarray, values: np.ndarray, cell: float, summary: S
 
 
 def _reach(grid: _Grid, radius: float) -> tuple[int, int]:
-    ny, nx = grid.nodes.count.shape
+    ny, nx = grid.nodes.shape
     dx, dy = grid.nodes.spacing
     return min(int(math.ceil(radius / dx)), nx - 1), min(int(math.ceil(radius / dy)), ny - 1)
 
@@ -288,7 +280,7 @@ def grid_classes(
 ) -> GridVariogram:
     """FFT sums, class tables and (for binned grids) error bounds of every class."""
     reach = _reach(grid, max(largest))
-    memory = check_budget(grid.nodes.count.shape, reach, limits, "/lags")
+    memory = check_budget(grid.nodes.shape, reach, limits, "/lags")
     check_deadline()
     sums = lag_sums(grid.nodes, reach, first_moments=statistic != "semivariance")
     edges = _resolve_edges(sums, explicit, largest, lags, directions, min_pairs, spacing or 0.0)
@@ -319,7 +311,7 @@ def grid_classes(
         )
         for k, e in enumerate(edges):
             flagged += int(np.sum(~(bounds[k, : len(e) - 1] <= tolerance)))
-    ny, nx = grid.nodes.count.shape
+    ny, nx = grid.nodes.shape
     py, px = padded_shape((ny, nx), reach)
     report = GridReport(
         source=grid.source,

@@ -1,0 +1,106 @@
+"""Unit checks of the FFT pair sums' parts: the in-place spectrum products, the windowed inverse,
+the raster's on-demand node layers and the working-memory estimate.
+
+References: numpy's complex arithmetic for the products; ``scipy.fft.irfft2`` (a whole 2-D inverse)
+for the windowed inverse; node arrays formed explicitly in numpy for the raster layers;
+``tracemalloc`` (numpy reports its data allocations to it) for the memory estimate.
+"""
+
+from __future__ import annotations
+
+import tracemalloc
+
+import numpy as np
+import pytest
+import scipy.fft
+from lagwise.core.data.raster import build_raster
+from lagwise.core.variography import spectra
+from lagwise.core.variography.fft import (
+    LAYERS,
+    NodeSums,
+    RasterNodes,
+    _Transforms,
+    fft_bytes,
+    lag_sums,
+    padded_shape,
+)
+
+
+def _spectrum(rng, n=1000):
+    return rng.normal(size=n) + 1j * rng.normal(size=n)
+
+
+def test_products_in_place_match_numpy(rng):
+    a, b = _spectrum(rng), _spectrum(rng)
+    out = np.empty_like(a)
+    spectra.cross_into(out, a, b)
+    np.testing.assert_allclose(out, np.conj(a) * b, rtol=1e-15, atol=1e-15)
+    power = a.copy()
+    spectra.power_into(power, power)
+    np.testing.assert_allclose(power, np.abs(a) ** 2, rtol=1e-15)
+    assert np.all(power.imag == 0.0)
+    q = b.copy()
+    spectra.twice_real_cross(q, a)
+    np.testing.assert_allclose(q, (np.conj(b) * a + np.conj(a) * b).real, rtol=1e-14, atol=1e-14)
+    s = _spectrum(rng)
+    less = q.copy()
+    spectra.less_twice_power(less, s)
+    np.testing.assert_allclose(less, q - 2.0 * np.abs(s) ** 2, rtol=1e-14, atol=1e-14)
+
+
+@pytest.mark.parametrize("reach", [(0, 0), (3, 0), (0, 4), (5, 7), (11, 8)])
+def test_windowed_inverse_matches_a_whole_inverse(reach, rng):
+    ny, nx = 9, 12
+    nodes = NodeSums(rng.random((ny, nx)), rng.random((ny, nx)), rng.random((ny, nx)), (1.0, 1.0), 0.0, 1.0)
+    shape = padded_shape((ny, nx), reach)
+    t = _Transforms(nodes, shape, reach)
+    spectrum = t.forward("total")
+    expected = scipy.fft.irfft2(spectrum, s=shape)
+    rx, ry = reach
+    rows = np.r_[shape[0] - ry : shape[0], 0 : ry + 1]
+    columns = np.r_[shape[1] - rx : shape[1], 0 : rx + 1]
+    got = t.inverse(spectrum)
+    np.testing.assert_allclose(got, expected[np.ix_(rows, columns)], rtol=1e-12, atol=1e-12)
+
+
+def test_raster_layers_are_the_explicit_node_arrays(rng):
+    nx, ny = 14, 9
+    values = rng.normal(5.0, 2.0, nx * ny)
+    values[rng.random(values.size) < 0.3] = np.nan
+    raster = build_raster((0.0, 0.0), (1.0, 1.5), (nx, ny), values)
+    mean = raster.moments[0]
+    present = ~np.isnan(values.reshape(ny, nx))
+    centred = np.where(present, values.reshape(ny, nx) - mean, 0.0)
+    explicit = NodeSums(present.astype(float), centred, centred**2, raster.spacing, mean, 1.0)
+    lazy = RasterNodes(raster.grid, raster.present, raster.spacing, mean, 1.0)
+    assert lazy.shape == explicit.shape == (ny, nx)
+    for layer in LAYERS:
+        out = np.full((ny, nx), 99.0)
+        lazy.fill(layer, out)
+        np.testing.assert_array_equal(out, getattr(explicit, layer))
+    for first_moments in (True, False):
+        a = lag_sums(lazy, (6, 5), first_moments)
+        b = lag_sums(explicit, (6, 5), first_moments)
+        for name in ("count", "square", "tail", "head", "tail2", "head2", "product"):
+            np.testing.assert_array_equal(getattr(a, name), getattr(b, name))
+
+
+@pytest.mark.parametrize("first_moments", [True, False])
+def test_working_memory_stays_within_the_estimate(first_moments, rng):
+    ny, nx, reach = 300, 420, (40, 30)
+    nodes = NodeSums(rng.random((ny, nx)), rng.random((ny, nx)), rng.random((ny, nx)), (1.0, 1.0), 0.0, 1.0)
+    lag_sums(nodes, reach, first_moments)  # compiled kernels and FFT plans made before measuring
+    tracemalloc.start()
+    try:
+        lag_sums(nodes, reach, first_moments)
+        _, peak = tracemalloc.get_traced_memory()
+    finally:
+        tracemalloc.stop()
+    py, px = padded_shape((ny, nx), reach)
+    spectrum = py * (px // 2 + 1) * 16
+    node_arrays = 3 * ny * nx * 8  # counted by the estimate, held by the caller here
+    assert peak <= fft_bytes((ny, nx), reach) - node_arrays
+    # The peak is the padded layer, two (semivariance) or three spectra and one inverse's window rows.
+    window_rows = 2 * (2 * reach[1] + 1) * (px // 2 + 1) * 16
+    windows = 8 * (2 * reach[0] + 1) * (2 * reach[1] + 1) * 8
+    assert peak <= (3 if not first_moments else 4) * spectrum + window_rows + windows + 0.05 * spectrum
