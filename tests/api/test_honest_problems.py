@@ -150,3 +150,20 @@ def test_every_invalid_geojson_value_is_counted(client):
     assert problem["detail"] == "60 fields are invalid (the first 20 listed)"
     assert problem["errors"][19]["pointer"] == "/samples/geojson/features/19/properties/v"
     assert problem["errors_omitted"] == 40
+
+
+def test_the_contract_describes_every_cause_of_a_415(client):
+    # Each cause the service refuses with 415 is named in the contract's 415 response and in /problems/.
+    body = b'{"samples": {"x": [0, 1, 2], "values": [1, 2, 3]}}'
+    refusals = [
+        client.post(VARIOGRAMS, data=body, content_type="text/csv"),
+        client.post(VARIOGRAMS, data=body, content_type="application/json; charset=latin-1"),
+        client.post(VARIOGRAMS, data=body, content_type="application/json", headers={"Content-Encoding": "br"}),
+    ]
+    assert [r.status_code for r in refusals] == [415, 415, 415]
+    contract = client.get("/openapi.json").get_json()
+    described = contract["components"]["responses"]["UnsupportedMediaType"]["description"]
+    kind = client.get("/problems/unsupported-media-type").get_json()["description"]
+    for text in (described, kind):
+        assert "application/json" in text and "multipart/form-data" in text
+        assert "charset other than UTF-8" in text and "Content-Encoding other than gzip" in text

@@ -45,7 +45,12 @@ KINDS = {
         "The Accept header names no media type this path can answer with; acceptable lists those it can.",
     ),
     "body-too-large": ProblemKind(413, "Body too large", "The body exceeds LAGWISE_MAX_BODY_BYTES."),
-    "unsupported-media-type": ProblemKind(415, "Unsupported media type", "Send Content-Type: application/json."),
+    "unsupported-media-type": ProblemKind(
+        415,
+        "Unsupported media type",
+        "Send Content-Type: application/json (or multipart/form-data with the samples as an Arrow stream), in "
+        "UTF-8: a charset other than UTF-8 is refused, and so is a Content-Encoding other than gzip.",
+    ),
     "invalid-input": ProblemKind(
         422, "Invalid input", "One or more fields are invalid; see errors for each field and sample index."
     ),
