@@ -25,7 +25,9 @@ Sections
   cell against the exact map and whether every cell lies within its stated bound.
 * ``raster``: a 4096 x 4096 raster with 20 % of its cells missing at random; 4
   direction classes (16 classes of 8 nodes) and a variogram map (32 cells of 8
-  nodes a side of the origin); the exact path is timed on a 256 x 256 part.
+  nodes a side of the origin), first calls of a fresh process (kernels loaded on a small
+  raster first) and again, alternated with the FFT of :data:`OLD_FFT_COMMIT`; the exact
+  path is timed on a 256 x 256 part.
 * ``exact_kernel``: the exact pair kernel at 50,000 samples uniform in the same square, 15
   classes up to 500, omnidirectional and 4 direction classes (tolerance 22.5 degrees), both
   cores; beside it ``scipy.spatial.distance.pdist`` + ``numpy.histogram`` at 20,000 samples
@@ -92,6 +94,10 @@ IDS_SAMPLES = 10_000_000
 IDS_ROUNDS = 3
 # The service before it held identifiers compactly (a Python string per id, a set to find repeats).
 OLD_IDS_COMMIT = "f2f5f18"
+# The FFT pair sums before spectra were multiplied in place and inverse transforms windowed (whole
+# 2-D inverses, node arrays of the raster's size, numpy temporaries per product).
+OLD_FFT_COMMIT = "991d94c"
+RASTER_ROUNDS = 2
 KRIGING_TARGETS = 1_000_000
 NOTE = "shared machine (up to 8 agents on 2 cores): figures vary with load"
 
@@ -361,6 +367,27 @@ def _raster_calls(raster):
     return middle - start, end - middle, result, found
 
 
+def _raster_case() -> dict:
+    """The big raster's two calls in this fresh process (cold: its first large FFTs and first-touched
+    memory; the compiled kernels loaded before by the same calls on a small raster, as a worker loads
+    them after its fork), then again (warm); wall and CPU seconds, and a checksum of the answers."""
+    _raster_calls(_raster(64, 5))
+    big = _raster(RASTER_SIDE, 3)
+    cpu = time.process_time()
+    classes, mapped, result, found = _raster_calls(big)
+    cold_cpu = time.process_time() - cpu
+    warm_classes, warm_mapped, _, _ = _raster_calls(big)
+    values = [r.value for d in result.directions for r in d.classes if r.value is not None]
+    return {
+        "cold": classes + mapped,
+        "classes": classes,
+        "mapped": mapped,
+        "cold_cpu": cold_cpu,
+        "warm": warm_classes + warm_mapped,
+        "checksum": [float(sum(values)), float(found.pairs.sum())],
+    }
+
+
 def raster() -> list[dict]:
     import numpy as np
     from lagwise.core.data.raster import raster_points
@@ -369,8 +396,12 @@ def raster() -> list[dict]:
     from lagwise.core.variography.lags import LagRequest
     from lagwise.core.warmup import warm_kernels
 
-    big = _raster(RASTER_SIDE, 3)
-    classes, mapped, _, _ = _raster_calls(big)
+    with tempfile.TemporaryDirectory(prefix="lagwise-old-fft-") as folder:
+        old_path = _old_sources(folder, OLD_FFT_COMMIT)
+        runs = [(_case("raster"), _case("raster", pythonpath=old_path)) for _ in range(RASTER_ROUNDS)]
+    ours = min((r[0] for r in runs), key=lambda r: r["cold"])
+    old = min((r[1] for r in runs), key=lambda r: r["cold"])
+    same = all(np.allclose(a["checksum"], b["checksum"], rtol=1e-12, atol=0.0) for a, b in runs)
     warm_kernels()
     small = _raster(256, 4)
     small_fft, _, fft_result, _ = _raster_calls(small)
@@ -391,14 +422,17 @@ def raster() -> list[dict]:
             if b.value is not None and b.value != 0.0
         )
     )
-    total = classes + mapped
     return [
         {
-            "figure": f"{RASTER_SIDE} x {RASTER_SIDE} raster, {MISSING:.0%} missing: 4 directions + variogram map",
-            "value": f"{total:.2f} s",
+            "figure": f"{RASTER_SIDE} x {RASTER_SIDE} raster, {MISSING:.0%} missing: 4 directions + variogram map, "
+            "first calls of a fresh process",
+            "value": f"{ours['cold']:.2f} s",
             "target": "< 5 s",
-            "met": bool(total < 5),
-            "detail": f"directions {classes:.2f} s, map {mapped:.2f} s; {big.size:,} cells with values",
+            "met": bool(ours["cold"] < 5),
+            "detail": f"directions {ours['classes']:.2f} s, map {ours['mapped']:.2f} s, {ours['cold_cpu']:.2f} s CPU "
+            f"(best of {RASTER_ROUNDS} processes); the same two calls again in that process {ours['warm']:.2f} s; "
+            f"the FFT of {OLD_FFT_COMMIT} in this run (alternated, fresh processes) {old['cold']:.2f} s "
+            f"(x{old['cold'] / ours['cold']:.2f}), again {old['warm']:.2f} s; same answers: {same}",
         },
         {
             "figure": "256 x 256 raster (20 % missing), 4 directions: FFT vs exact pair engine",
@@ -762,6 +796,8 @@ def _measure_case(case: str, *args: str) -> None:
         out = _sdk_case(args[0])
     elif case == "ids":
         out = _ids_case(args[0])
+    elif case == "raster":
+        out = _raster_case()
     else:
         out = _kriging_case()
     print(json.dumps({**out, "peak_bytes": resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024}))
