@@ -63,6 +63,17 @@ def test_raster_median_falls_back_to_points(client, rng):
     assert refused.status_code == 422 and refused.json["errors"][0]["pointer"] == "/statistic"
 
 
+@pytest.mark.parametrize("url", [URL, "/v1/variogram-maps"])
+@pytest.mark.parametrize("statistic", ["semivariance", "madogram"])
+def test_raster_asked_exact_gets_no_fallback_note(client, rng, url, statistic):
+    # method 'exact' is the caller's choice, not a fallback: no warning that the statistic lacks an FFT path.
+    body = {"samples": {"raster": _raster(rng)}, "statistic": statistic, "method": "exact"}
+    r = client.post(url, json=body)
+    assert r.status_code == 200, r.json
+    assert r.json["parameters"]["method"] == "exact"
+    assert not any("FFT" in w for w in r.json["warnings"]), r.json["warnings"]
+
+
 def test_raster_points_for_fits(client, rng):
     body = {"samples": {"raster": _raster(rng)}, "families": ["spherical"], "lags": {"width": 2.5, "count": 5}}
     r = client.post("/v1/model-fits", json=body)

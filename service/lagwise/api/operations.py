@@ -212,7 +212,9 @@ def _raster_variograms(document: dict, grid: Raster, stage: VariogramOptions) ->
     samples = raster_points(grid, settings().limits)
     stage = replace(stage, method="exact")
     validate_stages(samples, [("", stage)])
-    note = f"{stage.statistic!r} is not an FFT statistic: the raster's cells were taken as points"
+    note = None
+    if method != "exact":
+        note = f"{stage.statistic!r} is not an FFT statistic: the raster's cells were taken as points"
     return _experimental_answer(run_variogram(samples, stage, limits=settings().limits), samples, note)
 
 
