@@ -90,7 +90,11 @@ def _arrow_parts(body: Mapping[str, Any], table: Any, request_id: str) -> tuple[
     """The multipart body (options as JSON, the samples' Arrow ``table``) and its Content-Type, after
     refusing NaN and Infinity in either part as :func:`_encode` does for a JSON body."""
     options = {name: value for name, value in body.items() if name != "samples"}
-    pointers, total = columnar.non_finite(table, "/samples", MAX_LISTED)
+    prefix = "/samples"
+    if columnar.raster(body["samples"]):  # the layout stays in the options, the values go as the stream
+        options["samples"] = {"raster": {k: v for k, v in body["samples"]["raster"].items() if k != "values"}}
+        prefix = "/samples/raster"
+    pointers, total = columnar.non_finite(table, prefix, MAX_LISTED)
     errors = [{"pointer": p, "detail": NON_FINITE} for p in pointers]
     more, more_total = non_finite_errors(options, MAX_LISTED - len(errors))
     if total + more_total:
@@ -162,8 +166,9 @@ class Lagwise:
         Reused for every call (connection pooling); one is created by default.
     arrow_above : int or None
         With pyarrow installed, columnar samples of at least this many samples (default
-        20,000, about 1 MB of JSON) are sent as an Arrow stream in a multipart request (see
-        :mod:`lagwise_client.columnar`); None sends JSON always. Results are the same.
+        20,000, about 1 MB of JSON), and rasters of at least this many cells, are sent as an
+        Arrow stream in a multipart request (see :mod:`lagwise_client.columnar`); None sends
+        JSON always. Results are the same.
     """
 
     def __init__(
@@ -205,9 +210,12 @@ class Lagwise:
     def _arrow_table(self, body: Mapping[str, Any]) -> Any:
         """The Arrow table of the body's samples when they are to go as Arrow (see ``arrow_above``), else None."""
         samples = body.get("samples")
-        if self.arrow_above is None or samples is None or not columnar.columnar(samples) or not columnar.available():
+        if self.arrow_above is None or samples is None or not columnar.available():
             return None
-        if len(samples["values"]) < self.arrow_above:
+        if columnar.raster(samples):
+            values = samples["raster"]["values"]
+            return columnar.raster_table(values) if len(values) >= self.arrow_above else None
+        if not columnar.columnar(samples) or len(samples["values"]) < self.arrow_above:
             return None
         return columnar.samples_table(samples)
 

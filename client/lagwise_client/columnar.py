@@ -3,7 +3,9 @@
 pyarrow is optional: without it every request is JSON. With it, :class:`~lagwise_client.Lagwise`
 sends columnar samples of at least ``arrow_above`` samples (default :data:`ARROW_SAMPLES`) as a
 ``multipart/form-data`` request: part ``request`` (the options as JSON) and part ``samples``
-(an Arrow stream of the columns x, y, z, values, ids, censored, detection_limits). The service
+(an Arrow stream of the columns x, y, z, values, ids, censored, detection_limits). A raster of at
+least ``arrow_above`` cells goes the same way: its layout (origin, spacing, shape) in the request
+part, its values as the stream's one column ``values`` (null for a missing cell). The service
 gives the same numbers and the same ``provenance.input_sha256`` for either form.
 """
 
@@ -31,6 +33,27 @@ def available() -> bool:
 def columnar(samples: Any) -> bool:
     """True for a ``samples`` member made only of columns (not GeoJSON, a raster or several variables)."""
     return isinstance(samples, Mapping) and "values" in samples and set(samples) <= set(COLUMN_MEMBERS)
+
+
+def raster(samples: Any) -> bool:
+    """True for the ``samples`` member of a raster (see :func:`~lagwise_client.raster_samples`)."""
+    return (
+        isinstance(samples, Mapping)
+        and set(samples) == {"raster"}
+        and isinstance(samples["raster"], Mapping)
+        and "values" in samples["raster"]
+    )
+
+
+def raster_table(values: Any) -> Any:
+    """The Arrow table of a raster's values (one float64 column ``values``, None as null), or None
+    when a value is not a number (such a raster goes as JSON, and the service names the bad cell)."""
+    import pyarrow as pa
+
+    try:
+        return pa.table({"values": pa.array(values, type=pa.float64())})
+    except (pa.ArrowException, TypeError, ValueError, OverflowError):
+        return None
 
 
 def samples_table(samples: Mapping[str, Any]) -> Any:

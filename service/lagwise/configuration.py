@@ -117,6 +117,12 @@ SERVICE = (
         "samples per Arrow stream, counted from its batch headers before the columns are read "
         "(422 `limit-exceeded` above); it replaces `LAGWISE_MAX_SAMPLES` for such requests",
     ),
+    Variable(
+        "LAGWISE_MAX_ARROW_CELLS",
+        str(4096 * 4096),
+        "raster cells per Arrow stream (a raster's values as one Arrow column), counted from its batch headers "
+        "before the column is read (422 `limit-exceeded` above)",
+    ),
     *(Variable(f"LAGWISE_{f.name.upper()}", _limit_default(f), _limit_meaning(f.name)) for f in fields(Limits)),
     Variable(
         "LAGWISE_API_KEYS",

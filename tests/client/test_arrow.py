@@ -136,3 +136,28 @@ def test_numpy_columns_go_into_arrow_as_they_are(field):
     from_lists = columnar.samples_stream({"x": x.tolist(), "y": y.tolist(), "values": v.tolist()})
     table = pa.ipc.open_stream(columnar.samples_stream(document)).read_all()
     assert table.equals(pa.ipc.open_stream(from_lists).read_all())
+
+
+def test_a_large_raster_goes_as_arrow_with_the_json_rasters_results(service_url):
+    from lagwise_client import raster_samples
+
+    rng = np.random.default_rng(5)
+    x, y = np.meshgrid(np.arange(40), np.arange(25))
+    grid = np.sin(x / 6.0) + np.cos(y / 5.0) + rng.normal(0, 0.2, x.shape)
+    grid[rng.random(grid.shape) < 0.2] = np.nan
+    samples = raster_samples(grid, origin=(10.0, 20.0), spacing=(2.0, 2.0))
+    lags = {"width": 4.0, "count": 8}
+    session = RecordingSession()
+    with (
+        Lagwise(service_url, arrow_above=500, session=session) as by_arrow,
+        Lagwise(service_url, arrow_above=None) as by_json,
+    ):
+        a = by_arrow.experimental_variogram(samples, lags=lags)
+        assert session.sent[-1].startswith("multipart/form-data")
+        j = by_json.experimental_variogram(samples, lags=lags)
+        assert [c.value for c in a.directions[0].classes] == [c.value for c in j.directions[0].classes]
+        assert a.provenance["input_sha256"] == j.provenance["input_sha256"]
+        grid[3, 4] = np.inf  # refused before sending, named by its cell (x fastest)
+        with pytest.raises(ValidationError) as bad:
+            by_arrow.experimental_variogram(raster_samples(grid, spacing=(2.0, 2.0)), lags=lags)
+        assert [e["pointer"] for e in bad.value.errors] == [f"/samples/raster/values/{3 * 40 + 4}"]

@@ -8,7 +8,7 @@ from flask import current_app, g, request
 from marshmallow import Schema, ValidationError
 
 from . import members, prescan
-from .columnar import MULTIPART_MEDIA_TYPE, read_samples, refuse_charset, split_form
+from .columnar import MULTIPART_MEDIA_TYPE, read_raster_values, read_samples, refuse_charset, split_form
 from .fields import FURTHER_INVALID
 from .jsonio import MalformedJSON, parse, repeated_member
 from .problems import Problem, invalid_detail
@@ -158,27 +158,42 @@ def _multipart_document() -> dict:
     """The options of the ``request`` part with the ``samples`` part's Arrow columns as ``samples``.
 
     The body is limited by ``LAGWISE_MAX_ARROW_BYTES`` and the stream's rows by
-    ``LAGWISE_MAX_ARROW_ROWS`` (see :mod:`lagwise.api.columnar`); ``g.arrow_samples`` then
+    ``LAGWISE_MAX_ARROW_ROWS`` (a raster's cells by ``LAGWISE_MAX_ARROW_CELLS``; see
+    :mod:`lagwise.api.columnar`); ``g.arrow_samples`` then
     tells the views to use that row limit in place of ``LAGWISE_MAX_SAMPLES``.
     """
     settings = current_app.extensions["lagwise"]
     body = read_body(max(settings.max_arrow_bytes, current_app.config["MAX_CONTENT_LENGTH"]), "LAGWISE_MAX_ARROW_BYTES")
     options, stream = split_form(body, request.headers.get("Content-Type", ""))
     document = _json_object(bytes(options), "the request part")
-    if "samples" in document:
-        raise Problem(
-            "invalid-input",
-            "/samples: send the samples in the samples part (Arrow), not in the request part",
-            [
-                {
-                    "pointer": "/samples",
-                    "detail": "send the samples in the samples part (Arrow), not in the request part",
-                }
-            ],
-        )
-    document["samples"] = read_samples(stream, settings.max_arrow_rows)
+    raster = _raster_layout(document)
+    if raster is not None:
+        document["samples"] = {"raster": {**raster, "values": read_raster_values(stream, settings.max_arrow_cells)}}
+    else:
+        document["samples"] = read_samples(stream, settings.max_arrow_rows)
     g.arrow_samples = True
     return document
+
+
+def _raster_layout(document: dict) -> dict | None:
+    """The raster layout (origin, spacing, shape) a request part may carry as ``samples``, else None.
+
+    Raises
+    ------
+    Problem
+        422 for any other ``samples`` member in the request part (samples go in the samples part).
+    """
+    if "samples" not in document:
+        return None
+    given = document["samples"]
+    layout = given.get("raster") if isinstance(given, dict) and set(given) == {"raster"} else None
+    if isinstance(layout, dict) and "values" not in layout:
+        return layout
+    detail = (
+        "send the samples in the samples part (Arrow), not in the request part; for a raster the request "
+        'part\'s samples holds only {"raster": {"origin", "spacing", "shape"}} and the stream its values'
+    )
+    raise Problem("invalid-input", f"/samples: {detail}", [{"pointer": "/samples", "detail": detail}])
 
 
 def load_json(schema: Schema) -> dict:

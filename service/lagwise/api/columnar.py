@@ -5,7 +5,9 @@ Requests
 A ``multipart/form-data`` body with two parts: ``request`` (``application/json``: the
 options, without ``samples``) and ``samples`` (``application/vnd.apache.arrow.stream``:
 columns ``x``, ``y``, ``z``, ``values`` and optionally ``ids``,
-``censored``, ``detection_limits``). The stream is checked in three steps before any
+``censored``, ``detection_limits``; for a raster, the request part's ``samples`` holds
+``{"raster": {"origin", "spacing", "shape"}}`` and the stream one column ``values``, x
+fastest, null for a missing cell). The stream is checked in three steps before any
 column is converted: its schema (names and types), then the rows of each record batch,
 counted from the batch header (batches are views of the received buffer, nothing is
 copied before the count passes), then nulls. The columns then take the same path as
@@ -48,6 +50,7 @@ PART_NAMES = ("request", "samples")
 NUMBER_COLUMNS = ("x", "y", "z", "values")
 COLUMNS = (*NUMBER_COLUMNS, "ids", "censored", "detection_limits")
 MAX_LISTED = 20
+RASTER_POINTER = "/samples/raster"
 
 
 def refuse_charset(charset: str | None, what: str) -> None:
@@ -221,7 +224,12 @@ def _pointer(name: str, row: int | None = None) -> str:
     return base if row is None else f"{base}/{row}"
 
 
-def _batches(reader: pa.ipc.RecordBatchStreamReader, max_rows: int) -> list[pa.RecordBatch]:
+def _batches(
+    reader: pa.ipc.RecordBatchStreamReader,
+    max_rows: int,
+    limit: str = "LAGWISE_MAX_ARROW_ROWS",
+    advice: str = "Send fewer samples per request (thin or split the data set).",
+) -> list[pa.RecordBatch]:
     batches: list[pa.RecordBatch] = []
     rows = 0
     while True:
@@ -233,13 +241,7 @@ def _batches(reader: pa.ipc.RecordBatchStreamReader, max_rows: int) -> list[pa.R
             raise InvalidInput.at("/samples", f"the Arrow stream is truncated or corrupt: {exc}") from None
         rows += batch.num_rows
         if rows > max_rows:
-            raise LimitExceeded(
-                "LAGWISE_MAX_ARROW_ROWS",
-                max_rows,
-                rows,
-                "Send fewer samples per request (thin or split the data set).",
-                "/samples",
-            )
+            raise LimitExceeded(limit, max_rows, rows, advice, "/samples")
         try:
             batch.validate(full=True)
         except pa.ArrowException as exc:
@@ -343,12 +345,67 @@ def read_samples(data: bytes | memoryview, max_rows: int) -> dict:
     LimitExceeded
         ``LAGWISE_MAX_ARROW_ROWS``.
     """
-    try:
-        reader = pa.ipc.open_stream(pa.py_buffer(data))
-    except (pa.ArrowException, OSError) as exc:
-        raise InvalidInput.at("/samples", f"the samples part is not an Arrow IPC stream: {exc}") from None
+    reader = _open(data)
     _check_schema(reader.schema)
     return _samples_member(pa.Table.from_batches(_batches(reader, max_rows), schema=reader.schema))
+
+
+def _open(data: bytes | memoryview) -> pa.ipc.RecordBatchStreamReader:
+    try:
+        return pa.ipc.open_stream(pa.py_buffer(data))
+    except (pa.ArrowException, OSError) as exc:
+        raise InvalidInput.at("/samples", f"the samples part is not an Arrow IPC stream: {exc}") from None
+
+
+def read_raster_values(data: bytes | memoryview, max_cells: int) -> np.ndarray:
+    """A raster's values from an Arrow IPC stream of one number column ``values`` (x fastest, null
+    for a missing cell), checked as :func:`read_samples` checks sample columns.
+
+    Parameters
+    ----------
+    data : bytes or memoryview
+        The stream (the ``samples`` part).
+    max_cells : int
+        ``LAGWISE_MAX_ARROW_CELLS``: more rows are refused before the column is converted.
+
+    Returns
+    -------
+    ndarray of float64
+        The values, NaN for a missing cell (as the JSON form's null).
+
+    Raises
+    ------
+    InvalidInput
+        Naming the column (``/samples/raster/values``) or the cell (``/samples/raster/values/<i>``).
+    LimitExceeded
+        ``LAGWISE_MAX_ARROW_CELLS``.
+    """
+    reader = _open(data)
+    pointer = f"{RASTER_POINTER}/values"
+    names = reader.schema.names
+    if names != ["values"]:
+        raise InvalidInput.at(
+            pointer,
+            f"a raster's Arrow stream holds one column, values (x fastest, null for a missing cell); got {names}",
+        )
+    kind = reader.schema.field("values").type
+    if not (pa.types.is_floating(kind) or pa.types.is_integer(kind)):
+        raise InvalidInput.at(pointer, f"column values must hold numbers (floating-point or integer), got {kind}")
+    batches = _batches(reader, max_cells, "LAGWISE_MAX_ARROW_CELLS", "Send a smaller or coarser raster.")
+    column = pa.Table.from_batches(batches, schema=reader.schema).column("values")
+    values = column.cast(pa.float64(), safe=False).fill_null(np.nan).to_numpy()
+    given = column.is_valid().to_numpy(zero_copy_only=False) if column.null_count else None
+    nan = np.isnan(values) if given is None else np.isnan(values) & given
+    if nan.any():
+        where = np.flatnonzero(nan)
+        raise InvalidInput(
+            [
+                FieldIssue(f"{pointer}/{int(i)}", "not a finite number (null marks a missing cell)")
+                for i in where[:MAX_LISTED]
+            ],
+            total=int(where.size),
+        )
+    return values
 
 
 def wants_arrow() -> bool:

@@ -14,7 +14,7 @@ from dataclasses import dataclass
 import yaml
 from apispec import APISpec
 from apispec.ext.marshmallow import MarshmallowPlugin
-from marshmallow import Schema
+from marshmallow import Schema, fields
 
 from .. import __version__
 from . import examples
@@ -22,7 +22,7 @@ from .columnar import ARROW_MEDIA_TYPE, COLUMNS, METADATA_KEY, MULTIPART_MEDIA_T
 from .fields import choice_properties, number_array_properties, variants_properties
 from .operations import ARROW_ANSWERS, OPERATIONS
 from .problems import KINDS, PROBLEM_MEDIA_TYPE
-from .schemas import ProblemKindSchema, ProblemSchema, SampleOptions
+from .schemas import ArrowRaster, ProblemKindSchema, ProblemSchema, SampleOptions
 from .security import is_open
 
 OPENAPI_VERSION = "3.1.0"
@@ -184,7 +184,10 @@ SAMPLES_PART = (
     "censored/<name> (boolean) and detection_limits/<name>; a variable's unit in its field metadata key unit. "
     "Limits of their own: LAGWISE_MAX_ARROW_BYTES for the body and "
     "LAGWISE_MAX_ARROW_ROWS for the rows (it replaces LAGWISE_MAX_SAMPLES), checked before the columns are read. "
-    "The same samples give the same results and provenance.input_sha256 as JSON columns."
+    'A raster: the request part\'s samples holds its layout ({"raster": {"origin", "spacing", "shape"}}) '
+    "and the stream one number column values, nx * ny rows, x fastest, null for a missing cell "
+    "(LAGWISE_MAX_ARROW_CELLS rows at most). "
+    "The same samples give the same results and provenance.input_sha256 as JSON columns or a JSON raster."
 )
 
 
@@ -192,14 +195,16 @@ def _options_schema(spec: APISpec, schema: type[Schema]) -> dict:
     """A reference to ``schema`` without ``samples`` (registered once as ``<name>Options``)."""
     name = f"{schema.__name__}Options"
     if name not in spec.components.schemas:
-        meta = getattr(schema, "Meta", object)
-        exclude = (*getattr(meta, "exclude", ()), "samples")
         options = type(
             name,
             (schema,),
             {
-                "Meta": type("Meta", (meta,), {"exclude": exclude}),
-                "__doc__": f"{(schema.__doc__ or '').strip()} The options, without samples (multipart form).",
+                "samples": fields.Nested(
+                    ArrowRaster,
+                    metadata={"description": "Only for a raster: its layout (its values are the samples part)."},
+                ),
+                "__doc__": f"{(schema.__doc__ or '').strip()} The options, without samples but a raster's layout "
+                "(multipart form).",
             },
         )
         spec.components.schema(name, schema=options)

@@ -227,8 +227,8 @@ class SampleFeatureVariables(_SampleFeatureCollection):
     units = _units_field()
 
 
-class RasterGrid(BaseSchema):
-    """A regular 2-D grid of values (planar coordinates); a cell's value sits at its node, origin + i spacing."""
+class RasterLayout(BaseSchema):
+    """Where a raster's nodes lie (planar coordinates); node (i, j) at origin + (i dx, j dy)."""
 
     origin = fields.List(
         finite(), required=True, validate=validate.Length(equal=2), metadata={"description": "[x0, y0] of node (0, 0)."}
@@ -245,9 +245,21 @@ class RasterGrid(BaseSchema):
         validate=validate.Length(equal=2),
         metadata={"description": "[nx, ny] nodes along x and y."},
     )
+
+
+class RasterGrid(RasterLayout):
+    """A regular 2-D grid of values (planar coordinates); a cell's value sits at its node, origin + i spacing."""
+
     values = NullableNumberArray(
         required=True, metadata={"description": "nx * ny values, x fastest (i + nx j); null for a missing cell."}
     )
+
+
+class ArrowRaster(BaseSchema):
+    """The request part's samples of a raster sent as Arrow: its layout; its values are the samples part's
+    one column values (x fastest, null for a missing cell)."""
+
+    raster = fields.Nested(RasterLayout, required=True)
 
 
 class SampleRaster(BaseSchema):

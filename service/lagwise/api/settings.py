@@ -37,6 +37,7 @@ class Settings:
     max_body_bytes: int = DEFAULT_MAX_BODY_BYTES
     max_arrow_bytes: int = int(value("LAGWISE_MAX_ARROW_BYTES", {}))
     max_arrow_rows: int = int(value("LAGWISE_MAX_ARROW_ROWS", {}))
+    max_arrow_cells: int = int(value("LAGWISE_MAX_ARROW_CELLS", {}))
     limits: Limits = field(default_factory=Limits)
     deadline_seconds: float = 60.0
     api_key_digests: frozenset[str] = frozenset()
@@ -52,6 +53,7 @@ class Settings:
             max_body_bytes=whole_number("LAGWISE_MAX_BODY_BYTES", env),
             max_arrow_bytes=whole_number("LAGWISE_MAX_ARROW_BYTES", env),
             max_arrow_rows=whole_number("LAGWISE_MAX_ARROW_ROWS", env),
+            max_arrow_cells=whole_number("LAGWISE_MAX_ARROW_CELLS", env),
             limits=Limits(**limit_values),
             deadline_seconds=float(whole_number("LAGWISE_DEADLINE_SECONDS", env)),
             api_key_digests=_digests(env),
