@@ -34,6 +34,20 @@ def test_cell_weights_hand_example():
     assert averaged.sum() == pytest.approx(1.0) and averaged[4] == pytest.approx(0.5)
 
 
+def test_cell_weights_over_more_cells_than_int64_holds():
+    """Samples 1 apart with one of them 1e19 away: 2e19 cells of side 0.5 overflow 64-bit indexes.
+
+    Worked by hand as above (w_i = 1 / (L n_i)): with one grid origin at the lowest sample and cells of
+    0.5, every sample has a cell of its own, L = 20, so every weight is 1/20; the far sample's
+    weight, 1/L = 1/20, is the same at 1e19 as at 100.
+    """
+    coords = np.arange(20.0)[:, None]
+    near = cell_weights(np.where(coords == 19.0, 100.0, coords), 0.5, origins=1)
+    far = cell_weights(np.where(coords == 19.0, 1e19, coords), 0.5, origins=1)
+    assert near.tolist() == far.tolist() == [0.05] * 20
+    assert decluster(np.where(coords == 19.0, 1e19, coords), np.arange(20.0)).weights.sum() == pytest.approx(1.0)
+
+
 def test_nearest_neighbour_ratio_of_a_square_grid():
     """A k x k square grid of spacing s: mean nearest-neighbour distance s, hull area ((k - 1) s)^2,
     so Clark & Evans' (1954) R = s / (0.5 / sqrt(rho)) = 2 k / (k - 1) (worked by hand)."""

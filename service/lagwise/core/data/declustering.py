@@ -183,9 +183,9 @@ def cell_weights(coords: np.ndarray, cell_size: float, origins: int = ORIGINS) -
     offsets = _offsets(d, origins)
     total = np.zeros(n)
     scaled = (coords - low) / cell_size
-    span = tuple(int(s) for s in np.floor(scaled.max(axis=0) + 1.0).astype(np.int64) + 1)
+    span = np.floor(scaled.max(axis=0) + 1.0) + 1.0  # cells per axis, counted in floating point (no overflow)
     for offset in offsets:
-        total += _one_grid(np.floor(scaled + offset).astype(np.int64), span)
+        total += _one_grid(np.floor(scaled + offset), span)
     return total / origins
 
 
@@ -197,10 +197,14 @@ def _offsets(dimension: int, origins: int) -> np.ndarray:
     return offsets
 
 
-def _one_grid(cells: np.ndarray, span: tuple[int, ...]) -> np.ndarray:
-    """w_i = 1 / (L n_i) for integer cell indexes (n, d) below ``span`` on each axis."""
-    if float(np.prod(np.array(span, dtype=np.float64))) <= DENSE_KEYS:
-        key = np.ravel_multi_index(tuple(cells.T), span)
+def _one_grid(cells: np.ndarray, span: np.ndarray) -> np.ndarray:
+    """w_i = 1 / (L n_i) for whole-number cell indexes (n, d), held as floats, below ``span`` on each axis.
+
+    Indexes become integers only on the dense path (fewer than :data:`DENSE_KEYS` cells); a grid of
+    more cells (samples spread over 1e19 cells, say) is keyed by the float indexes themselves.
+    """
+    if float(np.prod(span)) <= DENSE_KEYS:
+        key = np.ravel_multi_index(tuple(cells.astype(np.int64).T), tuple(int(s) for s in span))
         counts = np.bincount(key)
         return 1.0 / (counts[key] * np.count_nonzero(counts))
     _, inverse, counts = np.unique(cells, axis=0, return_inverse=True, return_counts=True)
