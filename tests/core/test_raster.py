@@ -12,6 +12,7 @@ from lagwise.core.deadline import DeadlineExceeded, deadline
 from lagwise.core.errors import InvalidInput, LimitExceeded
 from lagwise.core.limits import Limits
 from lagwise.core.variography.experimental import experimental_variogram, raster_variogram
+from lagwise.core.variography.fft import fft_bytes
 from lagwise.core.variography.lags import LagRequest
 from lagwise.core.variography.maps import raster_map
 from scipy.spatial.distance import pdist
@@ -79,6 +80,20 @@ def test_memory_budget_checked_before_work(rng):
     assert info.value.limit == "LAGWISE_MEMORY_BUDGET_BYTES"
     with pytest.raises(LimitExceeded):
         raster_map(raster, cell_size=1.0, cells=4, limits=Limits(memory_budget_bytes=10_000))
+
+
+@pytest.mark.parametrize("statistic", ["semivariance", "covariance"])
+def test_a_rasters_budget_counts_what_its_transforms_hold(rng, statistic):
+    """No node arrays of its own, and two spectra fewer without the first moments: a raster's request fits
+    a budget equal to its estimate and is refused one byte under it."""
+    raster = build_raster((0, 0), (1, 1), (20, 15), _values(rng))
+    need = fft_bytes((15, 20), (10, 10), first_moments=statistic != "semivariance", node_arrays=0)
+    assert need < fft_bytes((15, 20), (10, 10))  # the binned grids' estimate holds three node arrays more
+    lags = LagRequest(width=2, count=5)
+    result = raster_variogram(raster, lags=lags, statistic=statistic, limits=Limits(memory_budget_bytes=need))
+    assert result.grid.memory_bytes == need
+    with pytest.raises(LimitExceeded):
+        raster_variogram(raster, lags=lags, statistic=statistic, limits=Limits(memory_budget_bytes=need - 1))
 
 
 def test_deadline_is_honoured(rng):

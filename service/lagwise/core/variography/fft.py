@@ -53,8 +53,10 @@ from .directions import BAND2, COS2_TOL, UX, UY, DirectionClass, direction_table
 FFT_STATISTICS = ("semivariance", "covariance", "covariance_noncentered", "correlogram")
 WORKERS = 2
 # Arrays alive at the peak of lag_sums, each the size of the padded grid in float64 (a half
-# spectrum in complex128 takes the same): the padded layer and three spectra.
+# spectrum in complex128 takes the same): the padded layer and three spectra (two for the
+# semivariance's sums alone).
 SPECTRA_ALIVE = 4
+SEMIVARIANCE_SPECTRA_ALIVE = 3
 LAYERS = ("count", "total", "squares")
 
 
@@ -159,15 +161,17 @@ def padded_shape(shape: tuple[int, int], reach: tuple[int, int]) -> tuple[int, i
     return scipy.fft.next_fast_len(ny + reach[1], real=True), scipy.fft.next_fast_len(nx + reach[0], real=True)
 
 
-def fft_bytes(shape: tuple[int, int], reach: tuple[int, int]) -> int:
-    """Working memory of :func:`lag_sums` in bytes (see :data:`SPECTRA_ALIVE`): the spectra, an
-    inverse transform's window rows (complex, then real), the sums' windows and three node arrays
-    of the grid's size (binned grids hold them; rasters need none)."""
+def fft_bytes(shape: tuple[int, int], reach: tuple[int, int], first_moments: bool = True, node_arrays: int = 3) -> int:
+    """Working memory of :func:`lag_sums` in bytes: the arrays alive at its peak
+    (:data:`SPECTRA_ALIVE`, or :data:`SEMIVARIANCE_SPECTRA_ALIVE` without the first moments), an
+    inverse transform's window rows (complex, then real), the sums' windows and ``node_arrays``
+    arrays of the grid's size (a binned grid holds three: counts, sums, squares; a raster none)."""
     py, px = padded_shape(shape, reach)
     spectrum = py * (px // 2 + 1) * 16
+    alive = SPECTRA_ALIVE if first_moments else SEMIVARIANCE_SPECTRA_ALIVE
     window_rows = 2 * (2 * reach[1] + 1) * (px // 2 + 1) * 16
     window = (2 * reach[0] + 1) * (2 * reach[1] + 1) * 8
-    return SPECTRA_ALIVE * spectrum + window_rows + 8 * window + 3 * shape[0] * shape[1] * 8
+    return alive * spectrum + window_rows + 8 * window + node_arrays * shape[0] * shape[1] * 8
 
 
 def transform_count(first_moments: bool) -> int:
@@ -176,9 +180,17 @@ def transform_count(first_moments: bool) -> int:
     return 3 + (4 if first_moments else 2)
 
 
-def check_budget(shape: tuple[int, int], reach: tuple[int, int], limits: Limits, pointer: str) -> int:
-    """Refuse FFT work whose memory estimate exceeds ``LAGWISE_MEMORY_BUDGET_BYTES``; returns the estimate."""
-    need = fft_bytes(shape, reach)
+def check_budget(
+    shape: tuple[int, int],
+    reach: tuple[int, int],
+    limits: Limits,
+    pointer: str,
+    first_moments: bool = True,
+    node_arrays: int = 3,
+) -> int:
+    """Refuse FFT work whose memory estimate (:func:`fft_bytes`) exceeds ``LAGWISE_MEMORY_BUDGET_BYTES``;
+    returns the estimate."""
+    need = fft_bytes(shape, reach, first_moments, node_arrays)
     if need > limits.memory_budget_bytes:
         py, px = padded_shape(shape, reach)
         raise LimitExceeded(

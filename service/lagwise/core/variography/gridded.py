@@ -280,9 +280,11 @@ def grid_classes(
 ) -> GridVariogram:
     """FFT sums, class tables and (for binned grids) error bounds of every class."""
     reach = _reach(grid, max(largest))
-    memory = check_budget(grid.nodes.shape, reach, limits, "/lags")
+    first_moments = statistic != "semivariance"
+    node_arrays = 0 if grid.source == "raster" else 3
+    memory = check_budget(grid.nodes.shape, reach, limits, "/lags", first_moments, node_arrays)
     check_deadline()
-    sums = lag_sums(grid.nodes, reach, first_moments=statistic != "semivariance")
+    sums = lag_sums(grid.nodes, reach, first_moments=first_moments)
     edges = _resolve_edges(sums, explicit, largest, lags, directions, min_pairs, spacing or 0.0)
     kmax = max(len(e) - 1 for e in edges)
     if max(e[-1] for e in edges) > max(largest) * (1 + 1e-12):

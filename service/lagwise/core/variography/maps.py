@@ -444,8 +444,9 @@ def raster_map(
         min(int(math.ceil(extent / raster.spacing[0])), nx - 1),
         min(int(math.ceil(extent / raster.spacing[1])), ny - 1),
     )
-    memory = check_budget((ny, nx), lag_reach, limits, "/cells")
-    table = map_table(lag_sums(grid.nodes, lag_reach, first_moments=statistic != "semivariance"), cell_size, cells)
+    first_moments = statistic != "semivariance"
+    memory = check_budget((ny, nx), lag_reach, limits, "/cells", first_moments, node_arrays=0)
+    table = map_table(lag_sums(grid.nodes, lag_reach, first_moments=first_moments), cell_size, cells)
     width = 2 * cells + 1
     flat = cell_values(statistic, table, grid.nodes.mean, grid.nodes.scale)
     defined = np.array([v is not None for v in flat]).reshape(width, width)
