@@ -46,6 +46,18 @@ def test_raster_map(client, rng):
     assert len(r.json["values"]) == 7 and r.json["parameters"]["raster"]["spacing"] == [2.0, 1.0]
 
 
+@pytest.mark.parametrize("cell_size", [1e-20, 1e-300])
+def test_raster_map_of_cells_far_below_the_spacing(client, rng, cell_size):
+    # Every lag vector but 0 lies past such a map (spacing 2 x 1, as the points' exact map says): no pairs, no failure.
+    raster = _raster(rng)
+    body = {"cell_size": cell_size, "cells": 3}
+    r = client.post("/v1/variogram-maps", json={**body, "samples": {"raster": raster}})
+    assert r.status_code == 200, r.json
+    exact = client.post("/v1/variogram-maps", json={**body, "samples": {"raster": raster}, "method": "exact"})
+    assert exact.status_code == 200, exact.json
+    assert r.json["pairs"] == exact.json["pairs"] == [[0] * 7] * 7
+
+
 def test_raster_map_median_falls_back_to_points(client, rng):
     body = {"samples": {"raster": _raster(rng)}, "cell_size": 2.0, "cells": 3, "statistic": "madogram"}
     r = client.post("/v1/variogram-maps", json=body)

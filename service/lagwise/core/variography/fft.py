@@ -399,8 +399,10 @@ def map_table(sums: LagSums, cell_size: float, cells: int) -> np.ndarray:
     counted once as h (its reverse is the lag vector -h).
     """
     hx, hy = sums.separations()
-    ix = np.floor(hx / cell_size + 0.5).astype(np.int64)
-    iy = np.floor(hy / cell_size + 0.5).astype(np.int64)
+    # Indexes past the map are clipped before they become integers: a cell much smaller than the
+    # grid's spacing (a raster's) would otherwise overflow int64 and wrap into the map.
+    ix = np.clip(np.floor(hx / cell_size + 0.5), -cells - 1, cells + 1).astype(np.int64)
+    iy = np.clip(np.floor(hy / cell_size + 0.5), -cells - 1, cells + 1).astype(np.int64)
     width = 2 * cells + 1
     keep = (np.abs(ix) <= cells) & (np.abs(iy) <= cells) & ((hx != 0.0) | (hy != 0.0)) & (sums.count > 0)
     b = ((iy + cells) * width + (ix + cells))[keep]
