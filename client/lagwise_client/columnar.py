@@ -45,11 +45,24 @@ def raster(samples: Any) -> bool:
     )
 
 
+def _fits(name: str, values: Any) -> bool:
+    """False for a column that pyarrow would convert but the JSON form refuses: booleans among the
+    numbers (pyarrow reads True as 1.0), numbers as ``censored`` flags (pyarrow reads 1 as True)."""
+    kind = getattr(getattr(values, "dtype", None), "kind", None)
+    if name == "censored":
+        return kind in (None, "b", "O")  # lists and object arrays are checked by pyarrow itself
+    if kind is not None and kind != "O":
+        return kind in ("i", "u", "f")
+    return not any(isinstance(v, bool) for v in values)
+
+
 def raster_table(values: Any) -> Any:
     """The Arrow table of a raster's values (one float64 column ``values``, None as null), or None
     when a value is not a number (such a raster goes as JSON, and the service names the bad cell)."""
     import pyarrow as pa
 
+    if not _fits("values", values):
+        return None
     try:
         return pa.table({"values": pa.array(values, type=pa.float64())})
     except (pa.ArrowException, TypeError, ValueError, OverflowError):
@@ -63,6 +76,8 @@ def samples_table(samples: Mapping[str, Any]) -> Any:
     import pyarrow as pa
 
     types = {name: pa.float64() for name in FLOAT_MEMBERS} | {"ids": pa.string(), "censored": pa.bool_()}
+    if not all(_fits(name, samples[name]) for name in samples if name != "ids"):
+        return None
     try:
         return pa.table({name: pa.array(samples[name], type=types[name]) for name in samples})
     except (pa.ArrowException, TypeError, ValueError, OverflowError):

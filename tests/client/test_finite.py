@@ -84,3 +84,19 @@ def test_missing_detection_limits_are_not_refused_in_the_arrow_form():
         Lagwise(OFFLINE, arrow_above=100, retries=0).experimental_variogram(
             x=np.arange(float(n)), values=np.ones(n), censored=[False] * n, detection_limits=limits
         )
+
+
+def test_booleans_among_numbers_and_numbers_as_flags_go_as_json():
+    # pyarrow would read True as 1.0 and 1 as True; the JSON form refuses both, naming the entry,
+    # so such columns are not put into an Arrow stream (None: the request goes as JSON).
+    pytest.importorskip("pyarrow")
+    from lagwise_client import columnar
+
+    x = np.arange(4.0)
+    assert columnar.samples_table({"x": x, "values": [1.0, True, 2.0, 3.0]}) is None
+    assert columnar.samples_table({"x": x, "values": np.array([True, False, True, True])}) is None
+    assert columnar.samples_table({"x": x, "values": x, "censored": np.array([1, 0, 0, 0])}) is None
+    assert columnar.raster_table([1.0, None, False, 2.0]) is None
+    kept = columnar.samples_table({"x": x, "values": [1, 2.0, 3, 4], "censored": np.array([True, False] * 2)})
+    assert kept is not None and kept.column("values").to_pylist() == [1.0, 2.0, 3.0, 4.0]
+    assert columnar.raster_table(np.array([1.0, np.nan, 2.0])) is not None
