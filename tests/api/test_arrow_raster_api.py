@@ -94,6 +94,16 @@ def test_nan_is_not_a_missing_cell_and_each_is_named(client, cells):
     assert "null marks a missing cell" in r.json["errors"][0]["detail"]
 
 
+def test_nan_and_infinities_are_named_in_one_problem(client, cells):
+    # As the sample columns' Arrow form and the JSON form do: every non-finite number listed at once.
+    given = np.nan_to_num(cells, nan=1.0).tolist()
+    given[3], given[7], given[40], given[41] = float("nan"), float("inf"), -float("inf"), None
+    column = pa.array(given, type=pa.float64(), from_pandas=False)
+    r = multipart(client, "/v1/experimental-variograms", {"samples": {"raster": LAYOUT}}, stream({"values": column}))
+    assert r.status_code == 422
+    assert [e["pointer"] for e in r.json["errors"]] == [f"/samples/raster/values/{i}" for i in (3, 7, 40)]
+
+
 def test_a_layout_that_does_not_match_the_cells_is_refused(client, cells):
     layout = {**LAYOUT, "shape": [NX, NY + 1]}
     r = multipart(client, "/v1/experimental-variograms", {"samples": {"raster": layout}}, _arrow_values(cells))

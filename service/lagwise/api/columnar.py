@@ -395,9 +395,11 @@ def read_raster_values(data: bytes | memoryview, max_cells: int) -> np.ndarray:
     column = pa.Table.from_batches(batches, schema=reader.schema).column("values")
     values = column.cast(pa.float64(), safe=False).fill_null(np.nan).to_numpy()
     given = column.is_valid().to_numpy(zero_copy_only=False) if column.null_count else None
-    nan = np.isnan(values) if given is None else np.isnan(values) & given
-    if nan.any():
-        where = np.flatnonzero(nan)
+    bad = ~np.isfinite(values)  # NaN numbers and infinities; a null (NaN here) is a missing cell
+    if given is not None:
+        bad &= given
+    if bad.any():
+        where = np.flatnonzero(bad)
         raise InvalidInput(
             [
                 FieldIssue(f"{pointer}/{int(i)}", "not a finite number (null marks a missing cell)")
