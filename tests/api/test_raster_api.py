@@ -86,6 +86,23 @@ def test_raster_asked_exact_gets_no_fallback_note(client, rng, url, statistic):
     assert not any("FFT" in w for w in r.json["warnings"]), r.json["warnings"]
 
 
+@pytest.mark.parametrize(
+    ("samples", "azimuth"),
+    [
+        ({"raster": {"origin": [0.0, 0.0], "spacing": [1.0, 1.0], "shape": [1, 9], "values": list(range(9))}}, 90),
+        ({"raster": {"origin": [0.0, 0.0], "spacing": [1.0, 1.0], "shape": [9, 1], "values": list(range(9))}}, 0),
+        ({"x": [5.0] * 9, "y": list(range(9)), "values": list(range(9))}, 90),
+        ({"x": list(range(9)), "y": [5.0] * 9, "values": list(range(9))}, 0),
+    ],
+)
+def test_automatic_classes_across_a_line_are_refused_either_way(client, samples, azimuth):
+    # A column (or row) of cells has no extent across it: cos 90 degrees rounding to 6e-17 must not
+    # give a class [0, 2.4e-16) that a row along y (cos 0 exactly 1, sin 0 exactly 0) is refused for.
+    r = client.post(URL, json={"samples": samples, "directions": [{"azimuth": azimuth, "tolerance": 10}]})
+    assert r.status_code == 422, r.json
+    assert r.json["errors"][0]["pointer"] == "/directions"
+
+
 def test_raster_points_for_fits(client, rng):
     body = {"samples": {"raster": _raster(rng)}, "families": ["spherical"], "lags": {"width": 2.5, "count": 5}}
     r = client.post("/v1/model-fits", json=body)

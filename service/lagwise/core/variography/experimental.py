@@ -36,6 +36,7 @@ from .gridded import (
 )
 from .lags import (
     AUTO_FINE_BINS,
+    NO_EXTENT,
     LagRequest,
     merge_sparse,
     quantile_edges,
@@ -250,7 +251,7 @@ def _resolve_edges(samples, summary, prepared, lags, directions, min_pairs, limi
     if explicit is not None:
         return [explicit] * len(directions), None
     largest = [_half_extent(samples, summary, d) for d in directions]
-    if min(largest) <= 0:
+    if min(largest) <= NO_EXTENT * summary.max_distance:
         raise InvalidInput.at("/directions", "the samples have no extent along a requested direction")
     _check_pairs(samples, prepared, max(largest), len(directions), passes, limits)
     if lags.method == "equal_pairs":

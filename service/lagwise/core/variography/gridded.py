@@ -57,6 +57,7 @@ from .fft import (
 from .lags import (
     AUTO_FINE_BINS,
     AUTO_MAX_CLASSES,
+    NO_EXTENT,
     LagRequest,
     merge_sparse,
     quantile_edges,
@@ -226,7 +227,7 @@ def lags_needed(lags: LagRequest, points, summary, directions) -> tuple[np.ndarr
     if explicit is not None:
         return explicit, [float(explicit[-1])] * len(directions)
     largest = [_half_extent(points, summary, d) for d in directions]
-    if min(largest) <= 0:
+    if min(largest) <= NO_EXTENT * summary.max_distance:
         raise InvalidInput.at("/directions", "the samples have no extent along a requested direction")
     return None, largest
 

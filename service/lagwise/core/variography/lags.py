@@ -40,6 +40,10 @@ AUTO_METHODS = ("equal_width", "equal_pairs")
 AUTO_MAX_CLASSES = 15
 AUTO_MAX_SPACING_CLASSES = 40
 AUTO_FINE_BINS = 300
+# A direction along which the samples' extent is below this share of their largest separation has
+# none: the projection on a unit vector of rounded sine and cosine (cos 90 degrees is 6e-17, not 0)
+# leaves about 1e-16 of the extent across it.
+NO_EXTENT = 1e-12
 MAX_CLASSES = 1000
 
 
