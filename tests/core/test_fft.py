@@ -2,7 +2,7 @@
 the raster's on-demand node layers and the working-memory estimate.
 
 References: numpy's complex arithmetic for the products; ``scipy.fft.irfft2`` (a whole 2-D inverse)
-for the windowed inverse; node arrays formed explicitly in numpy for the raster layers;
+for the windowed inverse; direct sums by numpy slices and the pair engine for the rounding estimate; node arrays formed explicitly in numpy for the raster layers;
 ``tracemalloc`` (numpy reports its data allocations to it) for the memory estimate.
 """
 
@@ -13,8 +13,10 @@ import tracemalloc
 import numpy as np
 import pytest
 import scipy.fft
-from lagwise.core.data.raster import build_raster
+from lagwise.core.data.raster import build_raster, raster_points
 from lagwise.core.variography import spectra
+from lagwise.core.variography.directions import DirectionClass
+from lagwise.core.variography.experimental import experimental_variogram, raster_variogram
 from lagwise.core.variography.fft import (
     LAYERS,
     NodeSums,
@@ -23,7 +25,10 @@ from lagwise.core.variography.fft import (
     fft_bytes,
     lag_sums,
     padded_shape,
+    square_rounding,
 )
+from lagwise.core.variography.gridded import raster_nodes
+from lagwise.core.variography.lags import LagRequest
 
 
 def _spectrum(rng, n=1000):
@@ -103,3 +108,56 @@ def test_working_memory_stays_within_the_estimate(first_moments, rng):
     window_rows = 2 * (2 * reach[1] + 1) * (px // 2 + 1) * 16
     windows = 8 * (2 * reach[0] + 1) * (2 * reach[1] + 1) * 8
     assert peak <= (3 if not first_moments else 4) * spectrum + window_rows + windows + 0.05 * spectrum
+
+
+def _direct_square(s: np.ndarray, present: np.ndarray, i: int, j: int) -> float:
+    """Sum over present node pairs (k, k + (i, j)) of (S_k - S_(k+s))^2, by numpy slices (j >= 0)."""
+    ny, nx = s.shape
+    tail = (slice(0, ny - j), slice(max(0, -i), nx - max(0, i)))
+    head = (slice(j, ny), slice(max(0, i), nx + min(0, i)))
+    both = present[tail] & present[head]
+    return float(np.sum(((s[tail] - s[head])[both]) ** 2))
+
+
+def test_rounding_estimate_covers_the_square_sums_error(rng):
+    """square_rounding against direct sums (numpy slices): trends, waves and noise, 10 % missing."""
+    for kind in range(3):
+        ny, nx = (int(v) for v in rng.integers(20, 200, 2))
+        x, y = np.meshgrid(np.arange(nx), np.arange(ny))
+        field = (10.0 * x, 1e3 * np.sin(x / 7.0) + y**2 / 10.0, 1e4 * rng.normal(size=x.shape))[kind]
+        field = field + 1e-6 * rng.normal(size=x.shape)
+        field[rng.random(field.shape) < 0.1] = np.nan
+        grid = raster_nodes(build_raster((0.0, 0.0), (1.0, 1.0), (nx, ny), field.ravel()))
+        reach = (4, 4)
+        sums = lag_sums(grid.nodes, reach, first_moments=False)
+        noise = square_rounding(grid.norms, grid.nodes.shape, reach)
+        present = ~np.isnan(field)
+        s = np.where(present, field - grid.nodes.mean, 0.0)
+        for i in range(-4, 5):
+            for j in range(0, 5):
+                assert abs(sums.square[j + 4, i + 4] - _direct_square(s, present, i, j)) <= noise
+
+
+@pytest.mark.parametrize("noise", [1e-1, 1e-5])
+def test_a_semivariance_within_rounding_is_left_undefined(noise, rng):
+    """A strong trend across x, little variation along y: the classes along y are either within
+    1e-6 of the pair engine on the cells as points, or undefined with the rounding reason (never a
+    negative or a wrong number)."""
+    nx, ny = 200, 150
+    x, _ = np.meshgrid(np.arange(nx), np.arange(ny))
+    values = (10.0 * x + noise * rng.normal(size=x.shape)).ravel()
+    raster = build_raster((0.0, 0.0), (1.0, 1.0), (nx, ny), values)
+    lags = LagRequest(width=1.0, count=4)
+    along_y = [DirectionClass(azimuth=0.0, tolerance=1.0)]
+    by_fft = raster_variogram(raster, lags=lags, directions=along_y)
+    exact = experimental_variogram(raster_points(raster), lags=lags, directions=along_y)
+    rounded = 0
+    for a, b in zip(by_fft.directions[0].classes, exact.directions[0].classes, strict=True):
+        assert a.pairs == b.pairs
+        if a.value is None and b.value is not None:
+            assert a.reason.startswith("the semivariance is within the FFT's rounding error")
+            rounded += 1
+        elif b.value is not None:
+            assert abs(a.value - b.value) <= 1e-6 * b.value
+    assert (rounded == 3) == (noise == 1e-5)
+    assert (rounded > 0) == any("rounding error" in w for w in by_fft.warnings)

@@ -589,6 +589,12 @@ def _from_grid(computed: GridVariogram, summary, resolved, statistic, min_pairs,
         rows = _rows(statistic, computed.table[k], e, np.full(len(e) - 1, np.nan), min_pairs, moments, blank)
         rows = tuple(_with_bound(row, computed, k, c) for c, row in enumerate(rows))
         results.append(DirectionResult(d, rows))
+    rounded = sum(1 for r in results for row in r.classes if (row.reason or "").startswith(ROUNDING))
+    if rounded:
+        notes.append(
+            f"{rounded} classes are left undefined: their semivariance is within the FFT's rounding error "
+            "(tiny beside the values' variance, as under a strong trend); method 'exact' on points computes them"
+        )
     notes.extend(_class_warnings(results, min_pairs, summary))
     return ExperimentalVariogram(
         directions=tuple(results),
@@ -606,7 +612,15 @@ def _from_grid(computed: GridVariogram, summary, resolved, statistic, min_pairs,
     )
 
 
+ROUNDING = "the semivariance is within the FFT's rounding error"
+
+
 def _with_bound(row: ClassRow, computed: GridVariogram, k: int, c: int) -> ClassRow:
+    floor = None if computed.floors is None else float(computed.floors[k, c])
+    if row.value is not None and floor is not None and 0.0 < floor and row.value <= floor:
+        reason = f"{ROUNDING} (about {floor:.3g}); use method 'exact' on the cells as points"
+        row = replace(row, value=None, reason=reason, uncertainty_reason=reason)
+        return replace(row, error_bound=None, pair_bound=0, bound_exceeded=False)
     row = replace(row, uncertainty_reason=NOT_COMPUTED if row.value is not None else row.uncertainty_reason)
     if computed.bounds is None or computed.pair_bounds is None:
         return replace(row, error_bound=0.0 if row.value is not None else None, pair_bound=0, bound_exceeded=False)

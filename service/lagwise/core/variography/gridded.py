@@ -53,6 +53,8 @@ from .fft import (
     half_plane,
     lag_sums,
     padded_shape,
+    rounding_floors,
+    square_rounding,
 )
 from .lags import (
     AUTO_FINE_BINS,
@@ -157,13 +159,17 @@ class _Grid:
     source: str
     within: tuple[float, float, float]  # within-cell pairs, their sum of Delta^2 / 2, their sum of z_a z_b
     spread: tuple[float, float] = (0.0, 0.0)  # largest |u_head - u_tail| along x, y (binned grids; coordinate units)
+    norms: tuple[float, float, float] = (0.0, 0.0, 0.0)  # sum C^2, S^2, Q^2 or bounds (fft.square_rounding)
 
 
 def raster_nodes(raster: Raster) -> _Grid:
     """A raster's cells as nodes (counts 1/0, centred values and squares, formed as the transforms read them)."""
-    mean, _, minimum, maximum = raster.moments
+    mean, variance, minimum, maximum = raster.moments
     nodes = RasterNodes(raster.grid, raster.present, raster.spacing, mean, max(abs(minimum), abs(maximum)))
-    return _Grid(nodes, raster.origin, "raster", (0.0, 0.0, 0.0))
+    # sum S^2 = n variance; sum S^4 <= max S^2 sum S^2 (no pass over the cells, no array).
+    squares = raster.size * variance
+    largest = max(maximum - mean, mean - minimum)
+    return _Grid(nodes, raster.origin, "raster", (0.0, 0.0, 0.0), norms=(raster.size, squares, largest**2 * squares))
 
 
 def offset_spread(
@@ -206,7 +212,8 @@ def binned_nodes(coords: np.ndarray, values: np.ndarray, cell: float, summary: S
         mean,
         max(abs(summary.minimum), abs(summary.maximum)),
     )
-    return _Grid(nodes, (float(low[0]), float(low[1])), "binned", (pairs, half_square, raw), spread)
+    norms = (float(np.dot(count, count)), float(np.dot(total, total)), float(np.dot(squares, squares)))
+    return _Grid(nodes, (float(low[0]), float(low[1])), "binned", (pairs, half_square, raw), spread, norms)
 
 
 def _reach(grid: _Grid, radius: float) -> tuple[int, int]:
@@ -264,6 +271,7 @@ class GridVariogram:
     pair_bounds: np.ndarray | None
     mean: float
     scale: float
+    floors: np.ndarray | None = None  # semivariance: each class's rounding floor (fft.rounding_floors)
 
 
 def grid_classes(
@@ -285,6 +293,7 @@ def grid_classes(
     node_arrays = 0 if grid.source == "raster" else 3
     memory = check_budget(grid.nodes.shape, reach, limits, "/lags", first_moments, node_arrays)
     check_deadline()
+    noise = None if first_moments else square_rounding(grid.norms, grid.nodes.shape, reach)
     sums = lag_sums(grid.nodes, reach, first_moments=first_moments)
     edges = _resolve_edges(sums, explicit, largest, lags, directions, min_pairs, spacing or 0.0)
     kmax = max(len(e) - 1 for e in edges)
@@ -292,6 +301,7 @@ def grid_classes(
         raise AssertionError("automatic classes reach beyond the transforms' lags")
     mask, classes = _classify(sums, directions, edges)
     table = class_table(sums, classes, mask, kmax)
+    floors = None if noise is None else rounding_floors(classes, sums.count[mask], kmax, noise)
     check_deadline()
     bounds = pair_bounds = None
     flagged = 0
@@ -328,7 +338,7 @@ def grid_classes(
         within_cell_pairs=int(grid.within[0]),
         flagged=flagged,
     )
-    return GridVariogram(table, edges, report, bounds, pair_bounds, grid.nodes.mean, grid.nodes.scale)
+    return GridVariogram(table, edges, report, bounds, pair_bounds, grid.nodes.mean, grid.nodes.scale, floors)
 
 
 def grid_cell(summary: Summary, explicit, largest, lags: LagRequest, spacing, limits: Limits) -> float:
