@@ -29,6 +29,7 @@ from lagwise.core.variography.fft import (
 )
 from lagwise.core.variography.gridded import raster_nodes
 from lagwise.core.variography.lags import LagRequest
+from lagwise.core.variography.maps import raster_map, variogram_map
 
 
 def _spectrum(rng, n=1000):
@@ -160,4 +161,25 @@ def test_a_semivariance_within_rounding_is_left_undefined(noise, rng):
         elif b.value is not None:
             assert abs(a.value - b.value) <= 1e-6 * b.value
     assert (rounded == 3) == (noise == 1e-5)
+    assert (rounded > 0) == any("rounding error" in w for w in by_fft.warnings)
+
+
+@pytest.mark.parametrize("noise", [1e-1, 1e-5])
+def test_a_map_cell_within_rounding_is_left_undefined(noise, rng):
+    """As for classes: each raster map cell is within 1e-6 of the exact map of the cells as points,
+    or undefined (with the warning), never a wrong or negative number."""
+    nx, ny = 120, 90
+    x, _ = np.meshgrid(np.arange(nx), np.arange(ny))
+    values = (10.0 * x + noise * rng.normal(size=x.shape)).ravel()
+    raster = build_raster((0.0, 0.0), (1.0, 1.0), (nx, ny), values)
+    by_fft = raster_map(raster, cell_size=1.0, cells=2)
+    exact = variogram_map(raster_points(raster), cell_size=1.0, cells=2)
+    assert by_fft.pairs.tolist() == exact.pairs.tolist()
+    rounded = 0
+    for a, b in zip(sum(by_fft.values, []), sum(exact.values, []), strict=True):
+        if a is None and b is not None:
+            rounded += 1
+        elif b is not None:
+            assert abs(a - b) <= 1e-6 * b
+    assert (rounded == 4) == (noise == 1e-5)  # the four cells along y, (0, +-1) and (0, +-2)
     assert (rounded > 0) == any("rounding error" in w for w in by_fft.warnings)

@@ -43,7 +43,7 @@ from ..errors import InvalidInput
 from ..limits import Limits
 from . import kernels as K
 from .bounds import map_bounds
-from .fft import check_budget, fft_bytes, lag_sums, map_table, padded_shape
+from .fft import check_budget, fft_bytes, lag_sums, map_floors, map_table, padded_shape, square_rounding
 from .gridded import MAX_GRID_SIDE, GridReport, binned_nodes, refuse_unbounded
 from .statistics import class_value
 
@@ -56,6 +56,19 @@ def cell_values(statistic: str, table: np.ndarray, mean: float, scale: float, me
         class_value(statistic, table[b], mean, scale, None if medians is None else medians[b]).value
         for b in range(table.shape[0])
     ]
+
+
+ROUNDING_NOTE = (
+    "{} map cells are left undefined: their semivariance is within the FFT's rounding error (tiny beside "
+    "the values' variance, as under a strong trend); method 'exact' on points computes them"
+)
+
+
+def without_rounding(values: list, floors: np.ndarray) -> tuple[list, int]:
+    """``values`` with None for each semivariance not above its cell's rounding floor
+    (:func:`~lagwise.core.variography.fft.map_floors`; a floor of 0 is exact), and how many."""
+    kept = [None if v is not None and 0.0 < f and v <= f else v for v, f in zip(values, floors, strict=True)]
+    return kept, sum(1 for a, b in zip(values, kept, strict=True) if a is not b)
 
 
 @dataclass(frozen=True)
@@ -84,6 +97,7 @@ class BinnedMap:
     pair_bound: np.ndarray
     bound_exceeded: np.ndarray
     report: GridReport
+    rounded: int = 0
 
 
 def grid_shape(extent: list[float], cell: float, radius: float) -> tuple[tuple[int, int], tuple[int, int]]:
@@ -174,7 +188,10 @@ def binned_map(
     table = map_table(sums, cell_size, cells)
     width = 2 * cells + 1
     mean, scale = grid.nodes.mean, grid.nodes.scale
-    values = cell_values(statistic, table, mean, scale)
+    values, rounded = cell_values(statistic, table, mean, scale), 0
+    if statistic == "semivariance":
+        noise = square_rounding(grid.norms, grid.nodes.shape, reach)
+        values, rounded = without_rounding(values, map_floors(sums, cell_size, cells, noise))
     grid_values = np.array([np.nan if v is None else v for v in values]).reshape(width, width)
     if statistic == "semivariance":
         numerator = sums.square / 2.0
@@ -204,4 +221,4 @@ def binned_map(
         flagged=int(exceeded.sum()),
         scope="map",
     )
-    return BinnedMap(values, pairs, bound, np.rint(pair_bound).astype(np.int64), exceeded, report)
+    return BinnedMap(values, pairs, bound, np.rint(pair_bound).astype(np.int64), exceeded, report, rounded)

@@ -422,6 +422,18 @@ def rounding_floors(classes: LagClasses, count: np.ndarray, kmax: int, noise: fl
     return floors
 
 
+def _map_bins(sums: LagSums, cell_size: float, cells: int) -> tuple[np.ndarray, np.ndarray]:
+    """The lag vectors a map holds (mask) and their flat cell index, as :func:`map_table` bins them."""
+    hx, hy = sums.separations()
+    # Indexes past the map are clipped before they become integers: a cell much smaller than the
+    # grid's spacing (a raster's) would otherwise overflow int64 and wrap into the map.
+    ix = np.clip(np.floor(hx / cell_size + 0.5), -cells - 1, cells + 1).astype(np.int64)
+    iy = np.clip(np.floor(hy / cell_size + 0.5), -cells - 1, cells + 1).astype(np.int64)
+    width = 2 * cells + 1
+    keep = (np.abs(ix) <= cells) & (np.abs(iy) <= cells) & ((hx != 0.0) | (hy != 0.0)) & (sums.count > 0)
+    return keep, ((iy + cells) * width + (ix + cells))[keep]
+
+
 def map_table(sums: LagSums, cell_size: float, cells: int) -> np.ndarray:
     """Accumulator table ((2 cells + 1)^2, ACCUMULATORS) of a variogram map from ordered lag vectors.
 
@@ -430,13 +442,8 @@ def map_table(sums: LagSums, cell_size: float, cells: int) -> np.ndarray:
     counted once as h (its reverse is the lag vector -h).
     """
     hx, hy = sums.separations()
-    # Indexes past the map are clipped before they become integers: a cell much smaller than the
-    # grid's spacing (a raster's) would otherwise overflow int64 and wrap into the map.
-    ix = np.clip(np.floor(hx / cell_size + 0.5), -cells - 1, cells + 1).astype(np.int64)
-    iy = np.clip(np.floor(hy / cell_size + 0.5), -cells - 1, cells + 1).astype(np.int64)
+    keep, b = _map_bins(sums, cell_size, cells)
     width = 2 * cells + 1
-    keep = (np.abs(ix) <= cells) & (np.abs(iy) <= cells) & ((hx != 0.0) | (hy != 0.0)) & (sums.count > 0)
-    b = ((iy + cells) * width + (ix + cells))[keep]
     out = np.zeros((width * width, K.ACCUMULATORS))
     d = np.sqrt(hx * hx + hy * hy)[keep]
     n = sums.count[keep]
@@ -454,3 +461,14 @@ def map_table(sums: LagSums, cell_size: float, cells: int) -> np.ndarray:
         out[:, column] = np.bincount(b, weights=weights, minlength=width * width)
     out[:, K.COUNT] = np.rint(out[:, K.COUNT])
     return out
+
+
+def map_floors(sums: LagSums, cell_size: float, cells: int, noise: float) -> np.ndarray:
+    """Semivariance below which each map cell ((2 cells + 1)^2, table order) is rounding, as
+    :func:`rounding_floors` for classes (inf where a cell holds no pair)."""
+    keep, b = _map_bins(sums, cell_size, cells)
+    width = 2 * cells + 1
+    vectors = np.bincount(b, minlength=width * width)
+    pairs = np.bincount(b, weights=sums.count[keep], minlength=width * width)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return np.where(pairs > 0, vectors * noise / (2.0 * pairs), np.inf)

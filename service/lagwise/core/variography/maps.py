@@ -40,9 +40,26 @@ from ..data.summary import Summary, summarise
 from ..errors import FieldIssue, InvalidInput, LimitExceeded
 from ..limits import Limits
 from . import kernels as K
-from .binned_maps import binned_map, cell_values, grid_shape, map_grid_cell, refuse_for_grid
+from .binned_maps import (
+    ROUNDING_NOTE,
+    binned_map,
+    cell_values,
+    grid_shape,
+    map_grid_cell,
+    refuse_for_grid,
+    without_rounding,
+)
 from .bounds import BOUND_STATISTICS
-from .fft import check_budget, check_statistic, lag_sums, map_table, padded_shape, transform_count
+from .fft import (
+    check_budget,
+    check_statistic,
+    lag_sums,
+    map_floors,
+    map_table,
+    padded_shape,
+    square_rounding,
+    transform_count,
+)
 from .gridded import DEFAULT_TOLERANCE, METHODS, GridReport, grid_summary, raster_nodes
 from .pairs import X_SWEEP, estimate_pairs_within, in_chunks, prepare, sweep_visits
 from .statistics import ACCUMULATION_MODE, STATISTICS
@@ -322,6 +339,8 @@ def _grid_map(samples, summary, cell_size, cells, statistic, min_pairs, limits, 
         samples, summary, cell_size=cell_size, cells=cells, statistic=statistic, limits=limits, tolerance=tolerance
     )
     warnings = list(samples.warnings)
+    if found.rounded:
+        warnings.append(ROUNDING_NOTE.format(found.rounded))
     if found.report.flagged:
         warnings.append(
             f"{found.report.flagged} map cells have a grid error bound above {tolerance:g} (relative); "
@@ -446,9 +465,14 @@ def raster_map(
     )
     first_moments = statistic != "semivariance"
     memory = check_budget((ny, nx), lag_reach, limits, "/cells", first_moments, node_arrays=0)
-    table = map_table(lag_sums(grid.nodes, lag_reach, first_moments=first_moments), cell_size, cells)
+    sums = lag_sums(grid.nodes, lag_reach, first_moments=first_moments)
+    table = map_table(sums, cell_size, cells)
     width = 2 * cells + 1
-    flat = cell_values(statistic, table, grid.nodes.mean, grid.nodes.scale)
+    flat, rounded = cell_values(statistic, table, grid.nodes.mean, grid.nodes.scale), 0
+    if not first_moments:
+        noise = square_rounding(grid.norms, grid.nodes.shape, lag_reach)
+        flat, rounded = without_rounding(flat, map_floors(sums, cell_size, cells, noise))
+    del sums
     defined = np.array([v is not None for v in flat]).reshape(width, width)
     py, px = padded_shape((ny, nx), lag_reach)
     report = GridReport(
@@ -466,7 +490,7 @@ def raster_map(
         pairs=table[:, K.COUNT].astype(np.int64).reshape(width, width),
         statistic=statistic,
         summary=summary,
-        warnings=raster.warnings,
+        warnings=raster.warnings + ((ROUNDING_NOTE.format(rounded),) if rounded else ()),
         min_pairs=int(min_pairs),
         method="grid",
         grid=report,
