@@ -19,8 +19,11 @@ candidates per pair in range (the x-sorted sweep took 1.55: its window is a stri
 disc). Each run of candidates is binned in spans of :data:`SPAN`: one SIMD loop computes
 separations, distances (square roots), value differences and equal-width classes (floor division),
 with four directions' angle tests in the same loop when there are at most four without band; the
-scalar additions into the tables follow. About 12–18 cycles per pair in range omnidirectional and
-19–22 with 4 direction classes, from 22–24 and 39 for the x-sorted sweep (one thread, the two
+scalar additions into the tables follow. With those four directions a run of a later column is first
+cut by the sector edges (:func:`cut_run`): the rows far from every edge's line are certainly in one
+sector and skip the angle tests (:func:`bin_piece_one`), about 88 % of them at 50,000 samples. About
+12–18 cycles per pair in range omnidirectional and 13.6–14.1 with 4 direction classes (15.6–17.2
+before the cut, in the same sessions), from 22–24 and 39 for the x-sorted sweep (one thread, the
 kernels alternated in one session; DEVELOPERS.md).
 """
 
@@ -51,6 +54,10 @@ ROW_BLOCK = 64
 SPAN = 256  # candidate pairs binned at a time (the scratch columns stay in the L1 cache)
 UNSURE = 1e-6  # distances this close to an edge (in class widths) take the exact lookup
 COPIES = 4  # interleaved copies of a thread's table (a power of two)
+CUT_RUN = 64  # runs of at least this many candidates are cut by the sector edges (cut_run)
+# Shorter pieces of one direction take the four tests: the compiled loop without them runs as scalar
+# code below about 36 pairs (a threshold of the vectorizer, measured), slower than the four tests.
+MIN_PIECE = 40
 
 
 @njit(cache=True)
@@ -251,14 +258,14 @@ def class_of(padded, lut, k, m, d, kmax):
     return c if (c >= 0) & (padded[k, c + 2] < np.inf) else kmax
 
 
-@njit(cache=True)
-def bin_span_four(cols, i, start, stop, max_d2, sectors, padded, lut, inv_cell, origin, inv_step, kmax, scratch, marks):
-    """:func:`bin_span` for up to four directions without band sharing equal-width classes: the
-    separations, the class (floor division) and the four angle tests in one SIMD loop; the exact
-    lookup again where a distance lies within :data:`UNSURE` widths of an edge."""
-    xs, ys, zs, vs = cols[0, start:stop], cols[1, start:stop], cols[2, start:stop], cols[3, start:stop]
-    sx, sy, sd, sv = scratch[0], scratch[1], scratch[2], scratch[3]
-    bins, passes, best = marks[0], marks[1], marks[2]
+@njit(cache=True, inline="always")
+def bin_span_four(
+    cols, i, start, stop, q0, q1, max_d2, sectors, padded, lut, inv_cell, origin, inv_step, kmax, scratch, marks
+):  # fmt: skip
+    """:func:`bin_span` for up to four directions without band sharing equal-width classes, on the
+    pairs q0 <= q < q1 of the span [start, stop): the separations, the class (floor division) and the
+    four angle tests in one SIMD loop; the exact lookup again where a distance lies within
+    :data:`UNSURE` widths of an edge."""
     xi = cols[0, i]
     yi = cols[1, i]
     zi = cols[2, i]
@@ -268,24 +275,28 @@ def bin_span_four(cols, i, start, stop, max_d2, sectors, padded, lut, inv_cell, 
     ux2, uy2, c2 = sectors[0, 2], sectors[1, 2], sectors[2, 2]
     ux3, uy3, c3 = sectors[0, 3], sectors[1, 3], sectors[2, 3]
     k1, k2, k3, none = np.int32(1), np.int32(2), np.int32(3), np.int32(0)
-    span = stop - start
     stride = np.int32(kmax + 1)
     dropped = np.int32(kmax)
     top = np.float64(kmax)
+    # Unsigned indices (pair j = start + q, its scratch column q): no negative-index wrap-around to test.
+    first = np.uint64(start + q0)
+    at = np.uint64(q0)
     zero = 0
     unsure = 0
     several = 0
-    for q in range(span):
-        dx = xs[q] - xi
-        dy = ys[q] - yi
-        dz = zs[q] - zi
+    for r in range(q1 - q0):
+        j = first + np.uint64(r)
+        q = at + np.uint64(r)
+        dx = cols[0, j] - xi
+        dy = cols[1, j] - yi
+        dz = cols[2, j] - zi
         hh2 = dx * dx + dy * dy
         d2 = hh2 + dz * dz
         d = math.sqrt(d2)
-        sx[q] = dx
-        sy[q] = dy
-        sd[q] = d
-        sv[q] = vs[q] - vi
+        scratch[0, q] = dx
+        scratch[1, q] = dy
+        scratch[2, q] = d
+        scratch[3, q] = cols[3, j] - vi
         zero += np.int32(d2 == 0.0)
         t = (d - origin) * inv_step
         f = np.floor(t)
@@ -298,20 +309,23 @@ def bin_span_four(cols, i, start, stop, max_d2, sectors, padded, lut, inv_cell, 
         count = np.int32(a0) + np.int32(a1) + np.int32(a2) + np.int32(a3)
         k = k3 if a3 else (k2 if a2 else (k1 if a1 else none))
         member = (t >= 0.0) & (t < top) & (d2 > 0.0) & (d2 <= max_d2) & (count == 1)
-        passes[q] = count
-        best[q] = k
-        bins[q] = k * stride + (np.int32(f) if member else dropped)
+        marks[1, q] = count
+        marks[2, q] = k
+        marks[0, q] = k * stride + (np.int32(f) if member else dropped)
         several += np.int32(count > 1)
     if unsure > 0:
         last = np.float64(lut.shape[1] - 1)
-        for q in range(span):
-            dx = xs[q] - xi
-            dy = ys[q] - yi
-            dz = zs[q] - zi
+        for r in range(q1 - q0):
+            j = first + np.uint64(r)
+            q = at + np.uint64(r)
+            dx = cols[0, j] - xi
+            dy = cols[1, j] - yi
+            dz = cols[2, j] - zi
             d2 = dx * dx + dy * dy + dz * dz
-            c = class_of(padded, lut, 0, np.int64(min(sd[q] * inv_cell, last)), sd[q], kmax)
-            member = (d2 > 0.0) & (d2 <= max_d2) & (passes[q] == 1)
-            bins[q] = best[q] * stride + (np.int32(c) if member else dropped)
+            d = scratch[2, q]
+            c = class_of(padded, lut, 0, np.int64(min(d * inv_cell, last)), d, kmax)
+            member = (d2 > 0.0) & (d2 <= max_d2) & (marks[1, q] == 1)
+            marks[0, q] = marks[2, q] * stride + (np.int32(c) if member else dropped)
     return zero, several
 
 
@@ -339,8 +353,8 @@ def bin_span(
     to a loop.
     """
     if four:
-        return bin_span_four(cols, i, start, stop, max_d2, sectors, padded, lut, inv_cell, origin, inv_step, kmax,
-                             scratch, marks)  # fmt: skip
+        return bin_span_four(cols, i, start, stop, 0, stop - start, max_d2, sectors, padded, lut, inv_cell, origin,
+                             inv_step, kmax, scratch, marks)  # fmt: skip
     xs, ys, zs, vs = cols[0, start:stop], cols[1, start:stop], cols[2, start:stop], cols[3, start:stop]
     sx, sy, sd, sv = scratch[0], scratch[1], scratch[2], scratch[3]
     bins, passes, best = marks[0], marks[1], marks[2]
@@ -570,6 +584,268 @@ def add_range(table, copy_rows, cols, i, lo, hi, max_d2, sectors, omni, four, di
 
 
 @njit(cache=True, inline="always")
+def bin_piece_one(cols, i, start, stop, q0, q1, k, max_d2, padded, lut, inv_cell, origin, inv_step, kmax, scratch,
+                  marks):  # fmt: skip
+    """:func:`bin_span_four` on pairs q0 <= q < q1 of the span that direction ``k`` alone certainly admits
+    (:func:`cut_run`): the same separations, classes and bins, without the angle tests."""
+    xi = cols[0, i]
+    yi = cols[1, i]
+    zi = cols[2, i]
+    vi = cols[3, i]
+    stride = np.int32(kmax + 1)
+    offset = np.int32(k) * stride
+    sector = np.int32(k)
+    one = np.int32(1)
+    dropped = np.int32(kmax)
+    top = np.float64(kmax)
+    first = np.uint64(start + q0)
+    at = np.uint64(q0)
+    zero = 0
+    unsure = 0
+    for r in range(q1 - q0):
+        j = first + np.uint64(r)
+        q = at + np.uint64(r)
+        dx = cols[0, j] - xi
+        dy = cols[1, j] - yi
+        dz = cols[2, j] - zi
+        d2 = dx * dx + dy * dy + dz * dz
+        d = math.sqrt(d2)
+        scratch[0, q] = dx
+        scratch[1, q] = dy
+        scratch[2, q] = d
+        scratch[3, q] = cols[3, j] - vi
+        zero += np.int32(d2 == 0.0)
+        t = (d - origin) * inv_step
+        f = np.floor(t)
+        frac = t - f
+        unsure += np.int32((frac < UNSURE) | (frac > 1.0 - UNSURE))
+        member = (t >= 0.0) & (t < top) & (d2 > 0.0) & (d2 <= max_d2)
+        marks[1, q] = one
+        marks[2, q] = sector
+        marks[0, q] = offset + (np.int32(f) if member else dropped)
+    if unsure > 0:
+        last = np.float64(lut.shape[1] - 1)
+        for r in range(q1 - q0):
+            j = first + np.uint64(r)
+            q = at + np.uint64(r)
+            dx = cols[0, j] - xi
+            dy = cols[1, j] - yi
+            dz = cols[2, j] - zi
+            d2 = dx * dx + dy * dy + dz * dz
+            d = scratch[2, q]
+            c = class_of(padded, lut, 0, np.int64(min(d * inv_cell, last)), d, kmax)
+            marks[0, q] = offset + (np.int32(c) if (d2 > 0.0) & (d2 <= max_d2) else dropped)
+    return zero
+
+
+# Half-width (radians) of the angles around a sector edge whose pairs take the exact angle tests: far
+# wider than the rounding of the test proj^2 - |h|^2 cos^2 (a few 1e-16 |h|^2) wherever
+# sin(2 tolerance) >= EDGE_SINE (the test's value there is at least EDGE_MARGIN * EDGE_SINE |h|^2).
+EDGE_MARGIN = 1e-8
+EDGE_SINE = 1e-4
+
+
+@njit(cache=True)
+def sector_edges(sectors, ndir):
+    """The sector edges of up to four directions without band as y-bands per unit of x:
+    ``bands[0, b]`` and ``bands[1, b]`` are tan(phi - EDGE_MARGIN) and tan(phi + EDGE_MARGIN) of the
+    edges' angles phi from the x axis (in (-pi/2, pi/2), increasing; edges closer than twice
+    EDGE_MARGIN merged). Returns (bands, count); count 0 when the runs are not to be cut (an edge
+    within 1e-6 radians of the y axis, a tolerance with sin(2 tolerance) < :data:`EDGE_SINE`, or no edge).
+    """
+    angles = np.empty(2 * ndir)
+    count = 0
+    for k in range(ndir):
+        ux, uy, c2 = sectors[0, k], sectors[1, k], sectors[2, k]
+        if c2 <= 0.0:
+            continue  # tolerance 90 degrees: every pair, no edge
+        cosine = math.sqrt(c2 / (ux * ux + uy * uy))
+        if not cosine < 1.0:
+            return np.empty((2, 0)), np.empty(0, np.int64), 0
+        tolerance = math.acos(cosine)
+        if math.sin(2.0 * tolerance) < EDGE_SINE:
+            return np.empty((2, 0)), np.empty(0, np.int64), 0
+        axis = math.atan2(uy, ux)
+        for side in (-1.0, 1.0):
+            phi = axis + side * tolerance
+            phi -= math.pi * math.floor(phi / math.pi + 0.5)  # into [-pi/2, pi/2)
+            if abs(phi) > 0.5 * math.pi - 1e-6:
+                return np.empty((2, 0)), np.empty(0, np.int64), 0
+            angles[count] = phi
+            count += 1
+    if count == 0:
+        return np.empty((2, 0)), np.empty(0, np.int64), 0
+    angles = np.sort(angles[:count])
+    bands = np.empty((2, count))
+    lowest = np.empty(count)  # the first and last edge angle of each merged band
+    tops = np.empty(count)
+    merged_count = 0
+    top = 0.0
+    for b in range(count):
+        if merged_count > 0 and angles[b] - EDGE_MARGIN <= top + EDGE_MARGIN:
+            top = angles[b]
+            tops[merged_count - 1] = top
+            bands[1, merged_count - 1] = math.tan(top + EDGE_MARGIN)
+            continue
+        top = angles[b]
+        tops[merged_count] = top
+        bands[0, merged_count] = math.tan(top - EDGE_MARGIN)
+        bands[1, merged_count] = math.tan(top + EDGE_MARGIN)
+        lowest[merged_count] = angles[b]
+        merged_count += 1
+    # The direction alone admitting the angles of each gap (-1: none or several), from the test at the
+    # gap's middle angle, far from every edge; gap b lies below band b, the last above the last band.
+    gaps = np.empty(merged_count + 1, dtype=np.int64)
+    for g in range(merged_count + 1):
+        below = angles[count - 1] - math.pi if g == 0 else tops[g - 1]
+        above = lowest[g] if g < merged_count else lowest[0] + math.pi
+        middle = 0.5 * (below + above)
+        dx, dy = math.cos(middle), math.sin(middle)
+        hh2 = dx * dx + dy * dy
+        admitting = 0
+        k = -1
+        for s in range(4):
+            if within(dx, dy, hh2, sectors[0, s], sectors[1, s], sectors[2, s]):
+                admitting += 1
+                k = s
+        gaps[g] = k if admitting == 1 else -1
+    return bands[:, :merged_count], gaps, merged_count
+
+
+BUCKET_ROWS = 2  # rows per y-bucket of a column's index (bucket_rows)
+
+
+@njit(cache=True)
+def bucket_rows(ys, starts):
+    """A y-index of each column of the column order: column c's y range from ``base[c]`` (its smallest y)
+    cut into ``count[c]`` buckets of equal height (about :data:`BUCKET_ROWS` rows each);
+    ``first[offset[c] + b]`` is the first row of the column whose bucket (:func:`bucket_of`) is b or more,
+    ``first[offset[c] + count[c]]`` the column's end. Returns (first, offset, count, scale, base) with
+    ``scale[c]`` the buckets per unit of y."""
+    ncol = starts.shape[0] - 1
+    offset = np.empty(ncol + 1, dtype=np.int64)
+    count = np.empty(ncol, dtype=np.int64)
+    scale = np.zeros(ncol)
+    base = np.zeros(ncol)
+    offset[0] = 0
+    for c in range(ncol):
+        rows = starts[c + 1] - starts[c]
+        count[c] = max(1, rows // BUCKET_ROWS)
+        offset[c + 1] = offset[c] + count[c] + 1
+        if rows > 0:
+            base[c] = ys[starts[c]]
+        if rows > 1 and ys[starts[c + 1] - 1] > ys[starts[c]]:
+            scale[c] = count[c] / (ys[starts[c + 1] - 1] - ys[starts[c]])
+    first = np.empty(offset[ncol], dtype=np.int64)
+    for c in range(ncol):
+        r = starts[c]
+        for b in range(count[c]):
+            while r < starts[c + 1] and bucket_of(ys[r], base[c], scale[c], count[c]) < b:
+                r += 1
+            first[offset[c] + b] = r
+        first[offset[c] + count[c]] = starts[c + 1]
+    return first, offset, count, scale, base
+
+
+@njit(cache=True, inline="always")
+def bucket_of(y, base, scale, count):
+    """Bucket of y in a column's index (:func:`bucket_rows`): floor((y - base) * scale) within
+    [0, count - 1], non-decreasing in y."""
+    return np.int64(min(max((y - base) * scale, 0.0), np.float64(count - 1)))
+
+
+@njit(cache=True, inline="always")
+def bucket_span(index, c, y):
+    """The rows [a, e) of y's bucket in column c's index (:func:`bucket_rows`): every row before a lies
+    below y, every row from e on above it."""
+    first, offset, count, scale, base = index
+    at = offset[c] + bucket_of(y, base[c], scale[c], count[c])
+    return first[at], first[at + 1]
+
+
+@njit(cache=True)
+def cut_run(cols, index, c2, i, lo, hi, g0, g1, reach, bands, nbands, gaps, pieces):
+    """Cut the run [lo, hi) of a later column (separations x_j - x_i within [g0, g1], g0 >= 0) into
+    pieces by the sector edges: the rows whose y lies in an edge's band (the y the edge's line, widened
+    by EDGE_MARGIN radians and a rounding margin, takes over the column) take the four angle tests;
+    between bands no pair lies within EDGE_MARGIN of an edge, so the test's outcome is certain (its
+    value is far from 0) and the same for the whole piece: that of its gap between edges
+    (``gaps``, :func:`sector_edges`). Writes the
+    pieces' first rows to ``pieces[0]`` (``pieces[0, m] = hi``) and to ``pieces[1]`` the direction that
+    alone admits every pair of the piece, or -1 for the four tests; returns m."""
+    yi = cols[1, i]
+    m = 0
+    done = lo  # rows below are cut
+    for b in range(nbands + 1):
+        if b < nbands:
+            tl = bands[0, b]
+            th = bands[1, b]
+            low = min(g0 * tl, g1 * tl)
+            high = max(g0 * th, g1 * th)
+            slop = 1e-12 * (abs(yi) + abs(low) + abs(high) + reach)
+            # The band's rows, widened to whole buckets (more rows take the four tests, none fewer).
+            a = min(max(bucket_span(index, c2, yi + (low - slop))[0], done), hi)
+            e = min(max(bucket_span(index, c2, yi + (high + slop))[1], a), hi)
+        else:
+            a = hi
+            e = hi
+        if a > done:
+            # Rows between bands b - 1 and b: angles within gap b, whose direction sector_edges found.
+            k = gaps[b]
+            if not (m > 0 and pieces[1, m - 1] == k):
+                pieces[0, m] = done
+                pieces[1, m] = k
+                m += 1
+        if e > a:
+            if not (m > 0 and pieces[1, m - 1] == -1):
+                pieces[0, m] = a
+                pieces[1, m] = -1
+                m += 1
+        done = max(done, e)
+    pieces[0, m] = hi
+    return m
+
+
+@njit(cache=True)
+def add_cut_run(table, copy_rows, cols, index, c2, i, lo, hi, g0, g1, reach, bands, nbands, gaps, pieces, max_d2,
+                sectors, dirs,
+                padded, lut, inv_cell, origin, inv_step, kmax, mode, mean, scratch, marks):  # fmt: skip
+    """:func:`add_range` for a run of a later column with up to four directions (``four`` of
+    :func:`bin_span`), cut by :func:`cut_run`: the pieces one direction certainly admits are binned
+    without the angle tests (:func:`bin_piece_one`), the others by :func:`bin_span_four`. The spans,
+    their bins and the order of additions are those of :func:`add_range`."""
+    cut_run(cols, index, c2, i, lo, hi, g0, g1, reach, bands, nbands, gaps, pieces)
+    zero_pairs = 0
+    p = 0
+    for start in range(lo, hi, SPAN):
+        stop = min(hi, start + SPAN)
+        several = 0
+        q = start
+        while q < stop:
+            while pieces[0, p + 1] <= q:
+                p += 1
+            e = min(pieces[0, p + 1], stop)
+            k = pieces[1, p]
+            if k >= 0 and e - q >= MIN_PIECE:
+                zero_pairs += bin_piece_one(cols, i, start, stop, q - start, e - start, k, max_d2, padded, lut,
+                                            inv_cell, origin, inv_step, kmax, scratch, marks)  # fmt: skip
+            else:
+                zero, more = bin_span_four(cols, i, start, stop, q - start, e - start, max_d2, sectors, padded, lut,
+                                           inv_cell, origin, inv_step, kmax, scratch, marks)  # fmt: skip
+                zero_pairs += zero
+                several += more
+            q = e
+        scatter_span(table, copy_rows, cols, i, start, stop, dirs, mode, mean, scratch, marks)
+        for q in range(stop - start if several > 0 else 0):
+            if marks[1, q] > 1:
+                add_shared_pair(
+                    table, cols, i, start + q, scratch[2, q], max_d2, dirs, padded, lut, inv_cell, True, kmax, mode,
+                    mean,
+                )  # fmt: skip
+    return zero_pairs
+
+
+@njit(cache=True, inline="always")
 def column_run(ys, starts, lowest, c2, xi, yi, max_d2, margin):
     """The run of column ``c2`` that sample (xi, yi) visits in the column sweep: whether the column's
     smallest x lies within the radius (the sweep stops at the first that does not), and the rows
@@ -640,11 +916,19 @@ def accumulate_horizontal(
     sectors[3, :ndir] = dirs[:, 3]
     omni = ndir == 1 and dirs[0, 11] <= 0.0 and dirs[0, 3] == np.inf
     four = shared and inv_step > 0.0 and not omni and ndir <= 4 and np.all(sectors[3] == np.inf)
+    # With four, the runs of later columns are cut by the sector edges (cut_run), which needs each
+    # column's largest x as well.
+    bands, gaps, nbands = sector_edges(sectors, ndir) if four else (np.empty((2, 0)), np.empty(0, np.int64), 0)
+    highest = np.empty(ncol)
+    for c in range(ncol):
+        highest[c] = xs[starts[c] : starts[c + 1]].max() if starts[c + 1] > starts[c] else lowest[c]
+    index = bucket_rows(ys, starts)
     for t in prange(nthreads):
         table = tables[t]
         zero_pairs = 0
         scratch = np.empty((4, SPAN))
         marks = np.empty((3, SPAN), dtype=np.int32)
+        pieces = np.empty((2, 2 * nbands + 3), dtype=np.int64)
         for blk in range(t, nblocks, nthreads):
             for i in range(first + blk * ROW_BLOCK, min(last, first + (blk + 1) * ROW_BLOCK)):
                 c = column[i]
@@ -660,6 +944,13 @@ def accumulate_horizontal(
                     if not within_reach:
                         break
                     if starts[c2 + 1] == starts[c2]:
+                        continue
+                    if nbands > 0 and hi - lo >= CUT_RUN:
+                        zero_pairs += add_cut_run(
+                            table, copy_rows, cols, index, c2, i, lo, hi, lowest[c2] - xi, highest[c2] - xi, reach, bands,
+                            nbands, gaps, pieces, max_d2, sectors, dirs, padded, lut, inv_cell, origin, inv_step, kmax, mode,
+                            mean, scratch, marks,
+                        )  # fmt: skip
                         continue
                     zero_pairs += add_range(
                         table, copy_rows, cols, i, lo, hi, max_d2, sectors, omni, four, dirs, padded, lut, inv_cell,
