@@ -109,7 +109,8 @@ SERVICE = (
         "LAGWISE_MAX_ARROW_BYTES",
         str(512 * 1024 * 1024),
         "largest multipart body with the samples as an Arrow stream, after decoding (413 above); "
-        "the front receives bodies up to this size when they are multipart",
+        "the front receives bodies up to this size when they are multipart; set below "
+        "`LAGWISE_MAX_BODY_BYTES`, that larger limit applies to multipart bodies too",
     ),
     Variable(
         "LAGWISE_MAX_ARROW_ROWS",

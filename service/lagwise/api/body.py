@@ -85,26 +85,32 @@ def _raw_body(limit: int, name: str) -> bytes:
 
 
 def _gunzip(data: bytes, limit: int, name: str) -> bytes:
-    """Decode a gzip body (RFC 9112 §7.2), refusing more than ``limit`` decoded bytes before holding them."""
-    decoder = zlib.decompressobj(16 + zlib.MAX_WBITS)
+    """Decode a gzip body (RFC 9112 §7.2) of one member or several in a row (RFC 1952 §2.2: their
+    contents joined), refusing more than ``limit`` decoded bytes before holding them."""
     blocks: list[bytes] = []
     total = 0
+    pending = data
     try:
-        pending = data
-        while not decoder.eof:
-            block = decoder.decompress(pending, READ_BLOCK)
-            pending = decoder.unconsumed_tail
-            if not block and not pending:
-                break
-            total += len(block)
-            if total > limit:
-                raise _too_large(limit, name)
-            blocks.append(block)
+        while True:
+            decoder = zlib.decompressobj(16 + zlib.MAX_WBITS)
+            while not decoder.eof:
+                block = decoder.decompress(pending, READ_BLOCK)
+                pending = decoder.unconsumed_tail
+                if not block and not pending:
+                    break
+                total += len(block)
+                if total > limit:
+                    raise _too_large(limit, name)
+                blocks.append(block)
+            if not decoder.eof:
+                raise Problem("malformed-request", "The gzip body is truncated.")
+            pending = decoder.unused_data
+            if not pending:
+                return b"".join(blocks)
     except zlib.error as exc:
-        raise Problem("malformed-request", f"The gzip body is corrupt: {exc}.") from None
-    if not decoder.eof or decoder.unused_data:
-        raise Problem("malformed-request", "The gzip body is truncated or followed by other data.")
-    return b"".join(blocks)
+        raise Problem(
+            "malformed-request", f"The gzip body is corrupt or followed by data that is no gzip member: {exc}."
+        ) from None
 
 
 def read_body(limit: int | None = None, name: str = "LAGWISE_MAX_BODY_BYTES") -> bytes:
