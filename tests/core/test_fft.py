@@ -183,3 +183,36 @@ def test_a_map_cell_within_rounding_is_left_undefined(noise, rng):
             assert abs(a - b) <= 1e-6 * b
     assert (rounded == 4) == (noise == 1e-5)  # the four cells along y, (0, +-1) and (0, +-2)
     assert (rounded > 0) == any("rounding error" in w for w in by_fft.warnings)
+
+
+@pytest.mark.parametrize("noise", [1e-1, 1e-3, 1e-4])
+def test_a_rasters_error_bound_states_the_rounding_estimate(noise, rng):
+    """Under a strong trend a defined class's FFT value is off the pair engine's (the cells as points)
+    by no more than its stated error_bound times the value; the bound is positive, not a claimed 0."""
+    nx, ny = 200, 150
+    x, _ = np.meshgrid(np.arange(nx), np.arange(ny))
+    raster = build_raster((0.0, 0.0), (1.0, 1.0), (nx, ny), (10.0 * x + noise * rng.normal(size=x.shape)).ravel())
+    lags = LagRequest(width=1.0, count=4)
+    along_y = [DirectionClass(azimuth=0.0, tolerance=1.0)]
+    by_fft = raster_variogram(raster, lags=lags, directions=along_y)
+    exact = experimental_variogram(raster_points(raster), lags=lags, directions=along_y)
+    checked = 0
+    for a, b in zip(by_fft.directions[0].classes, exact.directions[0].classes, strict=True):
+        if a.value is not None and b.value is not None:
+            assert 0.0 < a.error_bound < 1.0
+            assert abs(a.value - b.value) <= a.error_bound * abs(a.value)
+            checked += 1
+    assert checked == 3
+    flat = raster_map(raster, cell_size=1.0, cells=2)
+    bounds = [e for row in flat.error_bound.tolist() for e in row if not np.isnan(e)]
+    assert bounds and all(0.0 < e < 1.0 for e in bounds)
+
+
+def test_a_plain_rasters_error_bound_is_tiny(rng):
+    """No trend: the rounding estimate is far below any tolerance a user would set (common practice:
+    float64 FFT sums keep about 1e-12 relative on fields of moderate size)."""
+    x, y = np.meshgrid(np.arange(120), np.arange(90))
+    raster = build_raster((0.0, 0.0), (1.0, 1.0), (120, 90), (np.sin(x / 9) + np.cos(y / 7)).ravel())
+    result = raster_variogram(raster, lags=LagRequest(width=2.0, count=8))
+    bounds = [r.error_bound for r in result.directions[0].classes if r.value is not None]
+    assert bounds and all(0.0 < e < 1e-10 for e in bounds)

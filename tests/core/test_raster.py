@@ -119,7 +119,7 @@ def test_automatic_classes_and_grid_echo(rng):
     assert all(row.pairs >= 30 for row in classes) and classes[-1].upper == pytest.approx(
         0.5 * result.summary.max_distance
     )
-    assert all(row.error_bound == 0.0 for row in classes)
+    assert all(0.0 < row.error_bound < 1e-9 for row in classes)  # rounding estimate of the FFT sums, relative
 
 
 def test_unknown_method_refused(rng):

@@ -1229,7 +1229,7 @@ class ClassSchema(BaseSchema):
     error_bound = StrictFloat(
         allow_none=True,
         metadata={
-            "description": "Grid method: bound on |value - exact value| / |value| (0 for rasters; null when undefined)."
+            "description": "Grid method: bound on |value - exact value| / |value| (for a raster, exact for its own pairs: the FFT's estimated rounding error of a semivariance, relative, and 0 for the other statistics; null when undefined)."
         },
     )
     pair_bound = StrictInteger(
@@ -1363,7 +1363,7 @@ class MapResponse(ResultEnvelope):
         fields.List(StrictFloat(allow_none=True)),
         metadata={
             "description": "Grid method (parameters.method grid): bound on |value - exact value| / |value| per cell, "
-            "rows as values (0 on a raster's own grid; null where the value is null or 0)."
+            "rows as values (on a raster's own grid: the FFT's estimated rounding error of a semivariance, relative, and 0 for the other statistics; null where the value is null or 0)."
         },
     )
     pair_bound = Column(

@@ -17,7 +17,7 @@ from ..errors import FieldIssue, InvalidInput, LimitExceeded
 from ..limits import Limits
 from . import kernels as K
 from .directions import OMNIDIRECTIONAL, DirectionClass, direction_table, validate_direction
-from .fft import check_statistic
+from .fft import check_statistic, rounding_bound
 from .gridded import (
     BOUND_STATISTICS,
     DEFAULT_TOLERANCE,
@@ -623,7 +623,7 @@ def _with_bound(row: ClassRow, computed: GridVariogram, k: int, c: int) -> Class
         return replace(row, error_bound=None, pair_bound=0, bound_exceeded=False)
     row = replace(row, uncertainty_reason=NOT_COMPUTED if row.value is not None else row.uncertainty_reason)
     if computed.bounds is None or computed.pair_bounds is None:
-        return replace(row, error_bound=0.0 if row.value is not None else None, pair_bound=0, bound_exceeded=False)
+        return replace(row, error_bound=rounding_bound(row.value, floor), pair_bound=0, bound_exceeded=False)
     bound = float(computed.bounds[k, c])
     tolerance = computed.report.tolerance or 0.0
     finite = bool(np.isfinite(bound))

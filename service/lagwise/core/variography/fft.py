@@ -463,6 +463,17 @@ def map_table(sums: LagSums, cell_size: float, cells: int) -> np.ndarray:
     return out
 
 
+def rounding_bound(value: float | None, floor: float | None) -> float | None:
+    """A raster's error bound (relative): the transforms' estimated rounding error of the semivariance
+    over its value (:func:`~lagwise.core.variography.fft.square_rounding`); 0 where no estimate applies
+    (the other statistics); None for an undefined value."""
+    if value is None:
+        return None
+    if floor is None or not np.isfinite(floor) or value == 0.0:
+        return 0.0
+    return float(floor / abs(value))
+
+
 def map_floors(sums: LagSums, cell_size: float, cells: int, noise: float) -> np.ndarray:
     """Semivariance below which each map cell ((2 cells + 1)^2, table order) is rounding, as
     :func:`rounding_floors` for classes (inf where a cell holds no pair)."""

@@ -13,7 +13,7 @@ Methods (``method``)
   ``LAGWISE_MEMORY_BUDGET_BYTES``. Each class states an error bound
   (:mod:`lagwise.core.variography.bounds`); classes whose bound exceeds the
   tolerance are flagged. For a raster the grid is the raster itself and the
-  result is exact (bound 0).
+  result is exact for its pairs (its bound: the transforms' rounding estimate, :func:`~lagwise.core.variography.fft.square_rounding`).
 * ``auto``: rasters use their own grid; scattered samples use ``exact`` unless its
   pair work would exceed ``LAGWISE_MAX_PAIRS`` and the statistic is one the grid
   method bounds, then ``grid``.

@@ -20,7 +20,7 @@ Methods (``method``), as for experimental variograms
 vector by FFT, with an error bound per cell (:mod:`lagwise.core.variography.binned_maps`);
 ``auto`` takes ``exact`` unless its pair work would exceed ``LAGWISE_MAX_PAIRS`` and the
 grid method applies (2-D samples, a statistic it bounds), then ``grid``. A raster's map
-(:func:`raster_map`) is computed on the raster's own grid, exact for its pairs (bound 0).
+(:func:`raster_map`) is computed on the raster's own grid, exact for its pairs (its bound: the transforms' rounding estimate).
 """
 
 from __future__ import annotations
@@ -57,6 +57,7 @@ from .fft import (
     map_floors,
     map_table,
     padded_shape,
+    rounding_bound,
     square_rounding,
     transform_count,
 )
@@ -422,6 +423,10 @@ def _cell_medians(statistic, prepared, cell_size, cells, counts, visits, limits)
     return medians
 
 
+def _or_nan(bound: float | None) -> float:
+    return np.nan if bound is None else bound
+
+
 def raster_map(
     raster: Raster,
     *,
@@ -469,11 +474,13 @@ def raster_map(
     table = map_table(sums, cell_size, cells)
     width = 2 * cells + 1
     flat, rounded = cell_values(statistic, table, grid.nodes.mean, grid.nodes.scale), 0
+    floors = np.full(width * width, np.inf)
     if not first_moments:
         noise = square_rounding(grid.norms, grid.nodes.shape, lag_reach)
-        flat, rounded = without_rounding(flat, map_floors(sums, cell_size, cells, noise))
+        floors = map_floors(sums, cell_size, cells, noise)
+        flat, rounded = without_rounding(flat, floors)
     del sums
-    defined = np.array([v is not None for v in flat]).reshape(width, width)
+    bounds = np.array([_or_nan(rounding_bound(v, f)) for v, f in zip(flat, floors, strict=True)])
     py, px = padded_shape((ny, nx), lag_reach)
     report = GridReport(
         source="raster",
@@ -494,7 +501,7 @@ def raster_map(
         min_pairs=int(min_pairs),
         method="grid",
         grid=report,
-        error_bound=np.where(defined, 0.0, np.nan),
+        error_bound=bounds.reshape(width, width),
         pair_bound=np.zeros((width, width), dtype=np.int64),
         bound_exceeded=np.zeros((width, width), dtype=bool),
     )
