@@ -312,3 +312,37 @@ def test_a_member_given_twice_in_the_request_part_of_a_multipart_body_is_refused
 def test_distinct_members_are_read_as_before(client, body):
     r = client.post(VARIOGRAMS, data=body, content_type="application/json")
     assert r.status_code == 200, r.json
+
+
+def _library_defaults() -> set[str]:
+    """Every default message of marshmallow's schemas and fields (the library's own words)."""
+    import inspect
+
+    import marshmallow
+
+    texts = set(marshmallow.Schema._default_error_messages.values())
+    for _, field_class in inspect.getmembers(marshmallow.fields, inspect.isclass):
+        texts |= set(getattr(field_class, "default_error_messages", {}).values())
+    return texts
+
+
+@pytest.mark.parametrize(
+    "member, pointer, words",
+    [
+        ({"lags": {"widht": 1}}, "/lags/widht", "is not a member of this object"),
+        ({"bogus": 1}, "/bogus", "is not a member of this object"),
+        ({"lags": None}, "/lags", "must not be null"),
+        ({"lags": "x"}, "/lags", "must be an object"),
+        ({"directions": {}}, "/directions", "must be an array"),
+        ({"directions": [3]}, "/directions/0", "must be an object"),
+        ({"samples": {"x": [0, 1], "values": [1.0, 2.0], "ids": [1, "a"]}}, "/samples/ids/0", "must be text"),
+        ({"samples": 5}, "/samples", "must be an object"),
+    ],
+)
+def test_type_and_member_mistakes_are_told_in_our_words(client, member, pointer, words):
+    """Not the validation library's default wording (marshmallow's default_error_messages), which
+    would read differently from every other problem of the service."""
+    doc = assert_problem(client.post(VARIOGRAMS, json={"samples": columns(), **member}), 422, "invalid-input")
+    assert [e["pointer"] for e in doc["errors"]] == [pointer]
+    assert doc["errors"][0]["detail"] == words
+    assert doc["errors"][0]["detail"] not in _library_defaults()

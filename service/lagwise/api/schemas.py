@@ -64,13 +64,40 @@ FAMILY_NAMES = tuple(FAMILIES)
 REQUIRED = "is required"
 
 
+# The library's default messages and ours, after the member's pointer ("/lags: must not be null").
+OWN_WORDS = {
+    fields.Field.default_error_messages["required"]: REQUIRED,
+    fields.Field.default_error_messages["null"]: "must not be null",
+    fields.Field.default_error_messages["validator_failed"]: "is not a valid value",
+    fields.String.default_error_messages["invalid"]: "must be text",
+    fields.Number.default_error_messages["invalid"]: "must be a number",
+    fields.Integer.default_error_messages["invalid"]: "must be a whole number",
+    fields.Boolean.default_error_messages["invalid"]: "must be true or false",
+    fields.List.default_error_messages["invalid"]: "must be an array",
+    fields.Tuple.default_error_messages["invalid"]: "must be an array",
+    fields.Dict.default_error_messages["invalid"]: "must be an object",
+    fields.Nested.default_error_messages["type"]: "must be an object",
+}
+
+
+def _own_words(field_obj: fields.Field) -> None:
+    """Put :data:`OWN_WORDS` in place of the library's default messages of a field and of the fields
+    it holds (an array's elements, a tuple's places, a mapping's values); a field's own messages stay."""
+    field_obj.error_messages = {key: OWN_WORDS.get(text, text) for key, text in field_obj.error_messages.items()}
+    held = [getattr(field_obj, "inner", None), getattr(field_obj, "value_field", None)]
+    for inner in [*held, *getattr(field_obj, "tuple_fields", ())]:
+        if isinstance(inner, fields.Field):
+            _own_words(inner)
+
+
 class BaseSchema(Schema):
-    """The base of every schema: a missing required member is refused in our own words
-    (:data:`REQUIRED`) unless its field gives its own message."""
+    """The base of every schema: the library's default messages in our own words (:data:`OWN_WORDS`;
+    a missing required member: :data:`REQUIRED`) unless a field gives its own."""
+
+    error_messages = {"unknown": "is not a member of this object", "type": "must be an object"}
 
     def on_bind_field(self, field_name: str, field_obj: fields.Field) -> None:
-        if field_obj.error_messages.get("required") == fields.Field.default_error_messages["required"]:
-            field_obj.error_messages = {**field_obj.error_messages, "required": REQUIRED}
+        _own_words(field_obj)
 
 
 def map_tolerance() -> fields.Field:
