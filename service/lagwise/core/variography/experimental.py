@@ -627,6 +627,12 @@ def _with_bound(row: ClassRow, computed: GridVariogram, k: int, c: int) -> Class
     bound = float(computed.bounds[k, c])
     tolerance = computed.report.tolerance or 0.0
     finite = bool(np.isfinite(bound))
+    if row.pairs == 0 and computed.pair_bounds[k, c] > 0:
+        row = replace(
+            row,
+            reason=f"no pairs on the grid, but up to {int(computed.pair_bounds[k, c])} pairs of samples may lie in "
+            "this class (pairs sharing a grid cell or near a class edge); use method 'exact'",
+        )
     return replace(
         row,
         error_bound=bound if finite else None,

@@ -8,7 +8,8 @@ Methods (``method``)
   sample count, value sum and sum of squares, so the FFT sums over two cells are
   the exact sums over their pairs of samples) and every lag vector of cells is
   classified by the cells' offset (:mod:`lagwise.core.variography.fft`). The cell
-  side is the narrowest class width over :data:`CELLS_PER_CLASS`, enlarged until
+  side is the narrowest class width over :data:`CELLS_PER_CLASS` (at most the
+  extent over :data:`MIN_GRID_SIDE`), enlarged until
   the grid has at most :data:`MAX_GRID_SIDE` cells a side and the transforms fit
   ``LAGWISE_MEMORY_BUDGET_BYTES``. Each class states an error bound
   (:mod:`lagwise.core.variography.bounds`); classes whose bound exceeds the
@@ -72,6 +73,9 @@ from .statistics import class_value
 METHODS = ("exact", "grid", "auto")
 CELLS_PER_CLASS = 32
 MAX_GRID_SIDE = 4096
+# Cells a side of the samples' extent at least: classes wider than the extent do not coarsen the grid
+# (a grid of one cell would put every pair in it and leave them all out).
+MIN_GRID_SIDE = 256
 DEFAULT_TOLERANCE = 0.01
 NOT_COMPUTED = "class standard errors are not computed on grids (FFT path)"
 
@@ -350,7 +354,7 @@ def grid_cell(summary: Summary, explicit, largest, lags: LagRequest, spacing, li
     else:
         narrowest = min(spacing_width(top, spacing) for top in largest)
     extent = [hi - lo for lo, hi in summary.extent.values()]
-    cell = max(narrowest / CELLS_PER_CLASS, max(extent) / (MAX_GRID_SIDE - 1))
+    cell = max(min(narrowest / CELLS_PER_CLASS, max(extent) / MIN_GRID_SIDE), max(extent) / (MAX_GRID_SIDE - 1))
     radius = max(largest)
     while True:
         shape = (int(extent[1] // cell) + 1, int(extent[0] // cell) + 1)
