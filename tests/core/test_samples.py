@@ -67,3 +67,20 @@ def test_input_hash_is_sha256_of_float64_columns():
 def test_geographic_wide_span_warns():
     samples = build_sample_set([1.0, 2.0, 3.0], [0.0, 5.0, 10.0], [0.0, 0.0, 1.0], coordinates="geographic")
     assert any("loses accuracy" in w for w in samples.warnings)
+
+
+def test_coordinates_too_close_for_their_squares_are_refused():
+    """Squared distances under about 1e-308 underflow to 0 in float64 (IEEE 754 binary64, common
+    practice): coordinates whose widest axis spans less than MIN_SPREAD are refused by name; a
+    narrow axis beside a wide one is fine."""
+    from lagwise.core.data.raster import build_raster
+    from lagwise.core.data.samples import MIN_SPREAD
+
+    tiny = [0.0, 1e-200, 2e-200, 3e-200]
+    with pytest.raises(InvalidInput) as refused:
+        build_sample_set(np.arange(4.0), np.array(tiny))
+    assert refused.value.issues[0].pointer == "/samples/x" and "underflow" in refused.value.issues[0].detail
+    assert build_sample_set(np.arange(4.0), np.arange(4.0), np.array(tiny)).size == 4
+    with pytest.raises(InvalidInput) as refused:
+        build_raster((0.0, 0.0), (MIN_SPREAD / 10, MIN_SPREAD / 10), (2, 2), np.arange(4.0))
+    assert refused.value.issues[0].pointer == "/samples/raster/spacing"

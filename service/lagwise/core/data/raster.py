@@ -107,6 +107,11 @@ def build_raster(origin, spacing, shape, values) -> Raster:
     reach = max(spacing[0] * (nx - 1), spacing[1] * (ny - 1))
     if reach > MAX_SPREAD:
         raise InvalidInput.at(f"{BASE}/spacing", f"the raster spans more than {MAX_SPREAD:g}; use another unit")
+    if 0.0 < reach < MIN_SPREAD:
+        raise InvalidInput.at(
+            f"{BASE}/spacing",
+            f"the raster spans {reach:.3g} (less than {MIN_SPREAD:g}), whose squared distances underflow; use another unit",
+        )
     present = ~np.isnan(values)
     count = int(np.count_nonzero(present))
     if count < 2:

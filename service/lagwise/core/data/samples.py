@@ -171,7 +171,8 @@ def _check_scale(x, y, z, values, pointer_for) -> None:
     Values spread over more than :data:`MAX_SPREAD` give squared differences that
     overflow; values that differ, but by less than :data:`MIN_SPREAD`, give squared
     differences that underflow to 0 (they would look constant). Coordinates spread
-    over more than :data:`MAX_SPREAD` overflow squared distances.
+    over more than :data:`MAX_SPREAD` overflow squared distances; coordinates whose widest
+    axis spans less than :data:`MIN_SPREAD` (but more than 0) underflow them.
     """
     issues = []
     spread = float(np.ptp(values))
@@ -185,14 +186,26 @@ def _check_scale(x, y, z, values, pointer_for) -> None:
                 "whose squares float64 can hold); rescale the values (another unit)",
             )
         )
+    spans = {}
     for name, column in (("x", x), ("y", y), ("z", z)):
-        if column is not None and float(np.ptp(column)) > MAX_SPREAD:
+        if column is not None:
+            spans[name] = float(np.ptp(column))
+        if column is not None and spans[name] > MAX_SPREAD:
             issues.append(
                 FieldIssue(
                     pointer_for(name, int(np.argmax(np.abs(column)))),
                     f"coordinates span more than {MAX_SPREAD:g}, whose squared distances overflow; use another unit",
                 )
             )
+    widest = max(spans, key=spans.__getitem__, default=None)
+    if widest is not None and 0.0 < spans[widest] < MIN_SPREAD:
+        issues.append(
+            FieldIssue(
+                pointer_for(widest, None),
+                f"coordinates span at most {spans[widest]:.3g} (less than {MIN_SPREAD:g}), whose squared distances "
+                "underflow to 0; use another unit",
+            )
+        )
     if issues:
         raise InvalidInput(issues)
 
