@@ -178,3 +178,22 @@ def test_auto_method_turns_to_grid_over_the_pair_limit(small_limits_client, rng)
     r = small_limits_client.post(URL, json=body)
     assert r.status_code == 200, r.json
     assert r.json["parameters"]["method"] == "grid"
+
+
+def test_a_regular_grid_is_not_declustered(client):
+    """A full 60 x 50 grid of sin(x/9) + cos(y/7), as raster cells and as columnar points: a regular
+    design has no preferential sampling (declustering is for clustered sampling, common practice),
+    so the summary keeps equal weights and the plain mean 0.117 (numpy mean) as its reference."""
+    gx, gy = np.meshgrid(np.arange(60.0), np.arange(50.0))
+    x, y = gx.ravel(), gy.ravel()
+    values = np.sin(x / 9.0) + np.cos(y / 7.0)
+    raster = {"origin": [0.0, 0.0], "spacing": [1.0, 1.0], "shape": [60, 50], "values": values.tolist()}
+    columns = {"x": x.tolist(), "y": y.tolist(), "values": values.tolist()}
+    for samples in ({"raster": raster}, columns):
+        body = {"samples": samples, "fit": {"compare": False, "anisotropy": "none"}}
+        doc = client.post("/v1/analyses", json=body).json
+        summary, found = doc["summary"], doc["summary"]["declustering"]
+        assert summary["mean"] == pytest.approx(values.mean()) == pytest.approx(0.1171, abs=1e-4)
+        assert not any("clustered" in w for w in doc["warnings"])
+        assert found["clustered"] is False and found["weights_used"] is False
+        assert found["effective_sample_fraction"] > found["random_pattern_fraction"]

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-from lagwise.core.data.declustering import cell_weights, decluster, nearest_neighbour_ratio
+from lagwise.core.data.declustering import cell_weights, decluster, nearest_neighbour_ratio, random_designs
 from lagwise.core.data.spacing import nearest_distances
 from lagwise.core.data.summary import summarise
 from lagwise.core.data.transforms import fit_transform
@@ -138,3 +138,118 @@ def test_weighted_start_shares_the_weights_between_stages():
     plain = weighted_start(coords[:150], values[:150], "log")
     assert not plain.declustering.clustered
     assert plain.simple_kriging_mean == pytest.approx(np.log(values[:150]).mean())
+
+
+def test_random_designs_fill_the_hull_uniformly():
+    """Points uniform over the triangle (0,0), (10,0), (0,10) (hull of the samples): centroid (10/3, 10/3)
+    and P(x < 5) = 1 - (1/2)^2 = 3/4 (worked by hand), none outside."""
+    coords = np.array([[0.0, 0.0], [10.0, 0.0], [0.0, 10.0], [1.0, 1.0], [2.0, 1.0], [1.0, 2.0]])
+    points = np.vstack(random_designs(coords, 20_000, np.random.default_rng(1)))
+    assert points.shape == (120_000, 2)
+    assert np.all(points >= -1e-12) and np.all(points.sum(axis=1) <= 10.0 + 1e-9)
+    assert points.mean(axis=0) == pytest.approx([10 / 3, 10 / 3], abs=0.03)
+    assert np.mean(points[:, 0] < 5.0) == pytest.approx(0.75, abs=0.005)
+
+
+def _grid(step, low=(0.0, 0.0), high=(60.0, 50.0)):
+    gx, gy = np.meshgrid(np.arange(low[0], high[0] + 1e-9, step), np.arange(low[1], high[1] + 1e-9, step))
+    return np.column_stack([gx.ravel(), gy.ravel()])
+
+
+def _smooth(coords, rng):
+    return np.sin(coords[:, 0] / 9.0) + np.cos(coords[:, 1] / 7.0)
+
+
+def _rough(coords, rng):
+    return np.sin(coords[:, 0] * 2.3) * np.cos(coords[:, 1] * 1.7) + rng.normal(0.0, 1.0, coords.shape[0])
+
+
+_HOMOGENEOUS = {
+    "full grid": lambda rng: _grid(1.0, high=(59.0, 49.0)),
+    "grid less 10 % of nodes": lambda rng: (lambda g: g[rng.random(g.shape[0]) >= 0.1])(_grid(1.0, high=(59.0, 49.0))),
+    "uniform random": lambda rng: rng.uniform((0.0, 0.0), (59.0, 49.0), (600, 2)),
+}
+
+
+@pytest.mark.parametrize("seed", [0, 1, 2])
+@pytest.mark.parametrize("field", [_smooth, _rough], ids=["smooth", "rough"])
+@pytest.mark.parametrize("design", list(_HOMOGENEOUS))
+def test_homogeneous_designs_keep_equal_weights(design, field, seed):
+    """Declustering is for preferential (clustered) sampling (common practice): a regular grid, with
+    or without gaps, and a uniform random design have none, whatever the field. Clark & Evans (1954)
+    R is at or above 1 and the cell weights (Deutsch 1989) are as even as a random pattern's, so the
+    weights stay 1/n and the mean is the plain mean. The smooth full grid was the defect: the old
+    mean-shift test called it clustered and moved the mean from 0.117 to 0.335."""
+    rng = np.random.default_rng(seed)
+    coords = _HOMOGENEOUS[design](rng)
+    values = field(coords, rng)
+    result = decluster(coords, values)
+    assert not result.clustered and result.warning is None
+    assert result.nearest_neighbour_ratio > 0.9
+    assert result.effective_fraction > 0.95 * result.random_fraction
+    assert np.array_equal(result.used_weights, np.full(coords.shape[0], 1.0 / coords.shape[0]))
+    assert result.mean_of(values) == pytest.approx(values.mean(), rel=1e-12, abs=1e-12)
+    assert result.variance_of(values) == pytest.approx(values.var(), rel=1e-12)
+    if design != "uniform random":  # a regular design's weights are more even than a random pattern's
+        assert result.effective_fraction > result.random_fraction
+
+
+def test_the_reported_regular_grid_keeps_its_mean():
+    """The 60 x 50 grid of sin(x/9) + cos(y/7) from the defect report: plain mean 0.117 (numpy mean),
+    not clustered, so the summary's reference mean stays 0.117."""
+    coords = _grid(1.0, high=(59.0, 49.0))
+    values = _smooth(coords, None)
+    summary = summarise(coords, values)
+    assert summary.mean == pytest.approx(0.1171, abs=1e-4)
+    assert summary.declustering["clustered"] is False and summary.declustering["weights_used"] is False
+    assert summary.reference_mean == summary.mean
+    assert summary.declustering["effective_sample_fraction"] > 0.95
+
+
+_HOT = np.array([45.0, 35.0])
+
+
+def _hot_field(coords):
+    """Smooth background plus a bump of height 3 (standard deviation 6) at (45, 35)."""
+    x, y = coords[:, 0], coords[:, 1]
+    return np.sin(x / 9.0) + np.cos(y / 7.0) + 3.0 * np.exp(-((x - _HOT[0]) ** 2 + (y - _HOT[1]) ** 2) / 72.0)
+
+
+def _near_hot(points, radius):
+    return points[np.hypot(*(points - _HOT).T) < radius]
+
+
+_PREFERENTIAL = {
+    "dense cluster over a random background": lambda rng: np.vstack(
+        [rng.uniform((0.0, 0.0), (60.0, 50.0), (80, 2)), np.clip(_HOT + rng.normal(0, 4, (60, 2)), 0, (60, 50))]
+    ),
+    "dense cluster over a regular background": lambda rng: np.vstack(
+        [_grid(6.0), np.clip(_HOT + rng.normal(0, 4, (60, 2)), 0, (60, 50))]
+    ),
+    "grid of 2 near the high values over a grid of 6": lambda rng: np.vstack(
+        [_grid(6.0), _near_hot(_grid(2.0, (35.0, 25.0), (55.0, 45.0)) + rng.uniform(0.5, 1.5, 2), 10.0)]
+    ),
+    "grid of 3 near the high values over a grid of 6": lambda rng: np.vstack(
+        [_grid(6.0), _near_hot(_grid(3.0, (30.0, 20.0), (60.0, 50.0)) + rng.uniform(0.5, 2.5, 2), 15.0)]
+    ),
+}
+
+
+@pytest.mark.parametrize("seed", [0, 1, 2])
+@pytest.mark.parametrize("design", list(_PREFERENTIAL))
+def test_preferential_designs_are_declustered_toward_the_field_mean(design, seed):
+    """Extra samples over the high values (Deutsch 1989: the cell size minimising the declustered mean
+    when highs are over-sampled). The true spatial mean is the field's mean over a 0.1 grid of the
+    60 x 50 domain (numpy mean). Two grids of different spacing have R well above 1 (Clark & Evans
+    1954), so the uneven cell weights alone must find them."""
+    rng = np.random.default_rng(seed)
+    coords = np.unique(_PREFERENTIAL[design](rng), axis=0)
+    values = _hot_field(coords)
+    fine = _grid(0.1, (0.05, 0.05), (59.95, 49.95))
+    truth = float(_hot_field(fine).mean())
+    result = decluster(coords, values)
+    assert result.clustered and result.over_sampled == "high"
+    assert result.effective_fraction < 0.9 * result.random_fraction
+    assert "unevenly spread" in result.warning
+    assert abs(result.declustered_mean - truth) < abs(result.mean - truth)
+    assert result.mean_of(values) == result.declustered_mean

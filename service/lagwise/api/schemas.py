@@ -1192,7 +1192,27 @@ class DeclusteringSchema(BaseSchema):
     nearest_neighbour_z = StrictFloat(allow_none=True)
     mean_shift_z = StrictFloat(
         allow_none=True,
-        metadata={"description": "Declustered minus plain mean in standard errors of a random assignment of values."},
+        metadata={
+            "description": "Declustered minus plain mean in standard errors of a random assignment of values "
+            "(reported; does not decide clustering)."
+        },
+    )
+    effective_sample_fraction = StrictFloat(
+        allow_none=True,
+        metadata={
+            "description": "1 / (n sum w^2) of the cell weights at cells holding four samples on average "
+            "(1 for equal weights)."
+        },
+    )
+    random_pattern_fraction = StrictFloat(
+        allow_none=True,
+        metadata={"description": "Mean of that fraction over random patterns of as many points over the same hull."},
+    )
+    evenness_z = StrictFloat(
+        allow_none=True,
+        metadata={
+            "description": "Effective sample fraction minus its random-pattern mean, in their standard deviations."
+        },
     )
     reason = fields.String(allow_none=True)
 

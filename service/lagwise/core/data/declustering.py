@@ -20,7 +20,11 @@ Method (Journel 1983; Deutsch 1989, Computers & Geosciences 15(3))
   over-sampled.
 * Declustered mean and variance: sum w_i z_i and sum w_i (z_i - m_w)^2.
 
-When is sampling clustered? Two pieces of evidence are reported:
+When is sampling clustered? Declustering is for clustered (preferential) sampling
+(common practice): on a homogeneous design (a regular grid, with or without gaps, or a
+random pattern) every sample stands for the same share of the domain and the weights
+must stay 1/n, however much a cell weighting would move the mean. Two pieces of
+geometric evidence decide; the values play no part:
 
 * the nearest-neighbour ratio R = observed mean nearest-neighbour distance / its
   expectation for a random (Poisson) pattern of the same density, with its z-score
@@ -30,13 +34,27 @@ When is sampling clustered? Two pieces of evidence are reported:
   (d = 2 gives Clark and Evans' 0.5 / sqrt(rho) and 0.26136 / sqrt(rho)). No edge
   correction: edges lengthen observed distances, so the test errs toward "not
   clustered";
-* the shift of the mean, (m_w - m) against its standard error if values were
-  assigned to locations at random, s sqrt(n / (n - 1) sum (w_i - 1/n)^2)
-  (moments of a random permutation; sampling without replacement).
+* the evenness of the cell weights at the test cell size c_test = (4 A / n)^(1/d)
+  (cells holding four samples on average): the effective sample fraction
+  f = 1 / (n sum w_i^2) (1 for equal weights), set against its value for
+  ``NULL_DESIGNS`` random (Poisson) patterns of the same n drawn uniformly over the
+  samples' convex hull, cut by the same cells. A density that changes over the domain
+  (a dense patch over a sparse background, two grids of different spacing) lowers f
+  below the random designs' f; a regular design raises it above (a full grid gives
+  about 0.98 for the random designs' 0.85). At c_ref, where cells hold about one
+  sample, Poisson noise in the counts hides a fourfold density contrast, hence the
+  larger test cell.
 
 Sampling counts as clustered, and the weights are used, when R lies significantly
-below 1 (z < ``RATIO_Z``) or the mean shift exceeds ``SHIFT_Z`` standard errors;
-otherwise every sample keeps the weight 1/n (declustering would only fit noise).
+below 1 (z < ``RATIO_Z``) or the weights are uneven beyond chance and materially so:
+f below the random designs' mean by more than ``EVENNESS_Z`` of their standard
+deviations and by more than a fraction ``EVENNESS_LOSS`` of it. Otherwise every sample
+keeps the weight 1/n. The shift of the mean, (m_w - m) against its standard error if
+values were assigned to locations at random, s sqrt(n / (n - 1) sum (w_i - 1/n)^2)
+(moments of a random permutation), is reported but does not decide: on a smooth
+field neighbouring values are alike, so that null is far too narrow, and the cell
+size that moves the mean most is picked from ``CELL_SIZES``, so any cell weighting of a
+regular grid shifts the mean by "many standard errors".
 """
 
 from __future__ import annotations
@@ -46,7 +64,7 @@ import math
 from dataclasses import dataclass, replace
 
 import numpy as np
-from scipy.spatial import ConvexHull, QhullError
+from scipy.spatial import ConvexHull, Delaunay, QhullError
 from scipy.special import gamma
 from scipy.stats import qmc
 
@@ -56,7 +74,10 @@ from .transforms import Transform, fit_transform
 CELL_SIZES = 24
 ORIGINS = 8
 RATIO_Z = -2.58
-SHIFT_Z = 3.0
+EVENNESS_Z = -3.0
+EVENNESS_LOSS = 0.05
+NULL_DESIGNS = 39
+TEST_CELL_SAMPLES = 4.0
 MIN_SAMPLES = 10
 SEARCH_SUBSET = 5_000
 DENSE_KEYS = 4_000_000
@@ -95,7 +116,13 @@ class Declustering:
     nearest_neighbour_ratio, ratio_z : float or None
         Clark and Evans' ratio R and its z-score.
     shift_z : float or None
-        Declustered minus plain mean in permutation standard errors.
+        Declustered minus plain mean in permutation standard errors (reported, not deciding).
+    effective_fraction : float or None
+        Effective sample fraction 1 / (n sum w_i^2) of the weights at the test cell size.
+    random_fraction : float or None
+        Mean of that fraction over the random designs (module docstring).
+    evenness_z : float or None
+        ``effective_fraction`` minus ``random_fraction`` in standard deviations of the random designs.
     reason : str or None
         Why no cell size was chosen.
     """
@@ -111,6 +138,9 @@ class Declustering:
     nearest_neighbour_ratio: float | None = None
     ratio_z: float | None = None
     shift_z: float | None = None
+    effective_fraction: float | None = None
+    random_fraction: float | None = None
+    evenness_z: float | None = None
     reason: str | None = None
 
     @property
@@ -140,7 +170,12 @@ class Declustering:
             evidence.append(
                 f"nearest neighbours are {self.nearest_neighbour_ratio:.2f} times as far apart as in a random pattern"
             )
-        if self.shift_z is not None and abs(self.shift_z) > SHIFT_Z:
+        if _uneven(self.effective_fraction, self.random_fraction, self.evenness_z):
+            evidence.append(
+                f"the samples are unevenly spread: cell weights count as {self.effective_fraction:.0%} of them, "
+                f"{self.random_fraction:.0%} for a random pattern"
+            )
+        if self.over_sampled is not None:
             evidence.append(f"the {self.over_sampled} values are over-sampled")
         return (
             f"sampling is clustered ({'; '.join(evidence)}): cell declustering (cell size {self.cell_size:.4g}) "
@@ -162,6 +197,9 @@ class Declustering:
             "nearest_neighbour_ratio": self.nearest_neighbour_ratio,
             "nearest_neighbour_z": self.ratio_z,
             "mean_shift_z": self.shift_z,
+            "effective_sample_fraction": self.effective_fraction,
+            "random_pattern_fraction": self.random_fraction,
+            "evenness_z": self.evenness_z,
             "reason": self.reason,
         }
 
@@ -233,6 +271,54 @@ def nearest_neighbour_ratio(coords: np.ndarray, spacing_mean: float, size: float
     return spacing_mean / expected, (spacing_mean - expected) / (sd / math.sqrt(n))
 
 
+def effective_fraction(weights: np.ndarray) -> float:
+    """Effective sample fraction 1 / (n sum w_i^2) of weights summing to 1 (1 when all equal 1/n)."""
+    return float(1.0 / (weights.size * np.sum(weights**2)))
+
+
+def _uneven(fraction: float | None, random: float | None, z: float | None) -> bool:
+    """The clustering rule's evenness half (module docstring): uneven beyond chance and materially."""
+    if fraction is None or random is None or z is None:
+        return False
+    return z < EVENNESS_Z and fraction < (1.0 - EVENNESS_LOSS) * random
+
+
+def random_designs(coords: np.ndarray, count: int, rng: np.random.Generator) -> list[np.ndarray]:
+    """``count`` patterns of n points drawn uniformly over the convex hull of ``coords`` (n, d).
+
+    The hull's vertices are triangulated (``scipy.spatial.Delaunay``); each point falls in a simplex
+    chosen with probability proportional to its volume, at flat Dirichlet barycentric coordinates
+    (uniform within the simplex). 1-D samples and flat hulls use the bounding box.
+    """
+    n, d = coords.shape
+    wanted = count * n
+    corners = None
+    if d > 1:
+        try:
+            triangulation = Delaunay(coords[ConvexHull(coords).vertices])
+            corners = triangulation.points[triangulation.simplices]  # (m, d + 1, d)
+        except (QhullError, ValueError):
+            corners = None
+    volumes = np.abs(np.linalg.det(corners[:, 1:] - corners[:, :1])) if corners is not None else np.zeros(1)
+    if volumes.sum() <= 0:
+        return list(rng.uniform(coords.min(axis=0), coords.max(axis=0), (wanted, d)).reshape(count, n, d))
+    chosen = rng.choice(volumes.size, wanted, p=volumes / volumes.sum())
+    barycentric = rng.dirichlet(np.ones(d + 1), wanted)
+    points = np.einsum("ij,ijk->ik", barycentric, corners[chosen])
+    return list(points.reshape(count, n, d))
+
+
+def evenness(coords: np.ndarray, cell: float, seed: int = 0) -> tuple[float, float, float]:
+    """Effective sample fraction of the cell weights at cell size ``cell`` (coordinate units), its mean
+    over :data:`NULL_DESIGNS` random designs over the same hull, and its z-score against them."""
+    observed = effective_fraction(cell_weights(coords, cell))
+    rng = np.random.default_rng([seed, 1])
+    null = np.array([effective_fraction(cell_weights(p, cell)) for p in random_designs(coords, NULL_DESIGNS, rng)])
+    spread = float(np.std(null, ddof=1))
+    random = float(np.mean(null))
+    return observed, random, (observed - random) / spread if spread > 0 else 0.0
+
+
 def _plain(values: np.ndarray, reason: str) -> Declustering:
     mean = float(np.mean(values))
     variance = float(np.mean((values - mean) ** 2))
@@ -250,7 +336,8 @@ def decluster(coords: np.ndarray, values: np.ndarray, *, seed: int = 0) -> Declu
     values : ndarray, shape (n,)
         Values the declustered mean is computed from.
     seed : int
-        Seed of the subset the cell size is searched on above ``SEARCH_SUBSET`` samples.
+        Seed of the subset the cell size is searched on above ``SEARCH_SUBSET`` samples, and of
+        the random designs the evenness of the weights is set against.
     """
     coords = np.asarray(coords, dtype=np.float64)
     values = np.asarray(values, dtype=np.float64)
@@ -289,7 +376,10 @@ def decluster(coords: np.ndarray, values: np.ndarray, *, seed: int = 0) -> Declu
     spread = math.sqrt(n / (n - 1) * float(np.sum((weights - 1.0 / n) ** 2)))
     shift_z = (declustered_mean - mean) / (math.sqrt(variance) * spread) if spread > 0 else 0.0
     ratio_r, ratio_z = ratio if ratio is not None else (None, None)
-    clustered = bool((ratio_z is not None and ratio_z < RATIO_Z) or abs(shift_z) > SHIFT_Z)
+    held = TEST_CELL_SAMPLES / search.size  # cells of the searched samples holding four on average
+    test_cell = (held * size) ** (1.0 / d) if size > 0 else TEST_CELL_SAMPLES ** (1.0 / d) * spacing
+    fraction, random, even_z = evenness(sub_coords, test_cell, seed)
+    clustered = bool((ratio_z is not None and ratio_z < RATIO_Z) or _uneven(fraction, random, even_z))
     return Declustering(
         weights=weights,
         cell_size=chosen,
@@ -302,6 +392,9 @@ def decluster(coords: np.ndarray, values: np.ndarray, *, seed: int = 0) -> Declu
         nearest_neighbour_ratio=None if ratio_r is None else float(ratio_r),
         ratio_z=None if ratio_z is None else float(ratio_z),
         shift_z=float(shift_z),
+        effective_fraction=fraction,
+        random_fraction=random,
+        evenness_z=float(even_z),
     )
 
 
