@@ -204,6 +204,10 @@ def test_the_reported_regular_grid_keeps_its_mean():
     assert summary.declustering["clustered"] is False and summary.declustering["weights_used"] is False
     assert summary.reference_mean == summary.mean
     assert summary.declustering["effective_sample_fraction"] > 0.95
+    # The reported declustered moments are those of the weights used (equal ones), not of a cell
+    # weighting the verdict set aside (it gave 0.335).
+    assert summary.declustered_mean == pytest.approx(summary.mean, rel=1e-12)
+    assert summary.declustered_variance == pytest.approx(summary.variance, rel=1e-12)
 
 
 _HOT = np.array([45.0, 35.0])

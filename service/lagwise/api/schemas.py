@@ -1228,10 +1228,15 @@ class SummarySchema(BaseSchema):
     extent = fields.Dict(keys=fields.String(), values=fields.List(StrictFloat()))
     max_distance = StrictFloat()
     declustered_mean = StrictFloat(
-        allow_none=True, metadata={"description": "Mean under the cell-declustering weights."}
+        allow_none=True,
+        metadata={
+            "description": "Mean under the weights used: the cell-declustering weights when sampling is clustered "
+            "(declustering.weights_used), else equal weights (the plain mean)."
+        },
     )
     declustered_variance = StrictFloat(
-        allow_none=True, metadata={"description": "Variance under the cell-declustering weights (weights sum to 1)."}
+        allow_none=True,
+        metadata={"description": "Variance under the same weights (they sum to 1)."},
     )
     declustering = fields.Nested(DeclusteringSchema, allow_none=True)
 

@@ -143,11 +143,13 @@ def summarise(coords: np.ndarray, values: np.ndarray, declustering: Declustering
 
     ``declustering`` gives weights found earlier (e.g. on the original values when
     ``values`` are transformed); by default they are found from ``values``. The
-    declustered moments use its cell-declustering weights.
+    declustered moments use the weights it uses: its cell-declustering weights when the
+    sampling is clustered, else equal weights (so they equal the plain moments: a cell
+    weighting of a homogeneous design is no estimate anyone should read).
     """
     mean = float(np.mean(values))
     declustering = declustering if declustering is not None else decluster(coords, values)
-    weights = declustering.weights
+    weights = declustering.used_weights
     declustered_mean = float(np.dot(weights, values))
     return Summary(
         samples=int(values.size),
