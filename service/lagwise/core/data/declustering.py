@@ -292,15 +292,15 @@ def random_designs(coords: np.ndarray, count: int, rng: np.random.Generator) -> 
     """
     n, d = coords.shape
     wanted = count * n
-    corners = None
+    corners: np.ndarray | None = None
     if d > 1:
         try:
             triangulation = Delaunay(coords[ConvexHull(coords).vertices])
             corners = triangulation.points[triangulation.simplices]  # (m, d + 1, d)
         except (QhullError, ValueError):
             corners = None
-    volumes = np.abs(np.linalg.det(corners[:, 1:] - corners[:, :1])) if corners is not None else np.zeros(1)
-    if volumes.sum() <= 0:
+    volumes = np.zeros(1) if corners is None else np.abs(np.linalg.det(corners[:, 1:] - corners[:, :1]))
+    if corners is None or volumes.sum() <= 0:
         return list(rng.uniform(coords.min(axis=0), coords.max(axis=0), (wanted, d)).reshape(count, n, d))
     chosen = rng.choice(volumes.size, wanted, p=volumes / volumes.sum())
     barycentric = rng.dirichlet(np.ones(d + 1), wanted)

@@ -43,7 +43,16 @@ from ..errors import InvalidInput
 from ..limits import Limits
 from . import kernels as K
 from .bounds import map_bounds
-from .fft import check_budget, fft_bytes, lag_sums, map_floors, map_table, padded_shape, square_rounding
+from .fft import (
+    check_budget,
+    fft_bytes,
+    lag_sums,
+    map_floors,
+    map_table,
+    padded_shape,
+    square_rounding,
+    within_rounding,
+)
 from .gridded import MAX_GRID_SIDE, GridReport, binned_nodes, refuse_unbounded
 from .statistics import class_value
 
@@ -58,16 +67,10 @@ def cell_values(statistic: str, table: np.ndarray, mean: float, scale: float, me
     ]
 
 
-ROUNDING_NOTE = (
-    "{} map cells are left undefined: their semivariance is within the FFT's rounding error (tiny beside "
-    "the values' variance, as under a strong trend); method 'exact' on points computes them"
-)
-
-
 def without_rounding(values: list, floors: np.ndarray) -> tuple[list, int]:
     """``values`` with None for each semivariance not above its cell's rounding floor
     (:func:`~lagwise.core.variography.fft.map_floors`; a floor of 0 is exact), and how many."""
-    kept = [None if v is not None and 0.0 < f and v <= f else v for v, f in zip(values, floors, strict=True)]
+    kept = [None if within_rounding(v, f) else v for v, f in zip(values, floors, strict=True)]
     return kept, sum(1 for a, b in zip(values, kept, strict=True) if a is not b)
 
 

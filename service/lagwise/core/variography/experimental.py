@@ -17,7 +17,7 @@ from ..errors import FieldIssue, InvalidInput, LimitExceeded
 from ..limits import Limits
 from . import kernels as K
 from .directions import OMNIDIRECTIONAL, DirectionClass, direction_table, validate_direction
-from .fft import check_statistic, rounding_bound
+from .fft import ROUNDING, check_statistic, rounding_bound, rounding_note, within_rounding
 from .gridded import (
     BOUND_STATISTICS,
     DEFAULT_TOLERANCE,
@@ -591,10 +591,7 @@ def _from_grid(computed: GridVariogram, summary, resolved, statistic, min_pairs,
         results.append(DirectionResult(d, rows))
     rounded = sum(1 for r in results for row in r.classes if (row.reason or "").startswith(ROUNDING))
     if rounded:
-        notes.append(
-            f"{rounded} classes are left undefined: their semivariance is within the FFT's rounding error "
-            "(tiny beside the values' variance, as under a strong trend); method 'exact' on points computes them"
-        )
+        notes.append(rounding_note(rounded, "classes"))
     notes.extend(_class_warnings(results, min_pairs, summary))
     return ExperimentalVariogram(
         directions=tuple(results),
@@ -612,12 +609,9 @@ def _from_grid(computed: GridVariogram, summary, resolved, statistic, min_pairs,
     )
 
 
-ROUNDING = "the semivariance is within the FFT's rounding error"
-
-
 def _with_bound(row: ClassRow, computed: GridVariogram, k: int, c: int) -> ClassRow:
     floor = None if computed.floors is None else float(computed.floors[k, c])
-    if row.value is not None and floor is not None and 0.0 < floor and row.value <= floor:
+    if floor is not None and within_rounding(row.value, floor):
         reason = f"{ROUNDING} (about {floor:.3g}); use method 'exact' on the cells as points"
         row = replace(row, value=None, reason=reason, uncertainty_reason=reason)
         return replace(row, error_bound=None, pair_bound=0, bound_exceeded=False)

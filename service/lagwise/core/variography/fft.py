@@ -409,16 +409,37 @@ def class_table(sums: LagSums, classes: LagClasses, mask: np.ndarray, kmax: int)
     return out
 
 
+ROUNDING = "the semivariance is within the FFT's rounding error"
+
+
+def rounding_note(count: int, what: str) -> str:
+    """The warning for ``count`` classes or map cells (``what``) left undefined as rounding."""
+    return (
+        f"{count} {what} are left undefined: their semivariance is within the FFT's rounding error (tiny beside "
+        "the values' variance, as under a strong trend); method 'exact' on points computes them"
+    )
+
+
+def within_rounding(value: float | None, floor: float) -> bool:
+    """True for a semivariance not above its rounding floor (a floor of 0 is exact)."""
+    return value is not None and 0.0 < floor and value <= floor
+
+
+def _floors(bins: np.ndarray, count: np.ndarray, size: int, noise: float) -> np.ndarray:
+    """m ``noise`` / (2 N) for each of ``size`` bins holding m lag vectors of N pairs (inf where N = 0)."""
+    vectors = np.bincount(bins, minlength=size)[:size]
+    pairs = np.bincount(bins, weights=count, minlength=size)[:size]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return np.where(pairs > 0, vectors * noise / (2.0 * pairs), np.inf)
+
+
 def rounding_floors(classes: LagClasses, count: np.ndarray, kmax: int, noise: float) -> np.ndarray:
     """Semivariance below which a class is rounding (ndir, kmax): its lag vectors' errors summed,
     m ``noise`` / (2 N) for m lag vectors holding N pairs (inf where N = 0)."""
     floors = np.full((classes.index.shape[0], kmax), np.inf)
     for k in range(classes.index.shape[0]):
         member = classes.index[k] >= 0
-        vectors = np.bincount(classes.index[k][member], minlength=kmax)[:kmax]
-        pairs = np.bincount(classes.index[k][member], weights=count[member], minlength=kmax)[:kmax]
-        with np.errstate(divide="ignore", invalid="ignore"):
-            floors[k] = np.where(pairs > 0, vectors * noise / (2.0 * pairs), np.inf)
+        floors[k] = _floors(classes.index[k][member], count[member], kmax, noise)
     return floors
 
 
@@ -478,8 +499,4 @@ def map_floors(sums: LagSums, cell_size: float, cells: int, noise: float) -> np.
     """Semivariance below which each map cell ((2 cells + 1)^2, table order) is rounding, as
     :func:`rounding_floors` for classes (inf where a cell holds no pair)."""
     keep, b = _map_bins(sums, cell_size, cells)
-    width = 2 * cells + 1
-    vectors = np.bincount(b, minlength=width * width)
-    pairs = np.bincount(b, weights=sums.count[keep], minlength=width * width)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        return np.where(pairs > 0, vectors * noise / (2.0 * pairs), np.inf)
+    return _floors(b, sums.count[keep], (2 * cells + 1) ** 2, noise)

@@ -41,7 +41,6 @@ from ..errors import FieldIssue, InvalidInput, LimitExceeded
 from ..limits import Limits
 from . import kernels as K
 from .binned_maps import (
-    ROUNDING_NOTE,
     binned_map,
     cell_values,
     grid_shape,
@@ -58,6 +57,7 @@ from .fft import (
     map_table,
     padded_shape,
     rounding_bound,
+    rounding_note,
     square_rounding,
     transform_count,
 )
@@ -341,7 +341,7 @@ def _grid_map(samples, summary, cell_size, cells, statistic, min_pairs, limits, 
     )
     warnings = list(samples.warnings)
     if found.rounded:
-        warnings.append(ROUNDING_NOTE.format(found.rounded))
+        warnings.append(rounding_note(found.rounded, "map cells"))
     if found.report.flagged:
         warnings.append(
             f"{found.report.flagged} map cells have a grid error bound above {tolerance:g} (relative); "
@@ -497,7 +497,7 @@ def raster_map(
         pairs=table[:, K.COUNT].astype(np.int64).reshape(width, width),
         statistic=statistic,
         summary=summary,
-        warnings=raster.warnings + ((ROUNDING_NOTE.format(rounded),) if rounded else ()),
+        warnings=raster.warnings + ((rounding_note(rounded, "map cells"),) if rounded else ()),
         min_pairs=int(min_pairs),
         method="grid",
         grid=report,
