@@ -388,9 +388,9 @@ def read_raster_values(data: bytes | memoryview, max_cells: int) -> np.ndarray:
             pointer,
             f"a raster's Arrow stream holds one column, values (x fastest, null for a missing cell); got {names}",
         )
-    kind = reader.schema.field("values").type
-    if not (pa.types.is_floating(kind) or pa.types.is_integer(kind)):
-        raise InvalidInput.at(pointer, f"column values must hold numbers (floating-point or integer), got {kind}")
+    message = _kind_error("values", reader.schema.field("values").type)
+    if message:
+        raise InvalidInput.at(pointer, message)
     batches = _batches(reader, max_cells, "LAGWISE_MAX_ARROW_CELLS", "Send a smaller or coarser raster.")
     column = pa.Table.from_batches(batches, schema=reader.schema).column("values")
     values = column.cast(pa.float64(), safe=False).fill_null(np.nan).to_numpy()
